@@ -1,0 +1,20 @@
+"""Command line of pqcheck: a thin layer that parses options, calls the API, prints and exits.
+
+Exit codes (one convention for every command):
+
+- 0: ran, and every assessed limit passed (or nothing was assessed)
+- 1: a limit was exceeded
+- 2: bad input or usage (nothing was written)
+- 3: inconclusive (data quality or duration does not allow a verdict)
+
+Each command lives in its own module of this package and registers itself on :data:`main`.
+"""
+
+from __future__ import annotations
+
+from ._common import main
+
+# Command modules register themselves on `main` when imported.
+from . import analyze as _analyze  # noqa: F401,E402
+
+__all__ = ["main"]

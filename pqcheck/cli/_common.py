@@ -1,0 +1,67 @@
+"""Shared pieces of the command line: the click group, error handling and exit codes."""
+
+from __future__ import annotations
+
+import functools
+import sys
+
+import click
+
+from .. import __version__
+from ..errors import InputError, PqcheckError, ReportError
+
+EXIT_OK = 0
+EXIT_FAIL = 1
+EXIT_USAGE = 2
+EXIT_INCONCLUSIVE = 3
+
+VERDICT_EXIT = {"pass": EXIT_OK, "fail": EXIT_FAIL, "inconclusive": EXIT_INCONCLUSIVE,
+                "not applicable": EXIT_OK}
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+@click.version_option(__version__, prog_name="pqcheck")
+def main():
+    """pqcheck: harmonic analysis and compliance checks of power-electronics captures.
+
+    Load a capture, analyse it by the IEC 61000-4-7 method, check it against editable limit
+    tables and write a report. A pqcheck verdict is an engineering aid, not a certification.
+    """
+
+
+def fail_usage(message: str) -> "click.exceptions.Exit":
+    """Print an error to stderr and exit with code 2."""
+    click.echo(f"pqcheck: error: {message}", err=True)
+    raise click.exceptions.Exit(EXIT_USAGE)
+
+
+def handle_errors(func):
+    """Turn pqcheck's documented errors into one stderr line and exit code 2."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        try:
+            return func(*args, **kwargs)
+        except InputError as exc:
+            fail_usage(exc.location_message())
+        except ReportError as exc:
+            fail_usage(str(exc))
+        except PqcheckError as exc:
+            fail_usage(str(exc))
+        except MemoryError:
+            fail_usage("out of memory; try a shorter capture or a machine with more memory")
+        except KeyboardInterrupt:
+            click.echo("pqcheck: interrupted", err=True)
+            sys.exit(130)
+
+    return wrapper
+
+
+def split_columns(value: str | None) -> list | None:
+    """Split a comma-separated column list option (None stays None)."""
+    if value is None:
+        return None
+    cols = [c.strip() for c in value.split(",")]
+    if any(not c for c in cols):
+        fail_usage(f"empty column name in {value!r}; give names separated by commas, e.g. ia,ib,ic")
+    return cols
