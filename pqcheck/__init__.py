@@ -7,3 +7,38 @@ The public API follows the data flow: :func:`load_capture` reads a file into a
 """
 
 __version__ = "0.1.0"
+
+from .analysis import AnalysisResult, analyze  # noqa: E402
+from .capture import Capture, Channel, Provenance, assign_roles  # noqa: E402
+from .errors import (  # noqa: E402
+    AnalysisError,
+    CaptureFormatError,
+    InputError,
+    LimitTableError,
+    PlanError,
+    PqcheckError,
+    PqcheckWarning,
+    ReportError,
+)
+from .findings import Finding  # noqa: E402
+from .readers import load_capture  # noqa: E402
+
+__all__ = [
+    "__version__",
+    "AnalysisError",
+    "CaptureFormatError",
+    "InputError",
+    "LimitTableError",
+    "PlanError",
+    "PqcheckError",
+    "PqcheckWarning",
+    "ReportError",
+    "Finding",
+    "Capture",
+    "Channel",
+    "Provenance",
+    "assign_roles",
+    "load_capture",
+    "analyze",
+    "AnalysisResult",
+]

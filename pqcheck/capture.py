@@ -158,7 +158,7 @@ class Capture:
         chans = [c for c in self.channels if c.quantity == quantity]
         return sorted(chans, key=lambda c: order[c.phase])
 
-    def with_findings(self, extra) -> "Capture":
+    def with_findings(self, extra) -> Capture:
         """Copy with more findings appended."""
         return replace(self, findings=self.findings + tuple(extra))
 
@@ -171,7 +171,7 @@ class Capture:
         voltages: dict | None = None,
         t0_s: float = 0.0,
         source: str = "<memory>",
-    ) -> "Capture":
+    ) -> Capture:
         """Build a capture from arrays, for notebooks and tests.
 
         Parameters
@@ -233,7 +233,7 @@ def _phases_for(names) -> list:
     if len(names) == 1:
         return ["n" if named[0] == "n" else ""]
     out, order = [], iter("abc")
-    for n, p in zip(names, named):
+    for p in named:
         if p == "n":
             out.append("n")
         else:

@@ -19,6 +19,7 @@ __all__ = [
     "PlanError",
     "AnalysisError",
     "ReportError",
+    "PqcheckWarning",
 ]
 
 
@@ -83,3 +84,7 @@ class AnalysisError(InputError):
 
 class ReportError(PqcheckError, OSError):
     """A report or export could not be written (for example it exists and --force was not given)."""
+
+
+class PqcheckWarning(UserWarning):
+    """Warning category of pqcheck (the test suite turns it into an error)."""

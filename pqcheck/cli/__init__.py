@@ -12,9 +12,8 @@ Each command lives in its own module of this package and registers itself on :da
 
 from __future__ import annotations
 
-from ._common import main
-
 # Command modules register themselves on `main` when imported.
 from . import analyze as _analyze  # noqa: F401,E402
+from ._common import main
 
 __all__ = ["main"]

@@ -29,7 +29,7 @@ def main():
     """
 
 
-def fail_usage(message: str) -> "click.exceptions.Exit":
+def fail_usage(message: str) -> click.exceptions.Exit:
     """Print an error to stderr and exit with code 2."""
     click.echo(f"pqcheck: error: {message}", err=True)
     raise click.exceptions.Exit(EXIT_USAGE)

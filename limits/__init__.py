@@ -1,0 +1,1 @@
+"""Bundled limit tables (TOML data files). Copy one, edit it, and pass its path with --limits."""

@@ -1,0 +1,728 @@
+"""Harmonic analysis of a capture by the IEC 61000-4-7 method: the orchestrator.
+
+:func:`analyze` takes a :class:`~pqcheck.capture.Capture` and returns an
+:class:`AnalysisResult`: per-window arrays (the standard's 10/12-cycle values), capture-level
+aggregates (the rms of the window values), power quantities when voltages and currents are both
+present, and the data-quality findings. It works through the capture in blocks, so memory does
+not grow with capture length beyond the (small) per-window results.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import metrics, quality
+from .capture import Capture, require_channels
+from .dsp.spectrum import analyse_windows, harmonic_groupings
+from .dsp.tracking import coarse_frequency, detect_nominal, window_boundaries
+from .errors import AnalysisError, InputError
+from .findings import Finding
+
+__all__ = [
+    "AnalysisSettings",
+    "WindowSeries",
+    "ChannelResult",
+    "PhasePower",
+    "PowerResult",
+    "AnalysisResult",
+    "analyze",
+    "WIRINGS",
+]
+
+WIRINGS = ("3-wire", "4-wire")
+_BLOCK = 1 << 20
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Settings an analysis ran with (recorded in results and reports).
+
+    Attributes
+    ----------
+    nominal_hz : float
+        Nominal system frequency, 50 or 60. [Hz]
+    nominal_source : str
+        ``"user"`` or ``"detected"``.
+    cycles_per_window : int
+        10 (50 Hz) or 12 (60 Hz). [unitless]
+    max_order : int
+        Highest harmonic order asked for. [unitless]
+    il_a : float or None
+        Maximum demand load current for TDD. [A]
+    wiring : str or None
+        ``"3-wire"``, ``"4-wire"`` or None (not three-phase).
+    wiring_source : str
+        ``"user"``, ``"inferred"`` or ``""``.
+    reference : str
+        Channel whose fundamental sets the windows and phase reference.
+    method : str
+        Short description of the method.
+    """
+
+    nominal_hz: float
+    nominal_source: str
+    cycles_per_window: int
+    max_order: int
+    il_a: float | None
+    wiring: str | None
+    wiring_source: str
+    reference: str
+    method: str = (
+        "IEC 61000-4-7 synchronous rectangular windows of 10 (50 Hz) or 12 (60 Hz) tracked "
+        "fundamental cycles, gapless; whole-sample windows with per-harmonic correction of the "
+        "residual length mismatch; harmonic groups, subgroups and interharmonic groups"
+    )
+
+    def to_dict(self) -> dict:
+        return {
+            "nominal_hz": self.nominal_hz,
+            "nominal_source": self.nominal_source,
+            "cycles_per_window": self.cycles_per_window,
+            "max_order": self.max_order,
+            "il_a": self.il_a,
+            "wiring": self.wiring,
+            "wiring_source": self.wiring_source,
+            "reference": self.reference,
+            "method": self.method,
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class WindowSeries:
+    """Per-window values over the capture (W windows, C analysed channels, orders 0..H).
+
+    Attributes
+    ----------
+    t_start_s, duration_s, freq_hz : numpy.ndarray, shape (W,)
+        Start time, length and fundamental frequency of each window. [s], [s], [Hz]
+    valid : numpy.ndarray of bool, shape (W,)
+        False for windows with missing samples (their values are NaN).
+    component : numpy.ndarray of complex, shape (W, C, H + 1)
+        Harmonic components as rms phasors; phase relative to the reference channel's
+        fundamental in the same window (cosine basis). Order 0 is the DC value. [A] or [V]
+    group, subgroup, interharmonic_group : numpy.ndarray, shape (W, C, H + 1)
+        IEC 61000-4-7 groupings (``interharmonic_group[..., h]`` lies between h and h+1). [A]/[V]
+    rms, dc, peak : numpy.ndarray, shape (W, C)
+        True rms, mean and largest absolute value. [A] or [V]
+    p_w : numpy.ndarray, shape (W, P) or None
+        Active power per voltage/current phase pair. [W]
+    p_total_w : numpy.ndarray, shape (W,) or None
+        Total active power. [W]
+    """
+
+    t_start_s: np.ndarray
+    duration_s: np.ndarray
+    freq_hz: np.ndarray
+    valid: np.ndarray
+    component: np.ndarray
+    group: np.ndarray
+    subgroup: np.ndarray
+    interharmonic_group: np.ndarray
+    rms: np.ndarray
+    dc: np.ndarray
+    peak: np.ndarray
+    p_w: np.ndarray | None = None
+    p_total_w: np.ndarray | None = None
+    v_ll_rms: np.ndarray | None = None
+    i_n_rms: np.ndarray | None = None
+
+    @property
+    def n_windows(self) -> int:
+        return int(self.t_start_s.size)
+
+
+@dataclass(frozen=True, eq=False)
+class ChannelResult:
+    """Capture-level results of one channel (rms over valid windows unless stated).
+
+    Attributes
+    ----------
+    name, quantity, phase, unit : str
+        Channel identity; ``quantity`` is ``"current"`` or ``"voltage"``.
+    rms : float
+        True rms. [A] or [V]
+    dc : float
+        Mean value (arithmetic mean of window means). [A] or [V]
+    fundamental_rms : float
+        Fundamental component. [A] or [V]
+    thd_percent, thd_group_percent, thd_subgroup_percent : float
+        THD from harmonic components, groups and subgroups (orders 2..max resolved). [%]
+    tdd_percent : float or None
+        TDD with the IL given (currents only). [%]
+    thc, pwhc : float
+        Total and partial weighted harmonic current/voltage (groups, orders 2..40, 14..40). [A]/[V]
+    pwhd_percent : float
+        PWHC relative to the fundamental group. [%]
+    crest_factor : float
+        Largest window crest factor. [unitless]
+    orders : numpy.ndarray of int
+        0..H.
+    harmonic_rms, group_rms, subgroup_rms, interharmonic_group_rms : numpy.ndarray
+        Per-order values, NaN above the highest resolved order. [A] or [V]
+    phase_deg : numpy.ndarray
+        Phase of each harmonic relative to the reference fundamental (cosine basis). [deg]
+    """
+
+    name: str
+    quantity: str
+    phase: str
+    unit: str
+    rms: float
+    dc: float
+    fundamental_rms: float
+    thd_percent: float
+    thd_group_percent: float
+    thd_subgroup_percent: float
+    tdd_percent: float | None
+    thc: float
+    pwhc: float
+    pwhd_percent: float
+    crest_factor: float
+    orders: np.ndarray
+    harmonic_rms: np.ndarray
+    group_rms: np.ndarray
+    subgroup_rms: np.ndarray
+    interharmonic_group_rms: np.ndarray
+    phase_deg: np.ndarray
+
+
+@dataclass(frozen=True)
+class PhasePower:
+    """IEEE 1459 quantities of one phase (means over valid windows; PF = mean P / mean S).
+
+    Attributes
+    ----------
+    phase : str
+    voltage, current : str
+        Channel names.
+    p_w, s_va, p1_w, q1_var, s1_va : float
+        Active, apparent, fundamental active, reactive and apparent power. [W], [VA], [var]
+    pf, dpf : float
+        Power factor P/S and displacement power factor P1/S1 (negative when exporting). [unitless]
+    """
+
+    phase: str
+    voltage: str
+    current: str
+    p_w: float
+    s_va: float
+    p1_w: float
+    q1_var: float
+    s1_va: float
+    pf: float
+    dpf: float
+
+
+@dataclass(frozen=True)
+class PowerResult:
+    """Power quantities of the capture.
+
+    Attributes
+    ----------
+    phases : tuple of PhasePower
+    p_w : float
+        Total active power. [W]
+    se_va : float or None
+        IEEE 1459 effective apparent power (three-phase), else the single phase's S. [VA]
+    pf : float
+        Total power factor ``P / Se``. [unitless]
+    wiring : str or None
+    extra : dict
+        Three-phase extras: ``se1_va``, ``p1pos_w``, ``q1pos_var``, ``s1pos_va``, ``su1_va``,
+        ``dpf_pos``, ``i_unbalance_percent``, ``v_unbalance_percent``, ``ie_a``, ``ve_v``,
+        and ``arithmetic_s_va`` (sum of phase V I, for comparison only).
+    """
+
+    phases: tuple
+    p_w: float
+    se_va: float | None
+    pf: float
+    wiring: str | None
+    extra: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True, eq=False)
+class AnalysisResult:
+    """Everything :func:`analyze` computed, for the assessment, the report and exports."""
+
+    source: str
+    sha256: str
+    fs_hz: float
+    n_samples: int
+    duration_s: float
+    settings: AnalysisSettings
+    fundamental_hz: float
+    freq_min_hz: float
+    freq_max_hz: float
+    max_resolved_order: int
+    channels: tuple
+    windows: WindowSeries
+    power: PowerResult | None
+    findings: tuple
+    reader_settings: dict = field(default_factory=dict)
+
+    def channel_index(self, name: str) -> int:
+        """Index of channel ``name`` in :attr:`channels` and the window arrays."""
+        for i, c in enumerate(self.channels):
+            if c.name == name:
+                return i
+        raise KeyError(f"no analysed channel {name!r}; have {[c.name for c in self.channels]}")
+
+    def channels_of(self, quantity: str) -> list:
+        """Channel results of one quantity (``"current"`` or ``"voltage"``)."""
+        return [c for c in self.channels if c.quantity == quantity]
+
+    @property
+    def analysed_s(self) -> float:
+        """Time covered by valid windows. [s]"""
+        w = self.windows
+        return float(np.sum(w.duration_s[w.valid]))
+
+
+def _rms_over(a, valid, axis=0):
+    a = np.abs(np.asarray(a))
+    sel = a[valid]
+    if sel.shape[0] == 0:
+        return np.full(a.shape[1:], np.nan)
+    return np.sqrt(np.mean(sel**2, axis=axis))
+
+
+def analyze(
+    capture: Capture,
+    *,
+    nominal_hz: float | None = None,
+    max_order: int = 50,
+    il_a: float | None = None,
+    wiring: str | None = None,
+    reference: str | None = None,
+    block_samples: int = _BLOCK,
+    progress=None,
+) -> AnalysisResult:
+    """Analyse a capture by the IEC 61000-4-7 method.
+
+    Parameters
+    ----------
+    capture : Capture
+        Uniformly sampled record; channels with quantity ``"other"`` are ignored.
+    nominal_hz : {50, 60} or None
+        Nominal frequency; detected from the data when None. [Hz]
+    max_order : int, optional
+        Highest harmonic order (2..100). Orders the sample rate cannot resolve are reported as
+        NaN with a ``low-sample-rate`` finding. [unitless]
+    il_a : float or None
+        Maximum demand load current for TDD. [A]
+    wiring : {"3-wire", "4-wire"} or None
+        Three-phase connection for the IEEE 1459 effective quantities; when None, inferred:
+        phase currents that do not sum to zero need a neutral (4-wire).
+    reference : str or None
+        Channel whose fundamental sets the windows; default the first voltage, else the
+        current with the largest rms.
+    block_samples : int, optional
+        Samples processed per block (memory bound). [samples]
+    progress : callable or None
+        Called as ``progress(done_samples, total_samples)``.
+
+    Returns
+    -------
+    AnalysisResult
+
+    Raises
+    ------
+    InputError
+        A setting is out of range or names an unknown channel.
+    AnalysisError
+        The capture is shorter than one window, or no fundamental can be found at all.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> fs = 10_000.0
+    >>> t = np.arange(int(fs)) / fs
+    >>> i = np.sin(2 * np.pi * 50 * t) + 0.2 * np.sin(2 * np.pi * 250 * t)
+    >>> res = analyze(Capture.from_arrays(fs, currents={"i": i}), nominal_hz=50)
+    >>> round(res.channels[0].thd_percent, 6)
+    20.0
+    """
+    require_channels(capture)
+    src = capture.provenance.source
+    path = src if src != "<memory>" else None
+    if nominal_hz is not None and nominal_hz not in (50, 60):
+        raise InputError(
+            f"nominal frequency must be 50 or 60 Hz, got {nominal_hz!r}", path=path,
+            field="--nominal-frequency",
+        )
+    if not (isinstance(max_order, (int, np.integer)) and 2 <= max_order <= 100):
+        raise InputError(
+            f"maximum order must be a whole number from 2 to 100, got {max_order!r}",
+            path=path, field="--max-order",
+        )
+    if il_a is not None and not (np.isfinite(il_a) and il_a > 0):
+        raise InputError(f"IL must be a positive current in A, got {il_a!r}", field="--il")
+    if wiring is not None and wiring not in WIRINGS:
+        raise InputError(f"wiring must be one of {', '.join(WIRINGS)}, got {wiring!r}",
+                         field="--wiring")
+    max_order = int(max_order)
+    fs = float(capture.fs_hz)
+    chans = [c for c in capture.channels if c.quantity in ("current", "voltage")]
+    rows = [capture.index(c.name) for c in chans]
+    data = capture.samples[rows]
+    n = data.shape[1]
+    findings: list = list(capture.findings)
+
+    # Reference channel and coarse frequency from the first seconds.
+    head = data[:, : min(n, int(fs * 2.0) + 1)]
+    if reference is not None:
+        names = [c.name for c in chans]
+        if reference not in names:
+            raise InputError(f"reference channel {reference!r} is not an analysed channel; "
+                             f"choose one of {', '.join(names)}", path=path, field="--reference")
+        ref = names.index(reference)
+    else:
+        volts = [k for k, c in enumerate(chans) if c.quantity == "voltage"]
+        head_rms = np.sqrt(np.nanmean(head**2, axis=1)) if head.shape[1] else np.zeros(len(chans))
+        if volts:
+            ref = volts[0]
+        else:
+            ref = int(np.nanargmax(np.nan_to_num(head_rms)))
+    band = (40.0, 70.0) if nominal_hz is None else (0.8 * nominal_hz, 1.2 * nominal_hz)
+    f_coarse, amp = coarse_frequency(head[ref], fs, f_lo_hz=band[0], f_hi_hz=band[1])
+    nominal_source = "user"
+    if nominal_hz is None:
+        nominal_hz = detect_nominal(f_coarse)
+        nominal_source = "detected"
+        if nominal_hz is None:
+            raise AnalysisError(
+                f"no fundamental between 40 and 70 Hz found on channel {chans[ref].name!r}; "
+                "give --nominal-frequency 50 or 60 and check the channel map",
+                path=path, field="--nominal-frequency",
+            )
+        findings.append(Finding(
+            "nominal-detected", "info",
+            f"nominal frequency taken as {nominal_hz} Hz from the measured fundamental "
+            f"({f_coarse:.3f} Hz); give --nominal-frequency to set it.",
+            value=float(nominal_hz), unit="Hz"))
+    nominal_hz = float(nominal_hz)
+    cycles = 10 if nominal_hz == 50 else 12
+    tracked = bool(np.isfinite(f_coarse)) and amp > 0
+    f_demod = f_coarse if tracked else nominal_hz
+    if n < fs * cycles / nominal_hz * 0.98:
+        raise AnalysisError(
+            f"the capture lasts {n / fs:.4g} s; the IEC 61000-4-7 method needs at least one "
+            f"{cycles}-cycle window ({cycles / nominal_hz:.3g} s at {nominal_hz:g} Hz). "
+            "Capture a longer record (a few seconds or more).",
+            path=path, field="duration",
+        )
+    resolved = quality.max_resolved_order(fs, nominal_hz, max_order)
+    if resolved < 1:
+        raise AnalysisError(
+            f"a sample rate of {fs:g} Hz cannot resolve even the fundamental; capture at "
+            f"{quality.SAMPLES_PER_PERIOD_MIN * nominal_hz * max_order:g} Hz or more",
+            path=path, field="sample rate",
+        )
+    max_line = cycles * (resolved + 1) + cycles // 2
+
+    # Power bookkeeping: voltage/current pairs by phase, line-to-line and neutral combos.
+    pairs, pair_phases = _phase_pairs(chans)
+    volt_abc = _abc(chans, "voltage")
+    curr_abc = _abc(chans, "current")
+    neutral = [k for k, c in enumerate(chans) if c.quantity == "current" and c.phase == "n"]
+    combos = []
+    if volt_abc:
+        for a, b in ((0, 1), (1, 2), (2, 0)):
+            w = np.zeros(len(chans))
+            w[volt_abc[a]], w[volt_abc[b]] = 1.0, -1.0
+            combos.append(w)
+    if curr_abc:
+        w = np.zeros(len(chans))
+        for k in curr_abc:
+            w[k] = 1.0
+        combos.append(w)
+    combos = np.array(combos) if combos else None
+
+    clip = [quality.ClipDetector(c.name) for c in chans]
+    nonfinite = np.zeros(len(chans), dtype=np.int64)
+    blocks = []
+    bounds_all = [np.array([0.0])]
+    start = 0.0
+    weak_any = not tracked
+    pos = 0
+    while True:
+        lo = int(np.floor(start))
+        hi = min(n, lo + max(block_samples, int(4 * fs * cycles / nominal_hz)))
+        final = hi >= n
+        block = data[:, lo:hi]
+        # raw-sample gates on the part of the block not seen before
+        new = block[:, max(pos - lo, 0):]
+        if new.shape[1]:
+            nonfinite += (~np.isfinite(new)).sum(axis=1)
+            for k in range(len(chans)):
+                clip[k].update(new[k])
+            pos = hi
+        b = np.array([start])
+        if tracked:
+            tr = window_boundaries(block[ref], fs, f_demod, start, cycles, offset=lo, final=final)
+            weak_any |= tr.weak
+            b = tr.boundaries
+        if b.size <= 1 and not (tracked and final):
+            step = fs * cycles / nominal_hz
+            m = int(np.floor((hi - start) / step + 1e-9))
+            b = start + step * np.arange(m + 1)
+        if b.size > 1:
+            # keep windows inside the data
+            b = b[np.rint(b) <= hi]
+        if b.size > 1:
+            wb = analyse_windows(block, b, max_line=max_line, offset=lo, pairs=pairs,
+                                 combos=combos)
+            blocks.append((b, wb))
+            bounds_all.append(b[1:])
+            f_new = cycles * fs / np.diff(b)
+            if tracked and np.all(np.isfinite(f_new)):
+                f_demod = float(np.median(f_new))
+            start = float(b[-1])
+        if progress is not None:
+            progress(min(hi, n), n)
+        if final or b.size <= 1:
+            break
+
+    if not blocks:
+        raise AnalysisError(
+            "no complete window fits in the capture; capture a longer record",
+            path=path, field="duration",
+        )
+    bnd = np.concatenate(bounds_all)
+    lines = np.concatenate([wb.lines for _, wb in blocks])
+    gain = np.concatenate([wb.gain for _, wb in blocks])
+    grp = harmonic_groupings(lines, cycles, max_order, gain=gain)
+    del lines
+    # Orders above what the sample rate resolves are not numbers.
+    if resolved < max_order:
+        for key in grp:
+            grp[key][..., resolved + 1:] = np.nan
+    rms_w = np.concatenate([wb.rms for _, wb in blocks])
+    dc_w = np.concatenate([wb.mean for _, wb in blocks])
+    peak_w = np.concatenate([wb.peak for _, wb in blocks])
+    valid = np.concatenate([wb.valid for _, wb in blocks])
+    prods = np.concatenate([wb.products for _, wb in blocks])
+    crms = np.concatenate([wb.combo_rms for _, wb in blocks])
+    durations = np.diff(bnd) / fs
+    freq_w = cycles / durations
+    t_start = capture.t0_s + bnd[:-1] / fs
+
+    # Phase reference: the reference channel's fundamental in each window.
+    comp = grp["component"]
+    ref_angle = np.angle(comp[:, ref, 1])
+    if not tracked:
+        ref_angle = np.zeros_like(ref_angle)
+    orders = np.arange(max_order + 1)
+    comp = comp * np.exp(-1j * orders[None, None, :] * ref_angle[:, None, None])
+    for arr in (comp, grp["group"], grp["subgroup"], grp["interharmonic_group"], rms_w, dc_w,
+                peak_w):
+        arr[~valid] = np.nan
+    p_w = prods[:, : len(pairs)] if pairs else None
+    if p_w is not None:
+        p_w = np.where(valid[:, None], p_w, np.nan)
+    windows = WindowSeries(
+        t_start_s=t_start,
+        duration_s=durations,
+        freq_hz=freq_w,
+        valid=valid,
+        component=comp,
+        group=grp["group"],
+        subgroup=grp["subgroup"],
+        interharmonic_group=grp["interharmonic_group"],
+        rms=rms_w,
+        dc=dc_w,
+        peak=peak_w,
+        p_w=p_w,
+        p_total_w=None if p_w is None else p_w.sum(axis=1),
+        v_ll_rms=crms[:, :3] if volt_abc else None,
+        i_n_rms=crms[:, 3 if volt_abc else 0] if curr_abc else None,
+    )
+    n_valid = int(valid.sum())
+    findings += quality.gap_findings([c.name for c in chans], nonfinite, valid.size, n_valid, n)
+    if n_valid == 0:
+        raise AnalysisError(
+            "every window contains missing or non-finite samples; no result is possible. "
+            "Repair or re-export the capture.", path=path, field="samples")
+
+    # Capture-level aggregates: rms of the window values.
+    chan_results = []
+    comp_mag = np.abs(comp)
+    for k, c in enumerate(chans):
+        h_rms = _rms_over(comp_mag[:, k], valid)
+        g_rms = _rms_over(grp["group"][:, k], valid)
+        sg_rms = _rms_over(grp["subgroup"][:, k], valid)
+        ih_rms = _rms_over(grp["interharmonic_group"][:, k], valid)
+        ph = np.degrees(np.angle(np.nanmean(comp[valid, k], axis=0)))
+        if resolved < max_order:
+            ph[resolved + 1:] = np.nan
+        thd_w = metrics.thd(comp_mag[:, k], max_order=resolved)
+        thdg_w = metrics.thd(grp["group"][:, k], max_order=resolved)
+        thds_w = metrics.thd(grp["subgroup"][:, k], max_order=resolved)
+        tdd = None
+        if il_a is not None and c.quantity == "current":
+            tdd = float(_rms_over(metrics.tdd(comp_mag[:, k], il_a, max_order=resolved), valid))
+        thc_w = metrics.thc(grp["group"][:, k], max_order=min(40, resolved))
+        pwhc_w = metrics.pwhc(grp["group"][:, k], hi=min(40, resolved))
+        pwhd_w = metrics.pwhd(grp["group"][:, k], hi=min(40, resolved))
+        cf = metrics.crest_factor(peak_w[:, k], rms_w[:, k])
+        chan_results.append(ChannelResult(
+            name=c.name, quantity=c.quantity, phase=c.phase, unit=c.unit or
+            ("A" if c.quantity == "current" else "V"),
+            rms=float(_rms_over(rms_w[:, k], valid)),
+            dc=float(np.nanmean(dc_w[valid, k])),
+            fundamental_rms=float(h_rms[1]),
+            thd_percent=float(_rms_over(thd_w, valid)),
+            thd_group_percent=float(_rms_over(thdg_w, valid)),
+            thd_subgroup_percent=float(_rms_over(thds_w, valid)),
+            tdd_percent=tdd,
+            thc=float(_rms_over(thc_w, valid)),
+            pwhc=float(_rms_over(pwhc_w, valid)),
+            pwhd_percent=float(_rms_over(pwhd_w, valid)),
+            crest_factor=float(np.nanmax(cf[valid])) if n_valid else float("nan"),
+            orders=orders,
+            harmonic_rms=h_rms,
+            group_rms=g_rms,
+            subgroup_rms=sg_rms,
+            interharmonic_group_rms=ih_rms,
+            phase_deg=ph,
+        ))
+
+    # Wiring and power.
+    wiring_source = ""
+    if len(curr_abc) == 3 or len(volt_abc) == 3:
+        if wiring is None:
+            wiring, wiring_source = _infer_wiring(windows, chans, curr_abc, neutral, valid), \
+                "inferred"
+        else:
+            wiring_source = "user"
+    else:
+        if wiring is not None:
+            findings.append(Finding(
+                "wiring-ignored", "info",
+                f"--wiring {wiring} ignored: the capture is not three-phase."))
+        wiring = None
+    power = _power(windows, chans, pairs, pair_phases, volt_abc, curr_abc, neutral, wiring,
+                   valid)
+
+    # Findings from the results.
+    findings += quality.sample_rate_findings(fs, nominal_hz, max_order, resolved, cycles)
+    findings += quality.frequency_findings(freq_w[valid], nominal_hz, tracked=not weak_any,
+                                           reference=chans[ref].name)
+    findings += quality.dc_offset_findings(
+        [c.name for c in chans], [r.dc for r in chan_results],
+        [r.fundamental_rms for r in chan_results], [c.quantity for c in chans])
+    findings += quality.fundamental_findings(
+        [c.name for c in chans], [r.fundamental_rms for r in chan_results],
+        [r.rms for r in chan_results])
+    for det in clip:
+        findings += det.findings()
+    tail = (n - bnd[-1]) / fs
+    if tail > 0.5 * cycles / nominal_hz:
+        findings.append(Finding(
+            "incomplete-window", "info",
+            f"the last {tail:.3f} s do not fill a whole {cycles}-cycle window and are not analysed.",
+            value=tail, unit="s"))
+    if wiring_source == "inferred":
+        findings.append(Finding(
+            "wiring-inferred", "info",
+            f"three-phase wiring taken as {wiring} from the data (phase currents "
+            f"{'do not ' if wiring == '4-wire' else ''}sum to zero); give --wiring to set it."))
+
+    settings = AnalysisSettings(
+        nominal_hz=nominal_hz, nominal_source=nominal_source, cycles_per_window=cycles,
+        max_order=max_order, il_a=il_a, wiring=wiring, wiring_source=wiring_source,
+        reference=chans[ref].name,
+    )
+    fv = freq_w[valid]
+    return AnalysisResult(
+        source=capture.provenance.source,
+        sha256=capture.provenance.sha256,
+        fs_hz=fs,
+        n_samples=n,
+        duration_s=n / fs,
+        settings=settings,
+        fundamental_hz=float(np.mean(fv)),
+        freq_min_hz=float(np.min(fv)),
+        freq_max_hz=float(np.max(fv)),
+        max_resolved_order=resolved,
+        channels=tuple(chan_results),
+        windows=windows,
+        power=power,
+        findings=tuple(findings),
+        reader_settings=dict(capture.provenance.settings),
+    )
+
+
+def _abc(chans, quantity):
+    idx = {c.phase: k for k, c in enumerate(chans) if c.quantity == quantity}
+    if all(p in idx for p in "abc"):
+        return [idx["a"], idx["b"], idx["c"]]
+    return []
+
+
+def _phase_pairs(chans):
+    """(voltage row, current row) pairs matched by phase; single-phase '' pairs with ''/a."""
+    volts = {c.phase or "a": k for k, c in enumerate(chans) if c.quantity == "voltage"
+             and c.phase != "n"}
+    pairs, phases = [], []
+    for k, c in enumerate(chans):
+        if c.quantity != "current" or c.phase == "n":
+            continue
+        ph = c.phase or "a"
+        if ph in volts:
+            pairs.append((volts[ph], k))
+            phases.append(c.phase)
+    return pairs, phases
+
+
+def _infer_wiring(windows, chans, curr_abc, neutral, valid):
+    if neutral:
+        return "4-wire"
+    if len(curr_abc) != 3 or windows.i_n_rms is None:
+        return "3-wire"
+    i_sum = _rms_over(windows.i_n_rms, valid)
+    i_phase = np.mean([_rms_over(windows.rms[:, k], valid) for k in curr_abc])
+    return "4-wire" if i_phase > 0 and i_sum > 0.05 * i_phase else "3-wire"
+
+
+def _power(windows, chans, pairs, pair_phases, volt_abc, curr_abc, neutral, wiring, valid):
+    if not pairs:
+        return None
+    comp = windows.component
+    phases = []
+    per = []
+    for (kv, ki), ph in zip(pairs, pair_phases):
+        q = metrics.single_phase_power(
+            windows.rms[:, kv], windows.rms[:, ki], windows.p_w[:, len(per)],
+            comp[:, kv, 1], comp[:, ki, 1])
+        per.append(q)
+        m = {key: float(np.nanmean(val[valid])) for key, val in q.items()}
+        phases.append(PhasePower(
+            phase=ph, voltage=chans[kv].name, current=chans[ki].name, p_w=m["p_w"],
+            s_va=m["s_va"], p1_w=m["p1_w"], q1_var=m["q1_var"], s1_va=m["s1_va"],
+            pf=m["p_w"] / m["s_va"] if m["s_va"] > 0 else float("nan"),
+            dpf=m["p1_w"] / m["s1_va"] if m["s1_va"] > 0 else float("nan")))
+    p_total = float(sum(p.p_w for p in phases))
+    if wiring is not None and len(volt_abc) == 3 and len(curr_abc) == 3 and len(pairs) == 3:
+        i_n = None
+        if wiring == "4-wire":
+            i_n = windows.rms[:, neutral[0]] if neutral else windows.i_n_rms
+        t = metrics.three_phase_power(
+            p_w=windows.p_w, i_rms=windows.rms[:, curr_abc], v_rms=windows.rms[:, volt_abc],
+            v_ll_rms=windows.v_ll_rms, i1=comp[:, curr_abc, 1], v1=comp[:, volt_abc, 1],
+            wiring=wiring, i_n_rms=i_n)
+        m = {key: float(np.nanmean(val[valid])) for key, val in t.items()}
+        extra = {k: m[k] for k in ("se1_va", "p1pos_w", "q1pos_var", "s1pos_va", "su1_va",
+                                   "ie_a", "ve_v", "i_unbalance_percent", "v_unbalance_percent")}
+        extra["dpf_pos"] = m["p1pos_w"] / m["s1pos_va"] if m["s1pos_va"] > 0 else float("nan")
+        extra["arithmetic_s_va"] = float(sum(p.s_va for p in phases))
+        se = m["se_va"]
+        return PowerResult(tuple(phases), p_total, se, p_total / se if se > 0 else float("nan"),
+                           wiring, extra)
+    s_sum = float(sum(p.s_va for p in phases))
+    return PowerResult(tuple(phases), p_total, s_sum if len(phases) == 1 else None,
+                       p_total / s_sum if s_sum > 0 else float("nan"), None,
+                       {"arithmetic_s_va": s_sum})

@@ -1,0 +1,226 @@
+"""Synchronous-window DFT and the IEC 61000-4-7 groupings of its spectral lines.
+
+Windows come from :mod:`pqcheck.dsp.tracking` as fractional sample positions. Each window is
+taken as the whole samples between its rounded edges, so its length differs from the exact
+``cycles_per_window`` fundamental periods by less than half a sample: at 10 kS/s and 50 Hz
+(2000 samples per window) that is within 0.025 %, inside the +-0.03 % synchronisation
+tolerance of IEC 61000-4-7 (from memory). The remaining fractional mismatch ``delta`` is known
+for every window, so the harmonic components are divided by the rectangular window's response
+at their exact offset (the Dirichlet kernel), removing the scalloping error that would otherwise
+grow with order (about 0.6 % at order 50 for a half-sample mismatch at 4000 samples). Groups
+and subgroups sum line energies and are taken from the uncorrected lines: the energy a slightly
+detuned component spreads to its neighbours stays inside its group (Parseval).
+
+All windows of equal length are transformed together with one batched ``scipy.fft.rfft``:
+no Python loop runs per window.
+
+Line values are rms phasors: ``C_k = sqrt(2) X_k / N`` for ``k >= 1`` and ``C_0 = X_0 / N``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import fft as sfft
+
+__all__ = ["WindowBlock", "analyse_windows", "harmonic_groupings"]
+
+
+@dataclass(frozen=True)
+class WindowBlock:
+    """Spectra and time-domain statistics of a run of windows.
+
+    Attributes
+    ----------
+    lines : numpy.ndarray
+        complex, shape ``(W, C, K + 1)``: rms phasor of spectral lines 0..K, spaced
+        ``1 / T_w`` (5 Hz at 50 Hz), as the DFT gives them. [A] or [V]
+    gain : numpy.ndarray
+        complex, shape ``(W, K + 1)``: response of each window's DFT to a component sitting
+        exactly at line k of the true window (divide a line by it to undo scalloping).
+    rms, peak, mean : numpy.ndarray
+        shape ``(W, C)``: true rms, largest absolute sample and mean of each window. [A] or [V]
+    products : numpy.ndarray
+        shape ``(W, len(pairs))``: mean of the product of two channels (active power for a
+        voltage/current pair). [W]
+    combo_rms : numpy.ndarray
+        shape ``(W, len(combos))``: rms of linear combinations of channels (line-to-line
+        voltages, neutral current). [V] or [A]
+    n_samples : numpy.ndarray
+        shape ``(W,)``: samples in each window. [samples]
+    mismatch : numpy.ndarray
+        shape ``(W,)``: exact window length minus ``n_samples``. [samples]
+    valid : numpy.ndarray
+        shape ``(W,)``: False when a window holds a non-finite sample.
+    """
+
+    lines: np.ndarray
+    gain: np.ndarray
+    rms: np.ndarray
+    peak: np.ndarray
+    mean: np.ndarray
+    products: np.ndarray
+    combo_rms: np.ndarray
+    n_samples: np.ndarray
+    mismatch: np.ndarray
+    valid: np.ndarray
+
+
+def analyse_windows(
+    samples,
+    boundaries,
+    *,
+    max_line: int,
+    offset: int = 0,
+    pairs=(),
+    combos=None,
+    workers: int = -1,
+) -> WindowBlock:
+    """DFT of each synchronous window, with scalloping correction.
+
+    Parameters
+    ----------
+    samples : numpy.ndarray
+        shape ``(C, n)``, the block's samples; column 0 has global index ``offset``. [A] or [V]
+    boundaries : array_like
+        ``W + 1`` fractional global sample positions of the window edges. [samples]
+    max_line : int
+        Highest spectral line kept (``cycles_per_window * (max_order + 1)``). [unitless]
+    pairs : sequence of (int, int)
+        Channel pairs whose mean product is wanted (voltage row, current row).
+    combos : numpy.ndarray or None
+        shape ``(D, C)``: weights of derived signals whose rms is wanted.
+
+    Returns
+    -------
+    WindowBlock
+    """
+    samples = np.asarray(samples, dtype=np.float64)
+    b = np.asarray(boundaries, dtype=np.float64)
+    n_ch = samples.shape[0]
+    n_win = b.size - 1
+    combos = np.zeros((0, n_ch)) if combos is None else np.asarray(combos, dtype=np.float64)
+    lines = np.full((n_win, n_ch, max_line + 1), np.nan + 0j)
+    gains = np.ones((n_win, max_line + 1), dtype=np.complex128)
+    rms = np.full((n_win, n_ch), np.nan)
+    peak = np.full((n_win, n_ch), np.nan)
+    mean = np.full((n_win, n_ch), np.nan)
+    prods = np.full((n_win, len(pairs)), np.nan)
+    crms = np.full((n_win, combos.shape[0]), np.nan)
+    starts = np.rint(b[:-1]).astype(np.int64) - offset
+    stops = np.rint(b[1:]).astype(np.int64) - offset
+    n = stops - starts
+    mismatch = np.diff(b) - n
+    valid = np.zeros(n_win, dtype=bool)
+    if n_win == 0:
+        return WindowBlock(lines, gains, rms, peak, mean, prods, crms, n, mismatch, valid)
+    for length in np.unique(n):
+        sel = np.flatnonzero(n == length)
+        idx = starts[sel, None] + np.arange(length)[None, :]
+        seg = samples[:, idx]  # (C, w, N)
+        finite = np.isfinite(seg).all(axis=(0, 2))
+        valid[sel] = finite
+        spec = sfft.rfft(seg, axis=-1, workers=workers)
+        k_keep = min(max_line, spec.shape[-1] - 1)
+        spec = spec[..., : k_keep + 1]
+        # Scalloping correction: line k sits at offset eps = -k delta / (N + delta) bins.
+        delta = mismatch[sel]
+        k = np.arange(k_keep + 1)
+        eps = -k[None, :] * (delta / (length + delta))[:, None]  # (w, K)
+        gain = np.exp(1j * np.pi * eps * (length - 1) / length) * (
+            np.sinc(eps) / np.sinc(eps / length)
+        )
+        gains[sel, : k_keep + 1] = gain
+        scale = np.full(k_keep + 1, np.sqrt(2) / length)
+        scale[0] = 1.0 / length
+        spec *= scale
+        lines[sel, :, : k_keep + 1] = np.moveaxis(spec, 0, 1)
+        rms[sel] = np.sqrt(np.mean(seg**2, axis=-1)).T
+        peak[sel] = np.max(np.abs(seg), axis=-1).T
+        mean[sel] = np.mean(seg, axis=-1).T
+        for j, (a, c) in enumerate(pairs):
+            prods[sel, j] = np.mean(seg[a] * seg[c], axis=-1)
+        if combos.shape[0]:
+            derived = np.tensordot(combos, seg, axes=(1, 0))  # (D, w, N)
+            crms[sel] = np.sqrt(np.mean(derived**2, axis=-1)).T
+    return WindowBlock(lines, gains, rms, peak, mean, prods, crms, n, mismatch, valid)
+
+
+def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None) -> dict:
+    """IEC 61000-4-7 harmonic and interharmonic groupings of spectral lines.
+
+    Parameters
+    ----------
+    lines : numpy.ndarray
+        complex rms lines, shape ``(..., K + 1)`` with ``K >= cycles_per_window * (max_order + 1)``
+        (missing lines may be NaN). [A] or [V]
+    cycles_per_window : int
+        ``N`` = 10 (50 Hz) or 12 (60 Hz); harmonic ``h`` is line ``h N``.
+    max_order : int
+        Highest harmonic order ``H``.
+    gain : numpy.ndarray or None
+        Per-window line response from :func:`analyse_windows`, shape ``(W, K + 1)`` matching
+        the first and last axes of ``lines``; the harmonic components are divided by it.
+
+    Returns
+    -------
+    dict of numpy.ndarray, each shape ``(..., H + 1)`` indexed by order:
+        ``component`` (complex line at ``hN``; order 0 is the DC value),
+        ``subgroup`` (sqrt of lines ``hN-1 .. hN+1``),
+        ``group`` (lines ``hN-N/2 .. hN+N/2``, the two end lines at half weight),
+        ``interharmonic_group`` (lines ``hN+1 .. hN+N-1``, between orders h and h+1),
+        ``interharmonic_subgroup`` (lines ``hN+2 .. hN+N-2``). [A] or [V]
+
+    Notes
+    -----
+    For order 0 ``subgroup`` and ``group`` hold ``|DC|``.
+
+    References
+    ----------
+    IEC 61000-4-7:2002+A1:2008, clauses 3.2 and 5.5 (harmonic group, subgroup, interharmonic
+    group and centred subgroup) -- from memory.
+    """
+    N = int(cycles_per_window)
+    H = int(max_order)
+    lines = np.asarray(lines)
+    power = np.abs(lines) ** 2
+    pad = N * (H + 1) + N // 2 + 1 - power.shape[-1]
+    if pad > 0:
+        power = np.concatenate(
+            [power, np.full(power.shape[:-1] + (pad,), np.nan)], axis=-1
+        )
+    csum = np.concatenate([np.zeros(power.shape[:-1] + (1,)), np.cumsum(power, axis=-1)], axis=-1)
+
+    def span(lo, hi):  # sum of power over lines lo..hi inclusive (arrays of indices)
+        return csum[..., hi + 1] - csum[..., lo]
+
+    orders = np.arange(H + 1)
+    k = orders * N
+    half = N // 2
+    kk = np.maximum(k, half)  # order 0 handled below
+    group_sq = span(kk - half + 1, kk + half - 1) + 0.5 * (
+        power[..., kk - half] + power[..., kk + half]
+    )
+    sub_sq = span(np.maximum(k - 1, 0), k + 1)
+    ih_sq = span(k + 1, k + N - 1)
+    ihs_sq = span(k + 2, k + N - 2)
+    kc = np.minimum(k, lines.shape[-1] - 1)
+    component = lines[..., kc].astype(np.complex128)
+    if gain is not None:
+        g = np.asarray(gain)[:, kc]
+        component = component / g.reshape(g.shape[:1] + (1,) * (component.ndim - 2) + g.shape[1:])
+    if lines.shape[-1] - 1 < k[-1]:
+        component[..., k > lines.shape[-1] - 1] = np.nan
+    group = np.sqrt(np.maximum(group_sq, 0.0))
+    subgroup = np.sqrt(np.maximum(sub_sq, 0.0))
+    dc = np.abs(lines[..., 0].real)
+    group[..., 0] = dc
+    subgroup[..., 0] = dc
+    return {
+        "component": component,
+        "subgroup": subgroup,
+        "group": group,
+        "interharmonic_group": np.sqrt(np.maximum(ih_sq, 0.0)),
+        "interharmonic_subgroup": np.sqrt(np.maximum(ihs_sq, 0.0)),
+    }
