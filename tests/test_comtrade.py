@@ -215,6 +215,7 @@ def test_round_trip_all_types(tmp_path, rev, ft):
     assert prov.settings["revision"] == rev and prov.settings["file_type"] == ft
     assert prov.settings["rates"] == [[FS, raw.shape[1]]]
     assert prov.settings["n_digital"] == 2
+    assert prov.settings["digital_channels"] == ["DIG1", "DIG2"]
     if rev == "2013":
         assert prov.settings["time_code"] == "+1h" and prov.settings["leapsec"] == "0"
 

@@ -192,11 +192,11 @@ def read_comtrade(path, *, use_primary: bool = True) -> Capture:
     cfg_bytes = _read_bytes(cfg_path, "configuration")
     cfg = _parse_cfg(cfg_bytes, str(cfg_path))
     dat_bytes = _read_bytes(dat_path, "data")
-    raw, stamps, missing, findings = _read_dat(dat_bytes, cfg, str(dat_path), str(cfg_path))
-    values, channels, ch_settings, more = _scale(raw, cfg, use_primary, str(cfg_path))
+    raw, stamps, missing, findings = _read_dat(dat_bytes, cfg, str(dat_path))
+    values, channels, ch_settings, more = _scale(raw, cfg, use_primary)
     findings += more
     findings += _missing_finding(missing, channels)
-    samples, fs_hz, t0_s, more = _time_axis(values, stamps, cfg, str(cfg_path), str(dat_path))
+    samples, fs_hz, t0_s, more = _time_axis(values, stamps, cfg, str(dat_path))
     findings += more
 
     digest = hashlib.sha256()
@@ -216,6 +216,7 @@ def read_comtrade(path, *, use_primary: bool = True) -> Capture:
         "values": "primary" if use_primary else "secondary",
         "dat_path": str(dat_path),
         "n_digital": cfg.n_digital,
+        "digital_channels": list(cfg.digital_names),
         "analog_channels": ch_settings,
         **cfg.extras,
     }
@@ -597,7 +598,7 @@ def _timestamp(fields: list, layout_1991: bool) -> tuple:
 # --------------------------------------------------------------------------- .dat
 
 
-def _read_dat(data: bytes, cfg: _Config, path: str, cfg_path: str) -> tuple:
+def _read_dat(data: bytes, cfg: _Config, path: str) -> tuple:
     """Return ``(raw (n_analog, n) float64 with NaN, timestamps (n,) float64 with NaN,
     missing counts per channel, findings)``."""
     if cfg.file_type == "ASCII":
@@ -747,7 +748,7 @@ def _unit(uu: str) -> tuple:
     return quantity, letter, _UNIT_PREFIX[m.group(1)]
 
 
-def _scale(raw: np.ndarray, cfg: _Config, use_primary: bool, cfg_path: str) -> tuple:
+def _scale(raw: np.ndarray, cfg: _Config, use_primary: bool) -> tuple:
     values = np.empty_like(raw)
     channels, settings, unknown_side, skewed = [], [], [], []
     seen = set()
@@ -765,7 +766,7 @@ def _scale(raw: np.ndarray, cfg: _Config, use_primary: bool, cfg_path: str) -> t
                     f"and its ratio primary = {p}, secondary = {s} is unusable (both must be "
                     f"positive); correct the ratio in the .cfg or read {frm} values "
                     f"(use_primary={not use_primary})",
-                    path=cfg_path,
+                    path=cfg.path,
                     line=ch.line,
                     field="primary" if p is None or p <= 0 else "secondary",
                 )
@@ -851,7 +852,7 @@ def _missing_finding(missing: np.ndarray, channels: list) -> list:
 # --------------------------------------------------------------------------- time axis
 
 
-def _time_axis(values, stamps, cfg: _Config, cfg_path: str, dat_path: str) -> tuple:
+def _time_axis(values, stamps, cfg: _Config, dat_path: str) -> tuple:
     """Return ``(samples, fs_hz, t0_s, findings)`` on one uniform grid."""
     if cfg.rates:
         rates = np.array([s for s, _ in cfg.rates], dtype=np.float64)
