@@ -304,8 +304,9 @@ def analyze(
 
     Parameters
     ----------
-    capture : Capture
-        Uniformly sampled record; channels with quantity ``"other"`` are ignored.
+    capture : Capture or CaptureStream
+        Uniformly sampled record, in memory or read block by block; channels with quantity
+        ``"other"`` are ignored.
     nominal_hz : {50, 60} or None
         Nominal frequency; detected from the data when None. [Hz]
     max_order : int, optional
@@ -320,7 +321,7 @@ def analyze(
         Channel whose fundamental sets the windows; default the first voltage, else the
         current with the largest rms.
     block_samples : int, optional
-        Samples processed per block (memory bound). [samples]
+        Samples processed per block; memory use is bounded by a few blocks. [samples]
     progress : callable or None
         Called as ``progress(done_samples, total_samples)``.
 
@@ -366,62 +367,15 @@ def analyze(
     max_order = int(max_order)
     fs = float(capture.fs_hz)
     chans = [c for c in capture.channels if c.quantity in ("current", "voltage")]
-    rows = [capture.index(c.name) for c in chans]
-    data = capture.samples[rows]
-    n = data.shape[1]
-    findings: list = list(capture.findings)
-
-    # Reference channel and coarse frequency from the first seconds.
-    head = data[:, : min(n, int(fs * 2.0) + 1)]
-    if reference is not None:
-        names = [c.name for c in chans]
-        if reference not in names:
-            raise InputError(f"reference channel {reference!r} is not an analysed channel; "
-                             f"choose one of {', '.join(names)}", path=path, field="--reference")
-        ref = names.index(reference)
-    else:
-        volts = [k for k, c in enumerate(chans) if c.quantity == "voltage"]
-        head_rms = np.sqrt(np.nanmean(head**2, axis=1)) if head.shape[1] else np.zeros(len(chans))
-        if volts:
-            ref = volts[0]
-        else:
-            ref = int(np.nanargmax(np.nan_to_num(head_rms)))
-    band = (40.0, 70.0) if nominal_hz is None else (0.8 * nominal_hz, 1.2 * nominal_hz)
-    f_coarse, amp = coarse_frequency(head[ref], fs, f_lo_hz=band[0], f_hi_hz=band[1])
-    nominal_source = "user"
-    if nominal_hz is None:
-        nominal_hz = detect_nominal(f_coarse)
-        nominal_source = "detected"
-        if nominal_hz is None:
-            raise AnalysisError(
-                f"no fundamental between 40 and 70 Hz found on channel {chans[ref].name!r}; "
-                "give --nominal-frequency 50 or 60 and check the channel map",
-                path=path, field="--nominal-frequency",
-            )
-        findings.append(Finding(
-            "nominal-detected", "info",
-            f"nominal frequency taken as {nominal_hz} Hz from the measured fundamental "
-            f"({f_coarse:.3f} Hz); give --nominal-frequency to set it.",
-            value=float(nominal_hz), unit="Hz"))
-    nominal_hz = float(nominal_hz)
-    cycles = 10 if nominal_hz == 50 else 12
-    tracked = bool(np.isfinite(f_coarse)) and amp > 0
-    f_demod = f_coarse if tracked else nominal_hz
-    if n < fs * cycles / nominal_hz * 0.98:
-        raise AnalysisError(
-            f"the capture lasts {n / fs:.4g} s; the IEC 61000-4-7 method needs at least one "
-            f"{cycles}-cycle window ({cycles / nominal_hz:.3g} s at {nominal_hz:g} Hz). "
-            "Capture a longer record (a few seconds or more).",
-            path=path, field="duration",
-        )
-    resolved = quality.max_resolved_order(fs, nominal_hz, max_order)
-    if resolved < 1:
-        raise AnalysisError(
-            f"a sample rate of {fs:g} Hz cannot resolve even the fundamental; capture at "
-            f"{quality.SAMPLES_PER_PERIOD_MIN * nominal_hz * max_order:g} Hz or more",
-            path=path, field="sample rate",
-        )
-    max_line = cycles * (resolved + 1) + cycles // 2
+    rows = np.array([capture.index(c.name) for c in chans])
+    findings: list = []
+    names = [c.name for c in chans]
+    if reference is not None and reference not in names:
+        raise InputError(f"reference channel {reference!r} is not an analysed channel; "
+                         f"choose one of {', '.join(names)}", path=path, field="--reference")
+    nominal_in = nominal_hz
+    max_order = int(max_order)
+    one_window_s = 12 / 60  # both 10/50 and 12/60 windows last 0.2 s
 
     # Power bookkeeping: voltage/current pairs by phase, line-to-line and neutral combos.
     pairs, pair_phases = _phase_pairs(chans)
@@ -443,83 +397,100 @@ def analyze(
 
     clip = [quality.ClipDetector(c.name) for c in chans]
     nonfinite = np.zeros(len(chans), dtype=np.int64)
-    blocks = []
+    parts = []  # per processed block: dict of per-window arrays
     bounds_all = [np.array([0.0])]
-    start = 0.0
-    weak_any = not tracked
-    pos = 0
+    start = 0.0  # fractional global position of the next window's start
+    buf, buf_start, total = None, 0, 0
+    state = None  # set once enough samples are buffered to choose reference and frequency
+    init_need = int(2.0 * fs) + 1
+    source = capture.blocks(block_samples)
+    hint = getattr(capture, "n_samples_hint", None)
+    if hint is None and isinstance(capture, Capture):
+        hint = capture.n_samples
     while True:
-        lo = int(np.floor(start))
-        hi = min(n, lo + max(block_samples, int(4 * fs * cycles / nominal_hz)))
-        final = hi >= n
-        block = data[:, lo:hi]
-        # raw-sample gates on the part of the block not seen before
-        new = block[:, max(pos - lo, 0):]
-        if new.shape[1]:
-            nonfinite += (~np.isfinite(new)).sum(axis=1)
+        block = next(source, None)
+        final = block is None
+        if not final:
+            blk = np.asarray(block, dtype=np.float64)[rows]
+            if blk.shape[1] == 0:
+                continue
+            nonfinite += (~np.isfinite(blk)).sum(axis=1)
             for k in range(len(chans)):
-                clip[k].update(new[k])
-            pos = hi
+                clip[k].update(blk[k])
+            total += blk.shape[1]
+            buf = blk if buf is None else np.concatenate([buf, blk], axis=1)
+            if progress is not None:
+                progress(total, hint)
+        if buf is None:
+            break
+        if state is None:
+            if buf.shape[1] < init_need and not final:
+                continue
+            state = _initial_state(buf, fs, chans, reference, nominal_in, max_order, path,
+                                   findings)
+        if not final and buf.shape[1] - (np.floor(start) - buf_start) < block_samples:
+            continue
+        cycles, nominal = state["cycles"], state["nominal_hz"]
+        lo = int(np.floor(start)) - buf_start
+        work = buf[:, lo:]
+        off = buf_start + lo
         b = np.array([start])
-        if tracked:
-            tr = window_boundaries(block[ref], fs, f_demod, start, cycles, offset=lo, final=final)
-            weak_any |= tr.weak
+        if state["tracked"]:
+            tr = window_boundaries(work[state["ref"]], fs, state["f_demod"], start, cycles,
+                                   offset=off, final=final)
+            state["weak"] |= tr.weak
             b = tr.boundaries
-        if b.size <= 1 and not (tracked and final):
-            step = fs * cycles / nominal_hz
-            m = int(np.floor((hi - start) / step + 1e-9))
+        if b.size <= 1 and not (state["tracked"] and final):
+            step = fs * cycles / nominal
+            m = int(np.floor((off + work.shape[1] - start) / step + 1e-9))
             b = start + step * np.arange(m + 1)
+        b = b[np.rint(b) <= off + work.shape[1]]
         if b.size > 1:
-            # keep windows inside the data
-            b = b[np.rint(b) <= hi]
-        if b.size > 1:
-            wb = analyse_windows(block, b, max_line=max_line, offset=lo, pairs=pairs,
+            wb = analyse_windows(work, b, max_line=state["max_line"], offset=off, pairs=pairs,
                                  combos=combos)
-            blocks.append((b, wb))
+            parts.append(_reduce_block(wb, cycles, max_order, state["resolved"], state["ref"],
+                                       state["tracked"]))
             bounds_all.append(b[1:])
             f_new = cycles * fs / np.diff(b)
-            if tracked and np.all(np.isfinite(f_new)):
-                f_demod = float(np.median(f_new))
+            if state["tracked"] and np.all(np.isfinite(f_new)):
+                state["f_demod"] = float(np.median(f_new))
             start = float(b[-1])
-        if progress is not None:
-            progress(min(hi, n), n)
-        if final or b.size <= 1:
+            keep_from = int(np.floor(start)) - buf_start
+            buf = buf[:, keep_from:]
+            buf_start += keep_from
+        if final:
             break
+        if b.size <= 1 and buf.shape[1] > 4 * block_samples:
+            break  # no progress possible; stop rather than grow the buffer
 
-    if not blocks:
+    if state is None or total < fs * one_window_s * 0.98:
+        dur = total / fs
+        raise AnalysisError(
+            f"the capture lasts {dur:.4g} s; the IEC 61000-4-7 method needs at least one "
+            "10-cycle (50 Hz) or 12-cycle (60 Hz) window of 0.2 s. Capture a longer record "
+            "(a few seconds or more).",
+            path=path, field="duration",
+        )
+    findings = list(capture.findings) + findings
+    cycles, nominal_hz, ref = state["cycles"], state["nominal_hz"], state["ref"]
+    resolved, tracked = state["resolved"], state["tracked"]
+    weak_any = state["weak"] or not tracked
+    n = total
+    if not parts:
         raise AnalysisError(
             "no complete window fits in the capture; capture a longer record",
             path=path, field="duration",
         )
     bnd = np.concatenate(bounds_all)
-    lines = np.concatenate([wb.lines for _, wb in blocks])
-    gain = np.concatenate([wb.gain for _, wb in blocks])
-    grp = harmonic_groupings(lines, cycles, max_order, gain=gain)
-    del lines
-    # Orders above what the sample rate resolves are not numbers.
-    if resolved < max_order:
-        for key in grp:
-            grp[key][..., resolved + 1:] = np.nan
-    rms_w = np.concatenate([wb.rms for _, wb in blocks])
-    dc_w = np.concatenate([wb.mean for _, wb in blocks])
-    peak_w = np.concatenate([wb.peak for _, wb in blocks])
-    valid = np.concatenate([wb.valid for _, wb in blocks])
-    prods = np.concatenate([wb.products for _, wb in blocks])
-    crms = np.concatenate([wb.combo_rms for _, wb in blocks])
+    cat = {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
+    comp, valid = cat["component"], cat["valid"]
+    grp = {k: cat[k] for k in ("group", "subgroup", "interharmonic_group")}
+    rms_w, dc_w, peak_w = cat["rms"], cat["dc"], cat["peak"]
+    prods, crms = cat["products"], cat["combo_rms"]
+    orders = np.arange(max_order + 1)
     durations = np.diff(bnd) / fs
     freq_w = cycles / durations
     t_start = capture.t0_s + bnd[:-1] / fs
-
-    # Phase reference: the reference channel's fundamental in each window.
-    comp = grp["component"]
-    ref_angle = np.angle(comp[:, ref, 1])
-    if not tracked:
-        ref_angle = np.zeros_like(ref_angle)
-    orders = np.arange(max_order + 1)
-    comp = comp * np.exp(-1j * orders[None, None, :] * ref_angle[:, None, None])
-    for arr in (comp, grp["group"], grp["subgroup"], grp["interharmonic_group"], rms_w, dc_w,
-                peak_w):
-        arr[~valid] = np.nan
     p_w = prods[:, : len(pairs)] if pairs else None
     if p_w is not None:
         p_w = np.where(valid[:, None], p_w, np.nan)
@@ -632,7 +603,7 @@ def analyze(
             f"{'do not ' if wiring == '4-wire' else ''}sum to zero); give --wiring to set it."))
 
     settings = AnalysisSettings(
-        nominal_hz=nominal_hz, nominal_source=nominal_source, cycles_per_window=cycles,
+        nominal_hz=nominal_hz, nominal_source=state["nominal_source"], cycles_per_window=cycles,
         max_order=max_order, il_a=il_a, wiring=wiring, wiring_source=wiring_source,
         reference=chans[ref].name,
     )
@@ -654,6 +625,83 @@ def analyze(
         findings=tuple(findings),
         reader_settings=dict(capture.provenance.settings),
     )
+
+
+def _initial_state(buf, fs, chans, reference, nominal_hz, max_order, path, findings):
+    """Choose the reference channel and frequency from the first seconds of the record."""
+    head = buf[:, : int(2.0 * fs) + 1]
+    names = [c.name for c in chans]
+    if reference is not None:
+        ref = names.index(reference)
+    else:
+        volts = [k for k, c in enumerate(chans) if c.quantity == "voltage"]
+        if volts:
+            ref = volts[0]
+        else:
+            with np.errstate(invalid="ignore"):
+                head_rms = np.sqrt(np.nanmean(head**2, axis=1))
+            ref = int(np.argmax(np.nan_to_num(head_rms)))
+    band = (40.0, 70.0) if nominal_hz is None else (0.8 * nominal_hz, 1.2 * nominal_hz)
+    f_coarse, amp = coarse_frequency(head[ref], fs, f_lo_hz=band[0], f_hi_hz=band[1])
+    source = "user"
+    if nominal_hz is None:
+        nominal_hz = detect_nominal(f_coarse)
+        source = "detected"
+        if nominal_hz is None:
+            raise AnalysisError(
+                f"no fundamental between 40 and 70 Hz found on channel {chans[ref].name!r}; "
+                "give --nominal-frequency 50 or 60 and check the channel map",
+                path=path, field="--nominal-frequency",
+            )
+        findings.append(Finding(
+            "nominal-detected", "info",
+            f"nominal frequency taken as {nominal_hz} Hz from the measured fundamental "
+            f"({f_coarse:.3f} Hz); give --nominal-frequency to set it.",
+            value=float(nominal_hz), unit="Hz"))
+    nominal_hz = float(nominal_hz)
+    cycles = 10 if nominal_hz == 50 else 12
+    tracked = bool(np.isfinite(f_coarse)) and amp > 0
+    resolved = quality.max_resolved_order(fs, nominal_hz, max_order)
+    if resolved < 1:
+        raise AnalysisError(
+            f"a sample rate of {fs:g} Hz cannot resolve even the fundamental; capture at "
+            f"{quality.SAMPLES_PER_PERIOD_MIN * nominal_hz * max_order:g} Hz or more",
+            path=path, field="sample rate",
+        )
+    return {
+        "ref": ref, "nominal_hz": nominal_hz, "nominal_source": source, "cycles": cycles,
+        "tracked": tracked, "f_demod": f_coarse if tracked else nominal_hz, "weak": False,
+        "resolved": resolved, "max_line": cycles * (resolved + 1) + cycles // 2,
+    }
+
+
+def _reduce_block(wb, cycles, max_order, resolved, ref, tracked):
+    """Per-window arrays of one block: groupings, phase reference, validity masking."""
+    grp = harmonic_groupings(wb.lines, cycles, max_order, gain=wb.gain)
+    if resolved < max_order:
+        for key in grp:
+            grp[key][..., resolved + 1:] = np.nan
+    comp = grp["component"]
+    if tracked:
+        ref_angle = np.angle(comp[:, ref, 1])
+        orders = np.arange(max_order + 1)
+        comp = comp * np.exp(-1j * orders[None, None, :] * ref_angle[:, None, None])
+    valid = wb.valid
+    out = {
+        "component": comp,
+        "group": grp["group"],
+        "subgroup": grp["subgroup"],
+        "interharmonic_group": grp["interharmonic_group"],
+        "rms": wb.rms,
+        "dc": wb.mean,
+        "peak": wb.peak,
+        "products": wb.products,
+        "combo_rms": wb.combo_rms,
+        "valid": valid,
+    }
+    for key in ("component", "group", "subgroup", "interharmonic_group", "rms", "dc", "peak"):
+        out[key][~valid] = np.nan
+    return out
 
 
 def _abc(chans, quantity):

@@ -17,7 +17,16 @@ import numpy as np
 
 from .errors import CaptureFormatError, InputError
 
-__all__ = ["Channel", "Provenance", "Capture", "guess_role", "assign_roles", "QUANTITIES", "PHASES"]
+__all__ = [
+    "Channel",
+    "Provenance",
+    "Capture",
+    "CaptureStream",
+    "guess_role",
+    "assign_roles",
+    "QUANTITIES",
+    "PHASES",
+]
 
 QUANTITIES = ("current", "voltage", "other")
 PHASES = ("a", "b", "c", "n", "")
@@ -158,6 +167,19 @@ class Capture:
         chans = [c for c in self.channels if c.quantity == quantity]
         return sorted(chans, key=lambda c: order[c.phase])
 
+    def blocks(self, block_samples: int = 1 << 20):
+        """Iterate over the samples in blocks of ``block_samples`` columns (views, no copy)."""
+        for lo in range(0, self.n_samples, block_samples):
+            yield self.samples[:, lo : lo + block_samples]
+
+    def head(self, n_samples: int) -> np.ndarray:
+        """The first ``n_samples`` samples of every channel, shape (C, n). [A] or [V]"""
+        return self.samples[:, :n_samples]
+
+    def with_channels(self, channels) -> Capture:
+        """Copy with other channel descriptions (same samples)."""
+        return replace(self, channels=tuple(channels))
+
     def with_findings(self, extra) -> Capture:
         """Copy with more findings appended."""
         return replace(self, findings=self.findings + tuple(extra))
@@ -225,6 +247,103 @@ def _phase_from_name(name: str) -> str | None:
     if m and len(base) <= 4:
         return m.group(1)
     return None
+
+
+class CaptureStream:
+    """A capture read block by block from its file, for records too long to hold in memory.
+
+    It offers what :func:`pqcheck.analyze` needs from a :class:`Capture` (sample rate,
+    channels, provenance, findings, :meth:`blocks`) without loading every sample. The file's
+    SHA-256 is computed while the blocks are read, so :attr:`provenance` is complete once a
+    pass over :meth:`blocks` has finished.
+
+    Parameters
+    ----------
+    fs_hz : float
+        Sample rate. [Hz]
+    channels : sequence of Channel
+    block_factory : callable
+        ``block_factory(block_samples)`` returns an iterator of float64 arrays of shape
+        ``(C, n)`` (SI units) and may be called again for another pass.
+    provenance : Provenance
+    findings : sequence of Finding
+    t0_s : float
+        Time of the first sample. [s]
+    n_samples_hint : int or None
+        Expected number of samples (for progress), if known.
+    """
+
+    def __init__(self, fs_hz, channels, block_factory, provenance, findings=(), t0_s=0.0,
+                 n_samples_hint=None):
+        self.fs_hz = float(fs_hz)
+        self.channels = tuple(channels)
+        self._factory = block_factory
+        self.provenance = provenance
+        self.findings = tuple(findings)
+        self.t0_s = float(t0_s)
+        self.n_samples_hint = n_samples_hint
+        self._head = None
+        self._n = None
+
+    names = Capture.names
+    index = Capture.index
+    channel = Capture.channel
+    by_quantity = Capture.by_quantity
+
+    @property
+    def n_samples(self) -> int:
+        """Number of samples (known after a full pass; else the hint, else a full count)."""
+        if self._n is None:
+            if self.n_samples_hint is not None:
+                return int(self.n_samples_hint)
+            self._n = sum(b.shape[1] for b in self.blocks())
+        return int(self._n)
+
+    @property
+    def duration_s(self) -> float:
+        """Record length. [s]"""
+        return self.n_samples / self.fs_hz
+
+    def blocks(self, block_samples: int = 1 << 20):
+        """Iterate over the samples in blocks, shape (C, n) each. [A] or [V]"""
+        count = 0
+        for block in self._factory(block_samples):
+            if self._head is None:
+                self._head = block[:, : 1 << 16].copy()
+            count += block.shape[1]
+            yield block
+        self._n = count
+
+    def head(self, n_samples: int) -> np.ndarray:
+        """The first samples (up to 65536 are kept from the first block). [A] or [V]"""
+        if self._head is None or self._head.shape[1] < min(n_samples, 1 << 16):
+            for block in self._factory(max(n_samples, 1 << 16)):
+                self._head = block[:, : max(n_samples, 1 << 16)].copy()
+                break
+        return self._head[:, :n_samples]
+
+    @property
+    def samples(self) -> np.ndarray:
+        """All samples in memory (reads the whole file: avoid for long captures). [A] or [V]"""
+        return self.load().samples
+
+    def load(self) -> Capture:
+        """Read every block into an in-memory :class:`Capture`."""
+        data = np.concatenate(list(self.blocks()), axis=1)
+        return Capture(data, self.fs_hz, self.channels, self.t0_s, self.provenance,
+                       self.findings)
+
+    def with_channels(self, channels) -> CaptureStream:
+        """Copy with other channel descriptions (same source)."""
+        other = CaptureStream(self.fs_hz, channels, self._factory, self.provenance,
+                              self.findings, self.t0_s, self.n_samples_hint)
+        other._head, other._n = self._head, self._n
+        return other
+
+    def with_findings(self, extra) -> CaptureStream:
+        other = self.with_channels(self.channels)
+        other.findings = self.findings + tuple(extra)
+        return other
 
 
 def _phases_for(names) -> list:
@@ -318,7 +437,7 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
             chans.append(Channel(c.name, q, p, unit, "user"))
         else:
             chans.append(Channel(c.name, "other", c.phase, c.unit, "user"))
-    return replace(capture, channels=tuple(chans))
+    return capture.with_channels(chans)
 
 
 def require_channels(capture: Capture) -> None:

@@ -97,11 +97,15 @@ class ClipDetector:
             return
         if level > side.level + tol:
             side.__init__(level=level)
-        at = np.abs(x - side.level) <= tol
         band = max(3 * self.step, 1e-6 * span)
-        near = (x < side.level - tol) & (x >= side.level - band)
-        side.at_level += int(at.sum())
-        side.near += int(near.sum())
+        close = x >= side.level - band
+        n_close = int(np.count_nonzero(close))
+        at = x >= side.level - tol
+        n_at = int(np.count_nonzero(at))
+        side.at_level += n_at
+        side.near += n_close - n_at
+        if n_at < 3:
+            return
         # runs of >= 3 samples at the level
         edges = np.diff(np.concatenate(([0], at.view(np.int8), [0])))
         starts = np.flatnonzero(edges == 1)

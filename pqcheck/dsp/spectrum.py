@@ -117,33 +117,35 @@ def analyse_windows(
         return WindowBlock(lines, gains, rms, peak, mean, prods, crms, n, mismatch, valid)
     for length in np.unique(n):
         sel = np.flatnonzero(n == length)
-        idx = starts[sel, None] + np.arange(length)[None, :]
-        seg = samples[:, idx]  # (C, w, N)
-        finite = np.isfinite(seg).all(axis=(0, 2))
-        valid[sel] = finite
+        # whole-sample windows as rows: one block copy per run of equal-length windows
+        view = np.lib.stride_tricks.sliding_window_view(samples, int(length), axis=-1)
+        seg = view[:, starts[sel]]  # (C, w, N), contiguous copy
+        sumsq = np.einsum("cwn,cwn->cw", seg, seg)
+        valid[sel] = np.isfinite(sumsq).all(axis=0)
+        rms[sel] = np.sqrt(sumsq / length).T
+        peak[sel] = np.maximum(seg.max(axis=-1), -seg.min(axis=-1)).T
+        for j, (a, c) in enumerate(pairs):
+            prods[sel, j] = np.einsum("wn,wn->w", seg[a], seg[c]) / length
+        if combos.shape[0]:
+            derived = np.tensordot(combos, seg, axes=(1, 0))  # (D, w, N)
+            crms[sel] = np.sqrt(np.einsum("dwn,dwn->dw", derived, derived) / length).T
+            del derived
         spec = sfft.rfft(seg, axis=-1, workers=workers)
+        del seg
         k_keep = min(max_line, spec.shape[-1] - 1)
         spec = spec[..., : k_keep + 1]
-        # Scalloping correction: line k sits at offset eps = -k delta / (N + delta) bins.
+        mean[sel] = (spec[..., 0].real / length).T
+        # Scalloping response: line k sits at offset eps = -k delta / (N + delta) bins.
         delta = mismatch[sel]
         k = np.arange(k_keep + 1)
         eps = -k[None, :] * (delta / (length + delta))[:, None]  # (w, K)
-        gain = np.exp(1j * np.pi * eps * (length - 1) / length) * (
+        gains[sel, : k_keep + 1] = np.exp(1j * np.pi * eps * (length - 1) / length) * (
             np.sinc(eps) / np.sinc(eps / length)
         )
-        gains[sel, : k_keep + 1] = gain
         scale = np.full(k_keep + 1, np.sqrt(2) / length)
         scale[0] = 1.0 / length
         spec *= scale
         lines[sel, :, : k_keep + 1] = np.moveaxis(spec, 0, 1)
-        rms[sel] = np.sqrt(np.mean(seg**2, axis=-1)).T
-        peak[sel] = np.max(np.abs(seg), axis=-1).T
-        mean[sel] = np.mean(seg, axis=-1).T
-        for j, (a, c) in enumerate(pairs):
-            prods[sel, j] = np.mean(seg[a] * seg[c], axis=-1)
-        if combos.shape[0]:
-            derived = np.tensordot(combos, seg, axes=(1, 0))  # (D, w, N)
-            crms[sel] = np.sqrt(np.mean(derived**2, axis=-1)).T
     return WindowBlock(lines, gains, rms, peak, mean, prods, crms, n, mismatch, valid)
 
 

@@ -162,7 +162,7 @@ def window_boundaries(
     if n_cyc < 2:
         return empty
     edges = local0 + L * np.arange(n_cyc + 1)
-    rot = np.exp(-2j * np.pi * (f_demod_hz / fs_hz) * np.arange(x.size))
+    rot = _phasor(-2 * np.pi * f_demod_hz / fs_hz, x.size)
     csum = np.empty(x.size + 1, dtype=np.complex128)
     csum[0] = 0.0
     np.cumsum(x * rot, out=csum[1:])
@@ -219,3 +219,13 @@ def _cum_at(csum, y, pos):
     frac = pos - i
     i = np.clip(i, 0, y.size)
     return csum[i] + frac * y[np.minimum(i, y.size - 1)]
+
+
+def _phasor(omega: float, n: int) -> np.ndarray:
+    """``exp(1j * omega * arange(n))`` from two short tables (one complex multiply per sample
+    instead of a complex exponential)."""
+    p = 4096
+    rows = -(-n // p)
+    fine = np.exp(1j * omega * np.arange(p))
+    coarse = np.exp(1j * omega * p * np.arange(rows))
+    return (coarse[:, None] * fine[None, :]).ravel()[:n]
