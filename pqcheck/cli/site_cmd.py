@@ -1,0 +1,192 @@
+"""`pqcheck site SITE.toml` (site interconnection study) and `pqcheck site new PATH`."""
+
+from __future__ import annotations
+
+import math
+
+import click
+
+from ._common import EXIT_OK, VERDICT_EXIT, handle_errors, main
+
+__all__ = ["render_site_table"]
+
+_SUMMATION_TEXT = {
+    "general": "IEC TR 61000-3-6 general summation law (alpha 1 below order 5, 1.4 for 5-10, "
+               "2 above 10)",
+    "arithmetic": "arithmetic sum of magnitudes (worst case)",
+    "phasor": "phasor sum with measured phases",
+}
+
+
+def _f(x, digits: int = 4, unit: str = "") -> str:
+    if x is None or not math.isfinite(float(x)):
+        return "-"
+    s = f"{float(x):.{digits}g}"
+    return f"{s} {unit}".rstrip()
+
+
+def render_site_table(study) -> str:
+    """Human-readable summary of a :class:`pqcheck.site.SiteStudy` (no number recomputed)."""
+    from ..site import CAUTIONS, MAX_HEADROOM
+
+    s = study.site
+    t = s.transformer
+    out = [f"Site        {s.name}"]
+    if s.path is not None:
+        out.append(f"File        {s.path}  (SHA-256 {s.sha256[:16]}...)")
+    sup = s.supply
+    out.append(f"Supply      {_f(sup.nominal_voltage_v / 1e3, 5)} kV, Ssc "
+               f"{_f(sup.ssc_va / 1e6, 5)} MVA (Isc {_f(sup.isc_a / 1e3, 5)} kA), X/R "
+               f"{_f(sup.x_over_r)}")
+    if t is not None:
+        out.append(f"Transformer {_f(t.rating_va / 1e3, 5)} kVA, {_f(t.primary_v / 1e3, 5)} / "
+                   f"{_f(t.secondary_v / 1e3, 5)} kV, {_f(t.impedance_percent)} %, X/R "
+                   f"{_f(t.x_over_r)}, {t.vector_group}; loading "
+                   f"{_f(study.transformer_loading_percent, 3)} % of rating")
+    where = "transformer primary (supply side)" if s.pcc_location == "supply" and t else \
+        "transformer secondary (units' bus)" if t else "supply terminals"
+    out.append(f"PCC         {_f(study.pcc_voltage_v / 1e3, 5)} kV at the {where}; "
+               f"Z = {_f(study.z_pcc_ohm.real, 4)} + j{_f(study.z_pcc_ohm.imag, 4)} Ohm")
+    out.append(f"            ISC {_f(study.isc_a, 5, 'A')}, IL {_f(study.il_a, 5, 'A')} "
+               f"({study.il_source}), ISC/IL {_f(study.isc_il, 4)}")
+    out.append(f"Summation   {_SUMMATION_TEXT[study.summation]}")
+    if study.limits is not None:
+        out.append(f"Limits      {study.limits.table_id}: {'; '.join(study.limits.rows)}")
+    out.append("")
+    head = f"{'unit':<24}{'count':>6}  {'load point':<14}{'shift':>7}{'I1 each':>11}  data"
+    out.append(head)
+    out.append("-" * len(head))
+    for u in s.units:
+        i1 = max(abs(x) for x in u.spectrum.current[:, 1])
+        out.append(f"{u.name[:23]:<24}{u.count:>6}  {u.load_point[:13]:<14}"
+                   f"{_f(u.phase_shift_deg, 3):>7}{_f(i1, 4, 'A'):>11}  {u.spectrum.source}")
+    other = s.other_load
+    if other.demand_w or other.demand_current_a:
+        out.append(f"{'other load (linear)':<24}{'':>6}  "
+                   f"{_f(other.demand_w / 1e3, 4, 'kW') + ', PF ' + _f(other.power_factor, 3)}")
+    out.append("")
+    out.append(f"Estimated at the PCC (worst phase; {study.summation} summation)")
+    head = (f"{'order':>5}{'I [A]':>11}{'% of IL':>9}{'limit':>7}{'V [%]':>9}{'limit':>7}")
+    out.append(head)
+    out.append("-" * len(head))
+    for h in study.orders[2:]:
+        ic = study.check(f"I{h}")
+        vc = study.check(f"V{h}")
+        i_pct = study.current_percent_il[h]
+        v_pct = study.voltage_percent[h]
+        if not (ic and ic.verdict == "fail") and not (vc and vc.verdict == "fail") and \
+                (not math.isfinite(i_pct) or i_pct < 0.05) and \
+                (not math.isfinite(v_pct) or v_pct < 0.05):
+            continue
+        i_a = max(study.current_a[:, h])
+        mark = "  FAIL" if (ic and ic.verdict == "fail") or (vc and vc.verdict == "fail") else ""
+        out.append(f"{h:>5}{_f(i_a, 4):>11}{_f(i_pct, 3):>9}{_f(ic.limit if ic else None, 3):>7}"
+                   f"{_f(v_pct, 3):>9}{_f(vc.limit if vc else None, 3):>7}{mark}")
+    out.append("(orders under 0.05 % in both columns not shown)")
+    out.append("")
+    out.append("Checks")
+    for c in study.checks:
+        if c.quantity == "harmonic" and c.verdict == "pass":
+            continue
+        out.append(f"  {c.verdict.upper():<13}{c.label:<8}{_f(c.value, 4, '%'):>10} <= "
+                   f"{_f(c.limit, 4, '%')}  ({c.clause}{', verify' if c.verify else ''})")
+    n_pass = sum(1 for c in study.checks if c.quantity == "harmonic" and c.verdict == "pass")
+    out.append(f"  PASS         {n_pass} individual-order checks")
+    out.append(f"Verdict     {study.verdict.upper()}")
+    out.append("")
+    if study.headroom:
+        out.append("Headroom (more units of one kind, others unchanged)")
+        for hr in study.headroom:
+            if hr.already_exceeded:
+                txt = f"none: the site already exceeds {hr.binding}"
+            elif hr.extra_units is None:
+                txt = f"more than {MAX_HEADROOM} (no limit reached)"
+            else:
+                txt = (f"{hr.extra_units} more; then {hr.binding} binds "
+                       f"({_f(hr.binding_value, 4, '%')} > {_f(hr.binding_limit, 4, '%')})")
+            if hr.extra_units_rating is not None:
+                txt += f"; transformer rating reached after {hr.extra_units_rating} more"
+            out.append(f"  {hr.unit[:30]:<31}{txt}")
+        out.append("")
+    if study.findings:
+        out.append("Findings")
+        for f in study.findings:
+            out.append(f"  [{f.severity}] {f.code}: {f.message}")
+        out.append("")
+    out.append("Cautions")
+    for c in CAUTIONS:
+        out.append(f"  - {c}")
+    return "\n".join(out)
+
+
+class _SiteGroup(click.Group):
+    """``pqcheck site SITE.toml ...`` runs the study; ``pqcheck site new PATH`` writes a
+    template. A first argument that is not a subcommand name is taken as a site file."""
+
+    def parse_args(self, ctx, args):
+        if args and args[0] not in self.commands and args[0] not in ("-h", "--help"):
+            args = ["run"] + list(args)
+        return super().parse_args(ctx, args)
+
+
+@main.group("site", cls=_SiteGroup)
+def site_group():
+    """Site interconnection study: several units at one point of common coupling.
+
+    \b
+      pqcheck site SITE.toml [-o site-report.pdf] [--format table|json]
+      pqcheck site new PATH          write a commented site template
+
+    The study combines the measured harmonic currents of every unit at the PCC, estimates the
+    voltage distortion they cause through the supply impedance, checks both against the
+    IEEE 519 limits, and says how many more units of each kind fit. Exit code 0 pass, 1 a
+    limit exceeded, 3 inconclusive, 2 bad input. The result is an estimate for planning; the
+    utility's own study governs.
+    """
+
+
+@site_group.command("run")
+@click.argument("site_file", metavar="SITE.toml", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", "output", type=click.Path(dir_okay=False), metavar="PDF",
+              help="Write the site study as a PDF section.")
+@click.option("--force", is_flag=True, help="Replace an existing output file.")
+@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
+              show_default=True, help="Output on stdout.")
+@click.option("--summation", type=click.Choice(["general", "arithmetic", "phasor"]),
+              help="Override the site file's summation of the units' harmonic currents.")
+@handle_errors
+def site_run(site_file, output, force, fmt, summation):
+    """Run the site study of SITE.toml (the default subcommand)."""
+    from ..export import dumps
+    from ..report.atomic import check_target
+    from ..site import load_site, study_site, study_to_dict
+
+    if output is not None:
+        check_target(output, force=force, option="-o")
+    site = load_site(site_file)
+    study = study_site(site, summation=summation)
+    if output is not None:
+        from ..report.site_pdf import write_site_pdf
+
+        write_site_pdf(study, output, force=force)
+    if fmt == "json":
+        click.echo(dumps(study_to_dict(study)))
+    else:
+        click.echo(render_site_table(study))
+        if output is not None:
+            click.echo(f"\nWrote {output}")
+    raise click.exceptions.Exit(VERDICT_EXIT[study.verdict])
+
+
+@site_group.command("new")
+@click.argument("path", type=click.Path(dir_okay=False))
+@click.option("--force", is_flag=True, help="Replace an existing file.")
+@handle_errors
+def site_new(path, force):
+    """Write a commented site template to PATH (edit it, then run pqcheck site PATH)."""
+    from ..report.atomic import write_atomic
+    from ..site import site_template
+
+    write_atomic(path, site_template(), force=force)
+    click.echo(f"Wrote {path}; edit it, then run: pqcheck site {path}")
+    raise click.exceptions.Exit(EXIT_OK)
