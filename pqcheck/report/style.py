@@ -1,0 +1,140 @@
+"""Typography, colours and small formatting helpers of the PDF report.
+
+The report uses the DejaVu Sans family that matplotlib ships (so text and figures share one
+typeface and symbols such as the check mark, the cross, "<=" and "±" are available), a
+greyscale palette with one dark slate accent, and verdict marks that carry their meaning in
+words and symbols: colour is never the only carrier of pass or fail.
+
+All text that comes from a user or a file (equipment names, notes, paths, channel names) goes
+through :func:`esc` before it reaches a reportlab ``Paragraph``, whose mini-language would
+otherwise interpret ``<``, ``>`` and ``&``.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from xml.sax.saxutils import escape as _xml_escape
+
+from reportlab.lib import colors
+from reportlab.lib.enums import TA_LEFT, TA_RIGHT
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.pdfbase import pdfmetrics
+from reportlab.pdfbase.ttfonts import TTFont
+
+__all__ = ["esc", "fmt", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
+           "INK", "ACCENT", "MUTED", "RULE", "SHADE", "FONT", "FONT_BOLD", "FONT_MONO"]
+
+FONT = "PQSans"
+FONT_BOLD = "PQSans-Bold"
+FONT_ITALIC = "PQSans-Oblique"
+FONT_MONO = "PQMono"
+
+INK = colors.HexColor("#1a1a1a")
+ACCENT = colors.HexColor("#24404f")
+MUTED = colors.HexColor("#5b6670")
+RULE = colors.HexColor("#9aa3ab")
+SHADE = colors.HexColor("#eef1f3")
+SHADE_DARK = colors.HexColor("#d5dadf")
+
+VERDICT_MARK = {"pass": "\u2713", "fail": "\u2717", "inconclusive": "?",
+                "not applicable": "\u2013", "": ""}
+VERDICT_WORD = {"pass": "PASS", "fail": "FAIL", "inconclusive": "INCONCLUSIVE",
+                "not applicable": "NOT APPLICABLE", "": ""}
+
+_registered = False
+
+
+def register_fonts() -> None:
+    """Register the DejaVu fonts bundled with matplotlib with reportlab (once)."""
+    global _registered
+    if _registered:
+        return
+    from matplotlib import get_data_path
+
+    ttf = Path(get_data_path()) / "fonts" / "ttf"
+    pdfmetrics.registerFont(TTFont(FONT, str(ttf / "DejaVuSans.ttf")))
+    pdfmetrics.registerFont(TTFont(FONT_BOLD, str(ttf / "DejaVuSans-Bold.ttf")))
+    pdfmetrics.registerFont(TTFont(FONT_ITALIC, str(ttf / "DejaVuSans-Oblique.ttf")))
+    pdfmetrics.registerFont(TTFont(FONT_MONO, str(ttf / "DejaVuSansMono.ttf")))
+    pdfmetrics.registerFontFamily(FONT, normal=FONT, bold=FONT_BOLD, italic=FONT_ITALIC,
+                                  boldItalic=FONT_BOLD)
+    _registered = True
+
+
+def esc(text) -> str:
+    """Escape user or file text for a reportlab Paragraph: ``&``, ``<``, ``>`` shown literally,
+    line breaks kept. None becomes an empty string."""
+    if text is None:
+        return ""
+    return _xml_escape(str(text)).replace("\n", "<br/>")
+
+
+def fmt(x, digits: int = 4, unit: str = "") -> str:
+    """Number with ``digits`` significant digits (no exponent for everyday magnitudes), and
+    ``unit``; a dash for None or NaN."""
+    if x is None:
+        return "\u2013"
+    try:
+        xf = float(x)
+    except (TypeError, ValueError):
+        return str(x)
+    if not math.isfinite(xf):
+        return "\u2013"
+    if xf == 0:
+        s = "0"
+    else:
+        mag = math.floor(math.log10(abs(xf)))
+        if -4 <= mag < 7:
+            dec = max(0, digits - 1 - mag)
+            s = f"{xf:.{dec}f}"
+        else:
+            s = f"{xf:.{digits - 1}e}"
+    return f"{s} {unit}".rstrip() if unit else s
+
+
+def fmt_pct(x, digits: int = 3) -> str:
+    """Percentage with a sign, e.g. ``+12.5 %``; a dash for None or NaN."""
+    if x is None or not math.isfinite(float(x)):
+        return "\u2013"
+    return f"{float(x):+.{max(0, digits - 2)}f} %"
+
+
+def styles() -> dict:
+    """Paragraph styles of the report, by name."""
+    register_fonts()
+    base = ParagraphStyle("body", fontName=FONT, fontSize=8.6, leading=11.6, textColor=INK,
+                          alignment=TA_LEFT, spaceAfter=4)
+    st = {"body": base}
+    st["small"] = ParagraphStyle("small", parent=base, fontSize=7.4, leading=9.6)
+    st["muted"] = ParagraphStyle("muted", parent=st["small"], textColor=MUTED)
+    st["cell"] = ParagraphStyle("cell", parent=base, fontSize=7.4, leading=9.2, spaceAfter=0)
+    st["cell_r"] = ParagraphStyle("cell_r", parent=st["cell"], alignment=TA_RIGHT)
+    st["cell_b"] = ParagraphStyle("cell_b", parent=st["cell"], fontName=FONT_BOLD)
+    st["cell_head"] = ParagraphStyle("cell_head", parent=st["cell"], fontName=FONT_BOLD,
+                                     textColor=ACCENT)
+    st["mono"] = ParagraphStyle("mono", parent=st["cell"], fontName=FONT_MONO, fontSize=6.9)
+    st["h1"] = ParagraphStyle("h1", parent=base, fontName=FONT_BOLD, fontSize=14, leading=18,
+                              textColor=ACCENT, spaceBefore=4, spaceAfter=8, keepWithNext=1)
+    st["h2"] = ParagraphStyle("h2", parent=base, fontName=FONT_BOLD, fontSize=11, leading=14,
+                              textColor=ACCENT, spaceBefore=10, spaceAfter=5, keepWithNext=1)
+    st["h3"] = ParagraphStyle("h3", parent=base, fontName=FONT_BOLD, fontSize=9.2,
+                              leading=12, textColor=INK, spaceBefore=8, spaceAfter=3,
+                              keepWithNext=1)
+    st["caption"] = ParagraphStyle("caption", parent=st["small"], textColor=MUTED,
+                                   spaceBefore=2, spaceAfter=8)
+    st["tcaption"] = ParagraphStyle("tcaption", parent=st["small"], textColor=MUTED,
+                                    spaceBefore=4, spaceAfter=3, keepWithNext=1)
+    st["title"] = ParagraphStyle("title", parent=base, fontName=FONT_BOLD, fontSize=24,
+                                 leading=29, textColor=ACCENT, spaceAfter=4)
+    st["subtitle"] = ParagraphStyle("subtitle", parent=base, fontSize=12.5, leading=16,
+                                    textColor=INK, spaceAfter=2)
+    st["kicker"] = ParagraphStyle("kicker", parent=base, fontName=FONT_BOLD, fontSize=8,
+                                  leading=10, textColor=MUTED, spaceAfter=6)
+    st["verdict"] = ParagraphStyle("verdict", parent=base, fontName=FONT_BOLD, fontSize=26,
+                                   leading=31, spaceAfter=0)
+    st["verdict_text"] = ParagraphStyle("verdict_text", parent=base, fontSize=9.5,
+                                        leading=12.5, spaceAfter=0)
+    st["bullet"] = ParagraphStyle("bullet", parent=base, leftIndent=10, bulletIndent=0,
+                                  spaceAfter=2)
+    return st
