@@ -1,0 +1,780 @@
+"""Test plans: one TOML file that describes a whole harmonic-emission test.
+
+A plan names the site and its point of common coupling (PCC), the equipment under test, the test
+conditions with the instrument chain, every capture with its channel map and load point, and the
+limit tables to apply with the values that select their rows. ``pqcheck report PLAN`` analyses
+every capture, checks it against every table and writes one report with a per-load-point
+summary. ``pqcheck plan new PATH`` writes a commented template (:func:`plan_template`).
+
+Relative file paths in a plan resolve against the folder that holds the plan, so a plan and its
+captures can be moved or archived together. Every problem is a :class:`~pqcheck.errors.PlanError`
+naming the file, the line and the field (``plan.toml:42: captures[2].file: ...``).
+
+Values in the file use the units in their names (``_v`` volts, ``_a`` amperes, ``_hz`` hertz,
+``_va`` volt-amperes, ``_w`` watts, ``_c`` degrees Celsius).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ._toml import KeyLines, syntax_error_line, tomllib
+from .errors import PlanError
+
+__all__ = [
+    "SCHEMA_VERSION",
+    "Transformer",
+    "Site",
+    "Equipment",
+    "Instrument",
+    "Conditions",
+    "AnalysisOptions",
+    "LimitSpec",
+    "CaptureSpec",
+    "Plan",
+    "load_plan",
+    "plan_template",
+]
+
+SCHEMA_VERSION = 1
+
+
+@dataclass(frozen=True)
+class Transformer:
+    """The transformer that feeds the PCC (all fields optional).
+
+    Attributes
+    ----------
+    rating_va : float or None
+        Rated apparent power. [VA]
+    primary_v, secondary_v : float or None
+        Rated line-to-line voltages. [V]
+    impedance_percent : float or None
+        Short-circuit impedance. [%]
+    description : str
+        Free text (vector group, tap, owner).
+    """
+
+    rating_va: float | None = None
+    primary_v: float | None = None
+    secondary_v: float | None = None
+    impedance_percent: float | None = None
+    description: str = ""
+
+
+@dataclass(frozen=True)
+class Site:
+    """Site and point of common coupling.
+
+    Attributes
+    ----------
+    name, address, pcc, notes : str
+        Free text; ``pcc`` says where the point of common coupling is.
+    nominal_voltage_v : float or None
+        Nominal line-to-line voltage at the PCC. [V]
+    nominal_frequency_hz : float or None
+        50 or 60. [Hz]
+    isc_a : float or None
+        Maximum short-circuit current at the PCC. [A]
+    il_a : float or None
+        Maximum demand load current (fundamental) at the PCC. [A]
+    rsce : float or None
+        Short-circuit ratio of the equipment at the PCC (IEC 61000-3-12). [unitless]
+    ssc_va : float or None
+        Short-circuit power at the PCC. [VA]
+    transformer : Transformer
+    """
+
+    name: str = ""
+    address: str = ""
+    pcc: str = ""
+    nominal_voltage_v: float | None = None
+    nominal_frequency_hz: float | None = None
+    isc_a: float | None = None
+    il_a: float | None = None
+    rsce: float | None = None
+    ssc_va: float | None = None
+    transformer: Transformer = Transformer()
+    notes: str = ""
+
+
+@dataclass(frozen=True)
+class Equipment:
+    """Equipment under test.
+
+    Attributes
+    ----------
+    name, manufacturer, model, serial, firmware, description : str
+        Identity (free text).
+    rated_power_w : float or None
+        Rated active power. [W]
+    rated_apparent_power_va : float or None
+        Rated apparent power (Sequ of IEC 61000-3-12). [VA]
+    rated_current_a : float or None
+        Rated input or output current per phase. [A]
+    rated_voltage_v : float or None
+        Rated line-to-line voltage. [V]
+    equipment_class : str
+        IEC 61000-3-2 class (``"A"``, ``"B"``, ``"C"``, ``"D"``) or empty.
+    equipment_kind : str
+        Kind of equipment that selects an IEC 61000-3-12 table (for example
+        ``"balanced-three-phase"``) or empty.
+    generation : bool
+        True for power-generation equipment (it can export power).
+    """
+
+    name: str = ""
+    manufacturer: str = ""
+    model: str = ""
+    serial: str = ""
+    firmware: str = ""
+    description: str = ""
+    rated_power_w: float | None = None
+    rated_apparent_power_va: float | None = None
+    rated_current_a: float | None = None
+    rated_voltage_v: float | None = None
+    equipment_class: str = ""
+    equipment_kind: str = ""
+    generation: bool = False
+
+
+@dataclass(frozen=True)
+class Instrument:
+    """One element of the instrument chain (digitiser, probe, transducer).
+
+    Attributes
+    ----------
+    role, model, serial, ratio, range, accuracy, measurement_category, calibration_due, notes : str
+        Free text as the data sheet and calibration certificate give them, e.g. ``ratio =
+        "100 mV/A"``, ``accuracy = "1 % of reading + 0.1 A"``, ``measurement_category =
+        "CAT III 1000 V"``.
+    channels : tuple of str
+        Capture columns this element feeds.
+    bandwidth_hz : float or None
+        -3 dB bandwidth. [Hz]
+    sample_rate_hz : float or None
+        Sample rate (digitisers). [Hz]
+    """
+
+    role: str = ""
+    model: str = ""
+    serial: str = ""
+    channels: tuple = ()
+    ratio: str = ""
+    bandwidth_hz: float | None = None
+    sample_rate_hz: float | None = None
+    range: str = ""
+    accuracy: str = ""
+    measurement_category: str = ""
+    calibration_due: str = ""
+    notes: str = ""
+
+
+@dataclass(frozen=True)
+class Conditions:
+    """Test conditions.
+
+    Attributes
+    ----------
+    date : str
+        Date (or dates) of the measurements, as written in the plan.
+    location, supply, notes : str
+        Where the test ran, what fed it (e.g. ``"public LV network via T1"``), remarks.
+    ambient_c : float or None
+        Ambient temperature. [degC]
+    instruments : tuple of Instrument
+    """
+
+    date: str = ""
+    location: str = ""
+    ambient_c: float | None = None
+    supply: str = ""
+    instruments: tuple = ()
+    notes: str = ""
+
+
+@dataclass(frozen=True)
+class AnalysisOptions:
+    """Analysis settings that apply to every capture of the plan.
+
+    Attributes
+    ----------
+    nominal_frequency_hz : float or None
+        50 or 60; default the site's, else detected. [Hz]
+    max_order : int
+        Highest harmonic order analysed. [unitless]
+    wiring : str or None
+        ``"3-wire"`` or ``"4-wire"``; None to infer.
+    """
+
+    nominal_frequency_hz: float | None = None
+    max_order: int = 50
+    wiring: str | None = None
+
+
+@dataclass(frozen=True)
+class LimitSpec:
+    """One limit table to apply, with the values that select its rows.
+
+    Attributes
+    ----------
+    table : str
+        Bundled table id (``"ieee519-2022"``) or the path as written in the plan.
+    path : pathlib.Path or None
+        Resolved path for a user table, None for a bundled id.
+    selectors : dict
+        Values given in this entry (keys as in the plan: ``voltage_level_v``, ``isc_a``,
+        ``il_a``, ``rsce``, ``ssc_va``, ``rated_apparent_power_va``, ``rated_power_w``,
+        ``rated_current_a``, ``equipment_class``, ``equipment_kind``, ``generation``); values not
+        given come from ``[site]`` and ``[equipment]`` (see :meth:`Plan.selection`).
+    line : int or None
+        Line of the entry in the plan.
+    """
+
+    table: str
+    path: Path | None = None
+    selectors: dict = field(default_factory=dict)
+    line: int | None = None
+
+    @property
+    def source(self) -> str:
+        """What to pass as ``--limits``: the resolved path or the bundled id."""
+        return str(self.path) if self.path is not None else self.table
+
+
+@dataclass(frozen=True)
+class CaptureSpec:
+    """One capture of the plan.
+
+    Attributes
+    ----------
+    id : str
+        Short identifier (default: the file name without extension).
+    path : pathlib.Path
+        Resolved capture file.
+    load_point : str
+        Label of the operating point, e.g. ``"50 %"``.
+    load_percent : float or None
+        Operating point in percent of rated power. [%]
+    current, voltage : tuple of str or None
+        Channel map: columns in phase order a, b, c (a neutral current may follow).
+    sample_rate_hz : float or None
+        For files without a time column. [Hz]
+    time_column : str or None
+    limits : tuple of str or None
+        Tables (as written in ``[[limits]]``) that apply to this capture; None = all.
+    notes : str
+    line : int or None
+        Line of the entry in the plan.
+    """
+
+    id: str
+    path: Path
+    load_point: str = ""
+    load_percent: float | None = None
+    current: tuple | None = None
+    voltage: tuple | None = None
+    sample_rate_hz: float | None = None
+    time_column: str | None = None
+    limits: tuple | None = None
+    notes: str = ""
+    line: int | None = None
+
+    def capture_options(self, analysis: AnalysisOptions, site: Site) -> dict:
+        """Options in the form :func:`pqcheck.cli.analyze.load_and_analyze` takes."""
+        nominal = analysis.nominal_frequency_hz or site.nominal_frequency_hz
+        return {
+            "current": None if self.current is None else ",".join(self.current),
+            "voltage": None if self.voltage is None else ",".join(self.voltage),
+            "sample_rate": self.sample_rate_hz,
+            "time_column": self.time_column,
+            "nominal": None if nominal is None else str(int(nominal)),
+            "max_order": analysis.max_order,
+            "il_a": site.il_a,
+            "wiring": analysis.wiring,
+            "reference": None,
+        }
+
+
+@dataclass(frozen=True)
+class Plan:
+    """A loaded test plan (see the module docstring).
+
+    Attributes
+    ----------
+    path : pathlib.Path
+        The plan file.
+    sha256 : str
+        SHA-256 of the plan file's bytes (hex).
+    title, report_id, notes : str
+    site : Site
+    equipment : Equipment
+    conditions : Conditions
+    analysis : AnalysisOptions
+    limits : tuple of LimitSpec
+    captures : tuple of CaptureSpec
+    """
+
+    path: Path
+    sha256: str
+    title: str
+    site: Site
+    equipment: Equipment
+    conditions: Conditions
+    analysis: AnalysisOptions
+    limits: tuple
+    captures: tuple
+    report_id: str = ""
+    notes: str = ""
+
+    @property
+    def folder(self) -> Path:
+        """Folder relative paths resolve against."""
+        return self.path.parent
+
+    def limits_for(self, capture: CaptureSpec) -> tuple:
+        """The :class:`LimitSpec` entries that apply to ``capture``."""
+        if capture.limits is None:
+            return self.limits
+        return tuple(spec for spec in self.limits if spec.table in capture.limits)
+
+    def selection(self, spec: LimitSpec) -> dict:
+        """Row-selecting values for ``spec``: the entry's own values, else the site's and the
+        equipment's. Keys as in :attr:`LimitSpec.selectors`; unknown values are absent."""
+        s, e = self.site, self.equipment
+        base = {
+            "voltage_level_v": s.nominal_voltage_v,
+            "isc_a": s.isc_a,
+            "il_a": s.il_a,
+            "rsce": s.rsce,
+            "ssc_va": s.ssc_va,
+            "rated_apparent_power_va": e.rated_apparent_power_va,
+            "rated_power_w": e.rated_power_w,
+            "rated_current_a": e.rated_current_a,
+            "equipment_class": e.equipment_class or None,
+            "equipment_kind": e.equipment_kind or None,
+            "generation": e.generation or None,
+        }
+        base.update(spec.selectors)
+        return {k: v for k, v in base.items() if v is not None}
+
+
+# ---------------------------------------------------------------------------------------------
+# Loading
+# ---------------------------------------------------------------------------------------------
+
+_NUM = "number"
+_POS = "positive number"
+_STR = "text"
+_BOOL = "true or false"
+_STRS = "list of text"
+
+_TRANSFORMER = {"rating_va": _POS, "primary_v": _POS, "secondary_v": _POS,
+                "impedance_percent": _POS, "description": _STR}
+_SITE = {"name": _STR, "address": _STR, "pcc": _STR, "nominal_voltage_v": _POS,
+         "nominal_frequency_hz": _POS, "isc_a": _POS, "il_a": _POS, "rsce": _POS, "ssc_va": _POS,
+         "transformer": "table", "notes": _STR}
+_EQUIPMENT = {"name": _STR, "manufacturer": _STR, "model": _STR, "serial": _STR,
+              "firmware": _STR, "description": _STR, "rated_power_w": _POS,
+              "rated_apparent_power_va": _POS, "rated_current_a": _POS, "rated_voltage_v": _POS,
+              "equipment_class": _STR, "equipment_kind": _STR, "generation": _BOOL}
+_INSTRUMENT = {"role": _STR, "model": _STR, "serial": _STR, "channels": _STRS, "ratio": _STR,
+               "bandwidth_hz": _POS, "sample_rate_hz": _POS, "range": _STR, "accuracy": _STR,
+               "measurement_category": _STR, "calibration_due": _STR, "notes": _STR}
+_CONDITIONS = {"date": _STR, "location": _STR, "ambient_c": _NUM, "supply": _STR,
+               "instruments": "array of tables", "notes": _STR}
+_ANALYSIS = {"nominal_frequency_hz": _POS, "max_order": "whole number", "wiring": _STR}
+_SELECTOR_KEYS = {"voltage_level_v": _POS, "isc_a": _POS, "il_a": _POS, "rsce": _POS,
+                  "ssc_va": _POS, "rated_apparent_power_va": _POS, "rated_power_w": _POS,
+                  "rated_current_a": _POS, "equipment_class": _STR, "equipment_kind": _STR,
+                  "generation": _BOOL}
+_LIMIT = {"table": _STR, **_SELECTOR_KEYS}
+_CAPTURE = {"id": _STR, "file": _STR, "load_point": _STR, "load_percent": _POS,
+            "current": _STRS, "voltage": _STRS, "sample_rate_hz": _POS, "time_column": _STR,
+            "limits": _STRS, "notes": _STR}
+_TOP = {"schema": "whole number", "title": _STR, "report_id": _STR, "notes": _STR,
+        "site": "table", "equipment": "table", "conditions": "table", "analysis": "table",
+        "limits": "array of tables", "captures": "array of tables"}
+
+_ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]*")
+
+
+class _Reader:
+    """Validates one parsed document, naming file, line and field in every error."""
+
+    def __init__(self, path: Path, text: str):
+        self.path = path
+        self.lines = KeyLines(text)
+
+    def error(self, key_path: tuple, problem: str) -> PlanError:
+        return PlanError(problem, path=self.path, line=self.lines.line(key_path),
+                         field=_field_name(key_path) or None)
+
+    def table(self, doc, key_path: tuple, schema: dict) -> dict:
+        if not isinstance(doc, dict):
+            raise self.error(key_path, f"must be a table, got {_kind(doc)}")
+        for key in doc:
+            if key not in schema:
+                raise self.error(key_path + (key,),
+                                 f"unknown field; expected one of {', '.join(sorted(schema))}")
+        out = {}
+        for key, kind in schema.items():
+            if key in doc and kind not in ("table", "array of tables"):
+                out[key] = self.value(doc[key], key_path + (key,), kind)
+        return out
+
+    def value(self, v, key_path: tuple, kind: str):
+        if kind == _STR:
+            if not isinstance(v, str):
+                raise self.error(key_path, f"must be text in quotes, got {_kind(v)}")
+            return v
+        if kind == _BOOL:
+            if not isinstance(v, bool):
+                raise self.error(key_path, f"must be true or false, got {_kind(v)}")
+            return v
+        if kind == _STRS:
+            if not isinstance(v, list) or not all(isinstance(x, str) and x for x in v):
+                raise self.error(key_path, "must be a list of non-empty text, e.g. "
+                                           '["ia", "ib", "ic"]')
+            return tuple(v)
+        if kind == "whole number":
+            if isinstance(v, bool) or not isinstance(v, int):
+                raise self.error(key_path, f"must be a whole number, got {_kind(v)}")
+            return v
+        if kind in (_NUM, _POS):
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+                raise self.error(key_path, f"must be a number, got {_kind(v)}")
+            if kind == _POS and v <= 0:
+                raise self.error(key_path, f"must be greater than zero, got {v!r}")
+            return float(v)
+        raise AssertionError(kind)  # pragma: no cover
+
+    def array(self, doc, key_path: tuple) -> list:
+        v = doc.get(key_path[-1], [])
+        if not isinstance(v, list) or not all(isinstance(x, dict) for x in v):
+            raise self.error(key_path, "must be an array of tables "
+                                       f"([[{'.'.join(key_path)}]] entries)")
+        return v
+
+    def file(self, text: str, folder: Path, key_path: tuple, check: bool) -> Path:
+        p = Path(text).expanduser()
+        if not p.is_absolute():
+            p = folder / p
+        if check and not p.is_file():
+            where = f" (resolved against the plan's folder {folder})" \
+                if not Path(text).is_absolute() else ""
+            raise self.error(key_path, f"file {text!r} not found{where}")
+        return p
+
+
+def _field_name(key_path: tuple) -> str:
+    out = ""
+    for k in key_path:
+        if isinstance(k, int):
+            out += f"[{k + 1}]"
+        else:
+            out += ("." if out else "") + k
+    return out
+
+
+def _kind(v) -> str:
+    if isinstance(v, bool):
+        return f"{str(v).lower()} (true/false)"
+    if isinstance(v, (int, float)):
+        return f"the number {v!r}"
+    if isinstance(v, str):
+        return f"the text {v!r}"
+    if isinstance(v, list):
+        return "a list"
+    if isinstance(v, dict):
+        return "a table"
+    return type(v).__name__
+
+
+def _looks_like_path(table: str) -> bool:
+    return "/" in table or "\\" in table or table.lower().endswith(".toml")
+
+
+def load_plan(path, *, check_files: bool = True) -> Plan:
+    """Read and validate a test plan.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The plan file (TOML).
+    check_files : bool
+        Require every capture and user limit table to exist (default True).
+
+    Returns
+    -------
+    Plan
+
+    Raises
+    ------
+    PlanError
+        The file is missing or not TOML, a field is unknown, has the wrong type or value, a
+        file it names does not exist, an id is repeated, or a capture names a limit table the
+        plan does not list. The message names file, line and field.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "run.csv").write_text("t,i\\n")
+    >>> _ = (d / "plan.toml").write_text('[[captures]]\\nfile = "run.csv"\\nload_percent = 50\\n')
+    >>> plan = load_plan(d / "plan.toml")
+    >>> plan.captures[0].id, plan.captures[0].load_point, plan.captures[0].path == d / "run.csv"
+    ('run', '50 %', True)
+    """
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise PlanError("plan file not found", path=path) from None
+    except OSError as exc:
+        raise PlanError(f"cannot read the plan: {exc.strerror or exc}", path=path) from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise PlanError(f"not UTF-8 text (byte {exc.start})", path=path) from None
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        raise PlanError(f"not valid TOML: {re.sub(r' [(]at .*[)]$', '', msg)}", path=path,
+                        line=syntax_error_line(msg, text)) from None
+    r = _Reader(path, text)
+    folder = path.resolve().parent
+    top = r.table(doc, (), _TOP)
+    schema = top.get("schema", SCHEMA_VERSION)
+    if schema != SCHEMA_VERSION:
+        raise r.error(("schema",), f"this pqcheck reads plan schema {SCHEMA_VERSION}, got "
+                                   f"{schema}")
+
+    site_doc = doc.get("site", {})
+    site = r.table(site_doc, ("site",), _SITE)
+    if "transformer" in site_doc:
+        site["transformer"] = Transformer(**r.table(site_doc["transformer"],
+                                                    ("site", "transformer"), _TRANSFORMER))
+    f_nom = site.get("nominal_frequency_hz")
+    if f_nom is not None and f_nom not in (50.0, 60.0):
+        raise r.error(("site", "nominal_frequency_hz"), f"must be 50 or 60, got {f_nom:g}")
+    site = Site(**site)
+
+    equipment = Equipment(**r.table(doc.get("equipment", {}), ("equipment",), _EQUIPMENT))
+
+    cond_doc = doc.get("conditions", {})
+    cond = r.table(cond_doc, ("conditions",), _CONDITIONS)
+    instruments = []
+    for k, item in enumerate(r.array(cond_doc, ("conditions", "instruments"))):
+        instruments.append(Instrument(**r.table(item, ("conditions", "instruments", k),
+                                                _INSTRUMENT)))
+    conditions = Conditions(instruments=tuple(instruments), **cond)
+
+    ana = r.table(doc.get("analysis", {}), ("analysis",), _ANALYSIS)
+    if ana.get("nominal_frequency_hz") not in (None, 50.0, 60.0):
+        raise r.error(("analysis", "nominal_frequency_hz"),
+                      f"must be 50 or 60, got {ana['nominal_frequency_hz']:g}")
+    if "max_order" in ana and not 2 <= ana["max_order"] <= 100:
+        raise r.error(("analysis", "max_order"),
+                      f"must be from 2 to 100, got {ana['max_order']}")
+    if ana.get("wiring") not in (None, "3-wire", "4-wire"):
+        raise r.error(("analysis", "wiring"),
+                      f"must be \"3-wire\" or \"4-wire\", got {ana['wiring']!r}")
+    analysis = AnalysisOptions(**ana)
+
+    limits = []
+    for k, item in enumerate(r.array(doc, ("limits",))):
+        kp = ("limits", k)
+        vals = r.table(item, kp, _LIMIT)
+        if "table" not in vals:
+            raise r.error(kp, "missing field 'table': a bundled table id such as "
+                              "\"ieee519-2022\" or the path of a table file")
+        table = vals.pop("table").strip()
+        if not table:
+            raise r.error(kp + ("table",), "must not be empty")
+        lpath = None
+        if _looks_like_path(table):
+            lpath = r.file(table, folder, kp + ("table",), check_files)
+        if any(spec.table == table for spec in limits):
+            raise r.error(kp + ("table",), f"table {table!r} is listed twice; give one entry "
+                                           "per table")
+        limits.append(LimitSpec(table=table, path=lpath, selectors=vals,
+                                line=r.lines.line(kp)))
+    known_tables = {spec.table for spec in limits}
+
+    captures = []
+    entries = r.array(doc, ("captures",))
+    if not entries:
+        raise r.error(("captures",) if "captures" in doc else (),
+                      "the plan lists no capture; add at least one [[captures]] entry with "
+                      "file = \"...\"")
+    for k, item in enumerate(entries):
+        kp = ("captures", k)
+        vals = r.table(item, kp, _CAPTURE)
+        if "file" not in vals:
+            raise r.error(kp, "missing field 'file': the capture file, relative to the plan")
+        file_text = vals.pop("file")
+        cpath = r.file(file_text, folder, kp + ("file",), check_files)
+        cid = vals.pop("id", None) or Path(file_text).stem
+        if not _ID.fullmatch(cid):
+            raise r.error(kp + ("id",), f"id {cid!r} must start with a letter or digit and use "
+                                        "only letters, digits, '.', '_' and '-'")
+        if any(c.id == cid for c in captures):
+            raise r.error(kp + ("id",) if "id" in item else kp + ("file",),
+                          f"capture id {cid!r} is used twice; give each capture its own id")
+        pct = vals.get("load_percent")
+        if pct is not None and pct > 200:
+            raise r.error(kp + ("load_percent",), f"must be at most 200 %, got {pct:g}")
+        if "load_point" not in vals and pct is not None:
+            vals["load_point"] = f"{pct:g} %"
+        for name in vals.get("limits") or ():
+            if name not in known_tables:
+                listed = ", ".join(sorted(known_tables)) or "none"
+                raise r.error(kp + ("limits",), f"{name!r} is not a [[limits]] table of this "
+                                                f"plan (listed: {listed})")
+        captures.append(CaptureSpec(id=cid, path=cpath, line=r.lines.line(kp), **vals))
+
+    return Plan(
+        path=path,
+        sha256=hashlib.sha256(raw).hexdigest(),
+        title=top.get("title", ""),
+        report_id=top.get("report_id", ""),
+        notes=top.get("notes", ""),
+        site=site,
+        equipment=equipment,
+        conditions=conditions,
+        analysis=analysis,
+        limits=tuple(limits),
+        captures=tuple(captures),
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Template
+# ---------------------------------------------------------------------------------------------
+
+_TEMPLATE = '''\
+# pqcheck test plan (schema 1)
+#
+# One file describes a whole harmonic-emission test: the site and its point of common coupling
+# (PCC), the equipment under test, the test conditions and instrument chain, every capture with
+# its channel map and load point, and the limit tables to apply. Then:
+#
+#     pqcheck report THIS-FILE.toml -o report.pdf
+#
+# Relative paths resolve against the folder of this file. Units are in the field names:
+# _v volts, _a amperes, _hz hertz, _va volt-amperes, _w watts, _c degrees Celsius.
+# Delete the lines you do not need; every field except captures[].file is optional.
+
+schema = 1
+title = "Harmonic emission test"
+# report_id = "LAB-2025-001"     # default: generated from the results
+
+[site]
+name = "Site name"
+address = ""
+pcc = "Where the point of common coupling is, e.g. the LV busbar of transformer T1"
+nominal_voltage_v = 400          # line-to-line voltage at the PCC
+nominal_frequency_hz = 50        # 50 or 60
+# isc_a = 20000                  # maximum short-circuit current at the PCC (IEEE 519 ISC)
+# il_a = 1000                    # maximum demand load current at the PCC (IEEE 519 IL, TDD)
+# ssc_va = 14e6                  # short-circuit power at the PCC (IEC 61000-3-12)
+# rsce = 120                     # short-circuit ratio, if known directly
+
+[site.transformer]
+# rating_va = 1000e3
+# primary_v = 11000
+# secondary_v = 400
+# impedance_percent = 6.0
+description = ""
+
+[equipment]
+name = "Equipment under test"
+manufacturer = ""
+model = ""
+serial = ""
+firmware = ""
+# rated_power_w = 50e3
+# rated_apparent_power_va = 52e3 # Sequ of IEC 61000-3-12
+# rated_current_a = 75           # per phase (IEEE 1547 I_rated)
+# rated_voltage_v = 400
+# equipment_class = "A"          # IEC 61000-3-2 class: A, B, C or D
+# equipment_kind = "balanced-three-phase"   # selects the IEC 61000-3-12 table
+# generation = false             # true if the equipment can export power
+
+[conditions]
+date = "YYYY-MM-DD"
+location = ""
+# ambient_c = 21
+supply = "What fed the equipment during the test"
+notes = ""
+
+# The instrument chain: one entry per digitiser, probe or transducer, as its data sheet and
+# calibration certificate state it. The report's measurement-uncertainty statement lists them.
+[[conditions.instruments]]
+role = "digitiser"
+model = ""
+serial = ""
+channels = ["va", "vb", "vc", "ia", "ib", "ic"]
+# sample_rate_hz = 25000
+# bandwidth_hz = 10000
+range = ""
+accuracy = ""                    # e.g. "0.1 % of reading + 0.05 % of range"
+measurement_category = ""        # e.g. "CAT III 600 V"
+calibration_due = ""
+
+[[conditions.instruments]]
+role = "current probe"
+model = ""
+serial = ""
+channels = ["ia", "ib", "ic"]
+ratio = ""                       # e.g. "10 mV/A"
+# bandwidth_hz = 100000
+accuracy = ""
+measurement_category = ""
+calibration_due = ""
+
+[analysis]
+# nominal_frequency_hz = 50      # default: the site's, else detected
+max_order = 50
+# wiring = "3-wire"              # or "4-wire"; default: inferred
+
+# Limit tables: a bundled id (pqcheck limits list) or the path of your own table file.
+# Values that select a table's row default to the [site] and [equipment] values above; set
+# them here to override for one table.
+[[limits]]
+table = "ieee519-2022"
+# voltage_level_v = 400
+# isc_a = 20000
+# il_a = 1000
+
+# Captures: one entry per record. The channel map gives the columns in phase order a, b, c
+# (a neutral current may follow); without it pqcheck guesses from the column names.
+[[captures]]
+id = "load-50"
+file = "capture-50pct.csv"
+load_percent = 50                # the load point, % of rated power
+# load_point = "50 % (half load)"  # label; default from load_percent
+current = ["ia", "ib", "ic"]
+voltage = ["va", "vb", "vc"]
+# sample_rate_hz = 25000         # only for files without a time column
+# limits = ["ieee519-2022"]      # tables for this capture; default: all [[limits]]
+notes = ""
+
+[[captures]]
+id = "load-100"
+file = "capture-100pct.csv"
+load_percent = 100
+current = ["ia", "ib", "ic"]
+voltage = ["va", "vb", "vc"]
+'''
+
+
+def plan_template() -> str:
+    """Return the commented plan template that ``pqcheck plan new`` writes."""
+    return _TEMPLATE
