@@ -33,6 +33,11 @@ def capture_options(func):
                           "Default: inferred (phase currents not summing to zero need a neutral)."),
         click.option("--reference", metavar="COL",
                      help="Channel whose fundamental sets the windows. Default: first voltage."),
+        click.option("--no-cache", "no_cache", is_flag=True,
+                     help="Do not read or write the cache of parsed captures and results."),
+        click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False),
+                     help="Cache folder (default $PQCHECK_CACHE_DIR or ~/.cache/pqcheck)."),
+        click.option("--quiet", "-q", is_flag=True, help="No progress bar."),
     ]
     for opt in reversed(opts):
         func = opt(func)
@@ -51,19 +56,67 @@ def analysis_kwargs(opts: dict) -> dict:
 
 
 def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
-    """Read and analyse one capture with parsed capture options; returns (capture, result)."""
-    from ..analysis import analyze
-    from ..readers import load_capture
+    """Read and analyse one capture with parsed capture options; returns (capture, result).
 
-    capture = load_capture(
-        capture_path,
-        sample_rate_hz=opts.get("sample_rate"),
-        current=split_columns(opts.get("current")),
-        voltage=split_columns(opts.get("voltage")),
-        time_column=opts.get("time_column"),
-    )
-    result = analyze(capture, progress=progress, **analysis_kwargs(opts))
-    return capture, result
+    Long captures are read block by block and, unless ``--no-cache``, cached; a progress bar
+    is shown on stderr for work over about a second when stderr is a terminal.
+    """
+    from ..cache import Cache
+    from ..pipeline import analyze_file
+
+    cache = None if opts.get("no_cache") else Cache(opts.get("cache_dir"))
+    bar = None
+    if progress is None and not opts.get("quiet"):
+        bar = _ProgressBar(capture_path)
+        progress = bar
+    try:
+        return analyze_file(
+            capture_path,
+            sample_rate_hz=opts.get("sample_rate"),
+            current=split_columns(opts.get("current")),
+            voltage=split_columns(opts.get("voltage")),
+            time_column=opts.get("time_column"),
+            cache=cache,
+            progress=progress,
+            **analysis_kwargs(opts),
+        )
+    finally:
+        if bar is not None:
+            bar.close()
+
+
+class _ProgressBar:
+    """tqdm bar on stderr, started only after a second of work and only on a terminal."""
+
+    def __init__(self, label):
+        import sys
+        import time
+
+        self.enabled = sys.stderr.isatty()
+        self.t0 = time.monotonic()
+        self.label = str(label)
+        self.bar = None
+
+    def __call__(self, done, total):
+        if not self.enabled:
+            return
+        import time
+
+        if self.bar is None:
+            if time.monotonic() - self.t0 < 1.0:
+                return
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=total, unit="sa", unit_scale=True, desc="analysing",
+                            leave=False, dynamic_ncols=True)
+        if total and self.bar.total != total:
+            self.bar.total = total
+        self.bar.n = min(done, total) if total else done
+        self.bar.refresh()
+
+    def close(self):
+        if self.bar is not None:
+            self.bar.close()
 
 
 def _fmt(x, digits=4, unit=""):

@@ -1,0 +1,158 @@
+"""Binary captures: NumPy ``.npy`` arrays and Parquet tables.
+
+``.npy``: a 2-D float array, one row per sample and one column per channel (a 1-D array is one
+channel). Columns are named ``col1``, ``col2``, ... unless a JSON file of the same name beside it
+(``capture.npy`` -> ``capture.json``) holds ``{"columns": [...], "sample_rate_hz": ...}``.
+Loaded with ``allow_pickle=False`` and memory-mapped, so it is read block by block.
+
+Parquet: one column per channel; a time column is recognised by name (``time``, ``t``, ...) or
+unit (``time [s]``); otherwise the sample rate comes from ``--sample-rate`` or the key
+``sample_rate_hz`` in the file's key-value metadata. Read row group by row group.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+
+from ..capture import CaptureStream, Channel, Provenance, guess_role
+from ..errors import CaptureFormatError
+from .delimited import _TIME_NAMES, _split_unit
+
+__all__ = ["open_npy", "open_parquet"]
+
+
+def _channels(names, units):
+    chans = []
+    for name, unit in zip(names, units):
+        quantity, phase = guess_role(name, unit)
+        chans.append(Channel(name, quantity, phase,
+                             unit or {"current": "A", "voltage": "V"}.get(quantity, ""), "guess"))
+    return chans
+
+
+def _time_base(t, path, field):
+    dt = np.diff(t)
+    if t.size < 2 or not np.all(np.isfinite(t)):
+        raise CaptureFormatError("the time column needs at least two finite values", path=path,
+                                 field=field)
+    med = float(np.median(dt))
+    if med <= 0 or np.any(np.abs(dt - med) > 0.01 * med):
+        raise CaptureFormatError(
+            "the time column is not uniform; give uniformly sampled data or drop the time "
+            "column and pass --sample-rate", path=path, field=field)
+    return (t.size - 1) / (t[-1] - t[0]), float(t[0])
+
+
+def open_npy(path, *, sample_rate_hz=None, time_column=None, sha256="") -> CaptureStream:
+    """Open a ``.npy`` capture (see module docstring)."""
+    path = str(path)
+    try:
+        arr = np.load(path, mmap_mode="r", allow_pickle=False)
+    except (ValueError, OSError) as exc:
+        raise CaptureFormatError(f"not a readable .npy array ({exc}); save it with numpy.save "
+                                 "as a float array", path=path) from None
+    if arr.ndim == 1:
+        arr = arr[:, None]
+    if arr.ndim != 2 or not np.issubdtype(arr.dtype, np.number):
+        raise CaptureFormatError(
+            f"expected a 2-D numeric array (samples x channels), got shape {arr.shape} of "
+            f"{arr.dtype}", path=path)
+    side = Path(path).with_suffix(".json")
+    meta = {}
+    if side.exists():
+        try:
+            meta = json.loads(side.read_text())
+        except (OSError, ValueError) as exc:
+            raise CaptureFormatError(f"side-car JSON is not valid ({exc})", path=str(side)) \
+                from None
+    raw_names = list(meta.get("columns") or [f"col{i + 1}" for i in range(arr.shape[1])])
+    if len(raw_names) != arr.shape[1]:
+        raise CaptureFormatError(
+            f"side-car lists {len(raw_names)} columns but the array has {arr.shape[1]}",
+            path=str(side), field="columns")
+    parsed = [_split_unit(n) for n in raw_names]
+    names = [p[0] for p in parsed]
+    return _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
+                       lambda cols, rows: np.asarray(arr[rows][:, cols], dtype=np.float64),
+                       arr.shape[0], sample_rate_hz or meta.get("sample_rate_hz"),
+                       time_column, sha256, "npy")
+
+
+def open_parquet(path, *, sample_rate_hz=None, time_column=None, sha256="") -> CaptureStream:
+    """Open a Parquet capture (see module docstring)."""
+    import pyarrow.parquet as pq
+
+    path = str(path)
+    try:
+        pf = pq.ParquetFile(path)
+    except Exception as exc:  # pyarrow raises several types for a damaged file
+        raise CaptureFormatError(f"not a readable Parquet file ({exc})", path=path) from None
+    raw_names = pf.schema_arrow.names
+    md = pf.schema_arrow.metadata or {}
+    declared = md.get(b"sample_rate_hz")
+    parsed = [_split_unit(n) for n in raw_names]
+    names = [p[0] for p in parsed]
+
+    def read(cols, rows):
+        start, stop = rows.start, rows.stop
+        out = []
+        pos = 0
+        for g in range(pf.num_row_groups):
+            n = pf.metadata.row_group(g).num_rows
+            if pos + n > start and pos < stop:
+                tb = pf.read_row_group(g, columns=[raw_names[c] for c in cols])
+                a = np.column_stack([tb.column(i).to_numpy(zero_copy_only=False)
+                                     .astype(np.float64) for i in range(len(cols))])
+                out.append(a[max(start - pos, 0):stop - pos])
+            pos += n
+            if pos >= stop:
+                break
+        return np.concatenate(out) if out else np.empty((0, len(cols)))
+
+    fs = sample_rate_hz or (float(declared) if declared else None)
+    return _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
+                       read, pf.metadata.num_rows, fs, time_column, sha256, "parquet")
+
+
+def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha256, reader):
+    t_idx = None
+    if time_column is not None:
+        if time_column not in names:
+            raise CaptureFormatError(f"no column named {time_column!r}; columns are: "
+                                     f"{', '.join(names)}", path=path, field="--time-column")
+        t_idx = names.index(time_column)
+    else:
+        for i, (n, u) in enumerate(zip(names, units)):
+            if u == "s" or _TIME_NAMES.match(n):
+                t_idx = i
+                break
+    t0 = 0.0
+    settings = {"columns": list(names)}
+    if t_idx is not None and fs is None:
+        t = read([t_idx], slice(0, n_rows))[:, 0] * scales[t_idx]
+        fs, t0 = _time_base(t, path, names[t_idx])
+        settings["time_base"] = "column"
+    elif fs is None:
+        raise CaptureFormatError(
+            "no time column and no sample rate; give --sample-rate HZ", path=path,
+            field="sample rate")
+    else:
+        settings["time_base"] = "given"
+    fs = float(fs)
+    settings["sample_rate_hz"] = fs
+    keep = [j for j in range(len(names)) if j != t_idx]
+    if not keep:
+        raise CaptureFormatError("no signal columns", path=path)
+    chans = _channels([names[j] for j in keep], [units[j] for j in keep])
+    sc = scales[keep][:, None]
+
+    def factory(block_samples):
+        for lo in range(0, n_rows, block_samples):
+            rows = slice(lo, min(n_rows, lo + block_samples))
+            yield np.ascontiguousarray(read(keep, rows).T * sc)
+
+    return CaptureStream(fs, chans, factory, Provenance(path, sha256, reader, settings), (), t0,
+                         n_rows)

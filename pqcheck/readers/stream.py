@@ -1,0 +1,321 @@
+"""Long delimited-text captures read block by block, hashed while they are read.
+
+:func:`stream_delimited` returns a :class:`~pqcheck.capture.CaptureStream` whose blocks come
+from pandas' C parser in chunks (the fastest reader measured on our 2-core machines, see
+benchmarks/README.md), so peak memory does not grow with the length of the file. The file's
+SHA-256 is computed from the same bytes the parser reads. Layout detection is shared with
+:mod:`pqcheck.readers.delimited`; files whose time base is not uniform (variable-step
+simulator exports) are small and go through the in-memory reader instead.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import os
+import re
+from dataclasses import replace
+
+import numpy as np
+import pandas as pd
+
+from ..capture import CaptureStream, Channel, Provenance, guess_role
+from ..errors import CaptureFormatError
+from ..findings import Finding
+from . import delimited as _d
+
+__all__ = ["stream_delimited", "NotStreamable"]
+
+_MAX_GAP_S = 600.0
+
+
+class NotStreamable(Exception):
+    """The file needs the whole-file reader (non-uniform time base, compressed, UTF-16)."""
+
+
+class _HashingRaw(io.RawIOBase):
+    """Raw file that feeds every byte read into a SHA-256."""
+
+    def __init__(self, path):
+        self._fh = open(path, "rb")
+        self.sha = hashlib.sha256()
+        self.n = 0
+
+    def readable(self):
+        return True
+
+    def readinto(self, b):
+        n = self._fh.readinto(b)
+        if n:
+            self.sha.update(memoryview(b)[:n])
+            self.n += n
+        return n
+
+    def finish(self) -> str:
+        """Hash whatever the parser did not read and return the hex digest."""
+        for block in iter(lambda: self._fh.read(1 << 20), b""):
+            self.sha.update(block)
+        return self.sha.hexdigest()
+
+    def close(self):
+        self._fh.close()
+        super().close()
+
+
+def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=1 << 18,
+                     on_complete=None, tee=None) -> CaptureStream:
+    """Open a uniform delimited capture for block-by-block reading.
+
+    Parameters
+    ----------
+    path : str or Path
+    sample_rate_hz, time_column
+        As for :func:`pqcheck.readers.delimited.read_delimited`.
+    block_rows : int
+        Rows parsed per chunk.
+    on_complete : callable or None
+        Called as ``on_complete(stream, teed)`` after each full pass, when the SHA-256 is
+        known; ``teed`` is True for the pass that fed ``tee``.
+    tee : object or None
+        Receives every block through ``tee.write(block)`` during the first pass (cache).
+
+    Raises
+    ------
+    NotStreamable
+        The file must be read whole (see module docstring).
+    CaptureFormatError
+        Layout problems found in the first chunk; later problems surface while iterating.
+    """
+    path = str(path)
+    d = _d.sniff(path)
+    if d.encoding in ("gzip", "utf-16"):
+        raise NotStreamable(d.encoding)
+    names = list(d.names)
+    t_idx = _d.find_time_column(d, time_column, path)
+    settings = _d.base_settings(d)
+    first = _first_chunk(path, d, min(block_rows, 1 << 16))
+    if first.shape[0] < 2:
+        raise NotStreamable("tiny")
+    if t_idx is not None:
+        t = first[:, t_idx] * d.scales[t_idx]
+        if not np.all(np.isfinite(t)):
+            raise NotStreamable("time")
+        dt = np.diff(t)
+        med = float(np.median(dt)) if dt.size else 0.0
+        if med <= 0 or np.any(np.abs(dt - med) > 0.01 * med):
+            raise NotStreamable("non-uniform")
+        fs = float(sample_rate_hz) if sample_rate_hz else (t.size - 1) / (t[-1] - t[0])
+        t0 = float(t[0])
+        settings.update(_d.time_settings(names[t_idx], d.scales[t_idx]))
+        settings["time_base"] = "column"
+    else:
+        fs = sample_rate_hz or _d._declared_rate(d.metadata)
+        if fs is None:
+            raise CaptureFormatError(
+                "no time column and no sample interval in the file's header lines; give the "
+                "sample rate with --sample-rate HZ (or name the time column with --time-column)",
+                path=path, field="sample rate")
+        settings["time_base"] = "--sample-rate" if sample_rate_hz else "declared in metadata"
+        t0 = 0.0
+    fs = float(fs)
+    settings["sample_rate_hz"] = fs
+    settings["streamed"] = True
+    keep = [j for j in range(len(names)) if j != t_idx]
+    if not keep:
+        raise CaptureFormatError("the file has a time column but no signal columns", path=path,
+                                 line=d.header_line)
+    chans = []
+    for j in keep:
+        quantity, phase = guess_role(names[j], d.units[j])
+        unit = d.units[j] or {"current": "A", "voltage": "V"}.get(quantity, "")
+        chans.append(Channel(names[j], quantity, phase, unit, "guess"))
+    scales = np.array([d.scales[j] for j in keep])[:, None]
+    hint = int(os.path.getsize(path) / max(1.0, _avg_row_bytes(path, d)))
+    stream = CaptureStream(fs, chans, None, Provenance(path, "", "delimited", settings),
+                           (), t0, hint)
+    state = {"passes": 0}
+
+    def factory(block_samples):
+        raw = _HashingRaw(path)
+        buffered = io.BufferedReader(raw, 1 << 20)
+        findings = []
+        teeing = tee is not None and state["passes"] == 0
+        state["passes"] += 1
+        try:
+            reader = pd.read_csv(
+                buffered, sep=d.delimiter or ",", decimal=d.decimal, header=None,
+                names=names, skiprows=d.data_line - 1, dtype=np.float64,
+                encoding=_d._pd_encoding(d), engine="c", skip_blank_lines=True,
+                na_values=["", "nan", "NaN", "NAN", "-nan"], chunksize=block_samples)
+            last_t = None
+            row0 = 0
+            pending = None
+            for chunk in _prefetch(_chunks(reader, path, d, names)):
+                table = chunk
+                if pending is not None:
+                    table = np.concatenate([pending, table])
+                    pending = None
+                # hold back the last row until we know whether it is the file's last
+                pending, table = table[-1:], table[:-1]
+                if table.shape[0] == 0:
+                    continue
+                block = _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
+                if t_idx is not None:
+                    last_t = table[-1, t_idx] * d.scales[t_idx]
+                row0 += table.shape[0]
+                if teeing:
+                    tee.write(block)
+                yield block
+            if pending is not None and pending.shape[0]:
+                row = pending[0]
+                sig = row[keep]
+                if np.isnan(sig).any() and not np.isnan(sig).all() or (
+                        t_idx is not None and not np.isfinite(row[t_idx])):
+                    findings.append(Finding(
+                        "truncated-row", "warning",
+                        "the last row is incomplete (file cut short?) and was dropped."))
+                else:
+                    block = _block(pending, t_idx, keep, scales, fs, last_t, path, d, row0,
+                                   findings)
+                    if teeing:
+                        tee.write(block)
+                    yield block
+            sha = raw.finish()
+        finally:
+            buffered.close()
+        stream.provenance = replace(stream.provenance, sha256=sha)
+        stream.findings = tuple(findings)
+        if on_complete is not None:
+            on_complete(stream, teeing)
+
+    stream._factory = factory
+    return stream
+
+
+def _prefetch(iterator, depth: int = 2):
+    """Run ``iterator`` in a background thread, ``depth`` items ahead.
+
+    pandas' C parser and hashlib release the GIL, so parsing the next chunk overlaps the
+    analysis of the current one on a multi-core machine; memory holds at most ``depth + 1``
+    chunks. Exceptions are re-raised in the consumer.
+    """
+    import queue
+    import threading
+
+    q: queue.Queue = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+    done = object()
+
+    def work():
+        try:
+            for item in iterator:
+                while not stop.is_set():
+                    try:
+                        q.put(("item", item), timeout=0.1)
+                        break
+                    except queue.Full:
+                        continue
+                if stop.is_set():
+                    return
+            q.put(("end", done))
+        except BaseException as exc:  # handed to the consumer
+            q.put(("error", exc))
+
+    th = threading.Thread(target=work, name="pqcheck-parse", daemon=True)
+    th.start()
+    try:
+        while True:
+            kind, item = q.get()
+            if kind == "item":
+                yield item
+            elif kind == "end":
+                return
+            else:
+                raise item
+    finally:
+        stop.set()
+        th.join(timeout=5)
+
+
+def _first_chunk(path, d, rows):
+    try:
+        df = pd.read_csv(
+            path, sep=d.delimiter or ",", decimal=d.decimal, header=None, names=list(d.names),
+            skiprows=d.data_line - 1, dtype=np.float64, encoding=_d._pd_encoding(d),
+            engine="c", nrows=rows, na_values=["", "nan", "NaN", "NAN", "-nan"])
+    except (ValueError, pd.errors.ParserError):
+        raise NotStreamable("first chunk") from None
+    return df.to_numpy(dtype=np.float64)
+
+
+def _avg_row_bytes(path, d) -> float:
+    with open(path, "rb") as fh:
+        head = fh.read(1 << 16)
+    lines = head.splitlines()[d.data_line - 1:-1]
+    if not lines:
+        return 64.0
+    return sum(len(x) + 1 for x in lines) / len(lines)
+
+
+def _chunks(reader, path, d, names):
+    """Chunks as float arrays, turning parser errors into errors naming the line."""
+    while True:
+        try:
+            chunk = next(reader)
+        except StopIteration:
+            return
+        except (ValueError, pd.errors.ParserError) as exc:
+            msg = str(exc)
+            m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
+            if m:
+                line = int(m.group(2)) + d.data_line - 1
+                raise CaptureFormatError(
+                    f"row has {m.group(3)} fields but the header has {m.group(1)}; fix or "
+                    "delete that row (mixed delimiters?)", path=path, line=line) from None
+            bad = _d._locate_bad_cell(path, d, names)
+            if bad is not None:
+                line, col, text = bad
+                shown = text if len(text) <= 40 else text[:37] + "..."
+                raise CaptureFormatError(
+                    f"cell {shown!r} is not a number; fix or delete that row, or export the "
+                    "capture again", path=path, line=line, field=col) from None
+            raise CaptureFormatError(f"could not parse the data rows: {msg}",
+                                     path=path) from None
+        yield chunk.to_numpy(dtype=np.float64)
+
+
+def _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings):
+    """(C, n) SI block from a table chunk; time gaps become NaN, other irregularity an error."""
+    data = table[:, keep].T * scales
+    if t_idx is None:
+        return np.ascontiguousarray(data)
+    t = table[:, t_idx] * d.scales[t_idx]
+    tt = t if last_t is None else np.concatenate(([last_t], t))
+    step = np.diff(tt) * fs
+    if step.size == 0 or (np.all(np.abs(step - 1.0) <= 0.01)):
+        return np.ascontiguousarray(data)
+    bad = np.flatnonzero(~(np.abs(step - 1.0) <= 0.01))
+    k = int(bad[0])
+    line = d.data_line + row0 + k + (0 if last_t is not None else 1)
+    if not np.all(np.isfinite(step)) or np.any(step[bad] < 1.5):
+        raise CaptureFormatError(
+            "the time column is not uniform here (a step of "
+            f"{step[k] / fs:.6g} s against {1 / fs:.6g} s); pqcheck reads long files block by "
+            "block and needs a uniform time base: resample the export, or drop the time column "
+            "and give --sample-rate", path=path, line=line, field="time")
+    # gaps: insert NaN samples so later windows keep their place in time
+    r = np.rint(step).astype(np.int64)
+    missing = int((r - 1).sum())
+    if missing / fs > _MAX_GAP_S:
+        raise CaptureFormatError(
+            f"the time column jumps by {missing / fs:.3g} s; split the capture at the gap",
+            path=path, line=line, field="time")
+    idx = np.cumsum(r) - 1 if last_t is not None else np.concatenate(([0], np.cumsum(r)))
+    out = np.full((data.shape[0], int(idx[-1]) + 1), np.nan)
+    out[:, idx] = data
+    findings.append(Finding(
+        "time-gap", "warning",
+        f"the time column jumps near line {line}; {missing} missing samples are left "
+        "empty and the windows they touch are not analysed.",
+        value=float(missing), unit="samples"))
+    return out
