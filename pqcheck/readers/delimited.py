@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import gzip
 import re
+import zlib
 from dataclasses import dataclass
 
 import numpy as np
@@ -101,6 +102,12 @@ def _decode_head(raw: bytes, path: str):
     if raw.startswith(b"\xff\xfe") or raw.startswith(b"\xfe\xff"):
         return raw.decode("utf-16", errors="replace"), "utf-16"
     if b"\x00" in raw[:4096]:
+        head = raw[:4096]
+        if max(head[0::2].count(0), head[1::2].count(0)) > 0.4 * len(head):
+            # NUL in every other byte: ASCII text stored as UTF-16 without a byte-order mark
+            raise CaptureFormatError(
+                "the file looks like UTF-16 text without a byte-order mark, which cannot be "
+                "read reliably; save it as UTF-8 (or UTF-16 with a byte-order mark)", path=path)
         raise CaptureFormatError(
             "the file holds binary data (NUL bytes), not delimited text; export the capture "
             "as CSV, or give a .cfg/.dat COMTRADE pair, .npy or .parquet", path=path)
@@ -129,6 +136,41 @@ def _split_unit(raw_name: str):
 def _numeric_fields(fields, decimal):
     rx = _NUM_COMMA_RE if decimal == "," else _NUM_RE
     return all(rx.match(f) for f in fields) and any(f.strip() for f in fields)
+
+
+def _mostly_numeric(fields, decimal):
+    """More filled fields are numbers than are not: a data row with a bad cell or a wrong
+    number of fields, rather than a header or metadata line."""
+    rx = _NUM_COMMA_RE if decimal == "," else _NUM_RE
+    filled = [f for f in fields if f.strip()]
+    good = sum(1 for f in filled if rx.match(f))
+    return good > len(filled) - good
+
+
+def _step_over_bad_rows(lines, counts, startl, k, delim, decimal):
+    """Extend a data block that starts at ``startl`` upward over malformed data rows.
+
+    Without this a bad row among the sniffed lines (a cell that is not a number, a missing or
+    extra field) ends the block and is taken for the header: the real header and the rows
+    above are lost and the error no longer names the bad line. A mostly-numeric row is stepped
+    over when numeric rows of ``k`` fields, or a text header of ``k`` fields, lie above it;
+    :func:`read_table` then refuses it with its line number.
+    """
+    while startl >= 2 and _mostly_numeric(lines[startl - 1].split(delim), decimal):
+        above = lines[startl - 2].split(delim)
+        if len(above) == k and _numeric_fields(above, decimal):
+            startl -= 1
+            while startl > 0 and counts[startl - 1] == k and _numeric_fields(
+                lines[startl - 1].split(delim), decimal
+            ):
+                startl -= 1
+        elif len(above) == k and not any(
+            (_NUM_COMMA_RE if decimal == "," else _NUM_RE).match(f) for f in above if f.strip()
+        ):
+            return startl - 1  # the first data row is the bad one; the header is above it
+        else:
+            break
+    return startl
 
 
 def _parse_value_with_unit(text: str):
@@ -187,6 +229,14 @@ def _declared_rate(meta: dict):
     return None
 
 
+def _damaged_gzip(path, exc) -> CaptureFormatError:
+    # without this, EOFError from a cut-short archive reaches the command line as a bare
+    # "Aborted!" (click treats EOFError as an interrupt)
+    return CaptureFormatError(
+        f"the file is gzip-compressed but damaged or cut short ({exc}); compress it again or "
+        "pass the uncompressed CSV", path=path)
+
+
 def sniff(path) -> Dialect:
     """Work out the layout of a delimited capture file from its first lines.
 
@@ -202,11 +252,17 @@ def sniff(path) -> Dialect:
         raise CaptureFormatError("the file is empty; export the capture again", path=path)
     text, encoding = _decode_head(raw, path)
     if encoding == "gzip":
-        with gzip.open(path, "rb") as fh:
-            raw = fh.read(_SNIFF_BYTES)
+        try:
+            with gzip.open(path, "rb") as fh:
+                raw = fh.read(_SNIFF_BYTES)
+        except (OSError, EOFError, zlib.error) as exc:
+            raise _damaged_gzip(path, exc) from None
         text, _ = _decode_head(raw, path)
         encoding = "gzip"
-    lines = text.splitlines()
+    # Split only where pandas does (\n, \r\n, \r): str.splitlines also breaks at \x0b, \x0c,
+    # \x1c-\x1e and \x85 (an ellipsis in a cp1252 file read as Latin-1), which would shift
+    # every line number after it.
+    lines = re.split(r"\r\n|\r|\n", text)
     if len(raw) >= _SNIFF_BYTES and len(lines) > 1:
         lines = lines[:-1]  # the last line may be cut by the sniff window
     lines = lines[:_SNIFF_LINES]
@@ -239,6 +295,7 @@ def sniff(path) -> Dialect:
                 if startl == end - 1:
                     continue
                 end -= 1
+            startl = _step_over_bad_rows(lines, counts, startl, k, delim, decimal)
             n_rows = end - startl
             score = (n_rows, k, decimal == "." if delim != "," else True)
             if best is None or score > best[0]:
@@ -311,11 +368,14 @@ def _locate_bad_cell(path, dialect, names):
     row0 = 0
     for chunk in reader:
         for col in chunk.columns:
-            s = chunk[col].str.strip()
+            s = chunk[col].str.strip(" \t\n\v\f\r")  # the white space pandas' parser skips
             if dialect.decimal == ",":
                 s = s.str.replace(",", ".", regex=False)
             num = pd.to_numeric(s, errors="coerce")
-            empty = s.isna() | (s == "") | s.str.lower().isin(["nan", "inf", "-inf", "+inf"])
+            # only a truly empty cell is missing data; a blank one (" ") fails the float parse,
+            # so it is reported here with its line rather than without one
+            raw = chunk[col]
+            empty = raw.isna() | (raw == "") | s.str.lower().isin(["nan", "inf", "-inf", "+inf"])
             bad = num.isna() & ~empty
             if bad.any():
                 i = int(np.flatnonzero(bad.to_numpy())[0])
@@ -347,15 +407,26 @@ def read_table(path, dialect: Dialect):
     )
     try:
         df = pd.read_csv(path, **kwargs)
+    except UnicodeDecodeError as exc:  # a ValueError: must come before the branch below
+        raise CaptureFormatError(f"text encoding problem ({exc.reason}); save the file as "
+                                 "UTF-8", path=path) from None
     except (ValueError, pd.errors.ParserError) as exc:
         msg = str(exc)
         m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
         if m:
-            line = int(m.group(2)) + dialect.data_line - 1
+            line = int(m.group(2))  # pandas counts lines of the file, skipped rows included
             raise CaptureFormatError(
                 f"row has {m.group(3)} fields but the header has {m.group(1)}; fix or delete "
                 "that row (mixed delimiters?)", path=path, line=line) from None
-        bad = _locate_bad_cell(path, dialect, dialect.names)
+        m = re.search(r"EOF inside string starting at row (\d+)", msg)
+        if m:  # a stray quote at the start of a cell; pandas counts rows of the file from 0
+            raise CaptureFormatError(
+                'a quote (") opens a text field that never closes; remove it from that row',
+                path=path, line=int(m.group(1)) + 1) from None
+        try:
+            bad = _locate_bad_cell(path, dialect, dialect.names)
+        except pd.errors.ParserError:  # reported below with pandas' own words
+            bad = None
         if bad is not None:
             line, col, text = bad
             shown = text if len(text) <= 40 else text[:37] + "..."
@@ -363,9 +434,8 @@ def read_table(path, dialect: Dialect):
                 f"cell {shown!r} is not a number; fix or delete that row, or export the "
                 "capture again", path=path, line=line, field=col) from None
         raise CaptureFormatError(f"could not parse the data rows: {msg}", path=path) from None
-    except UnicodeDecodeError as exc:
-        raise CaptureFormatError(f"text encoding problem ({exc.reason}); save the file as "
-                                 "UTF-8", path=path) from None
+    except (EOFError, zlib.error, gzip.BadGzipFile) as exc:
+        raise _damaged_gzip(path, exc) from None
     return df.to_numpy(dtype=np.float64, copy=False)
 
 
@@ -568,3 +638,36 @@ def _time_base(t, data, path, d, tname, sample_rate_hz):
         value=float(fs), unit="Hz"))
     return float(fs), out, float(t[0]), findings
 
+
+
+def find_time_column(d: Dialect, time_column, path):
+    """Index of the time column (by name given, unit ``s`` or a time-like name), or None."""
+    names = list(d.names)
+    if time_column is not None:
+        if time_column not in names:
+            raise CaptureFormatError(
+                f"no column named {time_column!r}; columns are: {', '.join(names)}",
+                path=path, field="--time-column")
+        return names.index(time_column)
+    for i, (name, unit) in enumerate(zip(names, d.units)):
+        if unit == "s" or _TIME_NAMES.match(name):
+            return i
+    return None
+
+
+def base_settings(d: Dialect) -> dict:
+    """Reader settings recorded in the provenance of a delimited capture."""
+    return {
+        "encoding": d.encoding,
+        "delimiter": {",": "comma", ";": "semicolon", "\t": "tab", None: "none"}[d.delimiter],
+        "decimal": d.decimal,
+        "header_line": d.header_line,
+        "data_line": d.data_line,
+        "metadata": dict(d.metadata),
+    }
+
+
+def time_settings(name: str, scale: float) -> dict:
+    """Settings describing the time column."""
+    unit = "s" if scale == 1.0 else {1e-3: "ms", 1e-6: "us", 1e-9: "ns"}.get(scale, str(scale))
+    return {"time_column": name, "time_unit": unit}
