@@ -278,12 +278,30 @@ class CaptureStream:
         self.fs_hz = float(fs_hz)
         self.channels = tuple(channels)
         self._factory = block_factory
-        self.provenance = provenance
-        self.findings = tuple(findings)
         self.t0_s = float(t0_s)
         self.n_samples_hint = n_samples_hint
-        self._head = None
-        self._n = None
+        # state shared with copies made by with_channels: a pass over any of them completes
+        # the provenance (SHA-256) and findings of all
+        self._shared = {"provenance": provenance, "findings": tuple(findings), "head": None,
+                        "n": None}
+
+    @property
+    def provenance(self) -> Provenance:
+        """Source, SHA-256 (complete after a full pass) and reader settings."""
+        return self._shared["provenance"]
+
+    @provenance.setter
+    def provenance(self, value):
+        self._shared["provenance"] = value
+
+    @property
+    def findings(self) -> tuple:
+        """Findings of the reader (complete after a full pass)."""
+        return self._shared["findings"]
+
+    @findings.setter
+    def findings(self, value):
+        self._shared["findings"] = tuple(value)
 
     names = Capture.names
     index = Capture.index
@@ -293,11 +311,11 @@ class CaptureStream:
     @property
     def n_samples(self) -> int:
         """Number of samples (known after a full pass; else the hint, else a full count)."""
-        if self._n is None:
+        if self._shared["n"] is None:
             if self.n_samples_hint is not None:
                 return int(self.n_samples_hint)
-            self._n = sum(b.shape[1] for b in self.blocks())
-        return int(self._n)
+            self._shared["n"] = sum(b.shape[1] for b in self.blocks())
+        return int(self._shared["n"])
 
     @property
     def duration_s(self) -> float:
@@ -308,19 +326,20 @@ class CaptureStream:
         """Iterate over the samples in blocks, shape (C, n) each. [A] or [V]"""
         count = 0
         for block in self._factory(block_samples):
-            if self._head is None:
-                self._head = block[:, : 1 << 16].copy()
+            if self._shared["head"] is None:
+                self._shared["head"] = block[:, : 1 << 16].copy()
             count += block.shape[1]
             yield block
-        self._n = count
+        self._shared["n"] = count
 
     def head(self, n_samples: int) -> np.ndarray:
         """The first samples (up to 65536 are kept from the first block). [A] or [V]"""
-        if self._head is None or self._head.shape[1] < min(n_samples, 1 << 16):
+        head = self._shared["head"]
+        if head is None or head.shape[1] < min(n_samples, 1 << 16):
             for block in self._factory(max(n_samples, 1 << 16)):
-                self._head = block[:, : max(n_samples, 1 << 16)].copy()
+                head = self._shared["head"] = block[:, : max(n_samples, 1 << 16)].copy()
                 break
-        return self._head[:, :n_samples]
+        return head[:, :n_samples]
 
     @property
     def samples(self) -> np.ndarray:
@@ -337,12 +356,7 @@ class CaptureStream:
         """Copy with other channel descriptions (same source)."""
         other = CaptureStream(self.fs_hz, channels, self._factory, self.provenance,
                               self.findings, self.t0_s, self.n_samples_hint)
-        other._head, other._n = self._head, self._n
-        return other
-
-    def with_findings(self, extra) -> CaptureStream:
-        other = self.with_channels(self.channels)
-        other.findings = self.findings + tuple(extra)
+        other._shared = self._shared
         return other
 
 

@@ -22,7 +22,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import fft as sfft
 
 __all__ = ["WindowBlock", "analyse_windows", "harmonic_groupings"]
 
@@ -96,6 +95,8 @@ def analyse_windows(
     -------
     WindowBlock
     """
+    from scipy import fft as sfft  # imported here: scipy.fft is slow to import
+
     samples = np.asarray(samples, dtype=np.float64)
     b = np.asarray(boundaries, dtype=np.float64)
     n_ch = samples.shape[0]

@@ -28,7 +28,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import fft as sfft
 
 __all__ = ["coarse_frequency", "detect_nominal", "window_boundaries", "TrackResult"]
 
@@ -58,6 +57,8 @@ def coarse_frequency(x, fs_hz: float, *, f_lo_hz: float, f_hi_hz: float) -> tupl
     of a few cycles the error is well below 1 % of the bin width, enough to seed
     :func:`window_boundaries`, which is exact for any seed within a few per cent.
     """
+    from scipy import fft as sfft  # imported here: scipy.fft is slow to import
+
     x = np.nan_to_num(np.asarray(x, dtype=np.float64))
     n = x.size
     if n < 16:

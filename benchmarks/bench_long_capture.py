@@ -1,0 +1,207 @@
+"""Speed and memory of `pqcheck analyze` on long three-phase captures, against baselines
+measured in the same run.
+
+Run on demand (never part of the unit tests):
+
+    python benchmarks/bench_long_capture.py                # 60 s and 10 min captures
+    python benchmarks/bench_long_capture.py --scaling      # adds a 40 min capture (memory growth)
+    python benchmarks/bench_long_capture.py --repeat 5 --durations 60
+
+What is measured, each in a fresh process, interleaved over the repetitions, medians reported:
+
+- ``read``: the file's bytes read in 1 MiB blocks (the floor: disk/page cache);
+- ``parse``: the fastest parser measured on this machine alone (pandas' C engine, chunked, no
+  analysis);
+- ``naive``: a simple baseline, ``pandas.read_csv`` of the whole file plus a Python loop of
+  ``numpy.fft.rfft`` over every 4000-sample window of every channel computing THD (no
+  synchronisation, no groups, no power: much less than pqcheck does);
+- ``cold``: ``pqcheck analyze --no-cache --format json`` end to end (process start, imports,
+  parse, IEC 61000-4-7 analysis, JSON);
+- ``cached``: the same command with the cache warm (second run of the same file).
+
+Peak RSS comes from ``os.wait4`` of each child. The captures are generated here: a 50 Hz
+three-phase set, currents with 20 % fifth and 10 % seventh harmonic (THD 22.36 %), printed
+like a scope export; the THD pqcheck reports is checked against that known content.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+FS = 20_000
+EXPECTED_THD = 100 * np.sqrt(0.2**2 + 0.1**2)
+
+
+def generate(path: Path, seconds: float) -> None:
+    """Write a 7-column three-phase capture (time, ia, ib, ic, va, vb, vc)."""
+    import pyarrow as pa
+    import pyarrow.csv as pc
+
+    rng = np.random.default_rng(1)
+    block = FS * 30
+    with pa.OSFile(str(path), "wb") as sink:
+        writer = None
+        n_total = int(FS * seconds)
+        for lo in range(0, n_total, block):
+            n = min(block, n_total - lo)
+            t = (lo + np.arange(n)) / FS
+            cols = {"time [s]": np.round(t, 6)}
+            for k, ph in enumerate("abc"):
+                th = 2 * np.pi * 50 * t - 2 * np.pi * k / 3
+                i = 141.4 * (np.sin(th) + 0.2 * np.sin(5 * th) + 0.1 * np.sin(7 * th))
+                cols[f"i{ph} [A]"] = np.round(i + rng.normal(0, 0.05, n), 3)
+            for k, ph in enumerate("abc"):
+                th = 2 * np.pi * 50 * t - 2 * np.pi * k / 3
+                cols[f"v{ph} [V]"] = np.round(325.3 * np.sin(th) + rng.normal(0, 0.1, n), 2)
+            table = pa.table(cols)
+            if writer is None:
+                writer = pc.CSVWriter(sink, table.schema,
+                                      write_options=pc.WriteOptions(quoting_style="none"))
+            writer.write_table(table)
+        writer.close()
+
+
+CHILD_READ = """
+import sys
+with open(sys.argv[1], 'rb') as fh:
+    while fh.read(1 << 20):
+        pass
+"""
+
+CHILD_PARSE = """
+import sys, numpy as np, pandas as pd
+n = 0
+for chunk in pd.read_csv(sys.argv[1], engine='c', dtype=np.float64, chunksize=1 << 20):
+    n += len(chunk)
+"""
+
+CHILD_NAIVE = """
+import sys, numpy as np, pandas as pd
+df = pd.read_csv(sys.argv[1])
+data = df.to_numpy()[:, 1:]
+N = 4000
+thd = []
+for c in range(data.shape[1]):
+    x = data[:, c]
+    for w in range(len(x) // N):
+        X = np.abs(np.fft.rfft(x[w * N:(w + 1) * N]))
+        h = X[10:510:10]
+        thd.append(np.sqrt(np.sum(h[1:] ** 2)) / h[0])
+print(100 * np.sqrt(np.mean(np.square(thd[:len(thd) // 2]))))
+"""
+
+
+def run_child(argv, env=None):
+    """Run a command; return (seconds, peak RSS in MB, stdout)."""
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
+    out = proc.stdout.read()
+    err = proc.stderr.read()
+    _, status, usage = os.wait4(proc.pid, 0)
+    dt = time.perf_counter() - t0
+    if os.waitstatus_to_exitcode(status) not in (0,):
+        raise RuntimeError(f"{argv[:3]} failed: {err.decode()[-2000:]}")
+    return dt, usage.ru_maxrss / 1024, out.decode()
+
+
+def measure(path: Path, repeat: int, cache_dir: Path):
+    py = sys.executable
+    pq = [py, "-m", "pqcheck.cli", "analyze", str(path), "--nominal-frequency", "50",
+          "--current", "ia,ib,ic", "--voltage", "va,vb,vc", "--format", "json", "--quiet"]
+    jobs = {
+        "read": [py, "-c", CHILD_READ, str(path)],
+        "parse": [py, "-c", CHILD_PARSE, str(path)],
+        "naive": [py, "-c", CHILD_NAIVE, str(path)],
+        "cold": pq + ["--no-cache"],
+        "cached": pq + ["--cache-dir", str(cache_dir)],
+    }
+    # warm the cache once, and the page cache for every job
+    run_child(jobs["cached"])
+    times = {k: [] for k in jobs}
+    rss = {k: [] for k in jobs}
+    thd = None
+    for _ in range(repeat):
+        for name, argv in jobs.items():  # interleaved
+            dt, mb, out = run_child(argv)
+            times[name].append(dt)
+            rss[name].append(mb)
+            if name == "cold":
+                thd = json.loads(out)["channels"][0]["thd_percent"]
+    med = {k: statistics.median(v) for k, v in times.items()}
+    peak = {k: max(v) for k, v in rss.items()}
+    return med, peak, thd
+
+
+def machine() -> str:
+    cpu = platform.processor() or platform.machine()
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    import numpy
+    import pandas
+    import scipy
+
+    return (f"{cpu}, {os.cpu_count()} cores, Python {platform.python_version()}, numpy "
+            f"{numpy.__version__}, scipy {scipy.__version__}, pandas {pandas.__version__}")
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--durations", type=float, nargs="+", default=[60.0, 600.0],
+                    help="capture lengths in seconds (default 60 600)")
+    ap.add_argument("--scaling", action="store_true",
+                    help="also run a capture 4x the longest, to see memory growth")
+    ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--workdir", type=Path, default=None,
+                    help="where to write the generated captures (default: a temporary folder)")
+    args = ap.parse_args(argv)
+    durations = list(args.durations)
+    if args.scaling:
+        durations.append(4 * max(durations))
+    print(f"machine: {machine()}")
+    with tempfile.TemporaryDirectory(dir=args.workdir) as tmp:
+        tmp = Path(tmp)
+        rows = []
+        for seconds in durations:
+            path = tmp / f"capture-{int(seconds)}s.csv"
+            t0 = time.perf_counter()
+            generate(path, seconds)
+            size = path.stat().st_size / 1e6
+            print(f"\n{seconds:g} s capture: {size:.0f} MB (generated in "
+                  f"{time.perf_counter() - t0:.1f} s)")
+            reps = args.repeat if seconds <= 600 else 1
+            med, peak, thd = measure(path, reps, tmp / "cache")
+            for k in med:
+                print(f"  {k:<7} {med[k]:8.2f} s   peak RSS {peak[k]:7.0f} MB")
+            print(f"  cold / parse   = {med['cold'] / med['parse']:.2f}  (target <= 1.5)")
+            print(f"  cold / naive   = {med['cold'] / med['naive']:.2f}  (target < 1)")
+            print(f"  cold / cached  = {med['cold'] / med['cached']:.1f}  (target >= 5)")
+            print(f"  THD reported {thd:.3f} %, known content {EXPECTED_THD:.3f} %")
+            rows.append((seconds, size, med, peak, thd))
+            path.unlink()
+        if len(rows) > 1:
+            base = rows[-2] if args.scaling else rows[0]
+            last = rows[-1]
+            growth = last[3]["cold"] / base[3]["cold"] - 1
+            print(f"\npeak RSS of cold analyze, {last[0]:g} s vs {base[0]:g} s: "
+                  f"{100 * growth:+.1f} %")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

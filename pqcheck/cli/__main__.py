@@ -1,0 +1,5 @@
+"""`python -m pqcheck.cli` runs the command line."""
+
+from . import main
+
+main()
