@@ -297,6 +297,7 @@ def analyze(
     il_a: float | None = None,
     wiring: str | None = None,
     reference: str | None = None,
+    voltage_connection: str | None = None,
     block_samples: int = _BLOCK,
     progress=None,
 ) -> AnalysisResult:
@@ -320,6 +321,11 @@ def analyze(
     reference : str or None
         Channel whose fundamental sets the windows; default the first voltage, else the
         current with the largest rms.
+    voltage_connection : {"line-to-neutral", "line-to-line"} or None
+        How the three voltage channels were measured. Line-to-line voltages (ab, bc, ca) are
+        converted to phase voltages against an artificial neutral (``va = (vab - vca) / 3``,
+        exact for a 3-wire system) and the wiring is 3-wire. None: line-to-line when the
+        three voltage names end in ab, bc, ca (or 12, 23, 31), else line-to-neutral.
     block_samples : int, optional
         Samples processed per block; memory use is bounded by a few blocks. [samples]
     progress : callable or None
@@ -375,6 +381,23 @@ def analyze(
                          f"choose one of {', '.join(names)}", path=path, field="--reference")
     nominal_in = nominal_hz
     max_order = int(max_order)
+    transform = None
+    ll = _line_to_line(chans, voltage_connection, path)
+    if ll is not None:
+        transform = np.eye(len(chans))
+        ab, bc, ca = ll
+        for row, (plus, minus) in zip(ll, ((ab, ca), (bc, ab), (ca, bc))):
+            transform[row] = 0.0
+            transform[row, plus], transform[row, minus] = 1 / 3, -1 / 3
+        findings.append(Finding(
+            "line-to-line-voltages", "info",
+            "voltages were measured line to line; phase voltages are taken against an "
+            "artificial neutral (va = (vab - vca)/3) and the wiring is 3-wire.",
+            channels=tuple(chans[k].name for k in ll)))
+        if wiring == "4-wire":
+            raise InputError("4-wire needs line-to-neutral voltages; these are line to line",
+                             path=path, field="--wiring")
+        wiring = "3-wire"
     one_window_s = 12 / 60  # both 10/50 and 12/60 windows last 0.2 s
 
     # Power bookkeeping: voltage/current pairs by phase, line-to-line and neutral combos.
@@ -403,6 +426,8 @@ def analyze(
     buf, buf_start, total = None, 0, 0
     state = None  # set once enough samples are buffered to choose reference and frequency
     init_need = int(2.0 * fs) + 1
+    # work in spans of at least four windows, whatever the sample rate
+    span_need = max(int(block_samples), int(4 * one_window_s * fs * 1.06) + 1)
     source = capture.blocks(block_samples)
     hint = getattr(capture, "n_samples_hint", None)
     if hint is None and isinstance(capture, Capture):
@@ -412,6 +437,8 @@ def analyze(
         final = block is None
         if not final:
             blk = np.asarray(block, dtype=np.float64)[rows]
+            if transform is not None:
+                blk = transform @ blk
             if blk.shape[1] == 0:
                 continue
             nonfinite += (~np.isfinite(blk)).sum(axis=1)
@@ -428,7 +455,7 @@ def analyze(
                 continue
             state = _initial_state(buf, fs, chans, reference, nominal_in, max_order, path,
                                    findings)
-        if not final and buf.shape[1] - (np.floor(start) - buf_start) < block_samples:
+        if not final and buf.shape[1] - (np.floor(start) - buf_start) < span_need:
             continue
         cycles, nominal = state["cycles"], state["nominal_hz"]
         lo = int(np.floor(start)) - buf_start
@@ -460,7 +487,7 @@ def analyze(
             buf_start += keep_from
         if final:
             break
-        if b.size <= 1 and buf.shape[1] > 4 * block_samples:
+        if b.size <= 1 and buf.shape[1] > 4 * span_need:
             break  # no progress possible; stop rather than grow the buffer
 
     if state is None or total < fs * one_window_s * 0.98:
@@ -702,6 +729,31 @@ def _reduce_block(wb, cycles, max_order, resolved, ref, tracked):
     for key in ("component", "group", "subgroup", "interharmonic_group", "rms", "dc", "peak"):
         out[key][~valid] = np.nan
     return out
+
+
+_LL_SUFFIXES = (("ab", "bc", "ca"), ("12", "23", "31"))
+
+
+def _line_to_line(chans, connection, path):
+    """Rows of the ab, bc, ca voltages when voltages are line to line, else None."""
+    if connection not in (None, "line-to-neutral", "line-to-line"):
+        raise InputError(f"voltage connection must be line-to-neutral or line-to-line, got "
+                         f"{connection!r}", path=path, field="--voltage-connection")
+    if connection == "line-to-neutral":
+        return None
+    volts = [k for k, c in enumerate(chans) if c.quantity == "voltage" and c.phase != "n"]
+    if len(volts) != 3:
+        if connection == "line-to-line":
+            raise InputError("line-to-line voltages need exactly three voltage channels "
+                             "(ab, bc, ca)", path=path, field="--voltage-connection")
+        return None
+    names = [chans[k].name.lower().split("[")[0].split("(")[0].strip() for k in volts]
+    if connection is None and not any(
+            all(n.endswith(sfx) for n, sfx in zip(names, suffixes)) for suffixes in _LL_SUFFIXES):
+        return None
+    order = {"a": 0, "b": 1, "c": 2, "": 0}
+    volts.sort(key=lambda k: order.get(chans[k].phase, 0))
+    return tuple(volts)
 
 
 def _abc(chans, quantity):

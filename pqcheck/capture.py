@@ -228,12 +228,12 @@ class Capture:
         return cls(np.vstack(rows), float(fs_hz), tuple(chans), t0_s, Provenance(source=source))
 
 
-_NEUTRAL_NAMES = re.compile(r"(^|[_\s.-])(n|in|neutral|i_?n)$", re.IGNORECASE)
+_NEUTRAL_NAMES = re.compile(r"^(i|v|u|curr|current)?[_\s.-]?(n|neutral)$", re.IGNORECASE)
 
 
 def _phase_from_name(name: str) -> str | None:
     base = re.sub(r"[\[(].*?[\])]", "", name).strip().lower()
-    if _NEUTRAL_NAMES.search(base) or base in ("in", "n", "ineutral", "i_n", "neutral"):
+    if _NEUTRAL_NAMES.match(base):
         return "n"
     m = re.search(r"(?:^|[^a-z])(?:l|ph|phase)?\s*([123])$", base)
     if m:

@@ -33,6 +33,10 @@ def capture_options(func):
                           "Default: inferred (phase currents not summing to zero need a neutral)."),
         click.option("--reference", metavar="COL",
                      help="Channel whose fundamental sets the windows. Default: first voltage."),
+        click.option("--voltage-connection", "voltage_connection",
+                     type=click.Choice(["line-to-neutral", "line-to-line"]),
+                     help="How the voltages were measured. Default: line-to-line when the "
+                          "three voltage names end in ab, bc, ca, else line-to-neutral."),
         click.option("--no-cache", "no_cache", is_flag=True,
                      help="Do not read or write the cache of parsed captures and results."),
         click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False),
@@ -52,6 +56,7 @@ def analysis_kwargs(opts: dict) -> dict:
         "il_a": opts.get("il_a"),
         "wiring": opts.get("wiring"),
         "reference": opts.get("reference"),
+        "voltage_connection": opts.get("voltage_connection"),
     }
 
 

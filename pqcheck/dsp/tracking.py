@@ -63,6 +63,11 @@ def coarse_frequency(x, fs_hz: float, *, f_lo_hz: float, f_hi_hz: float) -> tupl
     n = x.size
     if n < 16:
         return float("nan"), 0.0
+    if n > 1 << 18:  # block-average down to a few hundred thousand samples (crude low-pass)
+        d = n >> 18
+        x = x[: n // (d + 1) * (d + 1)].reshape(-1, d + 1).mean(axis=1)
+        fs_hz = fs_hz / (d + 1)
+        n = x.size
     x = x - x.mean()
     w = np.hanning(n)
     nfft = sfft.next_fast_len(4 * n, real=True)
