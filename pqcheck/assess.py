@@ -1,0 +1,637 @@
+"""Assessment: measured statistics against resolved limits, one :class:`Check` per comparison.
+
+For every limit item of a :class:`~pqcheck.limits.ResolvedLimits` and every channel of the
+quantity it concerns, the window values of the table's measure (IEC 61000-4-7 harmonic group,
+subgroup or component) are put in the limit's basis (% of IL, % of the fundamental, A, mA/W,
+% of rated current, % of Iref), aggregated as the table's evaluation rule says (1.5 s smoothing,
+3 s / 10 min RMS values) and reduced to the rule's statistics (mean, max, RMS, percentiles).
+Each statistic compared with ``multiplier x limit`` is one :class:`Check`.
+
+Verdicts
+    ``pass``, ``fail``, ``not applicable`` (e.g. a harmonic the standard says to disregard) or
+    ``inconclusive``: a data-quality finding of severity ``error`` that concerns the checked
+    channel and order (clipping, a sample rate too low for the order), or a value that could not
+    be measured. An inconclusive check is never a pass. The overall verdict is ``fail`` if any
+    check fails, else ``inconclusive`` if any is inconclusive, else ``pass`` (``not applicable``
+    when nothing was assessed).
+
+IEC 61000-3-2 application rules (when the table's evaluation carries them)
+    the average of the 1.5 s smoothed values <= 100 % of the limit and every smoothed value
+    <= 150 %; the 200 % exception (Class A: above 150 % for less than 10 % of the observation
+    and 10 min, mean below 90 %); the POHC allowance (orders 21-39 may average up to 150 % when
+    the measured POHC is within the POHC of the limits and every smoothed value is within 150 %);
+    harmonics below 0.6 % of the input current or 5 mA are disregarded; Class D per-watt limits use
+    the maximum 1.5 s smoothed active power.
+
+IEEE 519 on a short capture
+    The standard's percentiles of 3 s values over a day and of 10 min values over a week need a
+    long survey at the PCC. A shorter capture is compared by the table's ``short_capture`` rule
+    (the captured steady state), and the assessment says so in its notes.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import aggregate, metrics
+from ._limit_model import parse_orders
+from .errors import InputError
+from .limits import HARMONIC, LimitItem, ResolvedLimits
+
+__all__ = ["Check", "Assessment", "assess", "VERDICTS", "overall_verdict"]
+
+VERDICTS = ("pass", "fail", "not applicable", "inconclusive")
+_SERIES_TEXT = {"window": "10/12-cycle values", "smoothed": "1.5 s smoothed values",
+                "3s": "3 s values", "10min": "10 min values"}
+
+
+@dataclass(frozen=True)
+class Check:
+    """One comparison of a measured statistic with a limit.
+
+    Attributes
+    ----------
+    table_id : str
+        Limit table id.
+    quantity : str
+        ``"harmonic"`` (with ``order``) or a total: ``THD``, ``TDD``, ``THC``, ``PWHC``,
+        ``PWHD``, ``TRD``, ``DC``.
+    order : int or None
+        Harmonic order (None for totals).
+    applies_to : str
+        ``"current"`` or ``"voltage"``.
+    phase : str
+        Phase of the channel (``a``, ``b``, ``c`` or "" for single-phase).
+    channel : str
+        Channel name.
+    statistic : str
+        What was compared, e.g. ``"mean of 1.5 s smoothed values"``.
+    measured : float or None
+        The statistic, in ``unit``. [%, A or mA/W]
+    limit : float or None
+        The value it is compared with: ``multiplier x table_limit`` (x power factor where the
+        table says so). [%, A or mA/W]
+    unit : str
+    margin_percent : float or None
+        ``(limit - measured) / limit x 100``: positive is headroom, negative an excess. [%]
+    verdict : str
+        ``pass``, ``fail``, ``not applicable`` or ``inconclusive``.
+    clause : str
+        Clause or table of the standard.
+    verify : bool
+        The limit (or the rule) is tagged to verify against your copy of the standard.
+    note : str
+        Why, when the verdict needs explaining (exceptions applied, findings, disregarded).
+    table_limit : float or None
+        The limit as the table gives it. [unit]
+    multiplier : float
+        Multiple of the limit the rule allows. [unitless]
+    """
+
+    table_id: str
+    quantity: str
+    order: int | None
+    applies_to: str
+    phase: str
+    channel: str
+    statistic: str
+    measured: float | None
+    limit: float | None
+    unit: str
+    margin_percent: float | None
+    verdict: str
+    clause: str
+    verify: bool
+    note: str = ""
+    table_limit: float | None = None
+    multiplier: float = 1.0
+
+    @property
+    def label(self) -> str:
+        """``"I11"``, ``"V5"``, ``"TDD"``..."""
+        if self.quantity == HARMONIC:
+            return f"{'I' if self.applies_to == 'current' else 'V'}{self.order}"
+        if self.quantity == "THD":
+            return f"THD({'I' if self.applies_to == 'current' else 'V'})"
+        return self.quantity
+
+    def to_dict(self) -> dict:
+        """Plain-JSON form (``order`` only where it applies)."""
+        d = {"table": self.table_id, "quantity": self.quantity}
+        if self.order is not None:
+            d["order"] = int(self.order)
+        d.update({
+            "applies_to": self.applies_to, "channel": self.channel, "phase": self.phase,
+            "statistic": self.statistic, "measured": _json_num(self.measured),
+            "limit": _json_num(self.limit), "unit": self.unit,
+            "margin_percent": _json_num(self.margin_percent), "verdict": self.verdict,
+            "clause": self.clause, "verify": self.verify,
+            "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier})
+        if self.note:
+            d["note"] = self.note
+        return d
+
+
+def _json_num(x):
+    if x is None or not math.isfinite(x):
+        return None
+    return float(x)
+
+
+@dataclass(frozen=True)
+class Assessment:
+    """The assessment of one analysis against one or more limit tables.
+
+    Attributes
+    ----------
+    verdict : str
+        Overall: ``fail`` > ``inconclusive`` > ``pass``; ``not applicable`` when no check was
+        made.
+    checks : tuple of Check
+    tables : tuple of ResolvedLimits
+        The limits used (ids, files, SHA-256, rows chosen).
+    notes : tuple of str
+        What the reader must know: short-capture evaluation, power or power factor used,
+        quantities not assessed, exceptions applied.
+    """
+
+    verdict: str
+    checks: tuple
+    tables: tuple
+    notes: tuple = ()
+    counts: dict = field(default_factory=dict, compare=False)
+
+    def to_dict(self) -> dict:
+        """Plain-JSON form: ``verdict``, ``checks``, ``tables``, ``notes``, ``counts``."""
+        return {
+            "verdict": self.verdict,
+            "counts": dict(self.counts),
+            "checks": [c.to_dict() for c in self.checks],
+            "tables": [_table_dict(t) for t in self.tables],
+            "notes": list(self.notes),
+        }
+
+
+def _table_dict(t: ResolvedLimits) -> dict:
+    return {
+        "id": t.table_id, "title": t.title, "standard": t.standard, "edition": t.edition,
+        "source": t.source, "sha256": t.sha256,
+        "selectors": {k: v for k, v in t.selectors}, "rows": list(t.rows),
+        "measure": t.measure, "max_order": t.max_order,
+    }
+
+
+def overall_verdict(checks) -> str:
+    """``fail`` if any check fails, else ``inconclusive`` if any is, else ``pass``;
+    ``not applicable`` when there is no pass, fail or inconclusive check."""
+    verdicts = {c.verdict for c in checks}
+    for v in ("fail", "inconclusive", "pass"):
+        if v in verdicts:
+            return v
+    return "not applicable"
+
+
+# --- entry point ---------------------------------------------------------------------------
+
+
+def assess(result, limits, *, il_a: float | None = None, rated_current_a: float | None = None,
+           iref_a: float | None = None, active_power_w: float | None = None) -> Assessment:
+    """Compare an analysis with resolved limit tables.
+
+    Parameters
+    ----------
+    result : pqcheck.analysis.AnalysisResult
+        The analysis of the capture.
+    limits : ResolvedLimits or sequence of ResolvedLimits
+        From :func:`pqcheck.limits.resolve`.
+    il_a : float, optional
+        Maximum demand load current IL, for limits in % of IL (IEEE 519); default the IL the
+        analysis was run with. [A]
+    rated_current_a : float, optional
+        Rated current, for limits in % of rated current (IEEE 1547). [A]
+    iref_a : float, optional
+        Reference current Iref, for limits in % of Iref (IEC 61000-3-12); default
+        ``rated_current_a``. [A]
+    active_power_w : float, optional
+        Active input power for per-watt limits (IEC 61000-3-2 Class D; a declared value within
+        10 % of the measured one). Default: measured, as the table's evaluation says. [W]
+
+    Returns
+    -------
+    Assessment
+
+    Raises
+    ------
+    InputError
+        A limit needs a reference value that was not given (``--il``, ``--rated-current``,
+        ``--iref``), or a reference value is not positive.
+    """
+    tables = (limits,) if isinstance(limits, ResolvedLimits) else tuple(limits)
+    if il_a is None:
+        il_a = getattr(result.settings, "il_a", None)
+    for name, v in (("--il", il_a), ("--rated-current", rated_current_a), ("--iref", iref_a),
+                    ("--active-power", active_power_w)):
+        if v is not None and not (math.isfinite(v) and v > 0):
+            raise InputError(f"must be a positive number, got {v!r}", field=name)
+    refs = {"il": il_a, "rated": rated_current_a, "iref": iref_a or rated_current_a,
+            "power": active_power_w}
+    checks, notes = [], []
+    for t in tables:
+        c, n = _TableAssessor(result, t, refs).run()
+        checks += c
+        notes += n
+    counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
+    return Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
+                      notes=tuple(dict.fromkeys(notes)), counts=counts)
+
+
+# --- one table -----------------------------------------------------------------------------
+
+
+@dataclass
+class _Series:
+    """Window values of one item on one channel, in the item's unit."""
+
+    item: LimitItem
+    values: np.ndarray | None  # (W,) or None when not measurable
+    problem: str = ""  # why values is None
+    orders: frozenset | None = frozenset()  # orders the value depends on (None: all)
+    extra_channels: tuple = ()  # other channels it depends on (voltage for P, PF)
+    scale: float = 1.0  # limit multiplier from the table (power factor)
+    amps: np.ndarray | None = None  # (W,) harmonic current in A, for the negligible rule
+
+
+class _TableAssessor:
+    def __init__(self, result, table: ResolvedLimits, refs: dict):
+        self.r = result
+        self.t = table
+        self.refs = refs
+        self.ev = table.evaluation
+        self.notes: list = []
+        w = result.windows
+        self.valid = np.asarray(w.valid, dtype=bool)
+        self.duration = np.asarray(w.duration_s, dtype=np.float64)
+        if table.measure == "component":
+            self.mags = np.abs(w.component)
+        else:
+            self.mags = np.asarray(getattr(w, table.measure))
+        self.observed_s = float(np.sum(self.duration[self.valid]))
+        self.voltage_channels = tuple(c.name for c in result.channels if c.quantity == "voltage")
+        self._power = None
+        self._pf = None
+
+    # -- reference values --------------------------------------------------------------------
+
+    def _ref(self, key: str, basis: str) -> float:
+        v = self.refs[key]
+        if v is None:
+            what = {"il": ("% of IL", "--il A (maximum demand load current at the PCC)"),
+                    "rated": ("% of rated current", "--rated-current A"),
+                    "iref": ("% of the reference current Iref", "--iref A (or --rated-current A)")}
+            unit, option = what[key]
+            raise InputError(f"table {self.t.table_id} gives limits in {unit}: give {option}",
+                             field=option.split()[0])
+        return float(v)
+
+    def power_w(self):
+        """Active power for per-watt limits (None when unknown), with a note."""
+        if self._power is not None:
+            return self._power or None
+        if self.refs["power"] is not None:
+            self._power = float(self.refs["power"])
+            self.notes.append(f"{self.t.table_id}: per-watt limits use the active power given, "
+                              f"{self._power:.4g} W.")
+            return self._power
+        w = self.r.windows
+        rule = self.ev.power
+        if w.p_total_w is None or rule is None:
+            self._power = 0.0
+            self.notes.append(f"{self.t.table_id}: per-watt limits need the active power: "
+                              "capture the voltage with the current, or give --active-power W.")
+            return None
+        p = np.where(self.valid, np.asarray(w.p_total_w, dtype=np.float64), np.nan)
+        series = self._aggregate(p, rule.of)
+        value = float(aggregate.statistic(series, rule.statistic))
+        if not (math.isfinite(value) and value > 0):
+            self._power = 0.0
+            self.notes.append(f"{self.t.table_id}: the measured active power is not positive "
+                              f"({value:.4g} W); per-watt limits cannot be applied.")
+            return None
+        self._power = value
+        self.notes.append(f"{self.t.table_id}: per-watt limits use {rule.statistic} of the "
+                          f"{_SERIES_TEXT[rule.of]} of active power, {value:.4g} W.")
+        return value
+
+    def power_factor(self):
+        if self._pf is not None:
+            return self._pf or None
+        p = self.r.power
+        if p is None or not math.isfinite(p.pf) or p.pf <= 0:
+            self._pf = 0.0
+            self.notes.append(f"{self.t.table_id}: limits proportional to the circuit power "
+                              "factor need the voltage: capture it with the current.")
+            return None
+        self._pf = float(p.pf)
+        self.notes.append(f"{self.t.table_id}: circuit power factor (lambda) measured "
+                          f"{self._pf:.4f}.")
+        return self._pf
+
+    # -- series ------------------------------------------------------------------------------
+
+    def _aggregate(self, x, of: str):
+        if of == "window":
+            return x
+        if of == "smoothed":
+            return aggregate.smooth(x, self.duration, tau_s=self.ev.smoothing_tau_s)
+        if of == "3s":
+            return aggregate.three_second_values(x)
+        return aggregate.ten_minute_values(x)
+
+    def _to_basis(self, x, item: LimitItem, k: int):
+        """Convert per-window values in A or V (harmonic magnitude) to the item's basis."""
+        b = item.basis
+        if b == "amperes":
+            return x
+        if b == "percent_of_fundamental":
+            f1 = self.mags[:, k, 1]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                return np.where(f1 > 0, 100.0 * x / f1, np.nan)
+        if b == "percent_of_il":
+            return 100.0 * x / self._ref("il", b)
+        if b == "percent_of_rated_current":
+            return 100.0 * x / self._ref("rated", b)
+        if b == "percent_of_iref":
+            return 100.0 * x / self._ref("iref", b)
+        if b == "milliamperes_per_watt":
+            p = self.power_w()
+            return None if p is None else 1000.0 * x / p
+        raise AssertionError(b)  # pragma: no cover - validated when the table was read
+
+    def series(self, item: LimitItem, k: int) -> _Series:
+        mags = self.mags[:, k, :]
+        top = mags.shape[1] - 1
+        extra = ()
+        if item.basis == "milliamperes_per_watt" or item.times:
+            extra = self.voltage_channels
+        if item.quantity == HARMONIC:
+            h = item.order
+            if h > top:
+                return _Series(item, None, f"order {h} was not analysed (analysis up to order "
+                               f"{top}); rerun with --max-order {h} or more", frozenset({h}))
+            x = np.where(self.valid, mags[:, h], np.nan)
+            orders = {h} | ({1} if item.basis == "percent_of_fundamental" else set())
+            vals = self._to_basis(x, item, k)
+            problem = "" if vals is not None else "the active power is unknown"
+            scale = 1.0
+            if item.times == "power_factor":
+                pf = self.power_factor()
+                if pf is None:
+                    vals, problem = None, "the circuit power factor is unknown"
+                else:
+                    scale = pf
+            return _Series(item, vals, problem, frozenset(orders), extra, scale, amps=x)
+        q = item.quantity
+        n_max = min(self.t.max_order, top)
+        if q in ("THD", "TDD"):
+            arr = (metrics.thd(mags, max_order=n_max) if q == "THD"
+                   else metrics.tdd(mags, self._ref("il", item.basis), max_order=n_max))
+            orders = frozenset(range(1 if q == "THD" else 2, self.t.max_order + 1))
+        elif q in ("THC", "PWHC"):
+            hi = min(40, n_max)
+            amps = metrics.thc(mags, max_order=hi) if q == "THC" else metrics.pwhc(mags, hi=hi)
+            arr = self._to_basis(amps, item, k)
+            orders = frozenset(range(2 if q == "THC" else 14, 41))
+        elif q == "PWHD":
+            arr = metrics.pwhd(mags, hi=min(40, n_max))
+            orders = frozenset({1} | set(range(14, 41)))
+        elif q == "TRD":
+            w = self.r.windows
+            arr = metrics.trd(w.rms[:, k], np.abs(w.component[:, k, 1]),
+                              self._ref("rated", item.basis))
+            orders = None
+        elif q == "DC":
+            dc = np.abs(np.asarray(self.r.windows.dc[:, k], dtype=np.float64))
+            arr = dc if item.basis == "amperes" else 100.0 * dc / self._ref("rated", item.basis)
+            orders = frozenset({0})
+        else:  # pragma: no cover - validated when the table was read
+            raise AssertionError(q)
+        arr = np.where(self.valid, np.asarray(arr, dtype=np.float64), np.nan)
+        return _Series(item, arr, "", orders, extra)
+
+    # -- findings ----------------------------------------------------------------------------
+
+    def blocking(self, channel: str, s: _Series) -> list:
+        out = []
+        chans = {channel, *s.extra_channels}
+        for f in self.r.findings:
+            if f.severity != "error":
+                continue
+            if f.channels and not chans & set(f.channels):
+                continue
+            if s.orders is not None and f.orders and not set(f.orders) & set(s.orders):
+                continue
+            out.append(f)
+        return out
+
+    # -- the comparisons ---------------------------------------------------------------------
+
+    def rules_for(self, applies_to: str):
+        """The evaluation checks for a quantity, or the short-capture ones when needed."""
+        rules = [c for c in self.ev.checks if c.applies_to in ("", applies_to)]
+        too_long = [c for c in rules if c.period_s > self.observed_s]
+        if not too_long:
+            return rules
+        short = [c for c in self.ev.short_capture if c.applies_to in ("", applies_to)]
+        if short:
+            note = self.ev.short_capture_note or (
+                f"the capture ({self.observed_s:.4g} s) is shorter than the evaluation period "
+                "of the standard; the captured steady state is compared instead")
+            self.notes.append(f"{self.t.table_id}: {note}")
+            return short
+        return rules
+
+    def run(self):
+        checks = []
+        items = self.t.items
+        for applies_to in ("current", "voltage"):
+            its = [i for i in items if i.applies_to == applies_to]
+            if not its:
+                continue
+            chans = [k for k, c in enumerate(self.r.channels)
+                     if c.quantity == applies_to and c.phase != "n"]
+            if not chans:
+                self.notes.append(f"{self.t.table_id}: {applies_to} limits not assessed: the "
+                                  f"capture has no {applies_to} channel.")
+                continue
+            rules = self.rules_for(applies_to)
+            for k in chans:
+                checks += self._channel(k, its, rules)
+        neutral = [c.name for c in self.r.channels if c.phase == "n"]
+        if neutral:
+            self.notes.append(f"{self.t.table_id}: neutral channel(s) {', '.join(neutral)} not "
+                              "assessed (the limits concern phase currents).")
+        if self.t.table_id.startswith("iec61000-3-2"):
+            big = [c for c in self.r.channels if c.quantity == "current" and c.phase != "n"
+                   and c.rms > 16.0]
+            if big:
+                self.notes.append(f"{self.t.table_id}: the input current ({big[0].rms:.3g} A) "
+                                  "is above 16 A per phase, outside the scope of IEC 61000-3-2; "
+                                  "IEC 61000-3-12 covers 16 A to 75 A.")
+        return checks, self.notes
+
+    def _channel(self, k: int, items, rules) -> list:
+        ch = self.r.channels[k]
+        series = [self.series(it, k) for it in items]
+        ev = self.ev
+        pohc_orders = set(parse_orders(ev.pohc.orders)) if ev.pohc else set()
+        neg = ev.negligible if items and items[0].applies_to == "current" else None
+        # statistics of every series under every rule
+        stats = {}
+        agg_cache = {}
+        for s_i, s in enumerate(series):
+            if s.values is None:
+                continue
+            for r_i, rule in enumerate(rules):
+                key = (s_i, rule.of)
+                if key not in agg_cache:
+                    agg_cache[key] = self._aggregate(s.values, rule.of)
+                stats[(s_i, r_i)] = float(aggregate.statistic(agg_cache[key], rule.statistic))
+        # POHC allowance: measured POHC against the POHC of the limits, per rule
+        pohc_ok = {}
+        if ev.pohc:
+            members = [i for i, s in enumerate(series) if s.item.quantity == HARMONIC
+                       and s.item.order in pohc_orders and s.values is not None]
+            by_basis = {}
+            for i in members:
+                by_basis.setdefault(series[i].item.basis, []).append(i)
+            for basis, idx in by_basis.items():
+                x = np.sqrt(np.nansum([series[i].values ** 2 for i in idx], axis=0))
+                x = np.where(self.valid, x, np.nan)
+                lim = math.sqrt(sum((series[i].item.limit * series[i].scale) ** 2 for i in idx))
+                for r_i, rule in enumerate(rules):
+                    if rule.statistic == "mean":
+                        m = float(aggregate.statistic(self._aggregate(x, rule.of), "mean"))
+                        pohc_ok[(basis, r_i)] = (m, lim)
+        out = []
+        for s_i, s in enumerate(series):
+            it = s.item
+            block = self.blocking(ch.name, s)
+            disregard = ""
+            if neg and it.quantity == HARMONIC and s.amps is not None:
+                thr = max(neg.percent_of_input / 100.0 * ch.rms, neg.min_a)
+                sm = self._aggregate(s.amps, "smoothed" if ev.smoothing_tau_s else "window")
+                peak = float(aggregate.statistic(sm, "max"))
+                if math.isfinite(peak) and peak < thr:
+                    disregard = (f"disregarded: below {neg.percent_of_input:g} % of the input "
+                                 f"current or {neg.min_a * 1000:g} mA, whichever is greater "
+                                 f"({thr * 1000:.3g} mA; largest value {peak * 1000:.3g} mA)")
+            max_results = {}
+            for r_i, rule in enumerate(rules):
+                limit = it.limit * s.scale * rule.multiplier
+                stat_text = _stat_text(rule)
+                notes = []
+                if rule.multiplier != 1:
+                    notes.append(f"{rule.multiplier:g} x {it.limit * s.scale:.4g} {it.unit}")
+                if it.times == "power_factor" and s.values is not None:
+                    notes.append(f"{it.limit:g} {it.unit} x power factor {s.scale:.4f}")
+                verify = it.verify or rule.tag in ("P", "M")
+                if s.values is None:
+                    out.append(self._check(it, ch, stat_text, None, limit, "inconclusive",
+                                           verify, [s.problem] + notes, rule.multiplier))
+                    continue
+                m = stats[(s_i, r_i)]
+                if disregard:
+                    verdict = "not applicable"
+                    notes.insert(0, disregard)
+                elif not math.isfinite(m):
+                    verdict = "inconclusive"
+                    notes.insert(0, "not measured (no valid window, or the order is above what "
+                                    "the sample rate resolves)")
+                else:
+                    verdict = "pass" if m <= limit else "fail"
+                    if verdict == "fail" and rule.statistic == "max":
+                        verdict, why = self._exception(s, rule, it.limit * s.scale, stats,
+                                                       s_i, rules)
+                        if why:
+                            notes.append(why)
+                    if (verdict == "fail" and rule.statistic == "mean" and ev.pohc
+                            and it.quantity == HARMONIC and it.order in pohc_orders):
+                        verdict, why = self._pohc(s, rule, r_i, m, it, rules, stats, s_i,
+                                                  pohc_ok)
+                        if why:
+                            notes.append(why)
+                if rule.statistic == "max":
+                    max_results[r_i] = verdict
+                if block and verdict != "not applicable":
+                    verdict = "inconclusive"
+                    notes.insert(0, "inconclusive: " + "; ".join(
+                        f"{f.code} ({f.message})" for f in block))
+                out.append(self._check(it, ch, stat_text, m, limit, verdict, verify, notes,
+                                       rule.multiplier))
+        return out
+
+    def _exception(self, s, rule, base, stats, s_i, rules):
+        """The 200 % exception for a failing max rule (IEC 61000-3-2 Class A)."""
+        exc = self.ev.exception
+        if exc is None or rule.of != "smoothed":
+            return "fail", ""
+        sm = self._aggregate(s.values, "smoothed")
+        peak = float(np.nanmax(sm)) if np.isfinite(sm).any() else math.nan
+        if not peak <= exc.multiplier * base:
+            return "fail", ""
+        above = np.isfinite(sm) & (sm > rule.multiplier * base)
+        t_above = float(np.sum(self.duration[above]))
+        allowed = min(exc.max_fraction * self.observed_s, exc.max_duration_s)
+        mean = float(aggregate.statistic(sm, "mean"))
+        if t_above < allowed and mean < exc.mean_below * base:
+            return "pass", (f"{exc.multiplier:.0%} exception: above {rule.multiplier:.0%} of the "
+                            f"limit for {t_above:.3g} s (allowed < {allowed:.3g} s), mean "
+                            f"{mean / base:.1%} of the limit (< {exc.mean_below:.0%})")
+        return "fail", (f"{exc.multiplier:.0%} exception not met: above {rule.multiplier:.0%} "
+                        f"for {t_above:.3g} s (allowed < {allowed:.3g} s), mean "
+                        f"{mean / base:.1%} of the limit (needs < {exc.mean_below:.0%})")
+
+    def _pohc(self, s, rule, r_i, m, it, rules, stats, s_i, pohc_ok):
+        """The POHC allowance for a failing mean rule (IEC 61000-3-2, orders 21-39)."""
+        p = self.ev.pohc
+        base = it.limit * s.scale
+        if m > p.multiplier * base:
+            return "fail", ""
+        max_ok = all(stats.get((s_i, j), math.inf) <= it.limit * s.scale * r.multiplier
+                     for j, r in enumerate(rules) if r.statistic == "max")
+        measured, allowed = pohc_ok.get((it.basis, r_i), (math.inf, 0.0))
+        if max_ok and measured <= allowed:
+            return "pass", (f"POHC allowance: mean within {p.multiplier:.0%} of the limit and "
+                            f"measured POHC {measured:.4g} <= {allowed:.4g} {it.unit} from the "
+                            "limits")
+        return "fail", (f"POHC allowance not met (measured POHC {measured:.4g}, from the limits "
+                        f"{allowed:.4g} {it.unit}; every smoothed value within 150 %: "
+                        f"{'yes' if max_ok else 'no'})")
+
+    def _check(self, it, ch, stat_text, measured, limit, verdict, verify, notes, multiplier):
+        margin = None
+        if measured is not None and math.isfinite(measured) and limit and limit > 0:
+            margin = (limit - measured) / limit * 100.0
+        note = "; ".join(n for n in [*notes, it.note] if n)
+        return Check(
+            table_id=self.t.table_id, quantity=it.quantity, order=it.order,
+            applies_to=it.applies_to, phase=ch.phase, channel=ch.name, statistic=stat_text,
+            measured=None if measured is None or not math.isfinite(measured) else measured,
+            limit=limit, unit=it.unit, margin_percent=margin, verdict=verdict,
+            clause=it.clause, verify=bool(verify), note=note,
+            table_limit=it.limit, multiplier=multiplier)
+
+
+def _stat_text(rule) -> str:
+    stat = rule.statistic
+    if stat.startswith("p"):
+        stat = f"{stat[1:]}th percentile"
+    elif stat == "rms":
+        stat = "RMS"
+    text = f"{stat} of {_SERIES_TEXT[rule.of]}"
+    if rule.statistic == "rms" and rule.of == "window":
+        text += " over the capture"
+    return text
