@@ -1,0 +1,143 @@
+"""`pqcheck check`: analyse a capture and assess it against limit tables."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import click
+
+from ._common import VERDICT_EXIT, handle_errors, main
+from .analyze import capture_options, load_and_analyze
+
+__all__ = ["render_assessment"]
+
+_ORDER = {"fail": 0, "inconclusive": 1, "pass": 2, "not applicable": 3}
+
+
+def _num(x, digits=4) -> str:
+    if x is None or not math.isfinite(x):
+        return "-"
+    return f"{x:.{digits}g}"
+
+
+def render_assessment(assessment, result=None) -> str:
+    """Text view of an assessment: verdict, limits used, notes, then the checks with failing
+    items first (most exceeded first) and their margins."""
+    a = assessment
+    lines = [f"Verdict    {a.verdict.upper()}"]
+    c = a.counts
+    lines.append(f"Checks     {c.get('fail', 0)} fail, {c.get('inconclusive', 0)} inconclusive, "
+                 f"{c.get('pass', 0)} pass, {c.get('not applicable', 0)} not applicable")
+    if result is not None:
+        lines.append(f"Capture    {result.source} ({result.duration_s:.3f} s, "
+                     f"{int(result.windows.valid.sum())} valid windows)")
+    for t in a.tables:
+        lines.append(f"Limits     {t.table_id}: {t.standard} {t.edition}, {t.title}")
+        lines.append(f"           file {t.source} (SHA-256 {t.sha256})")
+        sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
+                        for k, v in t.selectors)
+        if sel:
+            lines.append(f"           selectors: {sel}")
+        for row in t.rows:
+            lines.append(f"           {row}")
+        lines.append(f"           measure: IEC 61000-4-7 harmonic {t.measure}")
+    if a.notes:
+        lines.append("Notes")
+        lines += [f"  - {n}" for n in a.notes]
+    checks = sorted(a.checks, key=lambda k: (_ORDER[k.verdict],
+                                             k.margin_percent if k.margin_percent is not None
+                                             else math.inf))
+    head = ["verdict", "table", "channel", "limit of", "statistic", "measured", "limit", "unit",
+            "margin %", "clause", "note"]
+    rows = []
+    for k in checks:
+        rows.append([k.verdict.upper() if k.verdict in ("fail", "inconclusive") else k.verdict,
+                     k.table_id, k.channel, k.label, k.statistic, _num(k.measured),
+                     _num(k.limit) + ("*" if k.verify else ""), k.unit,
+                     _num(k.margin_percent, 3), k.clause, k.note])
+    widths = [max(len(str(r[i])) for r in [head] + rows) for i in range(len(head) - 1)]
+    lines.append("")
+    lines.append("  ".join(h.ljust(w) for h, w in zip(head, widths)) + "  note")
+    for r in rows:
+        lines.append(("  ".join(str(x).ljust(w) for x, w in zip(r, widths)) + "  " + r[-1])
+                     .rstrip())
+    lines.append("")
+    lines.append("* limit tagged to verify against your copy of the standard. Margin = (limit - "
+                 "measured) / limit; negative means the limit is exceeded. A pqcheck verdict is "
+                 "an engineering aid, not a certification.")
+    return "\n".join(lines) + "\n"
+
+
+@main.command("check")
+@click.argument("capture", type=click.Path(dir_okay=False))
+@click.option("--limits", "limits", multiple=True, required=True, metavar="ID_OR_PATH",
+              help="Limit table: a bundled id (see `pqcheck limits list`) or the path of a "
+                   ".toml file. Repeat to check against several.")
+@click.option("--voltage-level", "voltage_level", type=float, metavar="V",
+              help="Nominal bus voltage at the PCC (IEEE 519).")
+@click.option("--isc", type=float, metavar="A",
+              help="Maximum short-circuit current at the PCC (IEEE 519, with --il).")
+@click.option("--generation", is_flag=True, default=None,
+              help="Power-generation equipment: IEEE 519 first ISC/IL row whatever the ratio.")
+@click.option("--class", "equipment_class", metavar="A|B|C|D",
+              help="Equipment class (IEC 61000-3-2).")
+@click.option("--equipment", metavar="KIND",
+              help="Kind of equipment (IEC 61000-3-12): single-phase, interphase, "
+                   "unbalanced-three-phase, balanced-three-phase, balanced-three-phase-table4.")
+@click.option("--rsce", type=float, metavar="N", help="Short-circuit ratio Rsce (IEC 61000-3-12).")
+@click.option("--ssc", type=float, metavar="VA",
+              help="Short-circuit power at the point of connection, to compute Rsce.")
+@click.option("--rated-power", "rated_power", type=float, metavar="VA",
+              help="Rated apparent power of the equipment, to compute Rsce.")
+@click.option("--rated-current", "rated_current", type=float, metavar="A",
+              help="Rated current (IEEE 1547 limits; Iref of IEC 61000-3-12 unless --iref).")
+@click.option("--iref", type=float, metavar="A",
+              help="Reference current Iref (IEC 61000-3-12).")
+@click.option("--active-power", "active_power", type=float, metavar="W",
+              help="Active input power for per-watt limits (IEC 61000-3-2 Class D). "
+                   "Default: measured.")
+@capture_options
+@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
+              show_default=True, help="Output on stdout.")
+@click.pass_context
+@handle_errors
+def check_cmd(ctx, capture, limits, voltage_level, isc, generation, equipment_class, equipment,
+              rsce, ssc, rated_power, rated_current, iref, active_power, fmt, **opts):
+    """Check CAPTURE against limit tables.
+
+    Analyses the capture by the IEC 61000-4-7 method, picks the limits that apply (row by
+    --voltage-level/--isc/--il, --class, --rsce ...), compares each as the table's evaluation
+    rule says, and prints one line per check, failing items first.
+
+    Exit code: 0 pass, 1 a limit is exceeded, 3 inconclusive (data quality), 2 bad input.
+    """
+    from ..assess import assess
+    from ..limits import load_table, resolve
+
+    for name, v in (("--rated-current", rated_current), ("--iref", iref),
+                    ("--active-power", active_power), ("--il", opts.get("il_a"))):
+        if v is not None and not (math.isfinite(v) and v > 0):
+            from ..errors import InputError
+
+            raise InputError(f"must be a positive number, got {v:g}", field=name)
+    tables = [load_table(x) for x in limits]
+    selectors = dict(voltage_level=voltage_level, isc=isc, il=opts.get("il_a"),
+                     generation=generation, equipment_class=equipment_class,
+                     equipment=equipment, rsce=rsce, ssc=ssc, rated_power=rated_power)
+    resolved = [resolve(t, **selectors) for t in tables]
+    src = ctx.get_parameter_source("max_order")
+    if src is not None and src.name == "DEFAULT":
+        opts["max_order"] = max(r.max_order for r in resolved)
+    _, result = load_and_analyze(capture, opts)
+    a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=rated_current,
+               iref_a=iref, active_power_w=active_power)
+    if fmt == "json":
+        d = a.to_dict()
+        d["capture"] = {"source": result.source, "sha256": result.sha256,
+                        "duration_s": result.duration_s}
+        d["findings"] = [f.to_dict() for f in result.findings]
+        click.echo(json.dumps(d, indent=2))
+    else:
+        click.echo(render_assessment(a, result), nl=False)
+    raise click.exceptions.Exit(VERDICT_EXIT[a.verdict])
