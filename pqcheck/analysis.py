@@ -553,7 +553,7 @@ def analyze(
         g_rms = _rms_over(grp["group"][:, k], valid)
         sg_rms = _rms_over(grp["subgroup"][:, k], valid)
         ih_rms = _rms_over(grp["interharmonic_group"][:, k], valid)
-        ph = np.degrees(np.angle(np.nanmean(comp[valid, k], axis=0)))
+        ph = np.degrees(np.angle(np.nansum(comp[valid, k], axis=0)))
         if resolved < max_order:
             ph[resolved + 1:] = np.nan
         thd_w = metrics.thd(comp_mag[:, k], max_order=resolved)
@@ -704,7 +704,8 @@ def _initial_state(buf, fs, chans, reference, nominal_hz, max_order, path, findi
 
 def _reduce_block(wb, cycles, max_order, resolved, ref, tracked):
     """Per-window arrays of one block: groupings, phase reference, validity masking."""
-    grp = harmonic_groupings(wb.lines, cycles, max_order, gain=wb.gain)
+    grp = harmonic_groupings(wb.lines, cycles, max_order, gain=wb.gain,
+                             n_samples=wb.n_samples, mismatch=wb.mismatch)
     if resolved < max_order:
         for key in grp:
             grp[key][..., resolved + 1:] = np.nan

@@ -131,6 +131,17 @@ def _fmt(x, digits=4, unit=""):
     return f"{s} {unit}".rstrip()
 
 
+def _eng(x, unit, digits=4):
+    """Engineering notation with an SI prefix: 150690 W -> '150.7 kW'."""
+    if x is None or not np.isfinite(x):
+        return "-"
+    a = abs(x)
+    for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k")):
+        if a >= scale:
+            return f"{x / scale:.{digits}g} {prefix}{unit}"
+    return f"{x:.{digits}g} {unit}"
+
+
 def render_table(result) -> str:
     """Human-readable summary of an analysis."""
     lines = []
@@ -182,12 +193,12 @@ def render_table(result) -> str:
         lines.append("Power (IEEE 1459; negative P = export)")
         for ph in p.phases:
             lines.append(
-                f"  phase {ph.phase or '1ph':<4} P {_fmt(ph.p_w, 5, 'W'):>12}  "
-                f"S {_fmt(ph.s_va, 5, 'VA'):>12}  Q1 {_fmt(ph.q1_var, 4, 'var'):>12}  "
+                f"  phase {ph.phase or '1ph':<4} P {_eng(ph.p_w, 'W'):>11}  "
+                f"S {_eng(ph.s_va, 'VA'):>11}  Q1 {_eng(ph.q1_var, 'var'):>11}  "
                 f"PF {_fmt(ph.pf, 4):>7}  DPF {_fmt(ph.dpf, 4):>7}")
-        tot = f"  total      P {_fmt(p.p_w, 5, 'W'):>12}"
+        tot = f"  total      P {_eng(p.p_w, 'W'):>11}"
         if p.se_va is not None:
-            tot += f"  Se {_fmt(p.se_va, 5, 'VA'):>12}"
+            tot += f"  Se {_eng(p.se_va, 'VA'):>11}"
         tot += f"  PF {_fmt(p.pf, 4):>7}"
         if p.wiring:
             tot += f"  ({p.wiring})"
