@@ -164,7 +164,7 @@ def aggregate(currents, counts, orders, method: str = "general") -> np.ndarray:
 
     >>> round(float(aggregate([[0, 0, 0, 0, 0, 3.0], [0, 0, 0, 0, 0, 4.0]], [1, 1],
     ...                       range(6))[5]), 4)
-    5.7662
+    5.7658
     """
     if method not in SUMMATIONS:
         raise ValueError(f"summation must be one of {', '.join(SUMMATIONS)}, got {method!r}")
@@ -828,6 +828,7 @@ class SiteStudy:
     findings: tuple
     limits: object
     resolved_order: int
+    _case: object = field(default=None, repr=False, compare=False)
 
     def check(self, label: str) -> SiteCheck | None:
         """The check labelled ``label`` (``"V5"``, ``"I7"``, ``"TDD"``, ``"THD(V)"``)."""
@@ -1198,7 +1199,7 @@ def load_site(path, *, analyse=None) -> Site:
     >>> load_site(d / "site.toml")
     Traceback (most recent call last):
     ...
-    pqcheck.errors.PlanError: ...site.toml:1: supply: missing field 'x_over_r': ...
+    pqcheck.errors.PlanError: ...site.toml:1: supply: missing field 'ssc_va' or 'isc_a': ...
     """
     path = Path(path)
     raw, text = _read_text(path)
@@ -1766,33 +1767,98 @@ def study_site(site: Site, *, summation: str | None = None, headroom: bool = Tru
         thd_v_percent=float(np.nanmax(res["thd_v"])), tdd_percent=float(np.nanmax(res["tdd"])),
         unit_current_a=unit_pcc, transformer_loading_percent=case.loading_percent(counts),
         checks=checks, verdict=_overall(checks), headroom=tuple(heads),
-        findings=tuple(findings), limits=res["limits"], resolved_order=max_h)
+        findings=tuple(findings), limits=res["limits"], resolved_order=max_h, _case=case)
+
+
+def _limit_arrays(lim, n_orders: int) -> tuple:
+    """Limits as arrays: voltage and current per order (inf where none), THD and TDD."""
+    v = np.full(n_orders, np.inf)
+    i = np.full(n_orders, np.inf)
+    thd = tdd = np.inf
+    for item in lim.items:
+        if item.applies_to == "voltage" and item.basis == "percent_of_fundamental":
+            if item.quantity == "harmonic" and item.order < n_orders:
+                v[item.order] = item.limit
+            elif item.quantity == "THD":
+                thd = item.limit
+        elif item.applies_to == "current" and item.basis == "percent_of_il":
+            if item.quantity == "harmonic" and item.order < n_orders:
+                i[item.order] = item.limit
+            elif item.quantity == "TDD":
+                tdd = item.limit
+    return v, i, thd, tdd
+
+
+def _exceeds(case: _Case, counts_matrix) -> np.ndarray:
+    """For each row of counts (M, K): does any checked quantity exceed its limit? (M,) bool.
+
+    The vectorised twin of :meth:`_Case.evaluate` for the headroom search.
+    """
+    c = np.asarray(counts_matrix, dtype=float)
+    orders, hi = case.orders, case.max_h
+    u = case.unit_pcc
+    if case.summation == "phasor":
+        harm = np.abs(np.einsum("mk,kph->mph", c, u))
+    elif case.summation == "arithmetic":
+        harm = np.einsum("mk,kph->mph", c, np.abs(u))
+    else:
+        alpha = summation_exponent(orders)
+        harm = np.einsum("mk,kph->mph", c, np.abs(u) ** alpha) ** (1.0 / alpha)
+    fund = np.einsum("mk,kp->mp", c, u[:, :, 1]) + case.other_pcc
+    il = np.full(c.shape[0], case.site.il_a) if case.site.il_a is not None else \
+        np.max(np.abs(fund), axis=1)
+    isc = case.v_ln / abs(case.z1)
+    sel = slice(2, hi + 1)
+    volt = np.abs(harmonic_impedance(case.z1, orders))[sel] * harm[:, :, sel]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        v_pct = 100.0 * volt / case.v_ln
+        i_pct = 100.0 * harm[:, :, sel] / il[:, None, None]
+        thd = 100.0 * np.sqrt(np.sum(volt**2, axis=-1)) / case.v_ln
+        tdd = 100.0 * np.sqrt(np.sum(harm[:, :, sel] ** 2, axis=-1)) / il[:, None]
+    out = np.zeros(c.shape[0], dtype=bool)
+    ratio = isc / il
+    keys = [(bisect.bisect_left(case.limits.edges, x), x in case.limits.edges) for x in ratio]
+    for key in set(keys):
+        rows = np.array([k == key for k in keys])
+        m = int(np.flatnonzero(rows)[0])
+        if il[m] <= 0:
+            continue
+        vl, cl, thd_l, tdd_l = _limit_arrays(case.limits.get(isc, il[m]), orders.size)
+        bad = (np.any(v_pct[rows] > vl[sel], axis=(1, 2))
+               | np.any(i_pct[rows] > cl[sel], axis=(1, 2))
+               | np.any(thd[rows] > thd_l, axis=1) | np.any(tdd[rows] > tdd_l, axis=1))
+        out[rows] = bad
+    return out
 
 
 def _headroom(case: _Case, counts, k: int, checks_now, max_extra: int) -> Headroom:
     unit = case.site.units[k]
+    extra = np.arange(1, max_extra + 1)
+    grid = np.repeat(counts[None, :], extra.size, axis=0)
+    grid[:, k] += extra
     rating = None
     if case.site.transformer is not None:
-        for n in range(0, max_extra + 1):
-            c = counts.copy()
-            c[k] += n + 1
-            if case.loading_percent(c) > 100.0:
-                rating = n
-                break
+        fund = np.einsum("mk,kp->mp", grid, case.unit_bus[:, :, 1]) + case.other_bus
+        s = _SQRT3 * case.site.bus_voltage_v * np.max(np.abs(fund), axis=1)
+        over = np.flatnonzero(s > case.site.transformer.rating_va)
+        if case.loading_percent(counts) > 100.0:
+            rating = 0
+        elif over.size:
+            rating = int(extra[over[0]]) - 1
     failing = [c for c in checks_now if c.verdict == "fail"]
     if failing:
         worst = max(failing, key=lambda c: c.usage_percent)
         return Headroom(unit.name, unit.count, 0, worst.label, worst.value, worst.limit,
                         already_exceeded=True, extra_units_rating=rating)
-    for n in range(1, max_extra + 1):
-        c = counts.copy()
-        c[k] += n
-        fails = [x for x in case.evaluate(c)["checks"] if x.verdict == "fail"]
-        if fails:
-            worst = max(fails, key=lambda x: x.usage_percent)
-            return Headroom(unit.name, unit.count, n - 1, worst.label, worst.value, worst.limit,
-                            extra_units_rating=rating)
-    return Headroom(unit.name, unit.count, None, extra_units_rating=rating)
+    bad = np.flatnonzero(_exceeds(case, grid))
+    if not bad.size:
+        return Headroom(unit.name, unit.count, None, extra_units_rating=rating)
+    n = int(extra[bad[0]])
+    checks = case.evaluate(grid[bad[0]])["checks"]
+    fails = [x for x in checks if x.verdict == "fail"] or list(checks)
+    worst = max(fails, key=lambda x: x.usage_percent if math.isfinite(x.value) else -1.0)
+    return Headroom(unit.name, unit.count, n - 1, worst.label, worst.value, worst.limit,
+                    extra_units_rating=rating)
 
 
 def _orders_text(orders) -> str:
