@@ -205,14 +205,15 @@ class AnalysisOptions:
     ----------
     nominal_frequency_hz : float or None
         50 or 60; default the site's, else detected. [Hz]
-    max_order : int
-        Highest harmonic order analysed. [unitless]
+    max_order : int or None
+        Highest harmonic order analysed; None: the highest any applied table assesses (50
+        without tables). [unitless]
     wiring : str or None
         ``"3-wire"`` or ``"4-wire"``; None to infer.
     """
 
     nominal_frequency_hz: float | None = None
-    max_order: int = 50
+    max_order: int | None = None
     wiring: str | None = None
 
 
@@ -228,9 +229,10 @@ class LimitSpec:
         Resolved path for a user table, None for a bundled id.
     selectors : dict
         Values given in this entry (keys as in the plan: ``voltage_level_v``, ``isc_a``,
-        ``il_a``, ``rsce``, ``ssc_va``, ``rated_apparent_power_va``, ``rated_power_w``,
-        ``rated_current_a``, ``equipment_class``, ``equipment_kind``, ``generation``); values not
-        given come from ``[site]`` and ``[equipment]`` (see :meth:`Plan.selection`).
+        ``il_a``, ``rsce``, ``ssc_va``, ``rated_apparent_power_va``, ``rated_current_a``,
+        ``iref_a``, ``active_power_w``, ``equipment_class``, ``equipment_kind``,
+        ``generation``); values not given come from ``[site]`` and ``[equipment]`` (see
+        :meth:`Plan.selection`).
     line : int or None
         Line of the entry in the plan.
     """
@@ -284,19 +286,27 @@ class CaptureSpec:
     notes: str = ""
     line: int | None = None
 
-    def capture_options(self, analysis: AnalysisOptions, site: Site) -> dict:
-        """Options in the form :func:`pqcheck.cli.analyze.load_and_analyze` takes."""
+    def analysis_kwargs(self, analysis: AnalysisOptions, site: Site, *,
+                        max_order: int = 50) -> dict:
+        """Keyword arguments of :func:`pqcheck.pipeline.analyze_file` for this capture.
+
+        Parameters
+        ----------
+        analysis, site
+            The plan's analysis options and site.
+        max_order : int
+            Highest order when the plan does not set one. [unitless]
+        """
         nominal = analysis.nominal_frequency_hz or site.nominal_frequency_hz
         return {
-            "current": None if self.current is None else ",".join(self.current),
-            "voltage": None if self.voltage is None else ",".join(self.voltage),
-            "sample_rate": self.sample_rate_hz,
+            "current": None if self.current is None else list(self.current),
+            "voltage": None if self.voltage is None else list(self.voltage),
+            "sample_rate_hz": self.sample_rate_hz,
             "time_column": self.time_column,
-            "nominal": None if nominal is None else str(int(nominal)),
-            "max_order": analysis.max_order,
+            "nominal_hz": None if nominal is None else int(nominal),
+            "max_order": analysis.max_order or max_order,
             "il_a": site.il_a,
             "wiring": analysis.wiring,
-            "reference": None,
         }
 
 
@@ -353,7 +363,6 @@ class Plan:
             "rsce": s.rsce,
             "ssc_va": s.ssc_va,
             "rated_apparent_power_va": e.rated_apparent_power_va,
-            "rated_power_w": e.rated_power_w,
             "rated_current_a": e.rated_current_a,
             "equipment_class": e.equipment_class or None,
             "equipment_kind": e.equipment_kind or None,
@@ -361,6 +370,27 @@ class Plan:
         }
         base.update(spec.selectors)
         return {k: v for k, v in base.items() if v is not None}
+
+    def resolve_arguments(self, spec: LimitSpec) -> tuple:
+        """Arguments for :func:`pqcheck.limits.resolve` and :func:`pqcheck.assess.assess`
+        from :meth:`selection`.
+
+        Returns
+        -------
+        (dict, dict)
+            Keyword arguments of ``resolve`` (``voltage_level``, ``isc``, ``il``, ``rsce``,
+            ``ssc``, ``rated_power``, ``equipment_class``, ``equipment``, ``generation``) and
+            of ``assess`` (``il_a``, ``rated_current_a``, ``iref_a``, ``active_power_w``).
+        """
+        sel = self.selection(spec)
+        names = {"voltage_level_v": "voltage_level", "isc_a": "isc", "il_a": "il",
+                 "rsce": "rsce", "ssc_va": "ssc", "rated_apparent_power_va": "rated_power",
+                 "equipment_class": "equipment_class", "equipment_kind": "equipment",
+                 "generation": "generation"}
+        resolve_kw = {names[k]: v for k, v in sel.items() if k in names}
+        assess_kw = {"il_a": sel.get("il_a"), "rated_current_a": sel.get("rated_current_a"),
+                     "iref_a": sel.get("iref_a"), "active_power_w": sel.get("active_power_w")}
+        return resolve_kw, assess_kw
 
 
 # ---------------------------------------------------------------------------------------------
@@ -389,9 +419,9 @@ _CONDITIONS = {"date": _STR, "location": _STR, "ambient_c": _NUM, "supply": _STR
                "instruments": "array of tables", "notes": _STR}
 _ANALYSIS = {"nominal_frequency_hz": _POS, "max_order": "whole number", "wiring": _STR}
 _SELECTOR_KEYS = {"voltage_level_v": _POS, "isc_a": _POS, "il_a": _POS, "rsce": _POS,
-                  "ssc_va": _POS, "rated_apparent_power_va": _POS, "rated_power_w": _POS,
-                  "rated_current_a": _POS, "equipment_class": _STR, "equipment_kind": _STR,
-                  "generation": _BOOL}
+                  "ssc_va": _POS, "rated_apparent_power_va": _POS, "rated_current_a": _POS,
+                  "iref_a": _POS, "active_power_w": _POS, "equipment_class": _STR,
+                  "equipment_kind": _STR, "generation": _BOOL}
 _LIMIT = {"table": _STR, **_SELECTOR_KEYS}
 _CAPTURE = {"id": _STR, "file": _STR, "load_point": _STR, "load_percent": _POS,
             "current": _STRS, "voltage": _STRS, "sample_rate_hz": _POS, "time_column": _STR,
@@ -741,7 +771,7 @@ calibration_due = ""
 
 [analysis]
 # nominal_frequency_hz = 50      # default: the site's, else detected
-max_order = 50
+# max_order = 50                 # default: the highest order the limit tables assess
 # wiring = "3-wire"              # or "4-wire"; default: inferred
 
 # Limit tables: a bundled id (pqcheck limits list) or the path of your own table file.
@@ -752,6 +782,8 @@ table = "ieee519-2022"
 # voltage_level_v = 400
 # isc_a = 20000
 # il_a = 1000
+# Other tables use: rsce, ssc_va, rated_apparent_power_va, rated_current_a, iref_a,
+# active_power_w, equipment_class, equipment_kind, generation.
 
 # Captures: one entry per record. The channel map gives the columns in phase order a, b, c
 # (a neutral current may follow); without it pqcheck guesses from the column names.

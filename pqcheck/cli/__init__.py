@@ -16,6 +16,8 @@ from __future__ import annotations
 from . import analyze as _analyze  # noqa: F401,E402
 from . import check as _check  # noqa: F401
 from . import limits_cmd as _limits_cmd  # noqa: F401
+from . import plan_cmd as _plan_cmd  # noqa: F401
+from . import report_cmd as _report_cmd  # noqa: F401
 from . import site_cmd as _site_cmd  # noqa: F401
 from ._common import main
 

@@ -74,6 +74,7 @@ _RC = {
 }
 
 _PHASE_ORDER = {"a": 0, "": 0, "b": 1, "c": 2, "n": 3}
+_MAX_LABELLED = 12
 
 
 # ---------------------------------------------------------------------------------------------
@@ -268,8 +269,9 @@ def waveform_data(capture, result, *, cycles: float = 3.0) -> WaveformData:
 
     Parameters
     ----------
-    capture : Capture
-        The capture the result was computed from (its samples are used; no file is read).
+    capture : Capture or CaptureStream
+        The capture the result was computed from; its first samples (``head``) are used, so
+        a long streamed capture is not read again.
     result : AnalysisResult
         For the channel roles, the first valid window and the measured fundamental.
     cycles : float
@@ -283,14 +285,20 @@ def waveform_data(capture, result, *, cycles: float = 3.0) -> WaveformData:
     valid = np.flatnonzero(w.valid)
     t_start = float(w.t_start_s[valid[0]] if valid.size else w.t_start_s[0])
     fs = capture.fs_hz
-    start = max(0, int(round((t_start - capture.t0_s) * fs)))
     f1 = result.fundamental_hz if np.isfinite(result.fundamental_hz) else \
         result.settings.nominal_hz
-    n = min(capture.n_samples - start, int(round(cycles * fs / f1)) + 1)
+    n = int(round(cycles * fs / f1)) + 1
+    start = max(0, int(round((t_start - capture.t0_s) * fs)))
+    # The first samples are held by both in-memory captures and streamed ones (``head``).
+    head = capture.head(start + n)
+    if head.shape[1] < start + n:
+        start = 0
+        head = capture.head(n)
+    n = min(n, head.shape[1] - start)
     t_ms = np.arange(n) / fs * 1e3
     volts, amps = [], []
     for c in sorted(result.channels, key=lambda c: _channel_label(result, c.name)[0]):
-        x = capture.samples[capture.index(c.name), start:start + n]
+        x = head[capture.index(c.name), start:start + n]
         label = _channel_label(result, c.name)[1]
         (volts if c.quantity == "voltage" else amps).append((label, x))
     return WaveformData(t_ms=t_ms, t0_s=capture.t0_s + start / fs, voltages=tuple(volts),
@@ -388,14 +396,26 @@ def plot_spectrum(data: SpectrumData) -> Figure:
             top_vals = np.concatenate([y, np.where(fin, lim, 0.0)])
             top = float(np.nanmax(top_vals)) if top_vals.size else 1.0
             top = top if top > 0 else 1.0
-            ax.set_ylim(0, top * 1.22)
-            for xi, yi in zip(x[fail], y[fail]):
-                ax.annotate(f"\u2715{xi}", (xi, yi), xytext=(0, 2), textcoords="offset points",
-                            ha="center", va="bottom", fontsize=6.5, fontweight="bold",
-                            color=_INK)
-            for xi, yi in zip(x[inc], y[inc]):
-                ax.annotate(f"?{xi}", (xi, yi), xytext=(0, 2), textcoords="offset points",
-                            ha="center", va="bottom", fontsize=6.5, color=_INK)
+            ax.set_ylim(0, top * 1.3)
+            # Mark each failing (inconclusive) order; when there are too many to label
+            # legibly, mark them without numbers and say how many in the panel.
+            for mask, sym, weight in ((fail, "\u2715", "bold"), (inc, "?", "normal")):
+                count = int(mask.sum())
+                numbered = count <= _MAX_LABELLED
+                for xi, yi in zip(x[mask], y[mask]):
+                    ax.annotate(f"{sym}{xi}" if numbered else sym, (xi, yi), xytext=(0, 2),
+                                textcoords="offset points", ha="center", va="bottom",
+                                fontsize=6.5, fontweight=weight, color=_INK)
+            summary = []
+            if fail.sum() > _MAX_LABELLED:
+                summary.append(f"\u2715 {int(fail.sum())} orders exceed their limit")
+            if inc.sum() > _MAX_LABELLED:
+                summary.append(f"? {int(inc.sum())} orders inconclusive")
+            if summary:
+                ax.text(0.995, 0.97, "; ".join(summary), transform=ax.transAxes, ha="right",
+                        va="top", fontsize=7, color=_INK,
+                        bbox={"facecolor": "white", "edgecolor": _INK, "linewidth": 0.5,
+                              "boxstyle": "square,pad=0.25"})
             ax.set_title(p.label, loc="left", fontweight="bold")
             ax.set_ylabel(f"[{data.unit}]")
         axes[-1].set_xlabel("harmonic order")

@@ -15,23 +15,53 @@ from datetime import datetime, timezone
 
 from .. import __version__
 
-__all__ = ["CaptureRun", "ReportMeta", "ReportJob", "combine_verdicts", "make_report_id",
-           "NOT_ASSESSED"]
+__all__ = ["CaptureRun", "TableResult", "ReportMeta", "ReportJob", "table_results",
+           "make_report_id", "NOT_ASSESSED"]
 
 NOT_ASSESSED = "not assessed"
 """Verdict of a report (or capture) to which no limit table was applied."""
 
-_RANK = {"fail": 3, "inconclusive": 2, "pass": 1, "not applicable": 0}
+
+def _overall(checks) -> str:
+    from ..assess import overall_verdict
+
+    return overall_verdict(checks)
 
 
-def combine_verdicts(verdicts) -> str:
-    """Overall verdict of several assessment verdicts: any fail is a fail; otherwise any
-    inconclusive is inconclusive; otherwise pass when at least one passed; ``"not
-    applicable"`` when every one was not applicable; :data:`NOT_ASSESSED` for none."""
-    verdicts = [v for v in verdicts if v]
-    if not verdicts:
-        return NOT_ASSESSED
-    return max(verdicts, key=lambda v: _RANK.get(v, 2))
+@dataclass(frozen=True, eq=False)
+class TableResult:
+    """The part of an assessment that concerns one limit table.
+
+    Attributes
+    ----------
+    limits : ResolvedLimits
+        The table as resolved for this case.
+    checks : tuple of Check
+        The checks of this table.
+    verdict : str
+        Verdict over these checks (:func:`pqcheck.assess.overall_verdict`).
+    notes : tuple of str
+        The assessment's notes.
+    """
+
+    limits: object
+    checks: tuple
+    verdict: str
+    notes: tuple = ()
+
+
+def table_results(assessment) -> list:
+    """Split an :class:`~pqcheck.assess.Assessment` into one :class:`TableResult` per table
+    (an assessment of a single table keeps its own verdict)."""
+    tables = tuple(assessment.tables)
+    if len(tables) == 1:
+        return [TableResult(tables[0], tuple(assessment.checks), assessment.verdict,
+                            tuple(assessment.notes))]
+    out = []
+    for t in tables:
+        checks = tuple(c for c in assessment.checks if c.table_id == t.table_id)
+        out.append(TableResult(t, checks, _overall(checks), tuple(assessment.notes)))
+    return out
 
 
 @dataclass(frozen=True, eq=False)
@@ -46,7 +76,8 @@ class CaptureRun:
         Samples and provenance (the waveform figure takes its samples from here).
     result : AnalysisResult
     assessments : tuple of Assessment
-        One per limit table applied (empty for an analysis-only report).
+        Assessments of this capture (usually one per limit table; empty for an
+        analysis-only report).
     load_point : str
         Label of the operating point, e.g. ``"50 %"``.
     load_percent : float or None
@@ -64,9 +95,22 @@ class CaptureRun:
     notes: str = ""
 
     @property
+    def tables(self) -> list:
+        """One :class:`TableResult` per limit table applied to this capture."""
+        return [t for a in self.assessments for t in table_results(a)]
+
+    @property
+    def checks(self) -> list:
+        """Every check of this capture."""
+        return [c for a in self.assessments for c in a.checks]
+
+    @property
     def verdict(self) -> str:
-        """Combined verdict of this capture's assessments."""
-        return combine_verdicts(a.verdict for a in self.assessments)
+        """Verdict over every check of this capture (:data:`NOT_ASSESSED` without any
+        assessment)."""
+        if not self.assessments:
+            return NOT_ASSESSED
+        return _overall(self.checks)
 
 
 @dataclass(frozen=True)
@@ -113,8 +157,11 @@ class ReportJob:
 
     @property
     def verdict(self) -> str:
-        """Overall verdict over every capture and limit table."""
-        return combine_verdicts(a.verdict for r in self.runs for a in r.assessments)
+        """Overall verdict over every check of every capture (:data:`NOT_ASSESSED` when no
+        limit table was applied)."""
+        if not self.assessed:
+            return NOT_ASSESSED
+        return _overall([c for r in self.runs for c in r.checks])
 
     @property
     def assessed(self) -> bool:
@@ -125,8 +172,8 @@ class ReportJob:
         """Distinct limit tables applied, as their resolved-limits objects (first seen)."""
         seen, out = set(), []
         for r in self.runs:
-            for a in r.assessments:
-                lim = a.limits
+            for t in r.tables:
+                lim = t.limits
                 key = (lim.table_id, lim.sha256)
                 if key not in seen:
                     seen.add(key)

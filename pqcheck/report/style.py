@@ -124,7 +124,7 @@ def styles() -> dict:
     st["caption"] = ParagraphStyle("caption", parent=st["small"], textColor=MUTED,
                                    spaceBefore=2, spaceAfter=8)
     st["tcaption"] = ParagraphStyle("tcaption", parent=st["small"], textColor=MUTED,
-                                    spaceBefore=4, spaceAfter=3, keepWithNext=1)
+                                    spaceBefore=4, spaceAfter=3)
     st["title"] = ParagraphStyle("title", parent=base, fontName=FONT_BOLD, fontSize=24,
                                  leading=29, textColor=ACCENT, spaceAfter=4)
     st["subtitle"] = ParagraphStyle("subtitle", parent=base, fontSize=12.5, leading=16,

@@ -1,0 +1,1074 @@
+"""The PDF report (reportlab platypus), rendered from a :class:`~pqcheck.report.job.ReportJob`.
+
+:func:`render_pdf` returns the bytes of the document; writing them is the caller's business
+(:mod:`pqcheck.report.atomic`). The results JSON travels inside the PDF as an embedded file
+(``results.json``), so the paperwork and its data stay together.
+
+Layout: a cover with the overall verdict, then (1) summary, (2) results per capture, (3) data
+quality, (4) method and settings, (5) measurement uncertainty, (6) traceability, (7) safety and
+standing of the report, (8) sign-off. Every page after the cover repeats the equipment and the
+overall verdict at the top; every page carries the report id and "page n of N" at the bottom.
+
+Numbers are formatted, never computed, here: every value comes from the analysis result, the
+assessment's checks, or the tidy frames of :mod:`pqcheck.export`.
+"""
+
+from __future__ import annotations
+
+import functools
+import hashlib
+import io
+import platform
+from datetime import timezone
+
+from reportlab.lib import colors
+from reportlab.lib.pagesizes import A4
+from reportlab.lib.units import mm
+from reportlab.pdfbase.pdfdoc import PDFArray, PDFDictionary, PDFName, PDFStream, PDFString
+from reportlab.pdfgen import canvas as rl_canvas
+from reportlab.platypus import (
+    CondPageBreak,
+    Image,
+    KeepTogether,
+    PageBreak,
+    Paragraph,
+    SimpleDocTemplate,
+    Spacer,
+    Table,
+    TableStyle,
+)
+
+from . import figures, text
+from .job import NOT_ASSESSED
+from .style import (
+    ACCENT,
+    FONT,
+    FONT_BOLD,
+    INK,
+    MUTED,
+    RULE,
+    SHADE,
+    SHADE_DARK,
+    VERDICT_MARK,
+    VERDICT_WORD,
+    esc,
+    fmt,
+    fmt_pct,
+    register_fonts,
+    styles,
+)
+
+__all__ = ["render_pdf", "ATTACHMENT_NAME", "PAGE_SIZE"]
+
+ATTACHMENT_NAME = "results.json"
+PAGE_SIZE = A4
+_MARGIN = 18 * mm
+_WIDTH = PAGE_SIZE[0] - 2 * _MARGIN
+_FIG_DPI = 200
+_MAX_LISTED = 40
+
+_PHASE_ORDER = {"a": 0, "": 0, "b": 1, "c": 2, "n": 3}
+
+
+# ---------------------------------------------------------------------------------------------
+# Canvas: header, footer with page n of N, embedded results file
+# ---------------------------------------------------------------------------------------------
+
+
+class _ReportCanvas(rl_canvas.Canvas):
+    """Canvas that draws header and footer once the page count is known, and embeds the
+    results JSON as a file attachment."""
+
+    def __init__(self, *args, report_id: str, header_left: str, header_right: str,
+                 attachment: bytes, **kwargs):
+        super().__init__(*args, **kwargs)
+        self._pages = []
+        self._report_id = report_id
+        self._header_left = header_left
+        self._header_right = header_right
+        self._attachment = attachment
+
+    def showPage(self):  # noqa: N802 (reportlab API)
+        self._pages.append(dict(self.__dict__))
+        self._startPage()
+
+    def save(self):
+        total = len(self._pages)
+        for state in self._pages:
+            self.__dict__.update(state)
+            self._decorate(total)
+            super().showPage()
+        self._embed_attachment()
+        super().save()
+
+    def _decorate(self, total: int) -> None:
+        page = self._pageNumber
+        w, h = PAGE_SIZE
+        self.saveState()
+        self.setStrokeColor(RULE)
+        self.setLineWidth(0.5)
+        # footer
+        self.line(_MARGIN, 13 * mm, w - _MARGIN, 13 * mm)
+        self.setFont(FONT, 7)
+        self.setFillColor(MUTED)
+        self.drawString(_MARGIN, 9 * mm, f"Report {self._report_id}")
+        self.drawCentredString(w / 2, 9 * mm, "pqcheck harmonic emission report \u2013 "
+                                              "not a certification")
+        self.setFont(FONT_BOLD, 7)
+        self.setFillColor(INK)
+        self.drawRightString(w - _MARGIN, 9 * mm, f"Page {page} of {total}")
+        # header (not on the cover)
+        if page > 1:
+            self.setFont(FONT, 7)
+            self.setFillColor(MUTED)
+            left = self._header_left
+            if len(left) > 90:
+                left = left[:89] + "\u2026"
+            self.drawString(_MARGIN, h - 11 * mm, left)
+            self.setFont(FONT_BOLD, 7)
+            self.setFillColor(INK)
+            self.drawRightString(w - _MARGIN, h - 11 * mm, self._header_right)
+            self.line(_MARGIN, h - 12.8 * mm, w - _MARGIN, h - 12.8 * mm)
+        self.restoreState()
+
+    def _embed_attachment(self) -> None:
+        data = self._attachment
+        if not data:
+            return
+        params = PDFDictionary({
+            "Size": len(data),
+            "CheckSum": PDFString(hashlib.md5(data).digest(), enc="raw"),  # noqa: S324 (PDF spec)
+        })
+        stream = PDFStream(PDFDictionary({"Type": PDFName("EmbeddedFile"),
+                                          "Subtype": "/application#2Fjson",
+                                          "Params": params}), content=data)
+        spec = PDFDictionary({
+            "Type": PDFName("Filespec"),
+            "F": PDFString(ATTACHMENT_NAME),
+            "UF": PDFString(ATTACHMENT_NAME),
+            "Desc": PDFString(f"Results of report {self._report_id} (pqcheck JSON)"),
+            "AFRelationship": PDFName("Data"),
+            "EF": PDFDictionary({"F": stream, "UF": stream}),
+        })
+        doc = self._doc
+        ref = doc.Reference(spec)
+        doc.Catalog.Names = PDFDictionary({"EmbeddedFiles": PDFDictionary(
+            {"Names": PDFArray([PDFString(ATTACHMENT_NAME), ref])})})
+        doc.Catalog.AF = PDFArray([ref])
+
+
+# ---------------------------------------------------------------------------------------------
+# Small building blocks
+# ---------------------------------------------------------------------------------------------
+
+
+class _Builder:
+    """Collects flowables; holds the styles and the job."""
+
+    def __init__(self, job, results_json: bytes):
+        self.job = job
+        self.st = styles()
+        self.story = []
+        self.results_json = results_json
+        self.fig_count = 0
+        self.table_count = 0
+
+    # -- text --
+    def p(self, text_plain: str, style: str = "body") -> Paragraph:
+        """Paragraph of plain (untrusted) text: escaped."""
+        return Paragraph(esc(text_plain), self.st[style])
+
+    def m(self, markup: str, style: str = "body") -> Paragraph:
+        """Paragraph of trusted markup (its variable parts already escaped)."""
+        return Paragraph(markup, self.st[style])
+
+    def add(self, *flowables) -> None:
+        self.story.extend(flowables)
+
+    def h1(self, title: str) -> None:
+        self.add(CondPageBreak(60 * mm), self.p(title, "h1"))
+
+    def h2(self, title: str) -> None:
+        self.add(CondPageBreak(45 * mm), self.p(title, "h2"))
+
+    def h3(self, title: str) -> None:
+        self.add(CondPageBreak(35 * mm), self.p(title, "h3"))
+
+    # -- tables --
+    def cell(self, value, style: str = "cell") -> Paragraph:
+        if isinstance(value, Paragraph):
+            return value
+        return Paragraph(esc("" if value is None else value), self.st[style])
+
+    def table(self, rows, widths, *, header: bool = True, right=(), zebra: bool = True,
+              extra_style=(), repeat: bool = True) -> Table:
+        """A report table: header row shaded, thin rules, optional zebra striping.
+
+        ``rows`` holds strings (escaped here) or Paragraphs (used as they are); ``right`` lists
+        the columns aligned right; ``widths`` are fractions of the text width.
+        """
+        out = []
+        for i, row in enumerate(rows):
+            cells = []
+            for j, v in enumerate(row):
+                if header and i == 0:
+                    cells.append(self.cell(v, "cell_head"))
+                else:
+                    cells.append(self.cell(v, "cell_r" if j in right else "cell"))
+            out.append(cells)
+        t = Table(out, colWidths=[w * _WIDTH for w in widths],
+                  repeatRows=1 if (header and repeat) else 0, hAlign="LEFT")
+        cmds = [
+            ("VALIGN", (0, 0), (-1, -1), "TOP"),
+            ("TOPPADDING", (0, 0), (-1, -1), 2.2),
+            ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
+            ("LEFTPADDING", (0, 0), (-1, -1), 3),
+            ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+            ("LINEBELOW", (0, -1), (-1, -1), 0.5, RULE),
+        ]
+        if header:
+            cmds += [("BACKGROUND", (0, 0), (-1, 0), SHADE_DARK),
+                     ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT)]
+        if zebra:
+            start = 1 if header else 0
+            for i in range(start + 1, len(out), 2):
+                cmds.append(("BACKGROUND", (0, i), (-1, i), SHADE))
+        cmds.extend(extra_style)
+        t.setStyle(TableStyle(cmds))
+        return t
+
+    def kv(self, pairs, key_width: float = 0.26) -> Table:
+        """Two-column key/value table (keys bold)."""
+        rows = [[self.cell(k, "cell_b"), v if isinstance(v, Paragraph) else self.cell(v)]
+                for k, v in pairs]
+        t = Table(rows, colWidths=[key_width * _WIDTH, (1 - key_width) * _WIDTH], hAlign="LEFT")
+        t.setStyle(TableStyle([
+            ("VALIGN", (0, 0), (-1, -1), "TOP"),
+            ("TOPPADDING", (0, 0), (-1, -1), 2.2),
+            ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
+            ("LEFTPADDING", (0, 0), (-1, -1), 3),
+            ("LINEBELOW", (0, 0), (-1, -1), 0.3, SHADE_DARK),
+        ]))
+        return t
+
+    def tcaption(self, caption: str) -> None:
+        """Numbered table caption, placed above the table and kept with it."""
+        self.table_count += 1
+        self.add(CondPageBreak(30 * mm),
+                 self.m(f"<b>Table {self.table_count}.</b> {esc(caption)}", "tcaption"))
+
+    def figure(self, fig, caption: str, heading: str | None = None) -> None:
+        """A matplotlib figure as an image scaled to the text width, with a numbered caption
+        (and a heading kept on the same page)."""
+        png = figures.to_png(fig, dpi=_FIG_DPI)
+        w_in, h_in = fig.get_size_inches()
+        width = _WIDTH
+        height = width * h_in / w_in
+        self.fig_count += 1
+        img = Image(io.BytesIO(png), width=width, height=height)
+        cap = self.m(f"<b>Figure {self.fig_count}.</b> {esc(caption)}", "caption")
+        head = [self.p(heading, "h3")] if heading else []
+        self.add(KeepTogether(head + [img, cap]))
+
+
+def _verdict_cell(verdict: str) -> str:
+    """Verdict as mark and word, e.g. ``"✗ FAIL"``."""
+    if verdict == NOT_ASSESSED:
+        return "no limits applied"
+    mark = VERDICT_MARK.get(verdict, "")
+    word = VERDICT_WORD.get(verdict, verdict.upper())
+    return f"{mark} {word}".strip()
+
+
+def _verdict_style(col: int, row: int, verdict: str) -> list:
+    """Table style commands that reinforce (never replace) a verdict word in one cell."""
+    if verdict == "fail":
+        return [("BACKGROUND", (col, row), (col, row), colors.HexColor("#2b2b2b")),
+                ("TEXTCOLOR", (col, row), (col, row), colors.white)]
+    if verdict == "inconclusive":
+        return [("BACKGROUND", (col, row), (col, row), colors.HexColor("#d0d0d0"))]
+    return []
+
+
+def _verdict_para(b: _Builder, verdict: str) -> Paragraph:
+    word = esc(_verdict_cell(verdict))
+    if verdict == "fail":
+        return b.m(f'<font color="white"><b>{word}</b></font>', "cell")
+    if verdict in ("pass", "inconclusive"):
+        return b.m(f"<b>{word}</b>", "cell")
+    return b.m(word, "cell")
+
+
+def _channel_sort_key(result, name):
+    try:
+        c = result.channels[result.channel_index(name)]
+        return (_PHASE_ORDER.get(c.phase, 9), name)
+    except KeyError:
+        return (9, name)
+
+
+def _channel_label(result, name) -> str:
+    try:
+        c = result.channels[result.channel_index(name)]
+    except KeyError:
+        return name
+    return f"{c.phase} ({c.name})" if c.phase else c.name
+
+
+def _check_item(chk) -> str:
+    """Short name of what a check compares, e.g. ``"I11"`` or ``"TDD"``."""
+    return chk.label
+
+
+def _limit_text(chk) -> str:
+    s = fmt(chk.limit, 4)
+    return s + (" \u2020" if getattr(chk, "verify", False) else "")
+
+
+def _table_name(lim) -> str:
+    parts = [lim.table_id]
+    std = " ".join(x for x in (lim.standard, lim.edition) if x)
+    if std:
+        parts.append(std)
+    return " \u2013 ".join(parts)
+
+
+_BASIS_LABEL = {
+    "percent_of_fundamental": "% of fundamental",
+    "percent_of_il": "% of IL",
+    "percent_of_rated_current": "% of rated current",
+    "percent_of_iref": "% of Iref",
+    "amperes": "A",
+    "milliamperes_per_watt": "mA/W",
+}
+
+
+def _basis_label(lim, quantity: str, unit: str) -> str:
+    """Axis unit of a table's individual-order limits, e.g. ``"% of IL"`` (else ``unit``)."""
+    for item in lim.items:
+        if item.quantity == "harmonic" and item.applies_to == quantity and item.unit == unit:
+            return _BASIS_LABEL.get(item.basis, unit)
+    return unit
+
+
+def _counts(checks) -> dict:
+    out = {"pass": 0, "fail": 0, "inconclusive": 0, "not applicable": 0}
+    for c in checks:
+        out[c.verdict] = out.get(c.verdict, 0) + 1
+    return out
+
+
+def _counts_text(checks) -> str:
+    n = _counts(checks)
+    parts = [f"{n['fail']} fail", f"{n['inconclusive']} inconclusive", f"{n['pass']} pass"]
+    if n["not applicable"]:
+        parts.append(f"{n['not applicable']} not applicable")
+    return ", ".join(parts)
+
+
+def _worst(checks):
+    """The decided check with the smallest margin (None when there is none)."""
+    decided = [c for c in checks if c.margin_percent is not None
+               and c.verdict in ("pass", "fail")]
+    if not decided:
+        return None
+    return min(decided, key=lambda c: c.margin_percent)
+
+
+# ---------------------------------------------------------------------------------------------
+# Sections
+# ---------------------------------------------------------------------------------------------
+
+
+def _cover(b: _Builder) -> None:
+    job, meta, plan = b.job, b.job.meta, b.job.plan
+    st = b.st
+    b.add(Spacer(1, 8 * mm))
+    b.add(b.p("HARMONIC EMISSION TEST REPORT", "kicker"))
+    b.add(b.p(meta.title, "title"))
+    if meta.equipment:
+        b.add(b.p(meta.equipment, "subtitle"))
+    b.add(Spacer(1, 7 * mm))
+
+    verdict = job.verdict
+    all_checks = [c for r in job.runs for a in r.tables for c in a.checks]
+    if verdict == NOT_ASSESSED:
+        big, line = "NO VERDICT", ("No limit table was applied: this report presents the "
+                                   "analysis only. Give --limits (or [[limits]] in a test plan) "
+                                   "for a compliance verdict.")
+    else:
+        big = f"{VERDICT_MARK.get(verdict, '')}  {VERDICT_WORD.get(verdict, verdict.upper())}"
+        meaning = {
+            "fail": "At least one measured value exceeds its limit.",
+            "inconclusive": "No limit was exceeded, but at least one check could not be "
+                            "decided from the data.",
+            "pass": "Every applicable limit was met.",
+            "not applicable": "None of the limits applied to this case.",
+        }.get(verdict, "")
+        line = f"{meaning} Checks: {_counts_text(all_checks)}."
+    fg = "white" if verdict == "fail" else "#1a1a1a"
+    cell = [Paragraph(f'<font color="{fg}">OVERALL VERDICT</font>', st["kicker"]),
+            Paragraph(f'<font color="{fg}">{esc(big)}</font>', st["verdict"]),
+            Spacer(1, 2 * mm),
+            Paragraph(f'<font color="{fg}">{esc(line)}</font>', st["verdict_text"])]
+    box = Table([[cell]], colWidths=[_WIDTH], hAlign="LEFT")
+    box_style = [("LEFTPADDING", (0, 0), (-1, -1), 10), ("RIGHTPADDING", (0, 0), (-1, -1), 10),
+                 ("TOPPADDING", (0, 0), (-1, -1), 8), ("BOTTOMPADDING", (0, 0), (-1, -1), 10)]
+    if verdict == "fail":
+        box_style += [("BACKGROUND", (0, 0), (-1, -1), colors.HexColor("#2b2b2b"))]
+    elif verdict == "inconclusive":
+        box_style += [("BACKGROUND", (0, 0), (-1, -1), colors.HexColor("#d9d9d9")),
+                      ("BOX", (0, 0), (-1, -1), 1.5, INK)]
+    else:
+        box_style += [("BOX", (0, 0), (-1, -1), 2.0, INK)]
+    box.setStyle(TableStyle(box_style))
+    b.add(box, Spacer(1, 7 * mm))
+
+    eq = plan.equipment if plan is not None else None
+    pairs = []
+    pairs.append(("Equipment under test", meta.equipment or (eq.name if eq else "") or
+                  "not stated"))
+    if eq is not None:
+        ident = ", ".join(f"{k} {v}" for k, v in (("model", eq.model), ("serial", eq.serial),
+                                                   ("manufacturer", eq.manufacturer),
+                                                   ("firmware", eq.firmware)) if v)
+        if ident:
+            pairs.append(("Identification", ident))
+        ratings = ", ".join(x for x in (
+            fmt(eq.rated_power_w / 1e3, 4, "kW") if eq.rated_power_w else "",
+            fmt(eq.rated_apparent_power_va / 1e3, 4, "kVA") if eq.rated_apparent_power_va
+            else "",
+            fmt(eq.rated_current_a, 4, "A per phase") if eq.rated_current_a else "",
+            fmt(eq.rated_voltage_v, 4, "V") if eq.rated_voltage_v else "") if x)
+        if ratings:
+            pairs.append(("Ratings", ratings))
+    site_text = meta.site or (plan.site.name if plan is not None else "")
+    pairs.append(("Site", site_text or "not stated"))
+    if plan is not None and plan.site.pcc:
+        pairs.append(("Point of common coupling", plan.site.pcc))
+    if plan is not None and plan.conditions.date:
+        pairs.append(("Date of test", plan.conditions.date))
+    pairs.append(("Time of analysis", meta.created_utc.astimezone(timezone.utc)
+                  .strftime("%Y-%m-%d %H:%M:%S UTC")))
+    pairs.append(("Operator", meta.operator or "not stated"))
+    runs_text = "; ".join(
+        f"{r.id}" + (f" ({r.load_point})" if r.load_point else "") for r in job.runs)
+    pairs.append((f"Captures ({len(job.runs)})", runs_text))
+    tables = job.limit_tables()
+    pairs.append(("Limit tables", "; ".join(f"{_table_name(t)}: {t.title}" for t in tables)
+                  if tables else "none (analysis only)"))
+    pairs.append(("Report id", meta.report_id))
+    pairs.append(("Produced with", f"pqcheck {meta.tool_version}"))
+    b.add(b.kv(pairs))
+    b.add(Spacer(1, 6 * mm))
+    b.add(b.p(text.NOT_CERTIFICATION, "small"))
+    b.add(b.m("<b>Safety.</b> " + esc("The measurements behind this report involve hazardous "
+                                      "voltages. Read the cautions in section 7 before "
+                                      "repeating or extending them."), "small"))
+    b.add(PageBreak())
+
+
+def _summary(b: _Builder) -> None:
+    job = b.job
+    b.h1("1  Summary")
+    if job.assessed:
+        b.add(b.p(text.VERDICT_MEANING, "body"))
+        b.h3("1.1  Verdict per capture and limit table")
+        rows = [["Capture", "Load point", "Limit table", "Verdict", "Checks",
+                 "Smallest margin"]]
+        extra = []
+        for r in job.runs:
+            if not r.tables:
+                rows.append([r.id, r.load_point or "\u2013", "none", "no limits applied",
+                             "\u2013", "\u2013"])
+                continue
+            for a in r.tables:
+                worst = _worst(a.checks)
+                wtxt = "\u2013" if worst is None else (
+                    f"{fmt_pct(worst.margin_percent)} ({_check_item(worst)}, "
+                    f"{_channel_label(r.result, worst.channel) if worst.channel else 'all'})")
+                rows.append([r.id, r.load_point or "\u2013", a.limits.table_id,
+                             _verdict_para(b, a.verdict), _counts_text(a.checks), wtxt])
+                extra += _verdict_style(3, len(rows) - 1, a.verdict)
+        b.add(b.table(rows, [0.14, 0.10, 0.16, 0.15, 0.25, 0.20], extra_style=extra))
+        b.add(b.p("Margin = (limit \u2212 measured) / limit; a negative margin means the limit "
+                  "is exceeded. Smallest margin over the decided checks.", "caption"))
+    else:
+        b.add(b.p("No limit table was applied, so this report carries no compliance verdict. "
+                  "It records the analysis of each capture: harmonic spectra, distortion, power "
+                  "quantities and data-quality findings.", "body"))
+
+    if len(job.runs) > 1 or job.plan is not None:
+        b.h3("1.2  Load points")
+        rows = [["Load point", "Capture", "P total", "Current THD per phase",
+                 "TDD per phase", "PF", "Verdict"]]
+        extra = []
+        runs = sorted(job.runs, key=lambda r: (r.load_percent is None, r.load_percent or 0))
+        for r in runs:
+            res = r.result
+            cur = sorted(res.channels_of("current"), key=lambda c: _PHASE_ORDER.get(c.phase, 9))
+            cur = [c for c in cur if c.phase != "n"]
+            thd = " / ".join(fmt(c.thd_percent, 3) for c in cur) + " %" if cur else "\u2013"
+            tdd = (" / ".join(fmt(c.tdd_percent, 3) for c in cur) + " %"
+                   if cur and any(c.tdd_percent is not None for c in cur) else "\u2013")
+            p = res.power
+            rows.append([r.load_point or "\u2013", r.id,
+                         fmt(p.p_w / 1e3, 4, "kW") if p is not None else "\u2013",
+                         thd, tdd, fmt(p.pf, 3) if p is not None else "\u2013",
+                         _verdict_para(b, r.verdict)])
+            extra += _verdict_style(6, len(rows) - 1, r.verdict)
+        b.add(b.table(rows, [0.11, 0.15, 0.11, 0.2, 0.18, 0.07, 0.18], right=(2, 5),
+                      extra_style=extra))
+        b.add(b.p("P total: active power over the capture (negative = export). THD and TDD: "
+                  "capture values per phase a / b / c. PF: total power factor (IEEE 1459).",
+                  "caption"))
+
+    if job.assessed:
+        bad = []
+        for r in job.runs:
+            for a in r.tables:
+                for c in a.checks:
+                    if c.verdict in ("fail", "inconclusive"):
+                        bad.append((r, a, c))
+        b.h3("1.3  Checks that did not pass")
+        if not bad:
+            b.add(b.p("None: every applicable check passed.", "body"))
+        else:
+            bad.sort(key=lambda t: (t[2].verdict != "fail",
+                                    t[2].margin_percent if t[2].margin_percent is not None
+                                    else 0.0))
+            rows = [["Capture", "Table", "Item", "Phase", "Measured", "Limit", "Unit", "Margin",
+                     "Verdict"]]
+            extra = []
+            for r, a, c in bad[:_MAX_LISTED]:
+                rows.append([r.id, a.limits.table_id, _check_item(c),
+                             _channel_label(r.result, c.channel) if c.channel else "all",
+                             fmt(c.measured, 4), _limit_text(c), c.unit,
+                             fmt_pct(c.margin_percent), _verdict_para(b, c.verdict)])
+                extra += _verdict_style(8, len(rows) - 1, c.verdict)
+            b.add(b.table(rows, [0.13, 0.13, 0.1, 0.1, 0.1, 0.1, 0.07, 0.1, 0.17],
+                          right=(4, 5, 7), extra_style=extra))
+            more = len(bad) - _MAX_LISTED
+            note = ("Failing checks first, smallest margin first. Section 3 explains the "
+                    "data-quality findings behind inconclusive checks.")
+            if more > 0:
+                note += f" {more} more are listed in the full tables of section 2."
+            b.add(b.p(note, "caption"))
+        if any(getattr(c, "verify", False) for r in job.runs for a in r.tables
+               for c in a.checks):
+            b.add(b.m("<b>\u2020 Verify against your copy.</b> " + esc(
+                "Limits marked \u2020 come from values that pqcheck could not confirm against "
+                "the text of the standard. Check them against your licensed copy before "
+                "relying on a verdict that depends on them."), "small"))
+
+
+def _capture_facts(b: _Builder, run) -> None:
+    res, cap = run.result, run.capture
+    w = res.windows
+    cur = ", ".join(c.name for c in sorted(res.channels_of("current"),
+                                           key=lambda c: _PHASE_ORDER.get(c.phase, 9)))
+    vol = ", ".join(c.name for c in sorted(res.channels_of("voltage"),
+                                           key=lambda c: _PHASE_ORDER.get(c.phase, 9)))
+    pairs = [
+        ("File", res.source),
+        ("SHA-256", b.m(esc(res.sha256 or "not available (in-memory capture)"), "mono")),
+        ("Recording", f"{res.fs_hz:g} Hz sample rate, {fmt(res.duration_s, 4, 's')}, "
+                      f"{res.n_samples} samples per channel ({cap.provenance.reader} reader)"),
+        ("Channels", f"currents: {cur or 'none'}; voltages: {vol or 'none'}"),
+        ("Windows", f"{int(w.valid.sum())} valid of {w.n_windows} windows of "
+                    f"{res.settings.cycles_per_window} cycles ({fmt(res.analysed_s, 4, 's')} "
+                    "analysed)"),
+        ("Fundamental", f"{fmt(res.fundamental_hz, 6, 'Hz')} mean "
+                        f"({fmt(res.freq_min_hz, 6)} to {fmt(res.freq_max_hz, 6, 'Hz')})"),
+    ]
+    if run.load_point:
+        pairs.insert(0, ("Load point", run.load_point))
+    if run.notes:
+        pairs.append(("Notes", run.notes))
+    b.add(b.kv(pairs, key_width=0.18))
+
+
+def _assessment_block(b: _Builder, run, a) -> None:
+    res = run.result
+    lim = a.limits
+    b.h3(f"Against {_table_name(lim)}: {lim.title}")
+    sel = ", ".join(f"{k} = {v:.6g}" if isinstance(v, float) else f"{k} = {v}"
+                    for k, v in lim.selectors) or "none"
+    pairs = [("Verdict", _verdict_para(b, a.verdict)),
+             ("Checks", _counts_text(a.checks)),
+             ("Row selection", f"{sel}" + (f"; {'; '.join(lim.rows)}" if lim.rows else "")),
+             ("Compared quantity", f"IEC 61000-4-7 harmonic {lim.measure}s, orders up to "
+                                   f"{lim.max_order}")]
+    for note in getattr(a, "notes", ()) or ():
+        pairs.append(("Note", note))
+    kv = b.kv(pairs, key_width=0.18)
+    kv.setStyle(TableStyle(_verdict_style(1, 0, a.verdict)))
+    b.add(kv, Spacer(1, 2 * mm))
+
+    checks = list(a.checks)
+    totals = [c for c in checks if c.quantity != "harmonic"]
+    if totals:
+        stats = {c.statistic for c in totals}
+        one_stat = len(stats) == 1
+        head = ["Quantity", "Phase"] + ([] if one_stat else ["Statistic"]) + [
+            "Measured", "Limit", "Unit", "Margin", "Verdict", "Clause"]
+        rows = [head]
+        extra = []
+        for c in sorted(totals, key=lambda c: (c.quantity, _channel_sort_key(res, c.channel)
+                                                if c.channel else (0, ""))):
+            rows.append([c.label, _channel_label(res, c.channel) if c.channel else "all"]
+                        + ([] if one_stat else [c.statistic])
+                        + [fmt(c.measured, 4), _limit_text(c), c.unit,
+                           fmt_pct(c.margin_percent), _verdict_para(b, c.verdict), c.clause])
+            extra += _verdict_style(len(head) - 2, len(rows) - 1, c.verdict)
+        cap = f"{run.id}: totals against {lim.table_id}"
+        cap += f" ({next(iter(stats))})." if one_stat else "."
+        b.tcaption(cap)
+        if one_stat:
+            widths = [0.1, 0.12, 0.12, 0.1, 0.07, 0.11, 0.18, 0.2]
+            right = (2, 3, 5)
+        else:
+            widths = [0.09, 0.09, 0.18, 0.1, 0.09, 0.05, 0.09, 0.15, 0.16]
+            right = (3, 4, 6)
+        b.add(b.table(rows, widths, right=right, extra_style=extra))
+
+    harm = [c for c in checks if c.quantity == "harmonic" and c.order is not None]
+    groups: dict = {}
+    for c in harm:
+        key = (c.applies_to, c.statistic, c.unit)
+        groups.setdefault(key, []).append(c)
+    for (quantity, statistic, unit), group in groups.items():
+        what = "current" if quantity == "current" else "voltage" if quantity == "voltage" \
+            else "harmonic"
+        unit_label = _basis_label(lim, quantity, unit)
+        data = figures.spectrum_from_checks(
+            res, group, title=f"{run.id}: {what} harmonics against {lim.table_id}",
+            unit_label=unit_label)
+        if data is not None:
+            b.figure(figures.plot_spectrum(data),
+                     f"{run.id}: {what} harmonics per phase ({statistic}) against "
+                     f"{lim.table_id} limits (black bars across each order) in {unit_label}. "
+                     "Orders "
+                     "over their limit are filled black and marked \u2715 with their order "
+                     "number; inconclusive orders are hatched and marked ?.")
+        _harmonic_table(b, run, lim, group, what, statistic, unit)
+    notes: dict = {}
+    for c in checks:
+        if getattr(c, "note", ""):
+            notes.setdefault(c.note, []).append(_check_item(c))
+    if notes:
+        b.add(b.p("Notes on individual checks", "h3"))
+        for note, items in notes.items():
+            uniq = list(dict.fromkeys(items))
+            shown = ", ".join(uniq[:12]) + (", \u2026" if len(uniq) > 12 else "")
+            b.add(b.m(f"\u2022 {esc(note)} <font color='#5b6670'>({esc(shown)})</font>",
+                      "small"))
+
+
+def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit) -> None:
+    res = run.result
+    chans = sorted({c.channel for c in group}, key=lambda n: _channel_sort_key(res, n))
+    rows_by_key: dict = {}
+    for c in group:
+        key = (c.order, c.limit, getattr(c, "verify", False))
+        rows_by_key.setdefault(key, {})[c.channel] = c
+    head = ["Order", f"Limit [{unit}]"]
+    for ch in chans:
+        lbl = _channel_label(res, ch)
+        head += [f"{lbl} measured", "margin"]
+    head.append("Verdict")
+    rows = [head]
+    extra = []
+    rank = {"fail": 3, "inconclusive": 2, "pass": 1, "not applicable": 0}
+    for key in sorted(rows_by_key, key=lambda k: (k[0], k[1] if k[1] is not None else 0)):
+        order = key[0]
+        cells = rows_by_key[key]
+        any_chk = next(iter(cells.values()))
+        row = [str(order), _limit_text(any_chk)]
+        worst = None
+        for ch in chans:
+            c = cells.get(ch)
+            if c is None:
+                row += ["", ""]
+                continue
+            mark = {"fail": " \u2717", "inconclusive": " ?"}.get(c.verdict, "")
+            row += [fmt(c.measured, 3) + mark, fmt_pct(c.margin_percent)]
+            if worst is None or rank.get(c.verdict, 2) > rank.get(worst, 2):
+                worst = c.verdict
+        row.append(_verdict_para(b, worst or ""))
+        rows.append(row)
+        extra += _verdict_style(len(row) - 1, len(rows) - 1, worst or "")
+    n = len(chans)
+    rest = 1.0 - 0.07 - 0.11 - 0.17
+    widths = [0.07, 0.11] + [rest / (2 * n) * 1.1, rest / (2 * n) * 0.9] * n + [0.17]
+    b.tcaption(f"{run.id}: individual {what} harmonics against {lim.table_id} "
+               f"({statistic}), every order assessed. \u2717 over the limit, ? inconclusive, "
+               "\u2020 verify the limit against your copy. Verdict: the worst over the phases.")
+    b.add(b.table(rows, widths, right=tuple(range(1, 2 + 2 * n)), extra_style=extra))
+
+
+def _analysis_tables(b: _Builder, run, harmonics) -> None:
+    """Harmonic table of an analysis without limits: % of fundamental per channel."""
+    res = run.result
+    chans = [c for c in sorted(res.channels, key=lambda c: (c.quantity != "current",
+                                                             _PHASE_ORDER.get(c.phase, 9)))]
+    head = ["Order"] + [f"{c.name} [%]" for c in chans]
+    rows = [head]
+    pct = {}
+    for c in chans:
+        sub = harmonics[harmonics["channel"] == c.name]
+        pct[c.name] = dict(zip(sub["order"].tolist(), sub["percent_of_fundamental"].tolist()))
+    for h in range(1, res.max_resolved_order + 1):
+        rows.append([str(h)] + [fmt(pct[c.name].get(h), 3) for c in chans])
+    n = len(chans)
+    widths = [0.08] + [0.92 / n] * n
+    b.tcaption(f"{run.id}: harmonic components in % of each channel's fundamental (rms over "
+               "the capture); order 1 is 100 % by definition.")
+    b.add(b.table(rows, widths, right=tuple(range(1, n + 1))))
+
+
+def _channels_and_power(b: _Builder, run) -> None:
+    res = run.result
+    chans = sorted(res.channels, key=lambda c: (c.quantity != "current",
+                                                 _PHASE_ORDER.get(c.phase, 9)))
+    rows = [["Channel", "Phase", "rms", "Fundamental", "THD", "THD group", "TDD", "PWHD",
+             "Crest factor", "DC"]]
+    for c in chans:
+        rows.append([c.name, c.phase or "1ph", fmt(c.rms, 4, c.unit),
+                     fmt(c.fundamental_rms, 4, c.unit), fmt(c.thd_percent, 3, "%"),
+                     fmt(c.thd_group_percent, 3, "%"),
+                     fmt(c.tdd_percent, 3, "%") if c.tdd_percent is not None else "\u2013",
+                     fmt(c.pwhd_percent, 3, "%"), fmt(c.crest_factor, 3),
+                     fmt(c.dc, 3, c.unit)])
+    il = res.settings.il_a
+    b.tcaption(f"{run.id}: channel values over the capture. THD over orders 2 to "
+               f"{res.max_resolved_order}; TDD relative to IL = "
+               f"{fmt(il, 5, 'A') if il else 'not given'}; PWHD over orders 14 to 40 (groups).")
+    b.add(b.table(rows, [0.09, 0.07, 0.1, 0.13, 0.09, 0.09, 0.09, 0.1, 0.09, 0.15],
+                  right=tuple(range(2, 10))))
+    p = res.power
+    if p is None:
+        b.add(b.p("Power quantities: not available (the capture lacks matching voltage and "
+                  "current channels).", "small"))
+        return
+    rows = [["Phase", "P", "S", "P1", "Q1", "S1", "PF", "DPF"]]
+    for ph in p.phases:
+        rows.append([f"{ph.phase or '1ph'} ({ph.voltage} \u00d7 {ph.current})",
+                     fmt(ph.p_w / 1e3, 4, "kW"), fmt(ph.s_va / 1e3, 4, "kVA"),
+                     fmt(ph.p1_w / 1e3, 4, "kW"), fmt(ph.q1_var / 1e3, 4, "kvar"),
+                     fmt(ph.s1_va / 1e3, 4, "kVA"), fmt(ph.pf, 4), fmt(ph.dpf, 4)])
+    total = ["total", fmt(p.p_w / 1e3, 4, "kW"),
+             fmt(p.se_va / 1e3, 4, "kVA") + (" (Se)" if p.wiring else "")
+             if p.se_va is not None else "\u2013", "", "", "", fmt(p.pf, 4), ""]
+    if "dpf_pos" in p.extra:
+        total[7] = fmt(p.extra["dpf_pos"], 4) + " (+seq)"
+    if "p1pos_w" in p.extra:
+        total[3] = fmt(p.extra["p1pos_w"] / 1e3, 4, "kW") + " (+seq)"
+    if "q1pos_var" in p.extra:
+        total[4] = fmt(p.extra["q1pos_var"] / 1e3, 4, "kvar") + " (+seq)"
+    rows.append(total)
+    cap = (f"{run.id}: power quantities (IEEE 1459; negative P = export; negative PF and DPF "
+           "when exporting; +seq: positive-sequence fundamental quantities).")
+    if p.wiring:
+        cap += f" Three-phase {p.wiring} connection ({res.settings.wiring_source})."
+    if "i_unbalance_percent" in p.extra:
+        cap += (f" Current unbalance I2/I1 {fmt(p.extra['i_unbalance_percent'], 3, '%')}, "
+                f"voltage unbalance {fmt(p.extra.get('v_unbalance_percent'), 3, '%')}.")
+    b.tcaption(cap)
+    b.add(b.table(rows, [0.22, 0.1, 0.13, 0.11, 0.12, 0.1, 0.1, 0.12],
+                  right=tuple(range(1, 8)),
+                  extra_style=[("LINEABOVE", (0, len(rows) - 1), (-1, len(rows) - 1), 0.6,
+                                INK)]))
+
+
+def _per_capture(b: _Builder) -> None:
+    from ..export import harmonics_frame, windows_frame
+
+    job = b.job
+    b.add(PageBreak())
+    b.h1("2  Results per capture")
+    for k, run in enumerate(job.runs, start=1):
+        if k > 1:
+            b.add(PageBreak())
+        title = f"2.{k}  {run.id}"
+        if run.load_point:
+            title += f" \u2013 load point {run.load_point}"
+        b.h2(title)
+        _capture_facts(b, run)
+        for a in run.tables:
+            _assessment_block(b, run, a)
+        if not run.assessments:
+            harm = harmonics_frame(run.result)
+            for quantity in ("current", "voltage"):
+                data = figures.spectrum_from_result(run.result, quantity, harmonics=harm)
+                if data is not None:
+                    b.figure(figures.plot_spectrum(data),
+                             f"{run.id}: {quantity} harmonics per phase in % of the "
+                             "fundamental (no limit table applied).")
+            _analysis_tables(b, run, harm)
+        b.figure(figures.plot_waveforms(figures.waveform_data(run.capture, run.result)),
+                 f"{run.id}: three cycles of the recorded voltages and currents, from the "
+                 "start of the first valid analysis window (raw samples).",
+                 heading="Waveforms and distortion over time")
+        b.figure(figures.plot_trend(figures.trend_data(run.result,
+                                                       windows=windows_frame(run.result))),
+                 f"{run.id}: THD of each channel per {run.result.settings.cycles_per_window}-"
+                 "cycle window across the capture (gaps: invalid windows).")
+        b.h3("Channel values and power quantities")
+        _channels_and_power(b, run)
+
+
+def _findings(b: _Builder) -> None:
+    b.add(PageBreak())
+    b.h1("3  Data quality")
+    b.add(b.p("Findings are problems in a capture that the results carry rather than hide. "
+              "An error-level finding makes every check of the quantities it concerns "
+              "inconclusive; warnings ask for a reviewer's attention; information notes say "
+              "what pqcheck did (for example detect the nominal frequency).", "body"))
+    for run in b.job.runs:
+        fs = run.result.findings
+        b.h3(f"Capture {run.id}")
+        if not fs:
+            b.add(b.p("No findings.", "small"))
+            continue
+        order = {"error": 0, "warning": 1, "info": 2}
+        rows = [["Severity", "Finding", "Channels", "What it means and what to do"]]
+        extra = []
+        for f in sorted(fs, key=lambda f: order.get(f.severity, 3)):
+            sev = {"error": "\u2717 ERROR", "warning": "! warning", "info": "i info"}.get(
+                f.severity, f.severity)
+            sev_cell = (b.m(f'<font color="white"><b>{esc(sev)}</b></font>', "cell")
+                        if f.severity == "error" else sev)
+            rows.append([sev_cell, f.code, ", ".join(f.channels) or "all", f.message])
+            if f.severity == "error":
+                extra += _verdict_style(0, len(rows) - 1, "fail")
+        b.add(b.table(rows, [0.11, 0.16, 0.13, 0.6], extra_style=extra))
+
+
+def _method(b: _Builder) -> None:
+    job = b.job
+    b.h1("4  Method and settings")
+    first = job.runs[0].result.settings
+    b.add(b.p(first.method + ".", "body"))
+    b.add(b.p(text.AGGREGATION, "body"))
+    rows = [["Capture", "Nominal", "Window", "Synchronised to", "Measured frequency",
+             "Orders", "Wiring", "IL"]]
+    for r in job.runs:
+        s, res = r.result.settings, r.result
+        rows.append([
+            r.id, f"{fmt(s.nominal_hz, 3, 'Hz')} ({s.nominal_source})",
+            f"{s.cycles_per_window} cycles",
+            f"fundamental of {s.reference}",
+            f"{fmt(res.fundamental_hz, 6, 'Hz')} ({fmt(res.freq_min_hz, 6)} to "
+            f"{fmt(res.freq_max_hz, 6)})",
+            f"2 to {res.max_resolved_order}" + (f" (asked {s.max_order})"
+                                               if res.max_resolved_order < s.max_order else ""),
+            f"{s.wiring} ({s.wiring_source})" if s.wiring else "\u2013",
+            fmt(s.il_a, 5, "A") if s.il_a else "\u2013"])
+    b.add(b.table(rows, [0.14, 0.12, 0.09, 0.15, 0.2, 0.1, 0.12, 0.08]))
+    b.add(b.p("Settings as the analysis ran (user = given; detected/inferred = determined "
+              "from the data).", "caption"))
+    b.h3("Standards and editions")
+    rows = [["Document", "Used for"]]
+    for name, use in text.STANDARDS_METHOD:
+        rows.append([name, use])
+    for lim in job.limit_tables():
+        use = f"limits: {lim.title}"
+        ev = getattr(lim, "evaluation", None)
+        note = getattr(ev, "note", "") if ev is not None else ""
+        if note:
+            use += f". Evaluation: {note}"
+        rows.append([" ".join(x for x in (lim.standard, lim.edition) if x) or lim.table_id,
+                     use])
+    b.add(b.table(rows, [0.25, 0.75]))
+
+
+def _uncertainty(b: _Builder) -> None:
+    job = b.job
+    b.h1("5  Measurement uncertainty")
+    plan = job.plan
+    instruments = plan.conditions.instruments if plan is not None else ()
+    if instruments:
+        b.add(b.p("Instrument chain as recorded in the test plan:", "body"))
+        rows = [["Element", "Model / serial", "Channels", "Ratio / range", "Band\u00adwidth",
+                 "Accuracy", "Category", "Calibration due"]]
+        for ins in instruments:
+            rows.append([
+                ins.role, " / ".join(x for x in (ins.model, ins.serial) if x),
+                ", ".join(ins.channels),
+                " / ".join(x for x in (ins.ratio, ins.range) if x),
+                fmt(ins.bandwidth_hz, 4, "Hz") if ins.bandwidth_hz else "\u2013",
+                ins.accuracy, ins.measurement_category, ins.calibration_due])
+        b.add(b.table(rows, [0.11, 0.17, 0.12, 0.14, 0.09, 0.14, 0.11, 0.12]))
+        if plan.conditions.ambient_c is not None or plan.conditions.supply:
+            b.add(b.p("Conditions: " + "; ".join(x for x in (
+                f"ambient {fmt(plan.conditions.ambient_c, 3)} \u00b0C"
+                if plan.conditions.ambient_c is not None else "",
+                f"supply: {plan.conditions.supply}" if plan.conditions.supply else "") if x)
+                + ".", "small"))
+    else:
+        b.add(b.p(text.UNCERTAINTY_NO_CHAIN, "body"))
+    b.add(b.p(text.UNCERTAINTY_METHOD, "body"))
+    if job.assessed:
+        pct = text.CLOSE_MARGIN_PERCENT
+        close = [(r, a, c) for r in job.runs for a in r.tables for c in a.checks
+                 if c.margin_percent is not None and c.verdict in ("pass", "fail")
+                 and abs(c.margin_percent) <= pct]
+        b.add(b.p(text.UNCERTAINTY_CLOSE.format(pct=pct), "body"))
+        if not close:
+            b.add(b.p("None.", "small"))
+        else:
+            rows = [["Capture", "Table", "Item", "Phase", "Measured", "Limit", "Margin",
+                     "Verdict"]]
+            extra = []
+            for r, a, c in sorted(close, key=lambda t: abs(t[2].margin_percent))[:_MAX_LISTED]:
+                rows.append([r.id, a.limits.table_id, _check_item(c),
+                             _channel_label(r.result, c.channel) if c.channel else "all",
+                             fmt(c.measured, 4, c.unit), _limit_text(c) + f" {c.unit}",
+                             fmt_pct(c.margin_percent), _verdict_para(b, c.verdict)])
+                extra += _verdict_style(7, len(rows) - 1, c.verdict)
+            b.add(b.table(rows, [0.14, 0.14, 0.1, 0.11, 0.13, 0.13, 0.1, 0.15],
+                          right=(4, 5, 6), extra_style=extra))
+
+
+def _traceability(b: _Builder) -> None:
+    job, meta = b.job, b.job.meta
+    b.h1("6  Traceability")
+    b.add(b.p("SHA-256 digests of every file this report rests on. Recompute them (for "
+              "example with sha256sum) to confirm that an archived file is the one analysed.",
+              "body"))
+    rows = [["Item", "File", "SHA-256"]]
+    if job.plan is not None:
+        rows.append(["test plan", str(job.plan.path), b.m(esc(job.plan.sha256), "mono")])
+    for r in job.runs:
+        rows.append([f"capture {r.id}", r.result.source,
+                     b.m(esc(r.result.sha256 or "in memory"), "mono")])
+    for lim in job.limit_tables():
+        rows.append([f"limit table {lim.table_id}", lim.source or "bundled",
+                     b.m(esc(lim.sha256 or "\u2013"), "mono")])
+    digest = hashlib.sha256(b.results_json).hexdigest()
+    rows.append([f"results ({ATTACHMENT_NAME}, attached to this PDF)", ATTACHMENT_NAME,
+                 b.m(esc(digest), "mono")])
+    b.add(b.table(rows, [0.2, 0.33, 0.47]))
+    import numpy
+    import scipy
+
+    pairs = [("Report id", meta.report_id),
+             ("Time of analysis", meta.created_utc.astimezone(timezone.utc)
+              .strftime("%Y-%m-%d %H:%M:%S UTC")),
+             ("Tool", f"pqcheck {meta.tool_version} (Python {platform.python_version()}, "
+                      f"numpy {numpy.__version__}, scipy {scipy.__version__})")]
+    if meta.command:
+        pairs.append(("Command", b.m(esc(meta.command), "mono")))
+    pairs.append(("Results data", f"The file {ATTACHMENT_NAME} attached to this PDF holds "
+                                  "every number of this report in machine-readable form "
+                                  "(open the attachments panel of your PDF reader)."))
+    b.add(Spacer(1, 2 * mm), b.kv(pairs, key_width=0.18))
+
+
+def _safety(b: _Builder) -> None:
+    b.h1("7  Safety, limitations and standing of this report")
+    b.h3("Safety cautions")
+    for line in text.SAFETY_CAUTIONS:
+        head, sep, rest = line.partition(". ")
+        if sep:
+            b.add(b.m(f"<b>{esc(head)}.</b> {esc(rest)}", "bullet"))
+        else:
+            b.add(b.m(f"<b>{esc(line)}</b>", "bullet"))
+    b.h3("Codes, the utility and the responsible engineer")
+    b.add(b.p(text.DEFERENCE, "body"))
+    b.h3("Not a certification")
+    b.add(b.p(text.NOT_CERTIFICATION, "body"))
+    notes = []
+    for lim in b.job.limit_tables():
+        for n in lim.notes:
+            notes.append((lim.table_id, n))
+    if notes:
+        b.h3("Notes of the limit tables applied")
+        for tid, n in notes:
+            b.add(b.m(f"\u2022 <b>{esc(tid)}:</b> {esc(n)}", "small"))
+
+
+def _signoff(b: _Builder) -> None:
+    st = b.st
+    block = [Paragraph("8  Sign-off", st["h1"]),
+             Paragraph(esc("By signing, each person confirms the part of the work named. The "
+                           "reviewer and approver confirm that the limit tables and their "
+                           "row selection fit the installation, that the data-quality "
+                           "findings have been considered, and that the verdict follows from "
+                           "the results."), st["body"]),
+             Spacer(1, 3 * mm)]
+    rows = [[Paragraph("Role", st["cell_head"]), Paragraph("Name", st["cell_head"]),
+             Paragraph("Date", st["cell_head"]), Paragraph("Signature", st["cell_head"])]]
+    for role, what in (("Prepared by", "measurement and analysis"),
+                       ("Reviewed by", "independent technical review"),
+                       ("Approved by", "release of the report")):
+        rows.append([Paragraph(f"<b>{role}</b><br/><font size='6.5' color='#5b6670'>"
+                               f"{what}</font>", st["cell"]), "", "", ""])
+    t = Table(rows, colWidths=[0.22 * _WIDTH, 0.32 * _WIDTH, 0.16 * _WIDTH, 0.30 * _WIDTH],
+              rowHeights=[None] + [17 * mm] * 3, hAlign="LEFT")
+    t.setStyle(TableStyle([
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("BACKGROUND", (0, 0), (-1, 0), SHADE_DARK),
+        ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT),
+        ("GRID", (0, 1), (-1, -1), 0.5, RULE),
+        ("BOX", (0, 0), (-1, -1), 0.8, INK),
+    ]))
+    block.append(t)
+    if b.job.meta.operator:
+        block.append(Spacer(1, 2 * mm))
+        block.append(Paragraph(esc(f"Operator recorded for the measurements: "
+                                   f"{b.job.meta.operator}"), st["small"]))
+    block.append(Spacer(1, 2 * mm))
+    block.append(Paragraph(esc(f"Report {b.job.meta.report_id}. Write names in capitals; "
+                               "date as YYYY-MM-DD."), st["muted"]))
+    b.add(CondPageBreak(90 * mm), KeepTogether(block))
+
+
+# ---------------------------------------------------------------------------------------------
+# Entry point
+# ---------------------------------------------------------------------------------------------
+
+
+def render_pdf(job, *, results_json: bytes) -> bytes:
+    """Render the report of ``job`` to PDF bytes.
+
+    Parameters
+    ----------
+    job : ReportJob
+        Captures, results, assessments and metadata.
+    results_json : bytes
+        The results JSON (what ``--json`` writes), embedded as ``results.json``.
+
+    Returns
+    -------
+    bytes
+        The PDF document.
+    """
+    register_fonts()
+    b = _Builder(job, results_json)
+    _cover(b)
+    _summary(b)
+    _per_capture(b)
+    _findings(b)
+    _method(b)
+    _uncertainty(b)
+    _traceability(b)
+    _safety(b)
+    _signoff(b)
+
+    meta = job.meta
+    verdict = job.verdict
+    right = ("Overall verdict: " + _verdict_cell(verdict)) if verdict != NOT_ASSESSED \
+        else "Analysis only: no verdict"
+    left = meta.title + (f" \u2013 {meta.equipment}" if meta.equipment else "")
+    buf = io.BytesIO()
+    doc = SimpleDocTemplate(
+        buf, pagesize=PAGE_SIZE, leftMargin=_MARGIN, rightMargin=_MARGIN,
+        topMargin=17 * mm, bottomMargin=18 * mm, title=f"{meta.title} ({meta.report_id})",
+        author=meta.operator or "", subject=meta.equipment or "harmonic emission test",
+        creator=f"pqcheck {meta.tool_version}", keywords=meta.report_id)
+    maker = functools.partial(_ReportCanvas, report_id=meta.report_id, header_left=left,
+                              header_right=right, attachment=results_json)
+    doc.build(b.story, canvasmaker=maker)
+    return buf.getvalue()

@@ -1,0 +1,193 @@
+"""Results export of a report: one JSON document and tidy CSV tables.
+
+The JSON is what ``--json`` writes and what the PDF carries as its ``results.json``
+attachment (the same bytes). The CSV tables (``--csv DIR``) are tidy: one row per
+observation, one column per variable, a ``capture`` column wherever several captures are
+stacked. Both are formatted from the result objects through :mod:`pqcheck.export` and the
+assessment's own dict form; nothing is recomputed.
+"""
+
+from __future__ import annotations
+
+import json
+from datetime import timezone
+
+from .. import __version__
+from ..export import analysis_to_dict, clean, harmonics_frame, windows_frame
+from .atomic import check_target, write_atomic
+
+__all__ = ["SCHEMA_VERSION", "CSV_TABLES", "job_to_dict", "job_json", "job_frames",
+           "check_csv_targets", "write_csv_dir"]
+
+SCHEMA_VERSION = 1
+
+CSV_TABLES = ("captures", "channels", "harmonics", "windows", "power", "findings", "checks")
+"""Names of the CSV files written by :func:`write_csv_dir` (``<name>.csv``)."""
+
+
+def job_to_dict(job) -> dict:
+    """JSON-ready form of a report job.
+
+    Keys: ``tool``, ``report`` (id, title, equipment, site, operator, time of analysis),
+    ``plan`` (path and SHA-256, or null), ``verdict`` (overall), ``limit_tables`` (id, title,
+    standard, edition, source, SHA-256) and ``captures``: per capture its ``id``,
+    ``load_point``, ``load_percent``, ``verdict``, ``analysis`` (:func:`pqcheck.export.
+    analysis_to_dict`) and ``assessments`` (:meth:`pqcheck.assess.Assessment.to_dict`: each
+    with ``verdict``, ``counts``, ``checks``, ``tables`` and ``notes``).
+    """
+    meta = job.meta
+    plan = job.plan
+    return clean({
+        "tool": {"name": "pqcheck", "version": __version__, "schema": SCHEMA_VERSION},
+        "report": {
+            "id": meta.report_id,
+            "title": meta.title,
+            "equipment": meta.equipment,
+            "site": meta.site,
+            "operator": meta.operator,
+            "time_of_analysis_utc": meta.created_utc.astimezone(timezone.utc).isoformat(),
+        },
+        "plan": None if plan is None else {"path": str(plan.path), "sha256": plan.sha256,
+                                           "title": plan.title},
+        "verdict": job.verdict,
+        "limit_tables": [
+            {"id": t.table_id, "title": t.title, "standard": t.standard, "edition": t.edition,
+             "source": t.source, "sha256": t.sha256}
+            for t in job.limit_tables()
+        ],
+        "captures": [
+            {
+                "id": r.id,
+                "load_point": r.load_point,
+                "load_percent": r.load_percent,
+                "verdict": r.verdict,
+                "analysis": analysis_to_dict(r.result),
+                "assessments": [a.to_dict() for a in r.assessments],
+            }
+            for r in job.runs
+        ],
+    })
+
+
+def job_json(job) -> bytes:
+    """The results JSON as UTF-8 bytes (indented, ending with a newline)."""
+    text = json.dumps(job_to_dict(job), indent=2, ensure_ascii=False, allow_nan=False)
+    return (text + "\n").encode("utf-8")
+
+
+def job_frames(job, doc: dict | None = None) -> dict:
+    """Tidy tables of a report job, by name (see :data:`CSV_TABLES`).
+
+    Parameters
+    ----------
+    job : ReportJob
+    doc : dict or None
+        :func:`job_to_dict` of ``job`` when already computed.
+
+    Returns
+    -------
+    dict of str to pandas.DataFrame
+    """
+    import pandas as pd
+
+    doc = job_to_dict(job) if doc is None else doc
+    caps, chans, harm, wins, power, finds, checks = [], [], [], [], [], [], []
+    for run, d in zip(job.runs, doc["captures"]):
+        a = d["analysis"]
+        caps.append({"capture": run.id, "load_point": run.load_point,
+                     "load_percent": run.load_percent, "file": a["capture"]["source"],
+                     "sha256": a["capture"]["sha256"],
+                     "sample_rate_hz": a["capture"]["sample_rate_hz"],
+                     "duration_s": a["capture"]["duration_s"],
+                     "fundamental_hz": a["fundamental_hz"], "verdict": d["verdict"]})
+        for c in a["channels"]:
+            chans.append({"capture": run.id, **{k: v for k, v in c.items()
+                                                if k != "harmonics"}})
+        hf = harmonics_frame(run.result)
+        hf.insert(0, "capture", run.id)
+        harm.append(hf)
+        wf = windows_frame(run.result)
+        wf.insert(0, "window", range(len(wf)))
+        base = ["window", "t_start_s", "duration_s", "freq_hz", "valid"]
+        for c in run.result.channels:
+            part = wf[base].copy()
+            part.insert(0, "capture", run.id)
+            part["channel"] = c.name
+            part["rms"] = wf[f"{c.name}_rms"]
+            part["thd_percent"] = wf[f"{c.name}_thd_percent"]
+            wins.append(part)
+        if a["power"] is not None:
+            for ph in a["power"]["phases"]:
+                power.append({"capture": run.id, **ph})
+            total = dict(a["power"]["total"])
+            power.append({"capture": run.id, "phase": "total", **total})
+        for f in a["findings"]:
+            finds.append({"capture": run.id, "code": f["code"], "severity": f["severity"],
+                          "channels": " ".join(f.get("channels", [])),
+                          "orders": " ".join(str(o) for o in f.get("orders", [])),
+                          "value": f.get("value"), "unit": f.get("unit", ""),
+                          "message": f["message"]})
+        for ad in d["assessments"]:
+            for chk in ad.get("checks", []):
+                row = {"capture": run.id}
+                row.update({k: (" ".join(map(str, v)) if isinstance(v, list) else v)
+                            for k, v in chk.items() if not isinstance(v, dict)})
+                checks.append(row)
+    frames = {
+        "captures": pd.DataFrame(caps),
+        "channels": pd.DataFrame(chans),
+        "harmonics": pd.concat(harm, ignore_index=True) if harm else pd.DataFrame(),
+        "windows": pd.concat(wins, ignore_index=True) if wins else pd.DataFrame(),
+        "power": pd.DataFrame(power),
+        "findings": pd.DataFrame(finds, columns=["capture", "code", "severity", "channels",
+                                                 "orders", "value", "unit", "message"]),
+        "checks": pd.DataFrame(checks),
+    }
+    if "order" in frames["checks"]:
+        frames["checks"]["order"] = frames["checks"]["order"].astype("Int64")
+    return frames
+
+
+def check_csv_targets(folder, *, force: bool = False) -> list:
+    """Check that every CSV file of :func:`write_csv_dir` can be written in ``folder`` (which
+    may not exist yet); raise :class:`~pqcheck.errors.ReportError` otherwise.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files that will be written.
+    """
+    from pathlib import Path
+
+    from ..errors import ReportError
+
+    d = Path(folder)
+    if d.exists() and not d.is_dir():
+        raise ReportError(f"--csv {d}: exists and is not a folder")
+    if not d.exists():
+        parent = d.parent if str(d.parent) else Path(".")
+        if not parent.is_dir():
+            raise ReportError(f"--csv {d}: folder {parent} does not exist; create it first")
+        return [d / f"{name}.csv" for name in CSV_TABLES]
+    return [check_target(d / f"{name}.csv", force=force, option="--csv")
+            for name in CSV_TABLES]
+
+
+def write_csv_dir(frames: dict, folder, *, force: bool = False) -> list:
+    """Write each table as ``<name>.csv`` in ``folder`` (created if missing), atomically per
+    file; refuses to replace existing files unless ``force``.
+
+    Returns
+    -------
+    list of pathlib.Path
+        Files written.
+    """
+    from pathlib import Path
+
+    paths = check_csv_targets(folder, force=force)
+    Path(folder).mkdir(exist_ok=True)
+    out = []
+    for name, path in zip(CSV_TABLES, paths):
+        text = frames[name].to_csv(index=False, lineterminator="\n")
+        out.append(write_atomic(path, text, force=force, option="--csv"))
+    return out
