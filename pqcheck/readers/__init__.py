@@ -78,7 +78,7 @@ def open_capture(
     voltage=None,
     time_column: str | None = None,
     cache=None,
-    stream_over_bytes: int | None = STREAM_OVER_BYTES,
+    stream_over_bytes: int | None | str = "default",
 ):
     """Open a capture for analysis: in memory when small, block by block when large.
 
@@ -90,7 +90,8 @@ def open_capture(
         Cache of parsed samples. On a hit the text file is not parsed again; on a miss the
         parsed blocks are stored while they are read.
     stream_over_bytes : int or None
-        Text files larger than this are streamed; None never streams text.
+        Text files larger than this are streamed; None never streams text; the default is
+        :data:`STREAM_OVER_BYTES`.
 
     Returns
     -------
@@ -104,6 +105,8 @@ def open_capture(
     if sample_rate_hz is not None and not (sample_rate_hz > 0):
         raise CaptureFormatError(f"sample rate must be positive, got {sample_rate_hz!r}",
                                  field="--sample-rate")
+    if stream_over_bytes == "default":
+        stream_over_bytes = STREAM_OVER_BYTES
     suffix = p.suffix.lower()
     reader_opts = {"sample_rate_hz": sample_rate_hz, "time_column": time_column}
     try:

@@ -1,0 +1,184 @@
+"""Block-by-block reading, the cache of parsed captures and results, and binary inputs.
+
+The reference for every check here is pqcheck's own in-memory path on the same data, or numpy
+(numpy.testing): streaming, caching and the file format must never change a number.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from pqcheck.analysis import analyze
+from pqcheck.cache import Cache
+from pqcheck.capture import Capture, CaptureStream
+from pqcheck.errors import CaptureFormatError
+from pqcheck.export import analysis_to_dict
+from pqcheck.pipeline import analyze_file
+from pqcheck.readers import load_capture, open_capture
+
+FS = 10_000.0
+
+
+def _signal(seconds=3.0, f=50.2):
+    n = int(FS * seconds)
+    t = np.arange(n) / FS
+    th = 2 * np.pi * f * t
+    ia = 10 * np.sin(th) + 2.0 * np.sin(5 * th) + 0.5 * np.sin(11 * th)
+    va = 325 * np.sin(th + 0.1) + 3 * np.sin(5 * th)
+    return t, ia, va
+
+
+def _write_csv(path, t, ia, va, *, decimals=6):
+    df = pd.DataFrame({"time [s]": np.round(t, 7), "ia [A]": np.round(ia, decimals),
+                       "va [V]": np.round(va, decimals)})
+    df.to_csv(path, index=False)
+    return path
+
+
+def _summary(result):
+    d = analysis_to_dict(result)
+    d["capture"].pop("reader")
+    d["capture"].pop("source")
+    return d
+
+
+@pytest.fixture
+def capture_csv(tmp_path):
+    t, ia, va = _signal()
+    return _write_csv(tmp_path / "cap.csv", t, ia, va)
+
+
+def test_streamed_equals_in_memory(capture_csv):
+    # reference: the in-memory reader and analysis of the same file
+    mem = load_capture(capture_csv)
+    streamed = open_capture(capture_csv, stream_over_bytes=1000)
+    assert isinstance(streamed, CaptureStream)
+    r_mem = analyze(mem, nominal_hz=50)
+    r_str = analyze(streamed, nominal_hz=50, block_samples=4096)
+    assert r_str.sha256 == r_mem.sha256 != ""
+    a, b = _summary(r_mem), _summary(r_str)
+    assert a["channels"][0]["thd_percent"] == pytest.approx(b["channels"][0]["thd_percent"],
+                                                            rel=1e-9)
+    np.testing.assert_allclose(r_mem.windows.rms, r_str.windows.rms, rtol=1e-9)
+    np.testing.assert_allclose(np.abs(r_mem.windows.component),
+                               np.abs(r_str.windows.component), rtol=1e-6, atol=1e-9)
+
+
+def test_block_size_does_not_change_results():
+    # the same capture analysed in blocks of 3000 samples and in one block
+    t, ia, va = _signal(seconds=4.0)
+    cap = Capture.from_arrays(FS, currents={"ia": ia}, voltages={"va": va})
+    r1 = analyze(cap, nominal_hz=50, block_samples=1 << 20)
+    r2 = analyze(cap, nominal_hz=50, block_samples=3000)
+    assert r1.windows.n_windows == r2.windows.n_windows
+    np.testing.assert_allclose(r1.windows.freq_hz, r2.windows.freq_hz, atol=1e-3)
+    assert r1.channels[0].thd_percent == pytest.approx(r2.channels[0].thd_percent, rel=1e-5)
+
+
+def test_cache_hit_returns_the_same_result(capture_csv, tmp_path, monkeypatch):
+    cache = Cache(tmp_path / "cache")
+    monkeypatch.setattr("pqcheck.readers.STREAM_OVER_BYTES", 1000)
+    cap1, r1 = analyze_file(capture_csv, cache=cache, nominal_hz=50)
+    files = sorted(p.name for p in (tmp_path / "cache").rglob("*") if p.is_file())
+    assert any(f.endswith(".f64") for f in files) and any(f.endswith(".npz") for f in files)
+    calls = []
+    monkeypatch.setattr("pqcheck.pipeline.analyze", lambda *a, **k: calls.append(1))
+    cap2, r2 = analyze_file(capture_csv, cache=cache, nominal_hz=50)
+    assert calls == []  # served from the result cache, no analysis
+    assert json.dumps(_summary(r1), sort_keys=True) == json.dumps(_summary(r2), sort_keys=True)
+    assert cap2.provenance.settings.get("cache") == "samples read from cache"
+
+
+def test_cache_misses_when_settings_or_file_change(capture_csv, tmp_path, monkeypatch):
+    cache = Cache(tmp_path / "cache")
+    monkeypatch.setattr("pqcheck.readers.STREAM_OVER_BYTES", 1000)
+    _, r1 = analyze_file(capture_csv, cache=cache, nominal_hz=50)
+    _, r2 = analyze_file(capture_csv, cache=cache, nominal_hz=50, max_order=40)
+    assert r2.settings.max_order == 40 and r1.settings.max_order == 50
+    # change the file: a new SHA-256 and new numbers
+    t, ia, va = _signal()
+    _write_csv(capture_csv, t, 2 * ia, va)
+    st = os.stat(capture_csv)
+    os.utime(capture_csv, ns=(st.st_atime_ns, st.st_mtime_ns + 10_000_000))
+    _, r3 = analyze_file(capture_csv, cache=cache, nominal_hz=50)
+    assert r3.sha256 != r1.sha256
+    assert r3.channels[0].rms == pytest.approx(2 * r1.channels[0].rms, rel=1e-6)
+
+
+def test_streamed_time_gap_left_empty(tmp_path):
+    t, ia, va = _signal(seconds=3.0)
+    keep = np.ones(t.size, bool)
+    keep[12_000:12_050] = False  # 5 ms of missing rows
+    path = _write_csv(tmp_path / "gap.csv", t[keep], ia[keep], va[keep])
+    cap = open_capture(path, stream_over_bytes=1000)
+    res = analyze(cap, nominal_hz=50, block_samples=5000)
+    codes = {f.code for f in res.findings}
+    assert "time-gap" in codes and "gaps" in codes
+    assert res.windows.valid.sum() == res.windows.n_windows - 1  # one window touched
+    assert res.n_samples == t.size
+
+
+def test_streamed_bad_cell_names_the_line(tmp_path):
+    # the bad cell lies beyond the first chunk, so it is met while the analysis streams
+    t, ia, va = _signal(seconds=9.0)
+    path = _write_csv(tmp_path / "bad.csv", t, ia, va)
+    lines = path.read_text().splitlines()
+    lines[80_000] = lines[80_000].replace(",", ",oops", 1)
+    path.write_text("\n".join(lines) + "\n")
+    cap = open_capture(path, stream_over_bytes=1000)
+    assert isinstance(cap, CaptureStream)
+    with pytest.raises(CaptureFormatError, match=r"bad\.csv:80001: ia: cell 'oops.*' is not a"):
+        analyze(cap, nominal_hz=50, block_samples=8192)
+
+
+def test_npy_and_parquet_inputs_match_csv(capture_csv, tmp_path):
+    # reference: the same samples read from CSV
+    ref = analyze(load_capture(capture_csv), nominal_hz=50)
+    t, ia, va = _signal()
+    data = np.column_stack([t, np.round(ia, 6), np.round(va, 6)])
+    npy = tmp_path / "cap.npy"
+    np.save(npy, data)
+    (tmp_path / "cap.json").write_text(json.dumps({"columns": ["time [s]", "ia [A]", "va [V]"]}))
+    pq = tmp_path / "cap.parquet"
+    pd.DataFrame(data, columns=["time [s]", "ia [A]", "va [V]"]).to_parquet(pq, engine="pyarrow",
+                                                                           row_group_size=7000)
+    for path in (npy, pq):
+        res = analyze(open_capture(path), nominal_hz=50, block_samples=5000)
+        assert res.channels[0].thd_percent == pytest.approx(ref.channels[0].thd_percent,
+                                                            rel=1e-6), path.suffix
+        assert [c.quantity for c in res.channels] == ["current", "voltage"]
+
+
+def test_npy_without_rate_is_refused(tmp_path):
+    np.save(tmp_path / "x.npy", np.zeros((100, 2)))
+    with pytest.raises(CaptureFormatError, match=r"x\.npy: sample rate: no time column and no sample rate"):
+        open_capture(tmp_path / "x.npy")
+    with pytest.raises(CaptureFormatError, match=r"expected a 2-D numeric array"):
+        np.save(tmp_path / "y.npy", np.zeros((2, 2, 2)))
+        open_capture(tmp_path / "y.npy", sample_rate_hz=1000)
+
+
+def test_progress_callback_reaches_the_end(capture_csv):
+    seen = []
+    cap = open_capture(capture_csv, stream_over_bytes=1000)
+    analyze(cap, nominal_hz=50, block_samples=5000, progress=lambda d, n: seen.append(d))
+    assert seen and seen[-1] == 30_000
+    assert seen == sorted(seen)
+
+
+def test_high_sample_rate_small_blocks():
+    # 1 MS/s with blocks far shorter than a window: windows still cover the record
+    fs = 1e6
+    n = int(fs * 0.8)
+    t = np.arange(n) / fs
+    x = np.sin(2 * np.pi * 50 * t) + 0.1 * np.sin(2 * np.pi * 350 * t)
+    res = analyze(Capture.from_arrays(fs, currents={"i": x}), nominal_hz=50,
+                  block_samples=50_000)
+    assert res.windows.n_windows == 4
+    # THD of a 10 % seventh harmonic is 10 % (definition, IEEE 519 clause 3)
+    assert res.channels[0].thd_percent == pytest.approx(10.0, rel=1e-4)
