@@ -740,7 +740,12 @@ class Headroom:
     binding_value, binding_limit : float or None
         That quantity and its limit at ``count + extra_units + 1`` units. [%]
     already_exceeded : bool
-        The site as described exceeds a limit.
+        The site as described exceeds a limit (then ``binding`` is the limit exceeded by the
+        largest share).
+    passing_count : int or None
+        When the site already exceeds a limit: the largest number of units of this kind below
+        ``count`` (others unchanged) with every limit met; None when no such number exists
+        (the other units alone exceed a limit). Equal to ``count`` otherwise.
     extra_units_rating : int or None
         Extra units before the site transformer's rating is reached (informative; None without
         a transformer or beyond the search range).
@@ -753,6 +758,7 @@ class Headroom:
     binding_value: float | None = None
     binding_limit: float | None = None
     already_exceeded: bool = False
+    passing_count: int | None = None
     extra_units_rating: int | None = None
 
 
@@ -1816,7 +1822,8 @@ def _exceeds(case: _Case, counts_matrix) -> np.ndarray:
         thd = 100.0 * np.sqrt(np.sum(volt**2, axis=-1)) / case.v_ln
         tdd = 100.0 * np.sqrt(np.sum(harm[:, :, sel] ** 2, axis=-1)) / il[:, None]
     out = np.zeros(c.shape[0], dtype=bool)
-    ratio = isc / il
+    with np.errstate(divide="ignore"):
+        ratio = isc / il
     keys = [(bisect.bisect_left(case.limits.edges, x), x in case.limits.edges) for x in ratio]
     for key in set(keys):
         rows = np.array([k == key for k in keys])
@@ -1848,17 +1855,23 @@ def _headroom(case: _Case, counts, k: int, checks_now, max_extra: int) -> Headro
     failing = [c for c in checks_now if c.verdict == "fail"]
     if failing:
         worst = max(failing, key=lambda c: c.usage_percent)
+        fewer = np.repeat(counts[None, :], unit.count, axis=0)
+        fewer[:, k] = np.arange(unit.count)
+        ok = np.flatnonzero(~_exceeds(case, fewer)) if unit.count else np.array([], int)
         return Headroom(unit.name, unit.count, 0, worst.label, worst.value, worst.limit,
-                        already_exceeded=True, extra_units_rating=rating)
+                        already_exceeded=True,
+                        passing_count=int(ok[-1]) if ok.size else None,
+                        extra_units_rating=rating)
     bad = np.flatnonzero(_exceeds(case, grid))
     if not bad.size:
-        return Headroom(unit.name, unit.count, None, extra_units_rating=rating)
+        return Headroom(unit.name, unit.count, None, passing_count=unit.count,
+                        extra_units_rating=rating)
     n = int(extra[bad[0]])
     checks = case.evaluate(grid[bad[0]])["checks"]
     fails = [x for x in checks if x.verdict == "fail"] or list(checks)
     worst = max(fails, key=lambda x: x.usage_percent if math.isfinite(x.value) else -1.0)
     return Headroom(unit.name, unit.count, n - 1, worst.label, worst.value, worst.limit,
-                    extra_units_rating=rating)
+                    passing_count=unit.count, extra_units_rating=rating)
 
 
 def _orders_text(orders) -> str:
@@ -1951,6 +1964,7 @@ def study_to_dict(study: SiteStudy) -> dict:
                       "binding_value": _num(h.binding_value),
                       "binding_limit": _num(h.binding_limit),
                       "already_exceeded": h.already_exceeded,
+                      "passing_count": h.passing_count,
                       "extra_units_rating": h.extra_units_rating} for h in study.headroom],
         "findings": [f.to_dict() for f in study.findings],
         "cautions": list(CAUTIONS),

@@ -469,6 +469,8 @@ def test_headroom_when_already_exceeded(tmp_path):
     hr = study.headroom[0]
     assert study.verdict == "fail"
     assert hr.already_exceeded and hr.extra_units == 0 and hr.binding == "V5"
+    # 22 units meet every limit (hand calculation above), 30 do not
+    assert hr.passing_count == 22
 
 
 @settings(max_examples=12, deadline=None)

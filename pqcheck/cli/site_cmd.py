@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import click
 
@@ -23,6 +24,16 @@ def _f(x, digits: int = 4, unit: str = "") -> str:
         return "-"
     s = f"{float(x):.{digits}g}"
     return f"{s} {unit}".rstrip()
+
+
+def _shown_path(source: str, site_path) -> str:
+    """A unit's data file relative to the site file's folder when it lies inside it."""
+    if site_path is None:
+        return source
+    try:
+        return str(Path(source).resolve().relative_to(Path(site_path).resolve().parent))
+    except ValueError:
+        return source
 
 
 def render_site_table(study) -> str:
@@ -59,7 +70,8 @@ def render_site_table(study) -> str:
     for u in s.units:
         i1 = max(abs(x) for x in u.spectrum.current[:, 1])
         out.append(f"{u.name[:23]:<24}{u.count:>6}  {u.load_point[:13]:<14}"
-                   f"{_f(u.phase_shift_deg, 3):>7}{_f(i1, 4, 'A'):>11}  {u.spectrum.source}")
+                   f"{_f(u.phase_shift_deg, 3):>7}{_f(i1, 4, 'A'):>11}  "
+                   f"{_shown_path(u.spectrum.source, s.path)}")
     other = s.other_load
     if other.demand_w or other.demand_current_a:
         out.append(f"{'other load (linear)':<24}{'':>6}  "
@@ -98,7 +110,9 @@ def render_site_table(study) -> str:
         out.append("Headroom (more units of one kind, others unchanged)")
         for hr in study.headroom:
             if hr.already_exceeded:
-                txt = f"none: the site already exceeds {hr.binding}"
+                txt = f"none: the site already exceeds {hr.binding}; "
+                txt += ("it exceeds a limit even without this kind" if hr.passing_count is None
+                        else f"it meets every limit with {hr.passing_count} of this kind")
             elif hr.extra_units is None:
                 txt = f"more than {MAX_HEADROOM} (no limit reached)"
             else:

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import io
 import math
+from pathlib import Path
 
 from reportlab.lib.pagesizes import A4
 from reportlab.lib.units import mm
@@ -39,6 +40,16 @@ _SUMMATION_TEXT = {
     "arithmetic": "arithmetic sum of magnitudes (worst case)",
     "phasor": "phasor sum with the measured phase angles",
 }
+
+
+def _shown_path(source: str, site_path) -> str:
+    """A unit's data file relative to the site file's folder when it lies inside it."""
+    if site_path is None:
+        return source
+    try:
+        return str(Path(source).resolve().relative_to(Path(site_path).resolve().parent))
+    except ValueError:
+        return source
 
 
 def _table(rows, widths, st, *, head_rows: int = 1) -> Table:
@@ -148,7 +159,7 @@ def site_story(study) -> list:
     for u in s.units:
         i1 = max(abs(x) for x in u.spectrum.current[:, 1])
         rows.append([esc(u.name), str(u.count), esc(u.load_point), fmt(u.phase_shift_deg, 3),
-                     fmt(i1, 4), esc(u.spectrum.source)])
+                     fmt(i1, 4), esc(_shown_path(u.spectrum.source, s.path))])
     o = s.other_load
     if o.demand_w or o.demand_current_a:
         rows.append(["Other load (linear)", "", "", "",
@@ -183,7 +194,9 @@ def site_story(study) -> list:
                  "Transformer rating"]]
         for hr in study.headroom:
             if hr.already_exceeded:
-                more, bind = "none (already exceeded)", esc(hr.binding)
+                more = ("none: exceeded even without this kind" if hr.passing_count is None
+                        else f"none: limits met with {hr.passing_count} of this kind")
+                bind = f"{esc(hr.binding)} (already exceeded)"
             elif hr.extra_units is None:
                 more, bind = f"more than {MAX_HEADROOM}", "none reached"
             else:
