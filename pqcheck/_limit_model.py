@@ -84,7 +84,8 @@ def weakest_tag(*tags: str) -> str:
 
 # --- order specifications ------------------------------------------------------------------
 
-_ORDER_ITEM = re.compile(r"\s*(\d+)\s*(?:-\s*(\d+)\s*)?$")
+_ORDER_ITEM = re.compile(r"\s*(\d{1,6})\s*(?:-\s*(\d{1,6})\s*)?$")
+_ORDER_CAP = 1000  # no standard limits orders this high; guards memory
 
 
 def parse_orders(spec: str, *, max_order: int | None = None) -> tuple:
@@ -129,6 +130,11 @@ def parse_orders(spec: str, *, max_order: int | None = None) -> tuple:
         hi = int(m.group(2)) if m.group(2) else lo
         if hi < lo:
             raise ValueError(f"range {lo}-{hi} in {spec!r} runs backwards; write {hi}-{lo}")
+        top = _ORDER_CAP if max_order is None else max_order
+        if hi > top:  # before building the set: "2-100000000" must not exhaust memory
+            raise ValueError(f"order {hi} in {spec!r} is above "
+                             + (f"max_order = {max_order}" if max_order is not None
+                                else f"{_ORDER_CAP}"))
         orders.update(range(lo, hi + 1))
     if min(orders) < 2:
         raise ValueError(f"order {min(orders)} in {spec!r}: harmonic limits start at order 2 "
@@ -160,6 +166,7 @@ def orders_range(spec: str) -> tuple:
 _BINOPS = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
            ast.Div: operator.truediv, ast.Pow: operator.pow}
 _UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
+_FORMULA_MAX_CHARS = 200
 
 
 def check_formula(text: str) -> None:
@@ -172,9 +179,13 @@ def check_formula(text: str) -> None:
     ValueError
         Naming what is not allowed.
     """
+    if len(text) > _FORMULA_MAX_CHARS:
+        raise ValueError(f"formula {text[:40]!r}... is {len(text)} characters long; a limit "
+                         f"formula has at most {_FORMULA_MAX_CHARS}, e.g. \"0.15 * 15 / n\"")
     try:
         tree = ast.parse(text.strip(), mode="eval")
-    except SyntaxError:
+    except (SyntaxError, ValueError, RecursionError, MemoryError):
+        # ValueError: NUL character; RecursionError/MemoryError: absurd nesting
         raise ValueError(f"cannot read formula {text!r}; write arithmetic in the order n, "
                          "e.g. \"0.15 * 15 / n\"") from None
     for node in ast.walk(tree):
