@@ -7,6 +7,8 @@ into :class:`~pqcheck.report.job.CaptureRun` records. It computes nothing itself
 
 from __future__ import annotations
 
+import re
+
 from ..errors import InputError, PlanError
 from .job import CaptureRun
 
@@ -34,12 +36,21 @@ def assess_each(result, resolved, **assess_kwargs) -> tuple:
     return tuple(assess(result, r, **assess_kwargs) for r in resolved)
 
 
+_PLAN_FIELDS = {
+    "--voltage-level": "voltage_level_v", "--isc": "isc_a", "--il": "il_a", "--rsce": "rsce",
+    "--ssc": "ssc_va", "--rated-power": "rated_apparent_power_va", "--class": "equipment_class",
+    "--equipment": "equipment_kind", "--generation": "generation",
+    "--rated-current": "rated_current_a", "--iref": "iref_a", "--active-power": "active_power_w",
+}
+_OPTION = re.compile(r"--[a-z][a-z-]*")
+
+
 def _plan_error(plan, spec_line, field, exc: InputError) -> PlanError:
-    hint = ""
-    if exc.field and exc.field.startswith("--"):
-        hint = (f" (the plan gives it in [site], [equipment] or this [[limits]] entry, not as "
-                f"{exc.field})")
-    return PlanError(f"{exc.problem}{hint}", path=plan.path, line=spec_line, field=field)
+    """Restate a selector error in the plan's terms (plan fields instead of options)."""
+    problem = _OPTION.sub(lambda m: _PLAN_FIELDS.get(m.group(0), m.group(0)), exc.problem)
+    if problem != exc.problem or (exc.field or "").startswith("--"):
+        problem += " (set it in [site], [equipment] or this [[limits]] entry)"
+    return PlanError(problem, path=plan.path, line=spec_line, field=field)
 
 
 def run_plan(plan, *, cache=None, progress=None) -> tuple:
