@@ -951,22 +951,42 @@ def spectrum_from_analysis(result, *, connection: str | None = None,
         float(np.mean(volts)) if volts else None, findings, connection, phase)
 
 
+def _select_capture(doc: dict, load_point: str | None) -> dict:
+    """The analysis of one load point from report results (``captures`` list)."""
+    caps = [c for c in doc["captures"] if isinstance(c, dict)]
+    if len(caps) == 1:
+        return caps[0]
+    hits = [c for c in caps if load_point is not None
+            and load_point in (str(c.get("load_point", "")), str(c.get("id", "")))]
+    if len(hits) == 1:
+        return hits[0]
+    listed = ", ".join(f"{c.get('load_point', '')!r} (id {c.get('id', '')!r})" for c in caps)
+    if hits:
+        raise ValueError(f"several captures have load point {load_point!r}; set load_point to "
+                         f"the capture id instead: {listed}")
+    raise ValueError(f"no capture with load point or id {load_point!r}; the results hold "
+                     f"{listed or 'no capture'}")
+
+
 def spectrum_from_dict(doc: dict, *, source: str = "<results>", sha256: str = "",
-                       connection: str | None = None,
-                       phase: str | None = None) -> UnitSpectrum:
-    """Unit spectrum from saved results (the JSON of ``pqcheck analyze --format json``).
+                       connection: str | None = None, phase: str | None = None,
+                       load_point: str | None = None) -> UnitSpectrum:
+    """Unit spectrum from saved results.
 
     Parameters
     ----------
     doc : dict
-        Needs ``channels``: a list of ``{name, quantity, phase, harmonics: [{order, rms,
-        phase_deg}]}``; ``settings.reference`` and ``settings.nominal_hz`` are used when
-        present. A document that holds such an analysis under the key ``analysis`` is
-        accepted too.
+        The JSON of ``pqcheck analyze --format json``: needs ``channels``, a list of
+        ``{name, quantity, phase, harmonics: [{order, rms, phase_deg}]}``;
+        ``settings.reference`` and ``settings.nominal_hz`` are used when present. Or the
+        results of ``pqcheck report`` (a ``captures`` list, each with ``id``, ``load_point``
+        and ``analysis``): the capture whose load point or id is ``load_point`` is used.
     source, sha256 : str
         For the record.
     connection, phase
         As :func:`spectrum_from_analysis`.
+    load_point : str or None
+        Selects one capture of report results.
 
     Returns
     -------
@@ -977,6 +997,8 @@ def spectrum_from_dict(doc: dict, *, source: str = "<results>", sha256: str = ""
     ValueError
         The document does not have that structure (the message names the missing part).
     """
+    if isinstance(doc, dict) and "channels" not in doc and isinstance(doc.get("captures"), list):
+        doc = _select_capture(doc, load_point)
     if isinstance(doc, dict) and "channels" not in doc and isinstance(doc.get("analysis"), dict):
         doc = doc["analysis"]
     if not isinstance(doc, dict) or not isinstance(doc.get("channels"), list):
@@ -1449,7 +1471,8 @@ def _load_unit(r: _Reader, item, k: int, folder: Path, f_nom, analyse) -> Unit:
                 raise ValueError(f"not JSON results ({exc})") from None
             spectrum = spectrum_from_dict(doc, source=str(fpath),
                                           sha256=hashlib.sha256(raw).hexdigest(),
-                                          connection=connection, phase=phase)
+                                          connection=connection, phase=phase,
+                                          load_point=load_point)
     except ValueError as exc:
         if isinstance(exc, InputError):
             raise
@@ -1741,6 +1764,7 @@ def study_site(site: Site, *, summation: str | None = None, headroom: bool = Tru
             "phase-not-measured", "info",
             f"no voltage was measured with unit(s) {', '.join(map(repr, unmeasured))}: their "
             "fundamental is taken in phase with the voltage for the IL estimate"))
+    findings += _zero_sequence_findings(site, orders)
 
     # fundamental of the other load, balanced positive sequence
     i_other = site.other_load.current_a(site.bus_voltage_v)
@@ -1838,6 +1862,33 @@ def _exceeds(case: _Case, counts_matrix) -> np.ndarray:
     return out
 
 
+def _zero_sequence_findings(site: Site, orders) -> list:
+    """Say where delta (or other phase-shifting) windings stop the units' zero-sequence
+    (mostly triplen) currents, so a hand calculation is not surprised."""
+    out = []
+    t = site.transformer
+    main_blocks = t is not None and site.pcc_location == "supply" and not t.passes_zero_sequence
+    for u in site.units:
+        if not (main_blocks or u.phase_shift_deg != 0):
+            continue
+        cur = np.nan_to_num(u.spectrum.current[:, : orders.size])
+        zero = np.abs(sequence_components(cur[0], cur[1], cur[2])[0])
+        ref = float(np.max(np.abs(cur[:, 1]))) or 1.0
+        hit = [int(h) for h in range(2, zero.size) if zero[h] > 1e-3 * ref]
+        if not hit:
+            continue
+        where = (f"the phase-shifting transformer of unit {u.name!r}"
+                 if u.phase_shift_deg != 0 else
+                 f"the site transformer ({t.vector_group}) between the bus and the PCC")
+        out.append(Finding(
+            "zero-sequence-blocked", "info",
+            f"{where} does not pass zero-sequence current: the zero-sequence part of unit "
+            f"{u.name!r} at orders {_orders_text(hit[:12])}{' ...' if len(hit) > 12 else ''} "
+            "(balanced triplen harmonics in full) does not reach the PCC",
+            orders=tuple(hit)))
+    return out
+
+
 def _headroom(case: _Case, counts, k: int, checks_now, max_extra: int) -> Headroom:
     unit = case.site.units[k]
     extra = np.arange(1, max_extra + 1)
@@ -1897,7 +1948,8 @@ def study_to_dict(study: SiteStudy) -> dict:
     """JSON-ready form of a :class:`SiteStudy` (non-finite numbers become None).
 
     Keys: ``tool``, ``site`` (name, file, sha256, supply, transformer, pcc, other_load,
-    units), ``summation``, ``pcc`` (voltage, impedance, ISC, IL, ISC/IL), ``limits`` (table,
+    units, each with ``pcc_current_a``: one unit's current at the PCC for orders 1..H, worst
+    phase), ``summation``, ``pcc`` (voltage, impedance, ISC, IL, ISC/IL), ``limits`` (table,
     rows), ``harmonics`` (per order: current per phase and % of IL, voltage per phase and % of
     nominal), ``totals`` (THD of voltage, TDD), ``checks``, ``verdict``, ``headroom``,
     ``findings`` and ``cautions``.
@@ -1937,8 +1989,10 @@ def study_to_dict(study: SiteStudy) -> dict:
                        "phase_shift_deg": u.phase_shift_deg, "source": u.spectrum.source,
                        "sha256": u.spectrum.sha256, "channels": list(u.spectrum.channels),
                        "phase_measured": u.spectrum.phase_measured,
-                       "fundamental_a": _num(float(np.max(np.abs(u.spectrum.current[:, 1]))))}
-                      for u in s.units],
+                       "fundamental_a": _num(float(np.max(np.abs(u.spectrum.current[:, 1])))),
+                       "pcc_current_a": [_num(float(np.max(np.abs(study.unit_current_a[k, :, h]))))
+                                         for h in study.orders[1:]]}
+                      for k, u in enumerate(s.units)],
         },
         "summation": study.summation,
         "pcc": {"nominal_voltage_v": study.pcc_voltage_v,
@@ -2048,8 +2102,9 @@ power_factor = 0.9               # lagging displacement power factor
 table = "ieee519-2022"           # bundled id or the path of your own table file
 generation = false               # true: IEEE 519 rule for generation (first ISC/IL row)
 
-# One entry per kind of unit. Give a capture to analyse or saved results
-# (pqcheck analyze CAPTURE --format json > unit.json).
+# One entry per kind of unit. Give a capture to analyse or saved results: the JSON of
+# pqcheck analyze CAPTURE --format json, or of pqcheck report PLAN --json (then load_point
+# picks the capture by its load point or id).
 [[units]]
 name = "DC charger 150 kW"
 capture = "charger-150kw.csv"    # or: results = "charger-150kw.json"

@@ -851,3 +851,48 @@ def test_vectorised_search_agrees_with_the_full_evaluation(tmp_path):
         full = [any(c.verdict == "fail" for c in case.evaluate(row)["checks"]) for row in grid]
         assert fast.tolist() == full
         assert any(full) and not all(full)
+
+
+def test_site_transformer_delta_stops_triplen_currents(tmp_path):
+    # balanced 3rd harmonic = zero sequence: a Dyn11 transformer between the bus and a PCC on
+    # its primary stops it; a YNyn0 transformer passes it, referred by 400 / 11000
+    res = unit_results({3: (10.0, 0.0), 5: (10.0, 0.0)})
+    study = study_site(load_site(write_site(tmp_path, results=res, location="supply")),
+                       headroom=False)
+    assert study.current_a[:, 3] == pytest.approx([0, 0, 0], abs=1e-9)
+    assert study.current_a[0, 5] == pytest.approx(10 * 400 / 11000, rel=1e-9)
+    assert any(f.code == "zero-sequence-blocked" and 3 in f.orders for f in study.findings)
+    text = SITE_BUS.format(summation="general", location="supply", count=1, demand_w=0, il="")
+    p = write_site(tmp_path, results=res, name="yn.toml",
+                   text=text.replace('"Dyn11"', '"YNyn0"'))
+    study = study_site(load_site(p), headroom=False)
+    assert study.current_a[0, 3] == pytest.approx(10 * 400 / 11000, rel=1e-9)
+    assert not any(f.code == "zero-sequence-blocked" for f in study.findings)
+
+
+def _report_results():
+    # the shape `pqcheck report PLAN --json` writes: captures with id, load point, analysis
+    half = unit_results({5: (20.0, 0.0)}, fund_a=50.0)
+    full = unit_results({5: (25.0, 0.0)}, fund_a=100.0)
+    return {"captures": [
+        {"id": "half", "load_point": "50 %", "analysis": half},
+        {"id": "full", "load_point": "100 %", "analysis": full},
+        {"id": "full-2", "load_point": "100 %", "analysis": full},
+    ]}
+
+
+def test_report_results_select_the_load_point(tmp_path):
+    p = write_site(tmp_path, results=_report_results(), text=_sub('"100 %"', '"50 %"'))
+    assert abs(load_site(p).units[0].spectrum.current[0, 1]) == pytest.approx(50.0)
+    p = write_site(tmp_path, results=_report_results(), text=_sub('"100 %"', '"full-2"'),
+                   name="id.toml")
+    assert abs(load_site(p).units[0].spectrum.current[0, 5]) == pytest.approx(25.0)
+
+
+def test_report_results_errors(tmp_path):
+    _err(tmp_path, BASE, r"units\[1\].results: unit.json: several captures have load point "
+                         r"'100 %'; set load_point to the capture id instead",
+         results=_report_results())
+    _err(tmp_path, _sub('"100 %"', '"75 %"'),
+         r"no capture with load point or id '75 %'; the results hold '50 %' \(id 'half'\)",
+         results=_report_results())
