@@ -3,12 +3,15 @@ electronics (EV chargers and other converter front ends).
 
 The public API follows the data flow: :func:`load_capture` reads a file into a
 :class:`Capture`; :func:`analyze` runs the IEC 61000-4-7 analysis and returns an
-:class:`AnalysisResult`.
+:class:`AnalysisResult`; :func:`load_table` and :func:`resolve` pick the limits that apply;
+:func:`assess` compares the result with them and returns an :class:`Assessment`.
 """
 
 __version__ = "0.1.0"
 
 from .analysis import AnalysisResult, analyze  # noqa: E402
+from .limits import load_table, resolve  # noqa: E402
+from .assess import Assessment, assess  # noqa: E402
 from .capture import Capture, Channel, Provenance, assign_roles  # noqa: E402
 from .errors import (  # noqa: E402
     AnalysisError,
@@ -41,4 +44,8 @@ __all__ = [
     "load_capture",
     "analyze",
     "AnalysisResult",
+    "load_table",
+    "resolve",
+    "assess",
+    "Assessment",
 ]
