@@ -300,7 +300,7 @@ def _read(path):
     except OSError as exc:
         return None, [LimitTableError(f"cannot read: {exc.strerror}", path=str(p))]
     try:
-        text = data.decode("utf-8")
+        text = data.decode("utf-8").removeprefix("\ufeff")  # byte-order mark (Windows editors)
     except UnicodeDecodeError as exc:
         line = data[:exc.start].count(b"\n") + 1
         return None, [LimitTableError("not UTF-8 text", path=str(p), line=line)]

@@ -568,7 +568,7 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
     except OSError as exc:
         raise PlanError(f"cannot read the plan: {exc.strerror or exc}", path=path) from None
     try:
-        text = raw.decode("utf-8")
+        text = raw.decode("utf-8").removeprefix("\ufeff")  # byte-order mark (Windows editors)
     except UnicodeDecodeError as exc:
         raise PlanError(f"not UTF-8 text (byte {exc.start})", path=path) from None
     try:
