@@ -860,11 +860,11 @@ def _spread(one, orders, k0: int) -> np.ndarray:
 
 
 def _build_spectrum(source, sha256, nominal_hz, orders, currents, phases, names, ref_quantity,
-                    ref_phase, voltage_ln, findings, connection, phase):
+                    ref_phase, voltage_ln, findings, connection, phase, what="the results hold"):
     """Common part of the spectrum builders; raises ValueError with a user-facing message."""
     orders = np.asarray(orders)
     if not currents:
-        raise ValueError("the results hold no current channel; a unit's currents are needed")
+        raise ValueError(f"{what} no current channel; a unit's currents are needed")
     phase_measured = ref_quantity == "voltage"
     rot = 1.0
     kref = _phase_index(ref_phase) if ref_phase in ("", "a", "b", "c") else 0
@@ -878,18 +878,18 @@ def _build_spectrum(source, sha256, nominal_hz, orders, currents, phases, names,
         by_phase.setdefault(ph, (np.asarray(cur, dtype=np.complex128) * rot, name))
     if all(p in by_phase for p in "abc"):
         if connection == "single-phase":
-            raise ValueError("connection = \"single-phase\" but the results hold currents of "
-                             "phases a, b and c")
+            raise ValueError(f"connection = \"single-phase\" but {what} currents of phases a, "
+                             "b and c")
         cur = np.stack([by_phase[p][0] for p in "abc"])
         used = tuple(by_phase[p][1] for p in "abc")
     else:
         if len(by_phase) != 1:
-            raise ValueError(f"the results hold currents of phases {sorted(by_phase)}; give "
-                             "all three phases a, b, c, or one current channel")
+            raise ValueError(f"{what} currents of phases {sorted(by_phase)}; give all three "
+                             "phases a, b, c, or one current channel")
         ph, (one, name) = next(iter(by_phase.items()))
         used = (name,)
         if connection is None:
-            raise ValueError(f"the results hold one current channel ({name!r}); say whether "
+            raise ValueError(f"{what} one current channel ({name!r}); say whether "
                              "the unit is a three-phase unit measured on one phase (connection "
                              "= \"three-phase\", balanced phases assumed) or a single-phase "
                              "unit (connection = \"single-phase\" with phase = \"a\", \"b\" or "
@@ -948,7 +948,8 @@ def spectrum_from_analysis(result, *, connection: str | None = None,
         result.source, result.sha256, result.settings.nominal_hz,
         np.asarray(result.channels[0].orders), currents, phases, names,
         ref_ch.quantity if ref_ch else "", ref_ch.phase if ref_ch else "",
-        float(np.mean(volts)) if volts else None, findings, connection, phase)
+        float(np.mean(volts)) if volts else None, findings, connection, phase,
+        what="the capture holds")
 
 
 def _select_capture(doc: dict, load_point: str | None) -> dict:

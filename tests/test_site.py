@@ -896,3 +896,22 @@ def test_report_results_errors(tmp_path):
     _err(tmp_path, _sub('"100 %"', '"75 %"'),
          r"no capture with load point or id '75 %'; the results hold '50 %' \(id 'half'\)",
          results=_report_results())
+
+
+def test_capture_units_report_reader_and_channel_errors(tmp_path):
+    from pqcheck.errors import CaptureFormatError
+
+    text = BASE.replace('results = "unit.json"', 'capture = "unit.csv"')
+    (tmp_path / "unit.csv").write_text("garbage\n")
+    (tmp_path / "site.toml").write_text(text)
+    with pytest.raises(CaptureFormatError, match=r"unit.csv"):
+        load_site(tmp_path / "site.toml")
+    # one current channel and no connection: the site file names the unit's capture field
+    t = np.arange(10_000) / 10_000.0
+    i = 10 * np.sqrt(2) * np.cos(2 * np.pi * 50 * t)
+    v = 230 * np.sqrt(2) * np.cos(2 * np.pi * 50 * t)
+    np.savetxt(tmp_path / "unit.csv", np.column_stack([t, i, v]), delimiter=",",
+               header="time,i,v", comments="", fmt="%.9g")
+    with pytest.raises(PlanError, match=r"units\[1\].capture: unit.csv: the capture holds one "
+                                        r"current channel \('i'\)"):
+        load_site(tmp_path / "site.toml")
