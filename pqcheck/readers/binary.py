@@ -56,7 +56,8 @@ def open_npy(path, *, sample_rate_hz=None, time_column=None, sha256="") -> Captu
                                  "as a float array", path=path) from None
     if arr.ndim == 1:
         arr = arr[:, None]
-    if arr.ndim != 2 or not np.issubdtype(arr.dtype, np.number):
+    if arr.ndim != 2 or not np.issubdtype(arr.dtype, np.number) or np.issubdtype(
+            arr.dtype, np.complexfloating):
         raise CaptureFormatError(
             f"expected a 2-D numeric array (samples x channels), got shape {arr.shape} of "
             f"{arr.dtype}", path=path)
@@ -104,8 +105,8 @@ def open_parquet(path, *, sample_rate_hz=None, time_column=None, sha256="") -> C
             n = pf.metadata.row_group(g).num_rows
             if pos + n > start and pos < stop:
                 tb = pf.read_row_group(g, columns=[raw_names[c] for c in cols])
-                a = np.column_stack([tb.column(i).to_numpy(zero_copy_only=False)
-                                     .astype(np.float64) for i in range(len(cols))])
+                a = np.column_stack([_as_float(tb.column(i), raw_names[c], path)
+                                     for i, c in enumerate(cols)])
                 out.append(a[max(start - pos, 0):stop - pos])
             pos += n
             if pos >= stop:
@@ -115,6 +116,16 @@ def open_parquet(path, *, sample_rate_hz=None, time_column=None, sha256="") -> C
     fs = sample_rate_hz or (float(declared) if declared else None)
     return _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
                        read, pf.metadata.num_rows, fs, time_column, sha256, "parquet")
+
+
+def _as_float(column, name, path):
+    """A Parquet column as float64; a column of text or nested values is a clear error."""
+    try:
+        return column.to_numpy(zero_copy_only=False).astype(np.float64)
+    except (ValueError, TypeError) as exc:
+        raise CaptureFormatError(
+            f"column {name!r} ({column.type}) holds values that are not numbers ({exc}); "
+            "store the samples as float columns", path=path, field=name) from None
 
 
 def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha256, reader):
