@@ -25,7 +25,6 @@ import math
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from conftest import six_pulse_spectrum, six_pulse_wave
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -50,6 +49,22 @@ from pqcheck.site import (
 
 SQRT3 = math.sqrt(3.0)
 ORDERS = np.arange(14)
+
+
+def six_pulse_wave(theta) -> np.ndarray:
+    """Ideal six-pulse line current of unit height: +1 for |theta| < 60 deg, -1 within 60 deg
+    of 180 deg, 0 elsewhere (120-degree conduction blocks). [rad]"""
+    th = np.mod(np.asarray(theta, dtype=np.float64) + np.pi, 2 * np.pi) - np.pi
+    a = np.abs(th)
+    return np.where(a < np.pi / 3, 1.0, np.where(a > 2 * np.pi / 3, -1.0, 0.0))
+
+
+def six_pulse_spectrum(i1_rms: float, max_order: int) -> dict:
+    """Cosine series of :func:`six_pulse_wave`: a_h = 4 / (pi h) sin(h pi / 3) for odd h, so
+    I_h = I_1 / h for h = 6k +- 1, in phase for 6k + 1 and in antiphase for 6k - 1
+    (textbook series, e.g. Mohan, Undeland, Robbins; from memory)."""
+    return {h: (i1_rms / h, 0.0 if h % 6 == 1 else 180.0)
+            for h in range(1, max_order + 1) if h % 2 and h % 3}
 
 
 # ---------------------------------------------------------------------------------------------
@@ -302,7 +317,7 @@ def test_il_is_the_phasor_sum_with_the_other_load(tmp_path):
 
 
 def test_dy_unit_cancels_orders_5_and_7_in_the_time_domain():
-    # Two ideal six-pulse bridges (120-degree blocks, conftest.six_pulse_wave): A fed directly,
+    # Two ideal six-pulse bridges (120-degree blocks, six_pulse_wave): A fed directly,
     # B through a Dyn11 transformer whose secondary leads by 30 deg. B's bridge currents are
     # A's shifted 30 deg earlier; the delta primary's line currents are differences of
     # winding currents, i_A = (i_a - i_c) / sqrt(3) (positive sequence lags 30 deg through
@@ -328,7 +343,7 @@ def test_dy_unit_cancels_orders_5_and_7_in_the_time_domain():
         assert abs(circuit[0, h]) == pytest.approx(2 * abs(pa[0, h]), abs=2e-3)
     # the fundamental keeps its angle through the shift (same displacement power factor)
     assert shifted[0, 1] == pytest.approx(pa[0, 1], abs=2e-3)
-    # exact spectrum (conftest.six_pulse_spectrum: I_h = I1 / h, 6k - 1 in antiphase) as a
+    # exact spectrum (six_pulse_spectrum: I_h = I1 / h, 6k - 1 in antiphase) as a
     # balanced set: the shifted copy cancels 5, 7, 17, 19 exactly and doubles 11, 13, 23, 25
     spec = six_pulse_spectrum(1.0, 25)
     h = np.arange(26)
