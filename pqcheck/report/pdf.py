@@ -18,8 +18,10 @@ from __future__ import annotations
 import functools
 import hashlib
 import io
+import itertools
 import platform
 from datetime import timezone
+from pathlib import Path
 
 from reportlab.lib import colors
 from reportlab.lib.pagesizes import A4
@@ -53,6 +55,7 @@ from .style import (
     VERDICT_WORD,
     esc,
     fmt,
+    fmt_like,
     fmt_pct,
     register_fonts,
     styles,
@@ -212,7 +215,7 @@ class _Builder:
             cells = []
             for j, v in enumerate(row):
                 if header and i == 0:
-                    cells.append(self.cell(v, "cell_head"))
+                    cells.append(self.cell(v, "cell_head_r" if j in right else "cell_head"))
                 else:
                     cells.append(self.cell(v, "cell_r" if j in right else "cell"))
             out.append(cells)
@@ -267,7 +270,7 @@ class _Builder:
         self.fig_count += 1
         img = Image(io.BytesIO(png), width=width, height=height)
         cap = self.m(f"<b>Figure {self.fig_count}.</b> {esc(caption)}", "caption")
-        head = [self.p(heading, "h3")] if heading else []
+        head = [self.p(heading, "h3")] if heading else [Spacer(1, 3 * mm)]
         self.add(KeepTogether(head + [img, cap]))
 
 
@@ -451,9 +454,19 @@ def _cover(b: _Builder) -> None:
     pairs.append(("Time of analysis", meta.created_utc.astimezone(timezone.utc)
                   .strftime("%Y-%m-%d %H:%M:%S UTC")))
     pairs.append(("Operator", meta.operator or "not stated"))
-    runs_text = "; ".join(
-        f"{r.id}" + (f" ({r.load_point})" if r.load_point else "") for r in job.runs)
-    pairs.append((f"Captures ({len(job.runs)})", runs_text))
+    def _run_text(r):
+        name = Path(r.result.source).name
+        extra = [x for x in (r.load_point, name if name and Path(name).stem != r.id else "")
+                 if x]
+        return r.id + (f" ({', '.join(extra)})" if extra else "")
+
+    pairs.append((f"Captures ({len(job.runs)})", "; ".join(_run_text(r) for r in job.runs)))
+    for verdict_name, label in (("fail", "Limits exceeded"), ("inconclusive", "Not decided")):
+        items = list(dict.fromkeys(c.label for c in all_checks if c.verdict == verdict_name))
+        if items:
+            shown = ", ".join(items[:24]) + (f" and {len(items) - 24} more" if len(items) > 24
+                                             else "")
+            pairs.insert(0, (label, b.m(f"<b>{esc(shown)}</b>", "cell")))
     tables = job.limit_tables()
     pairs.append(("Limit tables", "; ".join(f"{_table_name(t)}: {t.title}" for t in tables)
                   if tables else "none (analysis only)"))
@@ -470,10 +483,11 @@ def _cover(b: _Builder) -> None:
 
 def _summary(b: _Builder) -> None:
     job = b.job
+    sub = itertools.count(1)
     b.h1("1  Summary")
     if job.assessed:
         b.add(b.p(text.VERDICT_MEANING, "body"))
-        b.h3("1.1  Verdict per capture and limit table")
+        b.h3(f"1.{next(sub)}  Verdict per capture and limit table")
         rows = [["Capture", "Load point", "Limit table", "Verdict", "Checks",
                  "Smallest margin"]]
         extra = []
@@ -490,7 +504,7 @@ def _summary(b: _Builder) -> None:
                 rows.append([r.id, r.load_point or "\u2013", a.limits.table_id,
                              _verdict_para(b, a.verdict), _counts_text(a.checks), wtxt])
                 extra += _verdict_style(3, len(rows) - 1, a.verdict)
-        b.add(b.table(rows, [0.14, 0.10, 0.16, 0.15, 0.25, 0.20], extra_style=extra))
+        b.add(b.table(rows, [0.13, 0.09, 0.14, 0.16, 0.29, 0.19], extra_style=extra))
         b.add(b.p("Margin = (limit \u2212 measured) / limit; a negative margin means the limit "
                   "is exceeded. Smallest margin over the decided checks.", "caption"))
     else:
@@ -499,7 +513,7 @@ def _summary(b: _Builder) -> None:
                   "quantities and data-quality findings.", "body"))
 
     if len(job.runs) > 1 or job.plan is not None:
-        b.h3("1.2  Load points")
+        b.h3(f"1.{next(sub)}  Load points")
         rows = [["Load point", "Capture", "P total", "Current THD per phase",
                  "TDD per phase", "PF", "Verdict"]]
         extra = []
@@ -530,7 +544,7 @@ def _summary(b: _Builder) -> None:
                 for c in a.checks:
                     if c.verdict in ("fail", "inconclusive"):
                         bad.append((r, a, c))
-        b.h3("1.3  Checks that did not pass")
+        b.h3(f"1.{next(sub)}  Checks that did not pass")
         if not bad:
             b.add(b.p("None: every applicable check passed.", "body"))
         else:
@@ -581,6 +595,9 @@ def _capture_facts(b: _Builder, run) -> None:
         ("Fundamental", f"{fmt(res.fundamental_hz, 6, 'Hz')} mean "
                         f"({fmt(res.freq_min_hz, 6)} to {fmt(res.freq_max_hz, 6, 'Hz')})"),
     ]
+    meta = (res.reader_settings or {}).get("metadata") or {}
+    if meta:
+        pairs.append(("File header", "; ".join(f"{k}: {v}" for k, v in meta.items())))
     if run.load_point:
         pairs.insert(0, ("Load point", run.load_point))
     if run.notes:
@@ -692,7 +709,7 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit) -> None
                 row += ["", ""]
                 continue
             mark = {"fail": " \u2717", "inconclusive": " ?"}.get(c.verdict, "")
-            row += [fmt(c.measured, 3) + mark, fmt_pct(c.margin_percent)]
+            row += [fmt_like(c.measured, c.limit) + mark, fmt_pct(c.margin_percent)]
             if worst is None or rank.get(c.verdict, 2) > rank.get(worst, 2):
                 worst = c.verdict
         row.append(_verdict_para(b, worst or ""))
@@ -743,8 +760,8 @@ def _channels_and_power(b: _Builder, run) -> None:
     il = res.settings.il_a
     b.tcaption(f"{run.id}: channel values over the capture. THD over orders 2 to "
                f"{res.max_resolved_order}; TDD relative to IL = "
-               f"{fmt(il, 5, 'A') if il else 'not given'}; PWHD over orders 14 to 40 (groups).")
-    b.add(b.table(rows, [0.09, 0.07, 0.1, 0.13, 0.09, 0.09, 0.09, 0.1, 0.09, 0.15],
+               + (f"{il:g} A" if il else "not given") + "; PWHD over orders 14 to 40 (groups).")
+    b.add(b.table(rows, [0.09, 0.07, 0.1, 0.14, 0.08, 0.09, 0.08, 0.12, 0.09, 0.14],
                   right=tuple(range(2, 10))))
     p = res.power
     if p is None:
@@ -835,7 +852,7 @@ def _findings(b: _Builder) -> None:
         rows = [["Severity", "Finding", "Channels", "What it means and what to do"]]
         extra = []
         for f in sorted(fs, key=lambda f: order.get(f.severity, 3)):
-            sev = {"error": "\u2717 ERROR", "warning": "! warning", "info": "i info"}.get(
+            sev = {"error": "\u2717 ERROR", "warning": "! warning", "info": "info"}.get(
                 f.severity, f.severity)
             sev_cell = (b.m(f'<font color="white"><b>{esc(sev)}</b></font>', "cell")
                         if f.severity == "error" else sev)

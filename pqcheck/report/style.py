@@ -22,7 +22,7 @@ from reportlab.lib.styles import ParagraphStyle
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
 
-__all__ = ["esc", "fmt", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
+__all__ = ["esc", "fmt", "fmt_like", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
            "INK", "ACCENT", "MUTED", "RULE", "SHADE", "FONT", "FONT_BOLD", "FONT_MONO"]
 
 FONT = "PQSans"
@@ -84,13 +84,30 @@ def fmt(x, digits: int = 4, unit: str = "") -> str:
     if xf == 0:
         s = "0"
     else:
-        mag = math.floor(math.log10(abs(xf)))
+        rounded = float(f"{xf:.{digits}g}")  # 99.9999 -> 100.0 (4 digits), not 100.00
+        mag = math.floor(math.log10(abs(rounded)))
         if -4 <= mag < 7:
             dec = max(0, digits - 1 - mag)
             s = f"{xf:.{dec}f}"
         else:
             s = f"{xf:.{digits - 1}e}"
     return f"{s} {unit}".rstrip() if unit else s
+
+
+def fmt_like(x, ref, digits: int = 4) -> str:
+    """``x`` with as many decimals as ``ref`` shows with ``digits`` significant digits, so a
+    column of measured values lines up with its limits (``fmt_like(9.9e-6, 5.0)`` is
+    ``"0.000"``); falls back to :func:`fmt` when ``ref`` is missing or zero."""
+    try:
+        r = abs(float(ref))
+        xf = float(x)
+    except (TypeError, ValueError):
+        return fmt(x, digits)
+    if not (math.isfinite(r) and r > 0 and math.isfinite(xf)):
+        return fmt(x, digits)
+    dec = max(0, digits - 1 - math.floor(math.log10(r)))
+    s = f"{xf:.{dec}f}"
+    return s[1:] if s.startswith("-") and float(s) == 0 else s
 
 
 def fmt_pct(x, digits: int = 3) -> str:
@@ -113,9 +130,10 @@ def styles() -> dict:
     st["cell_b"] = ParagraphStyle("cell_b", parent=st["cell"], fontName=FONT_BOLD)
     st["cell_head"] = ParagraphStyle("cell_head", parent=st["cell"], fontName=FONT_BOLD,
                                      textColor=ACCENT)
+    st["cell_head_r"] = ParagraphStyle("cell_head_r", parent=st["cell_head"], alignment=TA_RIGHT)
     st["mono"] = ParagraphStyle("mono", parent=st["cell"], fontName=FONT_MONO, fontSize=6.9)
     st["h1"] = ParagraphStyle("h1", parent=base, fontName=FONT_BOLD, fontSize=14, leading=18,
-                              textColor=ACCENT, spaceBefore=4, spaceAfter=8, keepWithNext=1)
+                              textColor=ACCENT, spaceBefore=12, spaceAfter=8, keepWithNext=1)
     st["h2"] = ParagraphStyle("h2", parent=base, fontName=FONT_BOLD, fontSize=11, leading=14,
                               textColor=ACCENT, spaceBefore=10, spaceAfter=5, keepWithNext=1)
     st["h3"] = ParagraphStyle("h3", parent=base, fontName=FONT_BOLD, fontSize=9.2,
