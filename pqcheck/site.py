@@ -31,6 +31,11 @@ seen from the PCC (resistance as given, reactance proportional to order). Other 
 linear: it adds fundamental current (to IL) but no harmonics. Capacitors, cable capacitance,
 resonances, background distortion of the network and the units' response to the voltage
 distortion are not modelled.
+
+A unit's harmonic currents are its IEC 61000-4-7 harmonic components (rms over the capture,
+phase of the mean phasor), because phasors are needed for phase shifts and the phasor sum; the
+IEEE 519 tables name the harmonic subgroup, which for a steady load differs from the component
+only by the small leakage into the neighbouring bins.
 """
 
 from __future__ import annotations
@@ -56,6 +61,7 @@ __all__ = [
     "SUMMATIONS",
     "PCC_LOCATIONS",
     "MAX_HEADROOM",
+    "CAUTIONS",
     "summation_exponent",
     "aggregate",
     "transformer_shift",
