@@ -138,34 +138,30 @@ def _numeric_fields(fields, decimal):
     return all(rx.match(f) for f in fields) and any(f.strip() for f in fields)
 
 
-def _mostly_numeric(fields, decimal):
-    """More filled fields are numbers than are not: a data row with a bad cell or a wrong
-    number of fields, rather than a header or metadata line."""
-    rx = _NUM_COMMA_RE if decimal == "," else _NUM_RE
-    filled = [f for f in fields if f.strip()]
-    good = sum(1 for f in filled if rx.match(f))
-    return good > len(filled) - good
-
-
 def _step_over_bad_rows(lines, counts, startl, k, delim, decimal):
     """Extend a data block that starts at ``startl`` upward over malformed data rows.
 
     Without this a bad row among the sniffed lines (a cell that is not a number, a missing or
     extra field) ends the block and is taken for the header: the real header and the rows
-    above are lost and the error no longer names the bad line. A mostly-numeric row is stepped
-    over when numeric rows of ``k`` fields, or a text header of ``k`` fields, lie above it;
-    :func:`read_table` then refuses it with its line number.
+    above are lost and the error no longer names the bad line. A row is stepped over when it
+    lies between numeric rows of ``k`` fields and holds at least one number (metadata never
+    sits between data rows; in a two-column file a bad row is half text), or when it is
+    mostly numeric under a text header of ``k`` fields; :func:`read_table` then refuses it
+    with its line number.
     """
-    while startl >= 2 and _mostly_numeric(lines[startl - 1].split(delim), decimal):
+    rx = _NUM_COMMA_RE if decimal == "," else _NUM_RE
+    while startl >= 2:
+        fields = [f for f in lines[startl - 1].split(delim) if f.strip()]
+        good = sum(1 for f in fields if rx.match(f))
         above = lines[startl - 2].split(delim)
-        if len(above) == k and _numeric_fields(above, decimal):
+        if good and len(above) == k and _numeric_fields(above, decimal):
             startl -= 1
             while startl > 0 and counts[startl - 1] == k and _numeric_fields(
                 lines[startl - 1].split(delim), decimal
             ):
                 startl -= 1
-        elif len(above) == k and not any(
-            (_NUM_COMMA_RE if decimal == "," else _NUM_RE).match(f) for f in above if f.strip()
+        elif good > len(fields) - good and len(above) == k and not any(
+            rx.match(f) for f in above if f.strip()
         ):
             return startl - 1  # the first data row is the bad one; the header is above it
         else:

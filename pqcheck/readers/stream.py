@@ -268,11 +268,19 @@ def _chunks(reader, path, d, names):
             msg = str(exc)
             m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
             if m:
-                line = int(m.group(2)) + d.data_line - 1
+                line = int(m.group(2))  # pandas counts lines of the file, skipped rows included
                 raise CaptureFormatError(
                     f"row has {m.group(3)} fields but the header has {m.group(1)}; fix or "
                     "delete that row (mixed delimiters?)", path=path, line=line) from None
-            bad = _d._locate_bad_cell(path, d, names)
+            m = re.search(r"EOF inside string starting at row (\d+)", msg)
+            if m:  # a stray quote at the start of a cell; pandas counts rows of the file from 0
+                raise CaptureFormatError(
+                    'a quote (") opens a text field that never closes; remove it from that row',
+                    path=path, line=int(m.group(1)) + 1) from None
+            try:
+                bad = _d._locate_bad_cell(path, d, names)
+            except pd.errors.ParserError:  # reported below with pandas' own words
+                bad = None
             if bad is not None:
                 line, col, text = bad
                 shown = text if len(text) <= 40 else text[:37] + "..."
