@@ -1,0 +1,957 @@
+"""Batch runs: many captures checked against the same limit tables, one tidy table of results.
+
+A charging-network operator or a utility may hold thousands of captures from a fleet.
+:func:`run_batch` finds the captures in folders or glob patterns (:func:`find_captures`), and
+checks each one exactly as ``pqcheck check`` does (:func:`pqcheck.pipeline.analyze_file`, then
+:func:`pqcheck.limits.resolve` and :func:`pqcheck.assess.assess`), collecting one row per
+capture and check (:data:`SCHEMA`).
+
+Parallel work
+    The same module-level work function (:func:`check_capture`, plain dicts in and out) runs
+    in-process (one job), in a process pool (:class:`ProcessExecutor`) or on a Dask cluster
+    (:class:`DaskExecutor`), so every executor gives the same table.
+
+Resume
+    Every capture is hashed first (:func:`capture_sha256`: the file's SHA-256; for COMTRADE one
+    hash over the .cfg bytes followed by the .dat bytes, the value the reader records). Captures
+    whose SHA-256 is already in the results file are skipped; rows of captures analysed again
+    replace their older rows. The results file is rewritten every minute while the batch runs,
+    and when it is interrupted, so a re-run continues where it stopped. A results file made with
+    other limits or options is not mixed with new rows: the run stops with an error instead.
+
+Failures
+    A capture that cannot be read or analysed becomes one row with verdict ``error`` and the
+    message; the batch goes on. A worker process that dies (out of memory, a crash) is retried
+    alone before its capture is recorded as an error.
+
+Output
+    Parquet (pyarrow) and/or CSV, written atomically (temporary file, then rename). Rows are
+    sorted by capture path, checks in the order ``pqcheck check`` makes them.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+import functools
+import glob
+import hashlib
+import json
+import math
+import os
+import time
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
+from dataclasses import dataclass
+from pathlib import Path
+
+import pyarrow as pa
+
+from .errors import InputError, PqcheckError
+
+__all__ = [
+    "SCHEMA",
+    "CAPTURE_SUFFIXES",
+    "BatchSpec",
+    "BatchRun",
+    "find_captures",
+    "capture_sha256",
+    "hash_capture",
+    "check_capture",
+    "run_batch",
+    "read_results",
+    "write_results",
+    "summarize",
+    "exit_code",
+    "InlineExecutor",
+    "ProcessExecutor",
+    "DaskExecutor",
+    "MissingExtraError",
+]
+
+CAPTURE_SUFFIXES = (".csv", ".csv.gz", ".tsv", ".tsv.gz", ".cfg", ".npy", ".parquet", ".pq")
+"""Names found in folders and glob patterns (case-insensitive). A COMTRADE record counts once,
+by its .cfg; a .dat without a .cfg next to it is not a capture."""
+
+SCHEMA = pa.schema([
+    ("capture", pa.string()),            # path as found
+    ("capture_sha256", pa.string()),     # hex; COMTRADE: over .cfg + .dat
+    ("capture_verdict", pa.string()),    # pass, fail, inconclusive, not applicable, error
+    ("table_id", pa.string()),
+    ("table_sha256", pa.string()),
+    ("quantity", pa.string()),           # harmonic, THD, TDD, ...
+    ("order", pa.int64()),               # harmonic order, null for totals
+    ("applies_to", pa.string()),         # current or voltage
+    ("phase", pa.string()),
+    ("channel", pa.string()),
+    ("statistic", pa.string()),
+    ("measured", pa.float64()),          # [unit]
+    ("limit", pa.float64()),             # [unit]
+    ("unit", pa.string()),
+    ("margin_percent", pa.float64()),    # [%] (limit - measured) / limit
+    ("verdict", pa.string()),            # of the check; "error" on an error row
+    ("clause", pa.string()),
+    ("verify", pa.bool_()),
+    ("note", pa.string()),
+    ("capture_notes", pa.string()),      # the assessment's notes, joined by "; "
+    ("error", pa.string()),              # message on an error row
+    ("settings_key", pa.string()),       # limits and options the row was made with
+])
+"""Columns of the results table."""
+
+CHECKPOINT_S = 60.0
+"""Seconds between rewrites of the results files while a batch runs."""
+
+_VERDICTS = ("fail", "inconclusive", "pass", "not applicable", "error")
+
+
+class MissingExtraError(PqcheckError):
+    """An optional dependency (an extra of the package) is not installed."""
+
+
+# --- what every capture is checked with ---------------------------------------------------
+
+
+@dataclass(frozen=True)
+class BatchSpec:
+    """Limits and options shared by every capture of a batch (plain, picklable data).
+
+    Attributes
+    ----------
+    limits : tuple of str
+        Limit tables: bundled ids or paths of .toml files (paths made absolute).
+    selectors : tuple of (str, object)
+        Keyword arguments of :func:`pqcheck.limits.resolve`; None values left out.
+    sample_rate_hz : float or None
+        Sample rate for files without a time base. [Hz]
+    current, voltage : tuple of str or None
+        Channel map (column names in phase order a, b, c).
+    time_column : str or None
+        Name of the time column when it is not recognised.
+    analysis : tuple of (str, object)
+        Keyword arguments of :func:`pqcheck.analyze` (``nominal_hz``, ``max_order``, ``il_a``,
+        ``wiring``, ``reference``).
+    il_a, rated_current_a, iref_a, active_power_w : float or None
+        Reference values of :func:`pqcheck.assess.assess`. [A], [A], [A], [W]
+    cache_dir : str or None
+        Cache folder (None: the default folder on each worker).
+    use_cache : bool
+        Read and write the cache of parsed captures and results.
+    """
+
+    limits: tuple
+    selectors: tuple = ()
+    sample_rate_hz: float | None = None
+    current: tuple | None = None
+    voltage: tuple | None = None
+    time_column: str | None = None
+    analysis: tuple = ()
+    il_a: float | None = None
+    rated_current_a: float | None = None
+    iref_a: float | None = None
+    active_power_w: float | None = None
+    cache_dir: str | None = None
+    use_cache: bool = True
+
+    @classmethod
+    def make(cls, limits, *, selectors=None, analysis=None, current=None, voltage=None,
+             cache_dir=None, **kwargs) -> BatchSpec:
+        """Build a spec from lists and dicts (paths made absolute, None selectors dropped)."""
+        lims = tuple(os.path.abspath(x) if _is_file(x) else str(x) for x in limits)
+        sel = tuple(sorted((k, v) for k, v in (selectors or {}).items() if v is not None))
+        ana = tuple(sorted((analysis or {}).items()))
+        return cls(limits=lims, selectors=sel, analysis=ana,
+                   current=None if current is None else tuple(current),
+                   voltage=None if voltage is None else tuple(voltage),
+                   cache_dir=None if cache_dir is None else os.path.abspath(cache_dir),
+                   **kwargs)
+
+    def resolve(self) -> tuple:
+        """The resolved limit tables (:class:`pqcheck.limits.ResolvedLimits`), in order.
+
+        Raises
+        ------
+        InputError
+            A table cannot be read, or a selector it needs is missing or out of range.
+        """
+        return _resolved(self.limits, self.selectors)
+
+    def key(self) -> str:
+        """Short hash of everything that decides a row: the tables (id and SHA-256 of the
+        file), the selectors, the channel map and the analysis and assessment options."""
+        tables = [(t.table_id, t.sha256, [list(s) for s in t.selectors]) for t in self.resolve()]
+        d = dataclasses.asdict(self)
+        for k in ("limits", "cache_dir", "use_cache"):
+            d.pop(k)
+        d["tables"] = tables
+        text = json.dumps(d, sort_keys=True, default=str)
+        return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def _is_file(x) -> bool:
+    return isinstance(x, os.PathLike) or (os.path.isfile(str(x)))
+
+
+@functools.lru_cache(maxsize=8)
+def _resolved(limits: tuple, selectors: tuple) -> tuple:
+    from .limits import load_table, resolve
+
+    return tuple(resolve(load_table(x), **dict(selectors)) for x in limits)
+
+
+# --- finding captures ---------------------------------------------------------------------
+
+
+def _capture_name(name: str) -> bool:
+    low = name.lower()
+    return not name.startswith(".") and low.endswith(CAPTURE_SUFFIXES)
+
+
+def _comtrade_cfg(dat: Path) -> Path | None:
+    """The .cfg next to a .dat (same base name, extension in any case), or None."""
+    try:
+        for q in sorted(dat.parent.iterdir()):
+            if q.stem == dat.stem and q.suffix.lower() == ".cfg" and q.is_file():
+                return q
+    except OSError:
+        return None
+    return None
+
+
+def find_captures(inputs, *, exclude=()) -> tuple:
+    """Find the captures named by folders, glob patterns or file paths.
+
+    Parameters
+    ----------
+    inputs : sequence of str or os.PathLike
+        A folder (searched recursively, hidden files and folders left out), a glob pattern
+        (``**`` matches any depth) or a file (taken whatever its extension).
+    exclude : sequence of str or os.PathLike
+        Files never taken as captures (the results files of the batch).
+
+    Returns
+    -------
+    (captures, ignored)
+        ``captures``: tuple of str, paths as found, sorted within each input, each file once;
+        a COMTRADE record is named by its .cfg even when its .dat matched. ``ignored``: tuple of
+        str, .dat files skipped because no .cfg is next to them.
+
+    Raises
+    ------
+    InputError
+        An input is neither a file, a folder nor a pattern that matches something, or nothing
+        was found at all.
+    """
+    skip = {os.path.realpath(p) for p in exclude if p is not None}
+    seen, found, ignored = set(), [], []
+
+    def add(p: Path, explicit: bool):
+        if p.suffix.lower() == ".dat":
+            cfg = _comtrade_cfg(p)
+            if cfg is None:
+                if not explicit:
+                    ignored.append(str(p))
+                    return
+            else:
+                p = cfg
+        elif not explicit and not _capture_name(p.name):
+            return
+        real = os.path.realpath(p)
+        if real in skip or real in seen:
+            return
+        seen.add(real)
+        found.append(str(p))
+
+    for item in inputs:
+        text = os.fspath(item)
+        p = Path(text)
+        if p.is_dir():
+            for q in sorted(_walk(p)):
+                add(q, False)
+        elif p.is_file():
+            add(p, True)
+        elif any(ch in text for ch in "*?["):
+            hits = sorted(glob.glob(text, recursive=True))
+            if not hits:
+                raise InputError("the pattern matches no file", path=text)
+            for h in hits:
+                if os.path.isfile(h):
+                    add(Path(h), False)
+        else:
+            raise InputError("no such file or folder", path=text)
+    if not found:
+        names = ", ".join(os.fspath(i) for i in inputs)
+        raise InputError(f"no capture found (looked for {', '.join(CAPTURE_SUFFIXES)})",
+                         path=names)
+    return tuple(found), tuple(ignored)
+
+
+def _walk(root: Path):
+    for dirpath, dirnames, filenames in os.walk(root):
+        dirnames[:] = [d for d in dirnames if not d.startswith(".")]
+        for f in filenames:
+            if not f.startswith("."):
+                yield Path(dirpath) / f
+
+
+# --- hashing ------------------------------------------------------------------------------
+
+
+def capture_sha256(path) -> str:
+    """SHA-256 of a capture, the value its reader records as provenance (hex).
+
+    For a COMTRADE record (``.cfg`` or ``.dat``) it is one hash over the .cfg bytes followed by
+    the .dat bytes; for any other file the hash of its bytes
+    (:func:`pqcheck.readers.file_sha256`).
+
+    Raises
+    ------
+    CaptureFormatError
+        The file, or the other file of a COMTRADE pair, is missing or cannot be read.
+    """
+    from .errors import CaptureFormatError
+    from .readers import file_sha256
+
+    p = Path(path)
+    try:
+        if p.suffix.lower() in (".cfg", ".dat"):
+            from .readers.comtrade import _pair  # the reader's own pairing rule
+
+            if p.suffix.lower() == ".cfg" or _comtrade_cfg(p) is not None:
+                h = hashlib.sha256()
+                for f in _pair(p):
+                    with open(f, "rb") as fh:
+                        for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
+                            h.update(block)
+                return h.hexdigest()
+        return file_sha256(p)
+    except FileNotFoundError:
+        raise CaptureFormatError("file not found; check the path", path=str(p)) from None
+    except IsADirectoryError:
+        raise CaptureFormatError("is a folder, not a capture file", path=str(p)) from None
+    except OSError as exc:
+        raise CaptureFormatError(f"cannot read the file: {exc.strerror or exc}",
+                                 path=str(p)) from None
+
+
+def hash_capture(path: str) -> dict:
+    """Work function of the hashing pass: ``{"sha256": hex or None, "error": str or None}``."""
+    try:
+        return {"sha256": capture_sha256(path), "error": None}
+    except Exception as exc:  # noqa: BLE001 - a batch records every failure as data
+        return {"sha256": None, "error": _message(exc)}
+
+
+# --- the work function --------------------------------------------------------------------
+
+
+def _message(exc: BaseException) -> str:
+    if isinstance(exc, InputError):
+        return exc.location_message()
+    if isinstance(exc, PqcheckError):
+        return str(exc)
+    if isinstance(exc, MemoryError):
+        return "out of memory; try a shorter capture or fewer jobs"
+    return f"internal error: {type(exc).__name__}: {exc}"
+
+
+def _num(x):
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def _blank_row(capture: str, sha, key: str) -> dict:
+    row = dict.fromkeys(SCHEMA.names)
+    row.update(capture=capture, capture_sha256=sha, settings_key=key)
+    return row
+
+
+def error_row(capture: str, sha, key: str, message: str) -> dict:
+    """The one row that records a capture that could not be checked."""
+    row = _blank_row(capture, sha, key)
+    row.update(capture_verdict="error", verdict="error", error=message)
+    return row
+
+
+def check_capture(task: dict) -> list:
+    """Work function: analyse and assess one capture, return its rows.
+
+    Parameters
+    ----------
+    task : dict
+        ``capture`` (path as it goes in the table), ``path`` (path to open), ``sha256`` (from
+        the hashing pass), ``key`` (:meth:`BatchSpec.key`) and ``spec`` (the fields of a
+        :class:`BatchSpec` as a dict).
+
+    Returns
+    -------
+    list of dict
+        One row per check (:data:`SCHEMA` columns); one row with the notes when nothing was
+        assessed; one ``error`` row when the capture could not be read or analysed. It never
+        raises for a bad capture.
+    """
+    capture, sha, key = task["capture"], task.get("sha256"), task.get("key", "")
+    try:
+        return _check_rows(task)
+    except Exception as exc:  # noqa: BLE001 - a batch records every failure as data
+        # the same message whichever executor ran it: name the capture as the table does
+        message = _message(exc).replace(task["path"], capture)
+        return [error_row(capture, sha, key, message)]
+
+
+def _check_rows(task: dict) -> list:
+    from .assess import assess
+    from .cache import Cache
+    from .pipeline import analyze_file
+
+    spec = BatchSpec(**task["spec"])
+    capture, sha, key = task["capture"], task.get("sha256"), task.get("key", "")
+    tables = spec.resolve()
+    cache = Cache(spec.cache_dir) if spec.use_cache else None
+    _, result = analyze_file(task["path"], sample_rate_hz=spec.sample_rate_hz,
+                             current=None if spec.current is None else list(spec.current),
+                             voltage=None if spec.voltage is None else list(spec.voltage),
+                             time_column=spec.time_column, cache=cache, **dict(spec.analysis))
+    if sha and result.sha256 and result.sha256 != sha:
+        raise PqcheckError(f"{capture}: the file changed while the batch ran (SHA-256 "
+                           f"{sha[:12]}... then {result.sha256[:12]}...); run the batch again")
+    a = assess(result, tables, il_a=spec.il_a, rated_current_a=spec.rated_current_a,
+               iref_a=spec.iref_a, active_power_w=spec.active_power_w)
+    table_sha = {t.table_id: t.sha256 for t in a.tables}
+    base = _blank_row(capture, sha or result.sha256, key)
+    base.update(capture_verdict=a.verdict, capture_notes="; ".join(a.notes))
+    if not a.checks:
+        return [{**base, "verdict": a.verdict}]
+    rows = []
+    for c in a.checks:
+        rows.append({
+            **base, "table_id": c.table_id, "table_sha256": table_sha.get(c.table_id),
+            "quantity": c.quantity, "order": None if c.order is None else int(c.order),
+            "applies_to": c.applies_to, "phase": c.phase, "channel": c.channel,
+            "statistic": c.statistic, "measured": _num(c.measured), "limit": _num(c.limit),
+            "unit": c.unit, "margin_percent": _num(c.margin_percent), "verdict": c.verdict,
+            "clause": c.clause, "verify": bool(c.verify), "note": c.note})
+    return rows
+
+
+# --- executors ----------------------------------------------------------------------------
+
+
+class InlineExecutor:
+    """Runs the work in this process, one capture after another (``--jobs 1``)."""
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+    def imap_unordered(self, fn, items, on_crash=None):
+        """Yield ``(index, fn(item))`` for every item (``on_crash`` is not needed here)."""
+        for i, x in enumerate(items):
+            yield i, fn(x)
+
+
+class ProcessExecutor:
+    """A pool of worker processes (:class:`concurrent.futures.ProcessPoolExecutor`).
+
+    Parameters
+    ----------
+    jobs : int or None
+        Worker processes; None: the number of CPUs.
+
+    Notes
+    -----
+    Workers are started by the ``forkserver`` method where it exists (a fresh process, not a
+    copy of this one with its threads), else by the platform default. When a worker dies, the
+    pool breaks and every unfinished item fails; those items are then run one at a time in a
+    fresh one-worker pool, so only the item that kills its worker gets ``on_crash``.
+    """
+
+    def __init__(self, jobs: int | None = None):
+        self.jobs = jobs or os.cpu_count() or 1
+        self.pool = None
+
+    def _new_pool(self, n: int):
+        import multiprocessing
+
+        ctx = None
+        if "forkserver" in multiprocessing.get_all_start_methods():
+            ctx = multiprocessing.get_context("forkserver")
+        return ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_worker_init)
+
+    def __enter__(self):
+        self.pool = self._new_pool(self.jobs)
+        return self
+
+    def __exit__(self, exc_type, *exc):
+        if self.pool is not None:
+            # no public way to stop running workers before Python 3.14 (terminate_workers)
+            running = getattr(self.pool, "_processes", None)
+            procs = list(running.values()) if isinstance(running, dict) else []
+            self.pool.shutdown(wait=exc_type is None, cancel_futures=True)
+            if exc_type is not None:  # interrupted: do not wait for captures in progress
+                for proc in procs:
+                    proc.terminate()
+            self.pool = None
+        return False
+
+    def imap_unordered(self, fn, items, on_crash=None):
+        """Yield ``(index, fn(item))`` as items finish; ``on_crash(item, message)`` stands in
+        for the result of an item whose worker died (default: raise)."""
+        items = list(items)
+        futs = {self.pool.submit(fn, x): i for i, x in enumerate(items)}
+        crashed = []
+        for f in as_completed(futs):
+            i = futs[f]
+            try:
+                yield i, f.result()
+            except BrokenProcessPool:
+                crashed.append(i)
+        if not crashed:
+            return
+        self.pool.shutdown(wait=False, cancel_futures=True)
+        self.pool = None
+        for i in sorted(crashed):
+            pool = self._new_pool(1)
+            try:
+                yield i, pool.submit(fn, items[i]).result()
+            except BrokenProcessPool as exc:
+                if on_crash is None:
+                    raise
+                yield i, on_crash(items[i], f"the worker process died ({exc}); the capture "
+                                            "may need more memory than a worker has")
+            finally:
+                pool.shutdown(wait=False, cancel_futures=True)
+        self.pool = self._new_pool(self.jobs)
+
+
+def _worker_init():
+    """Worker processes leave Ctrl-C to the parent, which saves the work done and stops them."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+class DaskExecutor:
+    """A Dask cluster: an existing scheduler, or a local cluster of worker processes.
+
+    Parameters
+    ----------
+    address : str or None
+        Scheduler address (``tcp://host:8786``). The workers must see the captures at the same
+        paths (a shared file system) and have pqcheck installed.
+    workers : int or None
+        Start a :class:`distributed.LocalCluster` with this many single-threaded worker
+        processes (when ``address`` is None).
+
+    Raises
+    ------
+    MissingExtraError
+        ``dask.distributed`` is not installed.
+    InputError
+        The scheduler cannot be reached.
+    """
+
+    def __init__(self, address: str | None = None, workers: int | None = None):
+        try:
+            import distributed  # noqa: F401
+        except ImportError:
+            raise MissingExtraError(
+                "the Dask options need dask.distributed, which is not installed; install it "
+                "with: pip install 'pqcheck[cluster]'") from None
+        self.address = address
+        self.workers = workers
+        self.client = None
+        self.cluster = None
+
+    def __enter__(self):
+        import logging
+
+        from distributed import Client, LocalCluster
+
+        if self.address:
+            try:
+                self.client = Client(self.address, timeout="10s")
+            except (OSError, TimeoutError) as exc:
+                raise InputError(f"cannot reach the Dask scheduler ({exc})",
+                                 field="--scheduler") from None
+        else:
+            self.cluster = LocalCluster(n_workers=self.workers or os.cpu_count() or 1,
+                                        threads_per_worker=1, processes=True,
+                                        dashboard_address=None, silence_logs=logging.ERROR)
+            self.client = Client(self.cluster)
+        return self
+
+    def __exit__(self, *exc):
+        if self.client is not None:
+            self.client.close()
+        if self.cluster is not None:
+            self.cluster.close()
+        return False
+
+    def imap_unordered(self, fn, items, on_crash=None):
+        """Yield ``(index, fn(item))`` as items finish; ``on_crash(item, message)`` stands in
+        for an item the cluster could not run (a worker died repeatedly)."""
+        from distributed import as_completed as dask_completed
+
+        items = list(items)
+        if not items:
+            return
+        futs = self.client.map(fn, items, pure=False)
+        index = {f.key: i for i, f in enumerate(futs)}
+        for f in dask_completed(futs):
+            i = index[f.key]
+            try:
+                yield i, f.result()
+            except Exception as exc:  # noqa: BLE001 - KilledWorker, lost connection, ...
+                if on_crash is None:
+                    raise
+                yield i, on_crash(items[i], f"the cluster could not run it "
+                                            f"({type(exc).__name__}: {exc})")
+            finally:
+                f.release()
+
+
+# --- results files ------------------------------------------------------------------------
+
+
+def _empty_table() -> pa.Table:
+    return SCHEMA.empty_table()
+
+
+def read_results(path) -> pa.Table:
+    """Read a results file written by :func:`write_results` (Parquet, or CSV by extension).
+
+    Raises
+    ------
+    InputError
+        The file cannot be read or lacks the columns of :data:`SCHEMA`.
+    """
+    import pyarrow.csv as pacsv
+    import pyarrow.parquet as pq
+
+    p = Path(path)
+    try:
+        if p.suffix.lower() == ".csv":
+            table = pacsv.read_csv(p, convert_options=pacsv.ConvertOptions(
+                column_types=SCHEMA, strings_can_be_null=True,
+                quoted_strings_can_be_null=False))
+        else:
+            table = pq.read_table(p)
+    except (OSError, pa.ArrowException) as exc:
+        raise InputError(f"cannot read it as a results table ({exc}); give another output "
+                         "file or --force to replace it", path=str(p)) from None
+    missing = [n for n in SCHEMA.names if n not in table.column_names]
+    if missing:
+        raise InputError(f"not a pqcheck batch results table (no column {missing[0]!r}); give "
+                         "another output file or --force to replace it", path=str(p))
+    try:
+        return table.select(SCHEMA.names).cast(SCHEMA)
+    except (pa.ArrowException, ValueError) as exc:
+        raise InputError(f"columns of unexpected types ({exc})", path=str(p)) from None
+
+
+def write_results(table: pa.Table, *, parquet=None, csv=None) -> None:
+    """Write the results table to Parquet and/or CSV, each atomically, replacing old files.
+
+    Raises
+    ------
+    ReportError
+        A file cannot be written (its folder is missing, the disk is full, ...).
+    """
+    import pyarrow.csv as pacsv
+    import pyarrow.parquet as pq
+
+    from .report.atomic import atomic_open
+
+    if parquet is not None:
+        with atomic_open(parquet, "wb", force=True, option="--out") as fh:
+            pq.write_table(table, fh)
+    if csv is not None:
+        with atomic_open(csv, "wb", force=True, option="--csv") as fh:
+            pacsv.write_csv(table, fh)
+
+
+class _Results:
+    """Old rows from the results file, new rows of this run, periodic atomic rewrites."""
+
+    def __init__(self, parquet, csv, key: str, force: bool):
+        from .report.atomic import check_target
+
+        self.parquet, self.csv = parquet, csv
+        for path, opt in ((parquet, "--out"), (csv, "--csv")):
+            if path is not None:
+                check_target(path, force=True, option=opt)
+        self.old = _empty_table()
+        source = next((p for p in (parquet, csv) if p is not None and Path(p).exists()), None)
+        if source is not None and not force:
+            self.old = read_results(source)
+            keys = set(self.old.column("settings_key").drop_null().to_pylist()) - {key}
+            if keys:
+                raise InputError(
+                    "holds results made with other limit tables, selectors or options; give "
+                    "another output file, or --force to start it afresh", path=str(source))
+        self.new: list = []
+        self.redone_paths: set = set()
+        self.redone_shas: set = set()
+        self.last_write = time.monotonic()
+
+    def done(self, retry_errors: bool) -> set:
+        """SHA-256 of the captures the file already holds (without error rows if asked)."""
+        shas = self.old.column("capture_sha256").to_pylist()
+        verdicts = self.old.column("capture_verdict").to_pylist()
+        if retry_errors:
+            return {s for s, v in zip(shas, verdicts) if s and v != "error"}
+        return {s for s in shas if s}
+
+    def add(self, capture: str, sha, rows: list):
+        self.redone_paths.add(capture)
+        if sha:
+            self.redone_shas.add(sha)
+        self.new += rows
+
+    def table(self) -> pa.Table:
+        """Old rows not redone, then the new ones, sorted by capture (stable)."""
+        import pyarrow.compute as pc
+
+        old = self.old
+        if old.num_rows and (self.redone_paths or self.redone_shas):
+            redone = pc.or_(
+                pc.is_in(old.column("capture"), pa.array(sorted(self.redone_paths), pa.string())),
+                pc.fill_null(pc.is_in(old.column("capture_sha256"),
+                                      pa.array(sorted(self.redone_shas), pa.string())), False))
+            old = old.filter(pc.invert(redone))
+        new = pa.Table.from_pylist(self.new, schema=SCHEMA)
+        t = pa.concat_tables([old, new])
+        return t.take(pc.sort_indices(t, sort_keys=[("capture", "ascending")]))
+
+    def write(self, *, final: bool = False):
+        if self.parquet is None and self.csv is None:
+            return
+        if not final and time.monotonic() - self.last_write < CHECKPOINT_S:
+            return
+        write_results(self.table(), parquet=self.parquet, csv=self.csv)
+        self.last_write = time.monotonic()
+
+
+# --- the run ------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class BatchRun:
+    """What a batch did.
+
+    Attributes
+    ----------
+    table : pyarrow.Table
+        Rows of the captures of this run's inputs: those checked now and those found already
+        in the results file (:data:`SCHEMA`), sorted by capture.
+    captures : tuple of str
+        Captures found.
+    checked : int
+        Captures analysed (or failed) in this run, plus those that could not be hashed.
+    skipped : int
+        Captures whose SHA-256 was already in the results file.
+    ignored : tuple of str
+        Files left out (a .dat without its .cfg).
+    written : tuple of str
+        Results files written.
+    rows_written : int
+        Rows in the results files (they may hold other captures from earlier runs).
+    """
+
+    table: pa.Table
+    captures: tuple
+    checked: int
+    skipped: int
+    ignored: tuple = ()
+    written: tuple = ()
+    rows_written: int = 0
+
+
+def _bar(total: int, desc: str, show: bool):
+    import sys
+
+    from tqdm import tqdm
+
+    return tqdm(total=total, desc=desc, unit="capture", file=sys.stderr, dynamic_ncols=True,
+                leave=False, disable=not show)
+
+
+def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, force=False,
+              retry_errors=False, progress=False) -> BatchRun:
+    """Check every capture found in ``inputs`` against the spec's limit tables.
+
+    Parameters
+    ----------
+    inputs : sequence of str or os.PathLike
+        Folders, glob patterns or files (see :func:`find_captures`).
+    spec : BatchSpec
+        Limits and options.
+    out, csv : str or os.PathLike or None
+        Results files (Parquet, CSV). An existing one is resumed from (captures whose SHA-256
+        it holds are skipped) unless ``force``.
+    executor : InlineExecutor, ProcessExecutor or DaskExecutor, optional
+        Where the work runs (entered and left here); default :class:`InlineExecutor`.
+    force : bool
+        Ignore and replace existing results files.
+    retry_errors : bool
+        Check again the captures that the results file records as errors.
+    progress : bool
+        Show progress bars on stderr.
+
+    Returns
+    -------
+    BatchRun
+
+    Raises
+    ------
+    InputError
+        No capture found, a limit table or selector is wrong, or an existing results file is
+        not one, or was made with other settings.
+    ReportError
+        A results file cannot be written.
+    MissingExtraError
+        The executor needs an optional dependency.
+    """
+    key = spec.key()  # resolves the tables: bad limits stop the batch before any work
+    captures, ignored = find_captures(inputs, exclude=(out, csv))
+    results = _Results(out, csv, key, force)
+    done = results.done(retry_errors)
+    executor = executor or InlineExecutor()
+    spec_dict = dataclasses.asdict(spec)
+    shas: list = [None] * len(captures)
+    todo, skipped_shas, unreadable = [], set(), 0
+    try:
+        with executor as ex:
+            with _bar(len(captures), "hashing", progress) as bar:
+                for i, h in ex.imap_unordered(hash_capture, captures,
+                                              lambda c, m: {"sha256": None, "error": m}):
+                    bar.update(1)
+                    shas[i] = h["sha256"]
+                    if h["error"]:
+                        unreadable += 1
+                        results.add(captures[i], None,
+                                    [error_row(captures[i], None, key, h["error"])])
+                    elif h["sha256"] in done:
+                        skipped_shas.add(h["sha256"])
+                    else:
+                        todo.append(i)
+            tasks = [{"capture": captures[i], "path": os.path.abspath(captures[i]),
+                      "sha256": shas[i], "key": key, "spec": spec_dict} for i in sorted(todo)]
+
+            def crashed(task, message):
+                return [error_row(task["capture"], task["sha256"], key, message)]
+
+            with _bar(len(tasks), "checking", progress) as bar:
+                for i, rows in ex.imap_unordered(check_capture, tasks, crashed):
+                    bar.update(1)
+                    results.add(tasks[i]["capture"], tasks[i]["sha256"], rows)
+                    results.write()
+    except BaseException:
+        # interrupted or failed: keep the work done so far, so that a re-run resumes from it
+        with contextlib.suppress(Exception):
+            results.write(final=True)
+        raise
+    results.write(final=True)
+    full = results.table()
+    import pyarrow.compute as pc
+
+    mine = pc.or_(
+        pc.is_in(full.column("capture"), pa.array(sorted(results.redone_paths), pa.string())),
+        pc.fill_null(pc.is_in(full.column("capture_sha256"),
+                              pa.array(sorted(skipped_shas), pa.string())), False))
+    written = tuple(str(p) for p in (out, csv) if p is not None)
+    return BatchRun(table=full.filter(mine), captures=captures,
+                    checked=len(tasks) + unreadable,
+                    skipped=len(captures) - len(tasks) - unreadable,
+                    ignored=ignored, written=written,
+                    rows_written=full.num_rows if written else 0)
+
+
+# --- summary ------------------------------------------------------------------------------
+
+
+def _label(row: dict) -> str:
+    q = row.get("quantity")
+    if q is None:
+        return "-"
+    iv = "I" if row.get("applies_to") == "current" else "V"
+    if q == "harmonic":
+        return f"{iv}{row.get('order')}"
+    if q == "THD":
+        return f"THD({iv})"
+    return q
+
+
+def summarize(table: pa.Table, *, worst: int = 10) -> dict:
+    """Counts and worst margins of a results table.
+
+    Parameters
+    ----------
+    table : pyarrow.Table
+        Rows of :data:`SCHEMA`.
+    worst : int
+        How many captures to list by their lowest margin.
+
+    Returns
+    -------
+    dict
+        ``captures``: number of captures; ``verdicts``: captures per verdict (``fail``,
+        ``inconclusive``, ``pass``, ``not applicable``, ``error``); ``checks``: checks per
+        verdict; ``worst``: the lowest-margin check of each capture, lowest first (at most
+        ``worst`` of them; ``capture``, ``margin_percent`` [%], ``verdict``, ``table_id``,
+        ``channel``, ``label``, ``statistic``, ``measured``, ``limit``, ``unit``); ``errors``:
+        ``{capture, error}`` per capture that could not be checked; ``per_capture``: one entry
+        per capture (``capture``, ``capture_sha256``, ``verdict``, ``checks`` counts,
+        ``worst_margin_percent``, ``error``).
+    """
+    per = {}
+    for r in table.to_pylist():
+        k = (r["capture"], r["capture_sha256"])
+        e = per.get(k)
+        if e is None:
+            e = per[k] = {"capture": r["capture"], "capture_sha256": r["capture_sha256"],
+                          "verdict": r["capture_verdict"], "checks": dict.fromkeys(
+                              _VERDICTS[:4], 0), "worst_margin_percent": None,
+                          "error": r["error"], "_worst": None}
+        if r["verdict"] in e["checks"] and r["quantity"] is not None:
+            e["checks"][r["verdict"]] += 1
+        m = r["margin_percent"]
+        if (m is not None and r["verdict"] in ("pass", "fail", "inconclusive")
+                and (e["_worst"] is None or m < e["_worst"]["margin_percent"])):
+            e["_worst"] = r
+            e["worst_margin_percent"] = m
+    caps = list(per.values())
+    verdicts = {v: sum(1 for e in caps if e["verdict"] == v) for v in _VERDICTS}
+    checks = {v: sum(e["checks"][v] for e in caps) for v in _VERDICTS[:4]}
+    ranked = sorted((e for e in caps if e["_worst"] is not None),
+                    key=lambda e: (e["worst_margin_percent"], e["capture"]))[:worst]
+    worst_rows = []
+    for e in ranked:
+        r = e["_worst"]
+        worst_rows.append({"capture": r["capture"], "margin_percent": r["margin_percent"],
+                           "verdict": r["verdict"], "table_id": r["table_id"],
+                           "channel": r["channel"], "label": _label(r),
+                           "statistic": r["statistic"], "measured": r["measured"],
+                           "limit": r["limit"], "unit": r["unit"]})
+    errors = [{"capture": e["capture"], "error": e["error"]} for e in caps
+              if e["verdict"] == "error"]
+    for e in caps:
+        e.pop("_worst")
+    return {"captures": len(caps), "verdicts": verdicts, "checks": checks,
+            "worst": worst_rows, "errors": errors, "per_capture": caps}
+
+
+def exit_code(summary: dict) -> int:
+    """1 if a capture fails, else 3 if one is inconclusive or could not be checked (error),
+    else 0."""
+    v = summary["verdicts"]
+    if v.get("fail"):
+        return 1
+    if v.get("inconclusive") or v.get("error"):
+        return 3
+    return 0
