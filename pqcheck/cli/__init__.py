@@ -14,6 +14,7 @@ from __future__ import annotations
 
 # Command modules register themselves on `main` when imported.
 from . import analyze as _analyze  # noqa: F401,E402
+from . import batch_cmd as _batch_cmd  # noqa: F401
 from . import check as _check  # noqa: F401
 from . import limits_cmd as _limits_cmd  # noqa: F401
 from . import plan_cmd as _plan_cmd  # noqa: F401

@@ -1,0 +1,180 @@
+"""`pqcheck batch`: check many captures against limit tables, into one tidy results table."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+import sys
+
+import click
+
+from ._common import fail_usage, handle_errors, main, split_columns
+from .analyze import analysis_kwargs, capture_options
+
+__all__ = ["limit_options", "render_summary"]
+
+_LIMIT_OPTIONS = ("limits", "voltage_level", "isc", "generation", "equipment_class", "equipment",
+                  "rsce", "ssc", "rated_power", "rated_current", "iref", "active_power")
+
+
+def limit_options(func):
+    """The limit-table and selector options of ``pqcheck check`` (the same option objects), so
+    ``batch`` takes exactly the options ``check`` takes."""
+    from .check import check_cmd
+
+    params = {p.name: p for p in check_cmd.params}
+    memo = func.__dict__.setdefault("__click_params__", [])
+    for name in reversed(_LIMIT_OPTIONS):
+        if name in params:
+            memo.append(params[name])
+    return func
+
+
+def _num(x, digits=4) -> str:
+    if x is None or not math.isfinite(x):
+        return "-"
+    return f"{x:.{digits}g}"
+
+
+def render_summary(summary: dict, run) -> str:
+    """Text summary of a batch: counts of captures and checks, the lowest margins, errors and
+    the files written."""
+    s = summary
+    v, c = s["verdicts"], s["checks"]
+    lines = []
+    where = f" in {run.written[0]}" if run.written else ""
+    lines.append(f"Captures   {len(run.captures)} found: {run.checked} checked now, "
+                 f"{run.skipped} already{where}")
+    lines.append(f"Verdicts   {v['fail']} fail, {v['inconclusive']} inconclusive, {v['pass']} "
+                 f"pass, {v['not applicable']} not applicable, {v['error']} error")
+    lines.append(f"Checks     {c['fail']} fail, {c['inconclusive']} inconclusive, {c['pass']} "
+                 f"pass, {c['not applicable']} not applicable")
+    if s["worst"]:
+        lines.append("")
+        lines.append(f"Lowest margin of each capture (lowest first, at most {len(s['worst'])})")
+        head = ["margin %", "verdict", "capture", "table", "channel", "limit of", "statistic",
+                "measured", "limit", "unit"]
+        rows = [[_num(w["margin_percent"], 3),
+                 w["verdict"].upper() if w["verdict"] != "pass" else w["verdict"],
+                 w["capture"], w["table_id"], w["channel"], w["label"], w["statistic"],
+                 _num(w["measured"]), _num(w["limit"]), w["unit"]] for w in s["worst"]]
+        widths = [max(len(str(r[i])) for r in [head] + rows) for i in range(len(head))]
+        lines.append("  " + "  ".join(h.ljust(w) for h, w in zip(head, widths)).rstrip())
+        for r in rows:
+            lines.append("  " + "  ".join(str(x).ljust(w) for x, w in zip(r, widths)).rstrip())
+    if s["errors"]:
+        lines.append("")
+        lines.append("Errors (each counts as inconclusive for the exit code)")
+        for e in s["errors"]:
+            msg = e["error"] or ""
+            lines.append(f"  {msg}" if msg.startswith(e["capture"]) else
+                         f"  {e['capture']}: {msg}")
+    if run.written:
+        lines.append("")
+        lines.append(f"Results    {', '.join(run.written)} ({run.rows_written} rows)")
+    lines.append("")
+    lines.append("Margin = (limit - measured) / limit; negative means the limit is exceeded. A "
+                 "pqcheck verdict is an engineering aid, not a certification.")
+    return "\n".join(lines) + "\n"
+
+
+@main.command("batch")
+@click.argument("inputs", nargs=-1, required=True, metavar="DIR_OR_GLOB...")
+@limit_options
+@capture_options
+@click.option("--out", "out", type=click.Path(dir_okay=False), metavar="FILE",
+              help="Results table as Parquet (resumed from when it exists).")
+@click.option("--csv", "csv_path", type=click.Path(dir_okay=False), metavar="FILE",
+              help="Results table as CSV (resumed from when it exists and --out does not).")
+@click.option("--jobs", "-j", type=click.IntRange(1), metavar="N",
+              help="Worker processes on this machine. Default: the number of CPUs.")
+@click.option("--scheduler", metavar="ADDRESS",
+              help="Run on the Dask cluster of this scheduler (tcp://host:8786); its workers "
+                   "need pqcheck and must see the captures at the same paths.")
+@click.option("--workers", type=click.IntRange(1), metavar="N",
+              help="Run on a local Dask cluster of N worker processes.")
+@click.option("--force", is_flag=True,
+              help="Start the results files afresh instead of resuming from them.")
+@click.option("--retry-errors", "retry_errors", is_flag=True,
+              help="Check again the captures the results file records as errors.")
+@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
+              show_default=True, help="Summary on stdout.")
+@click.pass_context
+@handle_errors
+def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry_errors, fmt,
+              **opts):
+    """Check every capture in folders or glob patterns against limit tables.
+
+    Captures are .csv, .tsv (optionally .gz), COMTRADE .cfg with its .dat (counted once), .npy
+    and .parquet files; folders are searched recursively. Each is analysed and assessed as
+    `pqcheck check` does, with the same limits, selectors and capture options, into one row per
+    capture and check in --out (Parquet) and/or --csv. Captures whose SHA-256 is already in the
+    results file are skipped, so an interrupted batch resumes. A capture that cannot be read or
+    analysed becomes a row with verdict "error" and the batch goes on.
+
+    Work runs in --jobs processes, or on a Dask cluster with --scheduler or --workers (needs
+    pip install 'pqcheck[cluster]').
+
+    Exit code: 0 every capture passes, 1 a capture fails, 3 a capture is inconclusive or could
+    not be checked (a capture-level error counts as inconclusive) and none fails, 2 bad input.
+    """
+    from ..batch import (
+        BatchSpec,
+        DaskExecutor,
+        InlineExecutor,
+        ProcessExecutor,
+        exit_code,
+        run_batch,
+        summarize,
+    )
+    from ..errors import InputError
+
+    if scheduler and workers:
+        fail_usage("give --scheduler or --workers, not both")
+    if jobs is not None and (scheduler or workers):
+        fail_usage("--jobs sets local worker processes; with Dask use --workers (local "
+                   "cluster) or the cluster's own workers (--scheduler)")
+    for name, v in (("--rated-current", opts.get("rated_current")), ("--iref", opts.get("iref")),
+                    ("--active-power", opts.get("active_power")), ("--il", opts.get("il_a"))):
+        if v is not None and not (math.isfinite(v) and v > 0):
+            raise InputError(f"must be a positive number, got {v:g}", field=name)
+    selectors = dict(voltage_level=opts.get("voltage_level"), isc=opts.get("isc"),
+                     il=opts.get("il_a"), generation=opts.get("generation"),
+                     equipment_class=opts.get("equipment_class"),
+                     equipment=opts.get("equipment"), rsce=opts.get("rsce"),
+                     ssc=opts.get("ssc"), rated_power=opts.get("rated_power"))
+    spec = BatchSpec.make(
+        opts["limits"], selectors=selectors, analysis=analysis_kwargs(opts),
+        current=split_columns(opts.get("current")), voltage=split_columns(opts.get("voltage")),
+        sample_rate_hz=opts.get("sample_rate"), time_column=opts.get("time_column"),
+        il_a=opts.get("il_a"), rated_current_a=opts.get("rated_current"),
+        iref_a=opts.get("iref"), active_power_w=opts.get("active_power"),
+        cache_dir=opts.get("cache_dir"), use_cache=not opts.get("no_cache"))
+    src = ctx.get_parameter_source("max_order")
+    if src is not None and src.name == "DEFAULT":  # as `check`: up to the tables' highest order
+        ana = dict(spec.analysis)
+        ana["max_order"] = max(t.max_order for t in spec.resolve())
+        spec = dataclasses.replace(spec, analysis=tuple(sorted(ana.items())))
+    if scheduler or workers:
+        executor = DaskExecutor(address=scheduler, workers=workers)
+    elif jobs == 1:
+        executor = InlineExecutor()
+    else:
+        executor = ProcessExecutor(jobs)
+    run = run_batch(inputs, spec, out=out, csv=csv_path, executor=executor, force=force,
+                    retry_errors=retry_errors,
+                    progress=not opts.get("quiet") and sys.stderr.isatty())
+    for path in run.ignored:
+        click.echo(f"pqcheck: note: {path}: left out, no .cfg next to this .dat", err=True)
+    summary = summarize(run.table)
+    if fmt == "json":
+        per = summary.pop("per_capture")
+        d = {"run": {"found": len(run.captures), "checked": run.checked,
+                     "skipped": run.skipped, "written": list(run.written),
+                     "rows_written": run.rows_written},
+             "summary": summary, "captures": per}
+        click.echo(json.dumps(d, indent=2))
+    else:
+        click.echo(render_summary(summary, run), nl=False)
+    raise click.exceptions.Exit(exit_code(summary))
