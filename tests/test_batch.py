@@ -1,0 +1,385 @@
+"""Batch runs: rows equal single-capture `pqcheck check` results, errors become rows, resume,
+Parquet/CSV agreement, and the same table from every executor.
+
+The captures are synthesised here: three-phase Fourier series with a known fifth harmonic (CSV,
+Parquet, .npy with its side-car), a COMTRADE pair written by the C37.111 writer of
+test_comtrade.py, and files that are not captures. The reference for a batch row is what
+``pqcheck check`` prints in JSON for the same capture and options (the brief of the batch:
+one row per check, identical to the single-capture command).
+"""
+
+from __future__ import annotations
+
+import functools
+import hashlib
+import json
+import operator
+import os
+import sys
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.parquet as pq
+import pytest
+from click.testing import CliRunner
+from test_comtrade import FS as CT_FS
+from test_comtrade import analog_line, quantise, three_phase_record, write_comtrade
+
+from pqcheck import batch
+from pqcheck.batch import (
+    BatchSpec,
+    DaskExecutor,
+    InlineExecutor,
+    MissingExtraError,
+    ProcessExecutor,
+    capture_sha256,
+    find_captures,
+    read_results,
+    run_batch,
+)
+from pqcheck.cli import main
+from pqcheck.readers.comtrade import read_comtrade
+
+FS = 10_000.0  # [Hz]
+F0 = 50.0  # [Hz]
+I1 = 16.0  # fundamental rms [A]
+V1 = 230.0  # [V]
+IL = 20.0  # [A]
+LIMIT_ARGS = ["--limits", "ieee519-2022", "--voltage-level", "400", "--isc", "5000",
+              "--il", str(IL)]
+SELECTORS = {"voltage_level": 400.0, "isc": 5000.0, "il": IL}
+
+
+def three_phase(fifth: float, duration_s: float = 0.4) -> dict:
+    """Columns of a balanced three-phase capture: sinusoidal voltages, currents with a fifth
+    harmonic of ``fifth`` x the fundamental (negative sequence, as a six-pulse bridge makes)."""
+    t = np.arange(int(round(duration_s * FS))) / FS
+    cols = {"time [s]": t}
+    for k, ph in enumerate("abc"):
+        wt = 2 * np.pi * F0 * t - 2 * np.pi / 3 * k
+        cols[f"v{ph} [V]"] = np.sqrt(2) * V1 * np.sin(wt)
+        cols[f"i{ph} [A]"] = np.sqrt(2) * I1 * (np.sin(wt) + fifth * np.sin(5 * wt))
+    return cols
+
+
+def write_csv(path, cols):
+    rows = np.column_stack(list(cols.values()))
+    np.savetxt(path, rows, delimiter=",", header=",".join(cols), comments="", fmt="%.9g")
+
+
+def write_comtrade_pair(folder, name="rec"):
+    """Three currents and three voltages (test_comtrade.three_phase_record: 20 % fifth, 10 %
+    seventh) at 4800 Hz, BINARY, 0.4 s."""
+    _, phys = three_phase_record(n=int(0.4 * CT_FS), amp_a=20.0, amp_v=325.0)
+    amps = [20.0] * 3 + [325.0] * 3
+    a = [pk * 1.4 / 32767 for pk in amps]
+    raw = np.array([quantise(phys[i], a[i], 0.0, "BINARY") for i in range(6)])
+    names = [("IA", "A", "A"), ("IB", "B", "A"), ("IC", "C", "A"),
+             ("VA", "A", "V"), ("VB", "B", "V"), ("VC", "C", "V")]
+    analog = [analog_line(k + 1, nm, ph, uu, a[k]) for k, (nm, ph, uu) in enumerate(names)]
+    return write_comtrade(folder, name, analog, raw, ft="BINARY")
+
+
+@pytest.fixture(scope="module")
+def fleet(tmp_path_factory):
+    """A folder of captures: pass (CSV), fail (Parquet), a .npy with side-car, a COMTRADE pair,
+    a broken CSV, and files that are not captures."""
+    d = tmp_path_factory.mktemp("fleet")
+    write_csv(d / "a-pass.csv", three_phase(0.08))
+    cols = three_phase(0.25)
+    pq.write_table(pa.table({k: pa.array(v) for k, v in cols.items()}), d / "b-fail.parquet")
+    sub = d / "site2"
+    sub.mkdir()
+    one = three_phase(0.04)
+    names = ["va [V]", "ia [A]"]
+    np.save(sub / "c.npy", np.column_stack([one[n] for n in names]))
+    (sub / "c.json").write_text(json.dumps({"columns": names, "sample_rate_hz": FS}))
+    write_comtrade_pair(sub)
+    (d / "broken.csv").write_text("hello,world\n1,2\n")
+    (d / "notes.txt").write_text("site visit notes\n")
+    (d / "orphan.dat").write_bytes(b"\x00" * 16)
+    (d / ".hidden.csv").write_text("x\n")
+    return d
+
+
+CAPTURES = ("a-pass.csv", "b-fail.parquet", "broken.csv", "site2/c.npy", "site2/rec.cfg")
+
+
+def spec(**kw) -> BatchSpec:
+    return BatchSpec.make(["ieee519-2022"], selectors=SELECTORS,
+                          analysis={"max_order": 50, "il_a": IL}, il_a=IL, use_cache=False, **kw)
+
+
+def rows_by_capture(table: pa.Table) -> dict:
+    out = {}
+    for r in table.to_pylist():
+        out.setdefault(os.path.basename(r["capture"]), []).append(r)
+    return out
+
+
+@pytest.fixture(scope="module")
+def inline_table(fleet):
+    return run_batch([fleet], spec(), executor=InlineExecutor()).table
+
+
+@pytest.fixture(scope="module")
+def pool_table(fleet):
+    return run_batch([fleet], spec(), executor=ProcessExecutor(2)).table
+
+
+# --- finding captures -------------------------------------------------------------------
+
+
+def test_find_captures_counts_a_comtrade_pair_once(fleet):
+    found, ignored = find_captures([fleet], exclude=[fleet / "b-fail.parquet"])
+    rel = sorted(os.path.relpath(p, fleet) for p in found)
+    # .txt, hidden files and the excluded results file are not captures; rec.cfg + rec.dat once
+    assert rel == ["a-pass.csv", "broken.csv", "site2/c.npy", "site2/rec.cfg"]
+    assert [os.path.basename(p) for p in ignored] == ["orphan.dat"]
+    # a pattern that names the .dat finds the record by its .cfg
+    found, _ = find_captures([str(fleet / "site2" / "*.dat"), str(fleet / "site2" / "rec.cfg")])
+    assert [os.path.basename(p) for p in found] == ["rec.cfg"]
+
+
+def test_find_captures_errors(tmp_path):
+    with pytest.raises(batch.InputError, match="no such file or folder"):
+        find_captures([tmp_path / "nowhere"])
+    with pytest.raises(batch.InputError, match="the pattern matches no file"):
+        find_captures([str(tmp_path / "*.csv")])
+    (tmp_path / "readme.txt").write_text("x")
+    with pytest.raises(batch.InputError, match=r"no capture found \(looked for \.csv"):
+        find_captures([tmp_path])
+
+
+def test_comtrade_hash_is_over_cfg_then_dat(fleet):
+    cfg = fleet / "site2" / "rec.cfg"
+    both = cfg.read_bytes() + cfg.with_suffix(".dat").read_bytes()
+    # reference: hashlib over the two files concatenated (the reader's documented provenance)
+    assert capture_sha256(cfg) == hashlib.sha256(both).hexdigest()
+    assert capture_sha256(cfg.with_suffix(".dat")) == hashlib.sha256(both).hexdigest()
+    assert read_comtrade(cfg).provenance.sha256 == capture_sha256(cfg)
+    csv = fleet / "a-pass.csv"
+    assert capture_sha256(csv) == hashlib.sha256(csv.read_bytes()).hexdigest()
+
+
+# --- rows equal `pqcheck check` -----------------------------------------------------------
+
+
+def _check_json(path):
+    res = CliRunner().invoke(main, ["check", str(path), *LIMIT_ARGS, "--no-cache", "-q",
+                                    "--format", "json"])
+    return res
+
+
+def test_batch_rows_equal_check_results(fleet, tmp_path):
+    out = tmp_path / "r.parquet"
+    res = CliRunner().invoke(main, ["batch", str(fleet), *LIMIT_ARGS, "--no-cache", "-q",
+                                    "--jobs", "1", "--out", str(out), "--format", "json"])
+    assert res.exit_code == 1, res.output  # b-fail fails
+    summary = json.loads(res.stdout)
+    assert summary["run"]["found"] == len(CAPTURES)
+    groups = rows_by_capture(read_results(out))
+    assert sorted(groups) == sorted(os.path.basename(c) for c in CAPTURES)
+    verdicts = {}
+    for cap in CAPTURES:
+        rows = groups[os.path.basename(cap)]
+        ref = _check_json(fleet / cap)
+        if cap == "broken.csv":
+            assert ref.exit_code == 2
+            [row] = rows
+            assert row["verdict"] == row["capture_verdict"] == "error"
+            # the batch records what `check` prints as its error (names the capture as found)
+            assert "pqcheck: error: " + row["error"] in ref.stderr
+            continue
+        d = json.loads(ref.stdout)
+        assert ref.exit_code == {"pass": 0, "fail": 1, "inconclusive": 3}[d["verdict"]]
+        verdicts[cap] = d["verdict"]
+        assert {r["capture_verdict"] for r in rows} == {d["verdict"]}
+        assert {r["capture_sha256"] for r in rows} == {d["capture"]["sha256"]}
+        assert len(rows) == len(d["checks"]) > 0
+        for r, c in zip(rows, d["checks"]):  # same checks, same order, same numbers
+            assert (r["table_id"], r["quantity"], r.get("order"), r["channel"], r["phase"],
+                    r["statistic"], r["unit"], r["clause"], r["verdict"], r["verify"]) == \
+                (c["table"], c["quantity"], c.get("order"), c["channel"], c["phase"],
+                 c["statistic"], c["unit"], c["clause"], c["verdict"], c["verify"])
+            assert (r["measured"], r["limit"], r["margin_percent"]) == \
+                (c["measured"], c["limit"], c["margin_percent"])
+            assert r["note"] == c.get("note", "")
+        assert rows[0]["capture_notes"] == "; ".join(d["notes"])
+    assert verdicts["a-pass.csv"] == "pass" and verdicts["b-fail.parquet"] == "fail"
+    # an outside check of one row: I5 = 0.25 x 16 A = 4 A rms over IL = 20 A is 20 % of IL
+    # (IEEE 519-2022 Table 2 basis, % of IL; closed form of the synthesised signal)
+    i5 = [r for r in groups["b-fail.parquet"] if r["quantity"] == "harmonic"
+          and r["order"] == 5 and r["channel"] == "ia"]
+    assert i5 and i5[0]["measured"] == pytest.approx(20.0, rel=1e-3)
+    assert summary["summary"]["verdicts"]["error"] == 1
+
+
+def test_exit_code_counts_an_error_as_inconclusive(fleet, tmp_path):
+    args = ["batch", str(fleet / "a-pass.csv"), *LIMIT_ARGS, "--no-cache", "-q", "-j", "1"]
+    assert CliRunner().invoke(main, args).exit_code == 0  # one passing capture
+    res = CliRunner().invoke(main, args + [str(fleet / "broken.csv")])
+    assert res.exit_code == 3, res.output  # pass + error (no fail): inconclusive
+    assert "Errors (each counts as inconclusive for the exit code)" in res.stdout
+    assert "broken.csv: sample rate: no time column" in res.stdout
+
+
+# --- resume -------------------------------------------------------------------------------
+
+
+def test_resume_skips_captures_already_in_the_output(fleet, tmp_path, monkeypatch):
+    import pqcheck.pipeline as pipeline
+
+    calls = []
+    real = pipeline.analyze_file
+
+    def counting(path, **kw):
+        calls.append(os.path.basename(path))
+        return real(path, **kw)
+
+    monkeypatch.setattr(pipeline, "analyze_file", counting)
+    out = tmp_path / "r.parquet"
+    first = run_batch([fleet], spec(), out=out)
+    assert first.checked == len(CAPTURES) and first.skipped == 0
+    assert len(calls) == len(CAPTURES)
+    table1 = read_results(out)
+
+    calls.clear()
+    again = run_batch([fleet], spec(), out=out)
+    assert calls == [] and again.checked == 0 and again.skipped == len(CAPTURES)
+    assert read_results(out).equals(table1)
+    assert again.table.equals(table1)
+
+    calls.clear()
+    retry = run_batch([fleet], spec(), out=out, retry_errors=True)
+    assert calls == ["broken.csv"] and retry.checked == 1
+    assert read_results(out).equals(table1)
+
+    # a new capture is the only work; a changed file is checked again and replaces its rows
+    extra = tmp_path / "more"
+    extra.mkdir()
+    write_csv(extra / "d.csv", three_phase(0.10))
+    calls.clear()
+    run_batch([fleet, extra], spec(), out=out)
+    assert calls == ["d.csv"]
+    n_d = len(rows_by_capture(read_results(out))["d.csv"])
+    write_csv(extra / "d.csv", three_phase(0.30))
+    calls.clear()
+    run = run_batch([extra], spec(), out=out)
+    assert calls == ["d.csv"]
+    groups = rows_by_capture(read_results(out))
+    assert len(groups["d.csv"]) == n_d  # old rows replaced, not added to
+    assert {r["capture_verdict"] for r in groups["d.csv"]} == {"fail"}
+    assert set(rows_by_capture(run.table)) == {"d.csv"}  # the run reports its own inputs
+    assert read_results(out).num_rows == table1.num_rows + n_d
+
+
+def test_output_made_with_other_settings_is_not_mixed(fleet, tmp_path):
+    out = tmp_path / "r.parquet"
+    args = ["batch", str(fleet / "a-pass.csv"), *LIMIT_ARGS, "--no-cache", "-q", "-j", "1",
+            "--out", str(out)]
+    assert CliRunner().invoke(main, args).exit_code == 0
+    other = [a if a != str(IL) else "25" for a in args]
+    res = CliRunner().invoke(main, other)
+    assert res.exit_code == 2
+    assert "holds results made with other limit tables, selectors or options" in res.stderr
+    res = CliRunner().invoke(main, other + ["--force"])
+    assert res.exit_code == 0 and "1 checked now, 0 already" in res.stdout
+
+
+def test_interrupted_batch_keeps_the_work_done(fleet, tmp_path, monkeypatch):
+    import pqcheck.pipeline as pipeline
+
+    real = pipeline.analyze_file
+    seen = []
+
+    def interrupt_on_third(path, **kw):
+        seen.append(path)
+        if len(seen) == 3:
+            raise KeyboardInterrupt
+        return real(path, **kw)
+
+    monkeypatch.setattr(pipeline, "analyze_file", interrupt_on_third)
+    out = tmp_path / "r.parquet"
+    with pytest.raises(KeyboardInterrupt):
+        run_batch([fleet], spec(), out=out)
+    assert len(rows_by_capture(read_results(out))) == 2  # the two finished captures
+    monkeypatch.setattr(pipeline, "analyze_file", real)
+    rerun = run_batch([fleet], spec(), out=out)
+    assert rerun.skipped == 2 and rerun.checked == len(CAPTURES) - 2
+
+
+# --- outputs ------------------------------------------------------------------------------
+
+
+def test_parquet_and_csv_outputs_agree(fleet, tmp_path, inline_table):
+    out, csv = tmp_path / "r.parquet", tmp_path / "r.csv"
+    run = run_batch([fleet], spec(), out=out, csv=csv)
+    from_parquet, from_csv = read_results(out), read_results(csv)
+    assert from_parquet.schema == from_csv.schema == batch.SCHEMA
+    assert from_csv.equals(from_parquet)  # floats round-trip exactly through the CSV text
+    assert from_parquet.equals(inline_table)
+    assert run.rows_written == from_parquet.num_rows
+    # no temporary files left next to the outputs
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["r.csv", "r.parquet"]
+
+
+def test_results_file_that_is_not_one_is_refused(fleet, tmp_path):
+    out = tmp_path / "r.parquet"
+    pq.write_table(pa.table({"x": [1]}), out)
+    with pytest.raises(batch.InputError, match="not a pqcheck batch results table"):
+        run_batch([fleet / "a-pass.csv"], spec(), out=out)
+
+
+# --- executors ----------------------------------------------------------------------------
+
+
+def test_process_pool_gives_the_same_table(inline_table, pool_table):
+    assert pool_table.num_rows > 0
+    assert pool_table.equals(inline_table)
+
+
+def test_dead_worker_fails_only_its_item():
+    # operator.call(partial(os._exit, 3)) ends the worker process like a crash would
+    items = [functools.partial(abs, -3), functools.partial(os._exit, 3),
+             functools.partial(abs, -5)]
+    with ProcessExecutor(2) as ex:
+        got = dict(ex.imap_unordered(operator.call, items,
+                                     on_crash=lambda item, msg: f"crashed: {msg}"))
+    assert got[0] == 3 and got[2] == 5
+    assert got[1].startswith("crashed: the worker process died")
+
+
+def test_local_dask_cluster_gives_the_same_table(fleet, pool_table):
+    pytest.importorskip("distributed")
+    table = run_batch([fleet], spec(), executor=DaskExecutor(workers=2)).table
+    assert table.equals(pool_table)
+
+
+def test_dask_missing_gives_an_install_hint(fleet, monkeypatch):
+    monkeypatch.setitem(sys.modules, "distributed", None)  # import fails as when not installed
+    with pytest.raises(MissingExtraError, match=r"pip install 'pqcheck\[cluster\]'"):
+        DaskExecutor(workers=1)
+    res = CliRunner().invoke(main, ["batch", str(fleet / "a-pass.csv"), *LIMIT_ARGS,
+                                    "--workers", "1"])
+    assert res.exit_code == 2
+    assert "pip install 'pqcheck[cluster]'" in res.stderr
+
+
+@pytest.mark.parametrize("extra, match", [
+    (["--jobs", "2", "--workers", "2"], "--jobs sets local worker processes"),
+    (["--scheduler", "tcp://127.0.0.1:1", "--workers", "2"], "give --scheduler or --workers"),
+])
+def test_usage_errors(fleet, extra, match):
+    res = CliRunner().invoke(main, ["batch", str(fleet), *LIMIT_ARGS, *extra])
+    assert res.exit_code == 2
+    assert match in res.stderr
+
+
+def test_batch_takes_the_limit_options_of_check():
+    from pqcheck.cli.batch_cmd import batch_cmd
+    from pqcheck.cli.check import check_cmd
+
+    batch_names = {p.name for p in batch_cmd.params}
+    check_names = {p.name for p in check_cmd.params} - {"capture"}
+    assert check_names <= batch_names  # every option of check, so selectors never drift
