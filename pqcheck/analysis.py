@@ -281,6 +281,13 @@ class AnalysisResult:
         return float(np.sum(w.duration_s[w.valid]))
 
 
+def _quiet_nan(func, a) -> float:
+    """``func`` (np.nanmax, np.nanmean) of ``a``; NaN without a RuntimeWarning on stderr when
+    every value is NaN, as for a channel that carries nothing (an unloaded phase)."""
+    a = np.asarray(a)
+    return float(func(a)) if np.isfinite(a).any() else float("nan")
+
+
 def _rms_over(a, valid, axis=0):
     a = np.abs(np.asarray(a))
     sel = a[valid]
@@ -579,7 +586,7 @@ def analyze(
             thc=float(_rms_over(thc_w, valid)),
             pwhc=float(_rms_over(pwhc_w, valid)),
             pwhd_percent=float(_rms_over(pwhd_w, valid)),
-            crest_factor=float(np.nanmax(cf[valid])) if n_valid else float("nan"),
+            crest_factor=_quiet_nan(np.nanmax, cf[valid]) if n_valid else float("nan"),
             orders=orders,
             harmonic_rms=h_rms,
             group_rms=g_rms,
@@ -799,7 +806,7 @@ def _power(windows, chans, pairs, pair_phases, volt_abc, curr_abc, neutral, wiri
             windows.rms[:, kv], windows.rms[:, ki], windows.p_w[:, len(per)],
             comp[:, kv, 1], comp[:, ki, 1])
         per.append(q)
-        m = {key: float(np.nanmean(val[valid])) for key, val in q.items()}
+        m = {key: _quiet_nan(np.nanmean, val[valid]) for key, val in q.items()}
         phases.append(PhasePower(
             phase=ph, voltage=chans[kv].name, current=chans[ki].name, p_w=m["p_w"],
             s_va=m["s_va"], p1_w=m["p1_w"], q1_var=m["q1_var"], s1_va=m["s1_va"],
