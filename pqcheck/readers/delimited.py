@@ -319,6 +319,8 @@ def sniff(path) -> Dialect:
         fields = cand.split(delim) if delim else [cand]
         if len(fields) == k and not _numeric_fields(fields, decimal):
             header_idx = startl - 1
+        elif delim is not None:
+            _refuse_mixed_delimiters(cand, delim, k, startl, path)
     if header_idx is not None:
         raw_names = lines[header_idx].split(delim) if delim else [lines[header_idx]]
         parsed = [_split_unit(f) for f in raw_names]
@@ -343,6 +345,25 @@ def sniff(path) -> Dialect:
         scales=tuple(p[2] for p in parsed),
         metadata=meta,
     )
+
+
+_DELIM_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs"}
+
+
+def _refuse_mixed_delimiters(line, delim, k, startl, path):
+    """Refuse a file whose rows switch delimiter: without this the rows above the switch are
+    taken for metadata and silently dropped. ``line`` is the line just above the data block
+    that starts at 0-based line ``startl``."""
+    for other in _DELIM_NAMES:
+        fields = line.split(other)
+        if other == delim or len(fields) != k:
+            continue
+        if _numeric_fields(fields, ".") or _numeric_fields(fields, ","):
+            raise CaptureFormatError(
+                f"the values are separated by {_DELIM_NAMES[other]} up to line {startl} and "
+                f"by {_DELIM_NAMES[delim]} from line {startl + 1} (mixed delimiters); "
+                "use one delimiter throughout, e.g. export the capture again",
+                path=path, line=startl + 1)
 
 
 def _locate_bad_cell(path, dialect, names):
