@@ -547,6 +547,11 @@ def analyze(
     )
     n_valid = int(valid.sum())
     findings += quality.gap_findings([c.name for c in chans], nonfinite, valid.size, n_valid, n)
+    if n_valid == 0 and not nonfinite.any():
+        raise AnalysisError(
+            "no window gives finite results although every sample is a number: the values "
+            "are too large to analyse. Check the units and scaling of the export.",
+            path=path, field="samples")
     if n_valid == 0:
         raise AnalysisError(
             "every window contains missing or non-finite samples; no result is possible. "

@@ -583,6 +583,12 @@ def read_delimited(
         raise CaptureFormatError("no numeric samples in any column", path=path,
                                  line=d.data_line)
     huge = np.abs(samples[np.isfinite(samples)]).max()
+    if huge > 1e100:  # squares overflow float64: no number computed from them would be finite
+        col = int(np.argmax(np.nanmax(np.where(np.isfinite(samples), np.abs(samples), 0.0),
+                                      axis=1)))
+        raise CaptureFormatError(
+            f"values as large as {huge:.3g} cannot be currents or voltages; check the units and "
+            "probe scaling of the export", path=path, field=ch_names[col])
     if huge > 1e12:
         findings.append(Finding(
             "implausible-values", "warning",
