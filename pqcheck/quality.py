@@ -205,7 +205,23 @@ def frequency_findings(freq_hz, nominal_hz, *, tracked: bool, reference: str):
     if f.size == 0:
         return out
     mean = float(f.mean())
-    if abs(mean - nominal_hz) > 0.01 * nominal_hz:
+    other = 60.0 if nominal_hz == 50 else 50.0
+    if abs(mean - other) < abs(mean - nominal_hz):
+        # a 60 Hz capture analysed as 50 Hz (or the reverse): wrong window length (10 cycles
+        # instead of 12) and limits meant for another network; no verdict can rest on it
+        out.append(
+            Finding(
+                "wrong-nominal-frequency",
+                "error",
+                f"measured fundamental {mean:.3f} Hz is nearer {other:g} Hz than the nominal "
+                f"{nominal_hz:g} Hz given, so the windows do not hold the cycles IEC 61000-4-7 "
+                f"prescribes for a {other:g} Hz system. Give --nominal-frequency "
+                f"{other:g} (or leave it out to detect it) and check the limits chosen.",
+                value=mean,
+                unit="Hz",
+            )
+        )
+    elif abs(mean - nominal_hz) > 0.01 * nominal_hz:
         out.append(
             Finding(
                 "off-nominal-frequency",
