@@ -36,6 +36,7 @@ from ..findings import Finding
 __all__ = ["read_delimited", "sniff", "Dialect"]
 
 _SNIFF_LINES = 400
+_MAX_GAP_S = 600.0  # longest time gap filled with NaN (as the streaming reader)
 _SNIFF_BYTES = 256 * 1024
 
 _NUM = r"[+-]?(?:\d+(?:[.]\d*)?|[.]\d+)(?:[eE][+-]?\d+)?"
@@ -619,6 +620,12 @@ def _time_base(t, data, path, d, tname, sample_rate_hz):
                 f"--sample-rate {sample_rate_hz:g} Hz differs from the time column "
                 f"({fs_col:.6g} Hz); the given rate is used."))
         return float(sample_rate_hz), data, float(t[0]), findings
+    jump = int(np.argmax(dt))
+    if dt[jump] > _MAX_GAP_S:  # filling or resampling it could take more memory than exists
+        raise CaptureFormatError(
+            f"the time column jumps by {dt[jump]:.6g} s (from {t[jump]:.9g} to "
+            f"{t[jump + 1]:.9g} s); split the capture at the gap", path=path,
+            line=d.data_line + jump + 1, field=tname)
     if np.all(dev <= 0.01):
         # uniform up to print rounding: least-squares rate over the whole record
         n = t.size
