@@ -24,7 +24,7 @@ import matplotlib
 matplotlib.use("Agg")
 
 import numpy as np  # noqa: E402
-from matplotlib import patheffects  # noqa: E402
+from matplotlib import patheffects, ticker  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch  # noqa: E402
@@ -364,7 +364,7 @@ def plot_spectrum(data: SpectrumData) -> Figure:
 
     with mpl.rc_context(_RC):
         n = len(data.panels)
-        fig = _figure(0.4 + 1.2 * n)
+        fig = _figure(max(2.2, 0.4 + 1.2 * n))
         axes = fig.subplots(n, 1, sharex=True, squeeze=False)[:, 0]
         has_limit = any(np.isfinite(p.limit).any() for p in data.panels)
         any_fail = any(v == "fail" for p in data.panels for v in p.verdicts)
@@ -418,6 +418,7 @@ def plot_spectrum(data: SpectrumData) -> Figure:
                               "boxstyle": "square,pad=0.25"})
             ax.set_title(p.label, loc="left", fontweight="bold")
             ax.set_ylabel(f"[{data.unit}]")
+            ax.yaxis.set_major_formatter(ticker.FuncFormatter(lambda v, _: f"{v:g}"))
         axes[-1].set_xlabel("harmonic order")
         axes[-1].set_xlim(lo - 0.8, hi + 0.8)
         step = 1 if hi - lo <= 20 else 2 if hi - lo <= 40 else 5
@@ -507,6 +508,10 @@ def plot_trend(data: TrendData) -> Figure:
                               for _, y in series])
             ax.set_ylim(0, (ymax if ymax > 0 else 1.0) * 1.25)
         axes[-1].set_xlabel("time in the capture [s] (window start)")
+        if data.t_s.size:
+            lo, hi = float(data.t_s[0]), float(data.t_s[-1])
+            pad = 0.03 * (hi - lo) if hi > lo else 0.1
+            axes[-1].set_xlim(lo - pad, hi + pad)
         return fig
 
 

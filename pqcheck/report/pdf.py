@@ -20,6 +20,7 @@ import hashlib
 import io
 import itertools
 import platform
+import re
 from datetime import timezone
 from pathlib import Path
 
@@ -645,7 +646,7 @@ def _assessment_block(b: _Builder, run, a) -> None:
             widths = [0.1, 0.12, 0.12, 0.1, 0.07, 0.11, 0.18, 0.2]
             right = (2, 3, 5)
         else:
-            widths = [0.09, 0.09, 0.18, 0.1, 0.09, 0.05, 0.09, 0.15, 0.16]
+            widths = [0.08, 0.08, 0.23, 0.1, 0.09, 0.05, 0.09, 0.15, 0.13]
             right = (3, 4, 6)
         b.add(b.table(rows, widths, right=right, extra_style=extra))
 
@@ -669,17 +670,78 @@ def _assessment_block(b: _Builder, run, a) -> None:
                      "over their limit are filled black and marked \u2715 with their order "
                      "number; inconclusive orders are hatched and marked ?.")
         _harmonic_table(b, run, lim, group, what, statistic, unit)
-    notes: dict = {}
-    for c in checks:
-        if getattr(c, "note", ""):
-            notes.setdefault(c.note, []).append(_check_item(c))
+    notes = _group_notes(checks)
     if notes:
         b.add(b.p("Notes on individual checks", "h3"))
-        for note, items in notes.items():
-            uniq = list(dict.fromkeys(items))
-            shown = ", ".join(uniq[:12]) + (", \u2026" if len(uniq) > 12 else "")
+        for note, items in notes:
+            shown = ", ".join(items[:14]) + (", \u2026" if len(items) > 14 else "")
             b.add(b.m(f"\u2022 {esc(note)} <font color='#5b6670'>({esc(shown)})</font>",
                       "small"))
+
+
+_NUMBER = re.compile(r"[-+]?\d+(?:\.\d+)?(?:e[-+]?\d+)?")
+
+
+def _fragments(note: str) -> list:
+    """Split a check's note at top-level ``"; "`` (not inside parentheses)."""
+    out, depth, start = [], 0, 0
+    for i, ch in enumerate(note):
+        depth += ch == "("
+        depth -= ch == ")"
+        if depth == 0 and note.startswith("; ", i):
+            out.append(note[start:i])
+            start = i + 2
+    out.append(note[start:])
+    return [f.strip() for f in out if f.strip()]
+
+
+def _strip_parens(text: str) -> tuple:
+    """Text without its top-level parenthesised parts, and whether there were any."""
+    out, depth = [], 0
+    for ch in text:
+        if ch == "(":
+            depth += 1
+        elif ch == ")" and depth:
+            depth -= 1
+        elif depth == 0:
+            out.append(ch)
+    stripped = re.sub(r"\s+", " ", "".join(out)).strip()
+    return stripped, stripped != text.strip()
+
+
+def _group_notes(checks) -> list:
+    """Notes of the checks grouped so that one line covers the checks sharing a remark.
+
+    A remark that varies only in its numbers (a per-order threshold, ``1.5 x 2.3 A``) is shown
+    once, with the numbers that differ between checks replaced by an ellipsis; parenthesised
+    per-check details are left to the results JSON. Returns (text, check labels) pairs.
+    """
+    groups: dict = {}
+    for c in checks:
+        for frag in _fragments(getattr(c, "note", "") or ""):
+            stripped, had = _strip_parens(frag)
+            key = _NUMBER.sub("#", stripped)
+            g = groups.setdefault(key, {"texts": [], "items": [], "had": False, "full": set()})
+            g["texts"].append(stripped)
+            g["full"].add(frag)
+            g["had"] |= had
+            g["items"].append(_check_item(c))
+    out = []
+    for key, g in groups.items():
+        items = list(dict.fromkeys(g["items"]))
+        if len(g["full"]) == 1:
+            out.append((next(iter(g["full"])), items))
+            continue
+        numbers = [_NUMBER.findall(t) for t in g["texts"]]
+        parts = key.split("#")
+        text = parts[0]
+        for k, part in enumerate(parts[1:]):
+            vals = {n[k] for n in numbers if len(n) > k}
+            text += (vals.pop() if len(vals) == 1 else "\u2026") + part
+        if g["had"]:
+            text += " (values per check in the attached results)"
+        out.append((text, items))
+    return out
 
 
 def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit) -> None:
@@ -716,10 +778,13 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit) -> None
         rows.append(row)
         extra += _verdict_style(len(row) - 1, len(rows) - 1, worst or "")
     n = len(chans)
-    rest = 1.0 - 0.07 - 0.11 - 0.17
+    rest = min(1.0 - 0.07 - 0.11 - 0.17, 0.22 * n)
     widths = [0.07, 0.11] + [rest / (2 * n) * 1.1, rest / (2 * n) * 0.9] * n + [0.17]
+    mult = {c.multiplier for c in group}
+    times = (f" Limits shown are {mult.pop():g} \u00d7 the table's values, as its evaluation "
+             "rule allows for this statistic." if len(mult) == 1 and 1.0 not in mult else "")
     b.tcaption(f"{run.id}: individual {what} harmonics against {lim.table_id} "
-               f"({statistic}), every order assessed. \u2717 over the limit, ? inconclusive, "
+               f"({statistic}), every order assessed.{times} \u2717 over the limit, ? inconclusive, "
                "\u2020 verify the limit against your copy. Verdict: the worst over the phases.")
     b.add(b.table(rows, widths, right=tuple(range(1, 2 + 2 * n)), extra_style=extra))
 
@@ -736,9 +801,9 @@ def _analysis_tables(b: _Builder, run, harmonics) -> None:
         sub = harmonics[harmonics["channel"] == c.name]
         pct[c.name] = dict(zip(sub["order"].tolist(), sub["percent_of_fundamental"].tolist()))
     for h in range(1, res.max_resolved_order + 1):
-        rows.append([str(h)] + [fmt(pct[c.name].get(h), 3) for c in chans])
+        rows.append([str(h)] + [fmt_like(pct[c.name].get(h), 1.0) for c in chans])
     n = len(chans)
-    widths = [0.08] + [0.92 / n] * n
+    widths = [0.08] + [min(0.92 / n, 0.14)] * n
     b.tcaption(f"{run.id}: harmonic components in % of each channel's fundamental (rms over "
                "the capture); order 1 is 100 % by definition.")
     b.add(b.table(rows, widths, right=tuple(range(1, n + 1))))
@@ -751,12 +816,15 @@ def _channels_and_power(b: _Builder, run) -> None:
     rows = [["Channel", "Phase", "rms", "Fundamental", "THD", "THD group", "TDD", "PWHD",
              "Crest factor", "DC"]]
     for c in chans:
+        def pct(x):
+            return fmt_like(x, 10.0) + " %"
+
         rows.append([c.name, c.phase or "1ph", fmt(c.rms, 4, c.unit),
-                     fmt(c.fundamental_rms, 4, c.unit), fmt(c.thd_percent, 3, "%"),
-                     fmt(c.thd_group_percent, 3, "%"),
-                     fmt(c.tdd_percent, 3, "%") if c.tdd_percent is not None else "\u2013",
-                     fmt(c.pwhd_percent, 3, "%"), fmt(c.crest_factor, 3),
-                     fmt(c.dc, 3, c.unit)])
+                     fmt(c.fundamental_rms, 4, c.unit), pct(c.thd_percent),
+                     pct(c.thd_group_percent),
+                     pct(c.tdd_percent) if c.tdd_percent is not None else "\u2013",
+                     pct(c.pwhd_percent), fmt(c.crest_factor, 3),
+                     fmt_like(c.dc, c.rms) + f" {c.unit}"])
     il = res.settings.il_a
     b.tcaption(f"{run.id}: channel values over the capture. THD over orders 2 to "
                f"{res.max_resolved_order}; TDD relative to IL = "
@@ -769,20 +837,25 @@ def _channels_and_power(b: _Builder, run) -> None:
                   "current channels).", "small"))
         return
     rows = [["Phase", "P", "S", "P1", "Q1", "S1", "PF", "DPF"]]
+
+    def k(x, ref, unit):  # kW, kVA, kvar with the decimals of the phase's apparent power
+        return fmt_like(x / 1e3, ref / 1e3 if ref else None) + f" {unit}"
+
     for ph in p.phases:
         rows.append([f"{ph.phase or '1ph'} ({ph.voltage} \u00d7 {ph.current})",
-                     fmt(ph.p_w / 1e3, 4, "kW"), fmt(ph.s_va / 1e3, 4, "kVA"),
-                     fmt(ph.p1_w / 1e3, 4, "kW"), fmt(ph.q1_var / 1e3, 4, "kvar"),
-                     fmt(ph.s1_va / 1e3, 4, "kVA"), fmt(ph.pf, 4), fmt(ph.dpf, 4)])
-    total = ["total", fmt(p.p_w / 1e3, 4, "kW"),
-             fmt(p.se_va / 1e3, 4, "kVA") + (" (Se)" if p.wiring else "")
+                     k(ph.p_w, ph.s_va, "kW"), k(ph.s_va, ph.s_va, "kVA"),
+                     k(ph.p1_w, ph.s_va, "kW"), k(ph.q1_var, ph.s_va, "kvar"),
+                     k(ph.s1_va, ph.s_va, "kVA"), fmt(ph.pf, 4), fmt(ph.dpf, 4)])
+    ref = p.se_va if p.se_va else None
+    total = ["total", k(p.p_w, ref, "kW"),
+             k(p.se_va, ref, "kVA") + (" (Se)" if p.wiring else "")
              if p.se_va is not None else "\u2013", "", "", "", fmt(p.pf, 4), ""]
     if "dpf_pos" in p.extra:
         total[7] = fmt(p.extra["dpf_pos"], 4) + " (+seq)"
     if "p1pos_w" in p.extra:
-        total[3] = fmt(p.extra["p1pos_w"] / 1e3, 4, "kW") + " (+seq)"
+        total[3] = k(p.extra["p1pos_w"], ref, "kW") + " (+seq)"
     if "q1pos_var" in p.extra:
-        total[4] = fmt(p.extra["q1pos_var"] / 1e3, 4, "kvar") + " (+seq)"
+        total[4] = k(p.extra["q1pos_var"], ref, "kvar") + " (+seq)"
     rows.append(total)
     cap = (f"{run.id}: power quantities (IEEE 1459; negative P = export; negative PF and DPF "
            "when exporting; +seq: positive-sequence fundamental quantities).")
