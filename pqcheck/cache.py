@@ -115,17 +115,18 @@ class Cache:
         try:
             meta = json.loads(meta_path.read_text())
             size = data_path.stat().st_size
-        except (OSError, ValueError):
+            n_ch = len(meta["channels"])
+            n = meta["n_samples"]
+            if meta.get("format") != _FORMAT or size != n * n_ch * 8:
+                return None
+            chans = tuple(Channel(**c) for c in meta["channels"])
+            settings = dict(meta["settings"])
+            settings["cache"] = "samples read from cache"
+            prov = Provenance(source=source, sha256=sha256, reader=meta["reader"],
+                              settings=settings)
+            findings = tuple(_finding_from(f) for f in meta["findings"])
+        except Exception:  # a damaged or foreign entry is a miss, never an error
             return None
-        n_ch = len(meta["channels"])
-        n = meta["n_samples"]
-        if meta.get("format") != _FORMAT or size != n * n_ch * 8:
-            return None
-        chans = tuple(Channel(**c) for c in meta["channels"])
-        settings = dict(meta["settings"])
-        settings["cache"] = "samples read from cache"
-        prov = Provenance(source=source, sha256=sha256, reader=meta["reader"], settings=settings)
-        findings = tuple(_finding_from(f) for f in meta["findings"])
 
         def factory(block_samples):
             with open(data_path, "rb") as fh:
@@ -154,11 +155,8 @@ class Cache:
             meta = json.loads(base.with_suffix(".json").read_text())
             with np.load(base.with_suffix(".npz"), allow_pickle=False) as npz:
                 arrays = {k: npz[k] for k in npz.files}
-        except (OSError, ValueError, KeyError):
-            return None
-        try:
             return result_from_arrays(meta, arrays)
-        except (KeyError, TypeError, ValueError):
+        except Exception:  # a damaged entry (e.g. a cut-short .npz: BadZipFile) is a miss
             return None
 
     def save_result(self, sha256: str, settings: dict, result) -> None:
