@@ -355,6 +355,41 @@ def _basis_label(lim, quantity: str, unit: str) -> str:
     return unit
 
 
+def _compact_orders(orders) -> str:
+    """``[2, 3, 4, 5, 7]`` -> ``"2-5, 7"`` (with en dashes)."""
+    orders = sorted(set(orders))
+    parts, k = [], 0
+    while k < len(orders):
+        j = k
+        while j + 1 < len(orders) and orders[j + 1] == orders[j] + 1:
+            j += 1
+        parts.append(str(orders[k]) if j == k else f"{orders[k]}\u2013{orders[j]}")
+        k = j + 1
+    return ", ".join(parts)
+
+
+def _where(job, verdict: str) -> list:
+    """Per capture and channel, what has ``verdict``: ``"dc1, phase b (ib): TDD; orders
+    5, 7"``."""
+    out = []
+    for r in job.runs:
+        by_channel: dict = {}
+        for c in r.checks:
+            if c.verdict == verdict:
+                by_channel.setdefault(c.channel, []).append(c)
+        for ch in sorted(by_channel, key=lambda n: _channel_sort_key(r.result, n)):
+            cs = by_channel[ch]
+            totals = list(dict.fromkeys(c.label for c in cs if c.quantity != "harmonic"))
+            orders = [c.order for c in cs if c.quantity == "harmonic" and c.order is not None]
+            what = totals + ([f"order{'s' if len(set(orders)) > 1 else ''} "
+                              f"{_compact_orders(orders)}"] if orders else [])
+            lbl = _channel_label(r.result, ch) if ch else "all channels"
+            lbl = f"phase {lbl}" if ch and lbl != ch else lbl
+            prefix = f"{r.id}, " if len(job.runs) > 1 else ""
+            out.append(f"{prefix}{lbl}: {'; '.join(what)}")
+    return out
+
+
 def _counts(checks) -> dict:
     out = {"pass": 0, "fail": 0, "inconclusive": 0, "not applicable": 0}
     for c in checks:
@@ -439,11 +474,10 @@ def _cover(b: _Builder) -> None:
         if ident:
             pairs.append(("Identification", ident))
         ratings = ", ".join(x for x in (
-            fmt(eq.rated_power_w / 1e3, 4, "kW") if eq.rated_power_w else "",
-            fmt(eq.rated_apparent_power_va / 1e3, 4, "kVA") if eq.rated_apparent_power_va
-            else "",
-            fmt(eq.rated_current_a, 4, "A per phase") if eq.rated_current_a else "",
-            fmt(eq.rated_voltage_v, 4, "V") if eq.rated_voltage_v else "") if x)
+            f"{eq.rated_power_w / 1e3:g} kW" if eq.rated_power_w else "",
+            f"{eq.rated_apparent_power_va / 1e3:g} kVA" if eq.rated_apparent_power_va else "",
+            f"{eq.rated_current_a:g} A per phase" if eq.rated_current_a else "",
+            f"{eq.rated_voltage_v:g} V" if eq.rated_voltage_v else "") if x)
         if ratings:
             pairs.append(("Ratings", ratings))
     site_text = meta.site or (plan.site.name if plan is not None else "")
@@ -462,12 +496,13 @@ def _cover(b: _Builder) -> None:
         return r.id + (f" ({', '.join(extra)})" if extra else "")
 
     pairs.append((f"Captures ({len(job.runs)})", "; ".join(_run_text(r) for r in job.runs)))
-    for verdict_name, label in (("fail", "Limits exceeded"), ("inconclusive", "Not decided")):
-        items = list(dict.fromkeys(c.label for c in all_checks if c.verdict == verdict_name))
-        if items:
-            shown = ", ".join(items[:24]) + (f" and {len(items) - 24} more" if len(items) > 24
-                                             else "")
-            pairs.insert(0, (label, b.m(f"<b>{esc(shown)}</b>", "cell")))
+    for verdict_name, label in (("inconclusive", "Not decided"), ("fail", "Limits exceeded")):
+        lines = _where(job, verdict_name)
+        if lines:
+            shown = lines[:6] + ([f"and {len(lines) - 6} more channels"] if len(lines) > 6
+                                 else [])
+            pairs.insert(0, (label, b.m("<br/>".join(f"<b>{esc(x)}</b>" for x in shown),
+                                        "cell")))
     tables = job.limit_tables()
     pairs.append(("Limit tables", "; ".join(f"{_table_name(t)}: {t.title}" for t in tables)
                   if tables else "none (analysis only)"))
