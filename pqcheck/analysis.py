@@ -460,6 +460,8 @@ def analyze(
         if state is None:
             if buf.shape[1] < init_need and not final:
                 continue
+            if final and total < fs * one_window_s * 0.98:
+                break  # too short for any window: say so, not that no fundamental was found
             state = _initial_state(buf, fs, chans, reference, nominal_in, max_order, path,
                                    findings)
         if not final and buf.shape[1] - (np.floor(start) - buf_start) < span_need:
