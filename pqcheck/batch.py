@@ -581,7 +581,10 @@ class DaskExecutor:
         else:
             self.cluster = LocalCluster(n_workers=self.workers or os.cpu_count() or 1,
                                         threads_per_worker=1, processes=True,
-                                        dashboard_address=None, silence_logs=logging.ERROR)
+                                        dashboard_address=None, silence_logs=logging.ERROR,
+                                        # no dashboard; its HTTP server on a free port
+                                        scheduler_kwargs={"dashboard": False,
+                                                          "dashboard_address": ":0"})
             self.client = Client(self.cluster)
         return self
 
@@ -622,8 +625,14 @@ def _empty_table() -> pa.Table:
     return SCHEMA.empty_table()
 
 
-def read_results(path) -> pa.Table:
-    """Read a results file written by :func:`write_results` (Parquet, or CSV by extension).
+def read_results(path, *, fmt: str | None = None) -> pa.Table:
+    """Read a results file written by :func:`write_results`.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+    fmt : {"parquet", "csv"} or None
+        File format; None: CSV when the name ends in ``.csv``, else Parquet.
 
     Raises
     ------
@@ -634,8 +643,10 @@ def read_results(path) -> pa.Table:
     import pyarrow.parquet as pq
 
     p = Path(path)
+    if fmt is None:
+        fmt = "csv" if p.suffix.lower() == ".csv" else "parquet"
     try:
-        if p.suffix.lower() == ".csv":
+        if fmt == "csv":
             table = pacsv.read_csv(p, convert_options=pacsv.ConvertOptions(
                 column_types=SCHEMA, strings_can_be_null=True,
                 quoted_strings_can_be_null=False))
@@ -686,15 +697,16 @@ class _Results:
             if path is not None:
                 check_target(path, force=True, option=opt)
         self.old = _empty_table()
-        source = next((p for p in (parquet, csv) if p is not None and Path(p).exists()), None)
+        source = next(((p, f) for p, f in ((parquet, "parquet"), (csv, "csv"))
+                       if p is not None and Path(p).exists()), None)
         if source is not None and not force:
-            self.old = read_results(source)
+            self.old = read_results(source[0], fmt=source[1])
             keys = set(self.old.column("settings_key").drop_null().to_pylist()) - {key}
             if keys:
                 raise InputError(
                     "holds results made with other limit tables, selectors or options; give "
-                    "another output file, or --force to start it afresh", path=str(source))
-        self.new: list = []
+                    "another output file, or --force to start it afresh", path=str(source[0]))
+        self.new: list = []  # one Arrow table per capture (columnar: a fleet's rows fit)
         self.redone_paths: set = set()
         self.redone_shas: set = set()
         self.last_write = time.monotonic()
@@ -711,7 +723,7 @@ class _Results:
         self.redone_paths.add(capture)
         if sha:
             self.redone_shas.add(sha)
-        self.new += rows
+        self.new.append(pa.Table.from_pylist(rows, schema=SCHEMA))
 
     def table(self) -> pa.Table:
         """Old rows not redone, then the new ones, sorted by capture (stable)."""
@@ -724,8 +736,7 @@ class _Results:
                 pc.fill_null(pc.is_in(old.column("capture_sha256"),
                                       pa.array(sorted(self.redone_shas), pa.string())), False))
             old = old.filter(pc.invert(redone))
-        new = pa.Table.from_pylist(self.new, schema=SCHEMA)
-        t = pa.concat_tables([old, new])
+        t = pa.concat_tables([old, *self.new])
         return t.take(pc.sort_indices(t, sort_keys=[("capture", "ascending")]))
 
     def write(self, *, final: bool = False):
@@ -875,16 +886,16 @@ def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, for
 # --- summary ------------------------------------------------------------------------------
 
 
-def _label(row: dict) -> str:
-    q = row.get("quantity")
-    if q is None:
+def _label(quantity, applies_to, order) -> str:
+    """``I5``, ``V7``, ``THD(I)``, ``TDD``... as `check` names a limit."""
+    if quantity is None:
         return "-"
-    iv = "I" if row.get("applies_to") == "current" else "V"
-    if q == "harmonic":
-        return f"{iv}{row.get('order')}"
-    if q == "THD":
+    iv = "I" if applies_to == "current" else "V"
+    if quantity == "harmonic":
+        return f"{iv}{int(order)}"
+    if quantity == "THD":
         return f"THD({iv})"
-    return q
+    return quantity
 
 
 def summarize(table: pa.Table, *, worst: int = 10) -> dict:
@@ -902,48 +913,52 @@ def summarize(table: pa.Table, *, worst: int = 10) -> dict:
     dict
         ``captures``: number of captures; ``verdicts``: captures per verdict (``fail``,
         ``inconclusive``, ``pass``, ``not applicable``, ``error``); ``checks``: checks per
-        verdict; ``worst``: the lowest-margin check of each capture, lowest first (at most
-        ``worst`` of them; ``capture``, ``margin_percent`` [%], ``verdict``, ``table_id``,
-        ``channel``, ``label``, ``statistic``, ``measured``, ``limit``, ``unit``); ``errors``:
-        ``{capture, error}`` per capture that could not be checked; ``per_capture``: one entry
-        per capture (``capture``, ``capture_sha256``, ``verdict``, ``checks`` counts,
-        ``worst_margin_percent``, ``error``).
+        verdict; ``worst``: the lowest-margin check of each capture among its pass, fail and
+        inconclusive checks, lowest first (at most ``worst`` of them; ``capture``,
+        ``margin_percent`` [%], ``verdict``, ``table_id``, ``channel``, ``label``,
+        ``statistic``, ``measured``, ``limit``, ``unit``); ``errors``: ``{capture, error}`` per
+        capture that could not be checked; ``per_capture``: one entry per capture, in table
+        order (``capture``, ``capture_sha256``, ``verdict``, ``checks`` counts,
+        ``worst_margin_percent`` [%], ``error``).
     """
+    cols = ["capture", "capture_sha256", "capture_verdict", "verdict", "quantity", "order",
+            "applies_to", "margin_percent", "error", "table_id", "channel", "statistic",
+            "measured", "limit", "unit"]
+    df = table.select(cols).to_pandas().astype(object)
+    df = df.where(df.notna(), None)
+    df["capkey"] = list(zip(df["capture"], df["capture_sha256"]))
+    firsts = df.drop_duplicates("capkey")
     per = {}
-    for r in table.to_pylist():
-        k = (r["capture"], r["capture_sha256"])
-        e = per.get(k)
-        if e is None:
-            e = per[k] = {"capture": r["capture"], "capture_sha256": r["capture_sha256"],
-                          "verdict": r["capture_verdict"], "checks": dict.fromkeys(
-                              _VERDICTS[:4], 0), "worst_margin_percent": None,
-                          "error": r["error"], "_worst": None}
-        if r["verdict"] in e["checks"] and r["quantity"] is not None:
-            e["checks"][r["verdict"]] += 1
-        m = r["margin_percent"]
-        if (m is not None and r["verdict"] in ("pass", "fail", "inconclusive")
-                and (e["_worst"] is None or m < e["_worst"]["margin_percent"])):
-            e["_worst"] = r
-            e["worst_margin_percent"] = m
+    for r in firsts.itertuples(index=False):
+        per[r.capkey] = {"capture": r.capture, "capture_sha256": r.capture_sha256,
+                       "verdict": r.capture_verdict, "checks": dict.fromkeys(_VERDICTS[:4], 0),
+                       "worst_margin_percent": None, "error": r.error}
+    checks = df[df["quantity"].notna() & df["verdict"].isin(_VERDICTS[:4])]
+    for (cap, v), n in checks.groupby(["capkey", "verdict"], sort=False).size().items():
+        per[cap]["checks"][v] = int(n)
+    ranked = df[df["verdict"].isin(("pass", "fail", "inconclusive"))
+                & df["margin_percent"].notna()].copy()
+    ranked["margin_percent"] = ranked["margin_percent"].astype(float)
+    lowest = ranked.loc[ranked.groupby("capkey", sort=False)["margin_percent"].idxmin()]
+    for r in lowest.itertuples(index=False):
+        per[r.capkey]["worst_margin_percent"] = float(r.margin_percent)
+    lowest = lowest.sort_values(["margin_percent", "capture"], kind="stable").head(worst)
+    worst_rows = [{"capture": r.capture, "margin_percent": float(r.margin_percent),
+                   "verdict": r.verdict, "table_id": r.table_id, "channel": r.channel,
+                   "label": _label(r.quantity, r.applies_to, r.order),
+                   "statistic": r.statistic, "measured": _num(r.measured),
+                   "limit": _num(r.limit), "unit": r.unit}
+                  for r in lowest.itertuples(index=False)]
     caps = list(per.values())
-    verdicts = {v: sum(1 for e in caps if e["verdict"] == v) for v in _VERDICTS}
-    checks = {v: sum(e["checks"][v] for e in caps) for v in _VERDICTS[:4]}
-    ranked = sorted((e for e in caps if e["_worst"] is not None),
-                    key=lambda e: (e["worst_margin_percent"], e["capture"]))[:worst]
-    worst_rows = []
-    for e in ranked:
-        r = e["_worst"]
-        worst_rows.append({"capture": r["capture"], "margin_percent": r["margin_percent"],
-                           "verdict": r["verdict"], "table_id": r["table_id"],
-                           "channel": r["channel"], "label": _label(r),
-                           "statistic": r["statistic"], "measured": r["measured"],
-                           "limit": r["limit"], "unit": r["unit"]})
-    errors = [{"capture": e["capture"], "error": e["error"]} for e in caps
-              if e["verdict"] == "error"]
-    for e in caps:
-        e.pop("_worst")
-    return {"captures": len(caps), "verdicts": verdicts, "checks": checks,
-            "worst": worst_rows, "errors": errors, "per_capture": caps}
+    return {
+        "captures": len(caps),
+        "verdicts": {v: sum(1 for e in caps if e["verdict"] == v) for v in _VERDICTS},
+        "checks": {v: sum(e["checks"][v] for e in caps) for v in _VERDICTS[:4]},
+        "worst": worst_rows,
+        "errors": [{"capture": e["capture"], "error": e["error"]} for e in caps
+                   if e["verdict"] == "error"],
+        "per_capture": caps,
+    }
 
 
 def exit_code(summary: dict) -> int:

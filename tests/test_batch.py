@@ -212,7 +212,14 @@ def test_batch_rows_equal_check_results(fleet, tmp_path):
     i5 = [r for r in groups["b-fail.parquet"] if r["quantity"] == "harmonic"
           and r["order"] == 5 and r["channel"] == "ia"]
     assert i5 and i5[0]["measured"] == pytest.approx(20.0, rel=1e-3)
-    assert summary["summary"]["verdicts"]["error"] == 1
+    # the summary counts captures by the verdicts `check` gives them, an error counted apart
+    counts = summary["summary"]["verdicts"]
+    assert counts["error"] == 1
+    for v in ("pass", "fail", "inconclusive"):
+        assert counts[v] == sum(1 for x in verdicts.values() if x == v)
+    margins = [r["margin_percent"] for rows in groups.values() for r in rows
+               if r["margin_percent"] is not None and r["verdict"] != "not applicable"]
+    assert summary["summary"]["worst"][0]["margin_percent"] == min(margins)
 
 
 def test_exit_code_counts_an_error_as_inconclusive(fleet, tmp_path):
@@ -369,6 +376,8 @@ def test_dask_missing_gives_an_install_hint(fleet, monkeypatch):
 @pytest.mark.parametrize("extra, match", [
     (["--jobs", "2", "--workers", "2"], "--jobs sets local worker processes"),
     (["--scheduler", "tcp://127.0.0.1:1", "--workers", "2"], "give --scheduler or --workers"),
+    (["--out", "r.csv"], "--out writes Parquet; give the CSV file with --csv"),
+    (["--out", "r.parquet", "--csv", "./r.parquet"], "--out and --csv name the same file"),
 ])
 def test_usage_errors(fleet, extra, match):
     res = CliRunner().invoke(main, ["batch", str(fleet), *LIMIT_ARGS, *extra])

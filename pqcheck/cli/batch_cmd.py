@@ -5,6 +5,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
+import os
 import sys
 
 import click
@@ -31,6 +32,9 @@ def limit_options(func):
     return func
 
 
+_MAX_ERRORS = 20
+
+
 def _num(x, digits=4) -> str:
     if x is None or not math.isfinite(x):
         return "-"
@@ -43,9 +47,8 @@ def render_summary(summary: dict, run) -> str:
     s = summary
     v, c = s["verdicts"], s["checks"]
     lines = []
-    where = f" in {run.written[0]}" if run.written else ""
-    lines.append(f"Captures   {len(run.captures)} found: {run.checked} checked now, "
-                 f"{run.skipped} already{where}")
+    done = f", {run.skipped} already in {run.written[0]}" if run.written else ""
+    lines.append(f"Captures   {len(run.captures)} found: {run.checked} checked now{done}")
     lines.append(f"Verdicts   {v['fail']} fail, {v['inconclusive']} inconclusive, {v['pass']} "
                  f"pass, {v['not applicable']} not applicable, {v['error']} error")
     lines.append(f"Checks     {c['fail']} fail, {c['inconclusive']} inconclusive, {c['pass']} "
@@ -66,10 +69,13 @@ def render_summary(summary: dict, run) -> str:
     if s["errors"]:
         lines.append("")
         lines.append("Errors (each counts as inconclusive for the exit code)")
-        for e in s["errors"]:
+        for e in s["errors"][:_MAX_ERRORS]:
             msg = e["error"] or ""
             lines.append(f"  {msg}" if msg.startswith(e["capture"]) else
                          f"  {e['capture']}: {msg}")
+        if len(s["errors"]) > _MAX_ERRORS:
+            lines.append(f"  ... and {len(s['errors']) - _MAX_ERRORS} more (the error column "
+                         "of the results table has them all)")
     if run.written:
         lines.append("")
         lines.append(f"Results    {', '.join(run.written)} ({run.rows_written} rows)")
@@ -132,6 +138,11 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
 
     if scheduler and workers:
         fail_usage("give --scheduler or --workers, not both")
+    if out is not None and out.lower().endswith(".csv"):
+        fail_usage("--out writes Parquet; give the CSV file with --csv")
+    if out is not None and csv_path is not None and os.path.abspath(out) == os.path.abspath(
+            csv_path):
+        fail_usage("--out and --csv name the same file")
     if jobs is not None and (scheduler or workers):
         fail_usage("--jobs sets local worker processes; with Dask use --workers (local "
                    "cluster) or the cluster's own workers (--scheduler)")
