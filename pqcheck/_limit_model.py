@@ -84,7 +84,7 @@ def weakest_tag(*tags: str) -> str:
 
 # --- order specifications ------------------------------------------------------------------
 
-_ORDER_ITEM = re.compile(r"\s*(\d{1,6})\s*(?:-\s*(\d{1,6})\s*)?$")
+_ORDER_ITEM = re.compile(r"\s*(\d{1,9})\s*(?:-\s*(\d{1,9})\s*)?$")
 _ORDER_CAP = 1000  # no standard limits orders this high; guards memory
 
 
