@@ -102,11 +102,9 @@ def test_drifting_frequency_is_followed():
     assert ch.harmonic_rms[5] == pytest.approx(2.0, rel=1e-3)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "known limitation: the tracker demodulates one cycle at a time, so an interharmonic near "
-    "the fundamental on the reference channel (here 3 % at 75 Hz, current-only capture) makes "
-    "window lengths jitter by about 0.02 Hz and order 47/49 read about 2 % off"))
 def test_interharmonic_near_fundamental_on_reference_channel():
+    # The tracker smooths the cycle count with a local quadratic fit over 11 cycles, so an
+    # interharmonic beating against the fundamental does not make the windows jitter.
     # A current-only capture (the current is the frequency reference) of an ideal six-pulse
     # current plus a 75 Hz interharmonic of 3 % of the fundamental. The fundamental does not
     # move, so every window should still span exactly 10 cycles of 50 Hz and the harmonics read
