@@ -407,6 +407,34 @@ def _pd_encoding(dialect):
             "latin-1": "latin-1"}.get(dialect.encoding, "utf-8")
 
 
+def parse_error(path, dialect: Dialect, exc) -> CaptureFormatError:
+    """The error to raise for a pandas parser failure: names the line (and the column of a
+    cell that is not a number) and says what to do."""
+    msg = str(exc)
+    m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
+    if m:
+        line = int(m.group(2))  # pandas counts lines of the file, skipped rows included
+        return CaptureFormatError(
+            f"row has {m.group(3)} fields but the header has {m.group(1)}; fix or delete "
+            "that row (mixed delimiters?)", path=path, line=line)
+    m = re.search(r"EOF inside string starting at row (\d+)", msg)
+    if m:  # a stray quote at the start of a cell; pandas counts rows of the file from 0
+        return CaptureFormatError(
+            'a quote (") opens a text field that never closes; remove it from that row',
+            path=path, line=int(m.group(1)) + 1)
+    try:
+        bad = _locate_bad_cell(path, dialect, dialect.names)
+    except pd.errors.ParserError:  # reported below with pandas' own words
+        bad = None
+    if bad is not None:
+        line, col, text = bad
+        shown = text if len(text) <= 40 else text[:37] + "..."
+        return CaptureFormatError(
+            f"cell {shown!r} is not a number; fix or delete that row, or export the "
+            "capture again", path=path, line=line, field=col)
+    return CaptureFormatError(f"could not parse the data rows: {msg}", path=path)
+
+
 def read_table(path, dialect: Dialect):
     """Parse the numeric block of a sniffed file into a float64 array (rows, columns)."""
     path = str(path)
@@ -429,29 +457,7 @@ def read_table(path, dialect: Dialect):
         raise CaptureFormatError(f"text encoding problem ({exc.reason}); save the file as "
                                  "UTF-8", path=path) from None
     except (ValueError, pd.errors.ParserError) as exc:
-        msg = str(exc)
-        m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
-        if m:
-            line = int(m.group(2))  # pandas counts lines of the file, skipped rows included
-            raise CaptureFormatError(
-                f"row has {m.group(3)} fields but the header has {m.group(1)}; fix or delete "
-                "that row (mixed delimiters?)", path=path, line=line) from None
-        m = re.search(r"EOF inside string starting at row (\d+)", msg)
-        if m:  # a stray quote at the start of a cell; pandas counts rows of the file from 0
-            raise CaptureFormatError(
-                'a quote (") opens a text field that never closes; remove it from that row',
-                path=path, line=int(m.group(1)) + 1) from None
-        try:
-            bad = _locate_bad_cell(path, dialect, dialect.names)
-        except pd.errors.ParserError:  # reported below with pandas' own words
-            bad = None
-        if bad is not None:
-            line, col, text = bad
-            shown = text if len(text) <= 40 else text[:37] + "..."
-            raise CaptureFormatError(
-                f"cell {shown!r} is not a number; fix or delete that row, or export the "
-                "capture again", path=path, line=line, field=col) from None
-        raise CaptureFormatError(f"could not parse the data rows: {msg}", path=path) from None
+        raise parse_error(path, dialect, exc) from None
     except (EOFError, zlib.error, gzip.BadGzipFile) as exc:
         raise _damaged_gzip(path, exc) from None
     return df.to_numpy(dtype=np.float64, copy=False)

@@ -13,7 +13,6 @@ from __future__ import annotations
 import hashlib
 import io
 import os
-import re
 from dataclasses import replace
 
 import numpy as np
@@ -265,30 +264,7 @@ def _chunks(reader, path, d, names):
         except StopIteration:
             return
         except (ValueError, pd.errors.ParserError) as exc:
-            msg = str(exc)
-            m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
-            if m:
-                line = int(m.group(2))  # pandas counts lines of the file, skipped rows included
-                raise CaptureFormatError(
-                    f"row has {m.group(3)} fields but the header has {m.group(1)}; fix or "
-                    "delete that row (mixed delimiters?)", path=path, line=line) from None
-            m = re.search(r"EOF inside string starting at row (\d+)", msg)
-            if m:  # a stray quote at the start of a cell; pandas counts rows of the file from 0
-                raise CaptureFormatError(
-                    'a quote (") opens a text field that never closes; remove it from that row',
-                    path=path, line=int(m.group(1)) + 1) from None
-            try:
-                bad = _d._locate_bad_cell(path, d, names)
-            except pd.errors.ParserError:  # reported below with pandas' own words
-                bad = None
-            if bad is not None:
-                line, col, text = bad
-                shown = text if len(text) <= 40 else text[:37] + "..."
-                raise CaptureFormatError(
-                    f"cell {shown!r} is not a number; fix or delete that row, or export the "
-                    "capture again", path=path, line=line, field=col) from None
-            raise CaptureFormatError(f"could not parse the data rows: {msg}",
-                                     path=path) from None
+            raise _d.parse_error(path, d, exc) from None
         yield chunk.to_numpy(dtype=np.float64)
 
 
