@@ -72,11 +72,13 @@ AGGREGATION = (
 )
 
 STANDARDS_METHOD = (
-    ("IEC 61000-4-7", "harmonic measurement method: synchronised 10/12-cycle rectangular "
-                      "windows, harmonic groups and subgroups, 1.5 s smoothing where a table "
-                      "asks for it"),
-    ("IEEE Std 1459-2010", "definitions of active, apparent, fundamental and effective "
-                           "power quantities in non-sinusoidal and unbalanced conditions"),
+    ("IEC 61000-4-7:2002+A1:2008 \u2020",
+     "harmonic measurement method: synchronised 10/12-cycle rectangular windows, harmonic "
+     "groups and subgroups, 1.5 s smoothing where a table asks for it (edition from memory: "
+     "verify against your copy)"),
+    ("IEEE Std 1459-2010",
+     "definitions of active, apparent, fundamental and effective power quantities in "
+     "non-sinusoidal and unbalanced conditions"),
 )
 
 UNCERTAINTY_METHOD = (
