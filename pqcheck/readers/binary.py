@@ -13,6 +13,7 @@ unit (``time [s]``); otherwise the sample rate comes from ``--sample-rate`` or t
 from __future__ import annotations
 
 import json
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -51,9 +52,13 @@ def open_npy(path, *, sample_rate_hz=None, time_column=None, sha256="") -> Captu
     path = str(path)
     try:
         arr = np.load(path, mmap_mode="r", allow_pickle=False)
-    except (ValueError, OSError) as exc:
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:  # EOFError: empty file
         raise CaptureFormatError(f"not a readable .npy array ({exc}); save it with numpy.save "
                                  "as a float array", path=path) from None
+    if not isinstance(arr, np.ndarray):  # an .npz archive under a .npy name
+        arr.close()
+        raise CaptureFormatError("this is an .npz archive of several arrays, not one .npy "
+                                 "array; save the samples with numpy.save", path=path)
     if arr.ndim == 1:
         arr = arr[:, None]
     if arr.ndim != 2 or not np.issubdtype(arr.dtype, np.number) or np.issubdtype(
