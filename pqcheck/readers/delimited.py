@@ -424,7 +424,7 @@ def parse_error(path, dialect: Dialect, exc) -> CaptureFormatError:
             path=path, line=int(m.group(1)) + 1)
     try:
         bad = _locate_bad_cell(path, dialect, dialect.names)
-    except pd.errors.ParserError:  # reported below with pandas' own words
+    except (pd.errors.ParserError, ValueError):  # reported below with pandas' own words
         bad = None
     if bad is not None:
         line, col, text = bad
