@@ -31,6 +31,7 @@ Output
 
 from __future__ import annotations
 
+import collections
 import contextlib
 import dataclasses
 import functools
@@ -40,7 +41,7 @@ import json
 import math
 import os
 import time
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from pathlib import Path
@@ -500,32 +501,67 @@ class ProcessExecutor:
 
     def imap_unordered(self, fn, items, on_crash=None):
         """Yield ``(index, fn(item))`` as items finish; ``on_crash(item, message)`` stands in
-        for the result of an item whose worker died (default: raise)."""
+        for the result of an item whose worker died (default: raise).
+
+        At most four items per worker are queued at a time, so a fleet's worth of tasks is not
+        held in memory and an interrupted run stops promptly.
+        """
         items = list(items)
-        futs = {self.pool.submit(fn, x): i for i, x in enumerate(items)}
-        crashed = []
-        for f in as_completed(futs):
-            i = futs[f]
-            try:
-                yield i, f.result()
-            except BrokenProcessPool:
-                crashed.append(i)
-        if not crashed:
-            return
-        self.pool.shutdown(wait=False, cancel_futures=True)
-        self.pool = None
-        for i in sorted(crashed):
-            pool = self._new_pool(1)
-            try:
-                yield i, pool.submit(fn, items[i]).result()
-            except BrokenProcessPool as exc:
-                if on_crash is None:
-                    raise
-                yield i, on_crash(items[i], f"the worker process died ({exc}); the capture "
-                                            "may need more memory than a worker has")
-            finally:
+        queue = collections.deque(range(len(items)))
+        while queue:
+            broken, suspects = yield from self._run(fn, items, queue)
+            if broken:  # a worker died: run each unfinished item alone to find the culprit
+                self.pool.shutdown(wait=False, cancel_futures=True)
+                self.pool = None
+                yield from self._one_by_one(fn, items, sorted(suspects), on_crash)
+                self.pool = self._new_pool(self.jobs)
+
+    def _run(self, fn, items, queue) -> tuple:
+        """Run queued items until the queue is empty or the pool breaks; return
+        ``(broken, indices of the items whose worker died)``."""
+        pending = {}
+        broken, suspects = False, []
+        while queue or pending:
+            while queue and len(pending) < 4 * self.jobs and not broken:
+                i = queue.popleft()
+                try:
+                    pending[self.pool.submit(fn, items[i])] = i
+                except BrokenProcessPool:
+                    queue.appendleft(i)
+                    broken = True
+            if not pending:
+                break
+            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+            for f in done:
+                i = pending.pop(f)
+                try:
+                    result = f.result()
+                except BrokenProcessPool:
+                    broken = True
+                    suspects.append(i)
+                    continue
+                yield i, result
+        return broken, suspects
+
+    def _one_by_one(self, fn, items, indices, on_crash):
+        """Run items one at a time in a one-worker pool, renewed after each death."""
+        pool = None
+        try:
+            for i in indices:
+                pool = pool or self._new_pool(1)
+                try:
+                    result = pool.submit(fn, items[i]).result()
+                except BrokenProcessPool as exc:
+                    pool.shutdown(wait=False, cancel_futures=True)
+                    pool = None
+                    if on_crash is None:
+                        raise
+                    result = on_crash(items[i], f"the worker process died ({exc}); the capture "
+                                                "may need more memory than a worker has")
+                yield i, result
+        finally:
+            if pool is not None:
                 pool.shutdown(wait=False, cancel_futures=True)
-        self.pool = self._new_pool(self.jobs)
 
 
 def _worker_init():

@@ -347,14 +347,16 @@ def test_process_pool_gives_the_same_table(inline_table, pool_table):
 
 
 def test_dead_worker_fails_only_its_item():
-    # operator.call(partial(os._exit, 3)) ends the worker process like a crash would
-    items = [functools.partial(abs, -3), functools.partial(os._exit, 3),
-             functools.partial(abs, -5)]
+    # operator.call(partial(os._exit, 3)) ends the worker process as a crash would; twelve
+    # items so that some are still queued (four per worker) when the pool breaks
+    items = [functools.partial(abs, -k) for k in range(12)]
+    items[5] = functools.partial(os._exit, 3)
     with ProcessExecutor(2) as ex:
         got = dict(ex.imap_unordered(operator.call, items,
                                      on_crash=lambda item, msg: f"crashed: {msg}"))
-    assert got[0] == 3 and got[2] == 5
-    assert got[1].startswith("crashed: the worker process died")
+    assert sorted(got) == list(range(12))
+    assert got[5].startswith("crashed: the worker process died")
+    assert all(got[k] == k for k in range(12) if k != 5)
 
 
 def test_local_dask_cluster_gives_the_same_table(fleet, pool_table):
