@@ -131,7 +131,7 @@ class BatchSpec:
         Name of the time column when it is not recognised.
     analysis : tuple of (str, object)
         Keyword arguments of :func:`pqcheck.analyze` (``nominal_hz``, ``max_order``, ``il_a``,
-        ``wiring``, ``reference``).
+        ``wiring``, ...).
     il_a, rated_current_a, iref_a, active_power_w : float or None
         Reference values of :func:`pqcheck.assess.assess`. [A], [A], [A], [W]
     cache_dir : str or None
@@ -175,7 +175,7 @@ class BatchSpec:
         InputError
             A table cannot be read, or a selector it needs is missing or out of range.
         """
-        return _resolved(self.limits, self.selectors)
+        return _resolved(self.limits, self.selectors, _stamps(self.limits))
 
     def key(self) -> str:
         """Short hash of everything that decides a row: the tables (id and SHA-256 of the
@@ -193,8 +193,21 @@ def _is_file(x) -> bool:
     return isinstance(x, os.PathLike) or (os.path.isfile(str(x)))
 
 
+def _stamps(limits: tuple) -> tuple:
+    """Size and modification time of each table file, so an edited file is read again."""
+    out = []
+    for x in limits:
+        try:
+            st = os.stat(x)
+            out.append((st.st_size, st.st_mtime_ns))
+        except OSError:
+            out.append(None)
+    return tuple(out)
+
+
 @functools.lru_cache(maxsize=8)
-def _resolved(limits: tuple, selectors: tuple) -> tuple:
+def _resolved(limits: tuple, selectors: tuple, stamps: tuple) -> tuple:
+    """Resolved tables, cached per process (a worker resolves once, not once per capture)."""
     from .limits import load_table, resolve
 
     return tuple(resolve(load_table(x), **dict(selectors)) for x in limits)
@@ -356,6 +369,14 @@ def _message(exc: BaseException) -> str:
     return f"internal error: {type(exc).__name__}: {exc}"
 
 
+def _relabel(message: str, opened: str, capture: str) -> str:
+    """Name files in a message as the table names the capture (workers open absolute paths,
+    the user gave relative ones); also the .dat next to a .cfg."""
+    folder, shown = os.path.dirname(opened), os.path.dirname(capture)
+    message = message.replace(opened, capture)
+    return message.replace(folder + os.sep, shown + os.sep if shown else "")
+
+
 def _num(x):
     if x is None:
         return None
@@ -397,9 +418,7 @@ def check_capture(task: dict) -> list:
     try:
         return _check_rows(task)
     except Exception as exc:  # noqa: BLE001 - a batch records every failure as data
-        # the same message whichever executor ran it: name the capture as the table does
-        message = _message(exc).replace(task["path"], capture)
-        return [error_row(capture, sha, key, message)]
+        return [error_row(capture, sha, key, _relabel(_message(exc), task["path"], capture))]
 
 
 def _check_rows(task: dict) -> list:
@@ -871,23 +890,25 @@ def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, for
     executor = executor or InlineExecutor()
     spec_dict = dataclasses.asdict(spec)
     shas: list = [None] * len(captures)
+    opened = [os.path.abspath(c) for c in captures]  # workers may run in another folder
     todo, skipped_shas, unreadable = [], set(), 0
     try:
         with executor as ex:
             with _bar(len(captures), "hashing", progress) as bar:
-                for i, h in ex.imap_unordered(hash_capture, captures,
+                for i, h in ex.imap_unordered(hash_capture, opened,
                                               lambda c, m: {"sha256": None, "error": m}):
                     bar.update(1)
                     shas[i] = h["sha256"]
                     if h["error"]:
                         unreadable += 1
+                        message = _relabel(h["error"], opened[i], captures[i])
                         results.add(captures[i], None,
-                                    [error_row(captures[i], None, key, h["error"])])
+                                    [error_row(captures[i], None, key, message)])
                     elif h["sha256"] in done:
                         skipped_shas.add(h["sha256"])
                     else:
                         todo.append(i)
-            tasks = [{"capture": captures[i], "path": os.path.abspath(captures[i]),
+            tasks = [{"capture": captures[i], "path": opened[i],
                       "sha256": shas[i], "key": key, "spec": spec_dict} for i in sorted(todo)]
 
             def crashed(task, message):

@@ -97,7 +97,7 @@ def render_summary(summary: dict, run) -> str:
               help="Worker processes on this machine. Default: the number of CPUs.")
 @click.option("--scheduler", metavar="ADDRESS",
               help="Run on the Dask cluster of this scheduler (tcp://host:8786); its workers "
-                   "need pqcheck and must see the captures at the same paths.")
+                   "need pqcheck and must see the captures and limit files at the same paths.")
 @click.option("--workers", type=click.IntRange(1), metavar="N",
               help="Run on a local Dask cluster of N worker processes.")
 @click.option("--force", is_flag=True,
