@@ -222,6 +222,25 @@ def test_batch_rows_equal_check_results(fleet, tmp_path):
     assert summary["summary"]["worst"][0]["margin_percent"] == min(margins)
 
 
+def test_damaged_comtrade_records_become_error_rows(fleet, tmp_path, monkeypatch):
+    cfg = write_comtrade_pair(tmp_path, "cut")
+    dat = cfg.with_suffix(".dat")
+    dat.write_bytes(dat.read_bytes()[:1000])  # truncated data file
+    (tmp_path / "lone.cfg").write_bytes(cfg.read_bytes())  # no .dat beside it
+    (tmp_path / "good.csv").write_bytes((fleet / "a-pass.csv").read_bytes())
+    monkeypatch.chdir(tmp_path)
+    run = run_batch(["."], spec())
+    groups = rows_by_capture(run.table)
+    assert run.checked == 3 and sorted(groups) == ["cut.cfg", "good.csv", "lone.cfg"]
+    [cut], [lone] = groups["cut.cfg"], groups["lone.cfg"]
+    # files named as the user sees them (relative to the folder given), never absolute
+    assert cut["error"].startswith("cut.dat: the data file holds ")
+    assert cut["capture_sha256"] == capture_sha256(cfg)
+    assert lone["error"].startswith("lone.cfg: the data file lone.dat is missing")
+    assert lone["capture_sha256"] is None
+    assert {r["capture_verdict"] for r in groups["good.csv"]} == {"pass"}
+
+
 def test_exit_code_counts_an_error_as_inconclusive(fleet, tmp_path):
     args = ["batch", str(fleet / "a-pass.csv"), *LIMIT_ARGS, "--no-cache", "-q", "-j", "1"]
     assert CliRunner().invoke(main, args).exit_code == 0  # one passing capture
