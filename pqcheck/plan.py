@@ -17,12 +17,12 @@ Values in the file use the units in their names (``_v`` volts, ``_a`` amperes, `
 from __future__ import annotations
 
 import hashlib
-import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ._toml import KeyLines, syntax_error_line, tomllib
+from ._toml import syntax_error_line, tomllib
+from ._tomldoc import BOOL, NUM, POS, STR, STRS, DocReader
 from .errors import PlanError
 
 __all__ = [
@@ -397,11 +397,7 @@ class Plan:
 # Loading
 # ---------------------------------------------------------------------------------------------
 
-_NUM = "number"
-_POS = "positive number"
-_STR = "text"
-_BOOL = "true or false"
-_STRS = "list of text"
+_NUM, _POS, _STR, _BOOL, _STRS = NUM, POS, STR, BOOL, STRS
 
 _TRANSFORMER = {"rating_va": _POS, "primary_v": _POS, "secondary_v": _POS,
                 "impedance_percent": _POS, "description": _STR}
@@ -433,96 +429,11 @@ _TOP = {"schema": "whole number", "title": _STR, "report_id": _STR, "notes": _ST
 _ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]*")
 
 
-class _Reader:
-    """Validates one parsed document, naming file, line and field in every error."""
+class _Reader(DocReader):
+    """Validates one parsed plan, naming file, line and field in every error."""
 
     def __init__(self, path: Path, text: str):
-        self.path = path
-        self.lines = KeyLines(text)
-
-    def error(self, key_path: tuple, problem: str) -> PlanError:
-        return PlanError(problem, path=self.path, line=self.lines.line(key_path),
-                         field=_field_name(key_path) or None)
-
-    def table(self, doc, key_path: tuple, schema: dict) -> dict:
-        if not isinstance(doc, dict):
-            raise self.error(key_path, f"must be a table, got {_kind(doc)}")
-        for key in doc:
-            if key not in schema:
-                raise self.error(key_path + (key,),
-                                 f"unknown field; expected one of {', '.join(sorted(schema))}")
-        out = {}
-        for key, kind in schema.items():
-            if key in doc and kind not in ("table", "array of tables"):
-                out[key] = self.value(doc[key], key_path + (key,), kind)
-        return out
-
-    def value(self, v, key_path: tuple, kind: str):
-        if kind == _STR:
-            if not isinstance(v, str):
-                raise self.error(key_path, f"must be text in quotes, got {_kind(v)}")
-            return v
-        if kind == _BOOL:
-            if not isinstance(v, bool):
-                raise self.error(key_path, f"must be true or false, got {_kind(v)}")
-            return v
-        if kind == _STRS:
-            if not isinstance(v, list) or not all(isinstance(x, str) and x for x in v):
-                raise self.error(key_path, "must be a list of non-empty text, e.g. "
-                                           '["ia", "ib", "ic"]')
-            return tuple(v)
-        if kind == "whole number":
-            if isinstance(v, bool) or not isinstance(v, int):
-                raise self.error(key_path, f"must be a whole number, got {_kind(v)}")
-            return v
-        if kind in (_NUM, _POS):
-            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-                raise self.error(key_path, f"must be a number, got {_kind(v)}")
-            if kind == _POS and v <= 0:
-                raise self.error(key_path, f"must be greater than zero, got {v!r}")
-            return float(v)
-        raise AssertionError(kind)  # pragma: no cover
-
-    def array(self, doc, key_path: tuple) -> list:
-        v = doc.get(key_path[-1], [])
-        if not isinstance(v, list) or not all(isinstance(x, dict) for x in v):
-            raise self.error(key_path, "must be an array of tables "
-                                       f"([[{'.'.join(key_path)}]] entries)")
-        return v
-
-    def file(self, text: str, folder: Path, key_path: tuple, check: bool) -> Path:
-        p = Path(text).expanduser()
-        if not p.is_absolute():
-            p = folder / p
-        if check and not p.is_file():
-            where = f" (resolved against the plan's folder {folder})" \
-                if not Path(text).is_absolute() else ""
-            raise self.error(key_path, f"file {text!r} not found{where}")
-        return p
-
-
-def _field_name(key_path: tuple) -> str:
-    out = ""
-    for k in key_path:
-        if isinstance(k, int):
-            out += f"[{k + 1}]"
-        else:
-            out += ("." if out else "") + k
-    return out
-
-
-def _kind(v) -> str:
-    if isinstance(v, bool):
-        return f"{str(v).lower()} (true/false)"
-    if isinstance(v, (int, float)):
-        return f"the number {v!r}"
-    if isinstance(v, str):
-        return f"the text {v!r}"
-    if isinstance(v, list):
-        return "a list"
-    if isinstance(v, dict):
-        return "a table"
-    return type(v).__name__
+        super().__init__(path, text, "plan")
 
 
 def _looks_like_path(table: str) -> bool:

@@ -51,7 +51,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._toml import KeyLines, syntax_error_line, tomllib
+from ._toml import syntax_error_line, tomllib
+from ._tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader
 from .errors import InputError, PlanError
 from .findings import Finding
 from .metrics import sequence_components
@@ -1074,12 +1075,7 @@ def spectrum_from_dict(doc: dict, *, source: str = "<results>", sha256: str = ""
 # Loading a site file
 # ---------------------------------------------------------------------------------------------
 
-_NUM = "number"
-_POS = "positive number"
-_STR = "text"
-_BOOL = "true or false"
-_STRS = "list of text"
-_INT = "whole number"
+_NUM, _POS, _STR, _BOOL, _STRS, _INT = NUM, POS, STR, BOOL, STRS, INT
 
 _TOP = {"schema": _INT, "name": _STR, "notes": _STR, "nominal_frequency_hz": _POS,
         "summation": _STR, "supply": "table", "transformer": "table", "pcc": "table",
@@ -1095,91 +1091,14 @@ _UNIT = {"name": _STR, "capture": _STR, "results": _STR, "count": _INT, "load_po
          "voltage": _STRS, "sample_rate_hz": _POS, "time_column": _STR}
 
 
-def _field_name(key_path: tuple) -> str:
-    out = ""
-    for k in key_path:
-        if isinstance(k, int):
-            out += f"[{k + 1}]"
-        else:
-            out += ("." if out else "") + k
-    return out
-
-
-def _kind(v) -> str:
-    if isinstance(v, bool):
-        return f"{str(v).lower()} (true/false)"
-    if isinstance(v, (int, float)):
-        return f"the number {v!r}"
-    if isinstance(v, str):
-        return f"the text {v!r}"
-    if isinstance(v, list):
-        return "a list"
-    if isinstance(v, dict):
-        return "a table"
-    return type(v).__name__
-
-
 _SITE_BASES = (("current", "percent_of_il"), ("voltage", "percent_of_fundamental"))
 
 
-class _Reader:
+class _Reader(DocReader):
     """Validates one parsed site document; every error names file, line and field."""
 
     def __init__(self, path: Path, text: str):
-        self.path = path
-        self.lines = KeyLines(text)
-
-    def error(self, key_path: tuple, problem: str) -> PlanError:
-        return PlanError(problem, path=self.path, line=self.lines.line(key_path),
-                         field=_field_name(key_path) or None)
-
-    def table(self, doc, key_path: tuple, schema: dict) -> dict:
-        if not isinstance(doc, dict):
-            raise self.error(key_path, f"must be a table, got {_kind(doc)}")
-        for key in doc:
-            if key not in schema:
-                raise self.error(key_path + (key,),
-                                 f"unknown field; expected one of {', '.join(sorted(schema))}")
-        out = {}
-        for key, kind in schema.items():
-            if key in doc and kind not in ("table", "array of tables"):
-                out[key] = self.value(doc[key], key_path + (key,), kind)
-        return out
-
-    def value(self, v, key_path: tuple, kind: str):
-        if kind == _STR:
-            if not isinstance(v, str):
-                raise self.error(key_path, f"must be text in quotes, got {_kind(v)}")
-            return v
-        if kind == "label":
-            if isinstance(v, bool) or not isinstance(v, (str, int, float)):
-                raise self.error(key_path, f"must be text such as \"100 %\", got {_kind(v)}")
-            return v if isinstance(v, str) else f"{v:g}"
-        if kind == _BOOL:
-            if not isinstance(v, bool):
-                raise self.error(key_path, f"must be true or false, got {_kind(v)}")
-            return v
-        if kind == _STRS:
-            if not isinstance(v, list) or not all(isinstance(x, str) and x for x in v):
-                raise self.error(key_path, "must be a list of non-empty text, e.g. "
-                                           '["ia", "ib", "ic"]')
-            return tuple(v)
-        if kind == _INT:
-            if isinstance(v, bool) or not isinstance(v, int):
-                raise self.error(key_path, f"must be a whole number, got {_kind(v)}")
-            return v
-        if kind in (_NUM, _POS):
-            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-                raise self.error(key_path, f"must be a number, got {_kind(v)}")
-            if kind == _POS and v <= 0:
-                raise self.error(key_path, f"must be greater than zero, got {v!r}")
-            return float(v)
-        raise AssertionError(kind)  # pragma: no cover
-
-    def require(self, vals: dict, key_path: tuple, key: str, what: str):
-        if key not in vals:
-            raise self.error(key_path, f"missing field '{key}': {what}")
-        return vals[key]
+        super().__init__(path, text, "site file")
 
 
 def _read_text(path: Path):
