@@ -56,7 +56,7 @@ SELECTORS = {
     "rsce": ("points", "--rsce (or --ssc and --rated-power)", "",
              "short-circuit ratio Rsce"),
     "equipment_class": ("choice", "--class", "", "equipment class"),
-    "equipment": ("choice", "--equipment", "", "kind of equipment"),
+    "equipment": ("choice", "--equipment-kind", "", "kind of equipment"),
     "generation": ("flag", "--generation", "", "the equipment is power-generation equipment"),
 }
 

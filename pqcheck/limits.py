@@ -319,7 +319,7 @@ _INPUTS = {
     "isc_il": "--isc and --il",
     "generation": "--generation",
     "equipment_class": "--class",
-    "equipment": "--equipment",
+    "equipment": "--equipment-kind",
     "rsce": "--rsce",
     "ssc": "--ssc",
     "rated_power": "--rated-power",
@@ -398,8 +398,8 @@ def _selector_values(table: LimitTable, given: dict):
                 if eq is None:
                     raise InputError(
                         "Rsce from --ssc and --rated-power needs the kind of equipment: give "
-                        f"--equipment ({', '.join(c for c, _ in spec.ssc_divisor)})",
-                        field="--equipment")
+                        f"--equipment-kind ({', '.join(c for c, _ in spec.ssc_divisor)})",
+                        field="--equipment-kind")
                 k = dict(spec.ssc_divisor)[eq]
                 values[name] = given["ssc"] / (k * given["rated_power"])
                 used.update(ssc=given["ssc"], rated_power=given["rated_power"])
@@ -477,7 +477,7 @@ class _Resolver:
         if name == "rsce":
             return InputError(f"table {self.t.id} ({where}) selects its row by the {meaning}: "
                               f"give --rsce, or --ssc [VA] with --rated-power [VA] and "
-                              "--equipment", field="--rsce")
+                              "--equipment-kind", field="--rsce")
         unit = f" [{spec.unit}]" if spec.unit else ""
         return InputError(f"table {self.t.id} ({where}) selects limits by the {meaning}: give "
                           f"{spec.option}{unit}", field=spec.option)

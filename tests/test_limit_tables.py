@@ -401,13 +401,13 @@ def test_resolved_limits_record_their_source():
     ("iec61000-3-2", {"equipment_class": "E"}, r"^--class: 'E' is not one of: A, B, C, D$"),
     ("iec61000-3-12", {"equipment": "single-phase"},
      r"^--rsce: table iec61000-3-12 \(Table 2\) selects its row by the short-circuit ratio "
-     r"Rsce: give --rsce, or --ssc \[VA\] with --rated-power \[VA\] and --equipment$"),
+     r"Rsce: give --rsce, or --ssc \[VA\] with --rated-power \[VA\] and --equipment-kind$"),
     ("iec61000-3-12", {"equipment": "single-phase", "rsce": 20},
      r"^--rsce: rsce = 20 is below the lowest row \(33\) of Table 2 in table iec61000-3-12: "
      r"the table does not cover it$"),
     ("iec61000-3-12", {"ssc": 1e6, "rated_power": 1e4},
-     r"^--equipment: Rsce from --ssc and --rated-power needs the kind of equipment: give "
-     r"--equipment \(single-phase, interphase, "),
+     r"^--equipment-kind: Rsce from --ssc and --rated-power needs the kind of equipment: give "
+     r"--equipment-kind \(single-phase, interphase, "),
     ("ieee519-2022", {"voltage_level": -480}, r"^--voltage-level: must be a positive number, "
                                               r"got -480$"),
     ("ieee519-2022", {"isc": 0, "il": 5}, r"^--isc: must be a positive number, got 0$"),

@@ -11,26 +11,10 @@ import sys
 import click
 
 from ._common import fail_usage, handle_errors, main, split_columns
+from ._limits import limit_options, positive_options, selectors_from, tables_max_order
 from .analyze import analysis_kwargs, capture_options
 
-__all__ = ["limit_options", "render_summary"]
-
-_LIMIT_OPTIONS = ("limits", "voltage_level", "isc", "generation", "equipment_class", "equipment",
-                  "rsce", "ssc", "rated_power", "rated_current", "iref", "active_power")
-
-
-def limit_options(func):
-    """The limit-table and selector options of ``pqcheck check`` (the same option objects), so
-    ``batch`` takes exactly the options ``check`` takes."""
-    from .check import check_cmd
-
-    params = {p.name: p for p in check_cmd.params}
-    memo = func.__dict__.setdefault("__click_params__", [])
-    for name in reversed(_LIMIT_OPTIONS):
-        if name in params:
-            memo.append(params[name])
-    return func
-
+__all__ = ["render_summary"]
 
 _MAX_ERRORS = 20
 
@@ -87,7 +71,7 @@ def render_summary(summary: dict, run) -> str:
 
 @main.command("batch")
 @click.argument("inputs", nargs=-1, required=True, metavar="DIR_OR_GLOB...")
-@limit_options
+@limit_options(required=True)
 @capture_options
 @click.option("--out", "out", type=click.Path(dir_okay=False), metavar="FILE",
               help="Results table as Parquet (resumed from when it exists).")
@@ -134,7 +118,6 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
         run_batch,
         summarize,
     )
-    from ..errors import InputError
 
     if scheduler and workers:
         fail_usage("give --scheduler or --workers, not both")
@@ -146,15 +129,8 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
     if jobs is not None and (scheduler or workers):
         fail_usage("--jobs sets local worker processes; with Dask use --workers (local "
                    "cluster) or the cluster's own workers (--scheduler)")
-    for name, v in (("--rated-current", opts.get("rated_current")), ("--iref", opts.get("iref")),
-                    ("--active-power", opts.get("active_power")), ("--il", opts.get("il_a"))):
-        if v is not None and not (math.isfinite(v) and v > 0):
-            raise InputError(f"must be a positive number, got {v:g}", field=name)
-    selectors = dict(voltage_level=opts.get("voltage_level"), isc=opts.get("isc"),
-                     il=opts.get("il_a"), generation=opts.get("generation"),
-                     equipment_class=opts.get("equipment_class"),
-                     equipment=opts.get("equipment"), rsce=opts.get("rsce"),
-                     ssc=opts.get("ssc"), rated_power=opts.get("rated_power"))
+    positive_options(opts, opts.get("il_a"))
+    selectors = selectors_from(opts, opts.get("il_a"))
     spec = BatchSpec.make(
         opts["limits"], selectors=selectors, analysis=analysis_kwargs(opts),
         current=split_columns(opts.get("current")), voltage=split_columns(opts.get("voltage")),
@@ -162,11 +138,9 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
         il_a=opts.get("il_a"), rated_current_a=opts.get("rated_current"),
         iref_a=opts.get("iref"), active_power_w=opts.get("active_power"),
         cache_dir=opts.get("cache_dir"), use_cache=not opts.get("no_cache"))
-    src = ctx.get_parameter_source("max_order")
-    if src is not None and src.name == "DEFAULT":  # as `check`: up to the tables' highest order
-        ana = dict(spec.analysis)
-        ana["max_order"] = max(t.max_order for t in spec.resolve())
-        spec = dataclasses.replace(spec, analysis=tuple(sorted(ana.items())))
+    ana = dict(spec.analysis)
+    tables_max_order(ctx, ana, spec.resolve())  # as `check`: up to the tables' highest order
+    spec = dataclasses.replace(spec, analysis=tuple(sorted(ana.items())))
     if scheduler or workers:
         executor = DaskExecutor(address=scheduler, workers=workers)
     elif jobs == 1:

@@ -8,6 +8,7 @@ import math
 import click
 
 from ._common import VERDICT_EXIT, handle_errors, main
+from ._limits import LIMIT_OPTION_NAMES, limit_options, resolve_limits, tables_max_order
 from .analyze import capture_options, load_and_analyze
 
 __all__ = ["render_assessment"]
@@ -71,39 +72,13 @@ def render_assessment(assessment, result=None) -> str:
 
 @main.command("check")
 @click.argument("capture", type=click.Path(dir_okay=False))
-@click.option("--limits", "limits", multiple=True, required=True, metavar="ID_OR_PATH",
-              help="Limit table: a bundled id (see `pqcheck limits list`) or the path of a "
-                   ".toml file. Repeat to check against several.")
-@click.option("--voltage-level", "voltage_level", type=float, metavar="V",
-              help="Nominal bus voltage at the PCC (IEEE 519).")
-@click.option("--isc", type=float, metavar="A",
-              help="Maximum short-circuit current at the PCC (IEEE 519, with --il).")
-@click.option("--generation", is_flag=True, default=None,
-              help="Power-generation equipment: IEEE 519 first ISC/IL row whatever the ratio.")
-@click.option("--class", "equipment_class", metavar="A|B|C|D",
-              help="Equipment class (IEC 61000-3-2).")
-@click.option("--equipment", metavar="KIND",
-              help="Kind of equipment (IEC 61000-3-12): single-phase, interphase, "
-                   "unbalanced-three-phase, balanced-three-phase, balanced-three-phase-table4.")
-@click.option("--rsce", type=float, metavar="N", help="Short-circuit ratio Rsce (IEC 61000-3-12).")
-@click.option("--ssc", type=float, metavar="VA",
-              help="Short-circuit power at the point of connection, to compute Rsce.")
-@click.option("--rated-power", "rated_power", type=float, metavar="VA",
-              help="Rated apparent power of the equipment, to compute Rsce.")
-@click.option("--rated-current", "rated_current", type=float, metavar="A",
-              help="Rated current (IEEE 1547 limits; Iref of IEC 61000-3-12 unless --iref).")
-@click.option("--iref", type=float, metavar="A",
-              help="Reference current Iref (IEC 61000-3-12).")
-@click.option("--active-power", "active_power", type=float, metavar="W",
-              help="Active input power for per-watt limits (IEC 61000-3-2 Class D). "
-                   "Default: measured.")
+@limit_options(required=True)
 @capture_options
 @click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
               show_default=True, help="Output on stdout.")
 @click.pass_context
 @handle_errors
-def check_cmd(ctx, capture, limits, voltage_level, isc, generation, equipment_class, equipment,
-              rsce, ssc, rated_power, rated_current, iref, active_power, fmt, **opts):
+def check_cmd(ctx, capture, fmt, **opts):
     """Check CAPTURE against limit tables.
 
     Analyses the capture by the IEC 61000-4-7 method, picks the limits that apply (row by
@@ -113,25 +88,13 @@ def check_cmd(ctx, capture, limits, voltage_level, isc, generation, equipment_cl
     Exit code: 0 pass, 1 a limit is exceeded, 3 inconclusive (data quality), 2 bad input.
     """
     from ..assess import assess
-    from ..limits import load_table, resolve
 
-    for name, v in (("--rated-current", rated_current), ("--iref", iref),
-                    ("--active-power", active_power), ("--il", opts.get("il_a"))):
-        if v is not None and not (math.isfinite(v) and v > 0):
-            from ..errors import InputError
-
-            raise InputError(f"must be a positive number, got {v:g}", field=name)
-    tables = [load_table(x) for x in limits]
-    selectors = dict(voltage_level=voltage_level, isc=isc, il=opts.get("il_a"),
-                     generation=generation, equipment_class=equipment_class,
-                     equipment=equipment, rsce=rsce, ssc=ssc, rated_power=rated_power)
-    resolved = [resolve(t, **selectors) for t in tables]
-    src = ctx.get_parameter_source("max_order")
-    if src is not None and src.name == "DEFAULT":
-        opts["max_order"] = max(r.max_order for r in resolved)
+    lim = {k: opts.pop(k) for k in LIMIT_OPTION_NAMES}
+    resolved = resolve_limits(lim, opts.get("il_a"))
+    tables_max_order(ctx, opts, resolved)
     _, result = load_and_analyze(capture, opts)
-    a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=rated_current,
-               iref_a=iref, active_power_w=active_power)
+    a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=lim["rated_current"],
+               iref_a=lim["iref"], active_power_w=lim["active_power"])
     if fmt == "json":
         d = a.to_dict()
         d["capture"] = {"source": result.source, "sha256": result.sha256,

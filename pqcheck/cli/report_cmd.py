@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 import shlex
 from dataclasses import replace
 from datetime import datetime, timezone
@@ -11,59 +10,25 @@ from pathlib import Path
 import click
 
 from ._common import EXIT_OK, VERDICT_EXIT, fail_usage, handle_errors, main
+from ._limits import (
+    LIMIT_OPTION_NAMES,
+    limit_options,
+    positive_options,
+    resolve_limits,
+    tables_max_order,
+)
 from .analyze import capture_options, load_and_analyze
 
-__all__ = ["limit_options", "LIMIT_OPTION_NAMES"]
+__all__: list = []
 
-LIMIT_OPTION_NAMES = ("limits", "voltage_level", "isc", "generation", "equipment_class",
-                      "equipment_kind", "rsce", "ssc", "rated_power", "rated_current", "iref",
-                      "active_power")
 _CAPTURE_ONLY = ("current", "voltage", "sample_rate", "time_column", "nominal", "max_order",
                  "il_a", "wiring", "reference")
 
-
-def limit_options(func):
-    """The options of ``pqcheck check`` that choose and resolve limit tables.
-
-    The kind of equipment of IEC 61000-3-12 is ``--equipment-kind`` here, because
-    ``--equipment`` names the equipment under test in a report.
-    """
-    opts = [
-        click.option("--limits", "limits", multiple=True, metavar="ID_OR_PATH",
-                     help="Limit table: a bundled id (see `pqcheck limits list`) or the path "
-                          "of a .toml file. Repeat for several. Without it the report holds "
-                          "the analysis only (no verdict)."),
-        click.option("--voltage-level", "voltage_level", type=float, metavar="V",
-                     help="Nominal bus voltage at the PCC (IEEE 519)."),
-        click.option("--isc", type=float, metavar="A",
-                     help="Maximum short-circuit current at the PCC (IEEE 519, with --il)."),
-        click.option("--generation", is_flag=True, default=None,
-                     help="Power-generation equipment: IEEE 519 first ISC/IL row whatever "
-                          "the ratio."),
-        click.option("--class", "equipment_class", metavar="A|B|C|D",
-                     help="Equipment class (IEC 61000-3-2)."),
-        click.option("--equipment-kind", "equipment_kind", metavar="KIND",
-                     help="Kind of equipment (IEC 61000-3-12): single-phase, interphase, "
-                          "unbalanced-three-phase, balanced-three-phase, "
-                          "balanced-three-phase-table4. (`pqcheck check --equipment`.)"),
-        click.option("--rsce", type=float, metavar="N",
-                     help="Short-circuit ratio Rsce (IEC 61000-3-12)."),
-        click.option("--ssc", type=float, metavar="VA",
-                     help="Short-circuit power at the point of connection, to compute Rsce."),
-        click.option("--rated-power", "rated_power", type=float, metavar="VA",
-                     help="Rated apparent power of the equipment, to compute Rsce."),
-        click.option("--rated-current", "rated_current", type=float, metavar="A",
-                     help="Rated current (IEEE 1547 limits; Iref of IEC 61000-3-12 unless "
-                          "--iref)."),
-        click.option("--iref", type=float, metavar="A",
-                     help="Reference current Iref (IEC 61000-3-12)."),
-        click.option("--active-power", "active_power", type=float, metavar="W",
-                     help="Active input power for per-watt limits (IEC 61000-3-2 Class D). "
-                          "Default: measured."),
-    ]
-    for opt in reversed(opts):
-        func = opt(func)
-    return func
+_report_limit_options = limit_options(
+    required=False,
+    limits_help="Limit table: a bundled id (see `pqcheck limits list`) or the path of a .toml "
+                "file. Repeat for several. Without it the report holds the analysis only (no "
+                "verdict).")
 
 
 def _given(ctx, name: str) -> bool:
@@ -92,36 +57,19 @@ def _command_line(ctx) -> str:
     return " ".join(parts)
 
 
-def _positive(name: str, v) -> None:
-    from ..errors import InputError
-
-    if v is not None and not (math.isfinite(v) and v > 0):
-        raise InputError(f"must be a positive number, got {v:g}", field=name)
-
-
 def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
     """Analyse and assess one capture as `pqcheck check` does."""
-    from ..limits import load_table, resolve
     from ..report.build import assess_each
     from ..report.job import CaptureRun
 
-    for name, key in (("--rated-current", "rated_current"), ("--iref", "iref"),
-                      ("--active-power", "active_power")):
-        _positive(name, lim.get(key))
-    _positive("--il", opts.get("il_a"))
+    positive_options(lim, opts.get("il_a"))
     if not lim["limits"]:
         given = [n for n in LIMIT_OPTION_NAMES if n != "limits" and _given(ctx, n)]
         if given:
             fail_usage(f"--{given[0].replace('_', '-')} selects limit-table rows; give "
                        "--limits too (or leave it out for an analysis-only report)")
-    tables = [load_table(x) for x in lim["limits"]]
-    selectors = dict(voltage_level=lim["voltage_level"], isc=lim["isc"], il=opts.get("il_a"),
-                     generation=lim["generation"], equipment_class=lim["equipment_class"],
-                     equipment=lim["equipment_kind"], rsce=lim["rsce"], ssc=lim["ssc"],
-                     rated_power=lim["rated_power"])
-    resolved = [resolve(t, **selectors) for t in tables]
-    if resolved and not _given(ctx, "max_order"):
-        opts["max_order"] = max(r.max_order for r in resolved)
+    resolved = resolve_limits(lim, opts.get("il_a"))
+    tables_max_order(ctx, opts, resolved)
     capture, result = load_and_analyze(source, opts)
     assessments = assess_each(result, resolved, il_a=opts.get("il_a"),
                               rated_current_a=lim["rated_current"], iref_a=lim["iref"],
@@ -148,7 +96,7 @@ def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
 @click.option("--report-id", "report_id", metavar="TEXT",
               help="Report id for the footer of every page. Default: generated from the date "
                    "and the data.")
-@limit_options
+@_report_limit_options
 @capture_options
 @click.pass_context
 @handle_errors

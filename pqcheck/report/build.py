@@ -39,7 +39,7 @@ def assess_each(result, resolved, **assess_kwargs) -> tuple:
 _PLAN_FIELDS = {
     "--voltage-level": "voltage_level_v", "--isc": "isc_a", "--il": "il_a", "--rsce": "rsce",
     "--ssc": "ssc_va", "--rated-power": "rated_apparent_power_va", "--class": "equipment_class",
-    "--equipment": "equipment_kind", "--generation": "generation",
+    "--equipment-kind": "equipment_kind", "--generation": "generation",
     "--rated-current": "rated_current_a", "--iref": "iref_a", "--active-power": "active_power_w",
 }
 _OPTION = re.compile(r"--[a-z][a-z-]*")
