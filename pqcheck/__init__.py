@@ -10,7 +10,6 @@ The public API follows the data flow: :func:`load_capture` reads a file into a
 __version__ = "0.1.0"
 
 from .analysis import AnalysisResult, analyze  # noqa: E402
-from .limits import load_table, resolve  # noqa: E402
 from .assess import Assessment, assess  # noqa: E402
 from .capture import Capture, Channel, Provenance, assign_roles  # noqa: E402
 from .errors import (  # noqa: E402
@@ -24,6 +23,7 @@ from .errors import (  # noqa: E402
     ReportError,
 )
 from .findings import Finding  # noqa: E402
+from .limits import load_table, resolve  # noqa: E402
 from .readers import load_capture  # noqa: E402
 
 __all__ = [
