@@ -28,7 +28,8 @@ CSV_TABLES = ("captures", "channels", "harmonics", "windows", "power", "findings
 def job_to_dict(job) -> dict:
     """JSON-ready form of a report job.
 
-    Keys: ``tool``, ``report`` (id, title, equipment, site, operator, time of analysis),
+    Keys: ``tool``, ``report`` (id, title, equipment, site, operator, time of analysis, the
+    command line that made it),
     ``plan`` (path and SHA-256, or null), ``verdict`` (overall), ``limit_tables`` (id, title,
     standard, edition, source, SHA-256) and ``captures``: per capture its ``id``,
     ``load_point``, ``load_percent``, ``verdict``, ``analysis`` (:func:`pqcheck.export.
@@ -46,6 +47,7 @@ def job_to_dict(job) -> dict:
             "site": meta.site,
             "operator": meta.operator,
             "time_of_analysis_utc": meta.created_utc.astimezone(timezone.utc).isoformat(),
+            "command": meta.command,  # how to re-run it: pqcheck verify reads the options
         },
         "plan": None if plan is None else {"path": str(plan.path), "sha256": plan.sha256,
                                            "title": plan.title},
