@@ -12,7 +12,7 @@ Parallel work
     (:class:`DaskExecutor`), so every executor gives the same table.
 
 Resume
-    Every capture is hashed first (:func:`capture_sha256`: the file's SHA-256; for COMTRADE one
+    Every capture is hashed first (:func:`pqcheck.readers.capture_sha256`: the file's SHA-256; for COMTRADE one
     hash over the .cfg bytes followed by the .dat bytes, the value the reader records). Captures
     whose SHA-256 is already in the results file are skipped; rows of captures analysed again
     replace their older rows. The results file is rewritten every minute while the batch runs,
@@ -49,6 +49,7 @@ from pathlib import Path
 import pyarrow as pa
 
 from .errors import InputError, PqcheckError
+from .readers import capture_sha256
 
 __all__ = [
     "SCHEMA",
@@ -56,7 +57,6 @@ __all__ = [
     "BatchSpec",
     "BatchRun",
     "find_captures",
-    "capture_sha256",
     "hash_capture",
     "check_capture",
     "run_batch",
@@ -311,43 +311,6 @@ def _walk(root: Path):
 # --- hashing ------------------------------------------------------------------------------
 
 
-def capture_sha256(path) -> str:
-    """SHA-256 of a capture, the value its reader records as provenance (hex).
-
-    For a COMTRADE record (``.cfg`` or ``.dat``) it is one hash over the .cfg bytes followed by
-    the .dat bytes; for any other file the hash of its bytes
-    (:func:`pqcheck.readers.file_sha256`).
-
-    Raises
-    ------
-    CaptureFormatError
-        The file, or the other file of a COMTRADE pair, is missing or cannot be read.
-    """
-    from .errors import CaptureFormatError
-    from .readers import file_sha256
-
-    p = Path(path)
-    try:
-        if p.suffix.lower() in (".cfg", ".dat"):
-            from .readers.comtrade import _pair  # the reader's own pairing rule
-
-            if p.suffix.lower() == ".cfg" or _comtrade_cfg(p) is not None:
-                h = hashlib.sha256()
-                for f in _pair(p):
-                    with open(f, "rb") as fh:
-                        for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
-                            h.update(block)
-                return h.hexdigest()
-        return file_sha256(p)
-    except FileNotFoundError:
-        raise CaptureFormatError("file not found; check the path", path=str(p)) from None
-    except IsADirectoryError:
-        raise CaptureFormatError("is a folder, not a capture file", path=str(p)) from None
-    except OSError as exc:
-        raise CaptureFormatError(f"cannot read the file: {exc.strerror or exc}",
-                                 path=str(p)) from None
-
-
 def hash_capture(path: str) -> dict:
     """Work function of the hashing pass: ``{"sha256": hex or None, "error": str or None}``."""
     try:
@@ -584,10 +547,14 @@ class ProcessExecutor:
 
 
 def _worker_init():
-    """Worker processes leave Ctrl-C to the parent, which saves the work done and stops them."""
+    """Worker processes leave Ctrl-C to the parent, which saves the work done and stops them,
+    and run their FFTs on one thread (the pool already uses every core)."""
     import signal
 
+    from .dsp import spectrum
+
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    spectrum.FFT_WORKERS = 1
 
 
 class DaskExecutor:

@@ -19,11 +19,17 @@ Line values are rms phasors: ``C_k = sqrt(2) X_k / N`` for ``k >= 1`` and ``C_0 
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["WindowBlock", "analyse_windows", "harmonic_groupings"]
+__all__ = ["WindowBlock", "analyse_windows", "harmonic_groupings", "FFT_WORKERS"]
+
+FFT_WORKERS = int(os.environ.get("PQCHECK_FFT_WORKERS", "-1"))
+"""Threads of each batched FFT (``scipy.fft`` ``workers``): -1 uses every CPU. Batch worker
+processes set it to 1 so that N processes do not start N x CPUs threads; the environment
+variable ``PQCHECK_FFT_WORKERS`` sets it too."""
 
 
 @dataclass(frozen=True)
@@ -74,7 +80,7 @@ def analyse_windows(
     offset: int = 0,
     pairs=(),
     combos=None,
-    workers: int = -1,
+    workers: int | None = None,
 ) -> WindowBlock:
     """DFT of each synchronous window, with scalloping correction.
 
@@ -131,7 +137,7 @@ def analyse_windows(
             derived = np.tensordot(combos, seg, axes=(1, 0))  # (D, w, N)
             crms[sel] = np.sqrt(np.einsum("dwn,dwn->dw", derived, derived) / length).T
             del derived
-        spec = sfft.rfft(seg, axis=-1, workers=workers)
+        spec = sfft.rfft(seg, axis=-1, workers=FFT_WORKERS if workers is None else workers)
         del seg
         k_keep = min(max_line, spec.shape[-1] - 1)
         spec = spec[..., : k_keep + 1]

@@ -12,7 +12,7 @@ from pathlib import Path
 from ..capture import Capture, assign_roles
 from ..errors import CaptureFormatError
 
-__all__ = ["load_capture", "open_capture", "file_sha256", "STREAM_OVER_BYTES"]
+__all__ = ["load_capture", "open_capture", "file_sha256", "capture_sha256", "STREAM_OVER_BYTES"]
 
 def file_sha256(path) -> str:
     """SHA-256 of a file's bytes, hex. Reads in 1 MiB blocks."""
@@ -21,6 +21,44 @@ def file_sha256(path) -> str:
         for block in iter(lambda: fh.read(1 << 20), b""):
             h.update(block)
     return h.hexdigest()
+
+
+def capture_sha256(path) -> str:
+    """SHA-256 of a capture as its reader records it in the provenance (hex).
+
+    A COMTRADE record (its ``.cfg`` or ``.dat``): one hash over the .cfg bytes followed by the
+    .dat bytes. A ``.npy`` array with a side-car ``.json`` (column names, sample rate): the
+    array's bytes followed by the side-car's, so editing either changes the hash. Any other
+    file: the hash of its bytes.
+
+    Raises
+    ------
+    CaptureFormatError
+        The file, or the other file of a COMTRADE pair, is missing or cannot be read.
+    """
+    p = Path(path)
+    try:
+        suffix = p.suffix.lower()
+        parts = [p]
+        if suffix == ".cfg" or (suffix == ".dat" and _has_sibling(p, ".cfg")):
+            from .comtrade import _pair  # the reader's own pairing rule
+
+            parts = list(_pair(p))
+        elif suffix == ".npy" and p.with_suffix(".json").is_file():
+            parts = [p, p.with_suffix(".json")]
+        h = hashlib.sha256()
+        for f in parts:
+            with open(f, "rb") as fh:
+                for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
+                    h.update(block)
+        return h.hexdigest()
+    except FileNotFoundError:
+        raise CaptureFormatError("file not found; check the path", path=str(p)) from None
+    except IsADirectoryError:
+        raise CaptureFormatError("is a folder, not a capture file", path=str(p)) from None
+    except OSError as exc:
+        raise CaptureFormatError(f"cannot read the file: {exc.strerror or exc}",
+                                 path=str(p)) from None
 
 
 def load_capture(
@@ -122,7 +160,7 @@ def open_capture(
 
         opener = open_npy if suffix == ".npy" else open_parquet
         cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column,
-                     sha256=file_sha256(p))
+                     sha256=capture_sha256(p))
     else:
         cap = None
         if stream_over_bytes is not None and size > stream_over_bytes:
