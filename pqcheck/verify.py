@@ -1,0 +1,515 @@
+"""Re-verification of a report: recompute the recorded results and compare, number by number.
+
+A report's results JSON (the ``--json`` file, or the ``results.json`` attached to the PDF)
+records what was analysed and how: the SHA-256 of every capture, limit table and plan, the
+analysis settings, the selector values of every table and the command line (or the plan) that
+made it. :func:`verify` finds those files again, checks their SHA-256, re-runs the analysis and
+the assessment without any cache, formats the new results exactly as the report did and
+compares the two documents: every number within a tight relative tolerance (the computation is
+deterministic, so only the last bits may differ), every verdict, count, finding and text
+exactly.
+
+Finding the files
+    A path is tried as recorded (relative paths against the current folder), then against the
+    folder of the report or JSON being verified (``path`` as written, then just its file name),
+    then in each ``search`` folder. Among the files found, the first whose SHA-256 matches the
+    record is used; when none matches, the first found is used and the change is reported. A
+    bundled limit table is also looked up by its id.
+
+How it re-runs
+    A report made from a plan is re-run from the plan (:func:`pqcheck.plan.load_plan`,
+    :func:`pqcheck.report.build.run_plan`). A report of one capture is re-run with the options
+    of its recorded command line (reader, channel map, reference currents), the recorded analysis
+    settings (nominal frequency and wiring when the user set them, maximum order, IL, reference
+    channel) and the recorded selector values of each limit table.
+
+What is not compared
+    The ``report`` block (id, title, names, time of analysis, command: who and when, not
+    results), file locations (``source`` and ``path``: the files may have moved; their SHA-256
+    are compared) and the pqcheck version (reported as a note when it differs).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+import math
+import shlex
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .errors import InputError, PqcheckError
+
+__all__ = ["Difference", "FileCheck", "Verification", "read_results", "verify",
+           "compare_documents", "REL_TOL", "ABS_TOL"]
+
+REL_TOL = 1e-9
+"""Default relative tolerance for numbers (the analysis is deterministic). [unitless]"""
+ABS_TOL = 1e-12
+"""Default absolute tolerance, for values that are zero up to rounding. [unit of the value]"""
+
+_SKIP_KEYS = {"source", "path"}
+_SELECTORS = ("voltage_level", "isc", "il", "isc_il", "generation", "equipment_class",
+              "equipment", "rsce", "ssc", "rated_power")
+
+
+@dataclass(frozen=True)
+class Difference:
+    """One value that differs between the recorded and the recomputed results.
+
+    Attributes
+    ----------
+    path : str
+        Where in the results document, e.g. ``captures[0].assessments[0].checks[3].measured``.
+    recorded, recomputed : object
+        The two values (``"<missing>"`` when one side lacks the key).
+    what : str
+        A readable label of the item, e.g. ``"check ia I5"``, ``"order 5"``.
+    """
+
+    path: str
+    recorded: object
+    recomputed: object
+    what: str = ""
+
+    def to_dict(self) -> dict:
+        return {"path": self.path, "recorded": self.recorded, "recomputed": self.recomputed,
+                "what": self.what}
+
+
+@dataclass(frozen=True)
+class FileCheck:
+    """An input file of the report, found again and hashed.
+
+    Attributes
+    ----------
+    what : str
+        ``"capture 'c1'"``, ``"limit table 'ieee519-2022'"`` or ``"plan"``.
+    recorded_path : str
+        The path in the results.
+    found : str or None
+        Where it was found (None: not found).
+    recorded_sha256, sha256 : str
+        Recorded and current SHA-256 (hex; empty when unknown).
+    """
+
+    what: str
+    recorded_path: str
+    found: str | None
+    recorded_sha256: str
+    sha256: str = ""
+
+    @property
+    def ok(self) -> bool:
+        """Found, and its SHA-256 is the recorded one."""
+        return self.found is not None and self.sha256 == self.recorded_sha256
+
+    def to_dict(self) -> dict:
+        return {"what": self.what, "recorded_path": self.recorded_path, "found": self.found,
+                "recorded_sha256": self.recorded_sha256, "sha256": self.sha256, "ok": self.ok}
+
+
+@dataclass(frozen=True)
+class Verification:
+    """The outcome of :func:`verify`.
+
+    Attributes
+    ----------
+    source : str
+        The PDF or JSON verified.
+    report_id : str
+    files : tuple of FileCheck
+    differences : tuple of Difference
+    compared : int
+        Number of values compared. [unitless]
+    notes : tuple of str
+    """
+
+    source: str
+    report_id: str
+    files: tuple
+    differences: tuple
+    compared: int
+    notes: tuple = field(default=())
+
+    @property
+    def identical(self) -> bool:
+        """Every file has its recorded SHA-256 and every value matches."""
+        return not self.differences and all(f.ok for f in self.files)
+
+    def to_dict(self) -> dict:
+        return {"source": self.source, "report_id": self.report_id,
+                "identical": self.identical, "compared": self.compared,
+                "files": [f.to_dict() for f in self.files],
+                "differences": [d.to_dict() for d in self.differences],
+                "notes": list(self.notes)}
+
+
+# ---- reading --------------------------------------------------------------------------------
+
+
+def read_results(path) -> dict:
+    """The results document of a report: a results JSON file, or the ``results.json``
+    attached to a pqcheck PDF.
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable file, a PDF without the attachment, text that is not JSON, or a
+        JSON document that is not pqcheck results.
+    """
+    p = Path(path)
+    try:
+        data = p.read_bytes()
+    except FileNotFoundError:
+        raise InputError("file not found; give the report PDF or its results JSON",
+                         path=p) from None
+    except IsADirectoryError:
+        raise InputError("is a folder; give the report PDF or its results JSON",
+                         path=p) from None
+    except OSError as exc:
+        raise InputError(f"cannot read: {exc.strerror or exc}", path=p) from None
+    if data.startswith(b"%PDF"):
+        data = _attachment(data, p)
+    try:
+        doc = json.loads(data.decode("utf-8"))
+    except (UnicodeDecodeError, ValueError) as exc:
+        raise InputError(f"not a PDF and not a results JSON ({exc}); give the report PDF or "
+                         "the file written by pqcheck report --json", path=p) from None
+    if not (isinstance(doc, dict) and isinstance(doc.get("tool"), dict)
+            and doc["tool"].get("name") == "pqcheck" and isinstance(doc.get("captures"), list)
+            and doc["captures"]):
+        raise InputError("not the results of a pqcheck report (no tool or captures); give the "
+                         "report PDF or the file written by pqcheck report --json", path=p)
+    return doc
+
+
+def _attachment(data: bytes, p: Path) -> bytes:
+    from pypdf import PdfReader
+    from pypdf.errors import PyPdfError
+
+    try:
+        files = PdfReader(io.BytesIO(data)).attachments
+        found = files.get("results.json")
+    except (PyPdfError, ValueError, KeyError, TypeError, OSError) as exc:
+        raise InputError(f"the PDF cannot be read ({exc})", path=p) from None
+    if not found:
+        raise InputError("the PDF carries no results.json attachment; was it made by pqcheck "
+                         "report? Give the results JSON instead", path=p)
+    return found[0]
+
+
+# ---- finding files --------------------------------------------------------------------------
+
+
+def _sha256(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def _candidates(recorded: str, bases) -> list:
+    rec = Path(recorded)
+    out = [rec]
+    for b in bases:
+        if not rec.is_absolute():
+            out.append(b / rec)
+        out.append(b / rec.name)
+    seen, unique = set(), []
+    for c in out:
+        key = str(c)
+        if key not in seen:
+            seen.add(key)
+            unique.append(c)
+    return unique
+
+
+def _locate(recorded: str, sha: str, bases) -> tuple:
+    """(path, its SHA-256) of the best candidate, or (None, "")."""
+    found = []
+    for c in _candidates(recorded, bases):
+        try:
+            if c.is_file():
+                digest = _sha256(c)
+                if digest == sha:
+                    return c, digest
+                found.append((c, digest))
+        except OSError:
+            continue
+    return found[0] if found else (None, "")
+
+
+# ---- re-running -----------------------------------------------------------------------------
+
+
+def _command_params(command: str) -> dict:
+    """Options of the recorded ``pqcheck report`` command line, parsed by the command itself."""
+    if not command:
+        return {}
+    from .cli import main
+
+    try:
+        words = shlex.split(command)
+    except ValueError:
+        return {}
+    if words[:2] == ["pqcheck", "report"]:
+        words = words[2:]
+    cmd = main.get_command(None, "report")
+    try:
+        ctx = cmd.make_context("report", words, resilient_parsing=True)
+    except Exception:  # a damaged command line: fall back to the structured record
+        return {}
+    return dict(ctx.params)
+
+
+def _split(value):
+    if not value:
+        return None
+    return [c.strip() for c in str(value).split(",")]
+
+
+def _table_for(rec: dict, bases, files: list):
+    """Load the limit table recorded as ``rec`` (an assessment's ``tables[0]``)."""
+    from .limits import bundled_ids, load_table
+
+    src, sha, tid = rec.get("source") or "", rec.get("sha256") or "", rec.get("id") or ""
+    where, digest = _locate(src, sha, bases) if src else (None, "")
+    table = None
+    if where is not None and digest == sha:
+        table = load_table(where)
+    elif tid.casefold() in bundled_ids():
+        bundled = load_table(tid)
+        if bundled.sha256 == sha or where is None:
+            table, where, digest = bundled, Path(bundled.source), bundled.sha256
+    if table is None and where is not None:
+        table = load_table(where)
+    files.append(FileCheck(f"limit table {tid!r}", src, None if where is None else str(where),
+                           sha, digest))
+    if table is None:
+        raise InputError(f"limit table {tid!r} not found (recorded at {src}); put it next to "
+                         "the report or give its folder with --search", field="limit_tables")
+    return table
+
+
+def _rerun_capture(doc: dict, bases, files: list, notes: list):
+    from .cli.analyze import analysis_kwargs
+    from .limits import resolve
+    from .pipeline import analyze_file
+    from .report.build import assess_each
+    from .report.job import CaptureRun
+
+    params = _command_params((doc.get("report") or {}).get("command") or "")
+    if not params:
+        notes.append("the results record no command line: the capture is re-read with the "
+                     "channel roles guessed from its column names")
+    cap_doc = doc["captures"][0]
+    ana = cap_doc["analysis"]
+    rec = ana["capture"]
+    where, digest = _locate(rec["source"], rec["sha256"], bases)
+    files.append(FileCheck(f"capture {cap_doc.get('id', '')!r}", rec["source"],
+                           None if where is None else str(where), rec["sha256"], digest))
+    if where is None:
+        raise InputError(f"capture file not found (recorded as {rec['source']}); put it next "
+                         "to the report or give its folder with --search",
+                         field=f"captures[0] ({cap_doc.get('id', '')})")
+    resolved = []
+    for a in cap_doc.get("assessments") or []:
+        for t in a.get("tables") or []:
+            table = _table_for(t, bases, files)
+            sel = {k: v for k, v in (t.get("selectors") or {}).items() if k in _SELECTORS}
+            # give the inputs a value was computed from, so it is computed (and recorded) again
+            if "isc" in sel and "il" in sel:
+                sel.pop("isc_il", None)
+            if "ssc" in sel and "rated_power" in sel:
+                sel.pop("rsce", None)
+            resolved.append(resolve(table, **sel))
+    s = ana["settings"]
+    kwargs = analysis_kwargs(params)
+    kwargs.update(
+        max_order=int(s["max_order"]), il_a=s.get("il_a"), reference=s.get("reference"),
+        nominal_hz=int(s["nominal_hz"]) if s.get("nominal_source") == "user" else None,
+        wiring=s.get("wiring") if s.get("wiring_source") == "user" else None)
+    sample_rate = params.get("sample_rate")
+    if not params and (rec.get("reader") or {}).get("time_base") == "--sample-rate":
+        sample_rate = rec["reader"].get("sample_rate_hz")
+    capture, result = analyze_file(
+        where, sample_rate_hz=sample_rate, current=_split(params.get("current")),
+        voltage=_split(params.get("voltage")), time_column=params.get("time_column"),
+        cache=None, **kwargs)
+    assessments = assess_each(result, resolved, il_a=s.get("il_a"),
+                              rated_current_a=params.get("rated_current"),
+                              iref_a=params.get("iref"), active_power_w=params.get("active_power"))
+    run = CaptureRun(id=cap_doc.get("id") or "capture", capture=capture, result=result,
+                     assessments=assessments, load_point=cap_doc.get("load_point") or "",
+                     load_percent=cap_doc.get("load_percent"))
+    return (run,), None
+
+
+def _rerun_plan(doc: dict, bases, files: list):
+    from .plan import load_plan
+    from .report.build import run_plan
+
+    rec = doc["plan"]
+    where, digest = _locate(rec.get("path") or "", rec.get("sha256") or "", bases)
+    files.append(FileCheck("plan", rec.get("path") or "", None if where is None else str(where),
+                           rec.get("sha256") or "", digest))
+    if where is None:
+        raise InputError(f"test plan not found (recorded as {rec.get('path')}); put it next to "
+                         "the report or give its folder with --search", field="plan")
+    plan = load_plan(where)
+    return run_plan(plan, cache=None), plan
+
+
+def _file_checks_from(recorded: dict, recomputed: dict) -> list:
+    """Capture and table checks of a plan re-run (the plan located the files)."""
+    out = []
+    for k, (a, b) in enumerate(zip(recorded["captures"], recomputed["captures"])):
+        ra, rb = a["analysis"]["capture"], b["analysis"]["capture"]
+        out.append(FileCheck(f"capture {a.get('id', k)!r}", ra.get("source", ""),
+                             rb.get("source"), ra.get("sha256", ""), rb.get("sha256", "")))
+    now = {t.get("id"): t for t in recomputed.get("limit_tables") or []}
+    for t in recorded.get("limit_tables") or []:
+        n = now.get(t.get("id"))
+        out.append(FileCheck(f"limit table {t.get('id')!r}", t.get("source", ""),
+                             None if n is None else n.get("source"), t.get("sha256", ""),
+                             "" if n is None else n.get("sha256", "")))
+    return out
+
+
+# ---- comparing ------------------------------------------------------------------------------
+
+
+def _label(item: dict) -> str:
+    if "channel" in item and "quantity" in item:
+        q = item["quantity"]
+        return f"check {item['channel']} " + (f"h{item.get('order')}" if q == "harmonic"
+                                              else str(q))
+    if "order" in item and "rms" in item:
+        return f"order {item['order']}"
+    if "code" in item and "severity" in item:
+        return f"finding {item['code']}"
+    for key in ("name", "id", "phase"):
+        if isinstance(item.get(key), str) and item[key]:
+            return f"{key} {item[key]}"
+    return ""
+
+
+def _is_number(x) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool)
+
+
+def _same_number(a, b, key: str, rel_tol: float, abs_tol: float) -> bool:
+    a, b = float(a), float(b)
+    if key.endswith("_deg"):  # angles: compare on the circle
+        d = (a - b + 180.0) % 360.0 - 180.0
+        return abs(d) <= max(abs_tol, rel_tol * 180.0)
+    return math.isclose(a, b, rel_tol=rel_tol, abs_tol=abs_tol)
+
+
+def compare_documents(recorded, recomputed, *, rel_tol: float = REL_TOL,
+                      abs_tol: float = ABS_TOL) -> tuple:
+    """Compare two results documents value by value.
+
+    Returns
+    -------
+    (list of Difference, int)
+        The differences, in document order, and the number of values compared.
+    """
+    diffs: list = []
+    count = [0]
+
+    def walk(a, b, path: str, key: str, what: str):
+        if isinstance(a, dict) and isinstance(b, dict):
+            what = _label(a) or what
+            for k in list(a) + [k for k in b if k not in a]:
+                if k in _SKIP_KEYS or (path == "" and k == "report"):
+                    continue
+                sub = f"{path}.{k}" if path else k
+                if k not in a or k not in b:
+                    diffs.append(Difference(sub, a.get(k, "<missing>"),
+                                            b.get(k, "<missing>"), what))
+                    continue
+                if k == "version" and path.endswith("tool"):
+                    continue
+                walk(a[k], b[k], sub, k, what)
+            return
+        if isinstance(a, list) and isinstance(b, list):
+            if len(a) != len(b):
+                diffs.append(Difference(path, f"{len(a)} items", f"{len(b)} items", what))
+            for i, (x, y) in enumerate(zip(a, b)):
+                walk(x, y, f"{path}[{i}]", key, what)
+            return
+        count[0] += 1
+        if _is_number(a) and _is_number(b):
+            if not _same_number(a, b, key, rel_tol, abs_tol):
+                diffs.append(Difference(path, a, b, what))
+        elif a != b:
+            diffs.append(Difference(path, a, b, what))
+
+    walk(recorded, recomputed, "", "", "")
+    return diffs, count[0]
+
+
+# ---- the entry point ------------------------------------------------------------------------
+
+
+def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TOL) -> Verification:
+    """Re-run the analysis and assessment recorded in a report and compare the results.
+
+    Parameters
+    ----------
+    path : str or Path
+        The report PDF (its ``results.json`` attachment is read) or a results JSON.
+    search : sequence of str or Path
+        More folders to look for captures, limit tables and plans in.
+    rel_tol, abs_tol : float
+        Tolerances for numbers. [unitless], [unit of each value]
+
+    Returns
+    -------
+    Verification
+
+    Raises
+    ------
+    InputError
+        The report cannot be read, or a file it needs is not found, or the recorded options
+        no longer run (the message names what and says where it was looked for).
+    """
+    from .report.job import ReportJob, ReportMeta
+    from .report.results import job_json
+
+    p = Path(path)
+    recorded = read_results(p)
+    origin = p.resolve().parent
+    bases = [origin] + [Path(s) for s in search]
+    files: list = []
+    notes: list = []
+    try:
+        if recorded.get("plan"):
+            runs, plan = _rerun_plan(recorded, bases, files)
+        else:
+            runs, plan = _rerun_capture(recorded, bases, files, notes)
+    except PqcheckError as exc:
+        if isinstance(exc, InputError):
+            raise InputError(f"cannot re-run the recorded analysis: {exc.location_message()}",
+                             path=p) from None
+        raise
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as exc:
+        raise InputError(f"the recorded results lack what a re-run needs ({type(exc).__name__}: "
+                         f"{exc}); was the JSON edited by hand?", path=p) from None
+    job = ReportJob(meta=ReportMeta(), runs=runs, plan=plan)
+    recomputed = json.loads(job_json(job))
+    if plan is not None:
+        files += _file_checks_from(recorded, recomputed)
+    diffs, n = compare_documents(recorded, recomputed, rel_tol=rel_tol, abs_tol=abs_tol)
+    v_rec = (recorded.get("tool") or {}).get("version")
+    v_now = (recomputed.get("tool") or {}).get("version")
+    if v_rec != v_now:
+        notes.append(f"recorded with pqcheck {v_rec}, recomputed with pqcheck {v_now}")
+    return Verification(source=str(p), report_id=str((recorded.get("report") or {}).get("id")
+                                                      or ""),
+                        files=tuple(files), differences=tuple(diffs), compared=n,
+                        notes=tuple(notes))
