@@ -301,7 +301,7 @@ def _rerun_capture(doc: dict, bases, files: list, notes: list):
     from .report.build import assess_each
     from .report.job import CaptureRun
 
-    params = _command_params((doc.get("report") or {}).get("command") or "")
+    params = _command_params(str(_get(doc, "report", "command") or ""))
     if not params:
         notes.append("the results record no command line: the capture is re-read with the "
                      "channel roles guessed from its column names")
@@ -453,6 +453,15 @@ def compare_documents(recorded, recomputed, *, rel_tol: float = REL_TOL,
     return diffs, count[0]
 
 
+def _get(doc, *keys):
+    """``doc[k1][k2]...`` or None when a level is missing or not a mapping."""
+    for k in keys:
+        if not isinstance(doc, dict):
+            return None
+        doc = doc.get(k)
+    return doc
+
+
 # ---- the entry point ------------------------------------------------------------------------
 
 
@@ -492,6 +501,10 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
             runs, plan = _rerun_plan(recorded, bases, files)
         else:
             runs, plan = _rerun_capture(recorded, bases, files, notes)
+        job = ReportJob(meta=ReportMeta(), runs=runs, plan=plan)
+        recomputed = json.loads(job_json(job))
+        if plan is not None:
+            files += _file_checks_from(recorded, recomputed)
     except PqcheckError as exc:
         if isinstance(exc, InputError):
             raise InputError(f"cannot re-run the recorded analysis: {exc.location_message()}",
@@ -500,16 +513,11 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
     except (KeyError, TypeError, ValueError, AttributeError, IndexError) as exc:
         raise InputError(f"the recorded results lack what a re-run needs ({type(exc).__name__}: "
                          f"{exc}); was the JSON edited by hand?", path=p) from None
-    job = ReportJob(meta=ReportMeta(), runs=runs, plan=plan)
-    recomputed = json.loads(job_json(job))
-    if plan is not None:
-        files += _file_checks_from(recorded, recomputed)
     diffs, n = compare_documents(recorded, recomputed, rel_tol=rel_tol, abs_tol=abs_tol)
-    v_rec = (recorded.get("tool") or {}).get("version")
-    v_now = (recomputed.get("tool") or {}).get("version")
+    v_rec = _get(recorded, "tool", "version")
+    v_now = _get(recomputed, "tool", "version")
     if v_rec != v_now:
         notes.append(f"recorded with pqcheck {v_rec}, recomputed with pqcheck {v_now}")
-    return Verification(source=str(p), report_id=str((recorded.get("report") or {}).get("id")
-                                                      or ""),
+    return Verification(source=str(p), report_id=str(_get(recorded, "report", "id") or ""),
                         files=tuple(files), differences=tuple(diffs), compared=n,
                         notes=tuple(notes))
