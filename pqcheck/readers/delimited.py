@@ -41,8 +41,10 @@ _SNIFF_BYTES = 256 * 1024
 
 _NUM = r"[+-]?(?:\d+(?:[.]\d*)?|[.]\d+)(?:[eE][+-]?\d+)?"
 _NUM_COMMA = r"[+-]?(?:\d+(?:,\d*)?|,\d+)(?:[eE][+-]?\d+)?"
-_NUM_RE = re.compile(rf"^\s*(?:{_NUM}|nan|NaN|NAN|-?inf|-?Inf|)\s*$")
-_NUM_COMMA_RE = re.compile(rf"^\s*(?:{_NUM_COMMA}|nan|NaN|NAN|-?inf|-?Inf|)\s*$")
+_WORDS = r"nan|NaN|NAN|-?inf|-?Inf"
+# a cell may be quoted ("12.5"), as RFC 4180 allows and some loggers write every field
+_NUM_RE = re.compile(rf'^\s*(?:{_NUM}|{_WORDS}|"(?:{_NUM}|{_WORDS})"|)\s*$')
+_NUM_COMMA_RE = re.compile(rf'^\s*(?:{_NUM_COMMA}|{_WORDS}|"(?:{_NUM_COMMA}|{_WORDS})"|)\s*$')
 
 _UNIT_SCALE = {
     "s": ("s", 1.0), "sec": ("s", 1.0), "ms": ("s", 1e-3), "us": ("s", 1e-6), "µs": ("s", 1e-6),
@@ -307,10 +309,15 @@ def sniff(path) -> Dialect:
                 lines[startl - 1])) and lines[startl - 1].strip():
             startl -= 1
         if startl == end:
+            shown = lines[end - 1].strip() if end else ""
+            shown = shown if len(shown) <= 60 else shown[:57] + "..."
             raise CaptureFormatError(
-                "no rows of numbers found in the first lines; a capture needs a header line "
-                "and numeric data rows separated by commas, semicolons or tabs", path=path,
-                line=min(len(lines), 1))
+                "no rows of numbers found in the first lines"
+                + (f" (this one reads {shown!r})" if shown else "")
+                + "; a capture needs a header line and data rows of plain numbers (12.5, "
+                "-3e-4, or 0,25 with ; or tab between values) separated by commas, semicolons "
+                "or tabs: dates, clock times, thousands separators and spaces between values "
+                "are not read", path=path, line=max(end, 1))
         decimal = "," if any("," in line for line in lines[startl:end]) else "."
         best = ((end - startl, 1, True), None, decimal, startl, 1)
     _, delim, decimal, startl, k = best
