@@ -369,7 +369,7 @@ CASES = [
     E("time-column-only", lazy_text("tonly.csv", lambda: "time [s]\n" + "".join(
         f"{x:.6f}\n" for x in _t())), "analyze", r"tonly\.csv:1: .*no signal columns"),
     E("no-numbers-at-all", text_file("words.csv", "alpha,beta\ngamma,delta\n"), "analyze",
-      r"words\.csv:1: no rows of numbers found"),
+      r"words\.csv:2: no rows of numbers found .*this one reads 'gamma,delta'"),
     E("single-sample", text_file("single.csv", HEADER + "\n0,1,2\n"), "analyze",
       r"single\.csv:2: only one sample"),
     E("two-samples", text_file("two.csv", HEADER + "\n0,1,2\n0.0001,1,2\n"), "analyze",
@@ -419,6 +419,26 @@ CASES = [
       r"longline\.csv:1: no rows of numbers found in the first lines"),
     E("very-wide-row", lazy_text("wide.csv", replace_line(90, ",".join(["1"] * 50_000) + "\n")),
       "analyze", r"wide\.csv:90: row has 50000 fields but the header has 3"),
+    E("clock-time-column", lazy_text("clock.csv", lambda: "time,ia [A],va [V]\n" + "".join(
+        f"2024-01-01 12:00:{a:09.6f},{b:.6g},{c:.6g}\n"
+        for a, b, c in zip(_t(), current(_t()), voltage(_t())))), "analyze",
+      r"clock\.csv:\d+: no rows of numbers .*this one reads '2024-01-01 12:00:.*dates, clock "
+      r"times"),
+    E("spaces-between-values", lazy_text("spaced.csv", lambda: clean_text().replace(",", "  ")),
+      "analyze", r"spaced\.csv:\d+: no rows of numbers .*spaces between values are not read"),
+    E("thousands-separators", lazy_text("thousands.csv", lambda: HEADER.replace(",", ";") + "\n"
+                                        + "".join(f"{a:.6f};{1000 * b:,.2f};{c:.6g}\n" for a, b, c
+                                                  in zip(_t(), current(_t()), voltage(_t())))),
+      "analyze", r"thousands\.csv:\d+: no rows of numbers .*thousands separators"),
+    V("every-field-quoted", lazy_text("quoted.csv", lambda: "".join(
+        ",".join(f'"{x}"' for x in ln.rstrip("\n").split(",")) + "\n"
+        for ln in lines_of(clean_text()))), "check", "pass", (0,),
+      why="RFC 4180 allows quotes around any field; some loggers quote every one"),
+    V("units-row-under-header", lazy_text("unitsrow.csv", lambda: "time,ia,va\n(s),(A),(V)\n"
+                                          + clean_text().split("\n", 1)[1]), "check", "pass",
+      (0,)),
+    V("negative-start-time", signal_file("pretrigger.csv", t_fn=lambda t: t - 0.1), "check",
+      "pass", (0,), why="scopes put the trigger at t = 0 and record before it"),
     # -- truncation
     F("truncated-last-row", lazy_text("cut.csv", lambda: clean_text().rsplit(",", 1)[0] + ","),
       "check", "truncated-row", (0,)),
@@ -611,7 +631,7 @@ CASES = [
     E("plan-selector-missing", plan("isc_a = 20000\n", ""), "plan",
       r"plan\.toml:\d+: limits\[1\]: .*ISC/IL.*isc"),
     E("plan-capture-is-itself", plan('file = "run 1 ü.csv"', 'file = "plan.toml"'), "plan",
-      r"plan\.toml:13: captures\[1\]: capture 'c1': .*plan\.toml:1: no rows of numbers"),
+      r"plan\.toml:13: captures\[1\]: capture 'c1': .*plan\.toml:16: no rows of numbers"),
     E("plan-not-utf8", plan(raw=PLAN.encode().replace(b"Hostile", b"\xff")), "plan",
       r"plan\.toml: not UTF-8 text"),
     V("plan-byte-order-mark", plan(raw=b"\xef\xbb\xbf" + PLAN.encode()), "plan", "pass", (0,)),
