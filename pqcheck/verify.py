@@ -27,6 +27,13 @@ What is not compared
     The ``report`` block (id, title, names, time of analysis, command: who and when, not
     results), file locations (``source`` and ``path``: the files may have moved; their SHA-256
     are compared) and the pqcheck version (reported as a note when it differs).
+
+The PDF itself
+    When a PDF is verified, the report is also rendered again from the recomputed results with
+    the recorded title, names, report id and time, and the text of every page is compared line
+    by line with the text of the PDF given: an edit of the visible report (a verdict, a
+    number in a table) is caught even when the attached results were left alone. (Charts are
+    drawn from the same results, so they are covered by the comparison of the numbers.)
 """
 
 from __future__ import annotations
@@ -159,6 +166,11 @@ def read_results(path) -> dict:
         Missing or unreadable file, a PDF without the attachment, text that is not JSON, or a
         JSON document that is not pqcheck results.
     """
+    return _load(path)[0]
+
+
+def _load(path) -> tuple:
+    """(results document, the PDF's bytes or None)."""
     p = Path(path)
     try:
         data = p.read_bytes()
@@ -170,7 +182,9 @@ def read_results(path) -> dict:
                          path=p) from None
     except OSError as exc:
         raise InputError(f"cannot read: {exc.strerror or exc}", path=p) from None
+    pdf = None
     if data.startswith(b"%PDF"):
+        pdf = data
         data = _attachment(data, p)
     try:
         doc = json.loads(data.decode("utf-8"))
@@ -182,7 +196,7 @@ def read_results(path) -> dict:
             and doc["captures"]):
         raise InputError("not the results of a pqcheck report (no tool or captures); give the "
                          "report PDF or the file written by pqcheck report --json", path=p)
-    return doc
+    return doc, pdf
 
 
 def _attachment(data: bytes, p: Path) -> bytes:
@@ -363,19 +377,45 @@ def _rerun_plan(doc: dict, bases, files: list):
     return run_plan(plan, cache=None), plan
 
 
-def _file_checks_from(recorded: dict, recomputed: dict) -> list:
+def _as_recorded_paths(recorded: dict, runs, plan) -> tuple:
+    """The re-run with file paths written as the report recorded them (the files may have been
+    found elsewhere), so the report renders the same text. Only labels change."""
+    from dataclasses import replace
+
+    tables = {t.get("id"): t.get("source") for t in recorded.get("limit_tables") or []
+              if isinstance(t, dict)}
+    out = []
+    for run, cap in zip(runs, recorded["captures"]):
+        src = _get(cap, "analysis", "capture", "source")
+        result = run.result if not isinstance(src, str) else replace(run.result, source=src)
+        assessments = tuple(
+            replace(a, tables=tuple(
+                replace(t, source=tables[t.table_id]) if t.table_id in tables else t
+                for t in a.tables))
+            for a in run.assessments)
+        out.append(replace(run, result=result, assessments=assessments))
+    path = _get(recorded, "plan", "path")
+    if plan is not None and isinstance(path, str):
+        plan = replace(plan, path=Path(path))
+    return tuple(out), plan
+
+
+def _file_checks_from(recorded: dict, runs) -> list:
     """Capture and table checks of a plan re-run (the plan located the files)."""
     out = []
-    for k, (a, b) in enumerate(zip(recorded["captures"], recomputed["captures"])):
-        ra, rb = a["analysis"]["capture"], b["analysis"]["capture"]
-        out.append(FileCheck(f"capture {a.get('id', k)!r}", ra.get("source", ""),
-                             rb.get("source"), ra.get("sha256", ""), rb.get("sha256", "")))
-    now = {t.get("id"): t for t in recomputed.get("limit_tables") or []}
+    now = {}
+    for k, (cap, run) in enumerate(zip(recorded["captures"], runs)):
+        rec = _get(cap, "analysis", "capture") or {}
+        out.append(FileCheck(f"capture {cap.get('id', k)!r}", rec.get("source", ""),
+                             run.result.source, rec.get("sha256", ""), run.result.sha256 or ""))
+        for a in run.assessments:
+            for t in a.tables:
+                now.setdefault(t.table_id, t)
     for t in recorded.get("limit_tables") or []:
         n = now.get(t.get("id"))
         out.append(FileCheck(f"limit table {t.get('id')!r}", t.get("source", ""),
-                             None if n is None else n.get("source"), t.get("sha256", ""),
-                             "" if n is None else n.get("sha256", "")))
+                             None if n is None else n.source, t.get("sha256", ""),
+                             "" if n is None else n.sha256 or ""))
     return out
 
 
@@ -453,6 +493,58 @@ def compare_documents(recorded, recomputed, *, rel_tol: float = REL_TOL,
     return diffs, count[0]
 
 
+def _page_texts(pdf: bytes) -> list:
+    from pypdf import PdfReader
+
+    return [(page.extract_text() or "").splitlines()
+            for page in PdfReader(io.BytesIO(pdf)).pages]
+
+
+def _pdf_text_differences(pdf: bytes, recorded: dict, runs, plan, notes: list) -> tuple:
+    """Render the report again from the recomputed runs with the recorded metadata and compare
+    the text of each page with the PDF's. Returns (differences, lines compared)."""
+    import difflib
+    from datetime import datetime
+
+    from .report.job import ReportJob, ReportMeta
+    from .report.pdf import render_pdf
+    from .report.results import job_json
+
+    r = recorded.get("report")
+    try:
+        meta = ReportMeta(title=str(r["title"]), equipment=str(r["equipment"]),
+                          site=str(r["site"]), operator=str(r["operator"]),
+                          report_id=str(r["id"]),
+                          created_utc=datetime.fromisoformat(r["time_of_analysis_utc"]),
+                          command=str(r.get("command") or ""))
+    except (KeyError, TypeError, ValueError, AttributeError):
+        notes.append("the PDF's text was not compared (the results lack the report's title, "
+                     "names, id or time)")
+        return [], 0
+    job = ReportJob(meta=meta, runs=runs, plan=plan)
+    old, new = _page_texts(pdf), _page_texts(render_pdf(job, results_json=job_json(job)))
+    out, count = [], 0
+    if len(old) != len(new):
+        out.append(Difference("pdf pages", f"{len(old)} pages", f"{len(new)} pages",
+                              "visible report"))
+    for k, (a, b) in enumerate(zip(old, new), start=1):
+        count += max(len(a), len(b))
+        sm = difflib.SequenceMatcher(a=a, b=b, autojunk=False)
+        for tag, i1, i2, j1, j2 in sm.get_opcodes():
+            if tag == "equal":
+                continue
+            for x, y in _zip_longest_lines(a[i1:i2], b[j1:j2]):
+                out.append(Difference(f"pdf page {k}", x, y, "visible report"))
+    return out, count
+
+
+def _zip_longest_lines(a: list, b: list):
+    """Pairs of lines, ``"<missing>"`` where one side is shorter."""
+    from itertools import zip_longest
+
+    return zip_longest(a, b, fillvalue="<missing>")
+
+
 def _get(doc, *keys):
     """``doc[k1][k2]...`` or None when a level is missing or not a mapping."""
     for k in keys:
@@ -491,7 +583,7 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
     from .report.results import job_json
 
     p = Path(path)
-    recorded = read_results(p)
+    recorded, pdf = _load(p)
     origin = p.resolve().parent
     bases = [origin] + [Path(s) for s in search]
     files: list = []
@@ -501,10 +593,11 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
             runs, plan = _rerun_plan(recorded, bases, files)
         else:
             runs, plan = _rerun_capture(recorded, bases, files, notes)
+        if plan is not None:
+            files += _file_checks_from(recorded, runs)
+        runs, plan = _as_recorded_paths(recorded, runs, plan)
         job = ReportJob(meta=ReportMeta(), runs=runs, plan=plan)
         recomputed = json.loads(job_json(job))
-        if plan is not None:
-            files += _file_checks_from(recorded, recomputed)
     except PqcheckError as exc:
         if isinstance(exc, InputError):
             raise InputError(f"cannot re-run the recorded analysis: {exc.location_message()}",
@@ -518,6 +611,13 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
     v_now = _get(recomputed, "tool", "version")
     if v_rec != v_now:
         notes.append(f"recorded with pqcheck {v_rec}, recomputed with pqcheck {v_now}")
+    if pdf is not None:
+        if v_rec != v_now:
+            notes.append("the PDF's text was not compared (made by another pqcheck version)")
+        else:
+            text_diffs, lines = _pdf_text_differences(pdf, recorded, runs, plan, notes)
+            diffs += text_diffs
+            n += lines
     return Verification(source=str(p), report_id=str(_get(recorded, "report", "id") or ""),
                         files=tuple(files), differences=tuple(diffs), compared=n,
                         notes=tuple(notes))

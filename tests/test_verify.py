@@ -145,7 +145,7 @@ def test_changed_capture_is_caught_by_its_hash(copy, monkeypatch):
     lines = (copy / "run.csv").read_text().splitlines(keepends=True)
     lines[100] = lines[100].replace(",", "1,", 1)  # one sample ten times larger or so
     (copy / "run.csv").write_text("".join(lines))
-    res = _run("verify", copy / "report.pdf", monkeypatch=monkeypatch)
+    res = _run("verify", copy / "results.json", monkeypatch=monkeypatch)
     assert res.exit_code == 1
     assert re.search(r"capture 'run': .*run\.csv: SHA-256 CHANGED", res.stdout)
     assert "captures[0].analysis.capture.sha256" in res.stdout
@@ -164,11 +164,11 @@ def test_missing_capture_is_refused_then_found_with_search(copy, tmp_path, monke
     stash = tmp_path / "stash"
     stash.mkdir()
     shutil.move(copy / "run.csv", stash / "run.csv")
-    res = _run("verify", copy / "report.pdf", monkeypatch=monkeypatch)
+    res = _run("verify", copy / "results.json", monkeypatch=monkeypatch)
     assert res.exit_code == 2
-    assert re.search(r"report\.pdf: cannot re-run the recorded analysis: captures\[0\] \(run\): "
+    assert re.search(r"results\.json: cannot re-run the recorded analysis: captures\[0\] \(run\): "
                      r"capture file not found \(recorded as run\.csv\); .*--search", res.stderr)
-    res = _run("verify", copy / "report.pdf", "--search", stash, monkeypatch=monkeypatch)
+    res = _run("verify", copy / "results.json", "--search", stash, monkeypatch=monkeypatch)
     assert res.exit_code == 0, res.output
 
 
@@ -216,7 +216,8 @@ def test_plan_report_verifies_and_catches_a_changed_plan(tmp_path, monkeypatch):
         '[[limits]]\ntable = "ieee519-2022"\n'
         '[[captures]]\nid = "c1"\nfile = "run.csv"\nsample_rate_hz = 6400\n'
         'current = ["ch1"]\nvoltage = ["ch2"]\n')
-    res = _run("report", "plan.toml", "-o", "r.pdf", "-q", "--no-cache", cwd=tmp_path,
+    res = _run("report", "plan.toml", "-o", "r.pdf", "--json", "r.json", "-q", "--no-cache",
+               cwd=tmp_path,
                monkeypatch=monkeypatch)
     assert res.exit_code == 0, res.output
     res = _run("verify", "r.pdf", monkeypatch=monkeypatch)
@@ -225,7 +226,7 @@ def test_plan_report_verifies_and_catches_a_changed_plan(tmp_path, monkeypatch):
     # IL 100 A -> 200 A halves every % of IL value: the plan's hash and the numbers differ
     plan = tmp_path / "plan.toml"
     plan.write_text(plan.read_text().replace("il_a = 100", "il_a = 200"))
-    res = _run("verify", "r.pdf", monkeypatch=monkeypatch)
+    res = _run("verify", "r.json", monkeypatch=monkeypatch)
     assert res.exit_code == 1
     assert re.search(r"plan: .*plan\.toml: SHA-256 CHANGED", res.stdout)
     assert re.search(r"settings\.il_a \(id c1\): recorded 100, recomputed 200$", res.stdout,
@@ -261,3 +262,30 @@ def test_compare_documents_rules():
         ("captures[0].analysis.s", "pass", "fail"),
     ]
     assert {d.what for d in diffs} == {"id c"}
+
+
+def test_edited_visible_pdf_with_original_data_is_caught(made, tmp_path, monkeypatch):
+    # a PDF whose pages come from another run (IL 50 A instead of 100 A: every % of IL value
+    # doubles) but which carries the original results.json: the data still verify, the page
+    # text does not
+    from pypdf import PdfReader, PdfWriter
+
+    opts = [o if o != "100" else "50" for o in OPTIONS]
+    res = _run("report", "run.csv", *opts, "-o", tmp_path / "other.pdf", cwd=made,
+               monkeypatch=monkeypatch)
+    assert res.exit_code in (0, 1), res.output
+    forged = PdfWriter()
+    for page in PdfReader(tmp_path / "other.pdf").pages:
+        forged.add_page(page)
+    forged.add_attachment("results.json", (made / "results.json").read_bytes())
+    with open(made / "forged.pdf", "wb") as fh:
+        forged.write(fh)
+    try:
+        res = _run("verify", "forged.pdf", "--format", "json", monkeypatch=monkeypatch)
+    finally:
+        (made / "forged.pdf").unlink()
+    assert res.exit_code == 1
+    out = json.loads(res.stdout)
+    kinds = {d["what"] for d in out["differences"]}
+    assert kinds == {"visible report"}, kinds  # the attached data themselves are unchanged
+    assert any(d["path"].startswith("pdf page ") for d in out["differences"])
