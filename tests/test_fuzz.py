@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from test_hostile_inputs import PLAN, TABLE
 
 from pqcheck.analysis import analyze
 from pqcheck.errors import PqcheckError
@@ -151,9 +152,7 @@ def mutated(draw, text: str, keys: list):
     return "\n".join(lines) + "\n"
 
 
-_TABLE = (Path(__file__).parent / "test_hostile_inputs.py").read_text()
-_TABLE = _TABLE[_TABLE.index('TABLE = """') + 11:]
-_TABLE = _TABLE[:_TABLE.index('"""')]
+_TABLE = TABLE  # the catalogue's clean user table
 _TABLE_KEYS = ["schema", "id", "title", "standard", "edition", "measure", "max_order", "tag",
                "clause", "closed", "checks", "name", "applies_to", "basis", "unit", "columns",
                "values", "parity", "even", "items", "derive", "voltage_level", "isc_il",
@@ -187,9 +186,7 @@ def test_limit_table_loader_on_raw_bytes(data):
         pass
 
 
-_PLAN = (Path(__file__).parent / "test_hostile_inputs.py").read_text()
-_PLAN = _PLAN[_PLAN.index('PLAN = """') + 10:]
-_PLAN = _PLAN[:_PLAN.index('"""')]
+_PLAN = PLAN  # the catalogue's clean plan
 _PLAN_KEYS = ["schema", "title", "report_id", "notes", "name", "nominal_voltage_v",
               "nominal_frequency_hz", "isc_a", "il_a", "rsce", "table", "id", "file",
               "load_percent", "load_point", "current", "voltage", "limits", "max_order",

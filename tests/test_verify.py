@@ -16,14 +16,12 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from test_hostile_inputs import TABLE
 
 from pqcheck.cli import main
 from pqcheck.verify import compare_documents
 
 FS = 6400.0
-TABLE = (Path(__file__).parent / "test_hostile_inputs.py").read_text()
-TABLE = TABLE[TABLE.index('TABLE = """') + 11:]
-TABLE = TABLE[:TABLE.index('"""')]
 OPTIONS = ["--sample-rate", "6400", "--current", "ch1", "--voltage", "ch2",
            "--nominal-frequency", "50", "--limits", "table.toml", "--limits", "ieee519-2022",
            "--voltage-level", "400", "--isc", "20000", "--il", "100", "-q", "--no-cache"]
