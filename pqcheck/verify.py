@@ -170,7 +170,7 @@ def read_results(path) -> dict:
 
 
 def _load(path) -> tuple:
-    """(results document, the PDF's bytes or None)."""
+    """(results document, the PDF's bytes or None, the results' bytes)."""
     p = Path(path)
     try:
         data = p.read_bytes()
@@ -196,7 +196,7 @@ def _load(path) -> tuple:
             and doc["captures"]):
         raise InputError("not the results of a pqcheck report (no tool or captures); give the "
                          "report PDF or the file written by pqcheck report --json", path=p)
-    return doc, pdf
+    return doc, pdf, data
 
 
 def _attachment(data: bytes, p: Path) -> bytes:
@@ -308,14 +308,13 @@ def _table_for(rec: dict, bases, files: list):
     return table
 
 
-def _rerun_capture(doc: dict, bases, files: list, notes: list):
+def _rerun_capture(doc: dict, bases, files: list, notes: list, params: dict):
     from .cli.analyze import analysis_kwargs
     from .limits import resolve
     from .pipeline import analyze_file
     from .report.build import assess_each
     from .report.job import CaptureRun
 
-    params = _command_params(str(_get(doc, "report", "command") or ""))
     if not params:
         notes.append("the results record no command line: the capture is re-read with the "
                      "channel roles guessed from its column names")
@@ -375,6 +374,41 @@ def _rerun_plan(doc: dict, bases, files: list):
                          "the report or give its folder with --search", field="plan")
     plan = load_plan(where)
     return run_plan(plan, cache=None), plan
+
+
+def _meta_differences(recorded: dict, params: dict, runs, plan) -> list:
+    """The report block against what the recorded command line (and plan) make of it: title,
+    names and a generated report id follow from them, so an edit shows. Without a recorded
+    command nothing is known and nothing is compared."""
+    from datetime import datetime
+
+    from .report.job import ReportMeta, make_report_id
+
+    rep = recorded.get("report")
+    if not params or not isinstance(rep, dict):
+        return []
+    expect = {
+        "title": params.get("title") or (plan.title if plan is not None and plan.title
+                                         else ReportMeta().title),
+        "equipment": params["equipment"] if params.get("equipment") is not None else (
+            plan.equipment.name if plan is not None else ""),
+        "site": params["site"] if params.get("site") is not None else (
+            plan.site.name if plan is not None else ""),
+        "operator": params.get("operator") or "",
+    }
+    rid = params.get("report_id") or (plan.report_id if plan is not None else "")
+    if not rid:
+        try:
+            created = datetime.fromisoformat(rep["time_of_analysis_utc"])
+        except (KeyError, TypeError, ValueError):
+            created = None
+        if created is not None:
+            rid = make_report_id([r.result.sha256 for r in runs]
+                                 + [plan.sha256 if plan is not None else ""], created)
+    if rid:
+        expect["id"] = rid
+    return [Difference(f"report.{k}", rep.get(k, "<missing>"), v, "report details")
+            for k, v in expect.items() if rep.get(k, "<missing>") != v]
 
 
 def _as_recorded_paths(recorded: dict, runs, plan) -> tuple:
@@ -500,16 +534,20 @@ def _page_texts(pdf: bytes) -> list:
             for page in PdfReader(io.BytesIO(pdf)).pages]
 
 
-def _pdf_text_differences(pdf: bytes, recorded: dict, runs, plan, notes: list) -> tuple:
+def _pdf_text_differences(pdf: bytes, attached: bytes, recorded: dict, runs, plan,
+                          notes: list) -> tuple:
     """Render the report again from the recomputed runs with the recorded metadata and compare
-    the text of each page with the PDF's. Returns (differences, lines compared)."""
+    the text of each page with the PDF's. Returns (differences, lines compared).
+
+    The new rendering embeds the PDF's own attachment (``attached``), so the SHA-256 of the
+    results printed on its pages is that of the data that travel with the PDF: the numbers
+    themselves were compared with the recomputation already, within the tolerance, and the
+    last bits of a float may differ from one machine to another."""
     import difflib
     from datetime import datetime
 
     from .report.job import ReportJob, ReportMeta
     from .report.pdf import render_pdf
-    from .report.results import job_json
-
     r = recorded.get("report")
     try:
         meta = ReportMeta(title=str(r["title"]), equipment=str(r["equipment"]),
@@ -522,7 +560,7 @@ def _pdf_text_differences(pdf: bytes, recorded: dict, runs, plan, notes: list) -
                      "names, id or time)")
         return [], 0
     job = ReportJob(meta=meta, runs=runs, plan=plan)
-    old, new = _page_texts(pdf), _page_texts(render_pdf(job, results_json=job_json(job)))
+    old, new = _page_texts(pdf), _page_texts(render_pdf(job, results_json=attached))
     out, count = [], 0
     if len(old) != len(new):
         out.append(Difference("pdf pages", f"{len(old)} pages", f"{len(new)} pages",
@@ -583,16 +621,18 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
     from .report.results import job_json
 
     p = Path(path)
-    recorded, pdf = _load(p)
+    recorded, pdf, attached = _load(p)
     origin = p.resolve().parent
     bases = [origin] + [Path(s) for s in search]
     files: list = []
     notes: list = []
     try:
+        params = _command_params(str(_get(recorded, "report", "command") or ""))
         if recorded.get("plan"):
             runs, plan = _rerun_plan(recorded, bases, files)
         else:
-            runs, plan = _rerun_capture(recorded, bases, files, notes)
+            runs, plan = _rerun_capture(recorded, bases, files, notes, params)
+        meta_diffs = _meta_differences(recorded, params, runs, plan)
         if plan is not None:
             files += _file_checks_from(recorded, runs)
         runs, plan = _as_recorded_paths(recorded, runs, plan)
@@ -607,6 +647,7 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
         raise InputError(f"the recorded results lack what a re-run needs ({type(exc).__name__}: "
                          f"{exc}); was the JSON edited by hand?", path=p) from None
     diffs, n = compare_documents(recorded, recomputed, rel_tol=rel_tol, abs_tol=abs_tol)
+    diffs = meta_diffs + diffs
     v_rec = _get(recorded, "tool", "version")
     v_now = _get(recomputed, "tool", "version")
     if v_rec != v_now:
@@ -615,7 +656,8 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
         if v_rec != v_now:
             notes.append("the PDF's text was not compared (made by another pqcheck version)")
         else:
-            text_diffs, lines = _pdf_text_differences(pdf, recorded, runs, plan, notes)
+            text_diffs, lines = _pdf_text_differences(pdf, attached, recorded, runs, plan,
+                                                      notes)
             diffs += text_diffs
             n += lines
     return Verification(source=str(p), report_id=str(_get(recorded, "report", "id") or ""),

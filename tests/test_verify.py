@@ -287,3 +287,15 @@ def test_edited_visible_pdf_with_original_data_is_caught(made, tmp_path, monkeyp
     kinds = {d["what"] for d in out["differences"]}
     assert kinds == {"visible report"}, kinds  # the attached data themselves are unchanged
     assert any(d["path"].startswith("pdf page ") for d in out["differences"])
+
+
+def test_hand_altered_report_details_are_listed(copy, monkeypatch):
+    # title, names and the generated report id follow from the recorded command line
+    _edit(copy / "results.json", lambda d: d["report"].update(equipment="Another EUT",
+                                                              id="PQ-20000101-DEADBEEF"))
+    res = _run("verify", copy / "results.json", monkeypatch=monkeypatch)
+    assert res.exit_code == 1
+    assert re.search(r"^  report\.equipment \(report details\): recorded 'Another EUT', "
+                     r"recomputed ''$", res.stdout, re.M)
+    assert re.search(r"^  report\.id \(report details\): recorded 'PQ-20000101-DEADBEEF', "
+                     r"recomputed 'PQ-\d{8}-[0-9A-F]{8}'$", res.stdout, re.M)
