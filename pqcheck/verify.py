@@ -23,10 +23,12 @@ How it re-runs
     settings (nominal frequency and wiring when the user set them, maximum order, IL, reference
     channel) and the recorded selector values of each limit table.
 
-What is not compared
-    The ``report`` block (id, title, names, time of analysis, command: who and when, not
-    results), file locations (``source`` and ``path``: the files may have moved; their SHA-256
-    are compared) and the pqcheck version (reported as a note when it differs).
+What is not compared as a result
+    The ``report`` block (who and when) is checked against what the recorded command line and
+    plan make of it (title, names, a generated report id); the time of analysis and the command
+    are records, not results. File locations (``source`` and ``path``) are not compared: the
+    files may have moved, and their SHA-256 are compared instead. A different pqcheck version
+    is reported as a note.
 
 The PDF itself
     When a PDF is verified, the report is also rendered again from the recomputed results with
