@@ -1111,7 +1111,7 @@ def _read_text(path: Path):
     except OSError as exc:
         raise PlanError(f"cannot read the site file: {exc.strerror or exc}", path=path) from None
     try:
-        text = raw.decode("utf-8")
+        text = raw.decode("utf-8").removeprefix("\ufeff")  # byte-order mark (Windows editors)
     except UnicodeDecodeError as exc:
         raise PlanError(f"not UTF-8 text (byte {exc.start})", path=path,
                         line=raw[:exc.start].count(b"\n") + 1) from None
