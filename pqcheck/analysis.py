@@ -32,7 +32,7 @@ __all__ = [
 ]
 
 WIRINGS = ("3-wire", "4-wire")
-_BLOCK = 1 << 20
+_BLOCK = 1 << 18
 
 
 @dataclass(frozen=True)
@@ -448,9 +448,13 @@ def analyze(
                 blk = transform @ blk
             if blk.shape[1] == 0:
                 continue
-            nonfinite += (~np.isfinite(blk)).sum(axis=1)
+            finite = np.isfinite(blk)
+            all_finite = bool(finite.all())
+            if not all_finite:
+                nonfinite += blk.shape[1] - finite.sum(axis=1)
+            del finite
             for k in range(len(chans)):
-                clip[k].update(blk[k])
+                clip[k].update(blk[k], finite=all_finite)
             total += blk.shape[1]
             buf = blk if buf is None else np.concatenate([buf, blk], axis=1)
             if progress is not None:

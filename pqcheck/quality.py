@@ -72,10 +72,12 @@ class ClipDetector:
     lo: float = np.inf
     hi: float = -np.inf
 
-    def update(self, x) -> None:
-        """Add a block of samples. [A] or [V]"""
+    def update(self, x, *, finite: bool = False) -> None:
+        """Add a block of samples (``finite=True`` when the caller knows there is no NaN or
+        inf, which saves a copy). [A] or [V]"""
         x = np.asarray(x, dtype=np.float64)
-        x = x[np.isfinite(x)]
+        if not finite:
+            x = x[np.isfinite(x)]
         if x.size < 8:
             return
         if self.step == 0.0:
@@ -84,23 +86,29 @@ class ClipDetector:
             d = d[d > 0]
             self.step = float(np.min(d)) if d.size else 0.0
         self.n += x.size
-        self.lo = min(self.lo, float(x.min()))
-        self.hi = max(self.hi, float(x.max()))
-        self._side(self.top, x)
-        self._side(self.bottom, -x)
+        hi, lo = float(x.max()), float(x.min())
+        self.lo = min(self.lo, lo)
+        self.hi = max(self.hi, hi)
+        span = (hi - lo) or 1.0
+        self._side(self.top, x, hi, span, 1.0)
+        self._side(self.bottom, x, -lo, span, -1.0)
 
-    def _side(self, side: _Side, x) -> None:
-        level = float(x.max())
-        span = float(x.max() - x.min()) or 1.0
+    def _side(self, side: _Side, x, level: float, span: float, sign: float) -> None:
+        """One rail: ``sign`` 1 for the upper, -1 for the lower (levels are in ``sign * x``)."""
         tol = max(0.5 * self.step, 1e-9 * span)
         if level < side.level - tol:
             return
         if level > side.level + tol:
             side.__init__(level=level)
         band = max(3 * self.step, 1e-6 * span)
-        close = x >= side.level - band
-        n_close = int(np.count_nonzero(close))
-        at = x >= side.level - tol
+        if sign > 0:
+            n_close = int(np.count_nonzero(x >= side.level - band))
+        else:
+            n_close = int(np.count_nonzero(x <= -(side.level - band)))
+        if n_close < 3:
+            side.near += n_close
+            return
+        at = (x >= side.level - tol) if sign > 0 else (x <= -(side.level - tol))
         n_at = int(np.count_nonzero(at))
         side.at_level += n_at
         side.near += n_close - n_at
@@ -117,7 +125,7 @@ class ClipDetector:
         s = starts[long]
         s = s[s > 0]
         if s.size:
-            jump = side.level - x[s - 1]
+            jump = side.level - sign * x[s - 1]
             side.steep_entries += int((jump > 0.25 * span).sum())
 
     def findings(self) -> list:

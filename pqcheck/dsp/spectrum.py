@@ -134,9 +134,20 @@ def analyse_windows(
         for j, (a, c) in enumerate(pairs):
             prods[sel, j] = np.einsum("wn,wn->w", seg[a], seg[c]) / length
         if combos.shape[0]:
-            derived = np.tensordot(combos, seg, axes=(1, 0))  # (D, w, N)
-            crms[sel] = np.sqrt(np.einsum("dwn,dwn->dw", derived, derived) / length).T
-            del derived
+            # rms of sum_c w_c x_c from second moments: sum_cd w_c w_d mean(x_c x_d), with
+            # the cross moments each computed once (no derived signals are formed)
+            msq = sumsq / length  # (C, w)
+            cross = {}
+            acc = np.zeros((combos.shape[0], sel.size))
+            for j, wts in enumerate(combos):
+                used = np.flatnonzero(wts)
+                for ia, a in enumerate(used):
+                    acc[j] += wts[a] ** 2 * msq[a]
+                    for c in used[ia + 1:]:
+                        if (a, c) not in cross:
+                            cross[a, c] = np.einsum("wn,wn->w", seg[a], seg[c]) / length
+                        acc[j] += 2 * wts[a] * wts[c] * cross[a, c]
+            crms[sel] = np.sqrt(np.maximum(acc, 0.0)).T
         spec = sfft.rfft(seg, axis=-1, workers=FFT_WORKERS if workers is None else workers)
         del seg
         k_keep = min(max_line, spec.shape[-1] - 1)

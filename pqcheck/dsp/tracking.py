@@ -240,6 +240,10 @@ def _edge_line(mid, count, at, *, first):
     return float(intercept), float(slope)
 
 
+_SG = np.array([-36, 9, 44, 69, 84, 89, 84, 69, 44, 9, -36], dtype=np.float64) / 429.0
+"""Savitzky-Golay smoothing weights, 11 points, quadratic (Savitzky & Golay 1964, Table I)."""
+
+
 def _smooth_counts(count):
     """Local quadratic least-squares fit (Savitzky-Golay) of the cycle count over 11 cycles.
 
@@ -248,13 +252,25 @@ def _smooth_counts(count):
     top is interference that beats against the fundamental, above all an interharmonic near
     it on the reference channel (for example 3 % at 75 Hz beats at 25 Hz, a two-cycle
     ripple); the fit attenuates such ripple by more than an order of magnitude, so the window
-    edges no longer jitter with it.
+    edges no longer jitter with it. The first and last five points take the quadratic fitted
+    to the first or last eleven (as ``scipy.signal.savgol_filter(mode="interp")``).
     """
-    if count.size < SMOOTH_CYCLES:
+    n = SMOOTH_CYCLES
+    if count.size < n:
         return count
-    from scipy.signal import savgol_filter  # imported here: scipy.signal is slow to import
-
-    return savgol_filter(count, SMOOTH_CYCLES, 2, mode="interp")
+    out = np.empty_like(count)
+    half = n // 2
+    out[half:-half] = np.convolve(count, _SG, mode="valid")
+    k = np.arange(n, dtype=np.float64)
+    for sl, pos in ((slice(0, n), slice(0, half)), (slice(count.size - n, count.size),
+                                                    slice(n - half, n))):
+        coef = np.polyfit(k, count[sl], 2)
+        edge = np.polyval(coef, k)
+        if pos.start == 0:
+            out[:half] = edge[:half]
+        else:
+            out[-half:] = edge[pos]
+    return out
 
 
 def _cum_at(csum, y, pos):

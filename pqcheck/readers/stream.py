@@ -11,8 +11,8 @@ simulator exports) are small and go through the in-memory reader instead.
 from __future__ import annotations
 
 import hashlib
-import io
 import os
+import sys
 from dataclasses import replace
 
 import numpy as np
@@ -26,39 +26,48 @@ from . import delimited as _d
 __all__ = ["stream_delimited", "NotStreamable"]
 
 _MAX_GAP_S = 600.0
+CHUNK_ROWS = 1 << 18
+"""Rows parsed per chunk: with two chunks queued ahead, parser memory stays near 200 MB for
+seven columns whatever the length of the file."""
 
 
 class NotStreamable(Exception):
     """The file needs the whole-file reader (non-uniform time base, compressed, UTF-16)."""
 
 
-class _HashingRaw(io.RawIOBase):
-    """Raw file that feeds every byte read into a SHA-256."""
+class _BackgroundHash:
+    """SHA-256 of a file computed on a thread while the caller does other work."""
 
     def __init__(self, path):
-        self._fh = open(path, "rb")
-        self.sha = hashlib.sha256()
-        self.n = 0
+        import threading
 
-    def readable(self):
-        return True
+        self._sha = hashlib.sha256()
+        self._stop = threading.Event()
+        self._error = None
+        self._thread = threading.Thread(target=self._run, args=(path,), daemon=True,
+                                        name="pqcheck-hash")
+        self._thread.start()
 
-    def readinto(self, b):
-        n = self._fh.readinto(b)
-        if n:
-            self.sha.update(memoryview(b)[:n])
-            self.n += n
-        return n
+    def _run(self, path):
+        try:
+            with open(path, "rb") as fh:
+                for block in iter(lambda: fh.read(1 << 20), b""):
+                    if self._stop.is_set():
+                        return
+                    self._sha.update(block)
+        except OSError as exc:
+            self._error = exc
 
-    def finish(self) -> str:
-        """Hash whatever the parser did not read and return the hex digest."""
-        for block in iter(lambda: self._fh.read(1 << 20), b""):
-            self.sha.update(block)
-        return self.sha.hexdigest()
+    def result(self) -> str:
+        """The hex digest (waits for the thread)."""
+        self._thread.join()
+        if self._error is not None:
+            raise CaptureFormatError(f"cannot read the file: {self._error}", path=None)
+        return self._sha.hexdigest()
 
-    def close(self):
-        self._fh.close()
-        super().close()
+    def cancel(self) -> None:
+        """Stop early (after an error elsewhere)."""
+        self._stop.set()
 
 
 def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=1 << 18,
@@ -134,61 +143,147 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
                            (), t0, hint)
     state = {"passes": 0}
 
+    spec = {"path": path, "dialect": d, "names": names, "t_idx": t_idx, "keep": keep,
+            "scales": scales, "fs": fs}
+
     def factory(block_samples):
-        raw = _HashingRaw(path)
-        buffered = io.BufferedReader(raw, 1 << 20)
-        findings = []
         teeing = tee is not None and state["passes"] == 0
         state["passes"] += 1
-        try:
-            reader = pd.read_csv(
-                buffered, sep=d.delimiter or ",", decimal=d.decimal, header=None,
-                names=names, skiprows=d.data_line - 1, dtype=np.float64,
-                encoding=_d._pd_encoding(d), engine="c", skip_blank_lines=True,
-                na_values=["", "nan", "NaN", "NAN", "-nan"], chunksize=block_samples)
-            last_t = None
-            row0 = 0
-            pending = None
-            for chunk in _prefetch(_chunks(reader, path, d, names)):
-                table = chunk
-                if pending is not None:
-                    table = np.concatenate([pending, table])
-                    pending = None
-                # hold back the last row until we know whether it is the file's last
-                pending, table = table[-1:], table[:-1]
-                if table.shape[0] == 0:
-                    continue
-                block = _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
-                if t_idx is not None:
-                    last_t = table[-1, t_idx] * d.scales[t_idx]
-                row0 += table.shape[0]
-                if teeing:
-                    tee.write(block)
-                yield block
-            if pending is not None and pending.shape[0]:
-                row = pending[0]
-                sig = row[keep]
-                if np.isnan(sig).any() and not np.isnan(sig).all() or (
-                        t_idx is not None and not np.isfinite(row[t_idx])):
-                    findings.append(Finding(
-                        "truncated-row", "warning",
-                        "the last row is incomplete (file cut short?) and was dropped."))
-                else:
-                    block = _block(pending, t_idx, keep, scales, fs, last_t, path, d, row0,
-                                   findings)
-                    if teeing:
-                        tee.write(block)
-                    yield block
-            sha = raw.finish()
-        finally:
-            buffered.close()
-        stream.provenance = replace(stream.provenance, sha256=sha)
-        stream.findings = tuple(findings)
+        rows = max(1024, min(int(block_samples), CHUNK_ROWS))
+        out = {}
+        runner = _run_in_process if _FORK_OK else _run_in_thread
+        for block in runner(dict(spec, rows=rows), out):
+            if teeing:
+                tee.write(block)
+            yield block
+        stream.provenance = replace(stream.provenance, sha256=out["sha256"])
+        stream.findings = tuple(out["findings"])
         if on_complete is not None:
             on_complete(stream, teeing)
 
     stream._factory = factory
     return stream
+
+
+def _produce_blocks(spec: dict, out: dict):
+    """Parse the file chunk by chunk into SI blocks (C, n), hashing the bytes read.
+
+    Runs on the parse thread or in the parse process; at the end ``out`` holds ``sha256`` and
+    ``findings``. Errors are raised as :class:`CaptureFormatError` naming the line.
+    """
+    path, d, names = spec["path"], spec["dialect"], spec["names"]
+    t_idx, keep, scales, fs = spec["t_idx"], spec["keep"], spec["scales"], spec["fs"]
+    findings = []
+    # The parser reads the file by path (its own C file reading is the fastest); the SHA-256
+    # comes from a second read of the same bytes on a thread (hashlib releases the GIL, and
+    # the bytes are in the page cache by then).
+    hasher = _BackgroundHash(path)
+    try:
+        reader = pd.read_csv(
+            path, sep=d.delimiter or ",", decimal=d.decimal, header=None,
+            names=names, skiprows=d.data_line - 1, dtype=np.float64,
+            encoding=_d._pd_encoding(d), engine="c", skip_blank_lines=True,
+            na_values=["", "nan", "NaN", "NAN", "-nan"], chunksize=spec["rows"])
+        last_t = None
+        row0 = 0
+        pending = None
+        for chunk in _chunks(reader, path, d, names):
+            table = chunk
+            if pending is not None:
+                table = np.concatenate([pending, table])
+                pending = None
+            # hold back the last row until we know whether it is the file's last
+            pending, table = table[-1:], table[:-1]
+            if table.shape[0] == 0:
+                continue
+            block = _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
+            if t_idx is not None:
+                last_t = table[-1, t_idx] * d.scales[t_idx]
+            row0 += table.shape[0]
+            yield block
+        if pending is not None and pending.shape[0]:
+            row = pending[0]
+            sig = row[keep]
+            if np.isnan(sig).any() and not np.isnan(sig).all() or (
+                    t_idx is not None and not np.isfinite(row[t_idx])):
+                findings.append(Finding(
+                    "truncated-row", "warning",
+                    "the last row is incomplete (file cut short?) and was dropped."))
+            else:
+                yield _block(pending, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
+        out["sha256"] = hasher.result()
+        out["findings"] = findings
+    finally:
+        hasher.cancel()
+
+
+def _run_in_thread(spec: dict, out: dict):
+    """Blocks parsed on a background thread (where ``fork`` is not available)."""
+    yield from _prefetch(_produce_blocks(spec, out))
+
+
+_FORK_OK = sys.platform.startswith("linux")
+"""On Linux the parser runs in a forked process: pandas' C parser holds the GIL for much of
+its work, so a thread barely overlaps the analysis, while a process uses the second core.
+Elsewhere it runs on a thread."""
+
+
+def _parse_child(conn, spec: dict) -> None:  # pragma: no cover - runs in the child process
+    out = {}
+    try:
+        for block in _produce_blocks(spec, out):
+            conn.send(("block", block.shape, block.dtype.str))
+            conn.send_bytes(memoryview(np.ascontiguousarray(block)).cast("B"))
+        conn.send(("end", out["sha256"], [f.to_dict() for f in out["findings"]]))
+    except CaptureFormatError as exc:
+        conn.send(("error", exc.problem, exc.path, exc.line, exc.field))
+    except BaseException as exc:
+        conn.send(("crash", f"{type(exc).__name__}: {exc}"))
+    finally:
+        conn.close()
+
+
+def _run_in_process(spec: dict, out: dict):
+    """Blocks parsed in a forked child process and received over a pipe (one block ahead)."""
+    import multiprocessing as mp
+
+    ctx = mp.get_context("fork")
+    parent, child = ctx.Pipe(duplex=False)
+    proc = ctx.Process(target=_parse_child, args=(child, spec), daemon=True,
+                       name="pqcheck-parse")
+    proc.start()
+    child.close()
+    try:
+        while True:
+            try:
+                msg = parent.recv()
+            except EOFError:
+                raise CaptureFormatError("the parser process stopped unexpectedly; run again "
+                                         "with more memory or check the file",
+                                         path=spec["path"]) from None
+            kind = msg[0]
+            if kind == "block":
+                shape, dtype = msg[1], msg[2]
+                buf = bytearray(int(np.prod(shape)) * np.dtype(dtype).itemsize)
+                parent.recv_bytes_into(buf)
+                yield np.frombuffer(buf, dtype=dtype).reshape(shape)
+            elif kind == "end":
+                out["sha256"] = msg[1]
+                out["findings"] = [Finding(f["code"], f["severity"], f["message"],
+                                           tuple(f.get("channels", ())),
+                                           tuple(f.get("orders", ())), f.get("value"),
+                                           f.get("unit", "")) for f in msg[2]]
+                return
+            elif kind == "error":
+                raise CaptureFormatError(msg[1], path=msg[2], line=msg[3], field=msg[4])
+            else:
+                raise CaptureFormatError(f"could not parse the file ({msg[1]})",
+                                         path=spec["path"])
+    finally:
+        parent.close()
+        if proc.is_alive():
+            proc.kill()
+        proc.join(timeout=5)
 
 
 def _prefetch(iterator, depth: int = 2):
