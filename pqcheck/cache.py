@@ -7,8 +7,9 @@ the text file once and keeps two things, both keyed by the file's SHA-256:
   JSON description (sample rate, channels, reader settings and findings), read back block by
   block so memory stays bounded;
 - each analysis result (``results/<sha>-<settings>.npz`` + ``.json``), keyed also by every
-  analysis setting and the channel map, so `check` and `report` with other limits skip the
-  analysis too.
+  analysis setting, the channel map, the pqcheck version and a hash of the analysis code, so
+  `check` and `report` with other limits skip the analysis too and results of other code are
+  never served.
 
 A small fingerprint file maps (absolute path, size, modification time, reader options) to the
 SHA-256, so a re-run does not have to hash a large file again; any change to the file changes
@@ -22,6 +23,7 @@ Location: ``--cache-dir``, else ``$PQCHECK_CACHE_DIR``, else ``$XDG_CACHE_HOME/p
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import os
@@ -67,6 +69,28 @@ def _atomic_write_bytes(path: Path, data: bytes) -> None:
 def _finding_from(d: dict) -> Finding:
     return Finding(d["code"], d["severity"], d["message"], tuple(d.get("channels", ())),
                    tuple(d.get("orders", ())), d.get("value"), d.get("unit", ""))
+
+
+_CODE = ("analysis.py", "metrics.py", "quality.py", "capture.py", "dsp", "readers")
+
+
+@functools.lru_cache(maxsize=1)
+def _code_fingerprint() -> str:
+    """Hash of the source of every module that computes a result, so that a cached result is
+    never served to code that would compute it differently (an edited checkout keeps its
+    version number)."""
+    root = Path(__file__).parent
+    h = hashlib.sha256()
+    for name in _CODE:
+        p = root / name
+        files = sorted(p.glob("*.py")) if p.is_dir() else [p]
+        for f in files:
+            try:
+                h.update(f.name.encode())
+                h.update(f.read_bytes())
+            except OSError:
+                h.update(b"?")
+    return h.hexdigest()[:16]
 
 
 class Cache:
@@ -144,7 +168,8 @@ class Cache:
 
     # ---- analysis results ---------------------------------------------------------------
     def _result_base(self, sha256: str, settings: dict) -> Path:
-        return self.root / "results" / f"{sha256}-{_key({'s': settings, 'v': __version__})}"
+        key = _key({"s": settings, "v": __version__, "code": _code_fingerprint()})
+        return self.root / "results" / f"{sha256}-{key}"
 
     def load_result(self, sha256: str, settings: dict):
         """A cached :class:`~pqcheck.analysis.AnalysisResult`, or None."""

@@ -1,9 +1,10 @@
-"""Long delimited-text captures read block by block, hashed while they are read.
+"""Long delimited-text captures read block by block, hashed on the side.
 
 :func:`stream_delimited` returns a :class:`~pqcheck.capture.CaptureStream` whose blocks come
 from pandas' C parser in chunks (the fastest reader measured on our 2-core machines, see
-benchmarks/README.md), so peak memory does not grow with the length of the file. The file's
-SHA-256 is computed from the same bytes the parser reads. Layout detection is shared with
+benchmarks/README.md), parsed on a background thread two chunks ahead of the analysis, so
+peak memory does not grow with the length of the file. The file's SHA-256 is computed on
+another thread from a second read of the same bytes (from the page cache). Layout detection is shared with
 :mod:`pqcheck.readers.delimited`; files whose time base is not uniform (variable-step
 simulator exports) are small and go through the in-memory reader instead.
 """
@@ -12,7 +13,6 @@ from __future__ import annotations
 
 import hashlib
 import os
-import sys
 from dataclasses import replace
 
 import numpy as np
@@ -151,8 +151,7 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
         state["passes"] += 1
         rows = max(1024, min(int(block_samples), CHUNK_ROWS))
         out = {}
-        runner = _run_in_process if _FORK_OK else _run_in_thread
-        for block in runner(dict(spec, rows=rows), out):
+        for block in _run_in_thread(dict(spec, rows=rows), out):
             if teeing:
                 tee.write(block)
             yield block
@@ -218,72 +217,9 @@ def _produce_blocks(spec: dict, out: dict):
 
 
 def _run_in_thread(spec: dict, out: dict):
-    """Blocks parsed on a background thread (where ``fork`` is not available)."""
+    """Blocks parsed on a background thread, two chunks ahead of the analysis. (A forked
+    parser process was measured too: the pipe transfer cost more than it gained.)"""
     yield from _prefetch(_produce_blocks(spec, out))
-
-
-_FORK_OK = sys.platform.startswith("linux")
-"""On Linux the parser runs in a forked process: pandas' C parser holds the GIL for much of
-its work, so a thread barely overlaps the analysis, while a process uses the second core.
-Elsewhere it runs on a thread."""
-
-
-def _parse_child(conn, spec: dict) -> None:  # pragma: no cover - runs in the child process
-    out = {}
-    try:
-        for block in _produce_blocks(spec, out):
-            conn.send(("block", block.shape, block.dtype.str))
-            conn.send_bytes(memoryview(np.ascontiguousarray(block)).cast("B"))
-        conn.send(("end", out["sha256"], [f.to_dict() for f in out["findings"]]))
-    except CaptureFormatError as exc:
-        conn.send(("error", exc.problem, exc.path, exc.line, exc.field))
-    except BaseException as exc:
-        conn.send(("crash", f"{type(exc).__name__}: {exc}"))
-    finally:
-        conn.close()
-
-
-def _run_in_process(spec: dict, out: dict):
-    """Blocks parsed in a forked child process and received over a pipe (one block ahead)."""
-    import multiprocessing as mp
-
-    ctx = mp.get_context("fork")
-    parent, child = ctx.Pipe(duplex=False)
-    proc = ctx.Process(target=_parse_child, args=(child, spec), daemon=True,
-                       name="pqcheck-parse")
-    proc.start()
-    child.close()
-    try:
-        while True:
-            try:
-                msg = parent.recv()
-            except EOFError:
-                raise CaptureFormatError("the parser process stopped unexpectedly; run again "
-                                         "with more memory or check the file",
-                                         path=spec["path"]) from None
-            kind = msg[0]
-            if kind == "block":
-                shape, dtype = msg[1], msg[2]
-                buf = bytearray(int(np.prod(shape)) * np.dtype(dtype).itemsize)
-                parent.recv_bytes_into(buf)
-                yield np.frombuffer(buf, dtype=dtype).reshape(shape)
-            elif kind == "end":
-                out["sha256"] = msg[1]
-                out["findings"] = [Finding(f["code"], f["severity"], f["message"],
-                                           tuple(f.get("channels", ())),
-                                           tuple(f.get("orders", ())), f.get("value"),
-                                           f.get("unit", "")) for f in msg[2]]
-                return
-            elif kind == "error":
-                raise CaptureFormatError(msg[1], path=msg[2], line=msg[3], field=msg[4])
-            else:
-                raise CaptureFormatError(f"could not parse the file ({msg[1]})",
-                                         path=spec["path"])
-    finally:
-        parent.close()
-        if proc.is_alive():
-            proc.kill()
-        proc.join(timeout=5)
 
 
 def _prefetch(iterator, depth: int = 2):
