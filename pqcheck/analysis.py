@@ -388,6 +388,13 @@ def analyze(
                          f"choose one of {', '.join(names)}", path=path, field="--reference")
     nominal_in = nominal_hz
     max_order = int(max_order)
+    for c in chans:
+        if c.guessed in ("current", "voltage") and c.guessed != c.quantity:
+            findings.append(Finding(
+                "role-mismatch", "warning",
+                f"column {c.name!r} looks like a {c.guessed} (by its name or unit) but is "
+                f"analysed as a {c.quantity}; check --current and --voltage.",
+                channels=(c.name,)))
     transform = None
     ll = _line_to_line(chans, voltage_connection, path)
     if ll is not None:

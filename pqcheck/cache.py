@@ -238,7 +238,8 @@ class _SampleWriter:
             meta = {
                 "format": _FORMAT, "fs_hz": fs_hz, "t0_s": t0_s, "n_samples": self.n,
                 "channels": [{"name": c.name, "quantity": c.quantity, "phase": c.phase,
-                              "unit": c.unit, "role_source": c.role_source} for c in channels],
+                              "unit": c.unit, "role_source": c.role_source,
+                              "guessed": c.guessed} for c in channels],
                 "reader": reader, "settings": settings,
                 "findings": [f.to_dict() for f in findings],
             }

@@ -48,6 +48,9 @@ class Channel:
         SI unit of the stored samples: ``"A"``, ``"V"`` or ``""``.
     role_source : str
         ``"user"`` when roles were given explicitly, ``"guess"`` when inferred from names/units.
+    guessed : str
+        The quantity the reader guessed from the column's name and unit, kept when the user
+        assigns roles, so that a current given as a voltage (or the reverse) can be flagged.
     """
 
     name: str
@@ -55,6 +58,7 @@ class Channel:
     phase: str = ""
     unit: str = ""
     role_source: str = "guess"
+    guessed: str = ""
 
     def __post_init__(self):
         if self.quantity not in QUANTITIES:
@@ -448,9 +452,10 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
         if c.name in roles:
             q, p = roles[c.name]
             unit = "A" if q == "current" else "V"
-            chans.append(Channel(c.name, q, p, unit, "user"))
+            guessed = c.guessed or (c.quantity if c.role_source == "guess" else "")
+            chans.append(Channel(c.name, q, p, unit, "user", guessed))
         else:
-            chans.append(Channel(c.name, "other", c.phase, c.unit, "user"))
+            chans.append(Channel(c.name, "other", c.phase, c.unit, "user", c.guessed))
     return capture.with_channels(chans)
 
 

@@ -231,7 +231,11 @@ SMOOTH_CYCLES = 11
 
 
 def _edge_line(mid, count, at, *, first):
-    """Value and slope at ``at`` of a straight line fitted to the first (or last) cycles."""
+    """Value and slope at ``at`` of a straight line fitted to the first (or last) cycles.
+
+    A line rather than a quadratic: extrapolated half a cycle, a quadratic amplifies the
+    ripple of an interharmonic on the reference more than it gains on a frequency ramp (on a
+    0.1 Hz/s ramp the line leaves the first window 1.4 mHz off, 0.003 % of 50 Hz)."""
     n = min(SMOOTH_CYCLES, mid.size)
     sl = slice(0, n) if first else slice(mid.size - n, mid.size)
     if n < 2:
