@@ -414,13 +414,15 @@ def _pd_encoding(dialect):
             "latin-1": "latin-1"}.get(dialect.encoding, "utf-8")
 
 
-def parse_error(path, dialect: Dialect, exc) -> CaptureFormatError:
+def parse_error(path, dialect: Dialect, exc, *, line_offset: int = 0) -> CaptureFormatError:
     """The error to raise for a pandas parser failure: names the line (and the column of a
-    cell that is not a number) and says what to do."""
+    cell that is not a number) and says what to do. ``line_offset``: lines of the file before
+    the text pandas was given (0 when it read the whole file)."""
     msg = str(exc)
     m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
     if m:
-        line = int(m.group(2))  # pandas counts lines of the file, skipped rows included
+        # pandas counts lines of the text it was given, skipped rows included
+        line = int(m.group(2)) + line_offset
         return CaptureFormatError(
             f"row has {m.group(3)} fields but the header has {m.group(1)}; fix or delete "
             "that row (mixed delimiters?)", path=path, line=line)
@@ -428,7 +430,7 @@ def parse_error(path, dialect: Dialect, exc) -> CaptureFormatError:
     if m:  # a stray quote at the start of a cell; pandas counts rows of the file from 0
         return CaptureFormatError(
             'a quote (") opens a text field that never closes; remove it from that row',
-            path=path, line=int(m.group(1)) + 1)
+            path=path, line=int(m.group(1)) + 1 + line_offset)
     try:
         bad = _locate_bad_cell(path, dialect, dialect.names)
     except (pd.errors.ParserError, ValueError):  # reported below with pandas' own words

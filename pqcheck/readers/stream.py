@@ -12,7 +12,9 @@ simulator exports) are small and go through the in-memory reader instead.
 from __future__ import annotations
 
 import hashlib
+import io
 import os
+import sys
 from dataclasses import replace
 
 import numpy as np
@@ -44,13 +46,13 @@ class _BackgroundHash:
         self._sha = hashlib.sha256()
         self._stop = threading.Event()
         self._error = None
-        self._thread = threading.Thread(target=self._run, args=(path,), daemon=True,
-                                        name="pqcheck-hash")
+        self._path = path
+        self._thread = threading.Thread(target=self._run, daemon=True, name="pqcheck-hash")
         self._thread.start()
 
-    def _run(self, path):
+    def _run(self):
         try:
-            with open(path, "rb") as fh:
+            with open(self._path, "rb") as fh:
                 for block in iter(lambda: fh.read(1 << 20), b""):
                     if self._stop.is_set():
                         return
@@ -62,12 +64,42 @@ class _BackgroundHash:
         """The hex digest (waits for the thread)."""
         self._thread.join()
         if self._error is not None:
-            raise CaptureFormatError(f"cannot read the file: {self._error}", path=None)
+            raise CaptureFormatError(f"cannot read the file: {self._error}", path=self._path)
         return self._sha.hexdigest()
 
     def cancel(self) -> None:
         """Stop early (after an error elsewhere)."""
         self._stop.set()
+
+
+class _HashingRaw(io.RawIOBase):
+    """Raw file that feeds every byte read into a SHA-256."""
+
+    def __init__(self, path, hashing: bool = True):
+        self._fh = open(path, "rb")
+        self.sha = hashlib.sha256() if hashing else None
+
+    def readable(self):
+        return True
+
+    def readinto(self, b):
+        n = self._fh.readinto(b)
+        if n and self.sha is not None:
+            self.sha.update(memoryview(b)[:n])
+        return n
+
+    def finish(self) -> str:
+        """Hash whatever the parser did not read and return the hex digest ("" when not
+        hashing)."""
+        if self.sha is None:
+            return ""
+        for block in iter(lambda: self._fh.read(1 << 20), b""):
+            self.sha.update(block)
+        return self.sha.hexdigest()
+
+    def close(self):
+        self._fh.close()
+        super().close()
 
 
 def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=1 << 18,
@@ -151,7 +183,8 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
         state["passes"] += 1
         rows = max(1024, min(int(block_samples), CHUNK_ROWS))
         out = {}
-        for block in _run_in_thread(dict(spec, rows=rows), out):
+        runner = _run_in_process if _FORK_OK else _run_in_thread
+        for block in runner(dict(spec, rows=rows), out):
             if teeing:
                 tee.write(block)
             yield block
@@ -173,16 +206,17 @@ def _produce_blocks(spec: dict, out: dict):
     path, d, names = spec["path"], spec["dialect"], spec["names"]
     t_idx, keep, scales, fs = spec["t_idx"], spec["keep"], spec["scales"], spec["fs"]
     findings = []
-    # The parser reads the file by path (its own C file reading is the fastest); the SHA-256
-    # comes from a second read of the same bytes on a thread (hashlib releases the GIL, and
-    # the bytes are in the page cache by then).
-    hasher = _BackgroundHash(path)
+    # The parser reads from a handle that hashes every byte it passes on, positioned at the
+    # first data row (pandas' skiprows is much slower than skipping the lines here).
+    raw = _HashingRaw(path, hashing=spec.get("hash", True))
+    fh = io.BufferedReader(raw, 1 << 20)
     try:
+        for _ in range(d.data_line - 1):
+            fh.readline()
         reader = pd.read_csv(
-            path, sep=d.delimiter or ",", decimal=d.decimal, header=None,
-            names=names, skiprows=d.data_line - 1, dtype=np.float64,
-            encoding=_d._pd_encoding(d), engine="c", skip_blank_lines=True,
-            na_values=["", "nan", "NaN", "NAN", "-nan"], chunksize=spec["rows"])
+            fh, sep=d.delimiter or ",", decimal=d.decimal, header=None, names=names,
+            dtype=np.float64, encoding=_d._pd_encoding(d), engine="c",
+            skip_blank_lines=True, chunksize=spec["rows"])
         last_t = None
         row0 = 0
         pending = None
@@ -210,16 +244,83 @@ def _produce_blocks(spec: dict, out: dict):
                     "the last row is incomplete (file cut short?) and was dropped."))
             else:
                 yield _block(pending, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
-        out["sha256"] = hasher.result()
+        out["sha256"] = raw.finish()
         out["findings"] = findings
     finally:
-        hasher.cancel()
+        fh.close()
 
 
 def _run_in_thread(spec: dict, out: dict):
-    """Blocks parsed on a background thread, two chunks ahead of the analysis. (A forked
-    parser process was measured too: the pipe transfer cost more than it gained.)"""
+    """Blocks parsed on a background thread, two chunks ahead of the analysis."""
     yield from _prefetch(_produce_blocks(spec, out))
+
+
+_FORK_OK = sys.platform.startswith("linux")
+"""On Linux the parser runs in a forked process: pandas' C parser holds the GIL for much of
+its work, so on a thread it barely overlaps the analysis, while a process uses another core
+(measured in benchmarks/). Elsewhere it runs on a thread."""
+
+
+def _parse_child(conn, spec: dict) -> None:  # pragma: no cover - runs in the child process
+    out = {}
+    try:
+        for block in _produce_blocks(spec, out):
+            conn.send(("block", block.shape))
+            conn.send_bytes(memoryview(np.ascontiguousarray(block, dtype=np.float64)).cast("B"))
+        conn.send(("end", out["sha256"], [f.to_dict() for f in out["findings"]]))
+    except CaptureFormatError as exc:
+        conn.send(("error", exc.problem, exc.path, exc.line, exc.field))
+    except BaseException as exc:
+        conn.send(("crash", f"{type(exc).__name__}: {exc}"))
+    finally:
+        conn.close()
+
+
+def _run_in_process(spec: dict, out: dict):
+    """Blocks parsed in a forked child process and received over a pipe; the child parses
+    the next chunk while this process analyses the current one."""
+    import multiprocessing as mp
+
+    ctx = mp.get_context("fork")
+    parent, child = ctx.Pipe(duplex=False)
+    proc = ctx.Process(target=_parse_child, args=(child, dict(spec, hash=False)), daemon=True,
+                       name="pqcheck-parse")
+    proc.start()
+    child.close()
+    # the child only parses; the SHA-256 is computed here on a thread (started after the
+    # fork), where the analysis leaves the core idle part of the time
+    hasher = _BackgroundHash(spec["path"])
+    try:
+        while True:
+            try:
+                msg = parent.recv()
+            except EOFError:
+                raise CaptureFormatError("the parser process stopped unexpectedly (out of "
+                                         "memory?); check the file and run again",
+                                         path=spec["path"]) from None
+            kind = msg[0]
+            if kind == "block":
+                buf = bytearray(int(np.prod(msg[1])) * 8)
+                parent.recv_bytes_into(buf)
+                yield np.frombuffer(buf, dtype=np.float64).reshape(msg[1])
+            elif kind == "end":
+                out["sha256"] = hasher.result()
+                out["findings"] = [Finding(f["code"], f["severity"], f["message"],
+                                           tuple(f.get("channels", ())),
+                                           tuple(f.get("orders", ())), f.get("value"),
+                                           f.get("unit", "")) for f in msg[2]]
+                return
+            elif kind == "error":
+                raise CaptureFormatError(msg[1], path=msg[2], line=msg[3], field=msg[4])
+            else:
+                raise CaptureFormatError(f"could not parse the file ({msg[1]})",
+                                         path=spec["path"])
+    finally:
+        hasher.cancel()
+        parent.close()
+        if proc.is_alive():
+            proc.kill()
+        proc.join(timeout=5)
 
 
 def _prefetch(iterator, depth: int = 2):
@@ -295,7 +396,7 @@ def _chunks(reader, path, d, names):
         except StopIteration:
             return
         except (ValueError, pd.errors.ParserError) as exc:
-            raise _d.parse_error(path, d, exc) from None
+            raise _d.parse_error(path, d, exc, line_offset=d.data_line - 1) from None
         yield chunk.to_numpy(dtype=np.float64)
 
 
