@@ -281,21 +281,6 @@ class AnalysisResult:
         return float(np.sum(w.duration_s[w.valid]))
 
 
-def _quiet_nan(func, a) -> float:
-    """``func`` (np.nanmax, np.nanmean) of ``a``; NaN without a RuntimeWarning on stderr when
-    every value is NaN, as for a channel that carries nothing (an unloaded phase)."""
-    a = np.asarray(a)
-    return float(func(a)) if np.isfinite(a).any() else float("nan")
-
-
-def _rms_over(a, valid, axis=0):
-    a = np.abs(np.asarray(a))
-    sel = a[valid]
-    if sel.shape[0] == 0:
-        return np.full(a.shape[1:], np.nan)
-    return np.sqrt(np.mean(sel**2, axis=axis))
-
-
 def analyze(
     capture: Capture,
     *,
@@ -415,7 +400,7 @@ def analyze(
     one_window_s = 12 / 60  # both 10/50 and 12/60 windows last 0.2 s
 
     # Power bookkeeping: voltage/current pairs by phase, line-to-line and neutral combos.
-    pairs, pair_phases = _phase_pairs(chans)
+    pairs, _ = _phase_pairs(chans)
     volt_abc = _abc(chans, "voltage")
     curr_abc = _abc(chans, "current")
     neutral = [k for k, c in enumerate(chans) if c.quantity == "current" and c.phase == "n"]
@@ -434,7 +419,8 @@ def analyze(
 
     clip = [quality.ClipDetector(c.name) for c in chans]
     nonfinite = np.zeros(len(chans), dtype=np.int64)
-    parts = []  # per processed block: dict of per-window arrays
+    store = _WindowStore()  # per-window arrays; the large ones spill to a temporary file
+    acc = None  # capture-level sums over valid windows, added block by block
     bounds_all = [np.array([0.0])]
     start = 0.0  # fractional global position of the next window's start
     buf, buf_start, total = None, 0, 0
@@ -495,8 +481,13 @@ def analyze(
         if b.size > 1:
             wb = analyse_windows(work, b, max_line=state["max_line"], offset=off, pairs=pairs,
                                  combos=combos)
-            parts.append(_reduce_block(wb, cycles, max_order, state["resolved"], state["ref"],
-                                       state["tracked"]))
+            part = _reduce_block(wb, cycles, max_order, state["resolved"], state["ref"],
+                                 state["tracked"])
+            if acc is None:
+                acc = _Accumulator(chans, max_order, state["resolved"], il_a, pairs,
+                                   volt_abc, curr_abc, neutral)
+            acc.add(part)
+            store.append(part)
             bounds_all.append(b[1:])
             f_new = cycles * fs / np.diff(b)
             if state["tracked"] and np.all(np.isfinite(f_new)):
@@ -523,16 +514,14 @@ def analyze(
     resolved, tracked = state["resolved"], state["tracked"]
     weak_any = state["weak"] or not tracked
     n = total
-    if not parts:
+    if acc is None:
         raise AnalysisError(
             "no complete window fits in the capture; capture a longer record",
             path=path, field="duration",
         )
     bnd = np.concatenate(bounds_all)
-    cat = {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
-    comp, valid = cat["component"], cat["valid"]
-    grp = {k: cat[k] for k in ("group", "subgroup", "interharmonic_group")}
-    rms_w, dc_w, peak_w = cat["rms"], cat["dc"], cat["peak"]
+    cat = store.finish()
+    valid = cat["valid"]
     prods, crms = cat["products"], cat["combo_rms"]
     orders = np.arange(max_order + 1)
     durations = np.diff(bnd) / fs
@@ -546,13 +535,13 @@ def analyze(
         duration_s=durations,
         freq_hz=freq_w,
         valid=valid,
-        component=comp,
-        group=grp["group"],
-        subgroup=grp["subgroup"],
-        interharmonic_group=grp["interharmonic_group"],
-        rms=rms_w,
-        dc=dc_w,
-        peak=peak_w,
+        component=cat["component"],
+        group=cat["group"],
+        subgroup=cat["subgroup"],
+        interharmonic_group=cat["interharmonic_group"],
+        rms=cat["rms"],
+        dc=cat["dc"],
+        peak=cat["peak"],
         p_w=p_w,
         p_total_w=None if p_w is None else p_w.sum(axis=1),
         v_ll_rms=crms[:, :3] if volt_abc else None,
@@ -570,55 +559,14 @@ def analyze(
             "every window contains missing or non-finite samples; no result is possible. "
             "Repair or re-export the capture.", path=path, field="samples")
 
-    # Capture-level aggregates: rms of the window values.
-    chan_results = []
-    comp_mag = np.abs(comp)
-    for k, c in enumerate(chans):
-        h_rms = _rms_over(comp_mag[:, k], valid)
-        g_rms = _rms_over(grp["group"][:, k], valid)
-        sg_rms = _rms_over(grp["subgroup"][:, k], valid)
-        ih_rms = _rms_over(grp["interharmonic_group"][:, k], valid)
-        ph = np.degrees(np.angle(np.nansum(comp[valid, k], axis=0)))
-        if resolved < max_order:
-            ph[resolved + 1:] = np.nan
-        thd_w = metrics.thd(comp_mag[:, k], max_order=resolved)
-        thdg_w = metrics.thd(grp["group"][:, k], max_order=resolved)
-        thds_w = metrics.thd(grp["subgroup"][:, k], max_order=resolved)
-        tdd = None
-        if il_a is not None and c.quantity == "current":
-            tdd = float(_rms_over(metrics.tdd(comp_mag[:, k], il_a, max_order=resolved), valid))
-        thc_w = metrics.thc(grp["group"][:, k], max_order=min(40, resolved))
-        pwhc_w = metrics.pwhc(grp["group"][:, k], hi=min(40, resolved))
-        pwhd_w = metrics.pwhd(grp["group"][:, k], hi=min(40, resolved))
-        cf = metrics.crest_factor(peak_w[:, k], rms_w[:, k])
-        chan_results.append(ChannelResult(
-            name=c.name, quantity=c.quantity, phase=c.phase, unit=c.unit or
-            ("A" if c.quantity == "current" else "V"),
-            rms=float(_rms_over(rms_w[:, k], valid)),
-            dc=float(np.nanmean(dc_w[valid, k])),
-            fundamental_rms=float(h_rms[1]),
-            thd_percent=float(_rms_over(thd_w, valid)),
-            thd_group_percent=float(_rms_over(thdg_w, valid)),
-            thd_subgroup_percent=float(_rms_over(thds_w, valid)),
-            tdd_percent=tdd,
-            thc=float(_rms_over(thc_w, valid)),
-            pwhc=float(_rms_over(pwhc_w, valid)),
-            pwhd_percent=float(_rms_over(pwhd_w, valid)),
-            crest_factor=_quiet_nan(np.nanmax, cf[valid]) if n_valid else float("nan"),
-            orders=orders,
-            harmonic_rms=h_rms,
-            group_rms=g_rms,
-            subgroup_rms=sg_rms,
-            interharmonic_group_rms=ih_rms,
-            phase_deg=ph,
-        ))
+    # Capture-level aggregates: rms of the window values (summed block by block).
+    chan_results = acc.channel_results(orders)
 
     # Wiring and power.
     wiring_source = ""
     if len(curr_abc) == 3 or len(volt_abc) == 3:
         if wiring is None:
-            wiring, wiring_source = _infer_wiring(windows, chans, curr_abc, neutral, valid), \
-                "inferred"
+            wiring, wiring_source = acc.infer_wiring(), "inferred"
         else:
             wiring_source = "user"
     else:
@@ -627,8 +575,7 @@ def analyze(
                 "wiring-ignored", "info",
                 f"--wiring {wiring} ignored: the capture is not three-phase."))
         wiring = None
-    power = _power(windows, chans, pairs, pair_phases, volt_abc, curr_abc, neutral, wiring,
-                   valid)
+    power = acc.power(wiring)
 
     # Findings from the results.
     findings += quality.sample_rate_findings(fs, nominal_hz, max_order, resolved, cycles)
@@ -803,51 +750,215 @@ def _phase_pairs(chans):
     return pairs, phases
 
 
-def _infer_wiring(windows, chans, curr_abc, neutral, valid):
-    if neutral:
-        return "4-wire"
-    if len(curr_abc) != 3 or windows.i_n_rms is None:
-        return "3-wire"
-    i_sum = _rms_over(windows.i_n_rms, valid)
-    i_phase = np.mean([_rms_over(windows.rms[:, k], valid) for k in curr_abc])
-    return "4-wire" if i_phase > 0 and i_sum > 0.05 * i_phase else "3-wire"
+class _WindowStore:
+    """Per-window arrays collected block by block. The large ones (orders x channels per
+    window) go to a temporary file once they pass :attr:`SPILL_BYTES` and come back as a
+    read-only memory map, so memory does not grow with the length of the capture."""
+
+    SPILL_BYTES = 16 << 20
+    LARGE = ("component", "group", "subgroup", "interharmonic_group")
+
+    def __init__(self):
+        self.parts: dict = {}
+        self.files: dict = {}
+
+    def append(self, part: dict) -> None:
+        for key, arr in part.items():
+            arr = np.ascontiguousarray(arr)
+            if key in self.files:
+                fh, dtype, tail, n = self.files[key]
+                arr.tofile(fh)
+                self.files[key] = (fh, dtype, tail, n + arr.shape[0])
+                continue
+            self.parts.setdefault(key, []).append(arr)
+            if key in self.LARGE and sum(a.nbytes for a in self.parts[key]) > self.SPILL_BYTES:
+                self._spill(key)
+
+    def _spill(self, key) -> None:
+        import tempfile
+
+        arrs = self.parts.pop(key)
+        fh = tempfile.TemporaryFile(prefix="pqcheck-windows-")
+        for a in arrs:
+            a.tofile(fh)
+        self.files[key] = (fh, arrs[0].dtype, arrs[0].shape[1:], sum(a.shape[0] for a in arrs))
+
+    def finish(self) -> dict:
+        out = {key: np.concatenate(arrs) for key, arrs in self.parts.items()}
+        for key, (fh, dtype, tail, n) in self.files.items():
+            fh.flush()
+            out[key] = np.memmap(fh, dtype=dtype, mode="r", shape=(n,) + tuple(tail))
+            fh.close()  # the map keeps the data; the file has no name and goes with it
+        return out
 
 
-def _power(windows, chans, pairs, pair_phases, volt_abc, curr_abc, neutral, wiring, valid):
-    if not pairs:
-        return None
-    comp = windows.component
-    phases = []
-    per = []
-    for (kv, ki), ph in zip(pairs, pair_phases):
-        q = metrics.single_phase_power(
-            windows.rms[:, kv], windows.rms[:, ki], windows.p_w[:, len(per)],
-            comp[:, kv, 1], comp[:, ki, 1])
-        per.append(q)
-        m = {key: _quiet_nan(np.nanmean, val[valid]) for key, val in q.items()}
-        phases.append(PhasePower(
-            phase=ph, voltage=chans[kv].name, current=chans[ki].name, p_w=m["p_w"],
-            s_va=m["s_va"], p1_w=m["p1_w"], q1_var=m["q1_var"], s1_va=m["s1_va"],
-            pf=m["p_w"] / m["s_va"] if m["s_va"] > 0 else float("nan"),
-            dpf=m["p1_w"] / m["s1_va"] if m["s1_va"] > 0 else float("nan")))
-    p_total = float(sum(p.p_w for p in phases))
-    if wiring is not None and len(volt_abc) == 3 and len(curr_abc) == 3 and len(pairs) == 3:
-        i_n = None
-        if wiring == "4-wire":
-            i_n = windows.rms[:, neutral[0]] if neutral else windows.i_n_rms
-        t = metrics.three_phase_power(
-            p_w=windows.p_w, i_rms=windows.rms[:, curr_abc], v_rms=windows.rms[:, volt_abc],
-            v_ll_rms=windows.v_ll_rms, i1=comp[:, curr_abc, 1], v1=comp[:, volt_abc, 1],
-            wiring=wiring, i_n_rms=i_n)
-        m = {key: float(np.nanmean(val[valid])) for key, val in t.items()}
-        extra = {k: m[k] for k in ("se1_va", "p1pos_w", "q1pos_var", "s1pos_va", "su1_va",
-                                   "ie_a", "ve_v", "i_unbalance_percent", "v_unbalance_percent")}
-        extra["dpf_pos"] = m["p1pos_w"] / m["s1pos_va"] if m["s1pos_va"] > 0 else float("nan")
-        extra["arithmetic_s_va"] = float(sum(p.s_va for p in phases))
-        se = m["se_va"]
-        return PowerResult(tuple(phases), p_total, se, p_total / se if se > 0 else float("nan"),
-                           wiring, extra)
-    s_sum = float(sum(p.s_va for p in phases))
-    return PowerResult(tuple(phases), p_total, s_sum if len(phases) == 1 else None,
-                       p_total / s_sum if s_sum > 0 else float("nan"), None,
-                       {"arithmetic_s_va": s_sum})
+class _Accumulator:
+    """Capture-level sums over valid windows (rms of window values, means of powers),
+    added block by block so that no capture-length array is needed."""
+
+    _METRICS = ("thd", "thdg", "thds", "tdd", "thc", "pwhc", "pwhd")
+    _THREE = ("p_w", "se_va", "ie_a", "ve_v", "se1_va", "p1pos_w", "q1pos_var", "s1pos_va",
+              "su1_va", "i_unbalance_percent", "v_unbalance_percent")
+
+    def __init__(self, chans, max_order, resolved, il_a, pairs, volt_abc, curr_abc, neutral):
+        c, h = len(chans), max_order + 1
+        self.chans, self.resolved, self.il_a = chans, resolved, il_a
+        self.pairs, self.volt_abc, self.curr_abc, self.neutral = pairs, volt_abc, curr_abc, \
+            neutral
+        self.n = 0
+        self.sq = {k: np.zeros((c, h)) for k in ("component", "group", "subgroup",
+                                                 "interharmonic_group")}
+        self.phasor = np.zeros((c, h), dtype=np.complex128)
+        self.rms2 = np.zeros(c)
+        self.dc_sum = np.zeros(c)
+        self.dc_n = np.zeros(c)
+        self.cf = np.full(c, np.nan)
+        self.metric2 = {k: np.zeros(c) for k in self._METRICS}
+        self.p1 = [{} for _ in pairs]  # key -> [sum, count]
+        self.p3 = {"3-wire": {}, "4-wire": {}}
+        self.in2 = 0.0
+
+    @staticmethod
+    def _add(d, key, values):
+        values = np.asarray(values, dtype=np.float64)
+        ok = np.isfinite(values)
+        s, n = d.get(key, (0.0, 0))
+        d[key] = (s + float(values[ok].sum()), n + int(ok.sum()))
+
+    def add(self, part: dict) -> None:
+        v = part["valid"]
+        if not v.any():
+            return
+        self.n += int(v.sum())
+        comp = part["component"][v]
+        mag = np.abs(comp)
+        self.sq["component"] += np.sum(mag**2, axis=0)
+        for key in ("group", "subgroup", "interharmonic_group"):
+            self.sq[key] += np.sum(part[key][v] ** 2, axis=0)
+        self.phasor += np.nansum(comp, axis=0)
+        rms, dc, peak = part["rms"][v], part["dc"][v], part["peak"][v]
+        self.rms2 += np.sum(rms**2, axis=0)
+        self.dc_sum += np.nansum(dc, axis=0)
+        self.dc_n += np.sum(np.isfinite(dc), axis=0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            cf = metrics.crest_factor(peak, rms)
+        cf = np.where(np.isfinite(cf), cf, -np.inf).max(axis=0)
+        self.cf = np.where(np.isfinite(cf), np.fmax(self.cf, cf), self.cf)
+        grp = part["group"][v]
+        r, h40 = self.resolved, min(40, self.resolved)
+        m = {
+            "thd": metrics.thd(mag, max_order=r),
+            "thdg": metrics.thd(grp, max_order=r),
+            "thds": metrics.thd(part["subgroup"][v], max_order=r),
+            "tdd": metrics.tdd(mag, self.il_a, max_order=r) if self.il_a else np.zeros(
+                mag.shape[:2]),
+            "thc": metrics.thc(grp, max_order=h40),
+            "pwhc": metrics.pwhc(grp, hi=h40),
+            "pwhd": metrics.pwhd(grp, hi=h40),
+        }
+        for key, val in m.items():
+            self.metric2[key] += np.sum(np.asarray(val) ** 2, axis=0)
+        if not self.pairs:
+            return
+        prods, crms = part["products"][v], part["combo_rms"][v]
+        for j, (kv, ki) in enumerate(self.pairs):
+            q = metrics.single_phase_power(rms[:, kv], rms[:, ki], prods[:, j], comp[:, kv, 1],
+                                           comp[:, ki, 1])
+            for key, val in q.items():
+                self._add(self.p1[j], key, val)
+        va, ia = self.volt_abc, self.curr_abc
+        if len(va) == 3 and len(ia) == 3 and len(self.pairs) == 3:
+            v_ll = crms[:, :3]
+            i_n = crms[:, 3]
+            self.in2 += float(np.sum(i_n**2))
+            for wiring in ("3-wire", "4-wire"):
+                n_rms = rms[:, self.neutral[0]] if self.neutral else i_n
+                t = metrics.three_phase_power(
+                    p_w=prods[:, :3], i_rms=rms[:, ia], v_rms=rms[:, va], v_ll_rms=v_ll,
+                    i1=comp[:, ia, 1], v1=comp[:, va, 1], wiring=wiring,
+                    i_n_rms=n_rms if wiring == "4-wire" else None)
+                for key in self._THREE:
+                    self._add(self.p3[wiring], key, t[key])
+        elif len(ia) == 3:
+            self.in2 += float(np.sum(crms[:, -1] ** 2))
+
+    def _rms(self, total):
+        return np.sqrt(total / self.n)
+
+    def channel_results(self, orders) -> list:
+        out = []
+        r = self.resolved
+        for k, c in enumerate(self.chans):
+            h_rms = self._rms(self.sq["component"][k])
+            ph = np.degrees(np.angle(self.phasor[k]))
+            if r < len(orders) - 1:
+                ph[r + 1:] = np.nan
+            tdd = None
+            if self.il_a is not None and c.quantity == "current":
+                tdd = float(self._rms(self.metric2["tdd"][k]))
+            out.append(ChannelResult(
+                name=c.name, quantity=c.quantity, phase=c.phase,
+                unit=c.unit or ("A" if c.quantity == "current" else "V"),
+                rms=float(self._rms(self.rms2[k])),
+                dc=float(self.dc_sum[k] / self.dc_n[k]) if self.dc_n[k] else float("nan"),
+                fundamental_rms=float(h_rms[1]),
+                thd_percent=float(self._rms(self.metric2["thd"][k])),
+                thd_group_percent=float(self._rms(self.metric2["thdg"][k])),
+                thd_subgroup_percent=float(self._rms(self.metric2["thds"][k])),
+                tdd_percent=tdd,
+                thc=float(self._rms(self.metric2["thc"][k])),
+                pwhc=float(self._rms(self.metric2["pwhc"][k])),
+                pwhd_percent=float(self._rms(self.metric2["pwhd"][k])),
+                crest_factor=float(self.cf[k]),
+                orders=orders,
+                harmonic_rms=h_rms,
+                group_rms=self._rms(self.sq["group"][k]),
+                subgroup_rms=self._rms(self.sq["subgroup"][k]),
+                interharmonic_group_rms=self._rms(self.sq["interharmonic_group"][k]),
+                phase_deg=ph,
+            ))
+        return out
+
+    def infer_wiring(self) -> str:
+        """4-wire when a neutral was measured or the phase currents do not sum to zero."""
+        if self.neutral:
+            return "4-wire"
+        if len(self.curr_abc) != 3:
+            return "3-wire"
+        i_sum = np.sqrt(self.in2 / self.n)
+        i_phase = np.mean([np.sqrt(self.rms2[k] / self.n) for k in self.curr_abc])
+        return "4-wire" if i_phase > 0 and i_sum > 0.05 * i_phase else "3-wire"
+
+    @staticmethod
+    def _mean(d, key):
+        s, n = d.get(key, (0.0, 0))
+        return s / n if n else float("nan")
+
+    def power(self, wiring):
+        if not self.pairs:
+            return None
+        phases = []
+        for (kv, ki), d in zip(self.pairs, self.p1):
+            m = {key: self._mean(d, key) for key in ("p_w", "s_va", "p1_w", "q1_var", "s1_va")}
+            phases.append(PhasePower(
+                phase=self.chans[ki].phase, voltage=self.chans[kv].name,
+                current=self.chans[ki].name, p_w=m["p_w"], s_va=m["s_va"], p1_w=m["p1_w"],
+                q1_var=m["q1_var"], s1_va=m["s1_va"],
+                pf=m["p_w"] / m["s_va"] if m["s_va"] > 0 else float("nan"),
+                dpf=m["p1_w"] / m["s1_va"] if m["s1_va"] > 0 else float("nan")))
+        p_total = float(sum(p.p_w for p in phases))
+        if wiring is not None and self.p3[wiring]:
+            m = {key: self._mean(self.p3[wiring], key) for key in self._THREE}
+            extra = {k: m[k] for k in ("se1_va", "p1pos_w", "q1pos_var", "s1pos_va", "su1_va",
+                                       "ie_a", "ve_v", "i_unbalance_percent",
+                                       "v_unbalance_percent")}
+            extra["dpf_pos"] = m["p1pos_w"] / m["s1pos_va"] if m["s1pos_va"] > 0 else \
+                float("nan")
+            extra["arithmetic_s_va"] = float(sum(p.s_va for p in phases))
+            se = m["se_va"]
+            return PowerResult(tuple(phases), p_total, se,
+                               p_total / se if se > 0 else float("nan"), wiring, extra)
+        s_sum = float(sum(p.s_va for p in phases))
+        return PowerResult(tuple(phases), p_total, s_sum if len(phases) == 1 else None,
+                           p_total / s_sum if s_sum > 0 else float("nan"), None,
+                           {"arithmetic_s_va": s_sum})

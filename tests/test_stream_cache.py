@@ -186,3 +186,19 @@ def test_high_sample_rate_small_blocks():
     assert res.windows.n_windows == 4
     # THD of a 10 % seventh harmonic is 10 % (definition, IEEE 519 clause 3)
     assert res.channels[0].thd_percent == pytest.approx(10.0, rel=1e-4)
+
+
+def test_window_arrays_spilled_to_disk_give_the_same_result(monkeypatch):
+    # the in-memory result is the reference; with a tiny spill threshold the per-window
+    # arrays go through a temporary file and come back as a read-only memory map
+    from pqcheck import analysis
+
+    t, ia, va = _signal(seconds=4.0)
+    cap = Capture.from_arrays(FS, currents={"ia": ia}, voltages={"va": va})
+    ref = analyze(cap, nominal_hz=50, block_samples=5000)
+    monkeypatch.setattr(analysis._WindowStore, "SPILL_BYTES", 1000)
+    res = analyze(cap, nominal_hz=50, block_samples=5000)
+    assert isinstance(res.windows.group, np.memmap)
+    np.testing.assert_array_equal(res.windows.group, ref.windows.group)
+    np.testing.assert_array_equal(res.windows.component, ref.windows.component)
+    assert res.channels[0].thd_percent == ref.channels[0].thd_percent
