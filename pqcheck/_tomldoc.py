@@ -8,13 +8,42 @@ every problem, with what was expected. Plans and site files share it.
 from __future__ import annotations
 
 import math
+import re
 from pathlib import Path
 
-from ._toml import KeyLines
+from ._toml import KeyLines, syntax_error_line, tomllib
 from .errors import PlanError
 
-__all__ = ["DocReader", "NUM", "POS", "STR", "BOOL", "STRS", "INT", "LABEL", "field_name",
-           "kind_of"]
+__all__ = ["DocReader", "read_document", "NUM", "POS", "STR", "BOOL", "STRS", "INT", "LABEL",
+           "field_name", "kind_of"]
+
+
+def read_document(path: Path, what: str) -> tuple:
+    """Read and parse a user's TOML document; returns ``(raw bytes, text, parsed dict)``.
+
+    A UTF-8 byte-order mark (as Windows editors write) is accepted. Errors are
+    :class:`PlanError` naming the file (and the line, for bad UTF-8 or TOML syntax).
+    """
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise PlanError(f"{what} not found", path=path) from None
+    except IsADirectoryError:
+        raise PlanError(f"is a folder, not a {what}", path=path) from None
+    except OSError as exc:
+        raise PlanError(f"cannot read the {what}: {exc.strerror or exc}", path=path) from None
+    try:
+        text = raw.decode("utf-8").removeprefix("\ufeff")
+    except UnicodeDecodeError as exc:
+        raise PlanError(f"not UTF-8 text (byte {exc.start})", path=path,
+                        line=raw[:exc.start].count(b"\n") + 1) from None
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        raise PlanError(f"not valid TOML: {re.sub(r' [(]at .*[)]$', '', msg)}", path=path,
+                        line=syntax_error_line(msg, text)) from None
+    return raw, text, doc
 
 NUM = "number"
 POS = "positive number"

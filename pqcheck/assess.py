@@ -39,7 +39,7 @@ import numpy as np
 from . import aggregate, metrics
 from ._limit_model import parse_orders
 from .errors import InputError
-from .limits import HARMONIC, LimitItem, ResolvedLimits
+from .limits import HARMONIC, LimitItem, ResolvedLimits, quantity_label
 
 __all__ = ["Check", "Assessment", "assess", "VERDICTS", "overall_verdict"]
 
@@ -112,11 +112,7 @@ class Check:
     @property
     def label(self) -> str:
         """``"I11"``, ``"V5"``, ``"TDD"``..."""
-        if self.quantity == HARMONIC:
-            return f"{'I' if self.applies_to == 'current' else 'V'}{self.order}"
-        if self.quantity == "THD":
-            return f"THD({'I' if self.applies_to == 'current' else 'V'})"
-        return self.quantity
+        return quantity_label(self.quantity, self.applies_to, self.order)
 
     def to_dict(self) -> dict:
         """Plain-JSON form (``order`` only where it applies)."""

@@ -912,14 +912,9 @@ def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, for
 
 def _label(quantity, applies_to, order) -> str:
     """``I5``, ``V7``, ``THD(I)``, ``TDD``... as `check` names a limit."""
-    if quantity is None:
-        return "-"
-    iv = "I" if applies_to == "current" else "V"
-    if quantity == "harmonic":
-        return f"{iv}{int(order)}"
-    if quantity == "THD":
-        return f"THD({iv})"
-    return quantity
+    from .limits import quantity_label
+
+    return quantity_label(quantity, applies_to, order)
 
 
 def summarize(table: pa.Table, *, worst: int = 10) -> dict:

@@ -95,6 +95,18 @@ _PACKAGE = "pqcheck.limit_tables"
 # --- results -------------------------------------------------------------------------------
 
 
+def quantity_label(quantity, applies_to, order) -> str:
+    """How pqcheck names a limited quantity: ``"I11"``, ``"V5"``, ``"TDD"``, ``"THD(V)"``."""
+    if quantity is None:
+        return "-"
+    iv = "I" if applies_to == "current" else "V"
+    if quantity == HARMONIC:
+        return f"{iv}{int(order)}"
+    if quantity == "THD":
+        return f"THD({iv})"
+    return quantity
+
+
 @dataclass(frozen=True)
 class LimitItem:
     """One applicable limit after resolution.
@@ -146,11 +158,7 @@ class LimitItem:
     @property
     def label(self) -> str:
         """Short name: ``"I11"``, ``"V5"``, ``"TDD"``, ``"THD(V)"``."""
-        if self.quantity == HARMONIC:
-            return f"{'I' if self.applies_to == 'current' else 'V'}{self.order}"
-        if self.quantity == "THD":
-            return f"THD({'I' if self.applies_to == 'current' else 'V'})"
-        return self.quantity
+        return quantity_label(self.quantity, self.applies_to, self.order)
 
 
 @dataclass(frozen=True)

@@ -21,9 +21,7 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ._toml import syntax_error_line, tomllib
-from ._tomldoc import BOOL, NUM, POS, STR, STRS, DocReader
-from .errors import PlanError
+from ._tomldoc import BOOL, NUM, POS, STR, STRS, DocReader, read_document
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -472,22 +470,7 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
     ('run', '50 %', True)
     """
     path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise PlanError("plan file not found", path=path) from None
-    except OSError as exc:
-        raise PlanError(f"cannot read the plan: {exc.strerror or exc}", path=path) from None
-    try:
-        text = raw.decode("utf-8").removeprefix("\ufeff")  # byte-order mark (Windows editors)
-    except UnicodeDecodeError as exc:
-        raise PlanError(f"not UTF-8 text (byte {exc.start})", path=path) from None
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        msg = str(exc)
-        raise PlanError(f"not valid TOML: {re.sub(r' [(]at .*[)]$', '', msg)}", path=path,
-                        line=syntax_error_line(msg, text)) from None
+    raw, text, doc = read_document(path, "plan file")
     r = _Reader(path, text)
     folder = path.resolve().parent
     top = r.table(doc, (), _TOP)

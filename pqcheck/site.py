@@ -51,8 +51,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ._toml import syntax_error_line, tomllib
-from ._tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader
+from ._tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from .errors import InputError, PlanError
 from .findings import Finding
 from .metrics import sequence_components
@@ -1101,23 +1100,6 @@ class _Reader(DocReader):
         super().__init__(path, text, "site file")
 
 
-def _read_text(path: Path):
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise PlanError("site file not found", path=path) from None
-    except IsADirectoryError:
-        raise PlanError("is a folder, not a site file", path=path) from None
-    except OSError as exc:
-        raise PlanError(f"cannot read the site file: {exc.strerror or exc}", path=path) from None
-    try:
-        text = raw.decode("utf-8").removeprefix("\ufeff")  # byte-order mark (Windows editors)
-    except UnicodeDecodeError as exc:
-        raise PlanError(f"not UTF-8 text (byte {exc.start})", path=path,
-                        line=raw[:exc.start].count(b"\n") + 1) from None
-    return raw, text
-
-
 def load_site(path, *, analyse=None) -> Site:
     """Read and validate a site description and the unit data it names.
 
@@ -1156,13 +1138,7 @@ def load_site(path, *, analyse=None) -> Site:
     pqcheck.errors.PlanError: ...site.toml:1: supply: missing field 'ssc_va' or 'isc_a': ...
     """
     path = Path(path)
-    raw, text = _read_text(path)
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        msg = str(exc)
-        raise PlanError(f"not valid TOML: {re.sub(r' [(]at .*[)]$', '', msg)}", path=path,
-                        line=syntax_error_line(msg, text)) from None
+    raw, text, doc = read_document(path, "site file")
     r = _Reader(path, text)
     folder = path.resolve().parent
     top = r.table(doc, (), _TOP)
@@ -2056,3 +2032,13 @@ load_point = "32 A"
 def site_template() -> str:
     """Return the commented site template that ``pqcheck site new`` writes."""
     return _TEMPLATE
+
+
+def shown_path(source: str, site_path) -> str:
+    """A unit's data file relative to the site file's folder when it lies inside it."""
+    if site_path is None:
+        return source
+    try:
+        return str(Path(source).resolve().relative_to(Path(site_path).resolve().parent))
+    except ValueError:
+        return source

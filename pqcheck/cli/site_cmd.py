@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-from pathlib import Path
 
 import click
 
@@ -26,19 +25,9 @@ def _f(x, digits: int = 4, unit: str = "") -> str:
     return f"{s} {unit}".rstrip()
 
 
-def _shown_path(source: str, site_path) -> str:
-    """A unit's data file relative to the site file's folder when it lies inside it."""
-    if site_path is None:
-        return source
-    try:
-        return str(Path(source).resolve().relative_to(Path(site_path).resolve().parent))
-    except ValueError:
-        return source
-
-
 def render_site_table(study) -> str:
     """Human-readable summary of a :class:`pqcheck.site.SiteStudy` (no number recomputed)."""
-    from ..site import CAUTIONS, MAX_HEADROOM
+    from ..site import CAUTIONS, MAX_HEADROOM, shown_path
 
     s = study.site
     t = s.transformer
@@ -71,7 +60,7 @@ def render_site_table(study) -> str:
         i1 = max(abs(x) for x in u.spectrum.current[:, 1])
         out.append(f"{u.name[:23]:<24}{u.count:>6}  {u.load_point[:13]:<14}"
                    f"{_f(u.phase_shift_deg, 3):>7}{_f(i1, 4, 'A'):>11}  "
-                   f"{_shown_path(u.spectrum.source, s.path)}")
+                   f"{shown_path(u.spectrum.source, s.path)}")
     other = s.other_load
     if other.demand_w or other.demand_current_a:
         out.append(f"{'other load (linear)':<24}{'':>6}  "

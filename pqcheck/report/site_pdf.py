@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import io
 import math
-from pathlib import Path
 
 from reportlab.lib.pagesizes import A4
 from reportlab.lib.units import mm
@@ -40,16 +39,6 @@ _SUMMATION_TEXT = {
     "arithmetic": "arithmetic sum of magnitudes (worst case)",
     "phasor": "phasor sum with the measured phase angles",
 }
-
-
-def _shown_path(source: str, site_path) -> str:
-    """A unit's data file relative to the site file's folder when it lies inside it."""
-    if site_path is None:
-        return source
-    try:
-        return str(Path(source).resolve().relative_to(Path(site_path).resolve().parent))
-    except ValueError:
-        return source
 
 
 def _table(rows, widths, st, *, head_rows: int = 1) -> Table:
@@ -109,7 +98,7 @@ def site_figure_png(study, *, dpi: int = 170) -> bytes:
 def site_story(study) -> list:
     """The site study as reportlab flowables (heading, inputs, results, checks, headroom,
     findings, cautions)."""
-    from ..site import CAUTIONS, MAX_HEADROOM
+    from ..site import CAUTIONS, MAX_HEADROOM, shown_path
 
     st = styles()
     s = study.site
@@ -159,7 +148,7 @@ def site_story(study) -> list:
     for u in s.units:
         i1 = max(abs(x) for x in u.spectrum.current[:, 1])
         rows.append([esc(u.name), str(u.count), esc(u.load_point), fmt(u.phase_shift_deg, 3),
-                     fmt(i1, 4), esc(_shown_path(u.spectrum.source, s.path))])
+                     fmt(i1, 4), esc(shown_path(u.spectrum.source, s.path))])
     o = s.other_load
     if o.demand_w or o.demand_current_a:
         rows.append(["Other load (linear)", "", "", "",
