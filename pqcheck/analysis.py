@@ -676,7 +676,8 @@ def _initial_state(buf, fs, chans, reference, nominal_hz, max_order, path, findi
 
 def _reduce_block(wb, cycles, max_order, resolved, ref, tracked):
     """Per-window arrays of one block: groupings, phase reference, validity masking."""
-    grp = harmonic_groupings(wb.lines, cycles, max_order, gain=wb.gain)
+    grp = harmonic_groupings(wb.lines, cycles, max_order, gain=wb.gain,
+                             n_samples=wb.n_samples, mismatch=wb.mismatch)
     if resolved < max_order:
         for key in grp:
             grp[key][..., resolved + 1:] = np.nan

@@ -67,8 +67,12 @@ def test_streamed_equals_in_memory(capture_csv):
     assert a["channels"][0]["thd_percent"] == pytest.approx(b["channels"][0]["thd_percent"],
                                                             rel=1e-6)
     np.testing.assert_allclose(r_mem.windows.rms, r_str.windows.rms, rtol=1e-6)
-    np.testing.assert_allclose(np.abs(r_mem.windows.component),
-                               np.abs(r_str.windows.component), rtol=1e-6, atol=1e-9)
+    # windows at block edges are placed by a line fit over fewer cycles (edges move by far
+    # less than a sample), so harmonics agree to 1e-5 of reading plus 1e-6 of the channel's
+    # fundamental (the leakage residue in orders with no content)
+    a, b = np.abs(r_mem.windows.component), np.abs(r_str.windows.component)
+    fund = np.nanmax(a[:, :, 1], axis=0)[None, :, None]
+    assert np.all(np.abs(a - b) <= 1e-5 * a + 1e-6 * fund)
 
 
 def test_block_size_does_not_change_results():

@@ -167,7 +167,67 @@ def analyse_windows(
     return WindowBlock(lines, gains, rms, peak, mean, prods, crms, n, mismatch, valid)
 
 
-def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None) -> dict:
+def _response(u, n):
+    """Response of an ``n``-sample DFT line to a unit complex exponential ``u`` bins away
+    (the Dirichlet kernel normalised to 1 at ``u = 0``; the same expression as the gain in
+    :func:`analyse_windows`)."""
+    return np.exp(1j * np.pi * u * (n - 1) / n) * (np.sinc(u) / np.sinc(u / n))
+
+
+def remove_fundamental_leakage(component, line_index, n_samples, mismatch):
+    """Take the fundamental's leakage out of every harmonic component of each window.
+
+    In a whole-sample window of ``N`` samples whose exact span is ``N + delta``, the
+    fundamental sits at ``nu = k_1 N / (N + delta)`` bins, a fraction of a bin off its line,
+    and leaks into every other line ``k`` as ``c_1 G(nu - k) + conj(c_1) G(-nu - k)`` (``G``
+    the normalised Dirichlet kernel, ``c_1`` its rms phasor). Being by far the largest
+    component, it dominates the leakage into small harmonics (at 10 kS/s a 0.5 % second
+    harmonic read up to 1.5 % off in a 1 s capture); its own estimate is accurate to about
+    ``delta / (20 N)``, so subtracting its leakage is safe whatever else the signal holds.
+
+    Parameters
+    ----------
+    component : numpy.ndarray
+        complex, shape ``(W, C, H + 1)``: components already divided by their own gain. [A]/[V]
+    line_index : array_like of int
+        Line of each order, shape ``(H + 1,)``.
+    n_samples, mismatch : array_like, shape ``(W,)``
+        Samples in each window and exact length minus that. [samples]
+
+    Returns
+    -------
+    numpy.ndarray
+        Corrected components (same shape). [A] or [V]
+    """
+    comp = np.array(component, dtype=np.complex128, copy=True)
+    if comp.shape[-1] < 2:
+        return comp
+    n = np.asarray(n_samples, dtype=np.float64)[:, None]
+    d = np.asarray(mismatch, dtype=np.float64)[:, None]
+    k = np.asarray(line_index, dtype=np.float64)[None, :]
+    nu = k * n / (n + d)  # where each order really sits, in bins (W, H+1)
+    own = _response(nu - k, n)  # (W, H+1): already divided out
+    nu1 = nu[:, 1:2]
+    c1 = comp[:, :, 1]
+    # the fundamental first: remove its own negative-frequency image
+    img = _response(-nu1 - k[:, 1:2], n)[:, 0] / own[:, 1]  # (W,)
+    c1 = c1 - np.conj(c1) * img[:, None]
+    comp[:, :, 1] = c1
+    direct = _response(nu1 - k, n) / own  # (W, H+1)
+    image = _response(-nu1 - k, n) / own
+    direct[:, 1] = 0.0
+    image[:, 1] = 0.0
+    leak = c1[:, :, None] * direct[:, None, :] + np.conj(c1)[:, :, None] * image[:, None, :]
+    # the DC line holds X_0 / N (no sqrt 2): a cosine leaks (c G + conj(c) G*) / sqrt 2 there
+    leak[:, :, 0] = (c1 * _response(nu1[:, 0] - 0.0, n[:, 0])[:, None]
+                     + np.conj(c1) * _response(-nu1[:, 0], n[:, 0])[:, None]) / np.sqrt(2)
+    out = comp - leak
+    out[:, :, 0] = out[:, :, 0].real  # DC stays real
+    return out
+
+
+def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None,
+                       n_samples=None, mismatch=None) -> dict:
     """IEC 61000-4-7 harmonic and interharmonic groupings of spectral lines.
 
     Parameters
@@ -182,6 +242,10 @@ def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None)
     gain : numpy.ndarray or None
         Per-window line response from :func:`analyse_windows`, shape ``(W, K + 1)`` matching
         the first and last axes of ``lines``; the harmonic components are divided by it.
+    n_samples, mismatch : numpy.ndarray or None
+        Per-window length and residual mismatch from :func:`analyse_windows`, shape ``(W,)``;
+        with ``gain``, the fundamental's leakage is removed too
+        (:func:`remove_fundamental_leakage`).
 
     Returns
     -------
@@ -232,6 +296,9 @@ def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None)
         component = component / g.reshape(g.shape[:1] + (1,) * (component.ndim - 2) + g.shape[1:])
     if lines.shape[-1] - 1 < k[-1]:
         component[..., k > lines.shape[-1] - 1] = np.nan
+    if gain is not None and n_samples is not None and mismatch is not None \
+            and component.ndim == 3:
+        component = remove_fundamental_leakage(component, k, n_samples, mismatch)
     group = np.sqrt(np.maximum(group_sq, 0.0))
     subgroup = np.sqrt(np.maximum(sub_sq, 0.0))
     dc = np.abs(lines[..., 0].real)
