@@ -480,7 +480,7 @@ def analyze(
         b = b[np.rint(b) <= off + work.shape[1]]
         if b.size > 1:
             wb = analyse_windows(work, b, max_line=state["max_line"], offset=off, pairs=pairs,
-                                 combos=combos)
+                                 combos=combos, harmonic_step=cycles)
             part = _reduce_block(wb, cycles, max_order, state["resolved"], state["ref"],
                                  state["tracked"])
             if acc is None:
@@ -677,7 +677,8 @@ def _initial_state(buf, fs, chans, reference, nominal_hz, max_order, path, findi
 def _reduce_block(wb, cycles, max_order, resolved, ref, tracked):
     """Per-window arrays of one block: groupings, phase reference, validity masking."""
     grp = harmonic_groupings(wb.lines, cycles, max_order, gain=wb.gain,
-                             n_samples=wb.n_samples, mismatch=wb.mismatch)
+                             n_samples=wb.n_samples, mismatch=wb.mismatch, extra=wb.extra,
+                             extra_lines=wb.extra_lines)
     if resolved < max_order:
         for key in grp:
             grp[key][..., resolved + 1:] = np.nan
