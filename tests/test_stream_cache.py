@@ -206,3 +206,20 @@ def test_window_arrays_spilled_to_disk_give_the_same_result(monkeypatch):
     np.testing.assert_array_equal(res.windows.group, ref.windows.group)
     np.testing.assert_array_equal(res.windows.component, ref.windows.component)
     assert res.channels[0].thd_percent == ref.channels[0].thd_percent
+
+
+def _thd_in_worker(path):
+    res = analyze(open_capture(path, stream_over_bytes=1000), nominal_hz=50, block_samples=5000)
+    return res.channels[0].thd_percent
+
+
+def test_streaming_inside_a_daemonic_worker(capture_csv):
+    # multiprocessing pool workers (and Dask's) are daemonic and may not start a parser
+    # process of their own: the reader falls back to a parse thread there. Reference: the
+    # same file analysed in this process.
+    import multiprocessing as mp
+
+    here = _thd_in_worker(str(capture_csv))
+    with mp.get_context("fork").Pool(1) as pool:
+        (there,) = pool.map(_thd_in_worker, [str(capture_csv)])
+    assert there == pytest.approx(here, rel=1e-12)

@@ -183,7 +183,7 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
         state["passes"] += 1
         rows = max(1024, min(int(block_samples), CHUNK_ROWS))
         out = {}
-        runner = _run_in_process if _FORK_OK else _run_in_thread
+        runner = _run_in_process if _can_fork() else _run_in_thread
         for block in runner(dict(spec, rows=rows), out):
             if teeing:
                 tee.write(block)
@@ -259,6 +259,16 @@ _FORK_OK = sys.platform.startswith("linux")
 """On Linux the parser runs in a forked process: pandas' C parser holds the GIL for much of
 its work, so on a thread it barely overlaps the analysis, while a process uses another core
 (measured in benchmarks/). Elsewhere it runs on a thread."""
+
+
+def _can_fork() -> bool:
+    """A parser process can be started: Linux, and this process is not a daemonic worker (as
+    multiprocessing pools and Dask workers are), which may not have children."""
+    if not _FORK_OK:
+        return False
+    import multiprocessing as mp
+
+    return not mp.current_process().daemon
 
 
 def _parse_child(conn, spec: dict) -> None:  # pragma: no cover - runs in the child process
