@@ -18,21 +18,22 @@ __all__ = ["analysis_to_dict", "harmonics_frame", "windows_frame", "clean", "dum
 SCHEMA_VERSION = 1
 
 
-def clean(obj):
-    """Recursively convert numpy types to Python and non-finite floats to None."""
+def clean(obj, *, finite_only: bool = True):
+    """Recursively convert numpy types to Python; non-finite floats become None unless
+    ``finite_only`` is False (lossless storage, where NaN marks an unmeasured value)."""
     if isinstance(obj, dict):
-        return {str(k): clean(v) for k, v in obj.items()}
+        return {str(k): clean(v, finite_only=finite_only) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [clean(v) for v in obj]
+        return [clean(v, finite_only=finite_only) for v in obj]
     if isinstance(obj, np.ndarray):
-        return clean(obj.tolist())
+        return clean(obj.tolist(), finite_only=finite_only)
     if isinstance(obj, (np.bool_,)):
         return bool(obj)
     if isinstance(obj, (np.integer,)):
         return int(obj)
     if isinstance(obj, (float, np.floating)):
         f = float(obj)
-        return f if math.isfinite(f) else None
+        return f if math.isfinite(f) or not finite_only else None
     return obj
 
 

@@ -15,18 +15,13 @@ from .analysis import (
     PowerResult,
     WindowSeries,
 )
+from .export import clean
 from .findings import Finding
 
 __all__ = ["result_to_arrays", "result_from_arrays"]
 
 _CHANNEL_ARRAYS = ("orders", "harmonic_rms", "group_rms", "subgroup_rms",
                    "interharmonic_group_rms", "phase_deg")
-
-
-def _py(v):
-    if isinstance(v, np.generic):
-        return v.item()
-    return v
 
 
 def result_to_arrays(result: AnalysisResult):
@@ -44,7 +39,7 @@ def result_to_arrays(result: AnalysisResult):
             if f.name in _CHANNEL_ARRAYS:
                 arrays[f"channels.{i}.{f.name}"] = np.asarray(v)
             else:
-                d[f.name] = _py(v)
+                d[f.name] = v
         chans.append(d)
     power = None
     if result.power is not None:
@@ -61,17 +56,7 @@ def result_to_arrays(result: AnalysisResult):
         "findings": [dict(f.to_dict(), detail=f.detail) for f in result.findings],
         "reader_settings": result.reader_settings,
     }
-    return _jsonable(meta), arrays
-
-
-def _jsonable(obj):
-    if isinstance(obj, dict):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    return _py(obj)
+    return clean(meta, finite_only=False), arrays
 
 
 def result_from_arrays(meta: dict, arrays: dict) -> AnalysisResult:

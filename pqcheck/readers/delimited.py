@@ -511,28 +511,9 @@ def read_delimited(
                                  line=d.header_line)
     findings = []
     names = list(d.names)
-    # time column
-    t_idx = None
-    if time_column is not None:
-        if time_column not in names:
-            raise CaptureFormatError(
-                f"no column named {time_column!r}; columns are: {', '.join(names)}",
-                path=path, field="--time-column")
-        t_idx = names.index(time_column)
-    else:
-        for i, (name, unit) in enumerate(zip(names, d.units)):
-            if unit == "s" or _TIME_NAMES.match(name):
-                t_idx = i
-                break
+    t_idx = find_time_column(d, time_column, path)
     declared = _declared_rate(d.metadata)
-    settings = {
-        "encoding": d.encoding,
-        "delimiter": {",": "comma", ";": "semicolon", "\t": "tab", None: "none"}[d.delimiter],
-        "decimal": d.decimal,
-        "header_line": d.header_line,
-        "data_line": d.data_line,
-        "metadata": dict(d.metadata),
-    }
+    settings = base_settings(d)
     # a truncated last line shows as NaN in trailing columns of the final row
     last = table[-1]
     if table.shape[0] > 1 and np.isnan(last).any() and not np.isnan(last).all() and np.isfinite(
@@ -544,9 +525,7 @@ def read_delimited(
     t0 = 0.0
     if t_idx is not None:
         t = table[:, t_idx] * d.scales[t_idx]
-        settings["time_column"] = names[t_idx]
-        settings["time_unit"] = "s" if d.scales[t_idx] == 1.0 else {
-            1e-3: "ms", 1e-6: "us", 1e-9: "ns"}.get(d.scales[t_idx], str(d.scales[t_idx]))
+        settings.update(time_settings(names[t_idx], d.scales[t_idx]))
         data = np.delete(table, t_idx, axis=1)
         ch_names = names[:t_idx] + names[t_idx + 1:]
         units = list(d.units[:t_idx] + d.units[t_idx + 1:])
