@@ -12,7 +12,7 @@ import hashlib
 import json
 from pathlib import Path
 
-from .._tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
+from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from ..errors import InputError
 from .model import (
     PCC_LOCATIONS,
