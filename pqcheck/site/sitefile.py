@@ -12,8 +12,8 @@ import hashlib
 import json
 from pathlib import Path
 
-from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from ..errors import InputError
+from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from .model import (
     PCC_LOCATIONS,
     OtherLoad,
