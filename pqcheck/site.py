@@ -51,8 +51,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from .errors import InputError, PlanError
+from .files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from .findings import Finding
 from .metrics import sequence_components
 

@@ -161,7 +161,7 @@ def site_group():
 def site_run(site_file, output, force, fmt, summation):
     """Run the site study of SITE.toml (the default subcommand)."""
     from ..export import dumps
-    from ..report.atomic import check_target
+    from ..files.atomic import check_target
     from ..site import load_site, study_site, study_to_dict
 
     if output is not None:
@@ -187,7 +187,7 @@ def site_run(site_file, output, force, fmt, summation):
 @handle_errors
 def site_new(path, force):
     """Write a commented site template to PATH (edit it, then run pqcheck site PATH)."""
-    from ..report.atomic import write_atomic
+    from ..files.atomic import write_atomic
     from ..site import site_template
 
     write_atomic(path, site_template(), force=force)

@@ -2,7 +2,7 @@
 
 Built from the report's building blocks: the typography and verdict marks of
 :mod:`pqcheck.report.style`, the fixed caution wording of :mod:`pqcheck.report.text` and the
-atomic writer of :mod:`pqcheck.report.atomic`. :func:`site_story` returns the section as a list
+atomic writer of :mod:`pqcheck.files.atomic`. :func:`site_story` returns the section as a list
 of reportlab flowables so a larger report can include it; :func:`write_site_pdf` writes it as a
 document of its own. Every number comes from the study; nothing is recomputed here.
 """
@@ -16,7 +16,7 @@ from reportlab.lib.pagesizes import A4
 from reportlab.lib.units import mm
 from reportlab.platypus import Image, KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table
 
-from .atomic import atomic_open
+from ..files.atomic import atomic_open
 from .style import (
     ACCENT,
     FONT,
