@@ -163,12 +163,12 @@ def site_story(study) -> list:
         f"Worst phase of each order. Voltage THD {fmt(study.thd_v_percent, 3)} %, TDD "
         f"{fmt(study.tdd_percent, 3)} % (orders 2 to {study.resolved_order}).", st["caption"]))
 
-    rows = [["Check", "Estimate", "Limit", "Use of limit", "Verdict", "Clause"]]
+    rows = [["Check", "Estimate", "Limit", "Margin", "Verdict", "Clause"]]
     shown = [c for c in study.checks if c.quantity != "harmonic" or c.verdict != "pass"
-             or c.usage_percent >= 50.0]
+             or c.margin_percent <= 50.0]
     for c in shown:
-        rows.append([esc(c.label), f"{fmt(c.value, 3)} %", f"{fmt(c.limit, 3)} %"
-                     + (" \u2020" if c.verify else ""), f"{fmt(c.usage_percent, 3)} %",
+        rows.append([esc(c.label), f"{fmt(c.measured, 3)} %", f"{fmt(c.limit, 3)} %"
+                     + (" \u2020" if c.verify else ""), f"{fmt(c.margin_percent, 3)} %",
                      f"{VERDICT_MARK[c.verdict]} {VERDICT_WORD[c.verdict]}", esc(c.clause)])
     out.append(_table(rows, [22 * mm, 24 * mm, 24 * mm, 24 * mm, 34 * mm, 42 * mm], st))
     hidden = len(study.checks) - len(shown)
