@@ -22,7 +22,6 @@ import io
 from datetime import datetime
 
 import numpy as np
-from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
 from reportlab.platypus import (
     CondPageBreak,
@@ -39,7 +38,6 @@ from .figures import FIG_WIDTH_IN, SpectrumData, SpectrumPanel, plot_spectrum, t
 from .pdf import ATTACHMENT_NAME, PAGE_SIZE, _ReportCanvas
 from .style import (
     ACCENT,
-    FONT_MONO,
     INK,
     RULE,
     SHADE,
@@ -378,8 +376,7 @@ def _method_section(study, st) -> list:
 
 
 def _traceability_section(study, report: dict, results_json: bytes, st) -> list:
-    hash_style = ParagraphStyle("site_hash", parent=st["mono"], fontName=FONT_MONO,
-                                fontSize=6.4, leading=8.2)
+    hash_style = st["hash"]
     out = [CondPageBreak(60 * mm), Paragraph("Traceability", st["h2"]), Paragraph(
         "SHA-256 digests of every file this study rests on. Recompute them (for example with "
         "sha256sum) to confirm that an archived file is the one used; pqcheck verify re-runs "
