@@ -20,7 +20,7 @@ from conftest import write_without_observation
 from test_hostile_inputs import TABLE
 
 from pqcheck.cli import main
-from pqcheck.verify import compare_documents
+from pqcheck.run.verify import compare_documents
 
 FS = 6400.0
 OPTIONS = ["--sample-rate", "6400", "--current", "ch1", "--voltage", "ch2",

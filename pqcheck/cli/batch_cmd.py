@@ -116,7 +116,7 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
     not be checked (a capture-level error counts as inconclusive) and none fails, 4 a capture is
     not applicable (outside the tables' scope) and none fails or is inconclusive, 2 bad input.
     """
-    from ..batch import (
+    from ..run.batch import (
         BatchSpec,
         DaskExecutor,
         InlineExecutor,
