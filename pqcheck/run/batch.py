@@ -393,6 +393,10 @@ def _check_rows(task: dict) -> list:
     from .check import analyze_file
 
     spec = BatchSpec(**task["spec"])
+    if isinstance(spec.declared, dict):  # a spec sent to a worker as plain data
+        from ..gates import Declared
+
+        spec = dataclasses.replace(spec, declared=Declared(**spec.declared))
     capture, sha, key = task["capture"], task.get("sha256"), task.get("key", "")
     tables = spec.resolve()
     cache = Cache(spec.cache_dir) if spec.use_cache else None
