@@ -89,6 +89,9 @@ class Check:
         The limit as the table gives it. [unit]
     multiplier : float
         Multiple of the limit the rule allows. [unitless]
+    period_start, period_end : str
+        For a statistic over periods of a survey (IEEE 519 daily / weekly percentiles): the
+        worst period, whose value ``measured`` is (ISO 8601; "" otherwise).
     """
 
     table_id: str
@@ -108,6 +111,8 @@ class Check:
     note: str = ""
     table_limit: float | None = None
     multiplier: float = 1.0
+    period_start: str = ""
+    period_end: str = ""
 
     @property
     def label(self) -> str:
@@ -126,6 +131,8 @@ class Check:
             "margin_percent": _json_num(self.margin_percent), "verdict": self.verdict,
             "clause": self.clause, "verify": self.verify,
             "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier})
+        if self.period_start:
+            d["period"] = {"start": self.period_start, "end": self.period_end}
         if self.note:
             d["note"] = self.note
         return d
