@@ -742,7 +742,8 @@ class _SurveyTable:
         base = dict(table_id=self.t.table_id, quantity=it.quantity, order=it.order,
                     applies_to=it.applies_to, phase=ch.phase, channel=ch.name,
                     statistic=stat_text, limit=limit, unit=it.unit, clause=it.clause,
-                    verify=bool(verify), table_limit=it.limit, multiplier=rule.multiplier)
+                    verify=bool(verify), table_limit=it.limit, multiplier=rule.multiplier,
+                    basis=it.basis, tag=it.tag)
         idx = len(self.checks)
         self.rules[-1]["check_ids"].append(idx)
         if reason:
