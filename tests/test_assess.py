@@ -20,7 +20,9 @@ from pqcheck.assess import Check, assess, overall_verdict
 from pqcheck.capture import Capture
 from pqcheck.cli import main
 from pqcheck.errors import InputError
+from pqcheck.gates import Declared
 from pqcheck.limits import resolve
+from pqcheck.uncertainty import Chain
 
 SQ2 = math.sqrt(2.0)
 
@@ -259,7 +261,11 @@ def test_ieee1547_trd_and_dc_injection():
     t = times(6000.0, 4.0)
     i = wave(t, 60.0, {1: 16.0, 5: 0.5}, dc=0.1)
     res = analyze(Capture.from_arrays(6000.0, currents={"i": i}), nominal_hz=60)
-    a = assess(res, resolve("ieee1547-2018"), rated_current_a=16.0)
+    # dc injection needs a chain declared dc-coupled and zeroed (else the offset may be the
+    # instrument's): a shunt with 0.5 % of reading
+    dc_chain = Declared(chains=(Chain(quantity="current", accuracy_percent=0.5, dc_coupled=True,
+                                      zeroed=True),))
+    a = assess(res, resolve("ieee1547-2018"), rated_current_a=16.0, declared=dc_chain)
     assert one(a, "I5").measured == pytest.approx(3.125, rel=2e-3)
     assert one(a, "TRD").measured == pytest.approx(100 * math.sqrt(0.26) / 16, rel=2e-3)
     dc = one(a, "DC")

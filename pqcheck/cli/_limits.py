@@ -16,7 +16,8 @@ __all__ = ["LIMIT_OPTION_NAMES", "limit_options", "resolve_limits", "positive_op
 LIMIT_OPTION_NAMES = ("limits", "voltage_level", "isc", "generation", "equipment_class",
                       "equipment_kind", "rsce", "ssc", "rated_power", "rated_current", "iref",
                       "active_power", "location", "behaviour", "cycle", "representative_period",
-                      "phases")
+                      "phases", "current_accuracy", "voltage_accuracy", "bandwidth",
+                      "dc_coupled", "decision_rule")
 
 
 def limit_options(*, required: bool, limits_help: str | None = None):
@@ -81,6 +82,23 @@ def limit_options(*, required: bool, limits_help: str | None = None):
         click.option("--phases", type=click.IntRange(1, 3), metavar="N",
                      help="Number of phases of the equipment (a three-phase unit captured on "
                           "fewer phases cannot pass)."),
+        click.option("--current-accuracy", "current_accuracy", metavar="TEXT",
+                     help="Accuracy of the current chain (clamp and digitiser), e.g. '1 %' or "
+                          "'1 % of reading + 0.05 A'; feeds the uncertainty. Default: IEC "
+                          "61000-4-7 Class I assumed."),
+        click.option("--voltage-accuracy", "voltage_accuracy", metavar="TEXT",
+                     help="Accuracy of the voltage chain, as --current-accuracy."),
+        click.option("--bandwidth", type=float, metavar="HZ",
+                     help="-3 dB bandwidth of the measurement chain; orders it reads more than "
+                          "10 % low are not assessed."),
+        click.option("--dc-coupled", "dc_coupled", is_flag=True, default=False,
+                     help="The current chain passes dc and was zeroed before the capture (dc "
+                          "injection limits need it)."),
+        click.option("--decision-rule", "decision_rule", type=click.Choice(["guarded", "simple"]),
+                     default="guarded", show_default=True,
+                     help="guarded: a value within its uncertainty of the limit is "
+                          "inconclusive (ILAC-G8 guarded acceptance); simple: it passes, marked "
+                          "marginal."),
     ]
 
     def decorate(func):
@@ -93,12 +111,31 @@ def limit_options(*, required: bool, limits_help: str | None = None):
 
 def declared_from(lim: dict):
     """The :class:`pqcheck.gates.Declared` of parsed options."""
+    from ..errors import InputError
     from ..gates import Declared
+    from ..uncertainty import Chain, parse_accuracy
 
+    chains = []
+    for q in ("current", "voltage"):
+        text = lim.get(f"{q}_accuracy")
+        acc = None
+        if text is not None:
+            acc = parse_accuracy(text)
+            if acc is None:
+                raise InputError(f"cannot read accuracy {text!r}; write e.g. '1 %' or "
+                                 "'1 % of reading + 0.05 A'", field=f"--{q}-accuracy")
+        dc = bool(lim.get("dc_coupled")) if q == "current" else None
+        if acc is not None or lim.get("bandwidth") or (q == "current" and dc):
+            chains.append(Chain(quantity=q, accuracy_percent=acc[0] if acc else None,
+                                floor=acc[1] if acc else None,
+                                bandwidth_hz=lim.get("bandwidth"),
+                                dc_coupled=dc or None, zeroed=dc or None,
+                                name="declared on the command line"))
     return Declared(location=lim.get("location"), behaviour=lim.get("behaviour"),
                     cycle_s=lim.get("cycle"),
                     representative_period=bool(lim.get("representative_period")),
-                    phases=lim.get("phases"))
+                    phases=lim.get("phases"), chains=tuple(chains),
+                    decision_rule=lim.get("decision_rule") or "guarded")
 
 
 def positive_options(lim: dict, il_a) -> None:
@@ -107,7 +144,7 @@ def positive_options(lim: dict, il_a) -> None:
 
     for name, v in (("--rated-current", lim.get("rated_current")), ("--iref", lim.get("iref")),
                     ("--active-power", lim.get("active_power")), ("--il", il_a),
-                    ("--cycle", lim.get("cycle"))):
+                    ("--cycle", lim.get("cycle")), ("--bandwidth", lim.get("bandwidth"))):
         if v is not None and not (math.isfinite(v) and v > 0):
             raise InputError(f"must be a positive number, got {v:g}", field=name)
 

@@ -396,7 +396,7 @@ def _check_rows(task: dict) -> list:
     if isinstance(spec.declared, dict):  # a spec sent to a worker as plain data
         from ..gates import Declared
 
-        spec = dataclasses.replace(spec, declared=Declared(**spec.declared))
+        spec = dataclasses.replace(spec, declared=Declared.from_dict(spec.declared))
     capture, sha, key = task["capture"], task.get("sha256"), task.get("key", "")
     tables = spec.resolve()
     cache = Cache(spec.cache_dir) if spec.use_cache else None
