@@ -348,7 +348,7 @@ def _rerun_capture(doc: dict, bases, files: list, notes: list, params: dict):
         nominal_hz=int(s["nominal_hz"]) if s.get("nominal_source") == "user" else None,
         wiring=s.get("wiring") if s.get("wiring_source") == "user" else None)
     sample_rate = params.get("sample_rate")
-    if not params and (rec.get("reader") or {}).get("time_base") == "--sample-rate":
+    if not params and (rec.get("reader") or {}).get("time_base") in ("--sample-rate", "sample_rate_hz"):
         sample_rate = rec["reader"].get("sample_rate_hz")
     capture, result = analyze_file(
         where, sample_rate_hz=sample_rate, current=_split(params.get("current")),
