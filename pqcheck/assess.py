@@ -89,6 +89,12 @@ class Check:
         The limit as the table gives it. [unit]
     multiplier : float
         Multiple of the limit the rule allows. [unitless]
+    basis : str
+        What measured and limit are relative to (``percent_of_il``,
+        ``percent_of_fundamental``, ``amperes``, ...; as the table's block says).
+    tag : str
+        Confidence tag of the limit value in the table: ``V`` verified, ``C`` computed,
+        ``P`` partly verified, ``M`` from memory.
     """
 
     table_id: str
@@ -108,6 +114,8 @@ class Check:
     note: str = ""
     table_limit: float | None = None
     multiplier: float = 1.0
+    basis: str = ""
+    tag: str = ""
 
     @property
     def label(self) -> str:
@@ -125,7 +133,8 @@ class Check:
             "limit": _json_num(self.limit), "unit": self.unit,
             "margin_percent": _json_num(self.margin_percent), "verdict": self.verdict,
             "clause": self.clause, "verify": self.verify,
-            "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier})
+            "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier,
+            "basis": self.basis, "tag": self.tag})
         if self.note:
             d["note"] = self.note
         return d
@@ -618,7 +627,7 @@ class _TableAssessor:
             measured=None if measured is None or not math.isfinite(measured) else measured,
             limit=limit, unit=it.unit, margin_percent=margin, verdict=verdict,
             clause=it.clause, verify=bool(verify), note=note,
-            table_limit=it.limit, multiplier=multiplier)
+            table_limit=it.limit, multiplier=multiplier, basis=it.basis, tag=it.tag)
 
 
 def _stat_text(rule) -> str:
