@@ -248,6 +248,12 @@ def analyze_cmd(capture, fmt, **opts):
     raise click.exceptions.Exit(EXIT_OK)
 
 
+def _survey_options(func):
+    from .survey_cmd import survey_options
+
+    return survey_options(func)
+
+
 @main.command("inspect")
 @click.argument("capture", type=click.Path(dir_okay=False))
 @click.option("--sample-rate", "sample_rate", type=float, metavar="HZ",
@@ -256,15 +262,21 @@ def analyze_cmd(capture, fmt, **opts):
               help="Name of the time column when it is not recognised.")
 @click.option("--encoding", "encoding", metavar="NAME",
               help="Text encoding of the file (e.g. cp1251, gbk). Default: detected.")
+@_survey_options
 @handle_errors
-def inspect_cmd(capture, sample_rate, time_column, encoding):
+def inspect_cmd(capture, sample_rate, time_column, encoding, **survey_opts):
     """Show what pqcheck reads in CAPTURE: layout, columns, time base and where it came from,
     guessed roles with their evidence, and the options that confirm or override them. When
     the time base cannot be found it still lists the columns and metadata and says which
-    option to add (exit code 2)."""
+    option to add (exit code 2).
+
+    For an interval log: how each column is read, the aggregation levels, span and gaps."""
     from ..readers import load_capture
     from ..readers.delimited import TimeBaseNotFound
+    from .survey_cmd import inspect_survey, is_survey_input
 
+    if is_survey_input([capture], survey_opts):
+        inspect_survey([capture], survey_opts)
     try:
         cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column,
                            encoding=encoding)
