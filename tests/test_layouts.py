@@ -454,3 +454,29 @@ def test_streaming_reader_refuses_an_overflowing_cell_after_the_first_chunk(tmp_
     with pytest.raises(CaptureFormatError,
                        match=r"late\.csv:1702: ia: cell '-Infinity' is not a finite number"):
         stream.load()
+
+
+def test_text_in_the_first_column_of_every_row_is_not_metadata(tmp_path):
+    # clock times in column 1 of every row: not the metadata-beside-data layout
+    p = tmp_path / "clock.csv"
+    p.write_text("".join(f"10:00:{i:02d},{i * 0.5:.3f},{np.sin(i):.6f}\n" for i in range(60)))
+    with pytest.raises(CaptureFormatError, match=r"clock\.csv:60: no rows of numbers found in "
+                                                 r"the first lines \(this one reads '10:00:59"):
+        load_capture(p)
+
+
+def test_header_of_unit_symbols_stays_a_header(tmp_path):
+    p = tmp_path / "sym.csv"
+    p.write_text("Sample interval: 40 us\nV,A\n" + "".join(
+        f"{b:.6g},{b / 30:.6g}\n" for b in _wave()))
+    cap = load_capture(p)
+    assert cap.names == ("V", "A")
+
+
+def test_unnamed_time_column_matching_the_declared_rate_is_not_a_signal(tmp_path):
+    p = tmp_path / "zeit.csv"
+    p.write_text("Sample interval: 40 us\nZeitstempel,ia\n" + "".join(
+        f"{i / FS:.9g},{b:.6g}\n" for i, b in enumerate(_wave(5.0))))
+    cap = load_capture(p)
+    assert cap.names == ("ia",)
+    assert "Zeitstempel" in cap.provenance.settings["dropped_columns"]
