@@ -480,3 +480,14 @@ def test_unnamed_time_column_matching_the_declared_rate_is_not_a_signal(tmp_path
     cap = load_capture(p)
     assert cap.names == ("ia",)
     assert "Zeitstempel" in cap.provenance.settings["dropped_columns"]
+
+
+@pytest.mark.parametrize(("line", "rate"), [
+    ("Sampling,40us", FS), ("Sampling: 25 kS/s", FS), ("Sample Rate,25000", FS),
+    ("Sample Interval,CH1:4.0E-05", FS), ("Microseconds_Per_Sample,40", FS),
+    ("Increment,4e-05", FS), ("Sampling Frequency: 25 kHz", FS),
+])
+def test_declared_sample_interval_or_rate(tmp_path, line, rate):
+    p = tmp_path / "decl.csv"
+    p.write_text(f"{line}\nia,va\n" + "".join(f"{b / 30:.6g},{b:.6g}\n" for b in _wave()))
+    assert load_capture(p).fs_hz == pytest.approx(rate, rel=1e-12)

@@ -380,6 +380,13 @@ def declared_interval(meta: dict):
                 return 1.0 / number, key
             if unit == "s":
                 return number, key
+        # a key about sampling whose value carries its unit ("Sampling,10us", "Sampling,
+        # 100 kS/s"): the unit says whether it is an interval or a rate
+        if k.startswith("sampl") or k in ("interval", "sampling time"):
+            if unit == "s":
+                return number, key
+            if unit == "hz":
+                return 1.0 / number, key
     return None
 
 
