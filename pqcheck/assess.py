@@ -252,12 +252,28 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
             "power": active_power_w}
     checks, notes = [], []
     for t in tables:
+        if t.measure == "flicker":  # IEC 61000-3-3 / -3-11: pqcheck.flicker assesses them
+            c, n = _flicker_table(result, t)
+            checks += c
+            notes += n
+            continue
         c, n = _TableAssessor(result, t, refs).run()
         checks += c
         notes += n
     counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
     return Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
                       notes=tuple(dict.fromkeys(notes)), counts=counts)
+
+
+def _flicker_table(result, table):
+    from .flicker.assess import flicker_checks
+
+    flicker = getattr(result, "flicker", None)
+    if flicker is None:
+        raise InputError(f"{table.table_id} limits flicker and voltage changes; the analysis "
+                         "has no flicker evaluation (analyse with flicker = true)",
+                         field="flicker")
+    return flicker_checks(flicker, table, check_cls=Check)
 
 
 # --- one table -----------------------------------------------------------------------------

@@ -118,6 +118,8 @@ class ChannelFlicker:
     meter : FlickerResult
     change : VoltageChangeResult
     findings : tuple of Finding
+    phase : str
+        Phase of the channel (``a``, ``b``, ``c`` or "").
     """
 
     channel: str
@@ -129,6 +131,7 @@ class ChannelFlicker:
     meter: FlickerResult
     change: VoltageChangeResult
     findings: tuple = ()
+    phase: str = ""
 
     @property
     def plt(self):
@@ -389,5 +392,6 @@ def _finish(name, derived, path, zlabel, src, un, meter, hp, f0, capture, findin
     for f in capture.findings:
         if f.severity == "error" and f.affects(channel=derived or name):
             own.append(f)
+    phase = next((c.phase for c in capture.channels if c.name == (derived or name)), "")
     return ChannelFlicker(name, derived, path, zlabel, src, float(un), res, change,
-                          tuple(own))
+                          tuple(own), phase)
