@@ -252,12 +252,24 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
             "power": active_power_w}
     checks, notes = [], []
     for t in tables:
-        c, n = _TableAssessor(result, t, refs).run()
+        c, n = _survey_or_table(result, t, refs)
         checks += c
         notes += n
     counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
     return Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
                       notes=tuple(dict.fromkeys(notes)), counts=counts)
+
+
+def _survey_or_table(result, table, refs):
+    """One table's checks: per period of the survey when the capture lasts at least the
+    shortest period of the table's statistics (IEEE 519: a day), so a multi-day capture never
+    gets one whole-capture percentile; else as a single observation."""
+    from . import survey
+
+    if survey.needs_periods(result, table):
+        sa = survey.assess_result_periods(result, table, il_a=refs["il"])
+        return list(sa.assessment.checks), list(sa.assessment.notes)
+    return _TableAssessor(result, table, refs).run()
 
 
 # --- one table -----------------------------------------------------------------------------
