@@ -522,6 +522,16 @@ def analyze(
     weak_any = state["weak"] or not tracked
     n = total
     if acc is None:
+        f_used = float(state.get("f_demod") or nominal_hz)
+        if weak_any or abs(f_used - nominal_hz) > 0.05 * nominal_hz:
+            # the windows follow the reference's cycles: name that, not the record length
+            raise AnalysisError(
+                f"no {cycles}-cycle window fits in the {total / fs:.4g} s record: the "
+                f"reference channel {chans[ref].name!r} has no clear mains fundamental near "
+                f"{nominal_hz:g} Hz (the strongest line found is at {f_used:.4g} Hz, where a "
+                f"window lasts {cycles / f_used:.3g} s); check that the reference channel "
+                "(reference) carries the mains voltage or current and the nominal frequency",
+                path=path, field="reference")
         raise AnalysisError(
             "no complete window fits in the capture; capture a longer record",
             path=path, field="duration",
@@ -603,10 +613,15 @@ def analyze(
             f"the last {tail:.3f} s do not fill a whole {cycles}-cycle window and are not analysed.",
             value=tail, unit="s"))
     if wiring_source == "inferred":
+        if len(curr_abc) == 3 or neutral:
+            why = ("a neutral current was measured" if neutral else
+                   f"phase currents {'do not ' if wiring == '4-wire' else ''}sum to zero")
+        else:  # nothing measured can tell: say so rather than quote currents that are absent
+            why = "no three phase currents were measured to tell; the default"
         findings.append(Finding(
             "wiring-inferred", "info",
-            f"three-phase wiring taken as {wiring} from the data (phase currents "
-            f"{'do not ' if wiring == '4-wire' else ''}sum to zero); give --wiring to set it."))
+            f"three-phase wiring taken as {wiring} from the data ({why}); give the wiring "
+            "(wiring) to set it."))
 
     settings = AnalysisSettings(
         nominal_hz=nominal_hz, nominal_source=state["nominal_source"], cycles_per_window=cycles,

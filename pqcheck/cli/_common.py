@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import functools
 import sys
+import warnings
 
 import click
+import numpy as np
 
 from .. import __version__
 from ..errors import InputError, PqcheckError, ReportError
@@ -14,9 +16,12 @@ EXIT_OK = 0
 EXIT_FAIL = 1
 EXIT_USAGE = 2
 EXIT_INCONCLUSIVE = 3
+EXIT_NOT_APPLICABLE = 4
 
+#: Exit code of each verdict. "not applicable" (the case is outside the scope of every table
+#: applied, or nothing could be assessed) is never 0: a script must not read it as a pass.
 VERDICT_EXIT = {"pass": EXIT_OK, "fail": EXIT_FAIL, "inconclusive": EXIT_INCONCLUSIVE,
-                "not applicable": EXIT_OK}
+                "not applicable": EXIT_NOT_APPLICABLE}
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
@@ -41,7 +46,11 @@ def handle_errors(func):
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
         try:
-            return func(*args, **kwargs)
+            # numpy's RuntimeWarnings (a mean of an empty window, 0/0 in a silent channel)
+            # are handled as NaN results and findings; their text never reaches stderr
+            with warnings.catch_warnings(), np.errstate(all="ignore"):
+                warnings.simplefilter("ignore", RuntimeWarning)
+                return func(*args, **kwargs)
         except InputError as exc:
             fail_usage(exc.location_message())
         except ReportError as exc:
