@@ -195,8 +195,8 @@ def test_files_with_different_time_bases_are_refused(tmp_path):
 # --------------------------------------------------------------------------- analysis words
 
 def test_record_without_a_mains_component_names_the_real_problem(tmp_path):
-    # 0.25 s of noise (no mains component) longer than one 0.2 s window at 60 Hz
-    t = np.arange(int(0.25 * FS)) / FS
+    # 0.21 s of noise (no mains component), longer than one 0.2 s window at 60 Hz
+    t = np.arange(int(0.21 * FS)) / FS
     rng = np.random.default_rng(1)
     p = tmp_path / "nomains.csv"
     p.write_text("time,va\n" + "".join(f"{a:.9g},{rng.normal():.6g}\n" for a in t))
@@ -205,7 +205,7 @@ def test_record_without_a_mains_component_names_the_real_problem(tmp_path):
     assert res.exit_code == 2
     assert "capture a longer record" not in res.stderr
     assert re.search(r"nomains\.csv: (reference|--reference): no 12-cycle window fits in the "
-                     r"0\.25 s record: the reference channel 'va' has no clear mains "
+                     r"0\.21 s record: the reference channel 'va' has no clear mains "
                      r"fundamental near 60 Hz", res.stderr), res.stderr
 
 
