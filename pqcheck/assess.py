@@ -289,13 +289,48 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
     declared = declared or gates.Declared()
     checks, notes, found = [], [], []
     for t in tables:
-        c, n, g = _TableAssessor(result, t, refs, declared).run_gated()
+        if t.measure == "flicker":  # IEC 61000-3-3 / -3-11: pqcheck.flicker assesses them
+            c, n, g = _flicker_table(result, t, refs, declared)
+        else:
+            c, n, g = _TableAssessor(result, t, refs, declared).run_gated()
         checks += c
         notes += n
         found += g
     counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
     return Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
                       notes=tuple(dict.fromkeys(notes)), counts=counts, gates=tuple(found))
+
+
+def _flicker_table(result, table, refs, declared):
+    """Checks of a flicker table (pqcheck.flicker), behind the table's scope gates."""
+    from .flicker.assess import flicker_checks
+
+    flicker = getattr(result, "flicker", None)
+    if flicker is None:
+        raise InputError(f"{table.table_id} limits flicker and voltage changes; the analysis "
+                         "has no flicker evaluation (analyse with flicker = true)",
+                         field="flicker")
+    found = gates.scope_gates(result, table, declared, refs, trust_measured=True)
+    out_of_scope = [g for g in found if g.effect == "not applicable"]
+    blocking = [g for g in found if g.effect == "inconclusive"]
+    notes = [g.message for g in found if g.effect == "deviation"]
+    rows = [_gate_row(table, g) for g in out_of_scope + blocking]
+    if out_of_scope:
+        return rows, notes + [g.message for g in out_of_scope], found
+    checks, n = flicker_checks(flicker, table, check_cls=Check)
+    if blocking:
+        why = "; ".join(g.code for g in blocking)
+        checks = [replace(c, verdict="inconclusive", note=f"inconclusive: {why}; {c.note}")
+                  if c.verdict == "pass" else c for c in checks]
+    return checks + rows, notes + n, found
+
+
+def _gate_row(table, g) -> Check:
+    """A scope gate as a check row of a flicker table."""
+    return Check(table_id=table.table_id, quantity=g.code, order=None, applies_to="voltage",
+                 phase="", channel=", ".join(g.channels), statistic="gate", measured=g.value,
+                 limit=None, unit=g.unit, margin_percent=None, verdict=g.effect,
+                 clause="scope", verify=False, note=g.message)
 
 
 # --- one table -----------------------------------------------------------------------------
@@ -562,6 +597,17 @@ class _TableAssessor:
 
     # -- gates -------------------------------------------------------------------------------
 
+    def run_checks(self):
+        """The checks: per period of the survey when the capture lasts at least the shortest
+        period of the table's statistics (IEEE 519: a day), so a multi-day capture never gets
+        one whole-capture percentile; else as a single observation (:meth:`run`)."""
+        from . import survey
+
+        if survey.needs_periods(self.r, self.t):
+            sa = survey.assess_result_periods(self.r, self.t, il_a=self.refs["il"])
+            return list(sa.assessment.checks), self.notes + list(sa.assessment.notes)
+        return self.run()
+
     def run_gated(self):
         """The checks with the scope, plausibility and observation gates applied.
 
@@ -583,7 +629,7 @@ class _TableAssessor:
         found += gates.observation_gates(t, self.observed_s, d)
         found += gates.chain_gates(self.r, t, d)
         found += gates.plan_gates(t, d)
-        checks, notes = self.run()
+        checks, notes = self.run_checks()
         found += self.gates  # raised while assessing (declared power)
         blocking = [g for g in found if g.effect == "inconclusive"]
         out = []

@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import math
+
 import click
 import numpy as np
 
 from ._common import EXIT_OK, handle_errors, main, split_columns
 
-__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs"]
+__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs", "flicker_settings",
+           "with_flicker"]
 
 
 def capture_options(func):
@@ -22,6 +25,13 @@ def capture_options(func):
                      help="Sample rate, for files without a time column or declared interval."),
         click.option("--time-column", "time_column", metavar="NAME",
                      help="Name of the time column when it is not recognised."),
+        click.option("--add-file", "add_file", multiple=True, metavar="FILE",
+                     type=click.Path(dir_okay=False),
+                     help="Another file of the same capture (one file per channel, same time "
+                          "base, checked); repeat for more files."),
+        click.option("--encoding", "encoding", metavar="NAME",
+                     help="Text encoding of the capture (or of a COMTRADE .cfg), e.g. cp1251, "
+                          "gbk, utf-16. Default: detected."),
         click.option("--nominal-frequency", "nominal", type=click.Choice(["50", "60"]),
                      help="Nominal system frequency. Default: detected from the data."),
         click.option("--max-order", "max_order", type=click.IntRange(2, 100), default=50,
@@ -37,6 +47,27 @@ def capture_options(func):
                      type=click.Choice(["line-to-neutral", "line-to-line"]),
                      help="How the voltages were measured. Default: line-to-line when the "
                           "three voltage names end in ab, bc, ca, else line-to-neutral."),
+        click.option("--flicker", "flicker", is_flag=True, default=False,
+                     help="Also evaluate flicker (IEC 61000-4-15 Pst, Plt) and voltage changes "
+                          "(IEC 61000-3-3 dc, dmax, Tmax) per voltage channel, or per current "
+                          "channel through an impedance. Implied by a flicker limit table."),
+        click.option("--flicker-path", "flicker_path",
+                     type=click.Choice(["auto", "voltage", "reference-impedance",
+                                        "system-impedance"]), default="auto", show_default=True,
+                     help="Voltage the flickermeter sees: the measured voltage, or the current "
+                          "through the IEC 61000-3-3 reference impedance or through "
+                          "--system-impedance (IEC 61000-3-11). auto: voltage when the capture "
+                          "has one, else reference-impedance."),
+        click.option("--system-impedance", "system_impedance", metavar="R,X[,RN,XN]",
+                     help="Supply impedance for IEC 61000-3-11 in ohm (reactance at 50 Hz): "
+                          "phase R,X and optionally neutral RN,XN; with only R,X it is a "
+                          "single-phase loop split 3:2 between phase and neutral as Zref."),
+        click.option("--lamp", type=click.Choice(["230V", "120V"]),
+                     help="Flickermeter lamp. Default: 120V below 180 V nominal, else 230V."),
+        click.option("--nominal-voltage", "nominal_voltage", type=float, metavar="V",
+                     help="Nominal line-to-neutral voltage Un the voltage changes are relative "
+                          "to. Default: the standard value nearest to the data (230 V on the "
+                          "impedance paths at 50 Hz, 120 V at 60 Hz)."),
         click.option("--no-cache", "no_cache", is_flag=True,
                      help="Do not read or write the cache of parsed captures and results."),
         click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False),
@@ -60,6 +91,50 @@ def analysis_kwargs(opts: dict) -> dict:
     }
 
 
+def flicker_settings(opts: dict):
+    """:class:`pqcheck.flicker.FlickerSettings` from parsed options (None: no flicker)."""
+    from ..errors import InputError
+    from ..flicker import FlickerSettings, SupplyImpedance
+
+    path = opts.get("flicker_path") or "auto"
+    zsys = opts.get("system_impedance")
+    wanted = opts.get("flicker") or path != "auto" or zsys
+    if not wanted:
+        return None
+    z = None
+    if zsys:
+        try:
+            parts = [float(x) for x in str(zsys).replace(";", ",").split(",")]
+        except ValueError:
+            parts = []
+        if len(parts) not in (2, 4):
+            raise InputError(f"give R,X or R,X,RN,XN in ohm, got {zsys!r}",
+                             field="--system-impedance")
+        z = (SupplyImpedance.from_loop(*parts) if len(parts) == 2
+             else SupplyImpedance(*parts))
+        if path == "auto":
+            path = "system-impedance"
+    elif path == "system-impedance":
+        raise InputError("the system-impedance path needs --system-impedance R,X[,RN,XN]",
+                         field="--system-impedance")
+    nominal_v = opts.get("nominal_voltage")
+    if nominal_v is not None and not (nominal_v > 0 and math.isfinite(nominal_v)):
+        raise InputError(f"must be a positive voltage, got {nominal_v:g}",
+                         field="--nominal-voltage")
+    return FlickerSettings(path=path, lamp=opts.get("lamp"), nominal_v=nominal_v,
+                           system_impedance=z)
+
+
+def with_flicker(capture, result, settings):
+    """The analysis result with its flicker evaluation (``result.flicker``)."""
+    import dataclasses
+
+    from ..flicker import analyze_flicker
+
+    fa = analyze_flicker(capture, nominal_hz=int(result.settings.nominal_hz), settings=settings)
+    return dataclasses.replace(result, flicker=fa)
+
+
 def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
     """Read and analyse one capture with parsed capture options; returns (capture, result).
 
@@ -74,17 +149,22 @@ def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
     if progress is None and not opts.get("quiet"):
         bar = _ProgressBar(capture_path)
         progress = bar
+    fl = flicker_settings(opts)
     try:
-        return analyze_file(
-            capture_path,
+        capture, result = analyze_file(
+            [capture_path, *opts["add_file"]] if opts.get("add_file") else capture_path,
             sample_rate_hz=opts.get("sample_rate"),
             current=split_columns(opts.get("current")),
             voltage=split_columns(opts.get("voltage")),
             time_column=opts.get("time_column"),
+            encoding=opts.get("encoding"),
             cache=cache,
             progress=progress,
             **analysis_kwargs(opts),
         )
+        if fl is not None:
+            result = with_flicker(capture, result, fl)
+        return capture, result
     finally:
         if bar is not None:
             bar.close()
@@ -206,6 +286,9 @@ def render_table(result) -> str:
         if "i_unbalance_percent" in p.extra:
             lines.append(f"  current unbalance (I2/I1) {_fmt(p.extra['i_unbalance_percent'], 3)} %"
                          f", voltage unbalance {_fmt(p.extra['v_unbalance_percent'], 3)} %")
+    if r.flicker is not None:
+        lines.append("")
+        lines += render_flicker(r.flicker)
     lines.append("")
     if r.findings:
         lines.append("Findings")
@@ -214,6 +297,31 @@ def render_table(result) -> str:
     else:
         lines.append("Findings: none")
     return "\n".join(lines)
+
+
+def render_flicker(fa) -> list:
+    """Text lines of a flicker evaluation."""
+    out = [f"Flicker (IEC 61000-4-15) and voltage changes (IEC 61000-3-3), path {fa.path}"]
+    head = (f"{'channel':<12}{'lamp':<11}{'Pst max':>9}{'Plt':>8}{'Pinst max':>11}"
+            f"{'dc %':>8}{'dmax %':>8}{'Tmax s':>8}  Pst interval")
+    out.append(head)
+    out.append("-" * len(head))
+    for c in fa.channels:
+        d = c.to_dict()
+        out.append(
+            f"{c.channel:<12}{c.meter.lamp:<11}{_fmt(c.pst_max, 4):>9}"
+            f"{_fmt(c.plt, 4) if c.plt is not None else '-':>8}"
+            f"{_fmt(c.meter.pinst_max, 4):>11}{_fmt(d['dc_percent'], 3):>8}"
+            f"{_fmt(c.change.dmax_percent, 3):>8}{_fmt(c.change.tmax_s, 3):>8}  "
+            f"{len(c.meter.pst)} x {c.meter.interval_s:g} s")
+        if c.derived_from:
+            out.append(f"  derived from {c.derived_from} through {c.impedance}, source "
+                       f"{c.source}, Un {c.un_v:g} V")
+        for f in c.findings:
+            out.append(f"  [{f.severity}] {f.code}: {f.message}")
+    for f in fa.findings:
+        out.append(f"  [{f.severity}] {f.code}: {f.message}")
+    return out
 
 
 @main.command("analyze")
@@ -252,60 +360,151 @@ def _survey_options(func):
               help="Sample rate, for files without a time column or declared interval.")
 @click.option("--time-column", "time_column", metavar="NAME",
               help="Name of the time column when it is not recognised.")
+@click.option("--encoding", "encoding", metavar="NAME",
+              help="Text encoding of the file (e.g. cp1251, gbk). Default: detected.")
 @_survey_options
 @handle_errors
-def inspect_cmd(capture, sample_rate, time_column, **survey_opts):
-    """Show what pqcheck reads in CAPTURE: columns, guessed roles, sample rate, duration and
-    the detected fundamental. Use it to confirm the channel map before analysing.
+def inspect_cmd(capture, sample_rate, time_column, encoding, **survey_opts):
+    """Show what pqcheck reads in CAPTURE: layout, columns, time base and where it came from,
+    guessed roles with their evidence, and the options that confirm or override them. When
+    the time base cannot be found it still lists the columns and metadata and says which
+    option to add (exit code 2).
 
     For an interval log: how each column is read, the aggregation levels, span and gaps."""
-    from ..dsp.tracking import coarse_frequency
     from ..readers import load_capture
+    from ..readers.delimited import TimeBaseNotFound
     from .survey_cmd import inspect_survey, is_survey_input
 
     if is_survey_input([capture], survey_opts):
         inspect_survey([capture], survey_opts)
+    try:
+        cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column,
+                           encoding=encoding)
+    except TimeBaseNotFound as exc:
+        _inspect_without_time_base(capture, exc)
+        raise
+    for line in inspect_lines(cap):
+        click.echo(line)
+    raise click.exceptions.Exit(EXIT_OK)
 
-    cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column)
+
+def _layout_lines(d) -> list:
+    delim = {",": "comma", ";": "semicolon", "\t": "tab", None: "none"}[d.delimiter]
+    out = [f"Layout      {d.layout}: delimiter {delim}, decimal '{d.decimal}', header line "
+           f"{d.header_line or '-'}, data from line {d.data_line}, encoding {d.encoding}"
+           + (f" ({d.compression})" if d.compression else "")]
+    for note in d.notes:
+        out.append(f"  {note}")
+    return out
+
+
+def _inspect_without_time_base(capture, exc) -> None:
+    """The guide printed when the time base is not found: columns, metadata, what was tried
+    and the options to add."""
+    d = exc.dialect
+    if d is None:
+        return
+    click.echo(f"File        {capture}")
+    for line in _layout_lines(d):
+        click.echo(line)
+    click.echo("")
+    click.echo("Columns")
+    for k, (name, unit) in enumerate(zip(d.names, d.units), start=1):
+        click.echo(f"  {k:>3}  {name}" + (f"  [{unit}]" if unit else ""))
+    if d.metadata_lines:
+        click.echo("Lines read as metadata: " + ", ".join(str(n) for n in d.metadata_lines))
+    for key, value in d.metadata.items():
+        click.echo(f"  {key}: {value}")
+    click.echo("")
+    click.echo("Time base not found. Tried:")
+    click.echo("  - a column named t, time, time_s, Second, X, x-axis, ... or with a time unit "
+               "([s], (ms), /us, _s)")
+    click.echo("  - a sample interval or rate in the metadata lines (Sample interval, "
+               "Increment, Sample rate, ...)")
+    click.echo("Add one of:")
+    click.echo(f"  --time-column {d.names[0]!r}    if column {d.names[0]!r} is the time in "
+               "seconds")
+    click.echo("  --sample-rate HZ        the rate the samples were taken at")
+    click.echo("")
+
+
+def inspect_lines(cap) -> list:
+    """The lines ``inspect`` prints for a capture that was read."""
+    from ..dsp.tracking import coarse_frequency
+
     s = cap.provenance.settings
-    click.echo(f"File        {cap.provenance.source}")
-    click.echo(f"SHA-256     {cap.provenance.sha256}")
-    click.echo(f"Layout      delimiter {s.get('delimiter', '-')}, decimal '{s.get('decimal', '.')}'"
-               f", header line {s.get('header_line', '-')}, data from line {s.get('data_line', '-')}"
-               if "delimiter" in s else f"Reader      {cap.provenance.reader}")
-    click.echo(f"Time base   {s.get('time_base', '-')}"
-               + (f" (column {s['time_column']!r} in {s['time_unit']})" if "time_column" in s
-                  else ""))
-    click.echo(f"Sampling    {cap.fs_hz:g} Hz, {cap.n_samples} samples, {cap.duration_s:.4f} s")
+    out = [f"File        {cap.provenance.source}", f"SHA-256     {cap.provenance.sha256}"]
+    if "delimiter" in s:
+        delim = s.get("delimiter", "-")
+        out.append(f"Layout      {s.get('layout', 'header')}: delimiter {delim}, decimal "
+                   f"'{s.get('decimal', '.')}', header line {s.get('header_line') or '-'}, "
+                   f"data from line {s.get('data_line', '-')}, encoding {s.get('encoding', '-')}"
+                   + (f" ({s['compression']})" if s.get("compression") else ""))
+        for note in s.get("layout_notes", ()):
+            out.append(f"  {note}")
+        for name, why in (s.get("dropped_columns") or {}).items():
+            out.append(f"  column {name!r} not read: {why}")
+    else:
+        out.append(f"Reader      {cap.provenance.reader}"
+                   + (f" (.cfg encoding {s['cfg_encoding']})" if s.get("cfg_encoding") else ""))
+    tb = s.get("time_base", "-")
+    where = ""
+    if "time_column" in s:
+        where = f" (column {s['time_column']!r} in {s['time_unit']})"
+    if s.get("declared_by"):
+        where += f" (declared by {s['declared_by']!r})"
+    out.append(f"Time base   {tb}{where}")
+    out.append(f"Sampling    {cap.fs_hz:g} Hz, {cap.n_samples} samples, {cap.duration_s:.4f} s"
+               + (f", first sample at {cap.t0_s:.9g} s" if cap.t0_s else ""))
     if s.get("metadata"):
         for k, v in s["metadata"].items():
-            click.echo(f"  {k}: {v}")
-    click.echo("")
-    click.echo(f"{'column':<16}{'guessed role':<16}{'unit':<6}{'min':>12}{'max':>12}{'rms':>12}")
+            out.append(f"  {k}: {v}")
+    out.append("")
+    out.append(f"{'column':<16}{'guessed role':<16}{'unit':<6}{'min':>12}{'max':>12}{'rms':>12}")
     ref_row, ref_rms = None, -1.0
+    evidence = []
     for k, c in enumerate(cap.channels):
         x = cap.samples[k]
         fin = x[np.isfinite(x)]
         rms = float(np.sqrt(np.mean(fin**2))) if fin.size else float("nan")
         role = "-" if c.quantity == "other" else f"{c.quantity} {c.phase or '(1ph)'}"
-        click.echo(f"{c.name:<16}{role:<16}{c.unit:<6}{_fmt(fin.min() if fin.size else None, 5):>12}"
+        out.append(f"{c.name:<16}{role:<16}{c.unit:<6}"
+                   f"{_fmt(fin.min() if fin.size else None, 5):>12}"
                    f"{_fmt(fin.max() if fin.size else None, 5):>12}{_fmt(rms, 5):>12}")
-        if c.quantity == "voltage" and (ref_row is None or cap.channels[ref_row].quantity != "voltage"):
+        evidence.append(f"  {c.name}: {c.evidence or 'no evidence of a role'}")
+        if c.quantity == "voltage" and (ref_row is None
+                                        or cap.channels[ref_row].quantity != "voltage"):
             ref_row, ref_rms = k, rms
         elif c.quantity == "current" and ref_row is None and rms > ref_rms:
             ref_row, ref_rms = k, rms
     if ref_row is None:
         ref_row = 0
-    f, _ = coarse_frequency(cap.samples[ref_row][: int(cap.fs_hz * 2) + 1], cap.fs_hz,
-                            f_lo_hz=40.0, f_hi_hz=70.0)
-    click.echo("")
-    click.echo(f"Fundamental about {_fmt(f, 6, 'Hz')} on {cap.channels[ref_row].name!r}")
+    out.append("")
+    out.append("Evidence for the guessed roles")
+    out += evidence
+    x = cap.samples[ref_row][: int(cap.fs_hz * 2) + 1]
+    out.append("")
+    out.append(fundamental_line(x, cap.fs_hz, cap.channels[ref_row].name, coarse_frequency))
     cur = [c.name for c in cap.by_quantity("current")]
     vol = [c.name for c in cap.by_quantity("voltage")]
-    click.echo("Roles as guessed; to set them explicitly use:")
-    click.echo(f"  --current {','.join(cur) or 'COLS'} --voltage {','.join(vol) or 'COLS'}")
+    out.append("Roles as guessed; to set them explicitly use:")
+    out.append(f"  --current {','.join(cur) or 'COLS'} --voltage {','.join(vol) or 'COLS'}")
     for fnd in cap.findings:
-        click.echo(f"[{fnd.severity}] {fnd.code}: {fnd.message}")
-    raise click.exceptions.Exit(EXIT_OK)
+        out.append(f"[{fnd.severity}] {fnd.code}: {fnd.message}")
+    return out
 
 
+def fundamental_line(x, fs_hz, name, coarse_frequency) -> str:
+    """"Fundamental about 50.01 Hz on 'va'", or "none found" when the strongest line between
+    40 and 70 Hz carries under a third of the channel's ac rms (a 1 kHz signal, a record
+    without a mains component), with the strongest component named instead."""
+    fin = np.nan_to_num(np.asarray(x, dtype=np.float64))
+    ac = fin - fin.mean() if fin.size else fin
+    ac_rms = float(np.sqrt(np.mean(ac**2))) if ac.size else 0.0
+    f, amp = coarse_frequency(fin, fs_hz, f_lo_hz=40.0, f_hi_hz=70.0)
+    if np.isfinite(f) and ac_rms > 0 and amp >= ac_rms / 3:
+        return f"Fundamental about {_fmt(f, 6, 'Hz')} on {name!r}"
+    f_all, amp_all = coarse_frequency(fin, fs_hz, f_lo_hz=1.0, f_hi_hz=fs_hz / 2)
+    strongest = (f"; its strongest component is at about {_fmt(f_all, 4, 'Hz')}"
+                 if np.isfinite(f_all) and amp_all > 0 else "")
+    return (f"Fundamental none found between 40 and 70 Hz on {name!r}{strongest}")
