@@ -1413,8 +1413,8 @@ class _Limits:
         key = (bisect.bisect_left(self.edges, x), x in self.edges)
         if key not in self.cache:
             try:
-                self.cache[key] = resolve(self.table, voltage_level=self.site.pcc_voltage_v,
-                                          isc=isc_a, il=il_a, generation=self.site.generation)
+                self.cache[key] = resolve(self.table, voltage_level_v=self.site.pcc_voltage_v,
+                                          isc_a=isc_a, il_a=il_a, generation=self.site.generation)
             except InputError as exc:
                 raise PlanError(f"limit table {self.table.id}: {exc.problem}",
                                 path=self.site.path, field="limits.table") from None

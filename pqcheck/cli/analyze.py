@@ -5,9 +5,10 @@ from __future__ import annotations
 import click
 import numpy as np
 
-from ._common import EXIT_OK, handle_errors, main, split_columns
+from ._common import EXIT_OK, handle_errors, main
+from ._fields import cli_text, spec_from_options
 
-__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs"]
+__all__ = ["capture_options", "run_checked"]
 
 
 def capture_options(func):
@@ -18,14 +19,15 @@ def capture_options(func):
                           "(a neutral may follow). Default: guessed from names and units."),
         click.option("--voltage", "voltage", metavar="COLS",
                      help="Voltage columns (line-to-neutral), comma-separated, phase order a,b,c."),
-        click.option("--sample-rate", "sample_rate", type=float, metavar="HZ",
+        click.option("--sample-rate", "sample_rate_hz", type=float, metavar="HZ",
                      help="Sample rate, for files without a time column or declared interval."),
         click.option("--time-column", "time_column", metavar="NAME",
                      help="Name of the time column when it is not recognised."),
-        click.option("--nominal-frequency", "nominal", type=click.Choice(["50", "60"]),
+        click.option("--nominal-frequency", "nominal_hz", type=click.Choice(["50", "60"]),
                      help="Nominal system frequency. Default: detected from the data."),
-        click.option("--max-order", "max_order", type=click.IntRange(2, 100), default=50,
-                     show_default=True, help="Highest harmonic order analysed."),
+        click.option("--max-order", "max_order", type=click.IntRange(2, 100),
+                     help="Highest harmonic order analysed. Default: the highest order the "
+                          "limit tables assess, 50 without tables."),
         click.option("--il", "il_a", type=float, metavar="A",
                      help="Maximum demand load current IL at the PCC, for TDD."),
         click.option("--wiring", type=click.Choice(["3-wire", "4-wire"]),
@@ -48,43 +50,20 @@ def capture_options(func):
     return func
 
 
-def analysis_kwargs(opts: dict) -> dict:
-    """Keyword arguments of :func:`pqcheck.analyze` from parsed capture options."""
-    return {
-        "nominal_hz": None if opts.get("nominal") is None else int(opts["nominal"]),
-        "max_order": opts.get("max_order", 50),
-        "il_a": opts.get("il_a"),
-        "wiring": opts.get("wiring"),
-        "reference": opts.get("reference"),
-        "voltage_connection": opts.get("voltage_connection"),
-    }
-
-
-def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
-    """Read and analyse one capture with parsed capture options; returns (capture, result).
-
-    Long captures are read block by block and, unless ``--no-cache``, cached; a progress bar
-    is shown on stderr for work over about a second when stderr is a terminal.
-    """
+def run_checked(spec, opts: dict, *, progress=None):
+    """Run :func:`pqcheck.run.check.check_capture` for ``spec`` with the cache options
+    (``no_cache``, ``cache_dir``) and, unless ``quiet``, a progress bar on stderr for work over
+    about a second when stderr is a terminal. Returns the :class:`CaptureRun`."""
     from ..run.cache import Cache
-    from ..run.check import analyze_file
+    from ..run.check import check_capture
 
     cache = None if opts.get("no_cache") else Cache(opts.get("cache_dir"))
     bar = None
     if progress is None and not opts.get("quiet"):
-        bar = _ProgressBar(capture_path)
+        bar = _ProgressBar(spec.reader.path)
         progress = bar
     try:
-        return analyze_file(
-            capture_path,
-            sample_rate_hz=opts.get("sample_rate"),
-            current=split_columns(opts.get("current")),
-            voltage=split_columns(opts.get("voltage")),
-            time_column=opts.get("time_column"),
-            cache=cache,
-            progress=progress,
-            **analysis_kwargs(opts),
-        )
+        return check_capture(spec, cache=cache, progress=progress)
     finally:
         if bar is not None:
             bar.close()
@@ -210,7 +189,7 @@ def render_table(result) -> str:
     if r.findings:
         lines.append("Findings")
         for f in r.findings:
-            lines.append(f"  [{f.severity}] {f.code}: {f.message}")
+            lines.append(f"  [{f.severity}] {f.code}: {cli_text(f.message)}")
     else:
         lines.append("Findings: none")
     return "\n".join(lines)
@@ -230,7 +209,7 @@ def analyze_cmd(capture, fmt, **opts):
     """
     from ..export import analysis_to_dict, dumps, harmonics_frame
 
-    _, result = load_and_analyze(capture, opts)
+    result = run_checked(spec_from_options(capture, opts), opts).result
     if fmt == "json":
         click.echo(dumps(analysis_to_dict(result)))
     elif fmt == "csv":
@@ -242,18 +221,18 @@ def analyze_cmd(capture, fmt, **opts):
 
 @main.command("inspect")
 @click.argument("capture", type=click.Path(dir_okay=False))
-@click.option("--sample-rate", "sample_rate", type=float, metavar="HZ",
+@click.option("--sample-rate", "sample_rate_hz", type=float, metavar="HZ",
               help="Sample rate, for files without a time column or declared interval.")
 @click.option("--time-column", "time_column", metavar="NAME",
               help="Name of the time column when it is not recognised.")
 @handle_errors
-def inspect_cmd(capture, sample_rate, time_column):
+def inspect_cmd(capture, sample_rate_hz, time_column):
     """Show what pqcheck reads in CAPTURE: columns, guessed roles, sample rate, duration and
     the detected fundamental. Use it to confirm the channel map before analysing."""
     from ..dsp.tracking import coarse_frequency
     from ..readers import load_capture
 
-    cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column)
+    cap = load_capture(capture, sample_rate_hz=sample_rate_hz, time_column=time_column)
     s = cap.provenance.settings
     click.echo(f"File        {cap.provenance.source}")
     click.echo(f"SHA-256     {cap.provenance.sha256}")
@@ -292,7 +271,7 @@ def inspect_cmd(capture, sample_rate, time_column):
     click.echo("Roles as guessed; to set them explicitly use:")
     click.echo(f"  --current {','.join(cur) or 'COLS'} --voltage {','.join(vol) or 'COLS'}")
     for fnd in cap.findings:
-        click.echo(f"[{fnd.severity}] {fnd.code}: {fnd.message}")
+        click.echo(f"[{fnd.severity}] {fnd.code}: {cli_text(fnd.message)}")
     raise click.exceptions.Exit(EXIT_OK)
 
 

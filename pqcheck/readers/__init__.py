@@ -142,7 +142,7 @@ def open_capture(
         raise CaptureFormatError("is a folder, not a capture file", path=str(path))
     if sample_rate_hz is not None and not (sample_rate_hz > 0):
         raise CaptureFormatError(f"sample rate must be positive, got {sample_rate_hz!r}",
-                                 field="--sample-rate")
+                                 field="sample_rate_hz")
     if stream_over_bytes == "default":
         stream_over_bytes = STREAM_OVER_BYTES
     suffix = p.suffix.lower()

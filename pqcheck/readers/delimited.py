@@ -546,14 +546,14 @@ def read_delimited(
         ch_names, units, scales = names, list(d.units), list(d.scales)
         if sample_rate_hz is not None:
             fs = float(sample_rate_hz)
-            settings["time_base"] = "--sample-rate"
+            settings["time_base"] = "sample_rate_hz"
         elif declared is not None:
             fs = declared
             settings["time_base"] = "declared in metadata"
         else:
             raise CaptureFormatError(
                 "no time column and no sample interval in the file's header lines; give the "
-                "sample rate with --sample-rate HZ (or name the time column with --time-column)",
+                "sample rate with `sample_rate_hz` (or name the time column with `time_column`)",
                 path=path, field="sample rate")
     if not ch_names:
         raise CaptureFormatError("the file has a time column but no signal columns", path=path,
@@ -602,7 +602,7 @@ def _time_base(t, data, path, d, tname, sample_rate_hz):
         what = "repeats" if dt[i] == 0 else "goes backwards"
         raise CaptureFormatError(
             f"time {what} ({t[i]:.9g} then {t[i + 1]:.9g} s); times must increase. Sort the "
-            "rows, remove duplicates, or drop the time column and give --sample-rate",
+            "rows, remove duplicates, or drop the time column and give `sample_rate_hz`",
             path=path, line=d.data_line + i + 1, field=tname)
     med = float(np.median(dt))
     dev = np.abs(dt - med) / med
@@ -611,7 +611,7 @@ def _time_base(t, data, path, d, tname, sample_rate_hz):
         if abs(fs_col - sample_rate_hz) > 0.01 * sample_rate_hz:
             findings.append(Finding(
                 "sample-rate-mismatch", "warning",
-                f"--sample-rate {sample_rate_hz:g} Hz differs from the time column "
+                f"`sample_rate_hz` {sample_rate_hz:g} Hz differs from the time column "
                 f"({fs_col:.6g} Hz); the given rate is used."))
         return float(sample_rate_hz), data, float(t[0]), findings
     jump = int(np.argmax(dt))
@@ -671,7 +671,7 @@ def find_time_column(d: Dialect, time_column, path):
         if time_column not in names:
             raise CaptureFormatError(
                 f"no column named {time_column!r}; columns are: {', '.join(names)}",
-                path=path, field="--time-column")
+                path=path, field="time_column")
         return names.index(time_column)
     for i, (name, unit) in enumerate(zip(names, d.units)):
         if unit == "s" or _TIME_NAMES.match(name):

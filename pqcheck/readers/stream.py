@@ -153,9 +153,9 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
         if fs is None:
             raise CaptureFormatError(
                 "no time column and no sample interval in the file's header lines; give the "
-                "sample rate with --sample-rate HZ (or name the time column with --time-column)",
+                "sample rate with `sample_rate_hz` (or name the time column with `time_column`)",
                 path=path, field="sample rate")
-        settings["time_base"] = "--sample-rate" if sample_rate_hz else "declared in metadata"
+        settings["time_base"] = "sample_rate_hz" if sample_rate_hz else "declared in metadata"
         t0 = 0.0
     fs = float(fs)
     settings["sample_rate_hz"] = fs
@@ -428,7 +428,7 @@ def _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings):
             "the time column is not uniform here (a step of "
             f"{step[k] / fs:.6g} s against {1 / fs:.6g} s); pqcheck reads long files block by "
             "block and needs a uniform time base: resample the export, or drop the time column "
-            "and give --sample-rate", path=path, line=line, field="time")
+            "and give `sample_rate_hz`", path=path, line=line, field="time")
     # gaps: insert NaN samples so later windows keep their place in time
     r = np.rint(step).astype(np.int64)
     missing = int((r - 1).sum())
