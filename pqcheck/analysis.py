@@ -417,7 +417,7 @@ def analyze(
         combos.append(w)
     combos = np.array(combos) if combos else None
 
-    clip = [quality.ClipDetector(c.name) for c in chans]
+    clip = [quality.ClipDetector(c.name, unit=c.unit) for c in chans]
     nonfinite = np.zeros(len(chans), dtype=np.int64)
     store = _WindowStore()  # per-window arrays; the large ones spill to a temporary file
     acc = None  # capture-level sums over valid windows, added block by block

@@ -89,6 +89,15 @@ class Check:
         The limit as the table gives it. [unit]
     multiplier : float
         Multiple of the limit the rule allows. [unitless]
+    basis : str
+        What measured and limit are relative to (``percent_of_il``,
+        ``percent_of_fundamental``, ``amperes``, ...; as the table's block says).
+    tag : str
+        Confidence tag of the limit value in the table: ``V`` verified, ``C`` computed,
+        ``P`` partly verified, ``M`` from memory.
+    period_start, period_end : str
+        For a statistic over periods of a survey (IEEE 519 daily / weekly percentiles): the
+        worst period, whose value ``measured`` is (ISO 8601; "" otherwise).
     """
 
     table_id: str
@@ -108,6 +117,10 @@ class Check:
     note: str = ""
     table_limit: float | None = None
     multiplier: float = 1.0
+    basis: str = ""
+    tag: str = ""
+    period_start: str = ""
+    period_end: str = ""
 
     @property
     def label(self) -> str:
@@ -125,7 +138,10 @@ class Check:
             "limit": _json_num(self.limit), "unit": self.unit,
             "margin_percent": _json_num(self.margin_percent), "verdict": self.verdict,
             "clause": self.clause, "verify": self.verify,
-            "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier})
+            "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier,
+            "basis": self.basis, "tag": self.tag})
+        if self.period_start:
+            d["period"] = {"start": self.period_start, "end": self.period_end}
         if self.note:
             d["note"] = self.note
         return d
@@ -618,7 +634,7 @@ class _TableAssessor:
             measured=None if measured is None or not math.isfinite(measured) else measured,
             limit=limit, unit=it.unit, margin_percent=margin, verdict=verdict,
             clause=it.clause, verify=bool(verify), note=note,
-            table_limit=it.limit, multiplier=multiplier)
+            table_limit=it.limit, multiplier=multiplier, basis=it.basis, tag=it.tag)
 
 
 def _stat_text(rule) -> str:

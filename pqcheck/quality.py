@@ -65,6 +65,7 @@ class ClipDetector:
     """
 
     name: str
+    unit: str = ""
     step: float = 0.0
     top: _Side = field(default_factory=_Side)
     bottom: _Side = field(default_factory=_Side)
@@ -146,7 +147,7 @@ class ClipDetector:
                 Finding(
                     "clipping",
                     "error",
-                    f"channel {self.name!r} looks clipped at its {label} rail ({level:.6g}): "
+                    f"channel {self.name!r} looks clipped at its {label} rail ({level:.6g}{' ' + self.unit if self.unit else ''}): "
                     f"{100 * fraction:.2f} % of samples sit flat there in {side.runs} runs. "
                     "Harmonics of a clipped waveform are wrong; re-capture with a larger "
                     "input range (volts/div) or a probe of lower gain.",

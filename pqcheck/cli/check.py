@@ -11,6 +11,7 @@ from ._common import VERDICT_EXIT, handle_errors, main
 from ._fields import cli_text, spec_from_options
 from ._limits import limit_options
 from .analyze import capture_options, run_checked
+from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__ = ["render_assessment"]
 
@@ -72,14 +73,19 @@ def render_assessment(assessment, result=None) -> str:
 
 
 @main.command("check")
-@click.argument("capture", type=click.Path(dir_okay=False))
+@click.argument("capture", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @limit_options(required=True)
 @capture_options
+@survey_options
 @click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
               show_default=True, help="Output on stdout.")
 @handle_errors
 def check_cmd(capture, fmt, **opts):
     """Check CAPTURE against limit tables.
+
+    CAPTURE is a waveform capture, or one or more interval logs of a survey (one row per
+    aggregation interval; see `pqcheck inspect`), which are assessed period by period as the
+    tables' statistics say (IEEE 519: every 24 h and every 7 days), naming the worst period.
 
     Analyses the capture by the IEC 61000-4-7 method, picks the limits that apply (row by
     --voltage-level/--isc/--il, --class, --rsce ...), compares each as the table's evaluation
@@ -87,7 +93,17 @@ def check_cmd(capture, fmt, **opts):
 
     Exit code: 0 pass, 1 a limit is exceeded, 3 inconclusive (data quality), 2 bad input.
     """
-    run = run_checked(spec_from_options(capture, opts), opts)
+    survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
+    from .survey_cmd import check_survey, is_survey_input
+
+    if is_survey_input(capture, survey_opts):
+        check_survey(capture, fmt, spec_from_options(None, opts), {**opts, **survey_opts})
+    if len(capture) > 1:
+        from ._common import fail_usage
+
+        fail_usage("several waveform captures were given; check them one at a time (or "
+                   "aggregate them into an interval log with `pqcheck aggregate`)")
+    run = run_checked(spec_from_options(capture[0], opts), opts)
     result, a = run.result, run.assessment
     if fmt == "json":
         d = a.to_dict()
