@@ -108,6 +108,9 @@ class ReaderOptions:
     time_column: str | None = None
 
     def __post_init__(self):
+        if self.path and not isinstance(self.path, (str, os.PathLike)):
+            raise InputError(f"must be the path of a capture file, got {self.path!r}",
+                             field="path")
         object.__setattr__(self, "path", os.fspath(self.path) if self.path else "")
         _positive(self, "sample_rate_hz")
         _text(self, "time_column")

@@ -101,7 +101,7 @@ def test_the_command_line_written_for_a_spec_parses_back_to_it():
     merged = {**spec.limits[0].resolve_kwargs(), "rated_current_a": 75.0}
     expected = dataclasses.replace(spec, limits=tuple(
         dataclasses.replace(s, **merged) for s in spec.limits))
-    assert spec_from_options(ctx.params["capture"], ctx.params) == expected
+    assert spec_from_options(ctx.params["capture"][0], ctx.params) == expected
 
 
 def test_every_spec_field_with_an_option_is_a_click_parameter():
