@@ -38,6 +38,7 @@ import typing
 from dataclasses import dataclass, field
 
 from .errors import InputError
+from .gates import Declared
 
 __all__ = ["ReaderOptions", "ChannelRoles", "AnalysisSettings", "LimitSelection",
            "ReportDetails", "RunSpec", "SPEC_VERSION", "RESOLVE_FIELDS", "ASSESS_FIELDS"]
@@ -296,6 +297,10 @@ class RunSpec:
     analysis : AnalysisSettings
     limits : tuple of LimitSelection
         One per table, in the order they are applied; empty for an analysis only.
+    declared : Declared
+        What the user declares about the test besides the selectors (measurement location,
+        equipment behaviour and cycle, representative period, phases:
+        :class:`pqcheck.gates.Declared`), for the assessment's gates.
     report : ReportDetails
     """
 
@@ -303,11 +308,11 @@ class RunSpec:
     channels: ChannelRoles = field(default_factory=ChannelRoles)
     analysis: AnalysisSettings = field(default_factory=AnalysisSettings)
     limits: tuple = ()
+    declared: Declared = field(default_factory=Declared)
     report: ReportDetails = field(default_factory=ReportDetails)
 
     def __post_init__(self):
-        for name, cls in (("reader", ReaderOptions), ("channels", ChannelRoles),
-                          ("analysis", AnalysisSettings), ("report", ReportDetails)):
+        for name, cls in _PART_TYPES.items():
             if not isinstance(getattr(self, name), cls):
                 raise InputError(f"must be a {cls.__name__}", field=name)
         lims = tuple(self.limits)
@@ -363,8 +368,8 @@ class RunSpec:
 
 
 _PART_TYPES = {"reader": ReaderOptions, "channels": ChannelRoles, "analysis": AnalysisSettings,
-               "report": ReportDetails}
-PARTS = (ReaderOptions, ChannelRoles, AnalysisSettings, LimitSelection, ReportDetails)
+               "declared": Declared, "report": ReportDetails}
+PARTS = (ReaderOptions, ChannelRoles, AnalysisSettings, LimitSelection, Declared, ReportDetails)
 
 
 def _part_dict(part) -> dict:

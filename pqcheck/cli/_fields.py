@@ -19,6 +19,7 @@ from __future__ import annotations
 import re
 import shlex
 
+from ..gates import Declared
 from ..record import (
     AnalysisSettings,
     ChannelRoles,
@@ -56,6 +57,11 @@ SPEC_OPTIONS = (
     ("limits.rated_current_a", "--rated-current"),
     ("limits.iref_a", "--iref"),
     ("limits.active_power_w", "--active-power"),
+    ("declared.location", "--location"),
+    ("declared.behaviour", "--behaviour"),
+    ("declared.cycle_s", "--cycle"),
+    ("declared.representative_period", "--representative-period"),
+    ("declared.phases", "--phases"),
     ("report.title", "--title"),
     ("report.equipment", "--equipment"),
     ("report.site", "--site"),
@@ -173,6 +179,8 @@ def spec_from_options(capture: str | None, opts: dict) -> RunSpec:
                               voltage=split_columns(ch.get("voltage"))),
         analysis=AnalysisSettings(**ana),
         limits=tuple(LimitSelection(table=t, **lim) for t in tables),
+        declared=Declared(**{k: v for k, v in p.get("declared", {}).items()
+                             if not (k == "representative_period" and v is None)}),
         report=ReportDetails(**p.get("report", {})),
     )
 
@@ -196,7 +204,7 @@ def command_line(command: str, spec: RunSpec, *, source: str | None = None) -> s
     seen = set()
     values = {
         "reader": spec.reader, "channels": spec.channels, "analysis": spec.analysis,
-        "report": spec.report,
+        "report": spec.report, "declared": spec.declared,
         "limits": spec.limits[0] if spec.limits else None,
     }
     for path, opt in SPEC_OPTIONS:

@@ -13,7 +13,8 @@ __all__ = ["LIMIT_OPTION_NAMES", "limit_options"]
 
 LIMIT_OPTION_NAMES = ("table", "voltage_level_v", "isc_a", "generation", "equipment_class",
                       "equipment_kind", "rsce", "ssc_va", "rated_apparent_power_va",
-                      "rated_current_a", "iref_a", "active_power_w")
+                      "rated_current_a", "iref_a", "active_power_w", "location",
+                      "behaviour", "cycle_s", "representative_period", "phases")
 
 
 def limit_options(*, required: bool, limits_help: str | None = None):
@@ -57,8 +58,27 @@ def limit_options(*, required: bool, limits_help: str | None = None):
         click.option("--iref", "iref_a", type=float, metavar="A",
                      help="Reference current Iref (IEC 61000-3-12)."),
         click.option("--active-power", "active_power_w", type=float, metavar="W",
-                     help="Active input power for per-watt limits (IEC 61000-3-2 Class D). "
-                          "Default: measured."),
+                     help="Declared active input power for per-watt limits and the scope's "
+                          "power bounds (IEC 61000-3-2); used when within 10 % of the "
+                          "measured one. Default: measured."),
+        click.option("--location", type=click.Choice(["pcc", "equipment-terminals"]),
+                     help="Where the capture was taken: at the point of common coupling (IEEE "
+                          "519) or at the supply terminals of the equipment (IEC 61000-3-2/-3-12)."),
+        click.option("--behaviour", metavar="KIND",
+                     help="Type of equipment behaviour for the observation period (IEC "
+                          "61000-3-2/-3-12): quasi-stationary, short-cyclic, random, "
+                          "long-cyclic. Default: quasi-stationary, listed as a deviation."),
+        click.option("--cycle", "cycle_s", type=float, metavar="S",
+                     help="Operating cycle of cyclic equipment [s] (short-cyclic: 10 cycles "
+                          "are observed; long-cyclic: one full cycle)."),
+        click.option("--representative-period", "representative_period", is_flag=True,
+                     default=False,
+                     help="Declare the capture a representative period shorter than the "
+                          "standard's observation, where the table allows it for the behaviour "
+                          "(said on page 1 of the report)."),
+        click.option("--phases", type=click.IntRange(1, 3), metavar="N",
+                     help="Number of phases of the equipment (a three-phase unit captured on "
+                          "fewer phases cannot pass)."),
     ]
 
     def decorate(func):

@@ -55,8 +55,9 @@ def run_checked(spec, opts: dict, *, progress=None):
     (``no_cache``, ``cache_dir``) and, unless ``quiet``, a progress bar on stderr for work over
     about a second when stderr is a terminal. Returns the :class:`CaptureRun`."""
     from ..run.cache import Cache
-    from ..run.check import check_capture
+    from ..run.check import check_capture, refuse_unused_selectors
 
+    refuse_unused_selectors(spec)
     cache = None if opts.get("no_cache") else Cache(opts.get("cache_dir"))
     bar = None
     if progress is None and not opts.get("quiet"):

@@ -106,7 +106,8 @@ def batch_cmd(inputs, out, csv_path, jobs, scheduler, workers, force, retry_erro
     pip install 'pqcheck[cluster]').
 
     Exit code: 0 every capture passes, 1 a capture fails, 3 a capture is inconclusive or could
-    not be checked (a capture-level error counts as inconclusive) and none fails, 2 bad input.
+    not be checked (a capture-level error counts as inconclusive) and none fails, 4 a capture is
+    not applicable (outside the tables' scope) and none fails or is inconclusive, 2 bad input.
     """
     from ..run.batch import (
         DaskExecutor,
@@ -127,7 +128,10 @@ def batch_cmd(inputs, out, csv_path, jobs, scheduler, workers, force, retry_erro
     if jobs is not None and (scheduler or workers):
         fail_usage("--jobs sets local worker processes; with Dask use --workers (local "
                    "cluster) or the cluster's own workers (--scheduler)")
+    from ..run.check import refuse_unused_selectors
+
     spec = spec_from_options(None, opts)
+    refuse_unused_selectors(spec)
     if scheduler or workers:
         executor = DaskExecutor(address=scheduler, workers=workers)
     elif jobs == 1:

@@ -32,11 +32,14 @@ def render_assessment(assessment, result=None) -> str:
     c = a.counts
     lines.append(f"Checks     {c.get('fail', 0)} fail, {c.get('inconclusive', 0)} inconclusive, "
                  f"{c.get('pass', 0)} pass, {c.get('not applicable', 0)} not applicable")
+    for label, texts in (("Why", a.reasons), ("Deviation", a.deviations)):
+        for k, text in enumerate(texts):
+            lines.append(f"{label if k == 0 else '':<10} {text}")
     if result is not None:
         lines.append(f"Capture    {result.source} ({result.duration_s:.3f} s, "
                      f"{int(result.windows.valid.sum())} valid windows)")
     for t in a.tables:
-        lines.append(f"Limits     {t.table_id}: {t.standard} {t.edition}, {t.title}")
+        lines.append(f"Limits     {t.display_name}: {t.standard} {t.edition}, {t.title}")
         lines.append(f"           file {t.source} (SHA-256 {t.sha256})")
         sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
                         for k, v in t.selectors)
@@ -91,7 +94,8 @@ def check_cmd(capture, fmt, **opts):
     --voltage-level/--isc/--il, --class, --rsce ...), compares each as the table's evaluation
     rule says, and prints one line per check, failing items first.
 
-    Exit code: 0 pass, 1 a limit is exceeded, 3 inconclusive (data quality), 2 bad input.
+    Exit code: 0 pass, 1 a limit is exceeded, 2 bad input, 3 inconclusive (data quality,
+    duration, a deviation), 4 not applicable (outside the table's scope).
     """
     survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
     from .survey_cmd import check_survey, is_survey_input

@@ -57,7 +57,8 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
     safety cautions and a sign-off block. The results JSON is attached to the PDF.
 
     Exit code as `pqcheck check`: 0 pass (or no limits applied), 1 a limit is exceeded,
-    3 inconclusive, 2 bad input or an existing output without --force (nothing is written).
+    3 inconclusive, 4 not applicable, 2 bad input or an existing output without --force
+    (nothing is written).
     """
     from ..files.atomic import check_target, write_atomic
     from ..report.job import ReportJob, ReportMeta, make_report_id

@@ -917,10 +917,12 @@ def summarize(table: pa.Table, *, worst: int = 10) -> dict:
 
 def exit_code(summary: dict) -> int:
     """1 if a capture fails, else 3 if one is inconclusive or could not be checked (error),
-    else 0."""
+    else 4 if one is not applicable (outside the tables' scope; never 0), else 0."""
     v = summary["verdicts"]
     if v.get("fail"):
         return 1
     if v.get("inconclusive") or v.get("error"):
         return 3
+    if v.get("not applicable"):
+        return 4
     return 0

@@ -23,7 +23,7 @@ from ..readers import open_capture
 from ..record import RunSpec
 
 __all__ = ["check_capture", "analyze_file", "resolve_selection", "resolve_limits",
-           "DEFAULT_MAX_ORDER"]
+           "refuse_unused_selectors", "analysis_order", "DEFAULT_MAX_ORDER"]
 
 DEFAULT_MAX_ORDER = 50
 """Highest order analysed when neither the spec nor a limit table sets one. [unitless]"""
@@ -85,6 +85,30 @@ def resolve_limits(spec: RunSpec) -> tuple:
             _tag(exc, f"limits[{k}]")
             raise
     return tuple(out)
+
+
+def refuse_unused_selectors(spec: RunSpec) -> None:
+    """Refuse a row selector that was given but that no applied table uses (a value given
+    once for every table, as on the command line, that selects nothing is a mistake).
+
+    Raises
+    ------
+    InputError
+        Naming the selector's field.
+    """
+    from ..limits import _INPUTS
+
+    resolved = resolve_limits(spec)
+    if not resolved:
+        return
+    unused = set.intersection(*(set(r.ignored) for r in resolved))
+    unused.discard("il")  # IL also sets TDD in the analysis
+    for name in ("equipment_class", "equipment", "rsce", "ssc", "rated_power",
+                 "voltage_level", "isc", "generation"):
+        if name in unused:
+            ids = ", ".join(r.table_id for r in resolved)
+            raise InputError(f"was given, but no limit table applied uses it ({ids}); leave it "
+                             "out or choose a table that has it", field=_INPUTS[name])
 
 
 def analyze_file(
@@ -199,7 +223,8 @@ def check_capture(spec: RunSpec, *, cache=None, progress=None, id: str | None = 
     assessments = []
     for k, (sel, lim) in enumerate(zip(spec.limits, resolved)):
         try:
-            assessments.append(assess(result, lim, **sel.assess_kwargs()))
+            assessments.append(assess(result, lim, declared=spec.declared,
+                                      **sel.assess_kwargs()))
         except InputError as exc:
             _tag(exc, f"assess[{k}]")
             raise
