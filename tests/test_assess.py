@@ -97,8 +97,8 @@ def test_ieee519_bench_capture_passes():
 def test_ieee519_needs_il():
     res = analyze(ieee519_capture(5.0, 3.0, 2.0), nominal_hz=60)
     limits = resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_il=35)
-    with pytest.raises(InputError, match=r"^--il: table ieee519-2022 gives limits in % of IL: "
-                                         r"give --il A \(maximum demand load current"):
+    with pytest.raises(InputError, match=r"^il_a: table ieee519-2022 gives limits in % of IL: "
+                                         r"give `il_a` \[A\] \(maximum demand load current"):
         assess(res, limits)
 
 

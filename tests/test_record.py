@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from conftest import write_without_observation
 
 from pqcheck.cli import main
 from pqcheck.cli._fields import SPEC_OPTIONS, command_line, spec_from_options
@@ -63,7 +64,7 @@ def test_every_field_is_in_the_dict_form():
                       ("analysis", AnalysisSettings), ("report", ReportDetails)):
         assert set(d[part]) == {f.name for f in dataclasses.fields(cls)}
     assert set(d["limits"][0]) == {f.name for f in dataclasses.fields(LimitSelection)}
-    assert len(PARTS) == 5
+    assert len(PARTS) == 6
 
 
 @pytest.mark.parametrize("make, message", [
@@ -128,16 +129,18 @@ def _report(folder, monkeypatch, *args) -> tuple:
 
 
 def test_cli_plan_and_batch_give_equal_specs(folder, monkeypatch):
+    # IEEE 519 as bundled needs a week of data: the copy without an observation period
+    table = write_without_observation(folder, "ieee519-2022").name
     res = _report(folder, monkeypatch, "run.csv", "--sample-rate", "6400", "--current", "ch1",
                   "--voltage", "ch2", "--nominal-frequency", "50", "--il", "100", "--limits",
-                  "ieee519-2022", "--voltage-level", "400", "--isc", "20000", "-o", "c.pdf",
+                  table, "--voltage-level", "400", "--isc", "20000", "-o", "c.pdf",
                   "--json", "c.json")
     assert res.exit_code == 0, res.output
     from_cli = RunSpec.from_dict(json.loads((folder / "c.json").read_text())
                                  ["captures"][0]["run_spec"])
     (folder / "plan.toml").write_text(
         '[site]\nnominal_voltage_v = 400\nnominal_frequency_hz = 50\nisc_a = 20000\n'
-        'il_a = 100\n[[limits]]\ntable = "ieee519-2022"\n'
+        f'il_a = 100\n[[limits]]\ntable = "{table}"\n'
         '[[captures]]\nfile = "run.csv"\nsample_rate_hz = 6400\ncurrent = ["ch1"]\n'
         'voltage = ["ch2"]\n')
     res = _report(folder, monkeypatch, "plan.toml", "-o", "p.pdf", "--json", "p.json")
@@ -146,8 +149,14 @@ def test_cli_plan_and_batch_give_equal_specs(folder, monkeypatch):
                                   ["captures"][0]["run_spec"])
     # the plan names the capture by its resolved path
     assert Path(from_plan.reader.path) == (folder / "run.csv").resolve()
+    # ... and the table by its path resolved against the plan's folder
+    assert Path(from_plan.limits[0].table) == (folder / table).resolve()
+    from_plan = dataclasses.replace(from_plan, limits=tuple(
+        dataclasses.replace(s, table=table) for s in from_plan.limits))
     assert from_plan.with_capture("run.csv") == from_cli
-    assert batch_spec(from_cli) == from_cli.with_capture("")
+    # a batch checks every capture with the same template (user tables by absolute path)
+    assert batch_spec(from_cli) == dataclasses.replace(from_cli.with_capture(""), limits=tuple(
+        dataclasses.replace(s, table=os.path.abspath(s.table)) for s in from_cli.limits))
 
 
 def test_one_error_named_in_three_vocabularies(folder, monkeypatch):
