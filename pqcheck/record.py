@@ -102,11 +102,17 @@ class ReaderOptions:
         Sample rate, for files without a time column or declared interval. [Hz]
     time_column : str or None
         Name of the time column when it is not recognised.
+    encoding : str or None
+        Text encoding of the capture (or of a COMTRADE .cfg); None: detected.
+    other_files : tuple of str
+        More files of the same capture (one file per channel, same time base).
     """
 
     path: str = ""
     sample_rate_hz: float | None = None
     time_column: str | None = None
+    encoding: str | None = None
+    other_files: tuple = ()
 
     def __post_init__(self):
         if self.path and not isinstance(self.path, (str, os.PathLike)):
@@ -114,7 +120,14 @@ class ReaderOptions:
                              field="path")
         object.__setattr__(self, "path", os.fspath(self.path) if self.path else "")
         _positive(self, "sample_rate_hz")
-        _text(self, "time_column")
+        _text(self, "time_column", "encoding")
+        files = (self.other_files,) if isinstance(self.other_files, str) else self.other_files
+        object.__setattr__(self, "other_files", tuple(os.fspath(f) for f in files or ()))
+
+    @property
+    def paths(self):
+        """What to open: the path, or the list of every file of the capture."""
+        return [self.path, *self.other_files] if self.other_files else self.path
 
 
 @dataclass(frozen=True)

@@ -36,6 +36,8 @@ SPEC_OPTIONS = (
     ("reader.path", "CAPTURE"),
     ("reader.sample_rate_hz", "--sample-rate"),
     ("reader.time_column", "--time-column"),
+    ("reader.encoding", "--encoding"),
+    ("reader.other_files", "--add-file"),
     ("channels.current", "--current"),
     ("channels.voltage", "--voltage"),
     ("analysis.nominal_hz", "--nominal-frequency"),
@@ -88,7 +90,8 @@ OTHER_OPTIONS = {
 
 _BY_NAME = {**{path.rsplit(".", 1)[1]: opt for path, opt in SPEC_OPTIONS}, **OTHER_OPTIONS}
 _BY_NAME["path"] = "CAPTURE"
-_TICKED = re.compile(r"`([A-Za-z_][A-Za-z0-9_]*)`")
+# a field named in a message: in backquotes (`il_a`) or alone in brackets ((sample_rate_hz))
+_TICKED = re.compile(r"`([A-Za-z_][A-Za-z0-9_]*)`|(?<=\()([a-z][a-z0-9]*_[a-z0-9_]+|wiring)(?=\))")
 
 
 def option_for(name: str | None) -> str | None:
@@ -102,7 +105,11 @@ def option_for(name: str | None) -> str | None:
 
 def cli_text(text: str) -> str:
     """Put options in place of the ```field``` names of a library message."""
-    return _TICKED.sub(lambda m: _BY_NAME.get(m.group(1), m.group(1)), text)
+    def sub(m):
+        name = m.group(1) or m.group(2)
+        return _BY_NAME.get(name, m.group(0) if m.group(2) else name)
+
+    return _TICKED.sub(sub, text)
 
 
 def cli_message(exc) -> str:

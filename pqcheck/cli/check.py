@@ -103,10 +103,9 @@ def check_cmd(capture, fmt, **opts):
     if is_survey_input(capture, survey_opts):
         check_survey(capture, fmt, spec_from_options(None, opts), {**opts, **survey_opts})
     if len(capture) > 1:
-        from ._common import fail_usage
+        from .survey_cmd import check_recording
 
-        fail_usage("several waveform captures were given; check them one at a time (or "
-                   "aggregate them into an interval log with `pqcheck aggregate`)")
+        check_recording(capture, fmt, spec_from_options(None, opts), {**opts, **survey_opts})
     run = run_checked(spec_from_options(capture[0], opts), opts)
     result, a = run.result, run.assessment
     if fmt == "json":

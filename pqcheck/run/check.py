@@ -120,6 +120,7 @@ def analyze_file(
     time_column=None,
     cache=None,
     progress=None,
+    encoding=None,
     **analysis_kwargs,
 ):
     """Open and analyse one capture file.
@@ -128,7 +129,7 @@ def analyze_file(
     ----------
     path : str or Path
         Capture file (see :func:`pqcheck.readers.load_capture` for formats).
-    sample_rate_hz, current, voltage, time_column
+    sample_rate_hz, current, voltage, time_column, encoding
         Reader options. [Hz] for the rate.
     cache : pqcheck.run.cache.Cache or None
         Cache of parsed samples and results; None disables caching.
@@ -146,14 +147,16 @@ def analyze_file(
         :class:`~pqcheck.analysis.AnalysisResult`.
     """
     capture = open_capture(path, sample_rate_hz=sample_rate_hz, current=current,
-                           voltage=voltage, time_column=time_column, cache=cache)
+                           voltage=voltage, time_column=time_column, cache=cache,
+                           encoding=encoding)
     key = None
     sha = capture.provenance.sha256
     if cache is not None:
         key = {
             "analysis": {k: analysis_kwargs.get(k) for k in sorted(analysis_kwargs)},
             "channels": [(c.name, c.quantity, c.phase) for c in capture.channels],
-            "reader": {"sample_rate_hz": sample_rate_hz, "time_column": time_column},
+            "reader": {"sample_rate_hz": sample_rate_hz, "time_column": time_column,
+                       **({"encoding": encoding} if encoding else {})},
         }
         if sha:
             hit = cache.load_result(sha, key)
@@ -212,7 +215,8 @@ def check_capture(spec: RunSpec, *, cache=None, progress=None, id: str | None = 
     order = analysis_order(spec, resolved)
     try:
         capture, result = analyze_file(
-            spec.reader.path, sample_rate_hz=spec.reader.sample_rate_hz,
+            spec.reader.paths, sample_rate_hz=spec.reader.sample_rate_hz,
+            encoding=spec.reader.encoding,
             current=None if spec.channels.current is None else list(spec.channels.current),
             voltage=None if spec.channels.voltage is None else list(spec.channels.voltage),
             time_column=spec.reader.time_column, cache=cache, progress=progress,
