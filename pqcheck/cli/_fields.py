@@ -234,8 +234,12 @@ def command_line(command: str, spec: RunSpec, *, source: str | None = None) -> s
         if isinstance(v, bool):
             if v:
                 words.append(opt)
+        elif path == "reader.other_files":
+            for f in v:
+                words += [opt, shlex.quote(f)]
         elif isinstance(v, tuple):
-            words += [opt, shlex.quote(",".join(v))]
+            if v:
+                words += [opt, shlex.quote(",".join(v))]
         else:
             words += [opt, shlex.quote(f"{v:g}" if isinstance(v, float) else str(v))]
     return " ".join(words)
