@@ -107,6 +107,8 @@ def quantity_label(quantity, applies_to, order) -> str:
         return f"{iv}{int(order)}"
     if quantity == "THD":
         return f"THD({iv})"
+    if quantity == "dc_rel":  # IEC 61000-3-3 relative steady-state voltage change
+        return "dc"
     return quantity
 
 
@@ -386,6 +388,7 @@ _KEYWORDS = {
     "rsce": "rsce",
     "ssc_va": "ssc",
     "rated_apparent_power_va": "rated_power",
+    "switching": "switching",
 }
 _INPUTS = {inner: kw for kw, inner in _KEYWORDS.items()}  # for error fields
 _NUMERIC = ("voltage_level", "isc", "il", "isc_il", "rsce", "ssc", "rated_power")
@@ -931,7 +934,8 @@ def dump_toml(table: LimitTable) -> str:
     for key in ("id", "title", "standard", "edition", "clause", "measure", "measure_tag"):
         if getattr(t, key) or key in ("id", "title", "standard", "edition", "measure"):
             _put(out, key, getattr(t, key))
-    _put(out, "max_order", t.max_order)
+    if t.max_order:  # a flicker table has none
+        _put(out, "max_order", t.max_order)
     _put(out, "tag", t.tag)
     if t.notes:
         out.append("notes = [")

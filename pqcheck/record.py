@@ -166,6 +166,18 @@ class AnalysisSettings:
         Channel whose fundamental sets the windows.
     voltage_connection : str or None
         ``"line-to-neutral"`` or ``"line-to-line"``.
+    flicker : bool
+        Also evaluate flicker and voltage changes (implied by a flicker limit table).
+    flicker_path : str
+        Voltage the flickermeter sees: ``"auto"``, ``"voltage"``, ``"reference-impedance"``
+        or ``"system-impedance"`` (:class:`pqcheck.flicker.FlickerSettings`).
+    system_impedance_ohm : tuple of float or None
+        Supply impedance for IEC 61000-3-11: ``(R, X)`` of a single-phase loop or
+        ``(R, X, RN, XN)``, reactance at 50 Hz. [ohm]
+    lamp : str or None
+        Flickermeter lamp, ``"230V"`` or ``"120V"``; None: by the nominal voltage.
+    nominal_voltage_v : float or None
+        Nominal line-to-neutral voltage the voltage changes are relative to. [V]
     """
 
     nominal_hz: int | None = None
@@ -174,6 +186,11 @@ class AnalysisSettings:
     wiring: str | None = None
     reference: str | None = None
     voltage_connection: str | None = None
+    flicker: bool = False
+    flicker_path: str = "auto"
+    system_impedance_ohm: tuple | None = None
+    lamp: str | None = None
+    nominal_voltage_v: float | None = None
 
     def __post_init__(self):
         if self.nominal_hz is not None:
@@ -188,20 +205,47 @@ class AnalysisSettings:
                 raise InputError(f"must be a whole number from 2 to 100, got {v!r}",
                                  field="max_order")
             object.__setattr__(self, "max_order", int(v))
-        _positive(self, "il_a")
+        _positive(self, "il_a", "nominal_voltage_v")
         _choice(self, "wiring", ("3-wire", "4-wire"))
         _choice(self, "voltage_connection", ("line-to-neutral", "line-to-line"))
+        _choice(self, "flicker_path", ("auto", "voltage", "reference-impedance",
+                                       "system-impedance"))
+        _choice(self, "lamp", ("230V", "120V"))
         _text(self, "reference")
+        if not isinstance(self.flicker, bool):
+            raise InputError(f"must be true or false, got {self.flicker!r}", field="flicker")
+        z = self.system_impedance_ohm
+        if z is not None:
+            try:
+                z = tuple(float(x) for x in z)
+            except (TypeError, ValueError):
+                z = ()
+            if len(z) not in (2, 4) or not all(math.isfinite(x) for x in z):
+                raise InputError(f"give R,X or R,X,RN,XN in ohm, got {self.system_impedance_ohm!r}",
+                                 field="system_impedance_ohm")
+            object.__setattr__(self, "system_impedance_ohm", z)
+        if self.flicker_path == "system-impedance" and z is None:
+            raise InputError("the system-impedance path needs `system_impedance_ohm` "
+                             "R,X[,RN,XN]", field="system_impedance_ohm")
 
     def analyze_kwargs(self, max_order: int) -> dict:
         """Keyword arguments of :func:`pqcheck.analyze`, with the order to analyse up to."""
-        kw = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
+        kw = {k: getattr(self, k) for k in ANALYZE_FIELDS}
         kw["max_order"] = max_order
         return kw
 
+    @property
+    def wants_flicker(self) -> bool:
+        """Flicker asked for, by the switch or by a flicker setting."""
+        return bool(self.flicker or self.flicker_path != "auto" or self.system_impedance_ohm)
+
+
+ANALYZE_FIELDS = ("nominal_hz", "max_order", "il_a", "wiring", "reference", "voltage_connection")
+"""Fields of :class:`AnalysisSettings` that :func:`pqcheck.analyze` takes."""
+
 
 RESOLVE_FIELDS = ("voltage_level_v", "isc_a", "il_a", "generation", "equipment_class",
-                  "equipment_kind", "rsce", "ssc_va", "rated_apparent_power_va")
+                  "equipment_kind", "rsce", "ssc_va", "rated_apparent_power_va", "switching")
 """Fields of :class:`LimitSelection` that :func:`pqcheck.limits.resolve` takes (row
 selectors)."""
 ASSESS_FIELDS = ("il_a", "rated_current_a", "iref_a", "active_power_w")
@@ -235,6 +279,8 @@ class LimitSelection:
         Short-circuit power at the point of connection, to compute Rsce. [VA]
     rated_apparent_power_va : float or None
         Rated apparent power of the equipment, to compute Rsce. [VA]
+    switching : str or None
+        How the equipment is switched (IEC 61000-3-3 / -3-11 dmax limit).
     rated_current_a : float or None
         Rated current (IEEE 1547; Iref of IEC 61000-3-12 unless ``iref_a``). [A]
     iref_a : float or None
@@ -253,6 +299,7 @@ class LimitSelection:
     rsce: float | None = None
     ssc_va: float | None = None
     rated_apparent_power_va: float | None = None
+    switching: str | None = None
     rated_current_a: float | None = None
     iref_a: float | None = None
     active_power_w: float | None = None
@@ -265,7 +312,7 @@ class LimitSelection:
         object.__setattr__(self, "table", table.strip())
         _positive(self, "voltage_level_v", "isc_a", "il_a", "rsce", "ssc_va",
                   "rated_apparent_power_va", "rated_current_a", "iref_a", "active_power_w")
-        _text(self, "equipment_class", "equipment_kind")
+        _text(self, "equipment_class", "equipment_kind", "switching")
         if self.generation is not None and not isinstance(self.generation, bool):
             raise InputError(f"must be true or false, got {self.generation!r}",
                              field="generation")

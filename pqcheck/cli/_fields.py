@@ -46,6 +46,11 @@ SPEC_OPTIONS = (
     ("analysis.wiring", "--wiring"),
     ("analysis.reference", "--reference"),
     ("analysis.voltage_connection", "--voltage-connection"),
+    ("analysis.flicker", "--flicker"),
+    ("analysis.flicker_path", "--flicker-path"),
+    ("analysis.system_impedance_ohm", "--system-impedance"),
+    ("analysis.lamp", "--lamp"),
+    ("analysis.nominal_voltage_v", "--nominal-voltage"),
     ("limits.table", "--limits"),
     ("limits.voltage_level_v", "--voltage-level"),
     ("limits.isc_a", "--isc"),
@@ -56,6 +61,7 @@ SPEC_OPTIONS = (
     ("limits.rsce", "--rsce"),
     ("limits.ssc_va", "--ssc"),
     ("limits.rated_apparent_power_va", "--rated-power"),
+    ("limits.switching", "--switching"),
     ("limits.rated_current_a", "--rated-current"),
     ("limits.iref_a", "--iref"),
     ("limits.active_power_w", "--active-power"),
@@ -177,6 +183,15 @@ def spec_from_options(capture: str | None, opts: dict) -> RunSpec:
     ana = dict(p.get("analysis", {}))
     if ana.get("nominal_hz") is not None:
         ana["nominal_hz"] = int(ana["nominal_hz"])
+    z = ana.get("system_impedance_ohm")
+    if isinstance(z, str):  # "R,X[,RN,XN]"
+        try:
+            ana["system_impedance_ohm"] = tuple(float(x) for x in z.replace(";", ",").split(","))
+        except ValueError:
+            pass  # the spec names the bad value
+    for name in ("flicker", "flicker_path"):
+        if ana.get(name) is None:
+            ana.pop(name, None)
     lim = dict(p.get("limits", {}))
     tables = lim.pop("table", None) or ()
     return RunSpec(
@@ -239,7 +254,10 @@ def command_line(command: str, spec: RunSpec, *, source: str | None = None) -> s
                 words += [opt, shlex.quote(f)]
         elif isinstance(v, tuple):
             if v:
-                words += [opt, shlex.quote(",".join(v))]
+                words += [opt, shlex.quote(",".join(f"{x:g}" if isinstance(x, float) else x
+                                                    for x in v))]
+        elif path == "analysis.flicker_path" and v == "auto":
+            continue
         else:
             words += [opt, shlex.quote(f"{v:g}" if isinstance(v, float) else str(v))]
     return " ".join(words)

@@ -14,7 +14,8 @@ __all__ = ["LIMIT_OPTION_NAMES", "limit_options"]
 LIMIT_OPTION_NAMES = ("table", "voltage_level_v", "isc_a", "generation", "equipment_class",
                       "equipment_kind", "rsce", "ssc_va", "rated_apparent_power_va",
                       "rated_current_a", "iref_a", "active_power_w", "location",
-                      "behaviour", "cycle_s", "representative_period", "phases")
+                      "behaviour", "cycle_s", "representative_period", "phases",
+                      "switching")
 
 
 def limit_options(*, required: bool, limits_help: str | None = None):
@@ -57,6 +58,10 @@ def limit_options(*, required: bool, limits_help: str | None = None):
                           "--iref)."),
         click.option("--iref", "iref_a", type=float, metavar="A",
                      help="Reference current Iref (IEC 61000-3-12)."),
+        click.option("--switching", "switching", metavar="KIND",
+                     help="How the equipment is switched (IEC 61000-3-3 / -3-11 dmax limit): "
+                          "automatic (4 %), manual-or-delayed-restart (6 %), "
+                          "attended-or-twice-daily (7 %)."),
         click.option("--active-power", "active_power_w", type=float, metavar="W",
                      help="Declared active input power for per-watt limits and the scope's "
                           "power bounds (IEC 61000-3-2); used when within 10 % of the "

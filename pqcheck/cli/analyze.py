@@ -46,6 +46,27 @@ def capture_options(func):
                      type=click.Choice(["line-to-neutral", "line-to-line"]),
                      help="How the voltages were measured. Default: line-to-line when the "
                           "three voltage names end in ab, bc, ca, else line-to-neutral."),
+        click.option("--flicker", "flicker", is_flag=True, default=False,
+                     help="Also evaluate flicker (IEC 61000-4-15 Pst, Plt) and voltage changes "
+                          "(IEC 61000-3-3 dc, dmax, Tmax) per voltage channel, or per current "
+                          "channel through an impedance. Implied by a flicker limit table."),
+        click.option("--flicker-path", "flicker_path",
+                     type=click.Choice(["auto", "voltage", "reference-impedance",
+                                        "system-impedance"]), default="auto", show_default=True,
+                     help="Voltage the flickermeter sees: the measured voltage, or the current "
+                          "through the IEC 61000-3-3 reference impedance or through "
+                          "--system-impedance (IEC 61000-3-11). auto: voltage when the capture "
+                          "has one, else reference-impedance."),
+        click.option("--system-impedance", "system_impedance_ohm", metavar="R,X[,RN,XN]",
+                     help="Supply impedance for IEC 61000-3-11 in ohm (reactance at 50 Hz): "
+                          "phase R,X and optionally neutral RN,XN; with only R,X it is a "
+                          "single-phase loop split 3:2 between phase and neutral as Zref."),
+        click.option("--lamp", type=click.Choice(["230V", "120V"]),
+                     help="Flickermeter lamp. Default: 120V below 180 V nominal, else 230V."),
+        click.option("--nominal-voltage", "nominal_voltage_v", type=float, metavar="V",
+                     help="Nominal line-to-neutral voltage Un the voltage changes are relative "
+                          "to. Default: the standard value nearest to the data (230 V on the "
+                          "impedance paths at 50 Hz, 120 V at 60 Hz)."),
         click.option("--no-cache", "no_cache", is_flag=True,
                      help="Do not read or write the cache of parsed captures and results."),
         click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False),
@@ -193,6 +214,9 @@ def render_table(result) -> str:
         if "i_unbalance_percent" in p.extra:
             lines.append(f"  current unbalance (I2/I1) {_fmt(p.extra['i_unbalance_percent'], 3)} %"
                          f", voltage unbalance {_fmt(p.extra['v_unbalance_percent'], 3)} %")
+    if r.flicker is not None:
+        lines.append("")
+        lines += render_flicker(r.flicker)
     lines.append("")
     if r.findings:
         lines.append("Findings")
@@ -201,6 +225,31 @@ def render_table(result) -> str:
     else:
         lines.append("Findings: none")
     return "\n".join(lines)
+
+
+def render_flicker(fa) -> list:
+    """Text lines of a flicker evaluation."""
+    out = [f"Flicker (IEC 61000-4-15) and voltage changes (IEC 61000-3-3), path {fa.path}"]
+    head = (f"{'channel':<12}{'lamp':<11}{'Pst max':>9}{'Plt':>8}{'Pinst max':>11}"
+            f"{'dc %':>8}{'dmax %':>8}{'Tmax s':>8}  Pst interval")
+    out.append(head)
+    out.append("-" * len(head))
+    for c in fa.channels:
+        d = c.to_dict()
+        out.append(
+            f"{c.channel:<12}{c.meter.lamp:<11}{_fmt(c.pst_max, 4):>9}"
+            f"{_fmt(c.plt, 4) if c.plt is not None else '-':>8}"
+            f"{_fmt(c.meter.pinst_max, 4):>11}{_fmt(d['dc_percent'], 3):>8}"
+            f"{_fmt(c.change.dmax_percent, 3):>8}{_fmt(c.change.tmax_s, 3):>8}  "
+            f"{len(c.meter.pst)} x {c.meter.interval_s:g} s")
+        if c.derived_from:
+            out.append(f"  derived from {c.derived_from} through {c.impedance}, source "
+                       f"{c.source}, Un {c.un_v:g} V")
+        for f in c.findings:
+            out.append(f"  [{f.severity}] {f.code}: {f.message}")
+    for f in fa.findings:
+        out.append(f"  [{f.severity}] {f.code}: {f.message}")
+    return out
 
 
 @main.command("analyze")

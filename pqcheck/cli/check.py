@@ -47,7 +47,9 @@ def render_assessment(assessment, result=None) -> str:
             lines.append(f"           selectors: {sel}")
         for row in t.rows:
             lines.append(f"           {row}")
-        lines.append(f"           measure: IEC 61000-4-7 harmonic {t.measure}")
+        lines.append("           measure: IEC 61000-4-15 flickermeter and IEC 61000-3-3 "
+                     "voltage changes" if t.measure == "flicker"
+                     else f"           measure: IEC 61000-4-7 harmonic {t.measure}")
     if a.notes:
         lines.append("Notes")
         lines += [f"  - {cli_text(n)}" for n in a.notes]

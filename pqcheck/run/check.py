@@ -23,7 +23,8 @@ from ..readers import open_capture
 from ..record import RunSpec
 
 __all__ = ["check_capture", "analyze_file", "resolve_selection", "resolve_limits",
-           "refuse_unused_selectors", "analysis_order", "DEFAULT_MAX_ORDER"]
+           "refuse_unused_selectors", "analysis_order", "flicker_settings",
+           "DEFAULT_MAX_ORDER"]
 
 DEFAULT_MAX_ORDER = 50
 """Highest order analysed when neither the spec nor a limit table sets one. [unitless]"""
@@ -170,10 +171,29 @@ def analyze_file(
 
 def analysis_order(spec: RunSpec, resolved) -> int:
     """The order to analyse up to: the spec's ``max_order``, else the highest order any
-    applied table assesses, else :data:`DEFAULT_MAX_ORDER`. [unitless]"""
+    applied table assesses (flicker tables assess none), else :data:`DEFAULT_MAX_ORDER`.
+    [unitless]"""
     if spec.analysis.max_order is not None:
         return spec.analysis.max_order
-    return max((r.max_order for r in resolved), default=DEFAULT_MAX_ORDER)
+    return max((r.max_order for r in resolved if r.max_order), default=DEFAULT_MAX_ORDER)
+
+
+def flicker_settings(spec: RunSpec, resolved=()):
+    """The :class:`pqcheck.flicker.FlickerSettings` of ``spec`` (None: no flicker), asked for
+    by the spec or implied by a flicker limit table."""
+    a = spec.analysis
+    if not (a.wants_flicker or any(r.measure == "flicker" for r in resolved)):
+        return None
+    from ..flicker import FlickerSettings, SupplyImpedance
+
+    z = a.system_impedance_ohm
+    path = a.flicker_path
+    if z is not None:
+        z = SupplyImpedance.from_loop(*z) if len(z) == 2 else SupplyImpedance(*z)
+        if path == "auto":
+            path = "system-impedance"
+    return FlickerSettings(path=path, lamp=a.lamp, nominal_v=a.nominal_voltage_v,
+                           system_impedance=z)
 
 
 def check_capture(spec: RunSpec, *, cache=None, progress=None, id: str | None = None,
@@ -221,6 +241,12 @@ def check_capture(spec: RunSpec, *, cache=None, progress=None, id: str | None = 
             voltage=None if spec.channels.voltage is None else list(spec.channels.voltage),
             time_column=spec.reader.time_column, cache=cache, progress=progress,
             **spec.analysis.analyze_kwargs(order))
+        fl = flicker_settings(spec, resolved)
+        if fl is not None:  # evaluated on the capture's samples, never cached
+            from ..flicker import analyze_flicker
+
+            result = dataclasses.replace(result, flicker=analyze_flicker(
+                capture, nominal_hz=int(result.settings.nominal_hz), settings=fl))
     except InputError as exc:
         _tag(exc, "reader")
         raise
