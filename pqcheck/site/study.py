@@ -406,7 +406,7 @@ class _Case:
             note = ""
             if vals is None:
                 k, val, complete = 0, math.nan, False
-                note = f"order {item.order} is above the orders the study computes"
+                note = f"above the orders the study computes (up to {orders.size - 1})"
             else:
                 row = vals[m]
                 k = _worst_phase(row)
@@ -414,14 +414,14 @@ class _Case:
                 if item.quantity == HARMONIC:
                     complete = item.order <= max_h and item.order not in self.bad_orders
                     if not complete:
-                        note = (f"order {item.order} is not resolved by every unit's data"
-                                if item.order > max_h else
-                                f"a unit's data have an error finding for order {item.order}")
+                        note = (f"not resolved by every unit's data (they resolve orders up "
+                                f"to {max_h})" if item.order > max_h else
+                                "a unit's data have an error finding for this order")
                 else:
                     complete = complete_totals
                     if not complete:
                         note = (f"counts only orders 2 to {max_h} and orders without an error "
-                                "finding in the units' data")
+                                "finding in the units' data, so it may read low")
             if _exceeded(val, item.limit):
                 verdict = "fail"
             elif not math.isfinite(val) or not complete:
