@@ -263,14 +263,14 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
     Raises
     ------
     InputError
-        A limit needs a reference value that was not given (``--il``, ``--rated-current``,
-        ``--iref``), or a reference value is not positive.
+        A limit needs a reference value that was not given (``il_a``, ``rated_current_a``,
+        ``iref_a``), or a reference value is not positive.
     """
     tables = (limits,) if isinstance(limits, ResolvedLimits) else tuple(limits)
     if il_a is None:
         il_a = getattr(result.settings, "il_a", None)
-    for name, v in (("--il", il_a), ("--rated-current", rated_current_a), ("--iref", iref_a),
-                    ("--active-power", active_power_w)):
+    for name, v in (("il_a", il_a), ("rated_current_a", rated_current_a), ("iref_a", iref_a),
+                    ("active_power_w", active_power_w)):
         if v is not None and not (math.isfinite(v) and v > 0):
             raise InputError(f"must be a positive number, got {v!r}", field=name)
     refs = {"il": il_a, "rated": rated_current_a, "iref": iref_a or rated_current_a,
@@ -278,13 +278,48 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
     declared = declared or gates.Declared()
     checks, notes, found = [], [], []
     for t in tables:
-        c, n, g = _TableAssessor(result, t, refs, declared).run_gated()
+        if t.measure == "flicker":  # IEC 61000-3-3 / -3-11: pqcheck.flicker assesses them
+            c, n, g = _flicker_table(result, t, refs, declared)
+        else:
+            c, n, g = _TableAssessor(result, t, refs, declared).run_gated()
         checks += c
         notes += n
         found += g
     counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
     return Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
                       notes=tuple(dict.fromkeys(notes)), counts=counts, gates=tuple(found))
+
+
+def _flicker_table(result, table, refs, declared):
+    """Checks of a flicker table (pqcheck.flicker), behind the table's scope gates."""
+    from .flicker.assess import flicker_checks
+
+    flicker = getattr(result, "flicker", None)
+    if flicker is None:
+        raise InputError(f"{table.table_id} limits flicker and voltage changes; the analysis "
+                         "has no flicker evaluation (analyse with flicker = true)",
+                         field="flicker")
+    found = gates.scope_gates(result, table, declared, refs, trust_measured=True)
+    out_of_scope = [g for g in found if g.effect == "not applicable"]
+    blocking = [g for g in found if g.effect == "inconclusive"]
+    notes = [g.message for g in found if g.effect == "deviation"]
+    rows = [_gate_row(table, g) for g in out_of_scope + blocking]
+    if out_of_scope:
+        return rows, notes + [g.message for g in out_of_scope], found
+    checks, n = flicker_checks(flicker, table, check_cls=Check)
+    if blocking:
+        why = "; ".join(g.code for g in blocking)
+        checks = [replace(c, verdict="inconclusive", note=f"inconclusive: {why}; {c.note}")
+                  if c.verdict == "pass" else c for c in checks]
+    return checks + rows, notes + n, found
+
+
+def _gate_row(table, g) -> Check:
+    """A scope gate as a check row of a flicker table."""
+    return Check(table_id=table.table_id, quantity=g.code, order=None, applies_to="voltage",
+                 phase="", channel=", ".join(g.channels), statistic="gate", measured=g.value,
+                 limit=None, unit=g.unit, margin_percent=None, verdict=g.effect,
+                 clause="scope", verify=False, note=g.message)
 
 
 # --- one table -----------------------------------------------------------------------------
@@ -330,12 +365,12 @@ class _TableAssessor:
     def _ref(self, key: str, basis: str) -> float:
         v = self.refs[key]
         if v is None:
-            what = {"il": ("% of IL", "--il A (maximum demand load current at the PCC)"),
-                    "rated": ("% of rated current", "--rated-current A"),
-                    "iref": ("% of the reference current Iref", "--iref A (or --rated-current A)")}
+            what = {"il": ("% of IL", "`il_a` [A] (maximum demand load current at the PCC)"),
+                    "rated": ("% of rated current", "`rated_current_a` [A]"),
+                    "iref": ("% of the reference current Iref", "`iref_a` [A] (or `rated_current_a` [A])")}
             unit, option = what[key]
             raise InputError(f"table {self.t.table_id} gives limits in {unit}: give {option}",
-                             field=option.split()[0])
+                             field=option.split()[0].strip("`"))
         return float(v)
 
     def power_w(self):
@@ -375,7 +410,7 @@ class _TableAssessor:
         if w.p_total_w is None or rule is None:
             self._power = 0.0
             self.notes.append(f"{self.t.table_id}: per-watt limits need the active power: "
-                              "capture the voltage with the current, or give --active-power W.")
+                              "capture the voltage with the current, or give `active_power_w` [W].")
             return None
         p = np.where(self.valid, np.asarray(w.p_total_w, dtype=np.float64), np.nan)
         series = self._aggregate(p, rule.of)
@@ -454,7 +489,7 @@ class _TableAssessor:
             h = item.order
             if h > top:
                 return _Series(item, None, f"order {h} was not analysed (analysis up to order "
-                               f"{top}); rerun with --max-order {h} or more", frozenset({h}))
+                               f"{top}); rerun with `max_order` {h} or more", frozenset({h}))
             x = np.where(self.valid, mags[:, h], np.nan)
             orders = {h} | ({1} if item.basis == "percent_of_fundamental" else set())
             vals = self._to_basis(x, item, k)
