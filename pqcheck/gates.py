@@ -85,7 +85,14 @@ class Declared:
     phases : int or None
         Number of phases of the equipment (1 or 3).
     chains : tuple of pqcheck.uncertainty.Chain
-        The declared instrument chain (accuracy, bandwidth, dc coupling) of the channels.
+        The declared instrument chain (accuracy, bandwidth, dc coupling) of the channels, as
+        a test plan lists it (mappings of the Chain fields are accepted).
+    current_accuracy, voltage_accuracy : str or None
+        Accuracy of the whole current (voltage) chain, e.g. ``"1 % of reading + 0.05 A"``.
+    bandwidth_hz : float or None
+        -3 dB bandwidth of the chain. [Hz]
+    dc_coupled : bool
+        The current chain passes dc and was zeroed before the capture.
     decision_rule : str
         ``"guarded"`` (default) or ``"simple"`` (see :mod:`pqcheck.uncertainty`).
     plan_problems : tuple of str
@@ -99,25 +106,48 @@ class Declared:
     rated_power_w: float | None = None
     phases: int | None = None
     chains: tuple = ()
+    current_accuracy: str | None = None
+    voltage_accuracy: str | None = None
+    bandwidth_hz: float | None = None
+    dc_coupled: bool = False
     decision_rule: str = "guarded"
     plan_problems: tuple = ()
 
-    @classmethod
-    def from_dict(cls, d: dict) -> Declared:
-        """Rebuild from :func:`dataclasses.asdict` (records sent to worker processes)."""
-        from .uncertainty import Chain
+    @property
+    def all_chains(self) -> tuple:
+        """The chains of :attr:`chains` and those of the one-line declarations
+        (``current_accuracy``, ``voltage_accuracy``, ``bandwidth_hz``, ``dc_coupled``)."""
+        from .uncertainty import Chain, parse_accuracy
 
-        d = dict(d)
-        d["chains"] = tuple(c if isinstance(c, Chain) else Chain(**{**c, "channels": tuple(
-            c.get("channels", ()))}) for c in d.get("chains", ()))
-        d["plan_problems"] = tuple(d.get("plan_problems", ()))
-        return cls(**d)
+        out = list(self.chains)
+        for q in ("current", "voltage"):
+            text = getattr(self, f"{q}_accuracy")
+            acc = parse_accuracy(text) if text else None
+            dc = self.dc_coupled and q == "current"
+            if acc is not None or self.bandwidth_hz or dc:
+                out.append(Chain(quantity=q, accuracy_percent=acc[0] if acc else None,
+                                 floor=acc[1] if acc else None, bandwidth_hz=self.bandwidth_hz,
+                                 dc_coupled=True if dc else None, zeroed=True if dc else None,
+                                 name="declared on the command line"))
+        return tuple(out)
 
     def __post_init__(self):
+        from .uncertainty import Chain, parse_accuracy
+
+        chains = tuple(c if isinstance(c, Chain) else
+                       Chain(**{k: tuple(v) if isinstance(v, list) else v for k, v in c.items()})
+                       for c in self.chains)
+        object.__setattr__(self, "chains", chains)
+        object.__setattr__(self, "plan_problems", tuple(self.plan_problems))
+        for q in ("current", "voltage"):
+            text = getattr(self, f"{q}_accuracy")
+            if text is not None and parse_accuracy(text) is None:
+                raise InputError(f"cannot read accuracy {text!r}; write e.g. '1 %' or "
+                                 "'1 % of reading + 0.05 A'", field=f"{q}_accuracy")
         if self.location is not None and self.location not in LOCATIONS:
             raise InputError(f"location {self.location!r} is not one of: "
                              f"{', '.join(LOCATIONS)}", field="location")
-        for name in ("cycle_s", "rated_power_w"):
+        for name in ("cycle_s", "rated_power_w", "bandwidth_hz"):
             v = getattr(self, name)
             if v is not None and not (isinstance(v, (int, float)) and math.isfinite(v)
                                       and v > 0):
@@ -295,7 +325,7 @@ def refusals(result, table) -> None:
                 f"{vln * math.sqrt(3):.4g} V line-to-line if three-phase) does not fit the "
                 f"declared bus voltage of {level:g} V (expected about {lo:.4g} V "
                 f"line-to-neutral or {hi:.4g} V): give the nominal bus voltage in volts "
-                f"(e.g. {_nominal_guess(vln)})", field="voltage_level")
+                f"(e.g. {_nominal_guess(vln)})", field="voltage_level_v")
 
 
 def _nominal_guess(vln: float) -> str:
@@ -668,7 +698,8 @@ def chain_gates(result, table, declared: Declared) -> list:
     chans = [c for c in result.channels if c.phase != "n"]
     kinds = {i.applies_to for i in table.items}
     chans = [c for c in chans if c.quantity in kinds]
-    if not declared.chains:
+    chains = declared.all_chains
+    if not chains:
         out.append(Gate("chain-not-declared", "deviation",
                         f"{tid}: the instrument chain (accuracy, bandwidth, dc coupling) was not "
                         "declared; the uncertainty assumes an IEC 61000-4-7 Class I instrument "
@@ -680,7 +711,7 @@ def chain_gates(result, table, declared: Declared) -> list:
     # chain declared not to pass dc or not zeroed
     strict = any(i.basis != "percent_of_il" for i in has_dc)
     for c in chans:
-        ch = chain_for(declared.chains, c.name, c.quantity)
+        ch = chain_for(chains, c.name, c.quantity)
         undeclared = ch is None or ch.dc_coupled is None
         if has_dc and c.quantity == "current" and undeclared and not strict:
             out.append(Gate("chain-dc-undeclared", "deviation",
