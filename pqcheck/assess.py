@@ -95,6 +95,9 @@ class Check:
     tag : str
         Confidence tag of the limit value in the table: ``V`` verified, ``C`` computed,
         ``P`` partly verified, ``M`` from memory.
+    period_start, period_end : str
+        For a statistic over periods of a survey (IEEE 519 daily / weekly percentiles): the
+        worst period, whose value ``measured`` is (ISO 8601; "" otherwise).
     """
 
     table_id: str
@@ -116,6 +119,8 @@ class Check:
     multiplier: float = 1.0
     basis: str = ""
     tag: str = ""
+    period_start: str = ""
+    period_end: str = ""
 
     @property
     def label(self) -> str:
@@ -135,6 +140,8 @@ class Check:
             "clause": self.clause, "verify": self.verify,
             "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier,
             "basis": self.basis, "tag": self.tag})
+        if self.period_start:
+            d["period"] = {"start": self.period_start, "end": self.period_end}
         if self.note:
             d["note"] = self.note
         return d

@@ -411,6 +411,10 @@ def test_batch_takes_the_limit_options_of_check():
     from pqcheck.cli.check import check_cmd
 
     batch_names = {p.name for p in batch_cmd.params}
-    # every option of check but its terminal presentation (all_checks)
-    check_names = {p.name for p in check_cmd.params} - {"capture", "all_checks"}
+    from pqcheck.cli.survey_cmd import SURVEY_OPTION_NAMES
+
+    # the interval-log options of check concern surveys, which batch does not take; its
+    # terminal presentation (all_checks) neither
+    check_names = {p.name for p in check_cmd.params} - {"capture", "all_checks",
+                                                         *SURVEY_OPTION_NAMES}
     assert check_names <= batch_names  # every option of check, so selectors never drift

@@ -253,18 +253,31 @@ def analyze_cmd(capture, fmt, **opts):
     raise click.exceptions.Exit(EXIT_OK)
 
 
+def _survey_options(func):
+    from .survey_cmd import survey_options
+
+    return survey_options(func)
+
+
 @main.command("inspect")
 @click.argument("capture", type=click.Path(dir_okay=False))
 @click.option("--sample-rate", "sample_rate", type=float, metavar="HZ",
               help="Sample rate, for files without a time column or declared interval.")
 @click.option("--time-column", "time_column", metavar="NAME",
               help="Name of the time column when it is not recognised.")
+@_survey_options
 @handle_errors
-def inspect_cmd(capture, sample_rate, time_column):
+def inspect_cmd(capture, sample_rate, time_column, **survey_opts):
     """Show what pqcheck reads in CAPTURE: columns, guessed roles, sample rate, duration and
-    the detected fundamental. Use it to confirm the channel map before analysing."""
+    the detected fundamental. Use it to confirm the channel map before analysing.
+
+    For an interval log: how each column is read, the aggregation levels, span and gaps."""
     from ..dsp.tracking import coarse_frequency
     from ..readers import load_capture
+    from .survey_cmd import inspect_survey, is_survey_input
+
+    if is_survey_input([capture], survey_opts):
+        inspect_survey([capture], survey_opts)
 
     cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column)
     s = cap.provenance.settings

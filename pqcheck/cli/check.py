@@ -10,13 +10,15 @@ from ._common import VERDICT_EXIT, handle_errors, main
 from ._limits import LIMIT_OPTION_NAMES, limit_options, resolve_limits, tables_max_order
 from ._render import render_assessment, render_markdown
 from .analyze import capture_options, load_and_analyze
+from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__ = ["render_assessment"]
 
 @main.command("check")
-@click.argument("capture", type=click.Path(dir_okay=False))
+@click.argument("capture", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @limit_options(required=True)
 @capture_options
+@survey_options
 @click.option("--format", "fmt", type=click.Choice(["table", "json", "markdown"]),
               default="table", show_default=True,
               help="Output on stdout: a readable summary (table), the results document "
@@ -29,6 +31,10 @@ __all__ = ["render_assessment"]
 def check_cmd(ctx, capture, fmt, all_checks, **opts):
     """Check CAPTURE against limit tables.
 
+    CAPTURE is a waveform capture, or one or more interval logs of a survey (one row per
+    aggregation interval; see `pqcheck inspect`), which are assessed period by period as the
+    tables' statistics say (IEEE 519: every 24 h and every 7 days), naming the worst period.
+
     Analyses the capture by the IEC 61000-4-7 method, picks the limits that apply (row by
     --voltage-level/--isc/--il, --class, --rsce ...), compares each as the table's evaluation
     rule says, and prints one line per check, failing items first.
@@ -38,6 +44,17 @@ def check_cmd(ctx, capture, fmt, all_checks, **opts):
     from ..assess import assess
 
     lim = {k: opts.pop(k) for k in LIMIT_OPTION_NAMES}
+    survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
+    from .survey_cmd import check_survey, is_survey_input
+
+    if is_survey_input(capture, survey_opts):
+        check_survey(capture, fmt, lim, {**opts, **survey_opts})
+    if len(capture) > 1:
+        from ._common import fail_usage
+
+        fail_usage("several waveform captures were given; check them one at a time (or "
+                   "aggregate them into an interval log with `pqcheck aggregate`)")
+    capture = capture[0]
     resolved = resolve_limits(lim, opts.get("il_a"))
     tables_max_order(ctx, opts, resolved)
     _, result = load_and_analyze(capture, opts)

@@ -87,6 +87,8 @@ class _ReportCanvas(rl_canvas.Canvas):
     """Canvas that draws header and footer once the page count is known, and embeds the
     results JSON as a file attachment."""
 
+    footer_text = "pqcheck harmonic emission report \u2013 not a certification"
+
     def __init__(self, *args, report_id: str, header_left: str, header_right: str,
                  attachment: bytes, **kwargs):
         super().__init__(*args, **kwargs)
@@ -120,8 +122,7 @@ class _ReportCanvas(rl_canvas.Canvas):
         self.setFont(FONT, 7)
         self.setFillColor(MUTED)
         self.drawString(_MARGIN, 9 * mm, f"Report {self._report_id}")
-        self.drawCentredString(w / 2, 9 * mm, "pqcheck harmonic emission report \u2013 "
-                                              "not a certification")
+        self.drawCentredString(w / 2, 9 * mm, self.footer_text)
         self.setFont(FONT_BOLD, 7)
         self.setFillColor(INK)
         self.drawRightString(w - _MARGIN, 9 * mm, f"Page {page} of {total}")

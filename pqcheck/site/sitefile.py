@@ -364,7 +364,7 @@ def _load_unit(r: _Reader, item, k: int, folder: Path, f_nom, analyse) -> Unit:
             raise
         raise r.error(kp + (key,), f"{text}: {exc}") from None
     return Unit(name=name, count=count, load_point=load_point, spectrum=spectrum,
-                phase_shift_deg=shift, line=r.lines.line(kp))
+                phase_shift_deg=shift, line=r.lines.line(kp), source_kind=key)
 
 
 _TEMPLATE = '''\
