@@ -1181,3 +1181,61 @@ def test_site_chart_marks_the_failing_order_above_an_uncovered_plot(tmp_path):
     renderer = canvas.get_renderer()
     legend = ax.get_legend() or fig.legends[0]
     assert legend.get_window_extent(renderer).y0 >= ax.get_window_extent(renderer).y1 - 1.0
+
+
+# ---------------------------------------------------------------------------------------------
+# pqcheck verify on a site study
+# ---------------------------------------------------------------------------------------------
+
+
+def test_verify_site_pdf_and_json(tmp_path):
+    pytest.importorskip("pypdf")
+    runner = CliRunner()
+    site = write_site(tmp_path, location="supply")
+    pdf, js = tmp_path / "site.pdf", tmp_path / "site.json"
+    r = runner.invoke(main, ["site", str(site), "-o", str(pdf), "--json", str(js)])
+    assert r.exit_code == 1, r.output
+    for target in (pdf, js):
+        r = runner.invoke(main, ["verify", str(target)])
+        assert r.exit_code == 0, r.output
+        assert "IDENTICAL" in r.output and "site file" in r.output
+    # an edited number: exit 1, naming the value (recomputed from the inputs, not trusted)
+    d = json.loads(js.read_text())
+    k = next(i for i, c in enumerate(d["checks"]) if c["label"] == "I5")
+    d["checks"][k]["measured"] = 14.0
+    edited = tmp_path / "edited.json"
+    edited.write_text(json.dumps(d))
+    r = runner.invoke(main, ["verify", str(edited)])
+    assert r.exit_code == 1, r.output
+    assert re.search(rf"checks\[{k}\]\.measured \(check PCC h5\): recorded 14(\.0)?, "
+                     r"recomputed 20", r.output), r.output
+    # a unit's data changed since: its SHA-256 no longer matches
+    unit = tmp_path / "unit.json"
+    unit.write_text(unit.read_text().replace("20.0", "19.0", 1))
+    r = runner.invoke(main, ["verify", str(js)])
+    assert r.exit_code == 1 and "unit results 'Charger'" in r.output, r.output
+
+
+def test_verify_site_pdf_with_other_pages_is_caught(tmp_path):
+    pypdf = pytest.importorskip("pypdf")
+    runner = CliRunner()
+    site = write_site(tmp_path, location="supply")
+    js = tmp_path / "site.json"
+    r = runner.invoke(main, ["site", str(site), "--json", str(js), "--report-id", "S-1"])
+    assert r.exit_code == 1, r.output
+    alt = tmp_path / "alt"
+    alt.mkdir()
+    alt_site = write_site(alt, location="supply", count=2)
+    r = runner.invoke(main, ["site", str(alt_site), "-o", str(alt / "other.pdf"),
+                             "--report-id", "S-1"])
+    assert r.exit_code == 1, r.output
+    forged = pypdf.PdfWriter()
+    for page in pypdf.PdfReader(alt / "other.pdf").pages:
+        forged.add_page(page)
+    forged.add_attachment("results.json", js.read_bytes())
+    with open(tmp_path / "forged.pdf", "wb") as fh:
+        forged.write(fh)
+    r = runner.invoke(main, ["verify", str(tmp_path / "forged.pdf"), "--format", "json"])
+    assert r.exit_code == 1, r.output
+    out = json.loads(r.output)
+    assert {d["what"] for d in out["differences"]} == {"visible report"}

@@ -2,10 +2,12 @@
 
 Exit codes (one convention for every command):
 
-- 0: ran, and every assessed limit passed (or nothing was assessed)
+- 0: ran, and every assessed limit passed (or no limit table was asked for)
 - 1: a limit was exceeded
 - 2: bad input or usage (nothing was written)
-- 3: inconclusive (data quality or duration does not allow a verdict)
+- 3: inconclusive (data quality, duration or a deviation does not allow a verdict)
+- 4: not applicable (the case is outside the scope of the tables, or nothing was assessable)
+- 5: internal error
 
 Each command lives in its own module of this package and registers itself on :data:`main`.
 """

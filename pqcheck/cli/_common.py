@@ -14,9 +14,12 @@ EXIT_OK = 0
 EXIT_FAIL = 1
 EXIT_USAGE = 2
 EXIT_INCONCLUSIVE = 3
+EXIT_NOT_APPLICABLE = 4
 
+#: Exit code of each verdict. "not applicable" (the case is outside the scope of every table
+#: applied, or nothing could be assessed) is never 0: a script must not read it as a pass.
 VERDICT_EXIT = {"pass": EXIT_OK, "fail": EXIT_FAIL, "inconclusive": EXIT_INCONCLUSIVE,
-                "not applicable": EXIT_OK}
+                "not applicable": EXIT_NOT_APPLICABLE}
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})

@@ -129,13 +129,20 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
              f"{c.get('inconclusive', 0)} inconclusive, {c.get('pass', 0)} pass"
              + (f", {c['not applicable']} not applicable" if c.get("not applicable") else "")
              + ")"]
+    for label, texts in (("Why", getattr(a, "reasons", ())),
+                         ("Deviation", getattr(a, "deviations", ()))):
+        for k, text_ in enumerate(texts):
+            lines += textwrap.wrap(text_, width=width,
+                                   initial_indent=f"{label if k == 0 else '':<10}",
+                                   subsequent_indent=" " * 12)
     if result is not None:
         lines.append(f"Capture   {result.source}  ({result.duration_s:.3f} s, "
                      f"{int(result.windows.valid.sum())} valid windows)")
     for t in a.tables:
         sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
                         for k, v in t.selectors)
-        lines.append(f"Limits    {t.table_id}  {t.standard}-{t.edition}".rstrip("-")
+        name = getattr(t, "display_name", "") or t.table_id
+        lines.append(f"Limits    {name}  {t.standard}-{t.edition}".rstrip("-")
                      + (f"  ({sel})" if sel else ""))
         for row in t.rows:
             lines += wrap.wrap(row)

@@ -7,7 +7,13 @@ import json
 import click
 
 from ._common import VERDICT_EXIT, handle_errors, main
-from ._limits import LIMIT_OPTION_NAMES, limit_options, resolve_limits, tables_max_order
+from ._limits import (
+    LIMIT_OPTION_NAMES,
+    declared_from,
+    limit_options,
+    resolve_limits,
+    tables_max_order,
+)
 from ._render import render_assessment, render_markdown
 from .analyze import capture_options, load_and_analyze
 from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
@@ -39,7 +45,8 @@ def check_cmd(ctx, capture, fmt, all_checks, **opts):
     --voltage-level/--isc/--il, --class, --rsce ...), compares each as the table's evaluation
     rule says, and prints one line per check, failing items first.
 
-    Exit code: 0 pass, 1 a limit is exceeded, 3 inconclusive (data quality), 2 bad input.
+    Exit code: 0 pass, 1 a limit is exceeded, 2 bad input, 3 inconclusive (data quality,
+    duration, a deviation), 4 not applicable (outside the table's scope).
     """
     from ..assess import assess
 
@@ -59,7 +66,8 @@ def check_cmd(ctx, capture, fmt, all_checks, **opts):
     tables_max_order(ctx, opts, resolved)
     _, result = load_and_analyze(capture, opts)
     a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=lim["rated_current"],
-               iref_a=lim["iref"], active_power_w=lim["active_power"])
+               iref_a=lim["iref"], active_power_w=lim["active_power"],
+               declared=declared_from(lim))
     if fmt == "json":
         d = a.to_dict()
         d["capture"] = {"source": result.source, "sha256": result.sha256,

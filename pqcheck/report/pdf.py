@@ -396,7 +396,8 @@ def _fixed(x, decimals: int) -> str:
 
 
 def _table_name(lim) -> str:
-    return f"{lim.table_id} \u2013 {_designation(lim)}" if lim.standard else lim.table_id
+    name = getattr(lim, "display_name", lim.table_id)
+    return f"{name} \u2013 {_designation(lim)}" if lim.standard else name
 
 
 _BASIS_LABEL = {
@@ -571,6 +572,19 @@ def _cover(b: _Builder) -> None:
     tables = job.limit_tables()
     pairs.append(("Limit tables", "; ".join(f"{_table_name(t)}: {t.title}" for t in tables)
                   if tables else "none (analysis only)"))
+    # why the verdict is what it is (scope, plausibility, observation) and every deviation
+    # from the standard's conditions, next to the verdict
+    why = list(dict.fromkeys(m for r in job.runs for a in r.assessments
+                             for m in getattr(a, "reasons", ())))
+    dev = list(dict.fromkeys(m for r in job.runs for a in r.assessments
+                             for m in getattr(a, "deviations", ())))
+    at = sum(1 for k, _ in pairs if k in ("Not decided", "Limits exceeded"))
+    for label, texts in (("Deviations from the standard's conditions", dev),
+                         ("Why (scope, data, observation)", why)):
+        if texts:
+            shown = texts[:8] + ([f"and {len(texts) - 8} more (see the notes of each capture)"]
+                                 if len(texts) > 8 else [])
+            pairs.insert(at, (label, b.m("<br/>".join(esc(x) for x in shown), "cell")))
     pairs.append(("Report id", meta.report_id))
     pairs.append(("Produced with", f"pqcheck {meta.tool_version}"))
     b.add(b.kv(pairs))

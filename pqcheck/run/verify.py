@@ -621,7 +621,10 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
     """
     from ..report.job import ReportJob, ReportMeta
     from ..report.results import job_json
+    from .site_verify import is_site_document, verify_site
 
+    if is_site_document(path):
+        return verify_site(path, search=search, rel_tol=rel_tol, abs_tol=abs_tol)
     p = Path(path)
     recorded, pdf, attached = _load(p)
     origin = p.resolve().parent

@@ -755,7 +755,7 @@ def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
         Who and when, recorded as the ``report`` block: ``title``, ``operator``, ``id``,
         ``time_of_analysis_utc`` (ISO 8601), as a report writes them.
 
-    Keys: ``tool``, ``site`` (name, file, sha256, supply, transformer, pcc, other_load,
+    Keys: ``tool``, ``site`` (name, path, sha256, supply, transformer, pcc, other_load,
     units, each with ``pcc_current_a``: one unit's current at the PCC for orders 1..H, worst
     phase), ``summation``, ``pcc`` (voltage, impedance, ISC, IL, ISC/IL), ``limits`` (table,
     rows), ``harmonics`` (per order: current per phase and % of IL, voltage per phase and % of
@@ -782,7 +782,7 @@ def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
         "tool": {"name": "pqcheck", "version": __version__, "kind": "site study",
                  "schema": SCHEMA_VERSION},
         "site": {
-            "name": s.name, "file": None if s.path is None else str(s.path),
+            "name": s.name, "path": None if s.path is None else str(s.path),
             "sha256": s.sha256, "nominal_frequency_hz": s.nominal_hz,
             "supply": {"nominal_voltage_v": s.supply.nominal_voltage_v,
                        "ssc_va": _num(s.supply.ssc_va), "isc_a": _num(s.supply.isc_a),
