@@ -142,8 +142,9 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
         sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
                         for k, v in t.selectors)
         name = getattr(t, "display_name", "") or t.table_id
-        lines.append(f"Limits    {name}  {t.standard}-{t.edition}".rstrip("-")
-                     + (f"  ({sel})" if sel else ""))
+        lines += textwrap.wrap(f"{name}  {t.standard}-{t.edition}".rstrip("-")
+                               + (f"  ({sel})" if sel else ""), width=width,
+                               initial_indent="Limits    ", subsequent_indent=" " * 12)
         for row in t.rows:
             lines += wrap.wrap(row)
     stats = list(dict.fromkeys(k.statistic for k in a.checks))
