@@ -551,6 +551,17 @@ class _TableAssessor:
 
     # -- gates -------------------------------------------------------------------------------
 
+    def run_checks(self):
+        """The checks: per period of the survey when the capture lasts at least the shortest
+        period of the table's statistics (IEEE 519: a day), so a multi-day capture never gets
+        one whole-capture percentile; else as a single observation (:meth:`run`)."""
+        from . import survey
+
+        if survey.needs_periods(self.r, self.t):
+            sa = survey.assess_result_periods(self.r, self.t, il_a=self.refs["il"])
+            return list(sa.assessment.checks), self.notes + list(sa.assessment.notes)
+        return self.run()
+
     def run_gated(self):
         """The checks with the scope, plausibility and observation gates applied.
 
@@ -570,7 +581,7 @@ class _TableAssessor:
             self.notes += [g.message for g in found]
             return [self._gate_check(g) for g in out_of_scope], self.notes, found
         found += gates.observation_gates(t, self.observed_s, d)
-        checks, notes = self.run()
+        checks, notes = self.run_checks()
         found += self.gates  # raised while assessing (declared power)
         blocking = [g for g in found if g.effect == "inconclusive"]
         out = []

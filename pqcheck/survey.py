@@ -12,8 +12,8 @@ How periods are cut
     The survey's origin is the clock tick of 10 min at or before its first interval (the start
     of the first clock-aligned 10 min interval). Periods of the statistic's length (24 h, 7 d)
     follow one another from the origin. When the survey does not end on a period boundary, one
-    more period is taken that ends at the survey's end (rounded up to the next 10 min tick), so
-    it overlaps the one before and every interval lies in at least one whole period. A survey
+    more period is taken that ends at the survey's end (the end of its last interval), so it
+    overlaps the one before and every interval lies in at least one whole period. A survey
     shorter than the period has no period: the statistic is *not assessed* and the check is
     inconclusive.
 
@@ -381,14 +381,14 @@ def cut_periods(start_s: float, end_s: float, period_s: float) -> list:
     Examples
     --------
     A survey from 10:03:17 on day 0 to 12:00 on day 2 has two 24 h periods from 10:00, and a
-    third one ending at 12:00 on day 2:
+    third one ending at 12:00 on day 2 (the end of the last interval):
 
     >>> d = 86400.0
     >>> [(a / 3600, b / 3600) for a, b in cut_periods(10 * 3600 + 197, 2 * d + 12 * 3600, d)]
     [(10.0, 34.0), (34.0, 58.0), (36.0, 60.0)]
     """
     origin = survey_origin(start_s)
-    end = math.ceil(end_s / _TICK_S - 1e-9) * _TICK_S
+    end = end_s
     out = []
     a = origin
     while a + period_s <= end + 1e-6:
@@ -827,3 +827,310 @@ def survey_findings(series: IntervalSeries) -> list:
                            "interruption, IEC 61000-4-30); left out of the statistics",
                            value=float(nf), unit="intervals"))
     return out
+
+
+# --- from waveform windows (IEC 61000-4-30 Class A) ---------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class FileLevels:
+    """The aggregation of one file of a recording, ready to be joined with its neighbours.
+
+    Attributes
+    ----------
+    source, sha256 : str
+    start_s, end_s : float
+        Absolute start of the first window and end of the last one (POSIX). [s]
+    window_s : float
+        Mean window length. [s]
+    three_s : IntervalSeries
+        150/180-cycle values (``complete`` provisional for the last block, see ``open_end``).
+    open_end : bool
+        The last 3 s block was cut by the end of the file with fewer than 15 windows: it is
+        complete only when the next file follows without a gap.
+    ten_min : IntervalSeries
+        10 min values of the windows of this file (clock-aligned); ``complete`` not yet set.
+    counts : numpy.ndarray, shape (T,)
+        Valid windows in each 10 min value (to join values of a tick split over two files).
+    covered_s : numpy.ndarray, shape (T,)
+        Time covered by valid windows in each 10 min value. [s]
+    events : tuple of (float, str)
+        (start, kind) of each window holding a dip, swell or interruption.
+    findings : tuple of Finding
+        The analysis' findings, with the file named.
+    settings : dict
+    """
+
+    source: str
+    sha256: str
+    start_s: float
+    end_s: float
+    window_s: float
+    three_s: IntervalSeries
+    open_end: bool
+    ten_min: IntervalSeries
+    counts: np.ndarray
+    covered_s: np.ndarray
+    events: tuple = ()
+    findings: tuple = ()
+    settings: dict = field(default_factory=dict, compare=False)
+
+
+def window_values(result, *, il_a: float | None = None, measure: str = "subgroup"):
+    """Per-window values of an analysis for aggregation: harmonics (W, C, H + 1) of the
+    IEC 61000-4-7 ``measure``, THD (W, C) [%], TDD (W, C) [%] (currents, with ``il_a``) and
+    active power per phase on the current channel (W, C) [W]; invalid windows NaN."""
+    from .analysis import _phase_pairs
+
+    w = result.windows
+    valid = np.asarray(w.valid, bool)
+    mags = np.abs(w.component) if measure == "component" else np.asarray(getattr(w, measure))
+    mags = np.where(valid[:, None, None], mags, np.nan)
+    top = mags.shape[2] - 1
+    thd = metrics.thd(mags, max_order=top)
+    tdd = np.full(thd.shape, np.nan)
+    cur = [k for k, c in enumerate(result.channels) if c.quantity == "current"]
+    if il_a:
+        tdd[:, cur] = metrics.tdd(mags[:, cur, :], il_a, max_order=top)
+    pw = np.full(thd.shape, np.nan)
+    if w.p_w is not None:
+        pairs, _ = _phase_pairs(result.channels)
+        for j, (_, k) in enumerate(pairs):
+            pw[:, k] = np.where(valid, w.p_w[:, j], np.nan)
+    return mags, thd, tdd, pw
+
+
+def file_levels(result, start_s: float, *, t0_s: float = 0.0, flags=None, events=(),
+                il_a: float | None = None, measure: str = "subgroup", source: str = "",
+                sha256: str = "") -> FileLevels:
+    """Aggregate the windows of one analysed file into 3 s and 10 min values (IEC 61000-4-30).
+
+    Parameters
+    ----------
+    result : pqcheck.analysis.AnalysisResult
+    start_s : float
+        Absolute time of the capture's first sample (POSIX). [s]
+    t0_s : float
+        The capture's own time of its first sample (``Capture.t0_s``). [s]
+    flags : array_like of bool, shape (W,), optional
+        Windows holding a dip, swell or interruption.
+    il_a : float, optional
+        IL for TDD. [A]
+    measure : str
+        ``subgroup`` (IEC 61000-4-30 Class A), ``group`` or ``component``.
+
+    Returns
+    -------
+    FileLevels
+    """
+    w = result.windows
+    t = start_s + (np.asarray(w.t_start_s, np.float64) - t0_s)
+    d = np.asarray(w.duration_s, np.float64)
+    valid = np.asarray(w.valid, bool)
+    flg = np.zeros(t.size, bool) if flags is None else np.asarray(flags, bool)
+    mags, thd, tdd, pw = window_values(result, il_a=il_a, measure=measure)
+    chans = tuple(SurveyChannel(c.name, c.quantity, c.phase, c.unit) for c in result.channels)
+    # 3 s blocks
+    lab, ends = aggregate.class_a_blocks(t, d)
+    nb = int(lab.max()) + 1 if lab.size else 0
+    nwin = np.bincount(lab, minlength=nb)
+    allvalid = np.ones(nb, bool)
+    np.logical_and.at(allvalid, lab, valid)
+    bflag = np.zeros(nb, bool)
+    np.logical_or.at(bflag, lab, flg)
+    first = np.zeros(nb, np.int64)
+    first[lab[::-1]] = np.arange(t.size)[::-1]
+    short_ok = np.isin(ends, ("tick",))
+    complete3 = allvalid & ((nwin == aggregate.WINDOWS_PER_3S) | short_ok)
+    open_end = bool(nb and ends[-1] == "end" and nwin[-1] < aggregate.WINDOWS_PER_3S)
+    if open_end:
+        complete3[-1] = allvalid[-1]  # provisional: settled when the files are joined
+    three = IntervalSeries(
+        level="3s", interval_s=LEVELS["3s"], start_s=t[first],
+        channels=chans, harmonics=aggregate.rms_by_label(mags, lab, nb),
+        thd_percent=aggregate.rms_by_label(thd, lab, nb),
+        tdd_percent=aggregate.rms_by_label(tdd, lab, nb),
+        power_w=aggregate.mean_by_label(pw, lab, nb), flagged=bflag, complete=complete3)
+    # 10 min values of this file's windows
+    tick = np.floor(t / _TICK_S + 1e-9).astype(np.int64)
+    keys, inv = np.unique(tick, return_inverse=True)
+    nt = keys.size
+    counts = np.bincount(inv, weights=valid.astype(float), minlength=nt)
+    covered = np.bincount(inv, weights=np.where(valid, d, 0.0), minlength=nt)
+    tflag = np.zeros(nt, bool)
+    np.logical_or.at(tflag, inv, flg)
+    ten = IntervalSeries(
+        level="10min", interval_s=_TICK_S, start_s=keys * _TICK_S, channels=chans,
+        harmonics=aggregate.rms_by_label(mags, inv, nt),
+        thd_percent=aggregate.rms_by_label(thd, inv, nt),
+        tdd_percent=aggregate.rms_by_label(tdd, inv, nt),
+        power_w=aggregate.mean_by_label(pw, inv, nt), flagged=tflag,
+        complete=np.ones(nt, bool))
+    end = float(t[-1] + d[-1]) if t.size else start_s
+    return FileLevels(source=source or str(getattr(result, "source", "")),
+                      sha256=sha256 or str(getattr(result, "sha256", "") or ""),
+                      start_s=float(t[0]) if t.size else start_s, end_s=end,
+                      window_s=float(np.mean(d)) if d.size else 0.2, three_s=three,
+                      open_end=open_end, ten_min=ten, counts=counts, covered_s=covered,
+                      events=tuple(events), findings=tuple(result.findings))
+
+
+def _cat(series: list, **over) -> IntervalSeries:
+    base = series[0]
+    fields = dict(level=base.level, interval_s=base.interval_s, channels=base.channels)
+    for name in ("start_s", "harmonics", "thd_percent", "tdd_percent", "power_w", "flagged",
+                 "complete"):
+        fields[name] = np.concatenate([getattr(s, name) for s in series])
+    fields.update(over)
+    return IntervalSeries(**fields)
+
+
+def join_files(parts, *, timezone_name: str = "", tol_s: float = 0.02,
+               levels=("3s", "10min", "2h")) -> Survey:
+    """Join the aggregation of consecutive files into one recording, checked for continuity.
+
+    Files are ordered by start. A file that starts before the previous one ends is refused; a
+    file that starts more than ``tol_s`` after it is a gap (a finding); the 3 s, 10 min and 2 h
+    intervals a gap touches are incomplete (left out of statistics and counted), never zero.
+    A 10 min tick split over two files gets the RMS of both files' windows.
+
+    Raises
+    ------
+    InputError
+        Files overlap in time, or their channels differ.
+    """
+    parts = sorted(parts, key=lambda p: p.start_s)
+    if not parts:
+        raise InputError("no recording given")
+    names = [(c.quantity, c.phase) for c in parts[0].three_s.channels]
+    for p in parts[1:]:
+        if [(c.quantity, c.phase) for c in p.three_s.channels] != names:
+            raise InputError(f"its channels ({', '.join(c.name for c in p.three_s.channels)}) "
+                             f"differ from those of {parts[0].source}; a recording's files "
+                             "must hold the same channels", path=p.source)
+    findings, gaps = [], []
+    tz = timezone_name
+    for a, b in zip(parts, parts[1:]):
+        step = b.start_s - a.end_s
+        if step < -tol_s:
+            raise InputError(
+                f"starts at {format_time(b.start_s, tz)}, before the end of {a.source} "
+                f"({format_time(a.end_s, tz)}); the files of a recording must not overlap "
+                "(check their start times)", path=b.source, field="start_time")
+        if step > tol_s:
+            gaps.append((a.end_s, b.start_s))
+            findings.append(Finding(
+                "gap", "warning",
+                f"gap of {step:.6g} s between {a.source} (ends {format_time(a.end_s, tz)}) and "
+                f"{b.source} (starts {format_time(b.start_s, tz)}); the intervals it touches "
+                "are incomplete", value=step, unit="s",
+                detail={"start": format_time(a.end_s, tz), "end": format_time(b.start_s, tz)}))
+    # 3 s: the last short block of a file is complete only if the next file follows on
+    threes = []
+    for i, p in enumerate(parts):
+        s = p.three_s
+        if p.open_end:
+            cont = i + 1 < len(parts) and parts[i + 1].start_s - p.end_s <= tol_s
+            comp = s.complete.copy()
+            comp[-1] = comp[-1] and cont
+            s = replace(s, complete=comp)
+        threes.append(s)
+    three = _cat(threes)
+    # 10 min: join ticks split over files
+    keys = np.unique(np.concatenate([p.ten_min.start_s for p in parts]))
+    nt = keys.size
+    C, H1 = three.harmonics.shape[1], three.harmonics.shape[2]
+    sq = np.zeros((nt, C, H1))
+    cnt_h = np.zeros((nt, C, H1))
+    acc = {n: (np.zeros((nt, C)), np.zeros((nt, C))) for n in ("thd_percent", "tdd_percent")}
+    p_sum, p_cnt = np.zeros((nt, C)), np.zeros((nt, C))
+    counts = np.zeros(nt)
+    covered = np.zeros(nt)
+    flagged = np.zeros(nt, bool)
+    for p in parts:
+        s = p.ten_min
+        j = np.searchsorted(keys, s.start_s)
+        wgt = p.counts
+        ok = np.isfinite(s.harmonics)
+        np.add.at(sq, j, np.where(ok, s.harmonics ** 2, 0.0) * wgt[:, None, None])
+        np.add.at(cnt_h, j, ok * wgt[:, None, None])
+        for n, (a_sq, a_cnt) in acc.items():
+            v = getattr(s, n)
+            okv = np.isfinite(v)
+            np.add.at(a_sq, j, np.where(okv, v ** 2, 0.0) * wgt[:, None])
+            np.add.at(a_cnt, j, okv * wgt[:, None])
+        okp = np.isfinite(s.power_w)
+        np.add.at(p_sum, j, np.where(okp, s.power_w, 0.0) * wgt[:, None])
+        np.add.at(p_cnt, j, okp * wgt[:, None])
+        np.add.at(counts, j, wgt)
+        np.add.at(covered, j, p.covered_s)
+        np.logical_or.at(flagged, j, s.flagged)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        harm = np.where(cnt_h > 0, np.sqrt(sq / np.maximum(cnt_h, 1e-300)), np.nan)
+        thd_v = np.where(acc["thd_percent"][1] > 0, np.sqrt(acc["thd_percent"][0] / np.maximum(
+            acc["thd_percent"][1], 1e-300)), np.nan)
+        tdd_v = np.where(acc["tdd_percent"][1] > 0, np.sqrt(acc["tdd_percent"][0] / np.maximum(
+            acc["tdd_percent"][1], 1e-300)), np.nan)
+        pw = np.where(p_cnt > 0, p_sum / np.maximum(p_cnt, 1e-300), np.nan)
+    win = float(np.mean([p.window_s for p in parts]))
+    complete10 = covered >= _TICK_S - 1.5 * win
+    for a, b in gaps:
+        complete10 &= ~((keys + _TICK_S > a) & (keys < b))
+        touch3 = (three.start_s < b) & (three.start_s + three.interval_s > a)
+        three = replace(three, complete=three.complete & ~touch3)
+    ten = IntervalSeries(level="10min", interval_s=_TICK_S, start_s=keys, channels=three.channels,
+                         harmonics=harm, thd_percent=thd_v, tdd_percent=tdd_v, power_w=pw,
+                         flagged=flagged, complete=complete10)
+    out = [three, ten]
+    if "2h" in levels:
+        out.append(derive_level(ten, "2h"))
+    out = [s for s in out if s.level in levels]
+    events = [e for p in parts for e in p.events]
+    for p in parts:
+        for f in p.findings:
+            findings.append(replace(f, message=f"{p.source}: {f.message}"))
+    if events:
+        kinds = {}
+        for _, k in events:
+            kinds[k] = kinds.get(k, 0) + 1
+        findings.append(Finding(
+            "voltage-events", "warning",
+            "windows holding a " + ", ".join(f"{k} ({n})" for k, n in sorted(kinds.items()))
+            + "; the intervals holding them are flagged (IEC 61000-4-30) and left out of the "
+            "statistics", value=float(len(events)), unit="windows"))
+    for s in out:
+        findings += survey_findings(s)
+    return Survey(levels=tuple(out), sources=tuple(p.source for p in parts),
+                  sha256=tuple(p.sha256 for p in parts), findings=tuple(findings),
+                  timezone=tz, origin="waveform recording",
+                  settings={"span_s": (parts[0].start_s, parts[-1].end_s),
+                            "files": [p.settings for p in parts],
+                            "events": [(float(t), k) for t, k in events]})
+
+
+def needs_periods(result, table: ResolvedLimits) -> bool:
+    """True when an analysed capture lasts at least the shortest period of the table's
+    statistics over periods (so it must be evaluated period by period)."""
+    if not is_survey_evaluation(table):
+        return False
+    w = result.windows
+    observed = float(np.sum(np.asarray(w.duration_s)[np.asarray(w.valid, bool)]))
+    shortest = min(c.period_s for c in table.evaluation.checks if c.period_s > 0)
+    return observed >= shortest
+
+
+def assess_result_periods(result, table, *, il_a=None, start_s: float | None = None):
+    """Assess one analysed capture period by period (its windows aggregated as
+    IEC 61000-4-30 does). Without ``start_s`` (absolute time of the first sample) the
+    capture's own time base stands in for the clock, and the notes say so."""
+    part = file_levels(result, 0.0 if start_s is None else start_s, il_a=il_a)
+    survey = join_files([part], timezone_name="")
+    sa = assess_survey(survey, table, il_a=il_a)
+    if start_s is None:
+        note = (f"{table.table_id}: the capture lasts {survey.duration_s / 86400:.3g} days, so "
+                "its statistics are evaluated period by period; with no absolute start time "
+                "the capture's own time base stands in for the clock (periods and 10 min "
+                "intervals counted from its time 0), and voltage events were not flagged.")
+        sa = replace(sa, assessment=replace(sa.assessment,
+                                            notes=sa.assessment.notes + (note,)))
+    return sa

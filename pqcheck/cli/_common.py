@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import functools
 import sys
+import warnings
 
 import click
+import numpy as np
 
 from .. import __version__
 from ..errors import InputError, PqcheckError, ReportError
@@ -44,7 +46,11 @@ def handle_errors(func):
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
         try:
-            return func(*args, **kwargs)
+            # numpy's RuntimeWarnings (a mean of an empty window, 0/0 in a silent channel)
+            # are handled as NaN results and findings; their text never reaches stderr
+            with warnings.catch_warnings(), np.errstate(all="ignore"):
+                warnings.simplefilter("ignore", RuntimeWarning)
+                return func(*args, **kwargs)
         except InputError as exc:
             fail_usage(exc.location_message())
         except ReportError as exc:

@@ -57,10 +57,9 @@ def check_cmd(ctx, capture, fmt, all_checks, **opts):
     if is_survey_input(capture, survey_opts):
         check_survey(capture, fmt, lim, {**opts, **survey_opts})
     if len(capture) > 1:
-        from ._common import fail_usage
+        from .survey_cmd import check_recording
 
-        fail_usage("several waveform captures were given; check them one at a time (or "
-                   "aggregate them into an interval log with `pqcheck aggregate`)")
+        check_recording(capture, fmt, lim, {**opts, **survey_opts})
     capture = capture[0]
     resolved = resolve_limits(lim, opts.get("il_a"))
     tables_max_order(ctx, opts, resolved)

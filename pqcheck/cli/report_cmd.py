@@ -22,8 +22,8 @@ from .analyze import capture_options, load_and_analyze
 
 __all__: list = []
 
-_CAPTURE_ONLY = ("current", "voltage", "sample_rate", "time_column", "nominal", "max_order",
-                 "il_a", "wiring", "reference")
+_CAPTURE_ONLY = ("current", "voltage", "sample_rate", "time_column", "encoding", "add_file",
+                 "nominal", "max_order", "il_a", "wiring", "reference")
 
 _report_limit_options = limit_options(
     required=False,
