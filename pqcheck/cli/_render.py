@@ -147,6 +147,9 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
                                initial_indent="Limits    ", subsequent_indent=" " * 12)
         for row in t.rows:
             lines += wrap.wrap(row)
+        lines += wrap.wrap("measure: IEC 61000-4-15 flickermeter and IEC 61000-3-3 voltage "
+                           "changes" if t.measure == "flicker"
+                           else f"measure: IEC 61000-4-7 harmonic {t.measure}s")
     stats = list(dict.fromkeys(k.statistic for k in a.checks))
     if stats:
         lines.append("Compared  " + "; ".join(stats))

@@ -63,6 +63,8 @@ def check_cmd(ctx, capture, fmt, all_checks, **opts):
     capture = capture[0]
     resolved = resolve_limits(lim, opts.get("il_a"))
     tables_max_order(ctx, opts, resolved)
+    if any(r.measure == "flicker" for r in resolved):
+        opts["flicker"] = True
     _, result = load_and_analyze(capture, opts)
     a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=lim["rated_current"],
                iref_a=lim["iref"], active_power_w=lim["active_power"],
