@@ -7,15 +7,10 @@ import json
 import click
 
 from ._common import VERDICT_EXIT, handle_errors, main
-from ._limits import (
-    LIMIT_OPTION_NAMES,
-    declared_from,
-    limit_options,
-    resolve_limits,
-    tables_max_order,
-)
+from ._fields import spec_from_options
+from ._limits import limit_options
 from ._render import render_assessment, render_markdown
-from .analyze import capture_options, load_and_analyze
+from .analyze import capture_options, run_checked
 from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__ = ["render_assessment"]
@@ -32,9 +27,8 @@ __all__ = ["render_assessment"]
 @click.option("--all-checks", is_flag=True,
               help="With --format table: every check, one line each (default: what failed, "
                    "the inconclusive checks grouped by cause, the closest passes, findings).")
-@click.pass_context
 @handle_errors
-def check_cmd(ctx, capture, fmt, all_checks, **opts):
+def check_cmd(capture, fmt, all_checks, **opts):
     """Check CAPTURE against limit tables.
 
     CAPTURE is a waveform capture, or one or more interval logs of a survey (one row per
@@ -48,27 +42,17 @@ def check_cmd(ctx, capture, fmt, all_checks, **opts):
     Exit code: 0 pass, 1 a limit is exceeded, 2 bad input, 3 inconclusive (data quality,
     duration, a deviation), 4 not applicable (outside the table's scope).
     """
-    from ..assess import assess
-
-    lim = {k: opts.pop(k) for k in LIMIT_OPTION_NAMES}
     survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
     from .survey_cmd import check_survey, is_survey_input
 
     if is_survey_input(capture, survey_opts):
-        check_survey(capture, fmt, lim, {**opts, **survey_opts})
+        check_survey(capture, fmt, spec_from_options(None, opts), {**opts, **survey_opts})
     if len(capture) > 1:
         from .survey_cmd import check_recording
 
-        check_recording(capture, fmt, lim, {**opts, **survey_opts})
-    capture = capture[0]
-    resolved = resolve_limits(lim, opts.get("il_a"))
-    tables_max_order(ctx, opts, resolved)
-    if any(r.measure == "flicker" for r in resolved):
-        opts["flicker"] = True
-    _, result = load_and_analyze(capture, opts)
-    a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=lim["rated_current"],
-               iref_a=lim["iref"], active_power_w=lim["active_power"],
-               declared=declared_from(lim))
+        check_recording(capture, fmt, spec_from_options(None, opts), {**opts, **survey_opts})
+    run = run_checked(spec_from_options(capture[0], opts), opts)
+    result, a = run.result, run.assessment
     if fmt == "json":
         d = a.to_dict()
         d["capture"] = {"source": result.source, "sha256": result.sha256,
