@@ -11,6 +11,8 @@ import math
 import shutil
 import textwrap
 
+from ._fields import cli_text
+
 __all__ = ["render_assessment", "render_markdown", "BASIS_WORDS"]
 
 BASIS_WORDS = {
@@ -132,7 +134,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
     for label, texts in (("Why", getattr(a, "reasons", ())),
                          ("Deviation", getattr(a, "deviations", ()))):
         for k, text_ in enumerate(texts):
-            lines += textwrap.wrap(text_, width=width,
+            lines += textwrap.wrap(cli_text(text_), width=width,
                                    initial_indent=f"{label if k == 0 else '':<10}",
                                    subsequent_indent=" " * 12)
     if result is not None:
@@ -175,7 +177,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
             lines += ["", f"Inconclusive ({len(undecided)}), by cause"]
             for (where, cause), ks in groups.items():
                 lines += wrap.wrap(f"phase {where}: {len(ks)} checks ({_orders_text(ks)}) "
-                                   f"- {cause}")
+                                   f"- {cli_text(cause)}")
         passes = [k for k in checks if k.verdict == "pass" and k.margin_percent is not None]
         if passes and closest:
             lines += ["", f"Closest to their limits ({min(closest, len(passes))} of "
@@ -184,14 +186,14 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
     if a.notes:
         lines += ["", "Notes"]
         for n in a.notes:
-            lines += wrap.wrap(n)
+            lines += wrap.wrap(cli_text(n))
     if findings:
         lines += ["", "Findings"]
         sev = {"error": "ERROR", "warning": "warn", "info": "info"}
         for f in sorted(findings, key=lambda f: {"error": 0, "warning": 1}.get(f.severity, 2)):
             chans = f" [{', '.join(f.channels)}]" if f.channels else ""
             lines += wrap.wrap(f"{sev.get(f.severity, f.severity)} {f.code}{chans}: "
-                               f"{f.message}")
+                               f"{cli_text(f.message)}")
     lines += ["", textwrap.fill(
         "+ limit value to verify against your copy of the standard. Margin = (limit - "
         "measured) / limit. --all-checks lists every check; --format markdown gives a table "
