@@ -71,6 +71,8 @@ def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
                        "--limits too (or leave it out for an analysis-only report)")
     resolved = resolve_limits(lim, opts.get("il_a"))
     tables_max_order(ctx, opts, resolved)
+    if any(r.measure == "flicker" for r in resolved):
+        opts["flicker"] = True
     capture, result = load_and_analyze(source, opts)
     assessments = assess_each(result, resolved, il_a=opts.get("il_a"),
                               rated_current_a=lim["rated_current"], iref_a=lim["iref"],

@@ -333,10 +333,12 @@ def _impedance_path(capture, fs, f0, currs, volts, z, path, s, block_samples, fi
     # currents of each half period (see the module notes)
     n = len(currs)
     hps = [HalfPeriodRms(fs, f0, n_means=1 + 2 * n) for _ in currs]
-    for block in capture.blocks(block_samples):
-        i = block[currs]
-        e = block[sources] if measured else None
-        u, ec, eq, ic = tv.feed(i, e)
+    def outputs():
+        for block in capture.blocks(block_samples):
+            yield tv.feed(block[currs], block[sources] if measured else None)
+        yield tv.flush()
+
+    for u, ec, eq, ic in outputs():
         if u.shape[1] == 0:
             continue
         for j in range(n):
