@@ -295,8 +295,14 @@ def load_table(id_or_path) -> LimitTable:
     name = str(id_or_path).strip()
     res = _bundled().get(name.casefold())
     if res is None:
+        import difflib
+
+        ids = bundled_ids()
+        near = [i for i in ids if i.startswith(name.casefold())] or difflib.get_close_matches(
+            name.casefold(), ids, n=3, cutoff=0.5)
+        hint = f"did you mean {' or '.join(near)}? " if near else ""
         raise LimitTableError(
-            f"unknown limit table {name!r}; bundled tables: {', '.join(bundled_ids())} "
+            f"unknown limit table {name!r}; {hint}bundled tables: {', '.join(ids)} "
             "(or give the path of a .toml file)", field="table")
     with resources.as_file(res) as p:
         return read_table(p)

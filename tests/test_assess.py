@@ -364,12 +364,22 @@ def test_cli_check_exit_codes_and_json(tmp_path):
     assert all("order" not in c for c in d["checks"] if c["quantity"] == "TDD")
     res = run("check", ok, *opts)
     assert res.exit_code == 0, res.output
-    assert res.output.startswith("Verdict    PASS")
-    # table view: failing items first, with their margins
+    assert res.output.startswith("Verdict   PASS")
+    # table view: failing items first, with their margins; the closest passes after them
     res = run("check", fail, *opts)
-    lines = [ln for ln in res.output.splitlines() if ln.startswith(("FAIL", "pass"))]
+    lines = [ln.strip() for ln in res.output.splitlines()
+             if ln.strip().startswith(("FAIL", "pass"))]
     assert lines[0].startswith("FAIL") and lines[1].startswith("FAIL")
     assert "-14.3" in lines[0] or "-14.3" in lines[1]  # I11: (3.5 - 4.0) / 3.5
+    assert "Closest to their limits" in res.output
+    assert max(len(ln) for ln in res.output.splitlines()) <= 110  # readable in a terminal
+    every = run("check", fail, *opts, "--all-checks")
+    n_checks = len(d["checks"])
+    assert sum(ln.strip().startswith(("FAIL", "pass", "INCONCLUSIVE"))
+               for ln in every.output.splitlines()) == n_checks
+    md = run("check", fail, *opts, "--format", "markdown")
+    assert md.exit_code == 1
+    assert sum(ln.startswith("| FAIL") for ln in md.output.splitlines()) == 2
 
 
 def test_cli_check_inconclusive_and_usage_errors(tmp_path):

@@ -632,7 +632,7 @@ CASES = [
     E("table-is-a-directory", folder("tables.toml"), "validate", r"tables\.toml' is a directory"),
     E("table-missing", missing("none.toml"), "validate", r"none\.toml: no such file"),
     E("table-unknown-id", lambda d: Path("ieee999"), "table",
-      r"--limits: unknown limit table 'ieee999'; bundled tables: "),
+      r"--limits: unknown limit table 'ieee999'; (did you mean [^?]*\? )?bundled tables: "),
     # -- plans
     E("plan-capture-missing", plan('file = "run 1 ü.csv"', 'file = "nope.csv"'), "plan",
       r"plan\.toml:15: captures\[1\]\.file: file 'nope\.csv' not found \(resolved against"),
