@@ -334,6 +334,12 @@ class ReportDetails:
     ----------
     title, equipment, site, operator, report_id : str or None
         Free text; None where not given.
+    test_date : str or None
+        Date of the measurements (ISO 8601, ``YYYY-MM-DD``); None: taken from the capture's
+        header where it records a start time, else "not stated".
+    detail : str
+        ``"full"``: the report with appendix A (every harmonic table in full); ``"summary"``:
+        without it (the attached results keep every number).
     """
 
     title: str | None = None
@@ -341,9 +347,20 @@ class ReportDetails:
     site: str | None = None
     operator: str | None = None
     report_id: str | None = None
+    test_date: str | None = None
+    detail: str = "full"
 
     def __post_init__(self):
-        _text(self, "title", "equipment", "site", "operator", "report_id")
+        _text(self, "title", "equipment", "site", "operator", "report_id", "test_date")
+        _choice(self, "detail", ("full", "summary"))
+        if self.test_date:
+            import datetime as _dt
+
+            try:
+                _dt.date.fromisoformat(self.test_date[:10])
+            except ValueError:
+                raise InputError(f"must be a date as YYYY-MM-DD, got {self.test_date!r}",
+                                 field="test_date") from None
 
 
 @dataclass(frozen=True)

@@ -127,3 +127,95 @@ def test_long_unbreakable_text_still_renders(tmp_path):
                                     "--equipment", "X" * 5000, "--no-cache"])
     assert res.exit_code == 1, res.output
     assert out.read_bytes().startswith(b"%PDF")
+
+
+# --- a plan that excludes a mistaken record --------------------------------------------------
+
+def _plan(folder, table, *, exclude_line):
+    clean = write_capture(folder / "clean.csv", {1: 100.0, 5: 2.0, 7: 1.0})
+    clipped = write_capture(folder / "clipped.csv", six_pulse(), clip_a=110.0)
+    text = f"""schema = 1
+title = "Exclusion test"
+[site]
+name = "bench"
+nominal_voltage_v = 400
+isc_a = 3500
+il_a = 100
+[equipment]
+name = "bench unit"
+[conditions]
+date = "2026-11-30"
+operator = "T. Ester"
+measured_at = "pcc"
+[[conditions.instruments]]
+role = "digitiser"
+model = "bench digitiser"
+channels = ["va", "vb", "vc", "ia", "ib", "ic"]
+sample_rate_hz = 10000
+bandwidth_hz = 100000
+accuracy = "0.2 % of reading"
+dc_coupled = true
+zeroed = true
+[[limits]]
+table = "{table}"
+[[captures]]
+id = "clean"
+file = "{clean.name}"
+[[captures]]
+id = "mistake"
+file = "{clipped.name}"
+{exclude_line}
+"""
+    p = folder / "plan.toml"
+    p.write_text(text, encoding="utf-8")
+    return p, clipped
+
+
+def test_excluded_capture_is_listed_with_its_reason_and_does_not_decide(tmp_path):
+    from conftest import write_without_observation
+
+    table = write_without_observation(tmp_path, "ieee519-2022")
+    plan, clipped = _plan(tmp_path, table, exclude_line='exclude = "range set wrongly"')
+    out, js = tmp_path / "r.pdf", tmp_path / "r.json"
+    res = CliRunner().invoke(main, ["report", str(plan), "-o", str(out), "--json", str(js),
+                                    "--no-cache"])
+    # the clean capture (5th at 2 % of IL < 7 %, IEEE 519-2022 Table 2, 20 <= ISC/IL < 50)
+    # passes; the excluded six-pulse record would fail, and does not count
+    assert res.exit_code == 0, res.output
+    text = "\n".join(p.extract_text() for p in pypdf.PdfReader(str(out)).pages)
+    assert "range set wrongly" in text and "excluded" in text.lower()
+    assert hashlib.sha256(clipped.read_bytes()).hexdigest() in text  # still traceable
+    assert "2026-11-30" in text and "T. Ester" in text  # date of test and operator
+    import json
+
+    doc = json.loads(js.read_text())
+    assert doc["plan"]["excluded"] == [{"id": "mistake", "file": str(clipped),
+                                        "reason": "range set wrongly"}]
+    assert [c["id"] for c in doc["captures"]] == ["clean"]
+    verify = CliRunner().invoke(main, ["verify", str(out)])
+    assert verify.exit_code == 0, verify.output
+
+
+def test_exclusion_needs_a_reason(tmp_path):
+    plan, _ = _plan(tmp_path, "ieee519-2022", exclude_line='exclude = "  "')
+    res = CliRunner().invoke(main, ["report", str(plan), "-o", str(tmp_path / "r.pdf")])
+    assert res.exit_code == 2
+    assert "give the reason the capture is excluded" in res.output
+    assert not (tmp_path / "r.pdf").exists()
+
+
+def test_test_date_option_and_summary_detail(tmp_path):
+    cap = write_capture(tmp_path / "c.csv", six_pulse())
+    full, short = tmp_path / "full.pdf", tmp_path / "short.pdf"
+    for out, extra in ((full, []), (short, ["--detail", "summary"])):
+        res = CliRunner().invoke(main, ["report", str(cap), *LIMIT_ARGS, "-o", str(out),
+                                        "--test-date", "2026-11-29", "--no-cache", *extra])
+        assert res.exit_code == 1, res.output
+    full_text = "\n".join(p.extract_text() for p in pypdf.PdfReader(str(full)).pages)
+    short_pages = pypdf.PdfReader(str(short)).pages
+    assert "2026-11-29" in full_text
+    assert "Appendix A" in full_text
+    assert not any("Appendix A  Full" in (p.extract_text() or "") for p in short_pages)
+    bad = CliRunner().invoke(main, ["report", str(cap), *LIMIT_ARGS, "-o",
+                                    str(tmp_path / "x.pdf"), "--test-date", "yesterday"])
+    assert bad.exit_code == 2 and "YYYY-MM-DD" in bad.output

@@ -80,6 +80,8 @@ SPEC_OPTIONS = (
     ("report.site", "--site"),
     ("report.operator", "--operator"),
     ("report.report_id", "--report-id"),
+    ("report.test_date", "--test-date"),
+    ("report.detail", "--detail"),
 )
 """RunSpec field path -> command-line option (``CAPTURE`` is the positional argument)."""
 

@@ -22,7 +22,7 @@ _report_limit_options = limit_options(
                 "file. Repeat for several. Without it the report holds the analysis only (no "
                 "verdict).")
 
-_REPORT_FIELDS = ("title", "equipment", "site", "operator", "report_id")
+_REPORT_FIELDS = ("title", "equipment", "site", "operator", "report_id", "test_date", "detail")
 _ROW_FIELDS = tuple(n for n in LIMIT_OPTION_NAMES if n != "table")
 
 
@@ -44,6 +44,13 @@ _ROW_FIELDS = tuple(n for n in LIMIT_OPTION_NAMES if n != "table")
 @click.option("--report-id", "report_id", metavar="TEXT",
               help="Report id for the footer of every page. Default: generated from the date "
                    "and the data.")
+@click.option("--test-date", "test_date", metavar="YYYY-MM-DD",
+              help="Date of the measurements. Default: the plan's [conditions] date, else the "
+                   "start time in the capture's header, else 'not stated'.")
+@click.option("--detail", type=click.Choice(["full", "summary"]), default="full",
+              show_default=True,
+              help="full: the report with appendix A (every harmonic table); summary: without "
+                   "it (the attached results keep every number).")
 @_report_limit_options
 @capture_options
 @click.pass_context
@@ -116,6 +123,8 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
                            "it out for an analysis-only report)")
         runs = (run_checked(spec, opts),)
         command = command_line("report", spec)
+    if not runs:
+        fail_usage(f"{source}: every capture of the plan is excluded; nothing to report")
     details = runs[0].spec.report
 
     # 3. Render everything in memory.
@@ -126,9 +135,12 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
         (plan.equipment.name if plan is not None else ""),
         site=details.site if details.site is not None else
         (plan.site.name if plan is not None else ""),
-        operator=details.operator or "",
+        operator=details.operator or (plan.conditions.operator
+                                      if plan is not None else "") or "",
         created_utc=created,
         command=command,
+        detail=details.detail or "full",
+        test_date=details.test_date or "",
     )
     rid = details.report_id or (plan.report_id if plan is not None else "") or make_report_id(
         [r.result.sha256 for r in runs] + [plan.sha256 if plan is not None else ""], created)

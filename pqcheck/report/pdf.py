@@ -553,8 +553,7 @@ def _cover(b: _Builder) -> None:
     pairs.append(("Site", site_text or "not stated"))
     if plan is not None and plan.site.pcc:
         pairs.append(("Point of common coupling", plan.site.pcc))
-    if plan is not None and plan.conditions.date:
-        pairs.append(("Date of test", plan.conditions.date))
+    pairs.append(("Date of test", _test_date(job)))
     pairs.append(("Time of analysis", meta.created_utc.astimezone(timezone.utc)
                   .strftime("%Y-%m-%d %H:%M:%S UTC")))
     pairs.append(("Operator", meta.operator or "not stated"))
@@ -565,13 +564,16 @@ def _cover(b: _Builder) -> None:
         return r.id + (f" ({', '.join(extra)})" if extra else "")
 
     pairs.append((f"Captures ({len(job.runs)})", "; ".join(_run_text(r) for r in job.runs)))
-    for verdict_name, label in (("inconclusive", "Not decided"), ("fail", "Limits exceeded")):
-        lines = _where(job, verdict_name)
-        if lines:
-            shown = lines[:6] + ([f"and {len(lines) - 6} more channels"] if len(lines) > 6
-                                 else [])
-            pairs.insert(0, (label, b.m("<br/>".join(f"<b>{esc(x)}</b>" for x in shown),
-                                        "cell")))
+    excluded = plan.excluded if plan is not None else ()
+    if excluded:
+        pairs.append((f"Excluded ({len(excluded)})", b.m("<br/>".join(
+            f"<b>{esc(c.id)}</b> ({esc(c.path.name)}): {esc(c.exclude)}" for c in excluded),
+            "cell")))
+    if plan is not None:
+        basis = _pcc_basis(plan)
+        if basis:
+            pairs.append(("ISC and IL", basis))
+    # what failed and what is undecided stands in the table under the verdict
     tables = job.limit_tables()
     pairs.append(("Limit tables", "; ".join(f"{_table_name(t)}: {t.title}" for t in tables)
                   if tables else "none (analysis only)"))
@@ -624,9 +626,9 @@ def _deciding_items(b: _Builder) -> None:
                      fmt_pct(c.margin_percent)])
         extra += _verdict_style(0, len(rows) - 1, "fail")
     groups = undecided_groups(job)
-    for r, lbl, checks, cause in groups[:_COVER_ROWS]:
-        rows.append([_verdict_para(b, "inconclusive"), r.id, _items_text(checks), lbl,
-                     b.m(esc(cause.split(":")[0]) + f" ({len(checks)} checks)", "cell"),
+    for runs, phases, checks, cause in groups[:_COVER_ROWS]:
+        rows.append([_verdict_para(b, "inconclusive"), runs, _items_text(checks), phases,
+                     b.m(esc(_cause_key(cause)) + f" ({len(checks)} checks)", "cell"),
                      "", "", ""])
         extra += _verdict_style(0, len(rows) - 1, "inconclusive")
         extra.append(("SPAN", (4, len(rows) - 1), (7, len(rows) - 1)))
@@ -647,6 +649,46 @@ def _deciding_items(b: _Builder) -> None:
             "decided")
     note += f" ({more} more failing items)." if more > 0 else "."
     b.add(b.p(note, "caption"))
+
+
+_DATE_KEYS = ("start time", "start", "date", "trigger time", "recorded", "acquired",
+              "timestamp", "start_time", "date/time")
+
+
+def _test_date(job) -> str:
+    """Date of the measurements: given (``--test-date``), the plan's, or the start time the
+    capture's header records; "not stated" otherwise (never the time of analysis)."""
+    if job.meta.test_date:
+        return job.meta.test_date
+    if job.plan is not None and job.plan.conditions.date:
+        return job.plan.conditions.date
+    found = []
+    for r in job.runs:
+        meta = (r.result.reader_settings or {}).get("metadata") or {}
+        for k, v in meta.items():
+            if str(k).strip().casefold() in _DATE_KEYS and str(v).strip():
+                found.append(f"{v} ({r.id}, from the capture's header)")
+                break
+    return "; ".join(dict.fromkeys(found)) or "not stated"
+
+
+def _pcc_basis(plan) -> str:
+    """ISC and IL with their units and where they come from (the plan's [site])."""
+    site = plan.site
+    isc, il = getattr(site, "isc_a", None), getattr(site, "il_a", None)
+    if not isc and not il:
+        return ""
+    parts = []
+    if isc:
+        parts.append(f"ISC = {fmt(isc, 5, 'A')}")
+    if il:
+        parts.append(f"IL = {fmt(il, 5, 'A')}")
+    if isc and il:
+        parts.append(f"ISC/IL = {fmt(isc / il, 3)}")
+    text_ = ", ".join(parts) + " (test plan, [site])"
+    if site.notes:
+        text_ += f"; {site.notes}"
+    return text_
 
 
 def _summary(b: _Builder) -> None:
@@ -725,12 +767,18 @@ def _cause_of(run, chk) -> str:
     return note.split("; ")[0] if note else "the data do not allow a decision"
 
 
+def _cause_key(cause: str) -> str:
+    """The part of a cause that names it (its finding codes), for grouping."""
+    return cause.split(":")[0].strip()
+
+
 def undecided_groups(job) -> list:
-    """Undecided checks grouped by capture, channel and cause: one entry per shared cause.
+    """Undecided checks grouped by cause over every capture: one entry per shared cause.
 
     Returns
     -------
-    list of (run, channel label, checks, cause)
+    list of (captures text, phases text, checks, cause)
+        Largest group first.
     """
     groups: dict = {}
     for r in job.runs:
@@ -738,12 +786,18 @@ def undecided_groups(job) -> list:
             for c in a.checks:
                 if c.verdict != "inconclusive":
                     continue
-                key = (r.id, c.channel, _cause_of(r, c))
-                groups.setdefault(key, (r, []))[1].append(c)
+                cause = _cause_of(r, c)
+                g = groups.setdefault(_cause_key(cause), {"runs": [], "phases": [],
+                                                          "checks": [], "cause": cause})
+                g["runs"].append(r.id)
+                g["phases"].append(c.phase or (c.channel and _channel_label(r.result,
+                                                                            c.channel)) or "all")
+                g["checks"].append(c)
     out = []
-    for (_rid, ch, cause), (r, checks) in groups.items():
-        lbl = _channel_label(r.result, ch) if ch else "all channels"
-        out.append((r, lbl, checks, cause))
+    for g in sorted(groups.values(), key=lambda g: -len(g["checks"])):
+        runs = ", ".join(dict.fromkeys(g["runs"]))
+        phases = ", ".join(sorted(set(g["phases"])))
+        out.append((runs, phases, g["checks"], g["cause"]))
     return out
 
 
@@ -780,10 +834,10 @@ def _decisive_tables(b: _Builder, sub) -> None:
     groups = undecided_groups(job)
     if groups:
         b.h3(f"1.{next(sub)}  Checks that could not be decided, by cause")
-        rows = [["Capture", "Phase", "Checks", "Cause (section 3 has the details)"]]
-        for r, lbl, checks, cause in groups:
-            rows.append([r.id, lbl, f"{len(checks)}: {_items_text(checks)}", cause])
-        b.add(b.table(rows, [0.14, 0.12, 0.24, 0.5]))
+        rows = [["Captures", "Phases", "Checks", "Cause (section 3 has the details)"]]
+        for runs, phases, checks, cause in groups:
+            rows.append([runs, phases, f"{len(checks)}: {_items_text(checks)}", cause])
+        b.add(b.table(rows, [0.16, 0.12, 0.24, 0.48]))
         b.add(b.p("An undecided check is neither passed nor failed: the data-quality finding "
                   "named removes the basis for a verdict on it. Remove the cause (re-measure) "
                   "or exclude the capture with a stated reason.", "caption"))
@@ -910,14 +964,17 @@ def _assessment_block(b: _Builder, run, a) -> None:
             else "harmonic"
         unit_label = _unit_text(group[0])
         deciding = [r for r in _harmonic_rows(group, res)
-                    if r[3] != "pass" or r[4] is None or r[4] < _BODY_MARGIN_PERCENT]
+                    if r[3] == "fail" or r[4] is None or r[4] < _BODY_MARGIN_PERCENT]
         if quantity == "voltage" and not deciding:
             # Voltage harmonics that all pass far from their limits: one line says so, the
             # chart would add a page and nothing a reviewer needs (appendix A lists them).
             margins = [c.margin_percent for c in group if c.margin_percent is not None]
+            verdicts = {c.verdict for c in group}
+            how = "pass" if verdicts == {"pass"} else "are undecided (see the causes above)" \
+                if verdicts == {"inconclusive"} else "pass or are undecided"
             b.add(b.p(f"{run.id}: all {len({c.order for c in group})} individual voltage "
-                      f"harmonics pass on every phase with a margin of at least "
-                      f"{fmt(min(margins), 3)} % ({statistic}).", "body"))
+                      f"harmonics {how}, each at least {fmt(min(margins), 3)} % inside its "
+                      f"limit on every phase ({statistic}).", "body"))
             continue
         data = figures.spectrum_from_checks(
             res, group, title=f"{run.id}: {what} harmonics against {lim.table_id}",
@@ -1038,7 +1095,9 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
     if full:
         shown = all_rows
     else:
-        shown = [r for r in all_rows if r[3] != "pass" or r[4] is None
+        # failing rows, and any row (passed or undecided) within 50 % of its limit: a row
+        # far inside its limit decides nothing, whatever its verdict
+        shown = [r for r in all_rows if r[3] == "fail" or r[4] is None
                  or r[4] < _BODY_MARGIN_PERCENT]
     rest = [r for r in all_rows if r not in shown]
     basis = _unit_text(group[0])
@@ -1081,8 +1140,12 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
         orders = _compact_orders([r[0] for r in rest])
         where = ("listed in appendix A" if b.job.meta.detail == "full"
                  else "in the attached results data")
-        b.add(b.p(f"{len(rest)} further orders ({orders}) pass on every phase with a margin of "
-                  f"at least {fmt(smallest, 3)} %; {where}.", "small"))
+        verdicts = sorted({r[3] for r in rest})
+        how = ("pass" if verdicts == ["pass"] else
+               "are undecided for the cause named above" if verdicts == ["inconclusive"] else
+               "pass or are undecided")
+        b.add(b.p(f"{len(rest)} further orders ({orders}) {how}, each at least "
+                  f"{fmt(smallest, 3)} % inside its limit on every phase; {where}.", "small"))
 
 
 def _analysis_tables(b: _Builder, run, harmonics) -> None:
@@ -1308,12 +1371,49 @@ def _findings(b: _Builder) -> None:
         b.add(b.table(rows, [0.11, 0.16, 0.13, 0.6], extra_style=extra))
 
 
+def _test_setup(b: _Builder) -> None:
+    """What the test plan says about the site, the supply and the conditions."""
+    plan = b.job.plan
+    if plan is None:
+        return
+    site, cond = plan.site, plan.conditions
+    tr = getattr(site, "transformer", None)
+    pairs = [(k, v) for k, v in (
+        ("Site address", site.address),
+        ("Point of common coupling", site.pcc),
+        ("Transformer", "" if tr is None else ", ".join(x for x in (
+            tr.description,
+            f"{fmt(tr.rating_va / 1e3, 4)} kVA" if tr.rating_va else "",
+            f"{fmt(tr.primary_v, 5)} V / {fmt(tr.secondary_v, 5)} V"
+            if tr.primary_v and tr.secondary_v else "",
+            f"{fmt(tr.impedance_percent, 3)} % impedance" if tr.impedance_percent else "")
+            if x)),
+        ("ISC and IL", _pcc_basis(plan)),
+        ("Site notes", site.notes),
+        ("Location of the measurement", cond.location),
+        ("Supply", cond.supply),
+        ("Ambient", f"{fmt(cond.ambient_c, 3)} \u00b0C" if cond.ambient_c is not None else ""),
+        ("Conditions", cond.notes),
+        ("Plan notes", plan.notes)) if v]
+    if pairs:
+        b.h3("Test set-up, as the test plan records it")
+        b.add(b.kv(pairs, key_width=0.26))
+
+
 def _method(b: _Builder) -> None:
     job = b.job
     b.h1("4  Method and settings")
+    _test_setup(b)
     first = job.runs[0].result.settings
     b.add(b.p(first.method + ".", "body"))
-    b.add(b.p(text.AGGREGATION, "body"))
+    stats = list(dict.fromkeys(c.statistic for r in job.runs for a in r.tables
+                               for c in a.checks if c.statistic))
+    did = ("Values for the whole capture are the rms of the valid 10/12-cycle window values "
+           "(IEC 61000-4-7).")
+    if stats:
+        did += (" The limit checks of this report compare: " + "; ".join(stats) + ". No other "
+                "aggregation was applied.")
+    b.add(b.p(did, "body"))
     rows = [["Capture", "Nominal", "Window", "Synchronised to", "Measured frequency",
              "Orders", "Wiring", "IL"]]
     for r in job.runs:
@@ -1413,6 +1513,15 @@ def _traceability(b: _Builder) -> None:
     for r in job.runs:
         rows.append([f"capture {r.id}", file_cell(shown_path(r.result.source, plan_path),
                                                   r.result.sha256 or "in memory")])
+    for c in (job.plan.excluded if job.plan is not None else ()):
+        from ..readers import capture_sha256
+
+        try:
+            digest_c = capture_sha256(c.path)
+        except OSError:
+            digest_c = "file not readable"
+        rows.append([f"capture {c.id} (excluded, not assessed)",
+                     file_cell(shown_path(str(c.path), plan_path), digest_c)])
     for lim in job.limit_tables():
         rows.append([f"limit table {lim.table_id}",
                      file_cell(shown_path(lim.source, plan_path) or "bundled",

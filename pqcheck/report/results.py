@@ -49,8 +49,10 @@ def job_to_dict(job) -> dict:
             "time_of_analysis_utc": meta.created_utc.astimezone(timezone.utc).isoformat(),
             "command": meta.command,  # how to re-run it: pqcheck verify reads the options
         },
-        "plan": None if plan is None else {"path": str(plan.path), "sha256": plan.sha256,
-                                           "title": plan.title},
+        "plan": None if plan is None else {
+            "path": str(plan.path), "sha256": plan.sha256, "title": plan.title,
+            "excluded": [{"id": c.id, "file": str(c.path), "reason": c.exclude}
+                         for c in plan.excluded]},
         "verdict": job.verdict,
         "limit_tables": [
             {"id": t.table_id, "title": t.title, "standard": t.standard, "edition": t.edition,

@@ -62,6 +62,8 @@ def run_plan(plan, *, cache=None, progress=None, report=None) -> tuple:
 
     runs = []
     for k, cap in enumerate(plan.captures):
+        if cap.exclude:
+            continue  # kept in the record with its reason (the report lists it), not assessed
         entries = plan.limits_for(cap)
         try:
             run_spec = plan.run_spec(cap, report)

@@ -185,6 +185,8 @@ class Conditions:
     ----------
     date : str
         Date (or dates) of the measurements, as written in the plan.
+    operator : str
+        Who made the measurements (printed on the cover and by the sign-off block).
     location, supply, notes : str
         Where the test ran, what fed it (e.g. ``"public LV network via T1"``), remarks.
     ambient_c : float or None
@@ -204,6 +206,7 @@ class Conditions:
     """
 
     date: str = ""
+    operator: str = ""
     location: str = ""
     ambient_c: float | None = None
     supply: str = ""
@@ -289,6 +292,11 @@ class CaptureSpec:
     limits : tuple of str or None
         Tables (as written in ``[[limits]]``) that apply to this capture; None = all.
     notes : str
+    exclude : str
+        Why the capture is excluded from the assessment (empty: it is assessed). An excluded
+        capture stays in the record (its file and SHA-256 are listed in the report with the
+        reason) but is neither analysed nor assessed, so one mistaken record does not hold
+        back the verdict on the others.
     line : int or None
         Line of the entry in the plan.
     """
@@ -303,6 +311,7 @@ class CaptureSpec:
     time_column: str | None = None
     limits: tuple | None = None
     notes: str = ""
+    exclude: str = ""
     line: int | None = None
 
 
@@ -341,6 +350,16 @@ class Plan:
     def folder(self) -> Path:
         """Folder relative paths resolve against."""
         return self.path.parent
+
+    @property
+    def assessed(self) -> tuple:
+        """The captures that are analysed and assessed (not excluded)."""
+        return tuple(c for c in self.captures if not c.exclude)
+
+    @property
+    def excluded(self) -> tuple:
+        """The captures excluded from the assessment, each with its reason."""
+        return tuple(c for c in self.captures if c.exclude)
 
     def limits_for(self, capture: CaptureSpec) -> tuple:
         """The :class:`LimitSpec` entries that apply to ``capture``."""
@@ -484,7 +503,7 @@ _INSTRUMENT = {"role": _STR, "model": _STR, "serial": _STR, "channels": _STRS, "
                "bandwidth_hz": _POS, "sample_rate_hz": _POS, "range": _STR, "accuracy": _STR,
                "measurement_category": _STR, "calibration_due": _STR, "notes": _STR,
                "dc_coupled": _BOOL, "zeroed": _BOOL}
-_CONDITIONS = {"date": _STR, "location": _STR, "ambient_c": _NUM, "supply": _STR,
+_CONDITIONS = {"date": _STR, "operator": _STR, "location": _STR, "ambient_c": _NUM, "supply": _STR,
                "instruments": "array of tables", "notes": _STR, "measured_at": _STR,
                "behaviour": _STR, "cycle_s": _POS, "representative_period": _BOOL,
                "decision_rule": _STR}
@@ -496,7 +515,7 @@ _SELECTOR_KEYS = {"voltage_level_v": _POS, "isc_a": _POS, "il_a": _POS, "rsce": 
 _LIMIT = {"table": _STR, **_SELECTOR_KEYS}
 _CAPTURE = {"id": _STR, "file": _STR, "load_point": _STR, "load_percent": _POS,
             "current": _STRS, "voltage": _STRS, "sample_rate_hz": _POS, "time_column": _STR,
-            "limits": _STRS, "notes": _STR}
+            "limits": _STRS, "notes": _STR, "exclude": _STR}
 _TOP = {"schema": "whole number", "title": _STR, "report_id": _STR, "notes": _STR,
         "site": "table", "equipment": "table", "conditions": "table", "analysis": "table",
         "limits": "array of tables", "captures": "array of tables"}
@@ -638,6 +657,9 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
             raise r.error(kp + ("load_percent",), f"must be at most 200 %, got {pct:g}")
         if "load_point" not in vals and pct is not None:
             vals["load_point"] = f"{pct:g} %"
+        if "exclude" in vals and not vals["exclude"].strip():
+            raise r.error(kp + ("exclude",), "give the reason the capture is excluded (it is "
+                                             "printed in the report), or remove the key")
         for name in vals.get("limits") or ():
             if name not in known_tables:
                 listed = ", ".join(sorted(known_tables)) or "none"
@@ -715,6 +737,7 @@ firmware = ""
 
 [conditions]
 date = "YYYY-MM-DD"
+# operator = "Who made the measurements"
 location = ""
 # ambient_c = 21
 supply = "What fed the equipment during the test"
@@ -780,6 +803,7 @@ voltage = ["va", "vb", "vc"]
 # sample_rate_hz = 25000         # only for files without a time column
 # limits = ["ieee519-2022"]      # tables for this capture; default: all [[limits]]
 notes = ""
+# exclude = "why"                # keep the record (listed with the reason), do not assess it
 
 [[captures]]
 id = "load-100"

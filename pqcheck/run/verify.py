@@ -358,7 +358,8 @@ def _meta_differences(recorded: dict, runs, plan) -> list:
         "equipment": d.equipment if d.equipment is not None else (
             plan.equipment.name if plan is not None else ""),
         "site": d.site if d.site is not None else (plan.site.name if plan is not None else ""),
-        "operator": d.operator or "",
+        "operator": d.operator or (plan.conditions.operator if plan is not None else "")
+        or "",
     }
     rid = d.report_id or (plan.report_id if plan is not None else "")
     if not rid:
@@ -529,6 +530,11 @@ def _pdf_text_differences(pdf: bytes, attached: bytes, recorded: dict, runs, pla
                           report_id=str(r["id"]),
                           created_utc=datetime.fromisoformat(r["time_of_analysis_utc"]),
                           command=str(r.get("command") or ""))
+        if runs and runs[0].spec is not None:  # what the recorded report details asked for
+            from dataclasses import replace as _replace
+
+            d = runs[0].spec.report
+            meta = _replace(meta, detail=d.detail or "full", test_date=d.test_date or "")
     except (KeyError, TypeError, ValueError, AttributeError):
         notes.append("the PDF's text was not compared (the results lack the report's title, "
                      "names, id or time)")
