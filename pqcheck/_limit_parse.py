@@ -42,8 +42,8 @@ from ._limit_model import (
     parse_orders,
     valid_statistic,
 )
-from ._toml import KeyLines, syntax_error_line, tomllib
 from .errors import LimitTableError
+from .files.toml import KeyLines, syntax_error_line, tomllib
 
 __all__ = ["parse_table", "block_keys"]
 

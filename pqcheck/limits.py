@@ -59,8 +59,8 @@ from ._limit_model import (
     weakest_tag,
 )
 from ._limit_parse import parse_table
-from ._toml import format_key, format_value
 from .errors import InputError, LimitTableError
+from .files.toml import format_key, format_value
 
 __all__ = [
     "LimitTable",

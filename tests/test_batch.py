@@ -25,8 +25,10 @@ from click.testing import CliRunner
 from test_comtrade import FS as CT_FS
 from test_comtrade import analog_line, quantise, three_phase_record, write_comtrade
 
-from pqcheck import batch
-from pqcheck.batch import (
+from pqcheck.cli import main
+from pqcheck.readers.comtrade import read_comtrade
+from pqcheck.run import batch
+from pqcheck.run.batch import (
     BatchSpec,
     DaskExecutor,
     InlineExecutor,
@@ -37,8 +39,6 @@ from pqcheck.batch import (
     read_results,
     run_batch,
 )
-from pqcheck.cli import main
-from pqcheck.readers.comtrade import read_comtrade
 
 FS = 10_000.0  # [Hz]
 F0 = 50.0  # [Hz]
@@ -254,7 +254,7 @@ def test_exit_code_counts_an_error_as_inconclusive(fleet, tmp_path):
 
 
 def test_resume_skips_captures_already_in_the_output(fleet, tmp_path, monkeypatch):
-    import pqcheck.pipeline as pipeline
+    import pqcheck.run.check as pipeline
 
     calls = []
     real = pipeline.analyze_file
@@ -314,7 +314,7 @@ def test_output_made_with_other_settings_is_not_mixed(fleet, tmp_path):
 
 
 def test_interrupted_batch_keeps_the_work_done(fleet, tmp_path, monkeypatch):
-    import pqcheck.pipeline as pipeline
+    import pqcheck.run.check as pipeline
 
     real = pipeline.analyze_file
     seen = []

@@ -25,8 +25,8 @@ from test_hostile_inputs import PLAN, TABLE
 from pqcheck.analysis import analyze
 from pqcheck.errors import PqcheckError
 from pqcheck.limits import read_table, resolve, validate_file
-from pqcheck.plan import load_plan
 from pqcheck.readers import open_capture
+from pqcheck.run.plan import load_plan
 
 FUZZ = settings(max_examples=70, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])

@@ -9,7 +9,7 @@ either
 - a complete new file: a PDF that pypdf reads strictly, ends with ``%%EOF`` and carries a
   ``results.json`` attachment that parses; a JSON file that parses.
 
-What may be left beside it: the atomic writer (pqcheck/report/atomic.py) writes each file to a
+What may be left beside it: the atomic writer (pqcheck/files/atomic.py) writes each file to a
 hidden temporary ``.<target name>.<random>.part`` in the target's folder, flushes it to disk and
 only then links or renames it to the target name; its ``finally`` removes the temporary, but
 SIGKILL skips ``finally``, so a killed run may leave such ``.part`` files. Nothing else may
@@ -48,7 +48,7 @@ PREVIOUS_JSON = b'{"previous": true}\n'
 
 SLOW_WRITER = r"""
 import contextlib, sys, time
-import pqcheck.report.atomic as atomic
+import pqcheck.files.atomic as atomic
 
 _real = atomic.atomic_open
 

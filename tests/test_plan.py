@@ -12,7 +12,7 @@ from click.testing import CliRunner
 
 from pqcheck.cli import main
 from pqcheck.errors import PlanError
-from pqcheck.plan import load_plan, plan_template
+from pqcheck.run.plan import load_plan, plan_template
 
 MINIMAL = '''\
 title = "T"
@@ -180,7 +180,7 @@ def test_user_limit_table_path_resolves_against_plan(folder):
 
 
 def test_missing_selector_is_reported_against_the_plan(folder):
-    from pqcheck.report.build import run_plan
+    from pqcheck.run.build import run_plan
 
     text = MINIMAL.replace("isc_a = 3500\n", "")
     plan = load_plan(write(folder, text))

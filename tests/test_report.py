@@ -28,8 +28,8 @@ import pqcheck
 from pqcheck.cli import main
 from pqcheck.errors import ReportError
 from pqcheck.export import harmonics_frame, windows_frame
+from pqcheck.files.atomic import atomic_open, check_target, write_atomic
 from pqcheck.report import figures
-from pqcheck.report.atomic import atomic_open, check_target, write_atomic
 
 pypdf = pytest.importorskip("pypdf")
 

@@ -8,18 +8,19 @@ from __future__ import annotations
 
 import json
 import os
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
 
 from pqcheck.analysis import analyze
-from pqcheck.cache import Cache
 from pqcheck.capture import Capture, CaptureStream
 from pqcheck.errors import CaptureFormatError
 from pqcheck.export import analysis_to_dict
-from pqcheck.pipeline import analyze_file
 from pqcheck.readers import load_capture, open_capture
+from pqcheck.run.cache import Cache
+from pqcheck.run.check import analyze_file
 
 FS = 10_000.0
 
@@ -95,7 +96,7 @@ def test_cache_hit_returns_the_same_result(capture_csv, tmp_path, monkeypatch):
     files = sorted(p.name for p in (tmp_path / "cache").rglob("*") if p.is_file())
     assert any(f.endswith(".f64") for f in files) and any(f.endswith(".npz") for f in files)
     calls = []
-    monkeypatch.setattr("pqcheck.pipeline.analyze", lambda *a, **k: calls.append(1))
+    monkeypatch.setattr("pqcheck.run.check.analyze", lambda *a, **k: calls.append(1))
     cap2, r2 = analyze_file(capture_csv, cache=cache, nominal_hz=50)
     assert calls == []  # served from the result cache, no analysis
     assert json.dumps(_summary(r1), sort_keys=True) == json.dumps(_summary(r2), sort_keys=True)
@@ -223,3 +224,13 @@ def test_streaming_inside_a_daemonic_worker(capture_csv):
     with mp.get_context("fork").Pool(1) as pool:
         (there,) = pool.map(_thd_in_worker, [str(capture_csv)])
     assert there == pytest.approx(here, rel=1e-12)
+
+
+def test_code_fingerprint_covers_the_computing_modules():
+    # The cache key includes a hash of the computing code; every module named must exist, or
+    # an edit to it would not invalidate the cache (a moved cache.py once looked in run/).
+    from pqcheck.run import cache
+
+    root = Path(cache.__file__).parent.parent
+    for name in cache._CODE:
+        assert (root / name).exists(), name

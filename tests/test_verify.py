@@ -19,7 +19,7 @@ from click.testing import CliRunner
 from test_hostile_inputs import TABLE
 
 from pqcheck.cli import main
-from pqcheck.verify import compare_documents
+from pqcheck.run.verify import compare_documents
 
 FS = 6400.0
 OPTIONS = ["--sample-rate", "6400", "--current", "ch1", "--voltage", "ch2",

@@ -66,8 +66,8 @@ def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
     Long captures are read block by block and, unless ``--no-cache``, cached; a progress bar
     is shown on stderr for work over about a second when stderr is a terminal.
     """
-    from ..cache import Cache
-    from ..pipeline import analyze_file
+    from ..run.cache import Cache
+    from ..run.check import analyze_file
 
     cache = None if opts.get("no_cache") else Cache(opts.get("cache_dir"))
     bar = None

@@ -109,7 +109,7 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
     Exit code: 0 every capture passes, 1 a capture fails, 3 a capture is inconclusive or could
     not be checked (a capture-level error counts as inconclusive) and none fails, 2 bad input.
     """
-    from ..batch import (
+    from ..run.batch import (
         BatchSpec,
         DaskExecutor,
         InlineExecutor,

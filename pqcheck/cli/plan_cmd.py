@@ -20,8 +20,8 @@ def plan_group():
 def plan_new_cmd(path, force):
     """Write a commented test-plan template to PATH (refuses to replace an existing file
     unless --force). Edit it, then run `pqcheck report PATH -o report.pdf`."""
-    from ..plan import plan_template
-    from ..report.atomic import write_atomic
+    from ..files.atomic import write_atomic
+    from ..run.plan import plan_template
 
     write_atomic(path, plan_template(), force=force)
     click.echo(f"wrote {path}: fill in the site, equipment, instruments, captures and limit "

@@ -59,8 +59,8 @@ def _command_line(ctx) -> str:
 
 def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
     """Analyse and assess one capture as `pqcheck check` does."""
-    from ..report.build import assess_each
     from ..report.job import CaptureRun
+    from ..run.build import assess_each
 
     positive_options(lim, opts.get("il_a"))
     if not lim["limits"]:
@@ -112,7 +112,7 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
     Exit code as `pqcheck check`: 0 pass (or no limits applied), 1 a limit is exceeded,
     3 inconclusive, 2 bad input or an existing output without --force (nothing is written).
     """
-    from ..report.atomic import check_target, write_atomic
+    from ..files.atomic import check_target, write_atomic
     from ..report.job import ReportJob, ReportMeta, make_report_id
     from ..report.pdf import render_pdf
     from ..report.results import (
@@ -143,8 +143,8 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
     # 2. Analyse and assess (any bad input stops here with exit 2 and nothing written).
     plan = None
     if source.lower().endswith(".toml"):
-        from ..plan import load_plan
-        from ..report.build import run_plan
+        from ..run.build import run_plan
+        from ..run.plan import load_plan
 
         clash = [n for n in LIMIT_OPTION_NAMES + _CAPTURE_ONLY if _given(ctx, n)]
         if clash:
@@ -155,7 +155,7 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
         plan = load_plan(source)
         cache = None
         if not opts.get("no_cache"):
-            from ..cache import Cache
+            from ..run.cache import Cache
 
             cache = Cache(opts.get("cache_dir"))
         runs = run_plan(plan, cache=cache)

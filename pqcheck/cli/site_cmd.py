@@ -25,6 +25,28 @@ def _f(x, digits: int = 4, unit: str = "") -> str:
     return f"{s} {unit}".rstrip()
 
 
+_BASIS_TEXT = {"current": "of IL", "voltage": "of nominal"}
+_RELATION = {"pass": "<=", "fail": ">", "inconclusive": "vs", "not applicable": "vs"}
+
+
+def check_line(c) -> str:
+    """One check as a line: ``FAIL  I5  9.288 % of IL  > limit 7.0 %  (Table 2)``.
+
+    The relation printed is the one that holds: ``<=`` for a pass, ``>`` for a fail, ``vs``
+    when the check is undecided.
+    """
+    basis = _BASIS_TEXT.get(c.applies_to, "")
+    value = f"{_f(c.measured, 4, '%')} {basis}" if c.measured is not None else "not measured"
+    rel = _RELATION.get(c.verdict, "vs")
+    if c.verdict == "pass" and c.measured is not None and not c.measured <= c.limit:
+        rel = "vs"  # never print a relation that does not hold
+    text = (f"  {c.verdict.upper():<13}{c.label:<8}{value:>20}  {rel} limit "
+            f"{_f(c.limit, 4, '%')}  ({c.clause}{', verify' if c.verify else ''})")
+    if c.verdict == "inconclusive" and c.note:
+        text += f"\n{'':15}{c.note}"
+    return text
+
+
 def render_site_table(study) -> str:
     """Human-readable summary of a :class:`pqcheck.site.SiteStudy` (no number recomputed)."""
     from ..site import CAUTIONS, MAX_HEADROOM, shown_path
@@ -89,8 +111,7 @@ def render_site_table(study) -> str:
     for c in study.checks:
         if c.quantity == "harmonic" and c.verdict == "pass":
             continue
-        out.append(f"  {c.verdict.upper():<13}{c.label:<8}{_f(c.value, 4, '%'):>10} <= "
-                   f"{_f(c.limit, 4, '%')}  ({c.clause}{', verify' if c.verify else ''})")
+        out.append(check_line(c))
     n_pass = sum(1 for c in study.checks if c.quantity == "harmonic" and c.verdict == "pass")
     out.append(f"  PASS         {n_pass} individual-order checks")
     out.append(f"Verdict     {study.verdict.upper()}")
@@ -161,7 +182,7 @@ def site_group():
 def site_run(site_file, output, force, fmt, summation):
     """Run the site study of SITE.toml (the default subcommand)."""
     from ..export import dumps
-    from ..report.atomic import check_target
+    from ..files.atomic import check_target
     from ..site import load_site, study_site, study_to_dict
 
     if output is not None:
@@ -187,7 +208,7 @@ def site_run(site_file, output, force, fmt, summation):
 @handle_errors
 def site_new(path, force):
     """Write a commented site template to PATH (edit it, then run pqcheck site PATH)."""
-    from ..report.atomic import write_atomic
+    from ..files.atomic import write_atomic
     from ..site import site_template
 
     write_atomic(path, site_template(), force=force)

@@ -80,7 +80,7 @@ def verify_cmd(report, search, rel_tol, abs_tol, show, fmt):
 
     Exit code: 0 identical, 1 a value differs or a file's SHA-256 changed, 2 bad input.
     """
-    from ..verify import verify
+    from ..run.verify import verify
 
     v = verify(report, search=search, rel_tol=rel_tol, abs_tol=abs_tol)
     if fmt == "json":

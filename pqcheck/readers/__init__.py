@@ -124,7 +124,7 @@ def open_capture(
     ----------
     path, sample_rate_hz, current, voltage, time_column
         As for :func:`load_capture`.
-    cache : pqcheck.cache.Cache or None
+    cache : pqcheck.run.cache.Cache or None
         Cache of parsed samples. On a hit the text file is not parsed again; on a miss the
         parsed blocks are stored while they are read.
     stream_over_bytes : int or None

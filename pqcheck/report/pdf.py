@@ -1,7 +1,7 @@
 """The PDF report (reportlab platypus), rendered from a :class:`~pqcheck.report.job.ReportJob`.
 
 :func:`render_pdf` returns the bytes of the document; writing them is the caller's business
-(:mod:`pqcheck.report.atomic`). The results JSON travels inside the PDF as an embedded file
+(:mod:`pqcheck.files.atomic`). The results JSON travels inside the PDF as an embedded file
 (``results.json``), so the paperwork and its data stay together.
 
 Layout: a cover with the overall verdict, then (1) summary, (2) results per capture, (3) data

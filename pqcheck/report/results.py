@@ -14,7 +14,7 @@ from datetime import timezone
 
 from .. import __version__
 from ..export import analysis_to_dict, clean, harmonics_frame, windows_frame
-from .atomic import check_target, write_atomic
+from ..files.atomic import check_target, write_atomic
 
 __all__ = ["SCHEMA_VERSION", "CSV_TABLES", "job_to_dict", "job_json", "job_frames",
            "check_csv_targets", "write_csv_dir"]

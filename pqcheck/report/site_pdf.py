@@ -2,7 +2,7 @@
 
 Built from the report's building blocks: the typography and verdict marks of
 :mod:`pqcheck.report.style`, the fixed caution wording of :mod:`pqcheck.report.text` and the
-atomic writer of :mod:`pqcheck.report.atomic`. :func:`site_story` returns the section as a list
+atomic writer of :mod:`pqcheck.files.atomic`. :func:`site_story` returns the section as a list
 of reportlab flowables so a larger report can include it; :func:`write_site_pdf` writes it as a
 document of its own. Every number comes from the study; nothing is recomputed here.
 """
@@ -16,7 +16,7 @@ from reportlab.lib.pagesizes import A4
 from reportlab.lib.units import mm
 from reportlab.platypus import Image, KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table
 
-from .atomic import atomic_open
+from ..files.atomic import atomic_open
 from .style import (
     ACCENT,
     FONT,
@@ -163,12 +163,12 @@ def site_story(study) -> list:
         f"Worst phase of each order. Voltage THD {fmt(study.thd_v_percent, 3)} %, TDD "
         f"{fmt(study.tdd_percent, 3)} % (orders 2 to {study.resolved_order}).", st["caption"]))
 
-    rows = [["Check", "Estimate", "Limit", "Use of limit", "Verdict", "Clause"]]
+    rows = [["Check", "Estimate", "Limit", "Margin", "Verdict", "Clause"]]
     shown = [c for c in study.checks if c.quantity != "harmonic" or c.verdict != "pass"
-             or c.usage_percent >= 50.0]
+             or c.margin_percent <= 50.0]
     for c in shown:
-        rows.append([esc(c.label), f"{fmt(c.value, 3)} %", f"{fmt(c.limit, 3)} %"
-                     + (" \u2020" if c.verify else ""), f"{fmt(c.usage_percent, 3)} %",
+        rows.append([esc(c.label), f"{fmt(c.measured, 3)} %", f"{fmt(c.limit, 3)} %"
+                     + (" \u2020" if c.verify else ""), f"{fmt(c.margin_percent, 3)} %",
                      f"{VERDICT_MARK[c.verdict]} {VERDICT_WORD[c.verdict]}", esc(c.clause)])
     out.append(_table(rows, [22 * mm, 24 * mm, 24 * mm, 24 * mm, 34 * mm, 42 * mm], st))
     hidden = len(study.checks) - len(shown)

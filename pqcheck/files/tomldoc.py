@@ -11,8 +11,8 @@ import math
 import re
 from pathlib import Path
 
-from ._toml import KeyLines, syntax_error_line, tomllib
-from .errors import PlanError
+from ..errors import PlanError
+from .toml import KeyLines, syntax_error_line, tomllib
 
 __all__ = ["DocReader", "read_document", "NUM", "POS", "STR", "BOOL", "STRS", "INT", "LABEL",
            "field_name", "kind_of"]

@@ -1,6 +1,6 @@
 """Assemble what a report covers: analyse and assess one capture, or every capture of a plan.
 
-This is the orchestration layer: it calls :func:`pqcheck.pipeline.analyze_file`,
+This is the orchestration layer: it calls :func:`pqcheck.run.check.analyze_file`,
 :func:`pqcheck.limits.resolve` and :func:`pqcheck.assess.assess` and collects their results
 into :class:`~pqcheck.report.job.CaptureRun` records. It computes nothing itself.
 """
@@ -10,7 +10,7 @@ from __future__ import annotations
 import re
 
 from ..errors import InputError, PlanError
-from .job import CaptureRun
+from ..report.job import CaptureRun
 
 __all__ = ["assess_each", "run_plan"]
 
@@ -59,8 +59,8 @@ def run_plan(plan, *, cache=None, progress=None) -> tuple:
     Parameters
     ----------
     plan : Plan
-        From :func:`pqcheck.plan.load_plan`.
-    cache : pqcheck.cache.Cache or None
+        From :func:`pqcheck.run.plan.load_plan`.
+    cache : pqcheck.run.cache.Cache or None
         Cache of parsed captures and results.
     progress : callable or None
         ``progress(done_samples, total_samples)`` per capture.
@@ -78,7 +78,7 @@ def run_plan(plan, *, cache=None, progress=None) -> tuple:
         plan are named).
     """
     from ..limits import load_table, resolve
-    from ..pipeline import analyze_file
+    from .check import analyze_file
 
     resolved = {}
     for k, spec in enumerate(plan.limits):

@@ -21,7 +21,7 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ._tomldoc import BOOL, NUM, POS, STR, STRS, DocReader, read_document
+from ..files.tomldoc import BOOL, NUM, POS, STR, STRS, DocReader, read_document
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -286,7 +286,7 @@ class CaptureSpec:
 
     def analysis_kwargs(self, analysis: AnalysisOptions, site: Site, *,
                         max_order: int = 50) -> dict:
-        """Keyword arguments of :func:`pqcheck.pipeline.analyze_file` for this capture.
+        """Keyword arguments of :func:`pqcheck.run.check.analyze_file` for this capture.
 
         Parameters
         ----------

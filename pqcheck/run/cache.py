@@ -32,9 +32,11 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from .capture import CaptureStream, Channel, Provenance
-from .findings import Finding
+from .. import __version__
+from ..capture import CaptureStream, Channel, Provenance
+from ..errors import ReportError
+from ..files.atomic import write_atomic
+from ..findings import Finding
 
 __all__ = ["Cache", "default_cache_dir"]
 
@@ -55,15 +57,14 @@ def _key(obj) -> str:
 
 
 def _atomic_write_bytes(path: Path, data: bytes) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=path.suffix)
+    """Write a cache file atomically (replacing an older one) with :mod:`pqcheck.files.atomic`.
+
+    Raises ``OSError`` on any failure, which every caller treats as "not cached"."""
     try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+        path.parent.mkdir(parents=True, exist_ok=True)
+        write_atomic(path, data, force=True)
+    except ReportError as exc:
+        raise OSError(str(exc)) from exc
 
 
 def _finding_from(d: dict) -> Finding:
@@ -79,7 +80,7 @@ def _code_fingerprint() -> str:
     """Hash of the source of every module that computes a result, so that a cached result is
     never served to code that would compute it differently (an edited checkout keeps its
     version number)."""
-    root = Path(__file__).parent
+    root = Path(__file__).parent.parent  # the pqcheck package
     h = hashlib.sha256()
     for name in _CODE:
         p = root / name
@@ -173,7 +174,7 @@ class Cache:
 
     def load_result(self, sha256: str, settings: dict):
         """A cached :class:`~pqcheck.analysis.AnalysisResult`, or None."""
-        from .resultstore import result_from_arrays
+        from ..resultstore import result_from_arrays
 
         base = self._result_base(sha256, settings)
         try:
@@ -188,7 +189,7 @@ class Cache:
         """Store an analysis result (best effort: a failure to cache is not an error)."""
         import io
 
-        from .resultstore import result_to_arrays
+        from ..resultstore import result_to_arrays
 
         base = self._result_base(sha256, settings)
         try:

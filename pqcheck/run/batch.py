@@ -2,7 +2,7 @@
 
 A charging-network operator or a utility may hold thousands of captures from a fleet.
 :func:`run_batch` finds the captures in folders or glob patterns (:func:`find_captures`), and
-checks each one exactly as ``pqcheck check`` does (:func:`pqcheck.pipeline.analyze_file`, then
+checks each one exactly as ``pqcheck check`` does (:func:`pqcheck.run.check.analyze_file`, then
 :func:`pqcheck.limits.resolve` and :func:`pqcheck.assess.assess`), collecting one row per
 capture and check (:data:`SCHEMA`).
 
@@ -48,8 +48,8 @@ from pathlib import Path
 
 import pyarrow as pa
 
-from .errors import InputError, PqcheckError
-from .readers import capture_sha256
+from ..errors import InputError, PqcheckError
+from ..readers import capture_sha256
 
 __all__ = [
     "SCHEMA",
@@ -208,7 +208,7 @@ def _stamps(limits: tuple) -> tuple:
 @functools.lru_cache(maxsize=8)
 def _resolved(limits: tuple, selectors: tuple, stamps: tuple) -> tuple:
     """Resolved tables, cached per process (a worker resolves once, not once per capture)."""
-    from .limits import load_table, resolve
+    from ..limits import load_table, resolve
 
     return tuple(resolve(load_table(x), **dict(selectors)) for x in limits)
 
@@ -385,9 +385,9 @@ def check_capture(task: dict) -> list:
 
 
 def _check_rows(task: dict) -> list:
-    from .assess import assess
+    from ..assess import assess
     from .cache import Cache
-    from .pipeline import analyze_file
+    from .check import analyze_file
 
     spec = BatchSpec(**task["spec"])
     capture, sha, key = task["capture"], task.get("sha256"), task.get("key", "")
@@ -551,7 +551,7 @@ def _worker_init():
     and run their FFTs on one thread (the pool already uses every core)."""
     import signal
 
-    from .dsp import spectrum
+    from ..dsp import spectrum
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     spectrum.FFT_WORKERS = 1
@@ -698,7 +698,7 @@ def write_results(table: pa.Table, *, parquet=None, csv=None) -> None:
     import pyarrow.csv as pacsv
     import pyarrow.parquet as pq
 
-    from .report.atomic import atomic_open
+    from ..files.atomic import atomic_open
 
     if parquet is not None:
         with atomic_open(parquet, "wb", force=True, option="--out") as fh:
@@ -712,7 +712,7 @@ class _Results:
     """Old rows from the results file, new rows of this run, periodic atomic rewrites."""
 
     def __init__(self, parquet, csv, key: str, force: bool):
-        from .report.atomic import check_target
+        from ..files.atomic import check_target
 
         self.parquet, self.csv = parquet, csv
         for path, opt in ((parquet, "--out"), (csv, "--csv")):
@@ -912,7 +912,7 @@ def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, for
 
 def _label(quantity, applies_to, order) -> str:
     """``I5``, ``V7``, ``THD(I)``, ``TDD``... as `check` names a limit."""
-    from .limits import quantity_label
+    from ..limits import quantity_label
 
     return quantity_label(quantity, applies_to, order)
 

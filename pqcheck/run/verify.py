@@ -17,8 +17,8 @@ Finding the files
     bundled limit table is also looked up by its id.
 
 How it re-runs
-    A report made from a plan is re-run from the plan (:func:`pqcheck.plan.load_plan`,
-    :func:`pqcheck.report.build.run_plan`). A report of one capture is re-run with the options
+    A report made from a plan is re-run from the plan (:func:`pqcheck.run.plan.load_plan`,
+    :func:`pqcheck.run.build.run_plan`). A report of one capture is re-run with the options
     of its recorded command line (reader, channel map, reference currents), the recorded analysis
     settings (nominal frequency and wiring when the user set them, maximum order, IL, reference
     channel) and the recorded selector values of each limit table.
@@ -48,7 +48,7 @@ import shlex
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .errors import InputError, PqcheckError
+from ..errors import InputError, PqcheckError
 
 __all__ = ["Difference", "FileCheck", "Verification", "read_results", "verify",
            "compare_documents", "REL_TOL", "ABS_TOL"]
@@ -265,7 +265,7 @@ def _command_params(command: str) -> dict:
     """Options of the recorded ``pqcheck report`` command line, parsed by the command itself."""
     if not command:
         return {}
-    from .cli import main
+    from ..cli import main
 
     try:
         words = shlex.split(command)
@@ -289,7 +289,7 @@ def _split(value):
 
 def _table_for(rec: dict, bases, files: list):
     """Load the limit table recorded as ``rec`` (an assessment's ``tables[0]``)."""
-    from .limits import bundled_ids, load_table
+    from ..limits import bundled_ids, load_table
 
     src, sha, tid = rec.get("source") or "", rec.get("sha256") or "", rec.get("id") or ""
     where, digest = _locate(src, sha, bases) if src else (None, "")
@@ -311,11 +311,11 @@ def _table_for(rec: dict, bases, files: list):
 
 
 def _rerun_capture(doc: dict, bases, files: list, notes: list, params: dict):
-    from .cli.analyze import analysis_kwargs
-    from .limits import resolve
-    from .pipeline import analyze_file
-    from .report.build import assess_each
-    from .report.job import CaptureRun
+    from ..cli.analyze import analysis_kwargs
+    from ..limits import resolve
+    from ..report.job import CaptureRun
+    from .build import assess_each
+    from .check import analyze_file
 
     if not params:
         notes.append("the results record no command line: the capture is re-read with the "
@@ -364,8 +364,8 @@ def _rerun_capture(doc: dict, bases, files: list, notes: list, params: dict):
 
 
 def _rerun_plan(doc: dict, bases, files: list):
+    from .build import run_plan
     from .plan import load_plan
-    from .report.build import run_plan
 
     rec = doc["plan"]
     where, digest = _locate(rec.get("path") or "", rec.get("sha256") or "", bases)
@@ -384,7 +384,7 @@ def _meta_differences(recorded: dict, params: dict, runs, plan) -> list:
     command nothing is known and nothing is compared."""
     from datetime import datetime
 
-    from .report.job import ReportMeta, make_report_id
+    from ..report.job import ReportMeta, make_report_id
 
     rep = recorded.get("report")
     if not params or not isinstance(rep, dict):
@@ -548,8 +548,8 @@ def _pdf_text_differences(pdf: bytes, attached: bytes, recorded: dict, runs, pla
     import difflib
     from datetime import datetime
 
-    from .report.job import ReportJob, ReportMeta
-    from .report.pdf import render_pdf
+    from ..report.job import ReportJob, ReportMeta
+    from ..report.pdf import render_pdf
     r = recorded.get("report")
     try:
         meta = ReportMeta(title=str(r["title"]), equipment=str(r["equipment"]),
@@ -619,8 +619,8 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
         The report cannot be read, or a file it needs is not found, or the recorded options
         no longer run (the message names what and says where it was looked for).
     """
-    from .report.job import ReportJob, ReportMeta
-    from .report.results import job_json
+    from ..report.job import ReportJob, ReportMeta
+    from ..report.results import job_json
 
     p = Path(path)
     recorded, pdf, attached = _load(p)

@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import dataclasses
 
-from .analysis import analyze
-from .readers import open_capture
+from ..analysis import analyze
+from ..readers import open_capture
 
 __all__ = ["analyze_file"]
 
@@ -35,7 +35,7 @@ def analyze_file(
         Capture file (see :func:`pqcheck.readers.load_capture` for formats).
     sample_rate_hz, current, voltage, time_column
         Reader options. [Hz] for the rate.
-    cache : pqcheck.cache.Cache or None
+    cache : pqcheck.run.cache.Cache or None
         Cache of parsed samples and results; None disables caching.
     progress : callable or None
         ``progress(done_samples, total_samples_or_None)``.

@@ -1,0 +1,465 @@
+"""The site file: :func:`load_site` reads and validates a site description (TOML) and the unit
+data it names; :func:`site_template` is the commented template ``pqcheck site new`` writes.
+
+Every problem is a :class:`~pqcheck.errors.PlanError` naming the file, the line and the field;
+every number is checked against its physical range (:data:`RANGES`) before anything is
+computed with it.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from pathlib import Path
+
+from ..errors import InputError
+from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
+from .model import (
+    PCC_LOCATIONS,
+    OtherLoad,
+    Site,
+    SiteTransformer,
+    Supply,
+    Unit,
+    spectrum_from_analysis,
+    spectrum_from_dict,
+)
+from .network import SQRT3, SUMMATIONS, vector_group_shift
+from .study import SITE_BASES
+
+__all__ = ["SCHEMA_VERSION", "MAX_UNITS", "RANGES", "load_site", "site_template", "shown_path"]
+
+#: Version of the site file's layout this pqcheck reads.
+SCHEMA_VERSION = 1
+
+#: Largest number of units of one kind a site file may give (a site, not a fleet).
+MAX_UNITS = 10_000
+
+#: Physical range of every number in a site file: (table, field) -> (lowest, highest, unit,
+#: what it is). A value outside is refused with the field and line; the bounds are far
+#: beyond real installations so that only a typing or unit mistake meets them.
+RANGES = {
+    ("supply", "nominal_voltage_v"): (100.0, 1.2e6, "V", "a nominal line-to-line voltage"),
+    ("supply", "ssc_va"): (1e4, 1e11, "VA", "a three-phase short-circuit power"),
+    ("supply", "isc_a"): (1.0, 1e6, "A", "a three-phase short-circuit current"),
+    ("supply", "x_over_r"): (0.1, 100.0, "", "an X/R ratio"),
+    ("transformer", "rating_va"): (1e3, 2e9, "VA", "a transformer rating"),
+    ("transformer", "primary_v"): (100.0, 1.2e6, "V", "a rated line-to-line voltage"),
+    ("transformer", "secondary_v"): (100.0, 1.2e6, "V", "a rated line-to-line voltage"),
+    ("transformer", "impedance_percent"): (0.1, 50.0, "%", "a short-circuit impedance on "
+                                                           "the transformer's own rating"),
+    ("transformer", "x_over_r"): (0.1, 100.0, "", "an X/R ratio"),
+    ("pcc", "il_a"): (0.01, 1e6, "A", "a maximum demand load current"),
+    ("other_load", "demand_w"): (0.0, 1e10, "W", "a maximum demand"),
+    ("other_load", "power_factor"): (0.01, 1.0, "", "a lagging displacement power factor"),
+    ("other_load", "demand_current_a"): (0.0, 1e6, "A", "a maximum demand current"),
+    ("units", "count"): (0, MAX_UNITS, "", "units of one kind on one site"),
+    ("units", "phase_shift_deg"): (-180.0, 180.0, "degrees", "a phase shift"),
+    ("units", "sample_rate_hz"): (10.0, 1e10, "Hz", "a sample rate"),
+}
+
+_NUM, _POS, _STR, _BOOL, _STRS, _INT = NUM, POS, STR, BOOL, STRS, INT
+
+_TOP = {"schema": _INT, "name": _STR, "notes": _STR, "nominal_frequency_hz": _POS,
+        "summation": _STR, "supply": "table", "transformer": "table", "pcc": "table",
+        "other_load": "table", "limits": "table", "units": "array of tables"}
+_SUPPLY = {"nominal_voltage_v": _POS, "ssc_va": _POS, "isc_a": _POS, "x_over_r": _POS}
+_TRANSFORMER = {"rating_va": _POS, "primary_v": _POS, "secondary_v": _POS,
+                "impedance_percent": _POS, "x_over_r": _POS, "vector_group": _STR}
+_PCC = {"location": _STR, "il_a": _POS}
+_OTHER = {"demand_w": _NUM, "power_factor": _POS, "demand_current_a": _NUM}
+_LIMITS = {"table": _STR, "generation": _BOOL}
+_UNIT = {"name": _STR, "capture": _STR, "results": _STR, "count": _INT, "load_point": "label",
+         "phase_shift_deg": _NUM, "connection": _STR, "phase": _STR, "current": _STRS,
+         "voltage": _STRS, "sample_rate_hz": _POS, "time_column": _STR}
+
+
+
+
+class _Reader(DocReader):
+    """Validates one parsed site document; every error names file, line and field."""
+
+    def __init__(self, path: Path, text: str):
+        super().__init__(path, text, "site file")
+
+    def table(self, doc, key_path: tuple, schema: dict) -> dict:
+        """The table's converted values, each number checked against :data:`RANGES`."""
+        out = super().table(doc, key_path, schema)
+        where = str(key_path[0]) if key_path else ""
+        for key, v in out.items():
+            bounds = RANGES.get((where, key))
+            if bounds is None:
+                continue
+            lo, hi, unit, what = bounds
+            if not lo <= v <= hi:
+                unit = f" {unit}" if unit else ""
+                raise self.error(key_path + (key,), f"must be from {lo:g} to {hi:g}{unit} "
+                                                    f"({what}), got {v:g}")
+        return out
+
+
+def load_site(path, *, analyse=None) -> Site:
+    """Read and validate a site description and the unit data it names.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The site file (TOML; write a commented one with :func:`site_template`).
+    analyse : callable or None
+        ``analyse(capture_path, options) -> AnalysisResult`` for units given by a capture;
+        default: :func:`pqcheck.load_capture` and :func:`pqcheck.analyze` with the site's
+        nominal frequency and orders up to 50.
+
+    Returns
+    -------
+    Site
+
+    Raises
+    ------
+    PlanError
+        The file is missing or not TOML, a field is unknown, has the wrong type or value, a
+        required field is missing, a file it names does not exist or does not hold usable
+        results, or the units' nominal frequencies disagree. The message names the file, the
+        line and the field.
+    InputError
+        A capture named by a unit cannot be read or analysed (the reader's own error, naming
+        the capture file).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "site.toml").write_text('[supply]\\nnominal_voltage_v = 400\\n')
+    >>> load_site(d / "site.toml")
+    Traceback (most recent call last):
+    ...
+    pqcheck.errors.PlanError: ...site.toml:1: supply: missing field 'ssc_va' or 'isc_a': ...
+    """
+    path = Path(path)
+    raw, text, doc = read_document(path, "site file")
+    r = _Reader(path, text)
+    folder = path.resolve().parent
+    top = r.table(doc, (), _TOP)
+    schema = top.get("schema", SCHEMA_VERSION)
+    if schema != SCHEMA_VERSION:
+        raise r.error(("schema",), f"this pqcheck reads site schema {SCHEMA_VERSION}, got "
+                                   f"{schema}")
+    f_nom = top.get("nominal_frequency_hz")
+    if f_nom is not None and f_nom not in (50.0, 60.0):
+        raise r.error(("nominal_frequency_hz",), f"must be 50 or 60, got {f_nom:g}")
+    summation = top.get("summation", "general")
+    if summation not in SUMMATIONS:
+        raise r.error(("summation",), f"must be one of {', '.join(map(repr, SUMMATIONS))}, "
+                                      f"got {summation!r}")
+
+    # supply
+    if "supply" not in doc:
+        raise r.error((), "missing table [supply]: the utility supply's nominal_voltage_v, "
+                          "ssc_va or isc_a, and x_over_r")
+    kp = ("supply",)
+    sup = r.table(doc["supply"], kp, _SUPPLY)
+    v_sup = r.require(sup, kp, "nominal_voltage_v", "the supply's nominal line-to-line voltage "
+                                                    "[V]")
+    if "ssc_va" in sup and "isc_a" in sup:
+        raise r.error(kp + ("isc_a",), "give the fault level once: ssc_va or isc_a, not both")
+    if "ssc_va" not in sup and "isc_a" not in sup:
+        raise r.error(kp, "missing field 'ssc_va' or 'isc_a': the three-phase short-circuit "
+                          "power [VA] or current [A] the utility states")
+    xr = r.require(sup, kp, "x_over_r", "the supply impedance's X/R ratio (ask the utility; "
+                                        "typically 5 to 15 on MV networks)")
+    ssc = sup.get("ssc_va") or SQRT3 * v_sup * sup["isc_a"]
+    supply = Supply(nominal_voltage_v=v_sup, ssc_va=ssc, x_over_r=xr)
+
+    # transformer
+    transformer = None
+    if "transformer" in doc:
+        kp = ("transformer",)
+        tv = r.table(doc["transformer"], kp, _TRANSFORMER)
+        for key, what in (("rating_va", "rated apparent power [VA]"),
+                          ("secondary_v", "rated secondary line-to-line voltage [V]"),
+                          ("impedance_percent", "short-circuit impedance [%]"),
+                          ("x_over_r", "X/R ratio (typically 4 to 10 for distribution "
+                                       "transformers)")):
+            r.require(tv, kp, key, what)
+        primary = tv.get("primary_v", v_sup)
+        if abs(primary - v_sup) > 0.05 * v_sup:
+            raise r.error(kp + ("primary_v",),
+                          f"{primary:g} V does not match supply.nominal_voltage_v = {v_sup:g} "
+                          "V; the supply's fault level is stated at the transformer's primary")
+        group = tv.get("vector_group", "Dyn11")
+        try:
+            vector_group_shift(group)
+        except ValueError as exc:
+            raise r.error(kp + ("vector_group",), str(exc)) from None
+        transformer = SiteTransformer(
+            rating_va=tv["rating_va"], primary_v=primary, secondary_v=tv["secondary_v"],
+            impedance_percent=tv["impedance_percent"], x_over_r=tv["x_over_r"],
+            vector_group=group)
+
+    # PCC
+    pcc = r.table(doc.get("pcc", {}), ("pcc",), _PCC)
+    location = pcc.get("location")
+    if location is not None and location not in PCC_LOCATIONS:
+        raise r.error(("pcc", "location"),
+                      f"must be \"supply\" (the transformer's primary, where the supply's "
+                      f"fault level is stated) or \"bus\" (the bus the units connect to), got "
+                      f"{location!r}")
+    if location is None:
+        if transformer is not None:
+            raise r.error(("pcc",) if "pcc" in doc else ("transformer",),
+                          "missing field 'location' in [pcc]: with a site transformer, say "
+                          "where the point of common coupling is: location = \"supply\" (its "
+                          "primary) or \"bus\" (its secondary, where the units connect)")
+        location = "supply"
+
+    # other load
+    kp = ("other_load",)
+    ol = r.table(doc.get("other_load", {}), kp, _OTHER)
+    other = OtherLoad(**ol)
+
+    # limits
+    lim = r.table(doc.get("limits", {}), ("limits",), _LIMITS)
+    table = lim.get("table", "ieee519-2022").strip()
+    if not table:
+        raise r.error(("limits", "table"), "must not be empty")
+    if "/" in table or "\\" in table or table.lower().endswith(".toml"):
+        tpath = Path(table).expanduser()
+        if not tpath.is_absolute():
+            tpath = folder / tpath
+        if not tpath.is_file():
+            raise r.error(("limits", "table"), f"limit table {table!r} not found (resolved "
+                                               f"against the site file's folder {folder})")
+        table = str(tpath)
+    from ..limits import load_table
+
+    try:
+        limit_table = load_table(table)
+    except InputError as exc:
+        raise r.error(("limits", "table"), f"cannot use limit table {table!r}: "
+                                           f"{exc.location_message()}") from None
+    if not any((b.applies_to, b.basis) in SITE_BASES for b in limit_table.blocks):
+        raise r.error(("limits", "table"),
+                      f"table {limit_table.id} has no limits in % of IL (currents) or % of the "
+                      "fundamental (voltages); a site study needs a table for the PCC such as "
+                      "ieee519-2022")
+
+    # units
+    entries = doc.get("units")
+    if entries is None:
+        raise r.error((), "the site lists no unit; add at least one [[units]] entry with "
+                          "capture = \"...\" or results = \"...\"")
+    if not isinstance(entries, list) or not all(isinstance(x, dict) for x in entries) \
+            or not entries:
+        raise r.error(("units",), "must be an array of tables ([[units]] entries)")
+    units = []
+    for k, item in enumerate(entries):
+        units.append(_load_unit(r, item, k, folder, f_nom, analyse))
+    names = [u.name for u in units]
+    for k, u in enumerate(units):
+        if names.index(u.name) != k:
+            raise r.error(("units", k, "name"),
+                          f"unit name {u.name!r} is used twice; give each kind its own name")
+    noms = {u.spectrum.nominal_hz for u in units if u.spectrum.nominal_hz}
+    if f_nom is None:
+        if len(noms) > 1:
+            raise r.error(("units",), f"the units' data have different nominal frequencies "
+                                      f"({', '.join(f'{x:g}' for x in sorted(noms))} Hz); set "
+                                      "nominal_frequency_hz")
+        f_nom = noms.pop() if noms else None
+        if f_nom is None:
+            raise r.error((), "missing field 'nominal_frequency_hz' (50 or 60): the units' "
+                              "data do not say it")
+    else:
+        for k, u in enumerate(units):
+            if u.spectrum.nominal_hz and u.spectrum.nominal_hz != f_nom:
+                raise r.error(("units", k),
+                              f"the data of unit {u.name!r} are for {u.spectrum.nominal_hz:g} "
+                              f"Hz but the site is {f_nom:g} Hz")
+    if summation == "phasor":
+        for k, u in enumerate(units):
+            if not u.spectrum.phase_measured:
+                raise r.error(("units", k),
+                              f"summation = \"phasor\" needs phase angles relative to the "
+                              f"supply voltage, but the data of unit {u.name!r} have no "
+                              "voltage reference; measure a voltage with the currents or use "
+                              "summation = \"general\"")
+    return Site(
+        name=top.get("name", "") or path.stem, nominal_hz=float(f_nom), supply=supply,
+        units=tuple(units), transformer=transformer, pcc_location=location, other_load=other,
+        summation=summation, il_a=pcc.get("il_a"), limits=table,
+        generation=lim.get("generation", False), notes=top.get("notes", ""), path=path,
+        sha256=hashlib.sha256(raw).hexdigest(), limit_table=limit_table)
+
+
+def _default_analyse(capture_path, options):
+    from ..analysis import analyze
+    from ..readers import load_capture
+
+    cap = load_capture(capture_path, sample_rate_hz=options.get("sample_rate_hz"),
+                       current=options.get("current"), voltage=options.get("voltage"),
+                       time_column=options.get("time_column"))
+    nominal = options.get("nominal_hz")
+    return analyze(cap, nominal_hz=None if nominal is None else int(nominal), max_order=50)
+
+
+def _load_unit(r: _Reader, item, k: int, folder: Path, f_nom, analyse) -> Unit:
+    kp = ("units", k)
+    vals = r.table(item, kp, _UNIT)
+    name = vals.get("name", "").strip()
+    if not name:
+        raise r.error(kp, "missing field 'name': a short name for this kind of unit")
+    count = r.require(vals, kp, "count", "the number of identical units of this kind")
+    load_point = r.require(vals, kp, "load_point", "the operating point the capture "
+                                                   "represents, e.g. \"100 %\" (every unit is "
+                                                   "assumed to run there)")
+    shift = vals.get("phase_shift_deg", 0.0)
+    connection = vals.get("connection")
+    if connection is not None and connection not in ("three-phase", "single-phase"):
+        raise r.error(kp + ("connection",), f"must be \"three-phase\" or \"single-phase\", got "
+                                            f"{connection!r}")
+    phase = vals.get("phase")
+    if phase is not None:
+        if phase not in ("a", "b", "c"):
+            raise r.error(kp + ("phase",), f"must be \"a\", \"b\" or \"c\", got {phase!r}")
+        if connection != "single-phase":
+            raise r.error(kp + ("phase",), "phase is for single-phase units; add connection = "
+                                           "\"single-phase\" or remove it")
+    has_cap, has_res = "capture" in vals, "results" in vals
+    if has_cap == has_res:
+        raise r.error(kp, "give exactly one of 'capture' (a capture file to analyse) and "
+                          "'results' (saved results of pqcheck analyze --format json)")
+    key = "capture" if has_cap else "results"
+    if not has_cap:
+        for opt in ("current", "voltage", "sample_rate_hz", "time_column"):
+            if opt in vals:
+                raise r.error(kp + (opt,), f"{opt} is a capture option; it has no effect with "
+                                           "results = ...")
+    text = vals[key]
+    fpath = Path(text).expanduser()
+    if not fpath.is_absolute():
+        fpath = folder / fpath
+    if not fpath.is_file():
+        where = "" if Path(text).is_absolute() else \
+            f" (resolved against the site file's folder {folder})"
+        raise r.error(kp + (key,), f"file {text!r} not found{where}")
+    try:
+        if has_cap:
+            options = {"current": vals.get("current"), "voltage": vals.get("voltage"),
+                       "sample_rate_hz": vals.get("sample_rate_hz"),
+                       "time_column": vals.get("time_column"), "nominal_hz": f_nom}
+            result = (analyse or _default_analyse)(fpath, options)
+            spectrum = spectrum_from_analysis(result, connection=connection, phase=phase)
+        else:
+            raw = fpath.read_bytes()
+            try:
+                doc = json.loads(raw.decode("utf-8"))
+            except (UnicodeDecodeError, ValueError) as exc:
+                raise ValueError(f"not JSON results ({exc})") from None
+            spectrum = spectrum_from_dict(doc, source=str(fpath),
+                                          sha256=hashlib.sha256(raw).hexdigest(),
+                                          connection=connection, phase=phase,
+                                          load_point=load_point)
+    except ValueError as exc:
+        if isinstance(exc, InputError):
+            raise
+        raise r.error(kp + (key,), f"{text}: {exc}") from None
+    return Unit(name=name, count=count, load_point=load_point, spectrum=spectrum,
+                phase_shift_deg=shift, line=r.lines.line(kp))
+
+
+_TEMPLATE = '''\
+# pqcheck site description (schema 1)
+#
+# Several units (chargers, drives, inverters) at one point of common coupling (PCC): what the
+# whole site injects at the PCC, the voltage distortion that causes, and how many more units
+# fit. Then:
+#
+#     pqcheck site THIS-FILE.toml                  (table on the terminal)
+#     pqcheck site THIS-FILE.toml -o site.pdf      (PDF section)
+#
+# The result is an estimate for planning; the utility's own study governs.
+# Relative paths resolve against the folder of this file. Units are in the field names:
+# _v volts, _a amperes, _va volt-amperes, _w watts, _hz hertz, _deg degrees.
+
+schema = 1
+name = "Site name"
+nominal_frequency_hz = 50        # 50 or 60; default: from the units' data
+summation = "general"            # how the units' harmonic currents combine:
+                                 #   "general"    IEC TR 61000-3-6 summation law (exponent 1
+                                 #                below order 5, 1.4 for 5 to 10, 2 above 10)
+                                 #   "arithmetic" worst case, magnitudes added
+                                 #   "phasor"     measured phases added (needs a voltage
+                                 #                measured with every unit's currents)
+
+# The utility supply, where its fault level is stated (ask the utility).
+[supply]
+nominal_voltage_v = 11000        # line-to-line
+ssc_va = 250e6                   # three-phase short-circuit power ...
+# isc_a = 13122                  # ... or short-circuit current (give one of them)
+x_over_r = 10                    # X/R of the supply impedance
+
+# The site transformer between the supply and the bus the units connect to. Delete this table
+# when the units connect at the supply voltage.
+[transformer]
+rating_va = 1000e3
+# primary_v = 11000              # default: supply.nominal_voltage_v
+secondary_v = 400
+impedance_percent = 6.0
+x_over_r = 6
+vector_group = "Dyn11"           # a delta winding stops zero-sequence (triplen) currents
+
+[pcc]
+location = "supply"              # "supply": the PCC is the transformer's primary (where the
+                                 # fault level above is stated); "bus": its secondary
+# il_a = 35                      # IL at the PCC if the utility states it; default: estimated
+                                 # from the units' fundamental and the other load
+
+# Linear load besides the units (offices, workshop, lighting), on the same bus.
+[other_load]
+demand_w = 80e3                  # maximum demand
+power_factor = 0.9               # lagging displacement power factor
+# demand_current_a = 130         # per phase at the bus, e.g. from billing demand; replaces the
+                                 # estimate from demand_w and power_factor
+
+[limits]
+table = "ieee519-2022"           # bundled id or the path of your own table file
+generation = false               # true: IEEE 519 rule for generation (first ISC/IL row)
+
+# One entry per kind of unit. Give a capture to analyse or saved results: the JSON of
+# pqcheck analyze CAPTURE --format json, or of pqcheck report PLAN --json (then load_point
+# picks the capture by its load point or id).
+[[units]]
+name = "DC charger 150 kW"
+capture = "charger-150kw.csv"    # or: results = "charger-150kw.json"
+count = 4
+load_point = "100 %"             # the operating point the capture represents; every unit is
+                                 # assumed to run there at once
+phase_shift_deg = 0              # phase-shifting transformer feeding these units: angle by
+                                 # which their side leads the bus (+30 Dyn11, -30 Dyn1)
+# current = ["ia", "ib", "ic"]   # channel map of the capture (default: guessed)
+# voltage = ["va", "vb", "vc"]
+# connection = "three-phase"     # only for data with one current channel: "three-phase"
+                                 # (balanced phases assumed) or "single-phase"
+# phase = "a"                    # bus phase of a single-phase unit
+
+[[units]]
+name = "AC charger 22 kW"
+results = "charger-22kw.json"
+count = 2
+load_point = "32 A"
+'''
+
+
+def site_template() -> str:
+    """Return the commented site template that ``pqcheck site new`` writes."""
+    return _TEMPLATE
+
+
+def shown_path(source: str, site_path) -> str:
+    """A unit's data file relative to the site file's folder when it lies inside it."""
+    if site_path is None:
+        return source
+    try:
+        return str(Path(source).resolve().relative_to(Path(site_path).resolve().parent))
+    except ValueError:
+        return source
