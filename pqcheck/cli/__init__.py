@@ -1,11 +1,7 @@
 """Command line of pqcheck: a thin layer that parses options, calls the API, prints and exits.
 
-Exit codes (one convention for every command):
-
-- 0: ran, and every assessed limit passed (or nothing was assessed)
-- 1: a limit was exceeded
-- 2: bad input or usage (nothing was written)
-- 3: inconclusive (data quality or duration does not allow a verdict)
+Exit codes: one convention for every command, the table ``_common.EXIT_CODES`` (printed by
+``pqcheck --help`` and repeated in the README).
 
 Each command lives in its own module of this package and registers itself on :data:`main`.
 """

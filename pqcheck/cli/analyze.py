@@ -7,7 +7,7 @@ import numpy as np
 
 from ._common import EXIT_OK, handle_errors, main, split_columns
 
-__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs"]
+__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs", "print_cache_notices"]
 
 
 def capture_options(func):
@@ -88,6 +88,15 @@ def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
     finally:
         if bar is not None:
             bar.close()
+        if cache is not None:
+            print_cache_notices(cache)
+
+
+def print_cache_notices(cache) -> None:
+    """Print what the cache found wrong (an entry that failed its checksum) on stderr."""
+    for note in cache.notices:
+        click.echo(f"pqcheck: note: {note}", err=True)
+    cache.notices.clear()
 
 
 class _ProgressBar:

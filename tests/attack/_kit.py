@@ -115,6 +115,7 @@ name = "unit A"
 capture = "{capture}"
 count = 2
 load_point = "100 %"
+connection = "three-phase"
 """)
     return p
 

@@ -16,7 +16,17 @@ import os
 import re
 
 import pytest
-from _kit import EXIT, LIMITS, invoke, no_hang, outcome, snapshot, tree, write_capture, write_plan
+from _kit import (
+    EXIT,
+    LIMITS,
+    invoke,
+    no_hang,  # noqa: F401 - a fixture, used through usefixtures
+    outcome,
+    snapshot,
+    tree,
+    write_capture,
+    write_plan,
+)
 
 pytestmark = [pytest.mark.skipif(os.name != "posix", reason="POSIX special files"),
               pytest.mark.usefixtures("no_hang")]
@@ -113,8 +123,9 @@ def test_unexpected_exception_exits_5_and_writes_nothing(tmp_path, monkeypatch):
 
 
 def test_unexpected_exception_in_check_exits_5(tmp_path, monkeypatch):
-    import pqcheck.assess as assess
+    import importlib
 
+    assess = importlib.import_module("pqcheck.assess")  # the module, not the function
     cap = write_capture(tmp_path / "cap.csv")
     monkeypatch.setattr(assess, "assess", _boom)
     run = invoke(["check", cap, *LIMITS, "-q", "--no-cache"])

@@ -17,7 +17,7 @@ from _kit import (
     EXIT,
     LIMITS,
     invoke,
-    no_hang,
+    no_hang,  # noqa: F401 - a fixture, used through usefixtures
     outcome,
     read_only_folder,
     small_tmpfs,
@@ -164,7 +164,7 @@ def test_force_never_replaces_a_special_file(tmp_path, kind, option):
     run = invoke(_report(cap, "-o", out["-o"], "--json", out["--json"],
                          extra=(*LIMITS, "--force")))
     outcome(run, codes=[EXIT["usage"]], inputs_before=before, out_dirs=[tmp_path],
-            message=r"not a regular file|symbolic link|is a folder")
+            message=r"not a regular file|symbolic link|is a folder|is a directory")
     assert os.lstat(target).st_mode == mode, "the special file was replaced"
     assert not (tmp_path / "r.pdf").exists() and not (tmp_path / "r.json").exists()
 
