@@ -42,8 +42,24 @@ TOTALS = {
     "PWHC": (("percent_of_iref", "amperes"), "partial weighted harmonic current"),
     "PWHD": (("percent_of_fundamental",), "partial weighted harmonic distortion, % of the fundamental"),
     "TRD": (("percent_of_rated_current",), "total rated-current distortion, % of rated current"),
-    "DC": (("percent_of_rated_current", "amperes"), "dc component"),
+    "DC": (("percent_of_rated_current", "percent_of_il", "amperes"), "dc component"),
 }
+
+#: Where a capture was taken (``[scope] location``): the point of common coupling of a site,
+#: or the supply terminals of one piece of equipment.
+LOCATIONS = ("pcc", "equipment-terminals")
+
+#: Quantities a ``[[scope.rules]]`` entry can bound: name -> (unit, what pqcheck compares).
+SCOPE_QUANTITIES = {
+    "input_current_a": ("A", "rated input current per phase: the declared rated current (or "
+                             "Iref), else the largest measured phase rms current"),
+    "power_w": ("W", "rated or declared active input power, else the measured one (largest "
+                     "1.5 s smoothed value, or the mean without smoothing)"),
+    "supply_voltage_ln_v": ("V", "nominal line-to-neutral supply voltage: the measured "
+                                 "phase-voltage fundamental"),
+    "phases": ("", "phase currents in the capture"),
+}
+SCOPE_EFFECTS = ("not applicable", "inconclusive")
 
 #: The one quantity name of an individual harmonic order.
 HARMONIC = "harmonic"
@@ -489,6 +505,110 @@ class Evaluation:
 
 
 @dataclass(frozen=True)
+class ScopeRule:
+    """One bound of the table's scope (``[[scope.rules]]``): ``low < value <= high``.
+
+    Attributes
+    ----------
+    quantity : str
+        One of :data:`SCOPE_QUANTITIES`.
+    low, high : float
+        The range that is in scope (``high`` may be inf). [unit of the quantity]
+    reason : str
+        Why a value outside the range is out of scope (shown next to the verdict).
+    conditions : tuple
+        Selector conditions (e.g. ``equipment_class = ["A", "D"]``): the rule holds only then.
+    effect : str
+        ``"not applicable"`` (default) or ``"inconclusive"`` when the value is outside.
+    unknown : str
+        What an unknown value does: ``"note"`` (listed as a deviation) or ``"inconclusive"``.
+    tolerance : float
+        Relative tolerance on a measured value (e.g. 0.1: the supply may be 10 % off its
+        nominal value). [unitless]
+    """
+
+    quantity: str
+    low: float
+    high: float
+    reason: str
+    conditions: tuple = ()
+    effect: str = "not applicable"
+    unknown: str = "note"
+    tolerance: float = 0.0
+    tag: str = ""
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class Scope:
+    """What a table applies to (``[scope]``); empty fields leave that aspect unchecked.
+
+    Attributes
+    ----------
+    location : tuple of str
+        Measurement locations the limits apply at (:data:`LOCATIONS`).
+    nominal_frequency_hz : tuple of float
+        Nominal system frequencies covered. [Hz]
+    rules : tuple of ScopeRule
+    """
+
+    location: tuple = ()
+    nominal_frequency_hz: tuple = ()
+    rules: tuple = ()
+    tag: str = ""
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class Behaviour:
+    """Minimum observation for one type of equipment behaviour (``[observation.behaviour.X]``).
+
+    Attributes
+    ----------
+    name : str
+        E.g. ``"quasi-stationary"``, ``"long-cyclic"``.
+    minimum_s : float
+        Shortest observation period. [s]
+    cycles : float
+        Also at least this many operating cycles of the equipment (needs the declared cycle
+        duration); 0: none. [unitless]
+    representative_s : float or None
+        Shortest period the user may declare representative instead (the standard allows it
+        for this behaviour); None: no shorter period is allowed. [s]
+    """
+
+    name: str
+    minimum_s: float = 0.0
+    cycles: float = 0.0
+    representative_s: float | None = None
+    tag: str = ""
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class Observation:
+    """The minimum observation period of a table (``[observation]``).
+
+    Without behaviours, ``minimum_s`` and ``representative_s`` hold for every capture; with
+    them, the declared behaviour (else ``default_behaviour``) chooses.
+    """
+
+    minimum_s: float = 0.0
+    representative_s: float | None = None
+    behaviours: tuple = ()
+    default_behaviour: str = ""
+    tag: str = ""
+    note: str = ""
+
+    def behaviour(self, name: str) -> Behaviour | None:
+        """Return the behaviour ``name`` (None when absent)."""
+        for b in self.behaviours:
+            if b.name == name:
+                return b
+        return None
+
+
+@dataclass(frozen=True)
 class LimitTable:
     """A whole limit-table file.
 
@@ -510,6 +630,8 @@ class LimitTable:
     notes: tuple = ()
     selectors: tuple = ()
     evaluation: Evaluation = field(default_factory=Evaluation)
+    scope: Scope = field(default_factory=Scope)
+    observation: Observation = field(default_factory=Observation)
     schema: int = SCHEMA_VERSION
     source: str | None = field(default=None, compare=False)
     sha256: str | None = field(default=None, compare=False)

@@ -15,13 +15,17 @@ from collections import defaultdict
 from ._limit_model import (
     APPLIES_TO,
     BASES,
+    LOCATIONS,
     MEASURES,
     SCHEMA_VERSION,
+    SCOPE_EFFECTS,
+    SCOPE_QUANTITIES,
     SELECTORS,
     SERIES,
     TAGS,
     TIMES,
     TOTALS,
+    Behaviour,
     Derive,
     EvalCheck,
     Evaluation,
@@ -32,8 +36,11 @@ from ._limit_model import (
     LimitRow,
     LimitTable,
     NegligibleRule,
+    Observation,
     PohcRule,
     PowerRule,
+    Scope,
+    ScopeRule,
     SelectorSpec,
     check_formula,
     evaluate_limit,
@@ -49,7 +56,13 @@ from .files.toml import loads as toml_loads
 __all__ = ["parse_table", "block_keys"]
 
 _TOP_FIELDS = ("schema", "id", "title", "standard", "edition", "clause", "measure",
-               "measure_tag", "max_order", "tag", "notes", "selectors", "evaluation", "limits")
+               "measure_tag", "max_order", "tag", "notes", "selectors", "evaluation", "limits",
+               "scope", "observation")
+_SCOPE_FIELDS = ("location", "nominal_frequency_hz", "rules", "tag", "note")
+_SCOPE_RULE_FIELDS = ("quantity", "range", "reason", "effect", "unknown", "tolerance", "tag",
+                      "note")
+_OBS_FIELDS = ("minimum_s", "representative_s", "behaviour", "default_behaviour", "tag", "note")
+_BEHAVIOUR_FIELDS = ("minimum_s", "cycles", "representative_s", "tag", "note")
 _BLOCK_FIELDS = ("name", "clause", "applies_to", "basis", "unit", "columns", "parity", "values",
                  "items", "even", "rows", "derive", "tag", "note")
 _ROW_FIELDS = ("values", "items", "clause", "tag", "note")
@@ -240,6 +253,8 @@ def _table(ctx: _Ctx, raw: dict) -> LimitTable | None:
 
     selectors = _selectors(ctx, raw.get("selectors", {}))
     evaluation = _evaluation(ctx, raw.get("evaluation", _MISSING))
+    scope = _scope(ctx, raw.get("scope", {}))
+    observation = _observation(ctx, raw.get("observation", {}))
     blocks_raw = raw.get("limits", _MISSING)
     blocks = []
     if blocks_raw is _MISSING or not isinstance(blocks_raw, list) or not blocks_raw:
@@ -255,6 +270,7 @@ def _table(ctx: _Ctx, raw: dict) -> LimitTable | None:
         id=tid, title=title, standard=standard, edition=edition, clause=clause,
         measure=measure, measure_tag=measure_tag, max_order=max_order or 0, tag=tag,
         notes=notes, selectors=tuple(selectors.values()), evaluation=evaluation,
+        scope=scope, observation=observation,
         blocks=tuple(b for _, b in blocks), schema=SCHEMA_VERSION)
 
 
@@ -520,6 +536,105 @@ def _rule(ctx, name, cls, raw, where, tau):
     if any(v is None for k, v in kw.items() if k not in ("conditions",)):
         return None
     return cls(**kw)
+
+
+# --- scope and observation -----------------------------------------------------------------
+
+
+def _scope(ctx: _Ctx, raw) -> Scope:
+    where = ("scope",)
+    if not isinstance(raw, dict):
+        ctx.error("must be a table ([scope])", where)
+        return Scope()
+    ctx.keys(raw, _SCOPE_FIELDS, where, "[scope]")
+    loc = raw.get("location", [])
+    if isinstance(loc, str):
+        loc = [loc]
+    if not isinstance(loc, list) or not all(isinstance(x, str) for x in loc):
+        ctx.error(f"location must be a list of: {', '.join(LOCATIONS)}", where + ("location",))
+        loc = []
+    for x in loc:
+        if x not in LOCATIONS:
+            ctx.error(f"location {x!r} is not one of: {', '.join(LOCATIONS)}",
+                      where + ("location",))
+    freqs = raw.get("nominal_frequency_hz", [])
+    if not isinstance(freqs, list) or not all(
+            isinstance(f, (int, float)) and not isinstance(f, bool) and f in (50, 60)
+            for f in freqs):
+        ctx.error("nominal_frequency_hz must be a list of 50 and/or 60",
+                  where + ("nominal_frequency_hz",))
+        freqs = []
+    rules_raw = raw.get("rules", [])
+    rules = []
+    if not isinstance(rules_raw, list) or not all(isinstance(r, dict) for r in rules_raw):
+        ctx.error("rules must be [[scope.rules]] entries", where + ("rules",))
+        rules_raw = []
+    for i, r in enumerate(rules_raw):
+        w = where + ("rules", i)
+        conds = _conditions(ctx, r, w, _SCOPE_RULE_FIELDS)
+        q = ctx.string(r, "quantity", w, required=True, choices=tuple(SCOPE_QUANTITIES))
+        rng = r.get("range", _MISSING)
+        lo = hi = None
+        if (not isinstance(rng, list) or len(rng) != 2 or not all(
+                isinstance(x, (int, float)) and not isinstance(x, bool) and not math.isnan(x)
+                for x in rng) or not 0 <= rng[0] < rng[1]):
+            ctx.error(f"range must be [low, high] with 0 <= low < high (inf for no upper end), "
+                      f"got {rng if rng is not _MISSING else 'nothing'}", w + ("range",),
+                      field=_field(w, "range"))
+        else:
+            lo, hi = float(rng[0]), float(rng[1])
+        reason = ctx.string(r, "reason", w, required=True)
+        effect = ctx.string(r, "effect", w, default="not applicable", choices=SCOPE_EFFECTS)
+        unknown = ctx.string(r, "unknown", w, default="note", choices=("note", "inconclusive"))
+        tol = ctx.number(r, "tolerance", w, default=0.0, nonneg=True, what="tolerance")
+        if q and lo is not None and reason:
+            rules.append(ScopeRule(quantity=q, low=lo, high=hi, reason=reason, conditions=conds,
+                                   effect=effect or "not applicable", unknown=unknown or "note",
+                                   tolerance=tol or 0.0, tag=ctx.tag(r, w),
+                                   note=ctx.string(r, "note", w)))
+    return Scope(location=tuple(loc), nominal_frequency_hz=tuple(float(f) for f in freqs),
+                 rules=tuple(rules), tag=ctx.tag(raw, where), note=ctx.string(raw, "note", where))
+
+
+def _observation(ctx: _Ctx, raw) -> Observation:
+    where = ("observation",)
+    if not isinstance(raw, dict):
+        ctx.error("must be a table ([observation])", where)
+        return Observation()
+    ctx.keys(raw, _OBS_FIELDS, where, "[observation]")
+    minimum = ctx.number(raw, "minimum_s", where, default=0.0, nonneg=True, what="minimum_s")
+    rep = ctx.number(raw, "representative_s", where, default=None, positive=True,
+                     what="representative_s")
+    beh_raw = raw.get("behaviour", {})
+    behaviours = []
+    if not isinstance(beh_raw, dict):
+        ctx.error("must be [observation.behaviour.NAME] sections", where + ("behaviour",))
+        beh_raw = {}
+    for name, d in beh_raw.items():
+        w = where + ("behaviour", name)
+        if not isinstance(d, dict):
+            ctx.error(f"must be a table, e.g. [observation.behaviour.{name}]", w)
+            continue
+        ctx.keys(d, _BEHAVIOUR_FIELDS, w, f"[observation.behaviour.{name}]")
+        behaviours.append(Behaviour(
+            name=name,
+            minimum_s=ctx.number(d, "minimum_s", w, required=True, nonneg=True,
+                                 what="minimum_s") or 0.0,
+            cycles=ctx.number(d, "cycles", w, default=0.0, nonneg=True, what="cycles") or 0.0,
+            representative_s=ctx.number(d, "representative_s", w, default=None, positive=True,
+                                        what="representative_s"),
+            tag=ctx.tag(d, w), note=ctx.string(d, "note", w)))
+    default = ctx.string(raw, "default_behaviour", where)
+    names = [b.name for b in behaviours]
+    if behaviours and not default:
+        ctx.error("default_behaviour is missing: name the behaviour used when the user declares "
+                  f"none ({', '.join(names)})", where, field="observation.default_behaviour")
+    elif default and default not in names:
+        ctx.error(f"default_behaviour {default!r} is not one of the behaviours given "
+                  f"({', '.join(names) or 'none'})", where + ("default_behaviour",))
+    return Observation(minimum_s=minimum or 0.0, representative_s=rep,
+                       behaviours=tuple(behaviours), default_behaviour=default,
+                       tag=ctx.tag(raw, where), note=ctx.string(raw, "note", where))
 
 
 # --- limits blocks -------------------------------------------------------------------------

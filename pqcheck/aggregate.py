@@ -35,7 +35,22 @@ __all__ = [
     "ten_minute_values",
     "statistic",
     "STATISTICS",
+    "percentile",
+    "rms_by_label",
+    "mean_by_label",
+    "class_a_blocks",
+    "half_cycle_rms_extremes",
+    "event_flags",
+    "DIP_THRESHOLD",
+    "SWELL_THRESHOLD",
+    "INTERRUPTION_THRESHOLD",
 ]
+
+#: IEC 61000-4-30 event thresholds relative to the declared input voltage Udin, as commonly
+#: set (from memory): dip below 90 %, swell above 110 %, interruption below 5 %.
+DIP_THRESHOLD = 0.90
+SWELL_THRESHOLD = 1.10
+INTERRUPTION_THRESHOLD = 0.05
 
 #: 150 cycles / 10 (50 Hz) = 180 cycles / 12 (60 Hz) = 15 window values per 3 s value.
 WINDOWS_PER_3S = 15
@@ -181,6 +196,293 @@ def ten_minute_values(window_values):
     return aggregate_rms(three_second_values(window_values), VALUES_3S_PER_10MIN)
 
 
+def percentile(values, q: float, *, axis: int = 0):
+    """The q-th percentile of the valid (finite) values along an axis.
+
+    Definition: linear interpolation between order statistics (Hyndman and Fan 1996,
+    definition 7; numpy's default ``method="linear"``). With the n valid values sorted,
+    ``x_(1) <= ... <= x_(n)``, and ``r = 1 + (n - 1) q / 100``, the percentile is
+    ``x_(floor r) + (r - floor r) (x_(floor r + 1) - x_(floor r))``. So the 95th percentile of
+    1008 weekly 10 min values lies 95 % of the way from the smallest to the largest rank.
+
+    Parameters
+    ----------
+    values : array_like
+    q : float
+        Percentile, 0 to 100. [%]
+    axis : int
+
+    Returns
+    -------
+    numpy.ndarray or float
+        NaN where there is no valid value.
+
+    References
+    ----------
+    R. J. Hyndman, Y. Fan, "Sample quantiles in statistical packages", The American
+    Statistician 50 (4), 1996, pp. 361-365, doi:10.1080/00031305.1996.10473566.
+
+    Examples
+    --------
+    >>> float(percentile([1.0, 2.0, 3.0, 4.0, float("nan")], 50))  # r = 2.5
+    2.5
+    """
+    x = np.moveaxis(np.asarray(values, dtype=np.float64), axis, -1)
+    if not 0 <= q <= 100:
+        raise InputError(f"percentile must be within 0 to 100, got {q!r}", field="statistic")
+    xs = np.sort(np.where(np.isfinite(x), x, np.inf), axis=-1)  # invalid values sort last
+    n = np.sum(np.isfinite(x), axis=-1)
+    r = (np.maximum(n, 1) - 1) * (q / 100.0)  # 0-based rank
+    lo = np.floor(r).astype(np.int64)
+    hi = np.minimum(lo + 1, np.maximum(n - 1, 0))
+    frac = r - lo
+    a = np.take_along_axis(xs, lo[..., None], axis=-1)[..., 0] if x.shape[-1] else lo * np.nan
+    b = np.take_along_axis(xs, hi[..., None], axis=-1)[..., 0] if x.shape[-1] else lo * np.nan
+    with np.errstate(invalid="ignore"):
+        out = np.where(frac > 0, a + frac * (b - a), a)
+    out = np.where(n > 0, out, np.nan)
+    return out[()] if out.ndim == 0 else out
+
+
+def rms_by_label(values, labels, n_labels: int):
+    """RMS of the valid values of each label along the first axis.
+
+    Parameters
+    ----------
+    values : array_like, shape (N, ...)
+    labels : array_like of int, shape (N,)
+        0 .. n_labels - 1.
+    n_labels : int
+
+    Returns
+    -------
+    numpy.ndarray, shape (n_labels, ...)
+        NaN for a label with no valid value.
+
+    Examples
+    --------
+    >>> rms_by_label([3.0, 4.0, 2.0], [0, 0, 1], 2).round(4).tolist()  # sqrt(12.5), 2
+    [3.5355, 2.0]
+    """
+    x = np.asarray(values, dtype=np.float64)
+    lab = np.asarray(labels, dtype=np.int64)
+    ok = np.isfinite(x)
+    sq = np.zeros((n_labels,) + x.shape[1:])
+    cnt = np.zeros((n_labels,) + x.shape[1:])
+    np.add.at(sq, lab, np.where(ok, x * x, 0.0))
+    np.add.at(cnt, lab, ok)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(cnt > 0, np.sqrt(sq / np.maximum(cnt, 1)), np.nan)
+
+
+def mean_by_label(values, labels, n_labels: int):
+    """Arithmetic mean of the valid values of each label along the first axis (see
+    :func:`rms_by_label`)."""
+    x = np.asarray(values, dtype=np.float64)
+    lab = np.asarray(labels, dtype=np.int64)
+    ok = np.isfinite(x)
+    tot = np.zeros((n_labels,) + x.shape[1:])
+    cnt = np.zeros((n_labels,) + x.shape[1:])
+    np.add.at(tot, lab, np.where(ok, x, 0.0))
+    np.add.at(cnt, lab, ok)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(cnt > 0, tot / np.maximum(cnt, 1), np.nan)
+
+
+def class_a_blocks(start_s, duration_s, *, per_block: int = WINDOWS_PER_3S,
+                   tick_s: float = 600.0, breaks=None, tol_s: float = 0.02):
+    """Group 10/12-cycle windows into 150/180-cycle (about 3 s) blocks (IEC 61000-4-30).
+
+    A block is ``per_block`` consecutive windows. A new block starts at each clock tick of
+    ``tick_s`` (the resynchronisation at every 10 min tick: the window whose start is the
+    first at or after the tick opens a block, so the block before it may be shorter), after a
+    gap between windows (their start and the previous end differ by more than ``tol_s``) and
+    at each index in ``breaks`` (e.g. the first window of a new file).
+
+    Parameters
+    ----------
+    start_s : array_like, shape (W,)
+        Absolute start of each window (POSIX). [s]
+    duration_s : array_like, shape (W,)
+        Window lengths. [s]
+    per_block : int
+        Windows per block (15).
+    tick_s : float
+        Resynchronisation period. [s]
+    breaks : array_like of int, optional
+        Window indices that open a block.
+    tol_s : float
+        Largest discontinuity taken as contiguous. [s]
+
+    Returns
+    -------
+    labels : numpy.ndarray of int, shape (W,)
+        Block of each window, 0 .. B - 1.
+    ends : numpy.ndarray of str, shape (B,)
+        Why each block ended: ``full`` (``per_block`` windows), ``tick``, ``gap`` (a
+        discontinuity or a break follows), ``end`` (the last block).
+
+    Examples
+    --------
+    Windows of 0.2 s from 599.0 s: 5 windows before the 600 s tick form a short block ended
+    by the tick, then blocks of 15:
+
+    >>> lab, ends = class_a_blocks(599.0 + 0.2 * np.arange(20), np.full(20, 0.2))
+    >>> np.bincount(lab).tolist(), ends.tolist()
+    ([5, 15], ['tick', 'end'])
+    """
+    t = np.asarray(start_s, dtype=np.float64)
+    d = np.asarray(duration_s, dtype=np.float64)
+    w = t.size
+    labels = np.zeros(w, dtype=np.int64)
+    if w == 0:
+        return labels, np.array([], dtype=object)
+    tick = np.floor(t / tick_s + 1e-9).astype(np.int64)
+    brk = np.zeros(w, dtype=bool)
+    if breaks is not None:
+        b = np.asarray(breaks, dtype=np.int64)
+        brk[b[(b > 0) & (b < w)]] = True
+    gap = np.zeros(w, dtype=bool)
+    gap[1:] = np.abs(t[1:] - (t[:-1] + d[:-1])) > tol_s
+    new_tick = np.zeros(w, dtype=bool)
+    new_tick[1:] = tick[1:] != tick[:-1]
+    reason = []
+    label, count = 0, 0
+    for i in range(w):
+        if i > 0:
+            why = ("gap" if gap[i] or brk[i] else "tick" if new_tick[i]
+                   else "full" if count == per_block else "")
+            if why:
+                reason.append(why)
+                label += 1
+                count = 0
+        labels[i] = label
+        count += 1
+    reason.append("end")
+    return labels, np.array(reason, dtype=object)
+
+
+def half_cycle_rms_extremes(x, fs_hz: float, first_sample, n_samples, cycles: int):
+    """Smallest and largest one-cycle RMS refreshed every half cycle in each window.
+
+    The IEC 61000-4-30 event detection quantity U_rms(1/2): the RMS over one fundamental
+    cycle, recomputed every half cycle. Each window of ``cycles`` fundamental cycles is split
+    into ``2 cycles`` equal half cycles (the window already follows the measured fundamental)
+    and the RMS over each pair of consecutive half cycles is taken. The samples may come block
+    by block, so a long file needs memory only for the window edges.
+
+    Parameters
+    ----------
+    x : numpy.ndarray, shape (N,) or (R, N), or iterable of arrays of shape (R, n)
+        Samples of R voltage channels, whole or as consecutive blocks. [V]
+    fs_hz : float
+        Sample rate. [Hz]
+    first_sample, n_samples : array_like, shape (W,)
+        First sample and length of each window (fractional values are rounded). [samples]
+    cycles : int
+        Fundamental cycles per window (10 or 12).
+
+    Returns
+    -------
+    (lo, hi) : numpy.ndarray, shape (W,) or (W, R)
+        NaN for a window holding a non-finite sample. [V]
+
+    Examples
+    --------
+    A 1 V rms sine (50 Hz, 10 kHz) whose 3rd cycle is at half amplitude:
+
+    >>> fs, n = 10000.0, 2000
+    >>> x = np.sqrt(2) * np.sin(2 * np.pi * 50 * np.arange(n) / fs)
+    >>> x[400:600] *= 0.5
+    >>> lo, hi = half_cycle_rms_extremes(x, fs, [0], [n], 10)
+    >>> round(float(lo[0]), 3), round(float(hi[0]), 3)
+    (0.5, 1.0)
+    """
+    one = isinstance(x, np.ndarray) and x.ndim == 1
+    if isinstance(x, np.ndarray):
+        blocks = [x[None, :] if x.ndim == 1 else x]
+    else:
+        blocks = x
+    a = np.asarray(first_sample, dtype=np.float64)
+    n = np.asarray(n_samples, dtype=np.float64)
+    w = a.size
+    k = np.arange(2 * cycles + 1) / (2 * cycles)
+    edges = np.maximum(np.rint(a[:, None] + n[:, None] * k[None, :]).astype(np.int64), 0)
+    flat = edges.ravel()
+    order = np.argsort(flat, kind="stable")
+    sorted_e = flat[order]
+    csum = None
+    cbad = np.zeros(flat.size)
+    pos, p, total, bad_total = 0, 0, None, 0.0
+    for block in blocks:
+        xb = np.asarray(block, dtype=np.float64)
+        if xb.ndim == 1:
+            xb = xb[None, :]
+        m = xb.shape[1]
+        if csum is None:
+            csum = np.zeros((xb.shape[0], flat.size))
+            total = np.zeros(xb.shape[0])
+        if m == 0:
+            continue
+        fin = np.isfinite(xb)
+        cs = np.cumsum(np.where(fin, xb * xb, 0.0), axis=1)
+        cb = np.cumsum(~fin.all(axis=0))
+        hi_i = int(np.searchsorted(sorted_e, pos + m, side="right"))
+        sel = order[p:hi_i]
+        e = sorted_e[p:hi_i] - pos
+        j = np.clip(e - 1, 0, m - 1)
+        csum[:, sel] = total[:, None] + np.where(e > 0, cs[:, j], 0.0)
+        cbad[sel] = bad_total + np.where(e > 0, cb[j], 0.0)
+        p = hi_i
+        total = total + cs[:, -1]
+        bad_total += float(cb[-1])
+        pos += m
+    if csum is None:
+        nan = np.full((w,) if one else (w, 0), np.nan)
+        return nan, nan.copy()
+    rest = order[p:]  # edges past the last sample: the totals
+    csum[:, rest] = total[:, None]
+    cbad[rest] = bad_total
+    past = edges > pos
+    c = csum.reshape(csum.shape[0], w, 2 * cycles + 1)
+    span = np.maximum(edges[:, 2:] - edges[:, :-2], 1)
+    with np.errstate(invalid="ignore"):
+        r = np.sqrt(np.maximum(c[:, :, 2:] - c[:, :, :-2], 0.0) / span[None])
+    bad = (cbad.reshape(w, -1)[:, -1] - cbad.reshape(w, -1)[:, 0] > 0) | past.any(axis=1)
+    lo = np.where(bad[None], np.nan, r.min(axis=2)).T
+    hi = np.where(bad[None], np.nan, r.max(axis=2)).T
+    return (lo[:, 0], hi[:, 0]) if one else (lo, hi)
+
+
+def event_flags(lo, hi, udin):
+    """IEC 61000-4-30 flags: a dip (below 90 % of Udin), swell (above 110 %) or interruption
+    (below 5 %) during the window.
+
+    Parameters
+    ----------
+    lo, hi : array_like, shape (W, ...)
+        Smallest and largest U_rms(1/2) of each window and channel. [V]
+    udin : float or array_like
+        Declared input voltage per channel. [V]
+
+    Returns
+    -------
+    dict of numpy.ndarray of bool, shape (W,)
+        ``dip``, ``swell``, ``interruption`` and ``any`` (over channels).
+    """
+    lo = np.asarray(lo, dtype=np.float64)
+    hi = np.asarray(hi, dtype=np.float64)
+    u = np.asarray(udin, dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        dip = lo < DIP_THRESHOLD * u
+        swell = hi > SWELL_THRESHOLD * u
+        intr = lo < INTERRUPTION_THRESHOLD * u
+    red = (lambda z: z.any(axis=tuple(range(1, z.ndim)))) if lo.ndim > 1 else (lambda z: z)
+    out = {"dip": red(dip), "swell": red(swell), "interruption": red(intr)}
+    out["any"] = out["dip"] | out["swell"] | out["interruption"]
+    return out
+
+
 _PCT = re.compile(r"p(\d{1,2}(?:\.\d+)?)$")
 
 
@@ -229,7 +531,5 @@ def statistic(values, name: str, *, axis: int = 0):
             if not has.any():
                 out = np.full(has.shape, np.nan)
             else:
-                with warnings.catch_warnings():
-                    warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN slices -> NaN
-                    out = np.nanpercentile(x, float(m.group(1)), axis=axis)
+                out = percentile(x, float(m.group(1)), axis=axis)
     return np.where(has, out, np.nan)

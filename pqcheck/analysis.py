@@ -15,7 +15,7 @@ import numpy as np
 
 from . import metrics, quality
 from .capture import Capture, require_channels
-from .dsp.spectrum import analyse_windows, harmonic_groupings
+from .dsp.spectrum import GUARD, analyse_windows, harmonic_groupings
 from .dsp.tracking import coarse_frequency, detect_nominal, window_boundaries
 from .errors import AnalysisError, InputError
 from .findings import Finding
@@ -71,8 +71,8 @@ class AnalysisSettings:
     reference: str
     method: str = (
         "IEC 61000-4-7 synchronous rectangular windows of 10 (50 Hz) or 12 (60 Hz) tracked "
-        "fundamental cycles, gapless; whole-sample windows with per-harmonic correction of the "
-        "residual length mismatch; harmonic groups, subgroups and interharmonic groups"
+        "fundamental cycles, gapless; each window resampled to its exact span (band-limited "
+        "interpolation) before the DFT; harmonic groups, subgroups and interharmonic groups"
     )
 
     def to_dict(self) -> dict:
@@ -417,7 +417,7 @@ def analyze(
         combos.append(w)
     combos = np.array(combos) if combos else None
 
-    clip = [quality.ClipDetector(c.name) for c in chans]
+    clip = [quality.ClipDetector(c.name, unit=c.unit) for c in chans]
     nonfinite = np.zeros(len(chans), dtype=np.int64)
     store = _WindowStore()  # per-window arrays; the large ones spill to a temporary file
     acc = None  # capture-level sums over valid windows, added block by block
@@ -464,23 +464,30 @@ def analyze(
         if not final and buf.shape[1] - (np.floor(start) - buf_start) < span_need:
             continue
         cycles, nominal = state["cycles"], state["nominal_hz"]
-        lo = int(np.floor(start)) - buf_start
+        # keep the interpolation kernel's reach before the first window (spectrum.GUARD)
+        lo = max(0, int(np.floor(start)) - GUARD - buf_start)
         work = buf[:, lo:]
         off = buf_start + lo
         b = np.array([start])
+        halves = None
         if state["tracked"]:
             tr = window_boundaries(work[state["ref"]], fs, state["f_demod"], start, cycles,
                                    offset=off, final=final)
             state["weak"] |= tr.weak
-            b = tr.boundaries
+            b, halves = tr.boundaries, tr.halves
         if b.size <= 1 and not (state["tracked"] and final):
             step = fs * cycles / nominal
             m = int(np.floor((off + work.shape[1] - start) / step + 1e-9))
             b = start + step * np.arange(m + 1)
-        b = b[np.rint(b) <= off + work.shape[1]]
+            halves = None
+        end = off + work.shape[1]
+        # a window is analysed once the kernel's reach after it is buffered (or the record ends)
+        b = b[np.rint(b) <= end] if final else b[b + GUARD <= end]
+        if halves is not None:
+            halves = halves[: max(b.size - 1, 0)]
         if b.size > 1:
             wb = analyse_windows(work, b, max_line=state["max_line"], offset=off, pairs=pairs,
-                                 combos=combos, harmonic_step=cycles)
+                                 combos=combos, halves=halves)
             part = _reduce_block(wb, cycles, max_order, state["resolved"], state["ref"],
                                  state["tracked"])
             if acc is None:
@@ -493,7 +500,7 @@ def analyze(
             if state["tracked"] and np.all(np.isfinite(f_new)):
                 state["f_demod"] = float(np.median(f_new))
             start = float(b[-1])
-            keep_from = int(np.floor(start)) - buf_start
+            keep_from = max(0, int(np.floor(start)) - GUARD - buf_start)
             buf = buf[:, keep_from:]
             buf_start += keep_from
         if final:
@@ -515,6 +522,16 @@ def analyze(
     weak_any = state["weak"] or not tracked
     n = total
     if acc is None:
+        f_used = float(state.get("f_demod") or nominal_hz)
+        if weak_any or abs(f_used - nominal_hz) > 0.05 * nominal_hz:
+            # the windows follow the reference's cycles: name that, not the record length
+            raise AnalysisError(
+                f"no {cycles}-cycle window fits in the {total / fs:.4g} s record: the "
+                f"reference channel {chans[ref].name!r} has no clear mains fundamental near "
+                f"{nominal_hz:g} Hz (the strongest line found is at {f_used:.4g} Hz, where a "
+                f"window lasts {cycles / f_used:.3g} s); check that the reference channel "
+                "(reference) carries the mains voltage or current and the nominal frequency",
+                path=path, field="reference")
         raise AnalysisError(
             "no complete window fits in the capture; capture a longer record",
             path=path, field="duration",
@@ -596,10 +613,15 @@ def analyze(
             f"the last {tail:.3f} s do not fill a whole {cycles}-cycle window and are not analysed.",
             value=tail, unit="s"))
     if wiring_source == "inferred":
+        if len(curr_abc) == 3 or neutral:
+            why = ("a neutral current was measured" if neutral else
+                   f"phase currents {'do not ' if wiring == '4-wire' else ''}sum to zero")
+        else:  # nothing measured can tell: say so rather than quote currents that are absent
+            why = "no three phase currents were measured to tell; the default"
         findings.append(Finding(
             "wiring-inferred", "info",
-            f"three-phase wiring taken as {wiring} from the data (phase currents "
-            f"{'do not ' if wiring == '4-wire' else ''}sum to zero); give --wiring to set it."))
+            f"three-phase wiring taken as {wiring} from the data ({why}); give the wiring "
+            "(wiring) to set it."))
 
     settings = AnalysisSettings(
         nominal_hz=nominal_hz, nominal_source=state["nominal_source"], cycles_per_window=cycles,
@@ -676,9 +698,7 @@ def _initial_state(buf, fs, chans, reference, nominal_hz, max_order, path, findi
 
 def _reduce_block(wb, cycles, max_order, resolved, ref, tracked):
     """Per-window arrays of one block: groupings, phase reference, validity masking."""
-    grp = harmonic_groupings(wb.lines, cycles, max_order, gain=wb.gain,
-                             n_samples=wb.n_samples, mismatch=wb.mismatch, extra=wb.extra,
-                             extra_lines=wb.extra_lines)
+    grp = harmonic_groupings(wb.lines, cycles, max_order)
     if resolved < max_order:
         for key in grp:
             grp[key][..., resolved + 1:] = np.nan

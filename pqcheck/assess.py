@@ -32,11 +32,11 @@ IEEE 519 on a short capture
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from . import aggregate, metrics
+from . import aggregate, gates, metrics
 from ._limit_model import parse_orders
 from .errors import InputError
 from .limits import HARMONIC, LimitItem, ResolvedLimits, quantity_label
@@ -44,6 +44,9 @@ from .limits import HARMONIC, LimitItem, ResolvedLimits, quantity_label
 __all__ = ["Check", "Assessment", "assess", "VERDICTS", "overall_verdict"]
 
 VERDICTS = ("pass", "fail", "not applicable", "inconclusive")
+#: A declared active power may differ from the measured one by this share (IEC 61000-3-2,
+#: Class D: "within 10 %"). [unitless]
+DECLARED_POWER_TOLERANCE = 0.10
 _SERIES_TEXT = {"window": "10/12-cycle values", "smoothed": "1.5 s smoothed values",
                 "3s": "3 s values", "10min": "10 min values"}
 
@@ -89,6 +92,15 @@ class Check:
         The limit as the table gives it. [unit]
     multiplier : float
         Multiple of the limit the rule allows. [unitless]
+    basis : str
+        What measured and limit are relative to (``percent_of_il``,
+        ``percent_of_fundamental``, ``amperes``, ...; as the table's block says).
+    tag : str
+        Confidence tag of the limit value in the table: ``V`` verified, ``C`` computed,
+        ``P`` partly verified, ``M`` from memory.
+    period_start, period_end : str
+        For a statistic over periods of a survey (IEEE 519 daily / weekly percentiles): the
+        worst period, whose value ``measured`` is (ISO 8601; "" otherwise).
     """
 
     table_id: str
@@ -108,6 +120,10 @@ class Check:
     note: str = ""
     table_limit: float | None = None
     multiplier: float = 1.0
+    basis: str = ""
+    tag: str = ""
+    period_start: str = ""
+    period_end: str = ""
 
     @property
     def label(self) -> str:
@@ -125,7 +141,10 @@ class Check:
             "limit": _json_num(self.limit), "unit": self.unit,
             "margin_percent": _json_num(self.margin_percent), "verdict": self.verdict,
             "clause": self.clause, "verify": self.verify,
-            "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier})
+            "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier,
+            "basis": self.basis, "tag": self.tag})
+        if self.period_start:
+            d["period"] = {"start": self.period_start, "end": self.period_end}
         if self.note:
             d["note"] = self.note
         return d
@@ -159,22 +178,39 @@ class Assessment:
     tables: tuple
     notes: tuple = ()
     counts: dict = field(default_factory=dict, compare=False)
+    gates: tuple = ()
+
+    @property
+    def reasons(self) -> tuple:
+        """Why the verdict is not a plain pass or fail: the messages of the scope gates (for
+        "not applicable") and of the inconclusive gates, in order."""
+        return tuple(g.message for g in self.gates
+                     if g.effect in ("not applicable", "inconclusive"))
+
+    @property
+    def deviations(self) -> tuple:
+        """Departures from the standard's conditions to list next to the verdict."""
+        return tuple(g.message for g in self.gates if g.effect == "deviation")
 
     def to_dict(self) -> dict:
-        """Plain-JSON form: ``verdict``, ``checks``, ``tables``, ``notes``, ``counts``."""
+        """Plain-JSON form: ``verdict``, ``checks``, ``tables``, ``notes``, ``counts``,
+        ``gates``, ``reasons``, ``deviations``."""
         return {
             "verdict": self.verdict,
             "counts": dict(self.counts),
             "checks": [c.to_dict() for c in self.checks],
             "tables": [_table_dict(t) for t in self.tables],
             "notes": list(self.notes),
+            "gates": [g.to_dict() for g in self.gates],
+            "reasons": list(self.reasons),
+            "deviations": list(self.deviations),
         }
 
 
 def _table_dict(t: ResolvedLimits) -> dict:
     return {
         "id": t.table_id, "title": t.title, "standard": t.standard, "edition": t.edition,
-        "source": t.source, "sha256": t.sha256,
+        "source": t.source, "sha256": t.sha256, "provenance": t.provenance,
         "selectors": {k: v for k, v in t.selectors}, "rows": list(t.rows),
         "measure": t.measure, "max_order": t.max_order,
     }
@@ -194,7 +230,8 @@ def overall_verdict(checks) -> str:
 
 
 def assess(result, limits, *, il_a: float | None = None, rated_current_a: float | None = None,
-           iref_a: float | None = None, active_power_w: float | None = None) -> Assessment:
+           iref_a: float | None = None, active_power_w: float | None = None,
+           declared: gates.Declared | None = None) -> Assessment:
     """Compare an analysis with resolved limit tables.
 
     Parameters
@@ -212,8 +249,12 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
         Reference current Iref, for limits in % of Iref (IEC 61000-3-12); default
         ``rated_current_a``. [A]
     active_power_w : float, optional
-        Active input power for per-watt limits (IEC 61000-3-2 Class D; a declared value within
-        10 % of the measured one). Default: measured, as the table's evaluation says. [W]
+        Active input power for per-watt limits (IEC 61000-3-2 Class D). The standard accepts a
+        declared value within 10 % of the measured one; further off, the measured power is
+        used and the deviation listed. Default: measured, as the table's evaluation says. [W]
+    declared : pqcheck.gates.Declared, optional
+        Measurement location, equipment behaviour and cycle, a declared representative period,
+        rated power and phases: what the scope and observation gates need.
 
     Returns
     -------
@@ -234,14 +275,16 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
             raise InputError(f"must be a positive number, got {v!r}", field=name)
     refs = {"il": il_a, "rated": rated_current_a, "iref": iref_a or rated_current_a,
             "power": active_power_w}
-    checks, notes = [], []
+    declared = declared or gates.Declared()
+    checks, notes, found = [], [], []
     for t in tables:
-        c, n = _TableAssessor(result, t, refs).run()
+        c, n, g = _TableAssessor(result, t, refs, declared).run_gated()
         checks += c
         notes += n
+        found += g
     counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
     return Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
-                      notes=tuple(dict.fromkeys(notes)), counts=counts)
+                      notes=tuple(dict.fromkeys(notes)), counts=counts, gates=tuple(found))
 
 
 # --- one table -----------------------------------------------------------------------------
@@ -261,10 +304,13 @@ class _Series:
 
 
 class _TableAssessor:
-    def __init__(self, result, table: ResolvedLimits, refs: dict):
+    def __init__(self, result, table: ResolvedLimits, refs: dict,
+                 declared: gates.Declared | None = None):
         self.r = result
         self.t = table
         self.refs = refs
+        self.declared = declared or gates.Declared()
+        self.gates: list = []
         self.ev = table.evaluation
         self.notes: list = []
         w = result.windows
@@ -296,13 +342,36 @@ class _TableAssessor:
         """Active power for per-watt limits (None when unknown), with a note."""
         if self._power is not None:
             return self._power or None
-        if self.refs["power"] is not None:
-            self._power = float(self.refs["power"])
-            self.notes.append(f"{self.t.table_id}: per-watt limits use the active power given, "
-                              f"{self._power:.4g} W.")
-            return self._power
         w = self.r.windows
         rule = self.ev.power
+        if self.refs["power"] is not None:
+            declared = float(self.refs["power"])
+            measured = self._measured_power(rule)
+            if measured is not None and abs(declared - measured) > \
+                    DECLARED_POWER_TOLERANCE * measured:
+                self.gates.append(gates.Gate(
+                    "declared-power", "deviation",
+                    f"{self.t.table_id}: the declared active power ({declared:.4g} W) is more "
+                    f"than {100 * DECLARED_POWER_TOLERANCE:g} % from the measured "
+                    f"{measured:.4g} W, which the standard does not allow; per-watt limits "
+                    "use the measured power.", value=declared, unit="W"))
+                self._power = measured
+                self.notes.append(f"{self.t.table_id}: per-watt limits use the measured active "
+                                  f"power, {measured:.4g} W (the declared {declared:.4g} W is "
+                                  "outside the 10 % the standard allows).")
+                return measured
+            self._power = declared
+            self.notes.append(f"{self.t.table_id}: per-watt limits use the active power given, "
+                              f"{self._power:.4g} W" + (
+                                  f" (measured {measured:.4g} W)." if measured is not None
+                                  else "; it could not be compared with a measured value."))
+            if measured is None:
+                self.gates.append(gates.Gate(
+                    "declared-power-unverified", "deviation",
+                    f"{self.t.table_id}: the declared active power ({declared:.4g} W) could "
+                    "not be compared with a measured one (no voltage channel).",
+                    value=declared, unit="W"))
+            return self._power
         if w.p_total_w is None or rule is None:
             self._power = 0.0
             self.notes.append(f"{self.t.table_id}: per-watt limits need the active power: "
@@ -320,6 +389,15 @@ class _TableAssessor:
         self.notes.append(f"{self.t.table_id}: per-watt limits use {rule.statistic} of the "
                           f"{_SERIES_TEXT[rule.of]} of active power, {value:.4g} W.")
         return value
+
+    def _measured_power(self, rule):
+        """The measured active power as the table's power rule says (None without). [W]"""
+        w = self.r.windows
+        if w.p_total_w is None or rule is None:
+            return None
+        p = np.where(self.valid, np.asarray(w.p_total_w, dtype=np.float64), np.nan)
+        value = float(aggregate.statistic(self._aggregate(p, rule.of), rule.statistic))
+        return value if math.isfinite(value) and value > 0 else None
 
     def power_factor(self):
         if self._pf is not None:
@@ -410,7 +488,7 @@ class _TableAssessor:
             orders = None
         elif q == "DC":
             dc = np.abs(np.asarray(self.r.windows.dc[:, k], dtype=np.float64))
-            arr = dc if item.basis == "amperes" else 100.0 * dc / self._ref("rated", item.basis)
+            arr = self._to_basis(dc, item, k)
             orders = frozenset({0})
         else:  # pragma: no cover - validated when the table was read
             raise AssertionError(q)
@@ -469,14 +547,65 @@ class _TableAssessor:
         if neutral:
             self.notes.append(f"{self.t.table_id}: neutral channel(s) {', '.join(neutral)} not "
                               "assessed (the limits concern phase currents).")
-        if self.t.table_id.startswith("iec61000-3-2"):
-            big = [c for c in self.r.channels if c.quantity == "current" and c.phase != "n"
-                   and c.rms > 16.0]
-            if big:
-                self.notes.append(f"{self.t.table_id}: the input current ({big[0].rms:.3g} A) "
-                                  "is above 16 A per phase, outside the scope of IEC 61000-3-2; "
-                                  "IEC 61000-3-12 covers 16 A to 75 A.")
         return checks, self.notes
+
+    # -- gates -------------------------------------------------------------------------------
+
+    def run_checks(self):
+        """The checks: per period of the survey when the capture lasts at least the shortest
+        period of the table's statistics (IEEE 519: a day), so a multi-day capture never gets
+        one whole-capture percentile; else as a single observation (:meth:`run`)."""
+        from . import survey
+
+        if survey.needs_periods(self.r, self.t):
+            sa = survey.assess_result_periods(self.r, self.t, il_a=self.refs["il"])
+            return list(sa.assessment.checks), self.notes + list(sa.assessment.notes)
+        return self.run()
+
+    def run_gated(self):
+        """The checks with the scope, plausibility and observation gates applied.
+
+        Returns
+        -------
+        (checks, notes, gates)
+        """
+        self.gates = []
+        t, d = self.t, self.declared
+        gates.refusals(self.r, t)
+        found = gates.measurement_gates(self.r, t, self.refs, d)
+        trust = not any(g.void for g in found)
+        found += gates.scope_gates(self.r, t, d, self.refs, trust_measured=trust)
+        out_of_scope = [g for g in found if g.effect == "not applicable"]
+        if out_of_scope:
+            found = out_of_scope + [g for g in found if g.effect == "deviation"]
+            self.notes += [g.message for g in found]
+            return [self._gate_check(g) for g in out_of_scope], self.notes, found
+        found += gates.observation_gates(t, self.observed_s, d)
+        checks, notes = self.run_checks()
+        found += self.gates  # raised while assessing (declared power)
+        blocking = [g for g in found if g.effect == "inconclusive"]
+        out = []
+        for c in checks:
+            hit = [g for g in blocking if g.concerns(c.channel, c.applies_to)
+                   and (c.verdict == "pass" or (g.void and c.verdict == "fail"))]
+            if hit:
+                why = "; ".join(f"{g.code}" for g in hit)
+                c = replace(c, verdict="inconclusive",
+                            note="; ".join(x for x in (f"inconclusive: {why}", c.note) if x))
+            out.append(c)
+        out += [self._gate_check(g) for g in blocking]
+        notes += [g.message for g in found if g.effect == "deviation"]
+        return out, notes, found
+
+    def _gate_check(self, g) -> Check:
+        """A gate as a check row, so every verdict computed from checks sees it."""
+        return Check(table_id=self.t.table_id, quantity=g.code, order=None,
+                     applies_to=g.applies_to or "current", phase="",
+                     channel=", ".join(g.channels), statistic="gate", measured=g.value,
+                     limit=None, unit=g.unit, margin_percent=None, verdict=g.effect,
+                     clause="scope" if g.code.startswith("scope") else "plausibility"
+                     if not g.code.startswith("observation") else "observation period",
+                     verify=False, note=g.message)
 
     def _channel(self, k: int, items, rules) -> list:
         ch = self.r.channels[k]
@@ -618,7 +747,7 @@ class _TableAssessor:
             measured=None if measured is None or not math.isfinite(measured) else measured,
             limit=limit, unit=it.unit, margin_percent=margin, verdict=verdict,
             clause=it.clause, verify=bool(verify), note=note,
-            table_limit=it.limit, multiplier=multiplier)
+            table_limit=it.limit, multiplier=multiplier, basis=it.basis, tag=it.tag)
 
 
 def _stat_text(rule) -> str:

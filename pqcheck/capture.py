@@ -51,6 +51,9 @@ class Channel:
     guessed : str
         The quantity the reader guessed from the column's name and unit, kept when the user
         assigns roles, so that a current given as a voltage (or the reverse) can be flagged.
+    evidence : str
+        Why the reader guessed this quantity and phase (shown by ``inspect``); empty when
+        nothing was guessed.
     """
 
     name: str
@@ -59,6 +62,7 @@ class Channel:
     unit: str = ""
     role_source: str = "guess"
     guessed: str = ""
+    evidence: str = field(default="", compare=False)
 
     def __post_init__(self):
         if self.quantity not in QUANTITIES:
@@ -236,21 +240,41 @@ _NEUTRAL_NAMES = re.compile(r"^(i|v|u|curr|current)?[_\s.-]?(n|neutral)$", re.IG
 
 
 def _phase_from_name(name: str) -> str | None:
+    """Phase named in a channel name, on strong evidence only (see :func:`phase_evidence`)."""
+    return phase_evidence(name)[0]
+
+
+# A phase is read from a name only where the name says "phase": L1/L2/L3, ph1, phase 2,
+# a quantity letter followed by the phase (ia, v_b, U1, IL3, vab), or R/S/T, L1/L2/L3 or
+# A/B/C as the last word of a multi-word name ("Line current L2", "Voltage R"). A bare digit
+# ("Channel 1", "CH2", "1") or a de-duplication suffix ("ia_3") is not a phase.
+_PHASE_WORD = re.compile(r"(?:^|[\s_.-])(?:l|ph|phase)\s*[_-]?([123])$")
+_PHASE_QTY_DIGIT = re.compile(r"^(?:i|v|u|il|ul|vl|i_l|u_l|v_l|i_|u_|v_)([123])$")
+_PHASE_QTY_LETTER = re.compile(r"^(?:i|v|u|curr|volt|current|voltage)[_\s.-]?(?:l|ph)?([abcrst])$")
+_PHASE_LAST_WORD = re.compile(r"[\s_.-](?:l|ph|phase)?\s*([abcrst])$")
+_PHASE_LL = re.compile(r"^(?:v|u)?[_\s.-]?(ab|bc|ca)$")
+_LETTER_PHASE = {"a": "a", "b": "b", "c": "c", "r": "a", "s": "b", "t": "c"}
+
+
+def phase_evidence(name: str) -> tuple:
+    """``(phase or None, evidence)`` read from a channel name; evidence says what matched."""
     base = re.sub(r"[\[(].*?[\])]", "", name).strip().lower()
     if _NEUTRAL_NAMES.match(base):
-        return "n"
-    m = re.search(r"(?:^|[^a-z])(?:l|ph|phase)?\s*([123])$", base)
+        return "n", f"name {name!r} says neutral"
+    m = _PHASE_WORD.search(base) or _PHASE_QTY_DIGIT.match(base)
     if m:
-        return "abc"[int(m.group(1)) - 1]
-    m = re.search(r"(?:^|[_\s.-])(?:l|ph|phase)?([abcrst])$", base) or re.search(
-        r"^(?:i|v|u|curr|volt)([abcrst])$", base
-    )
+        return "abc"[int(m.group(1)) - 1], f"name {name!r} ends in phase {m.group(0).strip()!r}"
+    m = _PHASE_LL.match(base)
     if m:
-        return {"a": "a", "b": "b", "c": "c", "r": "a", "s": "b", "t": "c"}[m.group(1)]
-    m = re.search(r"([abc])[bca]$", base)  # line-to-line names such as vab
-    if m and len(base) <= 4:
-        return m.group(1)
-    return None
+        return m.group(1)[0], f"name {name!r} is the line-to-line pair {m.group(1)!r}"
+    m = _PHASE_QTY_LETTER.match(base) or _PHASE_QTY_LETTER.match(re.sub(r"_\d+$", "", base))
+    if m:  # (the second: ia_3, a name made unique by a number suffix, is still phase a)
+        return _LETTER_PHASE[m.group(1)], f"name {name!r} reads quantity + phase {m.group(1)!r}"
+    m = _PHASE_LAST_WORD.search(base)
+    if m and re.search(r"[a-z]{2,}", base[: m.start()]):
+        return _LETTER_PHASE[m.group(1)], (f"phase letter {m.group(1).upper()!r} is the last "
+                                           f"word of {name!r}")
+    return None, ""
 
 
 class CaptureStream:
@@ -380,27 +404,40 @@ def _phases_for(names) -> list:
 
 _CURRENT_RE = re.compile(r"^(i|curr|current|amp|amps|ia|ib|ic|il\d|i_)", re.IGNORECASE)
 _VOLTAGE_RE = re.compile(r"^(v|u|volt|voltage|ua|ub|uc|ul\d|v_)", re.IGNORECASE)
-_TIME_RE = re.compile(r"^(t|time|times|seconds|sec|timestamp|x)$", re.IGNORECASE)
+_TIME_RE = re.compile(
+    r"^(t|time|times|seconds?|secs?|timestamp|x|x-axis|x axis|xaxis|time_?s|t_s|time_ms|t_ms"
+    r"|time_us|t_us)$", re.IGNORECASE)
 
 
 def guess_role(name: str, unit: str = "") -> tuple:
     """Guess ``(quantity, phase)`` of a column from its name and unit.
 
     Returns ``("other", "")`` when nothing fits; the guess is shown to the user by
-    ``pqcheck inspect`` and can be overridden with ``--current`` / ``--voltage``.
+    ``pqcheck inspect`` and can be overridden by naming the current and voltage columns.
     """
+    quantity, phase, _ = guess_role_evidence(name, unit)
+    return quantity, phase
+
+
+def guess_role_evidence(name: str, unit: str = "") -> tuple:
+    """``(quantity, phase, evidence)``: :func:`guess_role` and why."""
     u = unit.strip()
     base = re.sub(r"[\[(].*?[\])]", "", name).strip()
+    why = []
+    if _TIME_RE.match(base):
+        return "other", "", f"name {name!r} is a time name"
     if u == "A" or (not u and _CURRENT_RE.match(base)):
         quantity = "current"
+        why.append("unit A" if u == "A" else f"name {name!r} starts like a current")
     elif u == "V" or (not u and _VOLTAGE_RE.match(base)):
         quantity = "voltage"
+        why.append("unit V" if u == "V" else f"name {name!r} starts like a voltage")
     else:
         quantity = "other"
-    if _TIME_RE.match(base):
-        quantity = "other"
-    phase = _phase_from_name(name) or ""
-    return quantity, phase
+    phase, pwhy = phase_evidence(name)
+    if phase:
+        why.append(pwhy)
+    return quantity, phase or "", "; ".join(why)
 
 
 def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
@@ -412,7 +449,8 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
     current, voltage : sequence of str or None
         Column names in phase order a, b, c (a neutral current may follow, named ``in`` or
         ``n``). When both are None the guessed roles are kept. When only one is given, the
-        other quantity's guessed channels are dropped from analysis (set to ``"other"``).
+        other quantity's recognised (guessed) channels keep their role, so naming the
+        currents never silently drops a recognised voltage; give both to set every role.
 
     Raises
     ------
@@ -421,6 +459,7 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
     """
     if current is None and voltage is None:
         return capture
+    given_current, given_voltage = current, voltage
     current = list(current or [])
     voltage = list(voltage or [])
     src = capture.provenance.source
@@ -447,15 +486,20 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
     for quantity, names in (("current", current), ("voltage", voltage)):
         for n, p in zip(names, _phases_for(names)):
             roles[n] = (quantity, p)
+    given_q = {q for q, names in (("current", given_current), ("voltage", given_voltage))
+               if names is not None}
     chans = []
     for c in capture.channels:
         if c.name in roles:
             q, p = roles[c.name]
             unit = "A" if q == "current" else "V"
             guessed = c.guessed or (c.quantity if c.role_source == "guess" else "")
-            chans.append(Channel(c.name, q, p, unit, "user", guessed))
+            chans.append(Channel(c.name, q, p, unit, "user", guessed, c.evidence))
+        elif c.quantity in ("current", "voltage") and c.quantity not in given_q:
+            chans.append(c)  # a recognised channel of the quantity the user did not name
         else:
-            chans.append(Channel(c.name, "other", c.phase, c.unit, "user", c.guessed))
+            chans.append(Channel(c.name, "other", c.phase, c.unit, "user", c.guessed,
+                                 c.evidence))
     return capture.with_channels(chans)
 
 

@@ -26,6 +26,7 @@ Examples
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import math
 import os
@@ -49,8 +50,10 @@ from ._limit_model import (
     LimitRow,
     LimitTable,
     NegligibleRule,
+    Observation,
     PohcRule,
     PowerRule,
+    Scope,
     SelectorSpec,
     evaluate_limit,
     even_orders,
@@ -191,6 +194,15 @@ class ResolvedLimits:
         The table's notes.
     measure_verify : bool
         True when the choice of measure is tagged P or M.
+    scope : Scope
+        The table's scope, with the rules whose selector conditions hold for this case.
+    observation : Observation
+        The table's minimum observation period.
+    provenance : str
+        ``"bundled"``, ``"modified copy of the bundled ID (SHA-256 ...)"``, ``"copy of the
+        bundled ID, same limits"`` or ``"user table"``.
+    ignored : tuple of str
+        Selectors given that the table does not use (shown as a notice).
     """
 
     table_id: str
@@ -207,6 +219,18 @@ class ResolvedLimits:
     items: tuple
     notes: tuple = ()
     measure_verify: bool = False
+    scope: Scope = Scope()
+    observation: Observation = Observation()
+    provenance: str = ""
+    ignored: tuple = ()
+
+    @property
+    def display_name(self) -> str:
+        """The table's id, marked ``"(modified copy of the bundled ...)"`` when its file is an
+        edited copy of a bundled table of the same id."""
+        if self.provenance.startswith("modified copy"):
+            return f"{self.table_id} ({self.provenance})"
+        return self.table_id
 
     def selector(self, name: str, default=None):
         """Return the value used for selector (or input) ``name``."""
@@ -320,6 +344,35 @@ def _read(path):
     return replace(table, source=str(p), sha256=hashlib.sha256(data).hexdigest(), text=text), []
 
 
+def provenance(table: LimitTable) -> str:
+    """Where a table's limits come from, compared with the bundled table of the same id.
+
+    Returns
+    -------
+    str
+        ``"bundled"`` (the same bytes as the bundled file), ``"copy of the bundled ID, same
+        limits"`` (other bytes, equal content), ``"modified copy of the bundled ID (bundled
+        SHA-256 ...)"``, or ``"user table"`` (no bundled table has its id).
+    """
+    key = str(table.id).casefold()
+    if key not in _bundled():
+        return "user table"
+    sha, ref = _bundled_reference(key)
+    if ref is not None and ref == table:
+        return "bundled" if table.sha256 == sha else f"copy of the bundled {ref.id}, same limits"
+    return f"modified copy of the bundled {table.id} (bundled SHA-256 {sha[:12]}...)"
+
+
+@functools.cache
+def _bundled_reference(key: str):
+    """SHA-256 and parsed table of the bundled file ``key`` (read once per process)."""
+    res = _bundled()[key]
+    sha = hashlib.sha256(res.read_bytes()).hexdigest()
+    with resources.as_file(res) as p:
+        ref, errors = _read(p)
+    return sha, (ref if not errors else None)
+
+
 # --- resolution ----------------------------------------------------------------------------
 
 _INPUTS = {
@@ -386,7 +439,31 @@ def resolve(table, **selectors) -> ResolvedLimits:
             v = float(v)
         given[key] = v
     values, used = _selector_values(table, given)
+    _plausible_selectors(table, given, values)
     return _Resolver(table, values, used, given).run()
+
+
+#: Lowest nominal bus voltage any bundled table covers (IEEE 519 Table 2 starts at 120 V):
+#: a smaller value is a unit slip (13.8 typed for 13.8 kV). [V]
+_LEVEL_MIN_V = 100.0
+
+
+def _plausible_selectors(table, given: dict, values: dict) -> None:
+    """Refuse selector values no real case has (a unit slip, a ratio upside down)."""
+    lvl = given.get("voltage_level")
+    if lvl is not None and lvl < _LEVEL_MIN_V:
+        raise InputError(
+            f"a bus voltage of {lvl:g} V is below {_LEVEL_MIN_V:g} V, lower than any table "
+            f"covers; give it in volts (a {lvl:g} kV bus is {lvl * 1000:g} V)",
+            field="voltage_level")
+    ratio = values.get("isc_il") if table.selector("isc_il") else None
+    if ratio is None and "isc" in given and "il" in given:
+        ratio = given["isc"] / given["il"]
+    if ratio is not None and ratio < 1.0:
+        raise InputError(
+            f"ISC/IL = {ratio:.3g}: the short-circuit current at the PCC cannot be smaller "
+            "than the load current; check isc and il (both in A, isc is usually kA)",
+            field="isc")
 
 
 def _selector_values(table: LimitTable, given: dict):
@@ -539,11 +616,32 @@ class _Resolver:
                              f"({', '.join(f'{k} = {v}' for k, v in self.values.items())})")
         ev = self._evaluation(t.evaluation)
         selectors = tuple(sorted(self.used.items()))
+        scope = replace(t.scope, rules=tuple(r for r in t.scope.rules if self._holds(r)))
+        known = {s.name for s in t.selectors} | ({"isc", "il"} if t.selector("isc_il") else
+                                                 set())
+        if t.selector("rsce") and t.selector("rsce").ssc_divisor:
+            known |= {"ssc", "rated_power"}
+        ignored = tuple(k for k in self.given if k not in known)
         return ResolvedLimits(
             table_id=t.id, title=t.title, standard=t.standard, edition=t.edition,
             source=t.source, sha256=t.sha256, selectors=selectors, rows=tuple(self.rows),
             evaluation=ev, measure=t.measure, max_order=t.max_order, items=tuple(self.items),
-            notes=tuple(self.notes), measure_verify=(t.measure_tag or t.tag) in VERIFY_TAGS)
+            notes=tuple(self.notes), measure_verify=(t.measure_tag or t.tag) in VERIFY_TAGS,
+            scope=scope, observation=t.observation, provenance=provenance(t),
+            ignored=ignored)
+
+    def _holds(self, rule) -> bool:
+        """True when every selector condition of a scope rule holds for this case."""
+        for k, cond in rule.conditions:
+            if k not in self.values:
+                return False
+            spec = self.t.selector(k)
+            v = self.values[k]
+            if spec.kind == "choice" and v not in cond:
+                return False
+            if spec.kind == "band" and not (cond[0] <= v < cond[1]):
+                return False
+        return True
 
     def _rows(self, blk: LimitBlock, head: str) -> None:
         t = self.t
@@ -754,6 +852,57 @@ def _check_dict(c: EvalCheck) -> dict:
     return d
 
 
+def _dump_scope(out: list, t: LimitTable) -> None:
+    """The ``[scope]`` and ``[observation]`` sections (nothing when the table has none)."""
+    sc = t.scope
+    if sc.location or sc.nominal_frequency_hz or sc.rules or sc.tag or sc.note:
+        out += ["", "[scope]"]
+        if sc.location:
+            _put(out, "location", list(sc.location))
+        if sc.nominal_frequency_hz:
+            _put(out, "nominal_frequency_hz", [int(f) if f == int(f) else f
+                                               for f in sc.nominal_frequency_hz])
+        for key in ("tag", "note"):
+            if getattr(sc, key):
+                _put(out, key, getattr(sc, key))
+        for r in sc.rules:
+            out += ["", "[[scope.rules]]"]
+            _put(out, "quantity", r.quantity)
+            for k, cond in r.conditions:
+                _put(out, k, _cond_value(t.selector(k), cond))
+            _put(out, "range", [r.low, r.high])
+            _put(out, "reason", r.reason)
+            if r.effect != "not applicable":
+                _put(out, "effect", r.effect)
+            if r.unknown != "note":
+                _put(out, "unknown", r.unknown)
+            if r.tolerance:
+                _put(out, "tolerance", r.tolerance)
+            for key in ("tag", "note"):
+                if getattr(r, key):
+                    _put(out, key, getattr(r, key))
+    ob = t.observation
+    if ob.minimum_s or ob.behaviours or ob.representative_s is not None or ob.note:
+        out += ["", "[observation]"]
+        if ob.minimum_s:
+            _put(out, "minimum_s", ob.minimum_s)
+        if ob.representative_s is not None:
+            _put(out, "representative_s", ob.representative_s)
+        for key in ("default_behaviour", "tag", "note"):
+            if getattr(ob, key):
+                _put(out, key, getattr(ob, key))
+        for b in ob.behaviours:
+            out += ["", f"[observation.behaviour.{format_key(b.name)}]"]
+            _put(out, "minimum_s", b.minimum_s)
+            if b.cycles:
+                _put(out, "cycles", b.cycles)
+            if b.representative_s is not None:
+                _put(out, "representative_s", b.representative_s)
+            for key in ("tag", "note"):
+                if getattr(b, key):
+                    _put(out, key, getattr(b, key))
+
+
 def dump_toml(table: LimitTable) -> str:
     """Write ``table`` as TOML that :func:`load_table` reads back to an equal table.
 
@@ -823,6 +972,7 @@ def dump_toml(table: LimitTable) -> str:
             v = getattr(rule, k)
             if v != "":
                 _put(out, k, v)
+    _dump_scope(out, t)
     for blk in t.blocks:
         out += ["", "[[limits]]"]
         _put(out, "name", blk.name)

@@ -65,6 +65,7 @@ class ClipDetector:
     """
 
     name: str
+    unit: str = ""
     step: float = 0.0
     top: _Side = field(default_factory=_Side)
     bottom: _Side = field(default_factory=_Side)
@@ -146,7 +147,7 @@ class ClipDetector:
                 Finding(
                     "clipping",
                     "error",
-                    f"channel {self.name!r} looks clipped at its {label} rail ({level:.6g}): "
+                    f"channel {self.name!r} looks clipped at its {label} rail ({level:.6g}{' ' + self.unit if self.unit else ''}): "
                     f"{100 * fraction:.2f} % of samples sit flat there in {side.runs} runs. "
                     "Harmonics of a clipped waveform are wrong; re-capture with a larger "
                     "input range (volts/div) or a probe of lower gain.",
@@ -159,7 +160,8 @@ class ClipDetector:
 
 
 def sample_rate_findings(fs_hz, nominal_hz, max_order, resolved, cycles_per_window):
-    """Findings about the sample rate: unresolved orders and the synchronisation tolerance."""
+    """Findings about the sample rate: unresolved orders. (Windows are resampled to their exact
+    span, so a low rate no longer widens the synchronisation error.)"""
     out = []
     if resolved < max_order:
         need = SAMPLES_PER_PERIOD_MIN * nominal_hz * max_order
@@ -172,20 +174,6 @@ def sample_rate_findings(fs_hz, nominal_hz, max_order, resolved, cycles_per_wind
                 f"{resolved + 1}..{max_order} are not reported. Capture faster or lower "
                 "--max-order.",
                 orders=tuple(range(resolved + 1, max_order + 1)),
-                value=fs_hz,
-                unit="Hz",
-            )
-        )
-    n_win = fs_hz * cycles_per_window / nominal_hz
-    if 0.5 / n_win > SYNC_TOLERANCE:
-        out.append(
-            Finding(
-                "coarse-window",
-                "info",
-                f"at {fs_hz:g} Hz a window holds about {n_win:.0f} samples, so whole-sample "
-                f"windows can miss the exact 10/12-cycle span by up to {50 / n_win:.3f} % "
-                "(IEC 61000-4-7 asks for 0.03 %); pqcheck corrects each harmonic for the "
-                "known mismatch, but a faster capture is better.",
                 value=fs_hz,
                 unit="Hz",
             )

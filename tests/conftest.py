@@ -146,3 +146,29 @@ def phasor_series(fs_hz, f0_hz, phasors: dict, duration_s, phase_shift_deg=0.0):
 def rng():
     """Seeded random generator (tests are reproducible)."""
     return np.random.default_rng(20240601)
+
+
+# ---- limit tables for short synthetic captures ----
+
+
+def without_observation(table_id: str):
+    """The bundled table ``table_id`` with its minimum observation period removed.
+
+    Synthetic captures last seconds; the standards observe minutes (IEC 61000-3-2) or a week
+    (IEEE 519), so a short capture is inconclusive by design. Tests of the limit arithmetic
+    use this edited table, which pqcheck reports as a modified copy of the bundled one.
+    """
+    from dataclasses import replace
+
+    from pqcheck.limits import Observation, load_table
+
+    return replace(load_table(table_id), observation=Observation())
+
+
+def write_without_observation(folder, table_id: str):
+    """Write :func:`without_observation` as a table file in ``folder``; return its path."""
+    from pqcheck.limits import dump_toml
+
+    path = folder / f"{table_id}-no-observation.toml"
+    path.write_text(dump_toml(without_observation(table_id)), encoding="utf-8")
+    return path

@@ -642,7 +642,7 @@ def test_missing_cfg(tmp_path):
     ("name", "match"),
     [
         ("x.csv", r"read from its \.cfg or \.dat file, got extension '\.csv'"),
-        ("x.cff", r"combined \.cff files .* are not read"),
+        ("x.cff", r"x\.cff: DAT: no '--- file type: DAT ---' part; a \.cff holds the CFG and DAT"),
         ("nothere.cfg", r"file not found"),
     ],
 )
@@ -814,3 +814,89 @@ def test_timestamp_span_guard(tmp_path):
         r"for 5 recorded",
     ):
         read_comtrade(cfg)
+
+
+# --------------------------------------------------------------------------- legacy encodings
+
+@pytest.mark.parametrize(("encoding", "names"), [
+    ("cp1251", ["Ток фазы А", "Ток фазы В", "Напряжение"]),
+    ("gbk", ["A相电流", "B相电流", "母线电压"]),
+])
+def test_cfg_in_a_legacy_8bit_encoding_is_detected(tmp_path, encoding, names):
+    raw = np.array([[0, 100, -100, 50] * 10] * 3)
+    lines = [analog_line(k + 1, f"NAME{k}", "", "A" if k < 2 else "V", 0.5)
+             for k in range(3)]
+    cfg = write_comtrade(tmp_path, "leg", lines, raw)
+    # the names (and a station name in the same script, as a real file has) in that encoding
+    text = cfg.read_bytes().decode("latin-1").replace(
+        "Station 1", "Подстанция Северная" if encoding == "cp1251" else "变电站一号")
+    for k, nm in enumerate(names):
+        text = text.replace(f"NAME{k}", nm)
+    cfg.write_bytes(text.encode(encoding))
+    cap = read_comtrade(cfg)
+    assert list(cap.names) == names
+    np.testing.assert_array_equal(cap.samples[0], 0.5 * raw[0])
+    # the encoding can also be given; a wrong one is refused naming the field
+    assert list(read_comtrade(cfg, encoding=encoding).names) == names
+    with pytest.raises(CaptureFormatError, match=r"leg\.cfg: encoding: the \.cfg is not valid "
+                                                 r"utf-8 .*give its real encoding"):
+        read_comtrade(cfg, encoding="utf-8")
+
+
+# --------------------------------------------------------------------------- phase evidence
+
+def test_vendor_code_in_every_phase_field_is_not_a_phase(tmp_path):
+    raw = np.zeros((4, 20), dtype=int)
+    names = ["Feeder 1 I", "Feeder 2 I", "Bus U L2", "Spare"]
+    lines = [analog_line(k + 1, nm, "1", "A" if k < 2 else "V", 1.0)
+             for k, nm in enumerate(names)]
+    cap = read_comtrade(write_comtrade(tmp_path, "v", lines, raw))
+    assert [c.phase for c in cap.channels] == ["", "", "b", ""]
+    assert "is the same on every channel, so not used" in cap.channels[2].evidence
+
+
+def test_distinct_phase_fields_are_trusted(tmp_path):
+    raw = np.zeros((3, 20), dtype=int)
+    lines = [analog_line(k + 1, f"I{k}", ph, "A", 1.0) for k, ph in enumerate("ABC")]
+    cap = read_comtrade(write_comtrade(tmp_path, "p", lines, raw))
+    assert [c.phase for c in cap.channels] == ["a", "b", "c"]
+    assert cap.channels[1].evidence == "unit 'A'; phase field ph = 'B'"
+
+
+# --------------------------------------------------------------------------- .cff
+
+@pytest.mark.parametrize("ft", ["ASCII", "BINARY"])
+def test_single_file_cff_equals_the_pair(tmp_path, ft):
+    _, phys = three_phase_record(n=480)
+    raw = np.rint(phys / 10.0).astype(int)
+    lines = [analog_line(k + 1, n, "ABC"[k % 3], "A" if k < 3 else "V", 10.0)
+             for k, n in enumerate(["IA", "IB", "IC", "VA", "VB", "VC"])]
+    cfg = write_comtrade(tmp_path, "pair", lines, raw, rev="2013", ft=ft)
+    pair = read_comtrade(cfg)
+    cfg_bytes = cfg.read_bytes()
+    dat = cfg.with_suffix(".dat").read_bytes()
+    head = (f"--- file type: DAT {ft}: {len(dat)} ---" if ft == "BINARY"
+            else "--- file type: DAT ASCII ---")
+    cff = (b"--- file type: CFG ---\r\n" + cfg_bytes + b"--- file type: INF ---\r\n"
+           + b"[Public Record_Information]\r\n--- file type: HDR ---\r\nbench test\r\n"
+           + head.encode() + b"\r\n" + dat)
+    p = tmp_path / "one.cff"
+    p.write_bytes(cff)
+    one = read_comtrade(p)
+    assert one.names == pair.names and one.fs_hz == pair.fs_hz
+    np.testing.assert_array_equal(one.samples, pair.samples)
+    assert one.provenance.sha256 == hashlib.sha256(cff).hexdigest()
+    assert one.provenance.settings["single_file"] is True
+
+
+def test_cff_with_a_short_binary_part(tmp_path):
+    raw = np.zeros((1, 10), dtype=int)
+    cfg = write_comtrade(tmp_path, "s", [analog_line(1, "IA", "A", "A", 1.0)], raw,
+                         rev="2013", ft="BINARY")
+    dat = cfg.with_suffix(".dat").read_bytes()
+    p = tmp_path / "short.cff"
+    p.write_bytes(b"--- file type: CFG ---\n" + cfg.read_bytes()
+                  + f"--- file type: DAT BINARY: {len(dat) + 40} ---\n".encode() + dat)
+    with pytest.raises(CaptureFormatError, match=r"short\.cff: DAT: the DAT part declares \d+ "
+                                                 r"bytes but the file holds \d+ after it"):
+        read_comtrade(p)

@@ -282,7 +282,9 @@ def test_time_must_increase(tmp_path, kind, word):
 def test_missing_sample_rate(tmp_path):
     p = _write(tmp_path / "norate.csv", [r.split(",", 1)[1] for r in _rows()], header="ia,va")
     with pytest.raises(CaptureFormatError,
-                       match=r"norate\.csv: sample rate: no time column and no sample interval"):
+                       match=r"norate\.csv: sample_rate_hz: no time base found: no column is "
+                             r"named like time .* columns are 'ia', 'va'; give the sample rate "
+                             r"\(sample_rate_hz\) or name the time column \(time_column\)"):
         load_capture(p)
 
 

@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from conftest import write_without_observation
 
 import pqcheck
 from pqcheck.cli import main
@@ -170,7 +171,7 @@ def test_user_text_is_shown_literally_in_the_report(tmp_path):
         '[site]\n'
         f'name = {json.dumps(MARKUP["site"])}\n'
         'nominal_voltage_v = 400\nnominal_frequency_hz = 50\nisc_a = 20000\nil_a = 100\n'
-        '[[limits]]\ntable = "ieee519-2022"\n'
+        f'[[limits]]\ntable = "{write_without_observation(tmp_path, "ieee519-2022").name}"\n'
         '[[captures]]\nid = "c1"\nfile = "capture.csv"\nload_percent = 50\n'
         'notes = "note <b>bold?</b> & <link href=\'x\'>link</link>"\n')
     out, js = tmp_path / "r.pdf", tmp_path / "r.json"

@@ -126,11 +126,12 @@ def test_points_selector_rows_strictly_increase(tid):
 
 @pytest.mark.parametrize("tid", ["ieee519-2022", "ieee519-2014"])
 def test_ieee519_orders_covered(tid):
-    # IEEE 519-2014/2022 5.x: orders up to and including h = 50, odd and even, TDD and THD
+    # IEEE 519-2014/2022 5.x: orders up to and including h = 50, odd and even, TDD and THD;
+    # a dc offset in the current is not allowed (note to the current limits), checked as DC
     for case in all_cases(tid):
         r = resolve(tid, **case)
         assert orders(r, "current") == list(range(2, 51))
-        assert totals(r, "current") == ["TDD"]
+        assert totals(r, "current") == ["TDD", "DC"]
         assert orders(r, "voltage") == list(range(2, 51))
         assert totals(r, "voltage") == ["THD"]
 

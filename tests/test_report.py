@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from conftest import write_without_observation
 
 import pqcheck
 from pqcheck.cli import main
@@ -41,6 +42,15 @@ USER_OPERATOR = "A&B <ops>"
 USER_SITE = "Depot <1> & 2"
 LIMIT_ARGS = ["--limits", "ieee519-2022", "--voltage-level", "400", "--isc", "3500",
               "--il", "100"]  # ISC/IL = 35: IEEE 519-2022 Table 2 row 20 <= ISC/IL < 50
+
+
+@pytest.fixture(autouse=True, scope="module")
+def _table_for_short_captures(tmp_path_factory):
+    """IEEE 519 as bundled needs a week of data; these captures last a second or less, so the
+    limit arithmetic is tested with the edited copy without an observation period."""
+    path = write_without_observation(tmp_path_factory.mktemp("tables"), "ieee519-2022")
+    LIMIT_ARGS[1] = str(path)
+    yield
 
 
 def _series(t, harmonics, shift=0.0):
@@ -129,7 +139,7 @@ def test_capture_hash_and_limit_table_in_text(failing):
     flat = failing["text"].replace("\n", "")
     assert sha in flat
     assert "ieee519-2022" in failing["text"]
-    assert "IEEE Std 519 2022" in failing["text"]
+    assert "IEEE Std 519-2022" in failing["text"]  # the designation as IEEE cites it
     table_sha = json.loads(failing["json"].read_text())["limit_tables"][0]["sha256"]
     assert table_sha in flat
 
@@ -157,7 +167,10 @@ def test_attachment_equals_json_output(failing):
 
 def test_figures_and_footer_on_every_page(failing):
     n_images = sum(len(p.images) for p in failing["reader"].pages)
-    assert n_images >= 4  # spectrum (current, voltage), waveforms, THD over time
+    # current spectrum and waveforms; the voltage spectrum (every order far inside its limit)
+    # and the THD-over-time chart (too few windows in a 1 s capture) are replaced by a line
+    assert n_images >= 2
+    assert "too few for a chart" in failing["text"]
     report_id = json.loads(failing["json"].read_text())["report"]["id"]
     n = len(failing["pages"])
     for k, page in enumerate(failing["pages"], start=1):
@@ -172,7 +185,7 @@ def test_failing_orders_and_tdd_listed(failing):
     # 5th at 20 % and 7th at 14.3 % of IL exceed 7 %; TDD (~30 % of IL) exceeds 8 %
     # (IEEE 519-2022 Table 2, 20 <= ISC/IL < 50; six-pulse I_h = I_1 / h).
     assert ("harmonic", 5) in failed and ("harmonic", 7) in failed and ("TDD", None) in failed
-    assert "Checks that did not pass" in failing["text"]
+    assert "Limits exceeded" in failing["text"]
 
 
 def test_csv_tables_are_tidy_and_match_json(failing):
@@ -382,7 +395,11 @@ def test_pdf_plots_what_the_extractors_return(assessed, monkeypatch, fast_figure
     job = ReportJob(ReportMeta(report_id="T-1"), (CaptureRun("c", cap, result, (a,)),))
     pdf = render_pdf(job, results_json=b"{}")
     assert pdf.startswith(b"%PDF")
-    assert len(seen) == 2  # current and voltage harmonics
+    # current harmonics; voltage harmonics only when one of them decides (here all pass far
+    # inside their limits, which the body states in one line)
+    voltage_decides = any(c.applies_to == "voltage" and c.quantity == "harmonic"
+                          and (c.verdict != "pass" or c.margin_percent < 50) for c in a.checks)
+    assert len(seen) == 1 + voltage_decides
     by_key = {(c.channel, c.order): c for c in a.checks if c.quantity == "harmonic"}
     for data in seen:
         for panel in data.panels:

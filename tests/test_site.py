@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 
 import numpy as np
 import pytest
@@ -31,11 +32,11 @@ from hypothesis import strategies as st
 from pqcheck import Capture, analyze
 from pqcheck.cli import main
 from pqcheck.errors import PlanError
+from pqcheck.run.site import load_site
 from pqcheck.site import (
     aggregate,
     harmonic_impedance,
     harmonic_voltages,
-    load_site,
     site_template,
     source_impedance,
     spectrum_from_analysis,
@@ -937,3 +938,304 @@ def test_capture_units_report_reader_and_channel_errors(tmp_path):
     with pytest.raises(PlanError, match=r"units\[1\].capture: unit.csv: the capture holds one "
                                         r"current channel \('i'\)"):
         load_site(tmp_path / "site.toml")
+
+
+# ---------------------------------------------------------------------------------------------
+# verdict under each summation method
+# ---------------------------------------------------------------------------------------------
+
+
+def test_verdict_depends_on_the_summation_method(tmp_path):
+    # Two ideal six-pulse units (I_h = I1 / h, I1 = 100 A), one behind a +30 deg transformer,
+    # on the 400 V bus (ISC 22555.58 A, worked out above) with IL stated as 300 A:
+    # ISC/IL = 75.19 -> IEEE 519-2022 Table 2 row 50 < 100 (standards notes 1.3, tag V):
+    # h < 11: 10.0 %, 11 <= h < 17: 4.5 %, 17 <= h < 23: 4.0 %, TDD 12.0 %.
+    # arithmetic: I5 = 40 A = 13.33 %, I11 = 6.06 %, I13 = 5.13 % fail, I17 3.92 % passes;
+    #   TDD = sqrt(13.33^2 + 9.52^2 + 6.06^2 + 5.13^2 + 3.92^2 + 3.51^2) = 18.95 % fails.
+    # phasor: 5, 7, 17, 19 cancel (twelve-pulse), 11 and 13 add: I11, I13 fail, TDD 7.94 %.
+    # general (IEC TR 61000-3-6): I5 = 2^(1/1.4) 20 A = 10.94 % fails, I11 = sqrt(2) 9.09 A
+    #   = 4.29 % passes, TDD = 15.04 % fails.
+    harm = {h: (100.0 / h, 180.0 if h % 6 == 5 else 0.0) for h in (5, 7, 11, 13, 17, 19)}
+    (tmp_path / "unit.json").write_text(json.dumps(unit_results(harm)))
+    text = SITE_BUS.format(summation="general", location="bus", count=1, demand_w=0,
+                           il="il_a = 300")
+    text += ('\n[[units]]\nname = "Charger Dy"\nresults = "unit.json"\ncount = 1\n'
+             'load_point = "100 %"\nphase_shift_deg = 30\n')
+    (tmp_path / "site.toml").write_text(text)
+    study = study_site(load_site(tmp_path / "site.toml"), headroom=False)
+    assert study.isc_il == pytest.approx(22555.58 / 300, rel=1e-6)
+    assert study.outcome("arithmetic").failing == ("I5", "I11", "I13", "TDD")
+    assert study.outcome("phasor").failing == ("I11", "I13")
+    assert study.outcome("general").failing == ("I5", "TDD")
+    assert [o.verdict for o in study.by_summation] == ["fail", "fail", "fail"]
+    assert study.check("TDD").measured == pytest.approx(15.04, abs=0.01)
+    # each outcome is what a study with that summation gives
+    for o in study.by_summation:
+        other = study_site(load_site(tmp_path / "site.toml"), summation=o.summation,
+                           headroom=False)
+        assert tuple(c.label for c in other.checks if c.verdict == "fail") == o.failing
+    d = study_to_dict(study)
+    assert {x["summation"]: x["failing"] for x in d["by_summation"]} == {
+        "general": ["I5", "TDD"], "arithmetic": ["I5", "I11", "I13", "TDD"],
+        "phasor": ["I11", "I13"]}
+
+
+def test_phasor_outcome_needs_measured_phases(tmp_path):
+    res = unit_results({5: (1.0, 0.0)}, voltage=False)
+    study = study_site(load_site(write_site(tmp_path, results=res, il="il_a = 10000")),
+                       headroom=False)
+    phasor = study.outcome("phasor")
+    assert phasor.verdict == "" and "phase angles measured against a voltage" in phasor.note
+    assert study.outcome("general").verdict == "pass"
+
+
+# ---------------------------------------------------------------------------------------------
+# physical ranges of the site file's numbers
+# ---------------------------------------------------------------------------------------------
+
+
+def test_unit_count_of_a_billion_is_refused_with_field_and_line(tmp_path):
+    text = _sub("count = 1", "count = 1000000000")
+    line = text.splitlines().index("count = 1000000000") + 1
+    exc = _err(tmp_path, text, r"units\[1\].count: must be from 0 to 10000 \(units of one "
+                               r"kind on one site\), got 1e\+09")
+    assert exc.line == line
+
+
+_RANGE_CASES = [
+    # (text to replace in BASE, replacement, field in the message); each value is far outside
+    # any installation (common practice: LV/MV/HV voltages up to 1.2 MV, X/R 0.1 to 100)
+    ("nominal_voltage_v = 11000", "nominal_voltage_v = 11e9", "supply.nominal_voltage_v"),
+    ("ssc_va = 250e6", "ssc_va = 250e15", "supply.ssc_va"),
+    ("x_over_r = 10", "x_over_r = 1e6", "supply.x_over_r"),
+    ("rating_va = 1000e3", "rating_va = 1e15", "transformer.rating_va"),
+    ("secondary_v = 400", "secondary_v = 4e7", "transformer.secondary_v"),
+    ("x_over_r = 6", "x_over_r = 0.001", "transformer.x_over_r"),
+    ('location = "bus"', 'location = "bus"\nil_a = 1e12', "pcc.il_a"),
+    ("demand_w = 0", "demand_w = 1e15", "other_load.demand_w"),
+    ("power_factor = 0.8", "power_factor = 0.0001", "other_load.power_factor"),
+]
+
+
+@pytest.mark.parametrize("old,new,field", _RANGE_CASES, ids=[c[2] for c in _RANGE_CASES])
+def test_numbers_outside_their_physical_range(tmp_path, old, new, field):
+    text = _sub(old, new)
+    line = next(k for k, t in enumerate(text.splitlines(), 1) if t == new.splitlines()[-1])
+    exc = _err(tmp_path, text, rf"site.toml:{line}: {re.escape(field)}: must be from \S+ to "
+                               r"\S+.* got ")
+    assert exc.line == line
+
+
+def test_isc_out_of_range(tmp_path):
+    text = _sub("ssc_va = 250e6", "isc_a = 5e9")
+    _err(tmp_path, text, r"supply.isc_a: must be from 1 to 1e\+06 A \(a three-phase "
+                         r"short-circuit current\), got 5e\+09")
+
+
+def test_max_headroom_is_bounded(tmp_path):
+    site = load_site(write_site(tmp_path))
+    with pytest.raises(PlanError, match="max_headroom must be a whole number from 1 to 1000, "
+                                        "got 1000000000"):
+        study_site(site, max_headroom=10**9)
+
+
+# ---------------------------------------------------------------------------------------------
+# command line: check lines, options, inputs never overwritten
+# ---------------------------------------------------------------------------------------------
+
+
+def test_cli_prints_the_relation_that_holds(tmp_path):
+    # the worked example on the supply side: I5 = 20 % of IL against 15 % (IEEE 519-2022
+    # Table 2, ISC/IL >= 1000; standards notes 1.3, tag V) fails; THD(V) passes
+    bad = write_site(tmp_path, location="supply")
+    r = CliRunner().invoke(main, ["site", str(bad)])
+    assert r.exit_code == 1, r.output
+    assert re.search(r"FAIL\s+I5\s+20 % of IL\s+> limit 15\.0 %", r.output), r.output
+    assert re.search(r"PASS\s+THD\(V\)\s+0\.02758 % of nominal\s+<= limit", r.output)
+    for line in r.output.splitlines():
+        if line.strip().startswith("FAIL") and "limit" in line:
+            assert "<=" not in line, line
+    assert "Verdict by summation method" in r.output
+
+
+def _sha(path) -> str:
+    import hashlib
+
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_cli_never_overwrites_an_input(tmp_path):
+    runner = CliRunner()
+    site = write_site(tmp_path, il="il_a = 10000")
+    unit = tmp_path / "unit.json"
+    before = {p: _sha(p) for p in (site, unit)}
+    for args, what in (
+            (["-o", str(site), "--force"], "the site file"),
+            (["--json", str(site), "--force"], "the site file"),
+            (["-o", str(unit), "--force"], "the unit results of 'Charger'"),
+            (["--json", str(tmp_path / "." / "unit.json"), "--force"],
+             "the unit results of 'Charger'")):
+        r = runner.invoke(main, ["site", str(site)] + args)
+        assert r.exit_code == 2, r.output
+        assert f"is {what}, an input of the study; it is never overwritten" in r.output
+    assert {p: _sha(p) for p in (site, unit)} == before
+    r = runner.invoke(main, ["site", str(site), "-o", str(tmp_path / "a.pdf"), "--json",
+                             str(tmp_path / "a.pdf")])
+    assert r.exit_code == 2 and "--json and -o name the same file" in r.output
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["site.toml", "unit.json"]
+
+
+def test_cli_never_overwrites_a_units_capture(tmp_path):
+    # a unit given as a capture (synthesised here: 230 V, 10 A fundamental with a 2 A fifth)
+    t = np.arange(20_000) / 10_000.0
+    cols = [t]
+    for k in range(3):
+        sh = -2 * np.pi * k / 3
+        cols.append(230 * np.sqrt(2) * np.cos(2 * np.pi * 50 * t + sh))
+    for k in range(3):
+        sh = -2 * np.pi * k / 3
+        cols.append(10 * np.sqrt(2) * np.cos(2 * np.pi * 50 * t + sh)
+                    + 2 * np.sqrt(2) * np.cos(5 * (2 * np.pi * 50 * t + sh)))
+    cap = tmp_path / "unit.csv"
+    np.savetxt(cap, np.column_stack(cols), delimiter=",", header="time,va,vb,vc,ia,ib,ic",
+               comments="", fmt="%.9g")
+    (tmp_path / "site.toml").write_text(
+        BASE.replace('results = "unit.json"', 'capture = "unit.csv"'))
+    before = _sha(cap)
+    r = CliRunner().invoke(main, ["site", str(tmp_path / "site.toml"), "-o", str(cap),
+                                  "--force"])
+    assert r.exit_code == 2, r.output
+    assert "is the unit capture of 'Charger', an input of the study" in r.output
+    assert _sha(cap) == before
+
+
+def test_cli_json_operator_title_and_report_id(tmp_path):
+    site = write_site(tmp_path, il="il_a = 10000")
+    out = tmp_path / "study.json"
+    r = CliRunner().invoke(main, ["site", str(site), "--json", str(out), "--operator",
+                                  "R. Meyer", "--title", "Depot study", "--report-id",
+                                  "SITE-7"])
+    assert r.exit_code == 0, r.output
+    d = json.loads(out.read_text())
+    assert d["report"]["operator"] == "R. Meyer" and d["report"]["title"] == "Depot study"
+    assert d["report"]["id"] == "SITE-7"
+    # every input with the SHA-256 of its bytes (hashlib as the reference)
+    shas = {(i["what"], i["path"]): i["sha256"] for i in d["inputs"]}
+    assert shas[("site file", "site.toml")] == _sha(site)
+    assert shas[("unit results", "unit.json")] == _sha(tmp_path / "unit.json")
+    assert any(w == "limit table" and len(s) == 64 for (w, _), s in shas.items())
+
+
+# ---------------------------------------------------------------------------------------------
+# site PDF: traceability and chart
+# ---------------------------------------------------------------------------------------------
+
+
+def test_site_pdf_traceability(tmp_path):
+    pypdf = pytest.importorskip("pypdf")
+    site = write_site(tmp_path, location="supply")
+    pdf, js = tmp_path / "site.pdf", tmp_path / "site.json"
+    r = CliRunner().invoke(main, ["site", str(site), "-o", str(pdf), "--json", str(js),
+                                  "--operator", "R. Meyer", "--report-id", "SITE-42"])
+    assert r.exit_code == 1, r.output
+    reader = pypdf.PdfReader(pdf)
+    pages = [p.extract_text() for p in reader.pages]
+    n = len(pages)
+    for k, text in enumerate(pages, start=1):
+        assert f"Page {k} of {n}" in text and "SITE-42" in text
+    text = "\n".join(pages)
+    # SHA-256 of every input, unbroken (hashlib as the reference), and of the attachment
+    for p in (site, tmp_path / "unit.json"):
+        assert _sha(p) in text
+    table_sha = json.loads(js.read_text())["limits"]["sha256"]
+    assert table_sha in text
+    attached = reader.attachments["results.json"][0]
+    assert attached == js.read_bytes()
+    import hashlib
+
+    assert hashlib.sha256(attached).hexdigest() in text
+    assert "Date of study" in text and "R. Meyer" in text
+    assert "Sign-off" in text and "Prepared by" in text and "Approved by" in text
+    assert "qualified" in text.lower() and "utility's own study governs" in text
+    assert "How the verdict depends on the summation method" in text
+
+
+def test_site_chart_marks_the_failing_order_above_an_uncovered_plot(tmp_path):
+    from pqcheck.report.figures import plot_spectrum
+    from pqcheck.report.site_pdf import site_spectrum_data
+
+    study = study_site(load_site(write_site(tmp_path, location="supply")), headroom=False)
+    data = site_spectrum_data(study, "current")
+    panel = data.panels[0]
+    k = list(panel.orders).index(5)
+    assert panel.verdicts[k] == "fail" and panel.limit[k] == 15.0
+    assert panel.measured[k] == pytest.approx(20.0, rel=1e-9)  # worked example above
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    fig = plot_spectrum(data)
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    ax = fig.axes[0]
+    assert "\u27155" in [t.get_text() for t in ax.texts]
+    # the legend sits above the plotting area, so it covers no bar and no limit mark
+    renderer = canvas.get_renderer()
+    legend = ax.get_legend() or fig.legends[0]
+    assert legend.get_window_extent(renderer).y0 >= ax.get_window_extent(renderer).y1 - 1.0
+
+
+# ---------------------------------------------------------------------------------------------
+# pqcheck verify on a site study
+# ---------------------------------------------------------------------------------------------
+
+
+def test_verify_site_pdf_and_json(tmp_path):
+    pytest.importorskip("pypdf")
+    runner = CliRunner()
+    site = write_site(tmp_path, location="supply")
+    pdf, js = tmp_path / "site.pdf", tmp_path / "site.json"
+    r = runner.invoke(main, ["site", str(site), "-o", str(pdf), "--json", str(js)])
+    assert r.exit_code == 1, r.output
+    for target in (pdf, js):
+        r = runner.invoke(main, ["verify", str(target)])
+        assert r.exit_code == 0, r.output
+        assert "IDENTICAL" in r.output and "site file" in r.output
+    # an edited number: exit 1, naming the value (recomputed from the inputs, not trusted)
+    d = json.loads(js.read_text())
+    k = next(i for i, c in enumerate(d["checks"]) if c["label"] == "I5")
+    d["checks"][k]["measured"] = 14.0
+    edited = tmp_path / "edited.json"
+    edited.write_text(json.dumps(d))
+    r = runner.invoke(main, ["verify", str(edited)])
+    assert r.exit_code == 1, r.output
+    assert re.search(rf"checks\[{k}\]\.measured \(check PCC h5\): recorded 14(\.0)?, "
+                     r"recomputed 20", r.output), r.output
+    # a unit's data changed since: its SHA-256 no longer matches
+    unit = tmp_path / "unit.json"
+    unit.write_text(unit.read_text().replace("20.0", "19.0", 1))
+    r = runner.invoke(main, ["verify", str(js)])
+    assert r.exit_code == 1 and "unit results 'Charger'" in r.output, r.output
+
+
+def test_verify_site_pdf_with_other_pages_is_caught(tmp_path):
+    pypdf = pytest.importorskip("pypdf")
+    runner = CliRunner()
+    site = write_site(tmp_path, location="supply")
+    js = tmp_path / "site.json"
+    r = runner.invoke(main, ["site", str(site), "--json", str(js), "--report-id", "S-1"])
+    assert r.exit_code == 1, r.output
+    alt = tmp_path / "alt"
+    alt.mkdir()
+    alt_site = write_site(alt, location="supply", count=2)
+    r = runner.invoke(main, ["site", str(alt_site), "-o", str(alt / "other.pdf"),
+                             "--report-id", "S-1"])
+    assert r.exit_code == 1, r.output
+    forged = pypdf.PdfWriter()
+    for page in pypdf.PdfReader(alt / "other.pdf").pages:
+        forged.add_page(page)
+    forged.add_attachment("results.json", js.read_bytes())
+    with open(tmp_path / "forged.pdf", "wb") as fh:
+        forged.write(fh)
+    r = runner.invoke(main, ["verify", str(tmp_path / "forged.pdf"), "--format", "json"])
+    assert r.exit_code == 1, r.output
+    out = json.loads(r.output)
+    assert {d["what"] for d in out["differences"]} == {"visible report"}

@@ -16,6 +16,7 @@ from . import limits_cmd as _limits_cmd  # noqa: F401
 from . import plan_cmd as _plan_cmd  # noqa: F401
 from . import report_cmd as _report_cmd  # noqa: F401
 from . import site_cmd as _site_cmd  # noqa: F401
+from . import survey_cmd as _survey_cmd  # noqa: F401
 from . import verify_cmd as _verify_cmd  # noqa: F401
 from ._common import main
 

@@ -7,8 +7,10 @@ import os
 import signal
 import sys
 import threading
+import warnings
 
 import click
+import numpy as np
 
 from .. import __version__
 from ..errors import InputError, PqcheckError, ReportError
@@ -23,11 +25,11 @@ EXIT_SIGINT = 130
 EXIT_SIGTERM = 143
 
 EXIT_CODES = (
-    (EXIT_OK, "pass: every assessed limit is met (or no limits were applied)"),
+    (EXIT_OK, "pass: every assessed limit is met (or no limit table was asked for)"),
     (EXIT_FAIL, "fail: a limit is exceeded"),
     (EXIT_USAGE, "bad input or usage; nothing was written"),
-    (EXIT_INCONCLUSIVE, "inconclusive: data quality or duration do not allow a verdict"),
-    (EXIT_NOT_APPLICABLE, "not applicable: out of the limit table's scope, nothing assessable"),
+    (EXIT_INCONCLUSIVE, "inconclusive: data quality, duration or a deviation forbid a verdict"),
+    (EXIT_NOT_APPLICABLE, "not applicable: outside the scope of the tables applied (never 0)"),
     (EXIT_INTERNAL, "internal error (a defect of pqcheck: please report it); nothing written"),
     (EXIT_SIGINT, "interrupted by SIGINT (Ctrl-C); no output, a batch keeps finished rows"),
     (EXIT_SIGTERM, "terminated by SIGTERM; as for SIGINT"),
@@ -41,8 +43,10 @@ def _exit_code_epilog() -> str:
     lines += [f"  {code:<5}{text}" for code, text in EXIT_CODES]
     return "\n".join(lines)
 
+#: Exit code of each verdict. "not applicable" (the case is outside the scope of every table
+#: applied, or nothing could be assessed) is never 0: a script must not read it as a pass.
 VERDICT_EXIT = {"pass": EXIT_OK, "fail": EXIT_FAIL, "inconclusive": EXIT_INCONCLUSIVE,
-                "not applicable": EXIT_OK}
+                "not applicable": EXIT_NOT_APPLICABLE}
 
 
 class Terminated(BaseException):
@@ -124,7 +128,11 @@ def handle_errors(func):
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
-        return _guarded(func, *args, **kwargs)
+        # numpy's RuntimeWarnings (a mean of an empty window, 0/0 in a silent channel)
+        # are handled as NaN results and findings; their text never reaches stderr
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return _guarded(func, *args, **kwargs)
 
     return wrapper
 

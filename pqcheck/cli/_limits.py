@@ -11,11 +11,12 @@ import math
 import click
 
 __all__ = ["LIMIT_OPTION_NAMES", "limit_options", "resolve_limits", "positive_options",
-           "selectors_from", "tables_max_order"]
+           "selectors_from", "tables_max_order", "declared_from"]
 
 LIMIT_OPTION_NAMES = ("limits", "voltage_level", "isc", "generation", "equipment_class",
                       "equipment_kind", "rsce", "ssc", "rated_power", "rated_current", "iref",
-                      "active_power")
+                      "active_power", "location", "behaviour", "cycle", "representative_period",
+                      "phases")
 
 
 def limit_options(*, required: bool, limits_help: str | None = None):
@@ -59,8 +60,27 @@ def limit_options(*, required: bool, limits_help: str | None = None):
         click.option("--iref", type=float, metavar="A",
                      help="Reference current Iref (IEC 61000-3-12)."),
         click.option("--active-power", "active_power", type=float, metavar="W",
-                     help="Active input power for per-watt limits (IEC 61000-3-2 Class D). "
-                          "Default: measured."),
+                     help="Declared active input power for per-watt limits and the scope's "
+                          "power bounds (IEC 61000-3-2); used when within 10 % of the "
+                          "measured one. Default: measured."),
+        click.option("--location", type=click.Choice(["pcc", "equipment-terminals"]),
+                     help="Where the capture was taken: at the point of common coupling (IEEE "
+                          "519) or at the supply terminals of the equipment (IEC 61000-3-2/-3-12)."),
+        click.option("--behaviour", metavar="KIND",
+                     help="Type of equipment behaviour for the observation period (IEC "
+                          "61000-3-2/-3-12): quasi-stationary, short-cyclic, random, "
+                          "long-cyclic. Default: quasi-stationary, listed as a deviation."),
+        click.option("--cycle", type=float, metavar="S",
+                     help="Operating cycle of cyclic equipment [s] (short-cyclic: 10 cycles "
+                          "are observed; long-cyclic: one full cycle)."),
+        click.option("--representative-period", "representative_period", is_flag=True,
+                     default=False,
+                     help="Declare the capture a representative period shorter than the "
+                          "standard's observation, where the table allows it for the behaviour "
+                          "(said on page 1 of the report)."),
+        click.option("--phases", type=click.IntRange(1, 3), metavar="N",
+                     help="Number of phases of the equipment (a three-phase unit captured on "
+                          "fewer phases cannot pass)."),
     ]
 
     def decorate(func):
@@ -71,12 +91,23 @@ def limit_options(*, required: bool, limits_help: str | None = None):
     return decorate
 
 
+def declared_from(lim: dict):
+    """The :class:`pqcheck.gates.Declared` of parsed options."""
+    from ..gates import Declared
+
+    return Declared(location=lim.get("location"), behaviour=lim.get("behaviour"),
+                    cycle_s=lim.get("cycle"),
+                    representative_period=bool(lim.get("representative_period")),
+                    phases=lim.get("phases"))
+
+
 def positive_options(lim: dict, il_a) -> None:
     """Refuse zero, negative or non-finite currents and powers (exit 2 naming the option)."""
     from ..errors import InputError
 
     for name, v in (("--rated-current", lim.get("rated_current")), ("--iref", lim.get("iref")),
-                    ("--active-power", lim.get("active_power")), ("--il", il_a)):
+                    ("--active-power", lim.get("active_power")), ("--il", il_a),
+                    ("--cycle", lim.get("cycle"))):
         if v is not None and not (math.isfinite(v) and v > 0):
             raise InputError(f"must be a positive number, got {v:g}", field=name)
 
@@ -91,11 +122,28 @@ def selectors_from(lim: dict, il_a) -> dict:
 
 def resolve_limits(lim: dict, il_a) -> list:
     """Load and resolve every ``--limits`` table with the selectors given."""
+    from ..errors import InputError
     from ..limits import load_table, resolve
 
     positive_options(lim, il_a)
     selectors = selectors_from(lim, il_a)
-    return [resolve(load_table(x), **selectors) for x in lim.get("limits") or ()]
+    out = [resolve(load_table(x), **selectors) for x in lim.get("limits") or ()]
+    if out:
+        unused = set.intersection(*(set(r.ignored) for r in out))
+        unused.discard("il")  # IL also sets TDD in the analysis
+        for name in ("equipment_class", "equipment", "rsce", "ssc", "rated_power",
+                     "voltage_level", "isc", "generation"):
+            if name in unused:
+                ids = ", ".join(r.table_id for r in out)
+                raise InputError(f"was given, but no limit table applied uses it ({ids}); "
+                                 "leave it out or choose a table that has it",
+                                 field=_OPTION_OF[name])
+    return out
+
+
+_OPTION_OF = {"equipment_class": "--class", "equipment": "--equipment-kind", "rsce": "--rsce",
+              "ssc": "--ssc", "rated_power": "--rated-power", "voltage_level": "--voltage-level",
+              "isc": "--isc", "generation": "--generation"}
 
 
 def tables_max_order(ctx, opts: dict, resolved) -> None:

@@ -22,6 +22,13 @@ def capture_options(func):
                      help="Sample rate, for files without a time column or declared interval."),
         click.option("--time-column", "time_column", metavar="NAME",
                      help="Name of the time column when it is not recognised."),
+        click.option("--add-file", "add_file", multiple=True, metavar="FILE",
+                     type=click.Path(dir_okay=False),
+                     help="Another file of the same capture (one file per channel, same time "
+                          "base, checked); repeat for more files."),
+        click.option("--encoding", "encoding", metavar="NAME",
+                     help="Text encoding of the capture (or of a COMTRADE .cfg), e.g. cp1251, "
+                          "gbk, utf-16. Default: detected."),
         click.option("--nominal-frequency", "nominal", type=click.Choice(["50", "60"]),
                      help="Nominal system frequency. Default: detected from the data."),
         click.option("--max-order", "max_order", type=click.IntRange(2, 100), default=50,
@@ -76,11 +83,12 @@ def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
         progress = bar
     try:
         return analyze_file(
-            capture_path,
+            [capture_path, *opts["add_file"]] if opts.get("add_file") else capture_path,
             sample_rate_hz=opts.get("sample_rate"),
             current=split_columns(opts.get("current")),
             voltage=split_columns(opts.get("voltage")),
             time_column=opts.get("time_column"),
+            encoding=opts.get("encoding"),
             cache=cache,
             progress=progress,
             **analysis_kwargs(opts),
@@ -249,59 +257,163 @@ def analyze_cmd(capture, fmt, **opts):
     raise click.exceptions.Exit(EXIT_OK)
 
 
+def _survey_options(func):
+    from .survey_cmd import survey_options
+
+    return survey_options(func)
+
+
 @main.command("inspect")
 @click.argument("capture", type=click.Path(dir_okay=False))
 @click.option("--sample-rate", "sample_rate", type=float, metavar="HZ",
               help="Sample rate, for files without a time column or declared interval.")
 @click.option("--time-column", "time_column", metavar="NAME",
               help="Name of the time column when it is not recognised.")
+@click.option("--encoding", "encoding", metavar="NAME",
+              help="Text encoding of the file (e.g. cp1251, gbk). Default: detected.")
+@_survey_options
 @handle_errors
-def inspect_cmd(capture, sample_rate, time_column):
-    """Show what pqcheck reads in CAPTURE: columns, guessed roles, sample rate, duration and
-    the detected fundamental. Use it to confirm the channel map before analysing."""
-    from ..dsp.tracking import coarse_frequency
-    from ..readers import load_capture
+def inspect_cmd(capture, sample_rate, time_column, encoding, **survey_opts):
+    """Show what pqcheck reads in CAPTURE: layout, columns, time base and where it came from,
+    guessed roles with their evidence, and the options that confirm or override them. When
+    the time base cannot be found it still lists the columns and metadata and says which
+    option to add (exit code 2).
 
-    cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column)
+    For an interval log: how each column is read, the aggregation levels, span and gaps."""
+    from ..readers import load_capture
+    from ..readers.delimited import TimeBaseNotFound
+    from .survey_cmd import inspect_survey, is_survey_input
+
+    if is_survey_input([capture], survey_opts):
+        inspect_survey([capture], survey_opts)
+    try:
+        cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column,
+                           encoding=encoding)
+    except TimeBaseNotFound as exc:
+        _inspect_without_time_base(capture, exc)
+        raise
+    for line in inspect_lines(cap):
+        click.echo(line)
+    raise click.exceptions.Exit(EXIT_OK)
+
+
+def _layout_lines(d) -> list:
+    delim = {",": "comma", ";": "semicolon", "\t": "tab", None: "none"}[d.delimiter]
+    out = [f"Layout      {d.layout}: delimiter {delim}, decimal '{d.decimal}', header line "
+           f"{d.header_line or '-'}, data from line {d.data_line}, encoding {d.encoding}"
+           + (f" ({d.compression})" if d.compression else "")]
+    for note in d.notes:
+        out.append(f"  {note}")
+    return out
+
+
+def _inspect_without_time_base(capture, exc) -> None:
+    """The guide printed when the time base is not found: columns, metadata, what was tried
+    and the options to add."""
+    d = exc.dialect
+    if d is None:
+        return
+    click.echo(f"File        {capture}")
+    for line in _layout_lines(d):
+        click.echo(line)
+    click.echo("")
+    click.echo("Columns")
+    for k, (name, unit) in enumerate(zip(d.names, d.units), start=1):
+        click.echo(f"  {k:>3}  {name}" + (f"  [{unit}]" if unit else ""))
+    if d.metadata_lines:
+        click.echo("Lines read as metadata: " + ", ".join(str(n) for n in d.metadata_lines))
+    for key, value in d.metadata.items():
+        click.echo(f"  {key}: {value}")
+    click.echo("")
+    click.echo("Time base not found. Tried:")
+    click.echo("  - a column named t, time, time_s, Second, X, x-axis, ... or with a time unit "
+               "([s], (ms), /us, _s)")
+    click.echo("  - a sample interval or rate in the metadata lines (Sample interval, "
+               "Increment, Sample rate, ...)")
+    click.echo("Add one of:")
+    click.echo(f"  --time-column {d.names[0]!r}    if column {d.names[0]!r} is the time in "
+               "seconds")
+    click.echo("  --sample-rate HZ        the rate the samples were taken at")
+    click.echo("")
+
+
+def inspect_lines(cap) -> list:
+    """The lines ``inspect`` prints for a capture that was read."""
+    from ..dsp.tracking import coarse_frequency
+
     s = cap.provenance.settings
-    click.echo(f"File        {cap.provenance.source}")
-    click.echo(f"SHA-256     {cap.provenance.sha256}")
-    click.echo(f"Layout      delimiter {s.get('delimiter', '-')}, decimal '{s.get('decimal', '.')}'"
-               f", header line {s.get('header_line', '-')}, data from line {s.get('data_line', '-')}"
-               if "delimiter" in s else f"Reader      {cap.provenance.reader}")
-    click.echo(f"Time base   {s.get('time_base', '-')}"
-               + (f" (column {s['time_column']!r} in {s['time_unit']})" if "time_column" in s
-                  else ""))
-    click.echo(f"Sampling    {cap.fs_hz:g} Hz, {cap.n_samples} samples, {cap.duration_s:.4f} s")
+    out = [f"File        {cap.provenance.source}", f"SHA-256     {cap.provenance.sha256}"]
+    if "delimiter" in s:
+        delim = s.get("delimiter", "-")
+        out.append(f"Layout      {s.get('layout', 'header')}: delimiter {delim}, decimal "
+                   f"'{s.get('decimal', '.')}', header line {s.get('header_line') or '-'}, "
+                   f"data from line {s.get('data_line', '-')}, encoding {s.get('encoding', '-')}"
+                   + (f" ({s['compression']})" if s.get("compression") else ""))
+        for note in s.get("layout_notes", ()):
+            out.append(f"  {note}")
+        for name, why in (s.get("dropped_columns") or {}).items():
+            out.append(f"  column {name!r} not read: {why}")
+    else:
+        out.append(f"Reader      {cap.provenance.reader}"
+                   + (f" (.cfg encoding {s['cfg_encoding']})" if s.get("cfg_encoding") else ""))
+    tb = s.get("time_base", "-")
+    where = ""
+    if "time_column" in s:
+        where = f" (column {s['time_column']!r} in {s['time_unit']})"
+    if s.get("declared_by"):
+        where += f" (declared by {s['declared_by']!r})"
+    out.append(f"Time base   {tb}{where}")
+    out.append(f"Sampling    {cap.fs_hz:g} Hz, {cap.n_samples} samples, {cap.duration_s:.4f} s"
+               + (f", first sample at {cap.t0_s:.9g} s" if cap.t0_s else ""))
     if s.get("metadata"):
         for k, v in s["metadata"].items():
-            click.echo(f"  {k}: {v}")
-    click.echo("")
-    click.echo(f"{'column':<16}{'guessed role':<16}{'unit':<6}{'min':>12}{'max':>12}{'rms':>12}")
+            out.append(f"  {k}: {v}")
+    out.append("")
+    out.append(f"{'column':<16}{'guessed role':<16}{'unit':<6}{'min':>12}{'max':>12}{'rms':>12}")
     ref_row, ref_rms = None, -1.0
+    evidence = []
     for k, c in enumerate(cap.channels):
         x = cap.samples[k]
         fin = x[np.isfinite(x)]
         rms = float(np.sqrt(np.mean(fin**2))) if fin.size else float("nan")
         role = "-" if c.quantity == "other" else f"{c.quantity} {c.phase or '(1ph)'}"
-        click.echo(f"{c.name:<16}{role:<16}{c.unit:<6}{_fmt(fin.min() if fin.size else None, 5):>12}"
+        out.append(f"{c.name:<16}{role:<16}{c.unit:<6}"
+                   f"{_fmt(fin.min() if fin.size else None, 5):>12}"
                    f"{_fmt(fin.max() if fin.size else None, 5):>12}{_fmt(rms, 5):>12}")
-        if c.quantity == "voltage" and (ref_row is None or cap.channels[ref_row].quantity != "voltage"):
+        evidence.append(f"  {c.name}: {c.evidence or 'no evidence of a role'}")
+        if c.quantity == "voltage" and (ref_row is None
+                                        or cap.channels[ref_row].quantity != "voltage"):
             ref_row, ref_rms = k, rms
         elif c.quantity == "current" and ref_row is None and rms > ref_rms:
             ref_row, ref_rms = k, rms
     if ref_row is None:
         ref_row = 0
-    f, _ = coarse_frequency(cap.samples[ref_row][: int(cap.fs_hz * 2) + 1], cap.fs_hz,
-                            f_lo_hz=40.0, f_hi_hz=70.0)
-    click.echo("")
-    click.echo(f"Fundamental about {_fmt(f, 6, 'Hz')} on {cap.channels[ref_row].name!r}")
+    out.append("")
+    out.append("Evidence for the guessed roles")
+    out += evidence
+    x = cap.samples[ref_row][: int(cap.fs_hz * 2) + 1]
+    out.append("")
+    out.append(fundamental_line(x, cap.fs_hz, cap.channels[ref_row].name, coarse_frequency))
     cur = [c.name for c in cap.by_quantity("current")]
     vol = [c.name for c in cap.by_quantity("voltage")]
-    click.echo("Roles as guessed; to set them explicitly use:")
-    click.echo(f"  --current {','.join(cur) or 'COLS'} --voltage {','.join(vol) or 'COLS'}")
+    out.append("Roles as guessed; to set them explicitly use:")
+    out.append(f"  --current {','.join(cur) or 'COLS'} --voltage {','.join(vol) or 'COLS'}")
     for fnd in cap.findings:
-        click.echo(f"[{fnd.severity}] {fnd.code}: {fnd.message}")
-    raise click.exceptions.Exit(EXIT_OK)
+        out.append(f"[{fnd.severity}] {fnd.code}: {fnd.message}")
+    return out
 
 
+def fundamental_line(x, fs_hz, name, coarse_frequency) -> str:
+    """"Fundamental about 50.01 Hz on 'va'", or "none found" when the strongest line between
+    40 and 70 Hz carries under a third of the channel's ac rms (a 1 kHz signal, a record
+    without a mains component), with the strongest component named instead."""
+    fin = np.nan_to_num(np.asarray(x, dtype=np.float64))
+    ac = fin - fin.mean() if fin.size else fin
+    ac_rms = float(np.sqrt(np.mean(ac**2))) if ac.size else 0.0
+    f, amp = coarse_frequency(fin, fs_hz, f_lo_hz=40.0, f_hi_hz=70.0)
+    if np.isfinite(f) and ac_rms > 0 and amp >= ac_rms / 3:
+        return f"Fundamental about {_fmt(f, 6, 'Hz')} on {name!r}"
+    f_all, amp_all = coarse_frequency(fin, fs_hz, f_lo_hz=1.0, f_hi_hz=fs_hz / 2)
+    strongest = (f"; its strongest component is at about {_fmt(f_all, 4, 'Hz')}"
+                 if np.isfinite(f_all) and amp_all > 0 else "")
+    return (f"Fundamental none found between 40 and 70 Hz on {name!r}{strongest}")

@@ -11,7 +11,13 @@ import sys
 import click
 
 from ._common import fail_usage, handle_errors, main, split_columns
-from ._limits import limit_options, positive_options, selectors_from, tables_max_order
+from ._limits import (
+    declared_from,
+    limit_options,
+    positive_options,
+    selectors_from,
+    tables_max_order,
+)
 from .analyze import analysis_kwargs, capture_options
 
 __all__ = ["render_summary"]
@@ -107,7 +113,8 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
     pip install 'pqcheck[cluster]').
 
     Exit code: 0 every capture passes, 1 a capture fails, 3 a capture is inconclusive or could
-    not be checked (a capture-level error counts as inconclusive) and none fails, 2 bad input.
+    not be checked (a capture-level error counts as inconclusive) and none fails, 4 a capture is
+    not applicable (outside the tables' scope) and none fails or is inconclusive, 2 bad input.
     """
     from ..run.batch import (
         BatchSpec,
@@ -137,6 +144,7 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
         sample_rate_hz=opts.get("sample_rate"), time_column=opts.get("time_column"),
         il_a=opts.get("il_a"), rated_current_a=opts.get("rated_current"),
         iref_a=opts.get("iref"), active_power_w=opts.get("active_power"),
+        declared=declared_from(opts),
         cache_dir=opts.get("cache_dir"), use_cache=not opts.get("no_cache"))
     ana = dict(spec.analysis)
     tables_max_order(ctx, ana, spec.resolve())  # as `check`: up to the tables' highest order

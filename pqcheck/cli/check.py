@@ -8,8 +8,15 @@ import math
 import click
 
 from ._common import VERDICT_EXIT, handle_errors, main
-from ._limits import LIMIT_OPTION_NAMES, limit_options, resolve_limits, tables_max_order
+from ._limits import (
+    LIMIT_OPTION_NAMES,
+    declared_from,
+    limit_options,
+    resolve_limits,
+    tables_max_order,
+)
 from .analyze import capture_options, load_and_analyze
+from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__ = ["render_assessment"]
 
@@ -30,11 +37,14 @@ def render_assessment(assessment, result=None) -> str:
     c = a.counts
     lines.append(f"Checks     {c.get('fail', 0)} fail, {c.get('inconclusive', 0)} inconclusive, "
                  f"{c.get('pass', 0)} pass, {c.get('not applicable', 0)} not applicable")
+    for label, texts in (("Why", a.reasons), ("Deviation", a.deviations)):
+        for k, text in enumerate(texts):
+            lines.append(f"{label if k == 0 else '':<10} {text}")
     if result is not None:
         lines.append(f"Capture    {result.source} ({result.duration_s:.3f} s, "
                      f"{int(result.windows.valid.sum())} valid windows)")
     for t in a.tables:
-        lines.append(f"Limits     {t.table_id}: {t.standard} {t.edition}, {t.title}")
+        lines.append(f"Limits     {t.display_name}: {t.standard} {t.edition}, {t.title}")
         lines.append(f"           file {t.source} (SHA-256 {t.sha256})")
         sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
                         for k, v in t.selectors)
@@ -71,9 +81,10 @@ def render_assessment(assessment, result=None) -> str:
 
 
 @main.command("check")
-@click.argument("capture", type=click.Path(dir_okay=False))
+@click.argument("capture", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @limit_options(required=True)
 @capture_options
+@survey_options
 @click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
               show_default=True, help="Output on stdout.")
 @click.pass_context
@@ -81,20 +92,36 @@ def render_assessment(assessment, result=None) -> str:
 def check_cmd(ctx, capture, fmt, **opts):
     """Check CAPTURE against limit tables.
 
+    CAPTURE is a waveform capture, or one or more interval logs of a survey (one row per
+    aggregation interval; see `pqcheck inspect`), which are assessed period by period as the
+    tables' statistics say (IEEE 519: every 24 h and every 7 days), naming the worst period.
+
     Analyses the capture by the IEC 61000-4-7 method, picks the limits that apply (row by
     --voltage-level/--isc/--il, --class, --rsce ...), compares each as the table's evaluation
     rule says, and prints one line per check, failing items first.
 
-    Exit code: 0 pass, 1 a limit is exceeded, 3 inconclusive (data quality), 2 bad input.
+    Exit code: 0 pass, 1 a limit is exceeded, 2 bad input, 3 inconclusive (data quality,
+    duration, a deviation), 4 not applicable (outside the table's scope).
     """
     from ..assess import assess
 
     lim = {k: opts.pop(k) for k in LIMIT_OPTION_NAMES}
+    survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
+    from .survey_cmd import check_survey, is_survey_input
+
+    if is_survey_input(capture, survey_opts):
+        check_survey(capture, fmt, lim, {**opts, **survey_opts})
+    if len(capture) > 1:
+        from .survey_cmd import check_recording
+
+        check_recording(capture, fmt, lim, {**opts, **survey_opts})
+    capture = capture[0]
     resolved = resolve_limits(lim, opts.get("il_a"))
     tables_max_order(ctx, opts, resolved)
     _, result = load_and_analyze(capture, opts)
     a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=lim["rated_current"],
-               iref_a=lim["iref"], active_power_w=lim["active_power"])
+               iref_a=lim["iref"], active_power_w=lim["active_power"],
+               declared=declared_from(lim))
     if fmt == "json":
         d = a.to_dict()
         d["capture"] = {"source": result.source, "sha256": result.sha256,

@@ -13,6 +13,7 @@ import click
 from ._common import EXIT_OK, VERDICT_EXIT, fail_usage, handle_errors, main
 from ._limits import (
     LIMIT_OPTION_NAMES,
+    declared_from,
     limit_options,
     positive_options,
     resolve_limits,
@@ -22,8 +23,8 @@ from .analyze import capture_options, load_and_analyze, print_cache_notices
 
 __all__: list = []
 
-_CAPTURE_ONLY = ("current", "voltage", "sample_rate", "time_column", "nominal", "max_order",
-                 "il_a", "wiring", "reference")
+_CAPTURE_ONLY = ("current", "voltage", "sample_rate", "time_column", "encoding", "add_file",
+                 "nominal", "max_order", "il_a", "wiring", "reference")
 
 _report_limit_options = limit_options(
     required=False,
@@ -74,7 +75,8 @@ def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
     capture, result = load_and_analyze(source, opts)
     assessments = assess_each(result, resolved, il_a=opts.get("il_a"),
                               rated_current_a=lim["rated_current"], iref_a=lim["iref"],
-                              active_power_w=lim["active_power"])
+                              active_power_w=lim["active_power"],
+                              declared=declared_from(lim))
     run_id = Path(source).stem or "capture"
     return (CaptureRun(id=run_id, capture=capture, result=result, assessments=assessments),)
 
@@ -140,7 +142,8 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
     safety cautions and a sign-off block. The results JSON is attached to the PDF.
 
     Exit code as `pqcheck check`: 0 pass (or no limits applied), 1 a limit is exceeded,
-    3 inconclusive, 2 bad input or an existing output without --force (nothing is written).
+    3 inconclusive, 4 not applicable, 2 bad input or an existing output without --force
+    (nothing is written).
     """
     from ..files.atomic import OutputSet
     from ..report.job import ReportJob, ReportMeta, make_report_id

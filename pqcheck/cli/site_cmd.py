@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import math
+import os
+from pathlib import Path
 
 import click
 
-from ._common import EXIT_OK, VERDICT_EXIT, handle_errors, main
+from ._common import EXIT_OK, VERDICT_EXIT, fail_usage, handle_errors, main
 
 __all__ = ["render_site_table"]
 
@@ -38,18 +40,22 @@ def check_line(c) -> str:
     basis = _BASIS_TEXT.get(c.applies_to, "")
     value = f"{_f(c.measured, 4, '%')} {basis}" if c.measured is not None else "not measured"
     rel = _RELATION.get(c.verdict, "vs")
-    if c.verdict == "pass" and c.measured is not None and not c.measured <= c.limit:
-        rel = "vs"  # never print a relation that does not hold
-    text = (f"  {c.verdict.upper():<13}{c.label:<8}{value:>20}  {rel} limit "
-            f"{_f(c.limit, 4, '%')}  ({c.clause}{', verify' if c.verify else ''})")
+    text = (f"  {c.verdict.upper():<13}{c.label:<8}{value:<22}{rel} limit "
+            f"{_limit(c.limit)} %  ({c.clause}{', verify' if c.verify else ''})")
     if c.verdict == "inconclusive" and c.note:
         text += f"\n{'':15}{c.note}"
     return text
 
 
+def _limit(x) -> str:
+    """A limit with at least one decimal (``7.0``, ``0.75``, ``2.5``)."""
+    s = _f(x, 4)
+    return s if s == "-" or "." in s or "e" in s else f"{s}.0"
+
+
 def render_site_table(study) -> str:
     """Human-readable summary of a :class:`pqcheck.site.SiteStudy` (no number recomputed)."""
-    from ..site import CAUTIONS, MAX_HEADROOM, shown_path
+    from ..site import CAUTIONS, shown_path
 
     s = study.site
     t = s.transformer
@@ -116,6 +122,16 @@ def render_site_table(study) -> str:
     out.append(f"  PASS         {n_pass} individual-order checks")
     out.append(f"Verdict     {study.verdict.upper()}")
     out.append("")
+    out.append("Verdict by summation method (failing checks under each)")
+    for o in study.by_summation:
+        used = " (used)" if o.summation == study.summation else ""
+        name = f"{o.summation}{used}"
+        if not o.verdict:
+            out.append(f"  {name:<18}not computed: {o.note}")
+        else:
+            out.append(f"  {name:<18}{o.verdict.upper():<13}"
+                       f"{', '.join(o.failing) or 'no limit exceeded'}")
+    out.append("")
     if study.headroom:
         out.append("Headroom (more units of one kind, others unchanged)")
         for hr in study.headroom:
@@ -124,7 +140,7 @@ def render_site_table(study) -> str:
                 txt += ("it exceeds a limit even without this kind" if hr.passing_count is None
                         else f"it meets every limit with {hr.passing_count} of this kind")
             elif hr.extra_units is None:
-                txt = f"more than {MAX_HEADROOM} (no limit reached)"
+                txt = f"more than {hr.searched_up_to} (no limit reached)"
             else:
                 txt = (f"{hr.extra_units} more; then {hr.binding} binds "
                        f"({_f(hr.binding_value, 4, '%')} > {_f(hr.binding_limit, 4, '%')})")
@@ -158,7 +174,7 @@ def site_group():
     """Site interconnection study: several units at one point of common coupling.
 
     \b
-      pqcheck site SITE.toml [-o site-report.pdf] [--format table|json]
+      pqcheck site SITE.toml [-o site-report.pdf] [--json site.json] [--format table|json]
       pqcheck site new PATH          write a commented site template
 
     The study combines the measured harmonic currents of every unit at the PCC, estimates the
@@ -172,34 +188,90 @@ def site_group():
 @site_group.command("run")
 @click.argument("site_file", metavar="SITE.toml", type=click.Path(dir_okay=False))
 @click.option("-o", "--output", "output", type=click.Path(dir_okay=False), metavar="PDF",
-              help="Write the site study as a PDF section.")
-@click.option("--force", is_flag=True, help="Replace an existing output file.")
+              help="Write the site study report as a PDF (the results JSON is attached).")
+@click.option("--json", "json_path", type=click.Path(dir_okay=False), metavar="PATH",
+              help="Also write the results as JSON (the same file is attached to the PDF).")
+@click.option("--force", is_flag=True,
+              help="Replace existing output files (never an input of the study).")
 @click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
               show_default=True, help="Output on stdout.")
 @click.option("--summation", type=click.Choice(["general", "arithmetic", "phasor"]),
               help="Override the site file's summation of the units' harmonic currents.")
+@click.option("--title", metavar="TEXT", help="Report title.")
+@click.option("--operator", metavar="TEXT", help="Who prepared the study.")
+@click.option("--report-id", "report_id", metavar="TEXT",
+              help="Report id for the footer of every page. Default: generated from the date "
+                   "and the data.")
 @handle_errors
-def site_run(site_file, output, force, fmt, summation):
+def site_run(site_file, output, json_path, force, fmt, summation, title, operator, report_id):
     """Run the site study of SITE.toml (the default subcommand)."""
-    from ..export import dumps
-    from ..files.atomic import check_target
-    from ..site import load_site, study_site, study_to_dict
+    from datetime import datetime, timezone
 
-    if output is not None:
-        check_target(output, force=force, option="-o")
+    from ..export import dumps
+    from ..files.atomic import check_target, write_atomic
+    from ..report.job import make_report_id
+    from ..run.site import load_site
+    from ..site import study_site, study_to_dict
+
+    # 1. Every output must be writable, and none may be an input, before any work is done.
+    outputs = [(opt, Path(p)) for opt, p in (("-o", output), ("--json", json_path))
+               if p is not None]
+    if len(outputs) == 2 and _same_file(outputs[0][1], outputs[1][1]):
+        fail_usage("--json and -o name the same file; give two different paths")
+    for opt, p in outputs:
+        _refuse_input(opt, p, [("the site file", Path(site_file))])
+        check_target(p, force=force, option=opt)
+    # 2. The study (any bad input stops here with exit 2 and nothing written).
     site = load_site(site_file)
     study = study_site(site, summation=summation)
+    inputs = [(f"the {what} of {name!r}" if what.startswith("unit") else f"the {what}",
+               Path(path)) for what, name, path, _ in study.inputs if path]
+    for opt, p in outputs:
+        _refuse_input(opt, p, inputs)
+    # 3. Render everything in memory, then write.
+    created = datetime.now(timezone.utc).replace(microsecond=0)
+    rid = report_id or make_report_id([sha for *_, sha in study.inputs], created)
+    meta = {"title": title or "Site interconnection study", "operator": operator or "",
+            "id": rid, "time_of_analysis_utc": created.isoformat()}
+    doc = study_to_dict(study, report=meta)
+    results = dumps(doc).encode("utf-8")
+    pdf = None
     if output is not None:
-        from ..report.site_pdf import write_site_pdf
+        from ..report.site_pdf import render_site_pdf
 
-        write_site_pdf(study, output, force=force)
+        pdf = render_site_pdf(study, report=meta, results_json=results)
+    written = []
+    if output is not None:
+        write_atomic(output, pdf, force=force, option="-o")
+        written.append(output)
+    if json_path is not None:
+        write_atomic(json_path, results, force=force, option="--json")
+        written.append(json_path)
     if fmt == "json":
-        click.echo(dumps(study_to_dict(study)))
+        click.echo(results.decode("utf-8"))
     else:
         click.echo(render_site_table(study))
-        if output is not None:
-            click.echo(f"\nWrote {output}")
+        for p in written:
+            click.echo(f"\nWrote {p}" if p == written[0] else f"Wrote {p}")
     raise click.exceptions.Exit(VERDICT_EXIT[study.verdict])
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    """The two paths name one file (the same inode, or the same resolved path)."""
+    try:
+        if a.exists() and b.exists():
+            return os.path.samefile(a, b)
+    except OSError:
+        pass
+    return a.resolve() == b.resolve()
+
+
+def _refuse_input(option: str, out: Path, inputs) -> None:
+    """Exit 2 when an output names one of the inputs (never overwritten, even with --force)."""
+    for what, p in inputs:
+        if _same_file(out, p):
+            fail_usage(f"{option} {out} is {what}, an input of the study; it is never "
+                       "overwritten, even with --force: give another output path")
 
 
 @site_group.command("new")

@@ -1,35 +1,55 @@
-"""Synchronous-window DFT and the IEC 61000-4-7 groupings of its spectral lines.
+"""Software-synchronised DFT of each window and the IEC 61000-4-7 groupings of its lines.
 
-Windows come from :mod:`pqcheck.dsp.tracking` as fractional sample positions. Each window is
-taken as the whole samples between its rounded edges, so its length differs from the exact
-``cycles_per_window`` fundamental periods by less than half a sample: at 10 kS/s and 50 Hz
-(2000 samples per window) that is within 0.025 %, inside the +-0.03 % synchronisation
-tolerance of IEC 61000-4-7 (from memory). The remaining fractional mismatch ``delta`` is known
-for every window, so the harmonic components are divided by the rectangular window's response
-at their exact offset (the Dirichlet kernel), removing the scalloping error that would otherwise
-grow with order (about 0.6 % at order 50 for a half-sample mismatch at 4000 samples). Groups
-and subgroups sum line energies and are taken from the uncorrected lines: the energy a slightly
-detuned component spreads to its neighbours stays inside its group (Parseval).
+Windows come from :mod:`pqcheck.dsp.tracking` as fractional sample positions: each spans
+exactly ``cycles_per_window`` tracked fundamental periods, ``L`` samples with ``L`` not a whole
+number in general. Every window is *resampled* to ``M`` equally spaced points over exactly that
+span (``M`` = the smallest fast FFT length at or above ``round(L)``), by band-limited
+interpolation (:func:`sync_kernel`: a Kaiser-windowed sinc, cut-off at half the input rate,
+100 dB stopband, tabulated at 2^15 phases), and only then transformed. The DFT of the
+resampled window is synchronous: every harmonic of the tracked fundamental sits exactly on its
+line and every line is one of the exact span's lines (5 Hz apart at 50 and 60 Hz), so components, subgroups, groups and interharmonic groups are all taken from exact lines
+and nothing needs correcting afterwards.
 
-All windows of equal length are transformed together with one batched ``scipy.fft.rfft``:
-no Python loop runs per window.
+What the resampling leaves: the interpolation kernel's passband ripple and stopband leakage
+(about 1e-5 of the content concerned, see :func:`sync_kernel`), the phase table's rounding
+(a time jitter below 1.6e-5 samples), and at the two ends of the record an extension of the
+samples by linear prediction for the half kernel that reaches past the data. When ``L`` is a
+whole number and the window starts on a sample, the resampling is the identity.
 
-Line values are rms phasors: ``C_k = sqrt(2) X_k / N`` for ``k >= 1`` and ``C_0 = X_0 / N``.
+All windows of equal ``M`` are transformed together with one batched ``scipy.fft.rfft``: no
+Python loop runs per window.
+
+Line values are rms phasors: ``C_k = sqrt(2) X_k / M`` for ``k >= 1`` and ``C_0 = X_0 / M``.
 """
 
 from __future__ import annotations
 
+import functools
 import os
 from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["WindowBlock", "analyse_windows", "harmonic_groupings", "FFT_WORKERS"]
+__all__ = ["WindowBlock", "analyse_windows", "harmonic_groupings", "sync_kernel",
+           "kernel_for", "resample_windows", "FFT_WORKERS"]
 
 FFT_WORKERS = int(os.environ.get("PQCHECK_FFT_WORKERS", "-1"))
 """Threads of each batched FFT (``scipy.fft`` ``workers``): -1 uses every CPU. Batch worker
 processes set it to 1 so that N processes do not start N x CPUs threads; the environment
 variable ``PQCHECK_FFT_WORKERS`` sets it too."""
+
+STOPBAND_DB = 100.0
+"""Attenuation of the interpolation kernel outside the band that is kept. [dB]"""
+
+PHASES = 1 << 15
+"""Fractional positions at which the interpolation kernel is tabulated."""
+
+MAX_TAPS = 512
+"""Longest interpolation kernel (:func:`kernel_for` never asks for more)."""
+
+GUARD = MAX_TAPS // 2 + 2
+"""Samples a caller keeps on both sides of the windows it passes to :func:`analyse_windows`
+(inside a record; at its ends the samples are extended instead). [samples]"""
 
 
 @dataclass(frozen=True)
@@ -39,23 +59,27 @@ class WindowBlock:
     Attributes
     ----------
     lines : numpy.ndarray
-        complex, shape ``(W, C, K + 1)``: rms phasor of spectral lines 0..K, spaced
-        ``1 / T_w`` (5 Hz at 50 Hz), as the DFT gives them. [A] or [V]
+        complex, shape ``(W, C, K + 1)``: rms phasor of spectral lines 0..K of the exact
+        window span, spaced ``1 / T_w`` (5 Hz at 50 Hz). [A] or [V]
     gain : numpy.ndarray
-        complex, shape ``(W, K + 1)``: response of each window's DFT to a component sitting
-        exactly at line k of the true window (divide a line by it to undo scalloping).
-    rms, peak, mean : numpy.ndarray
-        shape ``(W, C)``: true rms, largest absolute sample and mean of each window. [A] or [V]
+        complex, shape ``(W, K + 1)``: response of each line to a component sitting exactly
+        on it; all ones, since the windows are resampled to their exact span (kept for
+        callers that divide by it).
+    rms, mean : numpy.ndarray
+        shape ``(W, C)``: true rms and mean of the recorded whole samples between the
+        window's rounded edges (all content, also above the analysed band). [A] or [V]
+    peak : numpy.ndarray
+        shape ``(W, C)``: largest absolute recorded sample in the window. [A] or [V]
     products : numpy.ndarray
-        shape ``(W, len(pairs))``: mean of the product of two channels (active power for a
-        voltage/current pair). [W]
+        shape ``(W, len(pairs))``: mean of the product of two channels over the same whole
+        samples (active power for a voltage/current pair). [W]
     combo_rms : numpy.ndarray
         shape ``(W, len(combos))``: rms of linear combinations of channels (line-to-line
         voltages, neutral current). [V] or [A]
     n_samples : numpy.ndarray
-        shape ``(W,)``: samples in each window. [samples]
+        shape ``(W,)``: points of the resampled window (``M``). [samples]
     mismatch : numpy.ndarray
-        shape ``(W,)``: exact window length minus ``n_samples``. [samples]
+        shape ``(W,)``: exact window length in recorded samples minus ``n_samples``. [samples]
     valid : numpy.ndarray
         shape ``(W,)``: False when a window holds a non-finite sample.
     """
@@ -74,6 +98,169 @@ class WindowBlock:
     extra_lines: np.ndarray | None = None
 
 
+@dataclass(frozen=True)
+class SyncKernel:
+    """Tabulated band-limited interpolation kernel (see :func:`sync_kernel`).
+
+    Attributes
+    ----------
+    taps : int
+        Samples each interpolated point is computed from (even). [samples]
+    table : numpy.ndarray
+        shape ``(PHASES + 1, taps)``: weight of sample ``i0 - taps/2 + 1 + j`` for a point at
+        ``i0 + p / PHASES``, row ``p``; each row sums to 1.
+    """
+
+    taps: int
+    table: np.ndarray
+
+    @property
+    def half(self) -> int:
+        """Samples the kernel reaches before a point (``taps / 2 - 1``) and after it
+        (``taps / 2``). [samples]"""
+        return self.taps // 2
+
+
+def kernel_for(band: float, stopband_db: float = STOPBAND_DB) -> SyncKernel:
+    """Interpolation kernel keeping ``[0, band]`` (cycles per recorded sample) exact to the
+    stopband level.
+
+    Notes
+    -----
+    Passband ``[0, band]``, stopband from half the sample rate up: a recorded component
+    between ``band`` and half the rate has its image above half the rate, and an image that
+    passed would sit off the window's lines and leak into them (a 2 % 49th harmonic at
+    5 kS/s, 3 samples per period short of the Nyquist rate, read 3e-4 of the fundamental
+    into order 38 with the cut-off at half the rate). Cut-off mid-way, ``(band + 0.5) / 2``;
+    the resampled window has ``M >= L`` points, so no stopband content folds back onto a
+    kept line. Kaiser's length formula for a transition ``0.5 - band`` wide (Kaiser 1974;
+    Oppenheim & Schafer, Discrete-Time Signal Processing, eq. 7.63 -- from memory). ``band``
+    is rounded up to a 1/512 grid so that few distinct kernels are built.
+    """
+    band = min(np.ceil(float(band) * 512) / 512, 0.48)
+    width = 0.5 - band
+    taps = int(np.ceil((stopband_db - 7.95) / (2.285 * 2 * np.pi * width))) + 1
+    taps = min(max(taps + (taps % 2), 4), MAX_TAPS)
+    return sync_kernel(taps, 0.5 * (band + 0.5), stopband_db)
+
+
+@functools.lru_cache(maxsize=16)
+def sync_kernel(taps: int, cutoff: float = 0.5, stopband_db: float = STOPBAND_DB) -> SyncKernel:
+    """Kaiser-windowed sinc interpolation kernel with ``taps`` taps and a cut-off at
+    ``cutoff`` cycles per sample, tabulated at :data:`PHASES` + 1 fractional positions.
+
+    Notes
+    -----
+    ``h(u) = 2 fc sinc(2 fc u) I0(beta sqrt(1 - (2u/T)^2)) / I0(beta)``,
+    ``beta = 0.1102 (A - 8.7)`` for a stopband of ``A`` dB (Kaiser 1974, from memory). Each
+    row is normalised to sum 1 so that a constant passes exactly. Points are looked up at the
+    nearest tabulated phase: a position error of at most ``0.5 / PHASES`` samples (1.5e-5), a
+    phase error of ``2 pi f 1.5e-5`` for a component at ``f`` cycles per sample (2e-5 rad at
+    order 50 and 20 kS/s).
+    """
+    beta = 0.1102 * (stopband_db - 8.7)
+    half = taps // 2
+    j = np.arange(-(half - 1), half + 1, dtype=np.float64)
+    frac = np.arange(PHASES + 1, dtype=np.float64) / PHASES
+    u = j[None, :] - frac[:, None]
+    arg = np.clip(1.0 - (u / half) ** 2, 0.0, 1.0)
+    from scipy.special import i0
+
+    h = 2 * cutoff * np.sinc(2 * cutoff * u) * i0(beta * np.sqrt(arg)) / i0(beta)
+    h /= h.sum(axis=1, keepdims=True)
+    return SyncKernel(taps, np.ascontiguousarray(h))
+
+
+def fast_length(n: int) -> int:
+    """Smallest 7-smooth whole number at least ``n`` (a fast FFT length). [samples]"""
+    from scipy import fft as sfft
+
+    return int(sfft.next_fast_len(int(n), real=True))
+
+
+_CHUNK = 1 << 22
+"""Elements of the largest temporary (channels x points x taps) built at once."""
+
+
+def resample_windows(samples, starts, lengths, m_points: int, kernel: SyncKernel, warp=None):
+    """Band-limited resampling of windows to ``m_points`` points over their exact spans.
+
+    Parameters
+    ----------
+    samples : numpy.ndarray
+        shape ``(C, n)``, finite. [A] or [V]
+    starts, lengths : numpy.ndarray
+        shape ``(W,)``: window start (position of its first point) and exact length, in
+        samples of ``samples``; the kernel must find ``kernel.half`` samples on both sides
+        of every window inside ``samples``. [samples]
+    m_points : int
+        Points per resampled window. [samples]
+    kernel : SyncKernel
+    warp : numpy.ndarray or None
+        shape ``(W,)``: quadratic warp ``kappa`` of each window (0: uniform in time).
+
+    Returns
+    -------
+    numpy.ndarray
+        shape ``(C, W, m_points)``: point ``m`` of window ``w`` is the band-limited value at
+        ``starts[w] + lengths[w] (u + kappa_w u (1 - u))``, ``u = m / m_points``. [A] or [V]
+    """
+    c_n = samples.shape[0]
+    n_win = starts.size
+    out = np.empty((c_n, n_win, m_points))
+    if n_win == 0:
+        return out
+    taps = kernel.taps
+    view = np.lib.stride_tricks.sliding_window_view(samples, taps, axis=-1)
+    per = max(1, _CHUNK // max(1, c_n * m_points * taps))
+    u = np.arange(m_points, dtype=np.float64) / m_points
+    curve = u * (1.0 - u)
+    for lo in range(0, n_win, per):
+        sl = slice(lo, min(n_win, lo + per))
+        pos = starts[sl, None] + lengths[sl, None] * u[None, :]
+        if warp is not None and np.any(warp[sl]):
+            pos += (lengths[sl] * warp[sl])[:, None] * curve[None, :]
+        i0 = np.floor(pos)
+        phase = np.rint((pos - i0) * PHASES).astype(np.intp)
+        base = i0.astype(np.intp) - (kernel.half - 1)
+        wts = kernel.table[phase]  # (w, M, T)
+        seg = view[:, base]  # (C, w, M, T)
+        np.einsum("cwmt,wmt->cwm", seg, wts, out=out[:, sl])
+    return out
+
+
+def _extend(samples, before: int, after: int, kernel, first_start, first_len, last_end,
+            last_len):
+    """The samples with ``before`` and ``after`` extra points at the two ends.
+
+    Each missing point takes the band-limited value one window span later (before the first
+    window) or earlier (after the last): the window spans exactly its tracked cycles, so for
+    every harmonic of the fundamental this periodic extension is exact, and it only feeds the
+    half kernel that reaches past the record. Where even that would leave the samples (a
+    record barely longer than a window), the nearest sample is repeated. Non-finite samples
+    are zero here (their windows are invalid anyway)."""
+    c_n, n = samples.shape
+    out = np.zeros((c_n, before + n + after))
+    out[:, before:before + n] = samples
+    h = kernel.half
+    if before:
+        pos = np.arange(-before, 0, dtype=np.float64) + first_len
+        ok = (pos >= h) & (pos < n - h - 1)
+        if ok.all():
+            out[:, :before] = resample_windows(samples, pos, np.zeros(before), 1, kernel)[..., 0]
+        else:
+            out[:, :before] = samples[:, :1]
+    if after:
+        pos = n + np.arange(after, dtype=np.float64) - last_len
+        ok = (pos >= h) & (pos < n - h - 1)
+        if ok.all():
+            out[:, before + n:] = resample_windows(samples, pos, np.zeros(after), 1,
+                                                   kernel)[..., 0]
+        else:
+            out[:, before + n:] = samples[:, -1:]
+    return out
+
+
 def analyse_windows(
     samples,
     boundaries,
@@ -84,13 +271,16 @@ def analyse_windows(
     combos=None,
     workers: int | None = None,
     harmonic_step: int | None = None,
+    halves=None,
 ) -> WindowBlock:
-    """DFT of each synchronous window, with scalloping correction.
+    """Synchronous DFT of each window: resampled to its exact span, then transformed.
 
     Parameters
     ----------
     samples : numpy.ndarray
-        shape ``(C, n)``, the block's samples; column 0 has global index ``offset``. [A] or [V]
+        shape ``(C, n)``, the block's samples; column 0 has global index ``offset``. Where
+        the interpolation kernel reaches past them (the two ends of a record), they are
+        extended by linear prediction. [A] or [V]
     boundaries : array_like
         ``W + 1`` fractional global sample positions of the window edges. [samples]
     max_line : int
@@ -99,11 +289,16 @@ def analyse_windows(
         Channel pairs whose mean product is wanted (voltage row, current row).
     combos : numpy.ndarray or None
         shape ``(D, C)``: weights of derived signals whose rms is wanted.
+    workers : int or None
+        FFT threads (default :data:`FFT_WORKERS`).
     harmonic_step : int or None
-        Cycles per window. When given, the harmonic lines above ``max_line`` up to the
-        Nyquist line are also returned (``extra``, gain-corrected rms phasors, NaN where a
-        window is too short to hold them), as leakage sources for
-        :func:`remove_harmonic_leakage`.
+        Unused (kept for callers of the earlier whole-sample method).
+    halves : array_like or None
+        ``W`` positions where each window's tracked cycle count reaches half its cycles
+        (:attr:`pqcheck.dsp.tracking.TrackResult.halves`). With them the points are spaced
+        uniformly in the fundamental's phase rather than in time (a quadratic warp through
+        the window's start, half-way point and end), so that on a drifting frequency every
+        harmonic still falls on its line; without them, uniformly in time. [samples]
 
     Returns
     -------
@@ -113,7 +308,7 @@ def analyse_windows(
 
     samples = np.asarray(samples, dtype=np.float64)
     b = np.asarray(boundaries, dtype=np.float64)
-    n_ch = samples.shape[0]
+    n_ch, n_have = samples.shape
     n_win = b.size - 1
     combos = np.zeros((0, n_ch)) if combos is None else np.asarray(combos, dtype=np.float64)
     lines = np.full((n_win, n_ch, max_line + 1), np.nan + 0j)
@@ -123,29 +318,96 @@ def analyse_windows(
     mean = np.full((n_win, n_ch), np.nan)
     prods = np.full((n_win, len(pairs)), np.nan)
     crms = np.full((n_win, combos.shape[0]), np.nan)
-    starts = np.rint(b[:-1]).astype(np.int64) - offset
-    stops = np.rint(b[1:]).astype(np.int64) - offset
-    n = stops - starts
-    mismatch = np.diff(b) - n
     valid = np.zeros(n_win, dtype=bool)
-    extra = extra_lines = None
-    if harmonic_step and n_win:
-        first = max_line // harmonic_step  # the order just above the analysed ones
-        last = min(int((n.max() // 2 - 1) // harmonic_step), first + _MAX_EXTRA - 1)
-        if last >= first:
-            extra_lines = np.arange(first, last + 1) * harmonic_step
-            extra = np.full((n_win, n_ch, extra_lines.size), np.nan + 0j)
+    length = np.diff(b)
     if n_win == 0:
-        return WindowBlock(lines, gains, rms, peak, mean, prods, crms, n, mismatch, valid)
+        return WindowBlock(lines, gains, rms, peak, mean, prods, crms,
+                           np.zeros(0, dtype=np.int64), length, valid)
+    m_pts = _points(length)
+    mismatch = length - m_pts
+    # validity and peaks from the recorded whole samples between the rounded edges
+    i_lo = np.clip(np.rint(b[:-1]).astype(np.int64) - offset, 0, n_have)
+    i_hi = np.clip(np.rint(b[1:]).astype(np.int64) - offset, 0, n_have)
+    finite = np.isfinite(samples)
+    if finite.all():
+        x = samples
+        valid[:] = i_hi > i_lo
+    else:
+        bad = np.concatenate([np.zeros((1,), np.int64),
+                              np.cumsum(~finite.all(axis=0), dtype=np.int64)])
+        valid[:] = (bad[i_hi] - bad[i_lo] == 0) & (i_hi > i_lo)
+        x = np.where(finite, samples, 0.0)
+    del finite
+    absx = np.abs(x)
+    nonempty = i_hi > i_lo
+    if nonempty.any():
+        idx = np.flatnonzero(nonempty)
+        starts_ = i_lo[idx]
+        pk = np.maximum.reduceat(absx, starts_, axis=1) if starts_.size else None
+        # reduceat runs to the next start; cap the last window at its own end
+        peak[idx] = pk.T
+        last = idx[-1]
+        peak[last] = absx[:, i_lo[last]:i_hi[last]].max(axis=1)
+    del absx
+    band = max_line / max(float(length.min()), 1.0)
+    kernel = kernel_for(band)
+    # the kernel reaches half - 1 samples before a point and half after it
+    need_lo = int(np.floor(b[0] - offset)) - (kernel.half - 1)
+    need_hi = int(np.floor(b[-1] - offset)) + kernel.half + 1
+    before, after = max(0, -need_lo), max(0, need_hi - n_have)
+    if before or after:
+        x = _extend(x, before, after, kernel, b[0] - offset, float(length[0]),
+                    b[-1] - offset, float(length[-1]))
+    pos0 = b[:-1] - offset + before
+    warp = np.zeros(n_win)
+    if halves is not None:
+        # t(u) = b + L (u + kappa u (1 - u)) through the half-way point: t(1/2) = b + L/2 +
+        # kappa L / 4; kappa is (f_end - f_start) / (f_end + f_start), about 4e-4 on a
+        # 0.2 Hz/s ramp, and 0 (to rounding) at a steady frequency
+        warp = 4.0 * (np.asarray(halves, dtype=np.float64) - b[:-1]) / length - 2.0
+        warp = np.where(np.isfinite(warp) & (np.abs(warp) < 0.2), warp, 0.0)
+        warp[np.abs(warp) < 1e-9] = 0.0
+    _time_stats(x, i_lo + before, i_hi + before, pairs, combos, rms, mean, prods, crms)
+    whole = (np.abs(mismatch) <= 1e-7) & (np.abs(pos0 - np.rint(pos0)) <= 1e-7) & (warp == 0)
+    for m in np.unique(m_pts):
+        sel = np.flatnonzero(m_pts == m)
+        m = int(m)
+        seg = np.empty((n_ch, sel.size, m))
+        same = whole[sel]
+        if same.any():  # points on the samples: the resampling is the identity
+            view = np.lib.stride_tricks.sliding_window_view(x, m, axis=-1)
+            seg[:, same] = view[:, np.rint(pos0[sel[same]]).astype(np.intp)]
+        if not same.all():
+            rest = sel[~same]
+            seg[:, ~same] = resample_windows(x, pos0[rest], length[rest], m, kernel, warp[rest])
+        spec = sfft.rfft(seg, axis=-1, workers=FFT_WORKERS if workers is None else workers)
+        del seg
+        k_keep = min(max_line, spec.shape[-1] - 1)
+        spec = spec[..., : k_keep + 1]
+        scale = np.full(k_keep + 1, np.sqrt(2) / m)
+        scale[0] = 1.0 / m
+        spec *= scale
+        lines[sel, :, : k_keep + 1] = np.moveaxis(spec, 0, 1)
+    for arr in (rms, mean, prods, crms):
+        arr[~valid] = np.nan
+    peak[~valid] = np.nan
+    return WindowBlock(lines, gains, rms, peak, mean, prods, crms, m_pts, mismatch, valid)
+
+
+def _time_stats(x, i_lo, i_hi, pairs, combos, rms, mean, prods, crms):
+    """Rms, mean, mean products and rms of channel combinations over the recorded whole
+    samples between each window's rounded edges (all content, also above the analysed
+    band); results are written into the given arrays."""
+    n = i_hi - i_lo
     for length in np.unique(n):
+        if length <= 0:
+            continue
         sel = np.flatnonzero(n == length)
-        # whole-sample windows as rows: one block copy per run of equal-length windows
-        view = np.lib.stride_tricks.sliding_window_view(samples, int(length), axis=-1)
-        seg = view[:, starts[sel]]  # (C, w, N), contiguous copy
+        view = np.lib.stride_tricks.sliding_window_view(x, int(length), axis=-1)
+        seg = view[:, i_lo[sel]]  # (C, w, N), contiguous copy
         sumsq = np.einsum("cwn,cwn->cw", seg, seg)
-        valid[sel] = np.isfinite(sumsq).all(axis=0)
         rms[sel] = np.sqrt(sumsq / length).T
-        peak[sel] = np.maximum(seg.max(axis=-1), -seg.min(axis=-1)).T
+        mean[sel] = (seg.sum(axis=-1) / length).T
         for j, (a, c) in enumerate(pairs):
             prods[sel, j] = np.einsum("wn,wn->w", seg[a], seg[c]) / length
         if combos.shape[0]:
@@ -163,153 +425,38 @@ def analyse_windows(
                             cross[a, c] = np.einsum("wn,wn->w", seg[a], seg[c]) / length
                         acc[j] += 2 * wts[a] * wts[c] * cross[a, c]
             crms[sel] = np.sqrt(np.maximum(acc, 0.0)).T
-        spec = sfft.rfft(seg, axis=-1, workers=FFT_WORKERS if workers is None else workers)
-        del seg
-        delta = mismatch[sel]
-        if extra_lines is not None:
-            ok = extra_lines < length // 2
-            ke = extra_lines[ok]
-            eps_e = -ke[None, :] * (delta / (length + delta))[:, None]
-            g_e = np.exp(1j * np.pi * eps_e * (length - 1) / length) * (
-                np.sinc(eps_e) / np.sinc(eps_e / length))
-            ext = spec[..., ke] * (np.sqrt(2) / length) / g_e[None, :, :]  # (C, w, E)
-            extra[np.ix_(sel, np.arange(n_ch), np.flatnonzero(ok))] = np.moveaxis(ext, 0, 1)
-        k_keep = min(max_line, spec.shape[-1] - 1)
-        spec = spec[..., : k_keep + 1]
-        mean[sel] = (spec[..., 0].real / length).T
-        # Scalloping response: line k sits at offset eps = -k delta / (N + delta) bins.
-        k = np.arange(k_keep + 1)
-        eps = -k[None, :] * (delta / (length + delta))[:, None]  # (w, K)
-        gains[sel, : k_keep + 1] = np.exp(1j * np.pi * eps * (length - 1) / length) * (
-            np.sinc(eps) / np.sinc(eps / length)
-        )
-        scale = np.full(k_keep + 1, np.sqrt(2) / length)
-        scale[0] = 1.0 / length
-        spec *= scale
-        lines[sel, :, : k_keep + 1] = np.moveaxis(spec, 0, 1)
-    return WindowBlock(lines, gains, rms, peak, mean, prods, crms, n, mismatch, valid, extra,
-                       extra_lines)
 
 
-def _response(u, n):
-    """Response of an ``n``-sample DFT line to a unit complex exponential ``u`` bins away
-    (the Dirichlet kernel normalised to 1 at ``u = 0``; the same expression as the gain in
-    :func:`analyse_windows`)."""
-    return np.exp(1j * np.pi * u * (n - 1) / n) * (np.sinc(u) / np.sinc(u / n))
-
-
-_MAX_EXTRA = 1000
-"""Most harmonic lines above the analysed orders kept as leakage sources."""
-
-STRONG_SOURCE = 0.01
-"""Components at least this fraction of the fundamental are treated as leakage sources."""
-
-
-def remove_harmonic_leakage(component, line_index, n_samples, mismatch, *, extra=None,
-                            extra_lines=None, iterations: int = 2):
-    """Take the leakage of the strong harmonics out of every harmonic component of a window.
-
-    In a whole-sample window of ``N`` samples whose exact span is ``N + delta``, harmonic
-    ``j`` sits at ``nu_j = k_j N / (N + delta)`` bins, a fraction of a bin off its line, and
-    leaks into every other line ``k`` as ``c_j G(nu_j - k) + conj(c_j) G(-nu_j - k)`` (``G``
-    the normalised Dirichlet kernel, ``c_j`` the rms phasor). Beside a 100 A fundamental and a
-    20 % fifth, a 0.5 % second harmonic can read several per cent off in a single window.
-    The fundamental and every harmonic of at least :data:`STRONG_SOURCE` of it are taken as
-    sources; their leakage into each line is subtracted in two Jacobi steps (the coupling is
-    below 1e-2, so two steps leave less than 1e-4 of it). Weak components are not used as
-    sources: their own estimates carry the leakage of content the model does not hold
-    (interharmonics, orders above the highest analysed), and their leakage is negligible.
-
-    Parameters
-    ----------
-    component : numpy.ndarray
-        complex, shape ``(W, C, H + 1)``: components already divided by their own gain. [A]/[V]
-    line_index : array_like of int
-        Line of each order, shape ``(H + 1,)``.
-    n_samples, mismatch : array_like, shape ``(W,)``
-        Samples in each window and exact length minus that. [samples]
-    extra, extra_lines : numpy.ndarray or None
-        Harmonics above the analysed orders (``(W, C, E)``, gain-corrected) and their lines;
-        they are leakage sources too (for a spectrum falling as 1/h, such as a square wave,
-        every order contributes about equally, so all up to the Nyquist line are used).
-
-    Returns
-    -------
-    numpy.ndarray
-        Corrected components (same shape); the DC value (order 0) stays real. [A] or [V]
-    """
-    comp = np.array(component, dtype=np.complex128, copy=True)
-    if comp.shape[-1] < 2:
-        return comp
-    n = np.asarray(n_samples, dtype=np.float64)[:, None, None]
-    d = np.asarray(mismatch, dtype=np.float64)[:, None, None]
-    k = np.asarray(line_index, dtype=np.float64)
-    h = k.size
-    fin = np.isfinite(comp)
-    fund = np.abs(np.where(fin[:, :, 1:2], comp[:, :, 1:2], 0.0))  # (W, C, 1)
-    sources = np.where(fin, comp, 0.0)
-    k_src = k
-    if extra is not None:
-        sources = np.concatenate([sources, np.where(np.isfinite(extra), extra, 0.0)], axis=-1)
-        k_src = np.concatenate([k, np.asarray(extra_lines, dtype=np.float64)])
-    # only components that are strong somewhere in the block are sources: the response
-    # matrices are built for those columns alone (a few dozen for a rectifier current)
-    strong = np.abs(sources) >= STRONG_SOURCE * fund
-    strong[:, :, 0] = False  # DC sits exactly on line 0 and leaks nowhere
-    cols = np.flatnonzero(strong.any(axis=(0, 1)))
-    if cols.size == 0:
-        return comp
-    nu = k_src[cols][None, None, :] * n / (n + d)  # (W, 1, J): where source j really sits
-    target = k[None, :, None]  # (1, I, 1): the line of order i
-    own = _response(k[None, :] * n[:, 0] / (n[:, 0] + d[:, 0]) - k[None, :], n[:, 0])
-    direct = _response(nu - target, n)  # (W, I, J)
-    image = _response(-nu - target, n)
-    own_col = np.searchsorted(cols, np.arange(h))  # column of order i among the sources
-    is_src = (own_col < cols.size) & (cols[np.minimum(own_col, cols.size - 1)] == np.arange(h))
-    direct[:, np.flatnonzero(is_src), own_col[is_src]] = 0.0  # no self-leakage
-    # the DC line holds X_0 / N (no sqrt 2), so a cosine leaks with 1/sqrt 2 there
-    direct[:, 0, :] /= np.sqrt(2)
-    image[:, 0, :] /= np.sqrt(2)
-    own_i = own.copy()
-    own_i[:, 0] = 1.0
-    raw = comp * own_i[:, None, :]
-    fixed = np.where(strong[..., cols], sources[..., cols], 0.0)  # (W, C, J)
-    src_in_comp = cols < h
-    est = comp
-    for _ in range(iterations):
-        src = fixed.copy()
-        if src_in_comp.any():  # orders within the analysed range improve with each step
-            c_cols = cols[src_in_comp]
-            src[..., src_in_comp] = np.where(strong[..., c_cols],
-                                             np.where(fin[..., c_cols], est[..., c_cols], 0.0),
-                                             0.0)
-        leak = np.einsum("wij,wcj->wci", direct, src) + np.einsum("wij,wcj->wci", image,
-                                                                  np.conj(src))
-        est = (raw - leak) / own_i[:, None, :]
-    est[:, :, 0] = est[:, :, 0].real
-    return np.where(fin, est, comp)
+def _points(length):
+    """Points of each resampled window: its length when that is a whole number of samples
+    (to 1e-7; the resampling is then the identity), else the smallest fast FFT length above
+    it, so that the points are never sparser than the recorded samples. [samples]"""
+    r = np.rint(length)
+    whole = np.abs(length - r) <= 1e-7
+    want = np.maximum(np.where(whole, r, np.ceil(length)), 2).astype(np.int64)
+    u, inv = np.unique(want, return_inverse=True)
+    fast = np.array([fast_length(v) for v in u], dtype=np.int64)[inv]
+    return np.where(whole, want, fast)
 
 
 def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None,
-                       n_samples=None, mismatch=None, extra=None, extra_lines=None) -> dict:
+                       **_unused) -> dict:
     """IEC 61000-4-7 harmonic and interharmonic groupings of spectral lines.
 
     Parameters
     ----------
     lines : numpy.ndarray
-        complex rms lines, shape ``(..., K + 1)`` with ``K >= cycles_per_window * (max_order + 1)``
-        (missing lines may be NaN). [A] or [V]
+        complex rms lines of synchronous windows, shape ``(..., K + 1)`` with
+        ``K >= cycles_per_window * (max_order + 1)`` (missing lines may be NaN). [A] or [V]
     cycles_per_window : int
         ``N`` = 10 (50 Hz) or 12 (60 Hz); harmonic ``h`` is line ``h N``.
     max_order : int
         Highest harmonic order ``H``.
     gain : numpy.ndarray or None
-        Per-window line response from :func:`analyse_windows`, shape ``(W, K + 1)`` matching
-        the first and last axes of ``lines``; the harmonic components are divided by it.
-    n_samples, mismatch : numpy.ndarray or None
-        Per-window length and residual mismatch from :func:`analyse_windows`, shape ``(W,)``;
-        with ``gain``, the leakage of the strong harmonics is removed too
-        (:func:`remove_harmonic_leakage`).
+        Per-window line response, shape ``(W, K + 1)``; the harmonic components are divided by
+        it (all ones for resampled windows, see :func:`analyse_windows`). Further keywords of
+        the earlier whole-sample method (``n_samples``, ``mismatch``, ...) are accepted and
+        ignored.
 
     Returns
     -------
@@ -360,10 +507,6 @@ def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None,
         component = component / g.reshape(g.shape[:1] + (1,) * (component.ndim - 2) + g.shape[1:])
     if lines.shape[-1] - 1 < k[-1]:
         component[..., k > lines.shape[-1] - 1] = np.nan
-    if gain is not None and n_samples is not None and mismatch is not None \
-            and component.ndim == 3:
-        component = remove_harmonic_leakage(component, k, n_samples, mismatch, extra=extra,
-                                            extra_lines=extra_lines)
     group = np.sqrt(np.maximum(group_sq, 0.0))
     subgroup = np.sqrt(np.maximum(sub_sq, 0.0))
     dc = np.abs(lines[..., 0].real)

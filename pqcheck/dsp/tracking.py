@@ -115,6 +115,9 @@ class TrackResult:
     boundaries: np.ndarray
     weak: bool
     amplitude: float
+    halves: np.ndarray | None = None
+    """Positions where each window's cycle count reaches half its cycles (global index), the
+    curvature of the phase within the window for phase-uniform resampling. [samples]"""
 
 
 def window_boundaries(
@@ -169,45 +172,37 @@ def window_boundaries(
     empty = TrackResult(np.array([start]), False, 0.0)
     if n_cyc < 2:
         return empty
+    # pass 1: cycles of the demodulation frequency
     edges = local0 + L * np.arange(n_cyc + 1)
     rot = _phasor(-2 * np.pi * f_demod_hz / fs_hz, x.size)
-    csum = np.empty(x.size + 1, dtype=np.complex128)
-    csum[0] = 0.0
-    np.cumsum(x * rot, out=csum[1:])
-    z = _cum_at(csum, x * rot, edges[1:]) - _cum_at(csum, x * rot, edges[:-1])
+    z = _cycle_sums(x * rot, edges)
     mag = np.abs(z) * (np.sqrt(2) / L)  # rms of the fundamental per cycle
     amp = float(np.median(mag))
     total_rms = float(np.sqrt(np.mean(x**2))) if x.size else 0.0
-    weak_cycle = mag < max(0.2 * amp, 1e-12)
-    if missing.any():  # cycles that touch missing samples carry no phase information
-        cmiss = np.concatenate(([0], np.cumsum(missing)))
-        lo_i = np.clip(np.floor(edges[:-1]).astype(np.int64), 0, x.size)
-        hi_i = np.clip(np.ceil(edges[1:]).astype(np.int64), 0, x.size)
-        weak_cycle |= (cmiss[hi_i] - cmiss[lo_i]) > 0
     weak = amp <= 1e-3 * max(total_rms, 1e-300) or amp == 0.0
+    bad_cycle = _bad_cycles(mag, amp, missing, edges)
     dang = np.angle(z[1:] * np.conj(z[:-1])) / (2 * np.pi)
-    # Cycles with no usable fundamental (gaps, dropouts) keep the last frequency.
-    bad = weak_cycle[1:] | weak_cycle[:-1]
-    if bad.any() and (~bad).any():
-        good_vals = np.where(bad, np.nan, dang)
-        idx = np.where(~bad, np.arange(dang.size), 0)
-        np.maximum.accumulate(idx, out=idx)
-        filled = good_vals[idx]
-        first_good = np.flatnonzero(~bad)[0]
-        filled[:first_good] = dang[first_good]
-        dang = filled
-    elif bad.all():
-        dang = np.zeros_like(dang)
     mid = 0.5 * (edges[1:] + edges[:-1])
-    raw_count = np.concatenate(([0.0], np.cumsum(1.0 + dang)))
+    raw_count = np.concatenate(([0.0], np.cumsum(1.0 + _fill_bad(dang, bad_cycle))))
     count = _smooth_counts(raw_count)
+    # pass 2: demodulate by the phase pass 1 found, one of its cycles at a time; what is left
+    # is the deviation of the true phase from that model, free of the leakage an off-frequency
+    # demodulation lets in (harmonics, the negative-frequency image) after a frequency step
+    if not weak and mid.size >= 3:
+        for _ in range(PASSES):  # each pass leaves about the previous model's error squared
+            mid, _, raw_count, bad2 = _second_pass(x, missing, mid, count, amp, local0)
+            segments = _segments(mid, raw_count, bad2)
+            count = np.concatenate([_smooth_counts(raw_count[sl]) for sl in segments])
+        head, tail = segments[0], segments[-1]
+    else:
+        head = tail = slice(0, mid.size)
     # Cycle count at the start edge: a straight line through the first cycles' counts,
-    # extended half a cycle back (the same at the end of the record).
-    count_start, _ = _edge_line(mid, raw_count, local0, first=True)
+    # extended half a cycle back (the same at the end of the record); never across a step.
+    count_start, _ = _edge_line(mid[head], raw_count[head], local0, first=True)
     last_count = count[-1]
     if final:
         end = float(x.size)
-        count_end, rate1 = _edge_line(mid, raw_count, end, first=False)
+        count_end, rate1 = _edge_line(mid[tail], raw_count[tail], end, first=False)
         mid = np.append(mid, end)
         count = np.append(count, max(count_end, count[-1]))
         last_count = count[-1]
@@ -215,32 +210,207 @@ def window_boundaries(
     slack = 0.5 / L
     n_win = int(np.floor((last_count - count_start + slack) / cycles_per_window))
     targets = count_start + cycles_per_window * np.arange(1, n_win + 1)
-    if final:
-        ends = np.interp(targets, count, mid, right=np.nan) if n_win else np.empty(0)
-        over = ~np.isfinite(ends)
-        if over.any():  # within the half-sample slack: extrapolate at the last rate
-            ends[over] = mid[-1] + (targets[over] - count[-1]) / rate1
-    else:
-        ends = np.interp(targets, count, mid) if n_win else np.empty(0)
+    rate_end = rate1 if final else None
+
+    def where(c):  # position where the count reaches c (extrapolated past the last point)
+        pos = np.interp(c, count, mid, right=np.nan) if c.size else np.empty(0)
+        over = ~np.isfinite(pos)
+        if over.any():
+            slope = rate_end if rate_end else (count[-1] - count[-2]) / (mid[-1] - mid[-2])
+            pos[over] = mid[-1] + (c[over] - count[-1]) / slope
+        return pos
+
+    ends = where(targets)
+    halves = where(targets - 0.5 * cycles_per_window)
     boundaries = np.concatenate(([start], ends + offset))
-    return TrackResult(boundaries, bool(weak), amp)
+    return TrackResult(boundaries, bool(weak), amp, halves + offset)
+
+
+def _cycle_sums(y, edges):
+    """Sums of ``y`` between successive fractional positions ``edges``."""
+    csum = np.empty(y.size + 1, dtype=y.dtype)
+    csum[0] = 0.0
+    np.cumsum(y, out=csum[1:])
+    at = _cum_at(csum, y, edges)
+    return at[1:] - at[:-1]
+
+
+def _bad_cycles(mag, amp, missing, edges):
+    """Cycles with no usable fundamental: weak, or touching missing samples."""
+    bad = mag < max(0.2 * amp, 1e-12)
+    if missing.any():  # cycles that touch missing samples carry no phase information
+        cmiss = np.concatenate(([0], np.cumsum(missing)))
+        lo_i = np.clip(np.floor(edges[:-1]).astype(np.int64), 0, missing.size)
+        hi_i = np.clip(np.ceil(edges[1:]).astype(np.int64), 0, missing.size)
+        bad |= (cmiss[hi_i] - cmiss[lo_i]) > 0
+    return bad
+
+
+def _fill_bad(dang, bad_cycle):
+    """Phase advances that involve a bad cycle take the last good one (or the first)."""
+    bad = bad_cycle[1:] | bad_cycle[:-1]
+    if bad.any() and (~bad).any():
+        good_vals = np.where(bad, np.nan, dang)
+        idx = np.where(~bad, np.arange(dang.size), 0)
+        np.maximum.accumulate(idx, out=idx)
+        filled = good_vals[idx]
+        first_good = np.flatnonzero(~bad)[0]
+        filled[:first_good] = dang[first_good]
+        return filled
+    if bad.all():
+        return np.zeros_like(dang)
+    return dang
+
+
+def _model_phase(n_pos, mid, count):
+    """The cycle count at positions ``n_pos``: linear between cycle mid-points, extended at
+    the first and last slopes. [cycles]"""
+    ph = np.interp(n_pos, mid, count)
+    lo, hi = n_pos < mid[0], n_pos > mid[-1]
+    if lo.any():
+        ph[lo] = count[0] + (n_pos[lo] - mid[0]) * (count[1] - count[0]) / (mid[1] - mid[0])
+    if hi.any():
+        ph[hi] = count[-1] + (n_pos[hi] - mid[-1]) * (count[-1] - count[-2]) / (
+            mid[-1] - mid[-2])
+    return ph
+
+
+def _second_pass(x, missing, mid, count, amp, local0):
+    """Cycle count measured against the phase model ``count(mid)`` of the previous pass.
+
+    The reference is multiplied by ``exp(-j 2 pi phi(n))`` (``phi`` the model count) and
+    summed with a Hann weight over two model cycles centred on each model cycle's middle
+    (``phi = k + 1/2``, in cycles from the first window's start). The angle of each sum is the
+    true phase minus the model's (plus a constant), so the true count there is the model's
+    plus that angle over 2 pi. Relative to the model, DC, every harmonic and the negative-
+    frequency image turn at whole multiples of one cycle per cycle: two Hann bins or more
+    apart, where the Hann window's response is zero; and the weight vanishes at both ends,
+    so fractional cycle edges do not matter. Returns the centres (positions), the model
+    counts there, the measured counts and the centres without a usable phase."""
+    n = np.arange(x.size, dtype=np.float64)
+    phi = _model_phase(n, mid, count)
+    phi0 = float(_model_phase(np.array([float(local0)]), mid, count)[0])
+    rel = phi - phi0  # cycles from the first window's start
+    k_first = int(np.ceil(rel[0] + 0.5 - 1e-9))  # first window [k - 1/2, k + 3/2] inside
+    k_last = int(np.floor(rel[-1] - 1.5 + 1e-9))
+    if k_last - k_first < 2:
+        return mid, count, count, np.zeros(count.size, dtype=bool)
+    y = x * np.exp(-2j * np.pi * (phi - np.floor(phi)))
+    z = np.zeros(k_last - k_first + 1, dtype=np.complex128)
+    wsum = np.zeros(z.size)
+    miss = np.zeros(z.size)
+    lead = np.floor(rel + 0.5) - 1.0  # the earlier of the two windows holding each sample
+    for k in (lead, lead + 1.0):
+        w = np.sin(0.5 * np.pi * (rel - k + 0.5)) ** 2
+        idx = (k - k_first).astype(np.int64)
+        ok = (idx >= 0) & (idx < z.size)
+        wy = (w * y)[ok]
+        z += np.bincount(idx[ok], weights=wy.real, minlength=z.size) + 1j * np.bincount(
+            idx[ok], weights=wy.imag, minlength=z.size)
+        wsum += np.bincount(idx[ok], weights=w[ok], minlength=z.size)
+        if missing.any():
+            miss += np.bincount(idx[ok], weights=missing[ok].astype(np.float64),
+                                minlength=z.size)
+    ks = np.arange(k_first, k_last + 1, dtype=np.float64)
+    mag = np.sqrt(2) * np.abs(z) / np.maximum(wsum, 1e-300)
+    bad = (mag < max(0.2 * amp, 1e-12)) | (wsum <= 0) | (miss > 0)
+    theta = np.unwrap(np.angle(z))
+    if bad.any() and (~bad).any():
+        good = np.flatnonzero(~bad)
+        theta = np.interp(np.arange(theta.size), good, theta[good])
+    centres = np.interp(ks + 0.5 + phi0, phi, n)
+    model = ks + 0.5 + phi0
+    raw = model + (theta - theta[0]) / (2 * np.pi)
+    return centres, model, raw, bad
+
+
+PASSES = 3
+"""Passes of :func:`_second_pass` after the first demodulation."""
+
+STEP_RUN = 5
+"""Cycles on each side of a candidate frequency step whose median frequencies are compared."""
+
+
+def _segments(mid, count, bad):
+    """Slices of cycles between detected frequency steps.
+
+    For each cycle, straight lines through the frequencies (count advance over length) of
+    the :data:`STEP_RUN` cycles before and after it are extended to it; a step is where the
+    two differ by more than eight times the scatter of the frequencies (a robust estimate
+    from their second differences: 1.48 median absolute deviation over sqrt 6, zero on any
+    ramp) and by more than 2e-5 of the frequency, at the largest difference within a run. Smoothing then stays inside each slice, so a step is not smeared over
+    the windows beside it."""
+    full = [slice(0, count.size)]
+    r = STEP_RUN
+    if count.size < 2 * r + 2:
+        return full
+    f = np.diff(count) / np.diff(mid)  # cycles per sample, between mid-points
+    if bad.any():
+        return full
+    from numpy.lib.stride_tricks import sliding_window_view as swv
+
+    # straight lines through the r cycles after and the r cycles before cycle i - 1, each
+    # extended to it: on a steady ramp they meet; at a step they differ by its size
+    u = np.arange(r, dtype=np.float64)
+    uc = u - u.mean()
+    w_right = 1.0 / r + uc * (-1.0 - u.mean()) / np.sum(uc**2)  # value at u = -1
+    w_left = 1.0 / r + uc * (r - u.mean()) / np.sum(uc**2)  # value at u = r
+    rows = swv(f, r)  # rows[i] = f[i : i + r]
+    i = np.arange(r + 1, f.size - r + 1)
+    jump = rows[i] @ w_right - rows[i - r - 1] @ w_left
+    d2 = np.diff(f, 2)
+    scatter = 1.4826 * np.median(np.abs(d2 - np.median(d2))) / np.sqrt(6.0)
+    level = np.median(np.abs(f))
+    big = np.abs(jump) > np.maximum(8 * scatter, 2e-5 * level)
+    if not big.any():
+        return full
+    cuts = []
+    for run in np.split(np.flatnonzero(big), np.flatnonzero(np.diff(np.flatnonzero(big)) > 1)
+                        + 1):
+        j = run[np.argmax(np.abs(jump[run]))]
+        cuts.append(int(i[j]))  # the step lies in f[i - 1]: between mid-points i-1 and i
+    # the two centres beside a step see it through their two-cycle Hann weight: they form
+    # a slice of their own (kept unsmoothed) so that neither side's fit takes them in
+    out, lo = [], 0
+    for cut in cuts:
+        a, b = max(lo, cut - 1), min(count.size, cut + 1)
+        if a > lo:
+            out.append(slice(lo, a))
+        if b > a:
+            out.append(slice(a, b))
+        lo = b
+    if lo < count.size:
+        out.append(slice(lo, count.size))
+    return out
 
 
 SMOOTH_CYCLES = 11
 """Cycles in the local quadratic fit that smooths the cycle count (see :func:`_smooth_counts`)."""
 
 
-def _edge_line(mid, count, at, *, first):
-    """Value and slope at ``at`` of a straight line fitted to the first (or last) cycles.
+EDGE_CYCLES = 41
+"""Cycles whose quadratic fit gives the curvature of the count at the record's edges."""
 
-    A line rather than a quadratic: extrapolated half a cycle, a quadratic amplifies the
-    ripple of an interharmonic on the reference more than it gains on a frequency ramp (on a
-    0.1 Hz/s ramp the line leaves the first window 1.4 mHz off, 0.003 % of 50 Hz)."""
+
+def _edge_line(mid, count, at, *, first):
+    """Value and slope at ``at`` of a straight line fitted to the first (or last) 11 cycles,
+    after removing the curvature a quadratic over :data:`EDGE_CYCLES` cycles finds.
+
+    A line over 11 cycles passes little of the ripple an interharmonic beside the fundamental
+    puts on the phase; alone it misses a frequency ramp's curvature (2 mHz at the first window
+    of a 0.1 Hz/s ramp). The curvature is taken from a longer span, where that ripple
+    averages out, so a ramp is followed to the edges exactly."""
     n = min(SMOOTH_CYCLES, mid.size)
     sl = slice(0, n) if first else slice(mid.size - n, mid.size)
     if n < 2:
-        return float(count[sl][0]), 1.0 / max(mid[1] - mid[0], 1.0) if mid.size > 1 else 0.0
-    slope, intercept = np.polyfit(mid[sl] - at, count[sl], 1)
+        return float(count[sl][0]), 1.0 / max(float(mid[1] - mid[0]), 1.0) if mid.size > 1 \
+            else 0.0
+    u = mid[sl] - at
+    c2 = 0.0
+    if mid.size >= EDGE_CYCLES:  # the curvature from more cycles, where ripple averages out
+        wide = slice(0, EDGE_CYCLES) if first else slice(mid.size - EDGE_CYCLES, mid.size)
+        c2 = np.polyfit(mid[wide] - at, count[wide], 2)[0]
+    slope, intercept = np.polyfit(u, count[sl] - c2 * u**2, 1)
     return float(intercept), float(slope)
 
 

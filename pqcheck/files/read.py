@@ -4,8 +4,9 @@ results JSON of a site unit.
 These files are read whole. A device (``/dev/zero`` never ends), a FIFO (opening one without a
 writer blocks for ever) or a huge file named by mistake must be refused before reading, with a
 clear error, not read until memory runs out. :func:`read_bounded` checks that the path is a
-regular file of at most ``max_bytes`` (opening it without blocking, then checking the opened
-file again, so a file swapped in between is caught too) and reads at most that much.
+regular file (:func:`pqcheck.files.inputs.require_regular_file`, the check every input
+passes) of at most ``max_bytes``, opens it without blocking, checks the opened file again (a
+file swapped in between is caught too) and reads at most that much.
 """
 
 from __future__ import annotations
@@ -60,14 +61,16 @@ def read_bounded(path, *, what: str, max_bytes: int = MAX_DOCUMENT_BYTES,
         Missing, a folder, not a regular file (device, FIFO, socket), larger than
         ``max_bytes``, or unreadable; the message names the file.
     """
+    from .inputs import require_regular_file
+
     p = Path(path)
-    try:
-        st = os.stat(p)
-    except FileNotFoundError:
-        raise error(f"{what} not found", path=str(p)) from None
-    except OSError as exc:
-        raise error(f"cannot read the {what}: {exc.strerror or exc}", path=str(p)) from None
-    _check(st, p, what, max_bytes, error)
+    if not os.path.exists(p):
+        raise error(f"{what} not found", path=str(p))
+    if p.is_dir():
+        raise error(f"is a folder, not a {what}", path=str(p))
+    size = require_regular_file(p, what=what, error=error)  # devices, FIFOs, sockets
+    if size > max_bytes:
+        raise error(_too_large(what, size, max_bytes), path=str(p))
     flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0)
     try:
         fd = os.open(p, flags)

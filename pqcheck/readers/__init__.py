@@ -9,14 +9,19 @@ from __future__ import annotations
 import hashlib
 from pathlib import Path
 
-from ..capture import Capture, assign_roles
-from ..errors import CaptureFormatError
+import numpy as np
 
-__all__ = ["load_capture", "open_capture", "file_sha256", "capture_sha256", "capture_files",
+from ..capture import Capture, Provenance, assign_roles
+from ..errors import CaptureFormatError
+from ..files.inputs import require_regular_file
+
+__all__ = ["load_capture", "open_capture", "combine_captures", "file_sha256", "capture_sha256",
+           "capture_files",
            "STREAM_OVER_BYTES"]
 
 def file_sha256(path) -> str:
-    """SHA-256 of a file's bytes, hex. Reads in 1 MiB blocks."""
+    """SHA-256 of a file's bytes, hex. Reads in 1 MiB blocks (a regular file only)."""
+    require_regular_file(path, error=CaptureFormatError)
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         for block in iter(lambda: fh.read(1 << 20), b""):
@@ -58,10 +63,12 @@ def capture_sha256(path) -> str:
         The file, or the other file of a COMTRADE pair, is missing or cannot be read.
     """
     p = Path(path)
+    require_regular_file(p, what="capture", error=CaptureFormatError)
     try:
         parts = capture_files(p)
         h = hashlib.sha256()
         for f in parts:
+            require_regular_file(f, what="capture", error=CaptureFormatError)
             with open(f, "rb") as fh:
                 for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
                     h.update(block)
@@ -82,14 +89,17 @@ def load_capture(
     current=None,
     voltage=None,
     time_column: str | None = None,
+    encoding: str | None = None,
 ) -> Capture:
     """Read a capture file into memory.
 
     Parameters
     ----------
-    path : str or Path
-        Delimited text (``.csv``, ``.txt``, ``.tsv``), COMTRADE (``.cfg`` with its ``.dat``),
-        NumPy ``.npy`` or Parquet.
+    path : str or Path, or a list of them
+        Delimited text (``.csv``, ``.txt``, ``.tsv``), COMTRADE (``.cfg`` with its ``.dat``,
+        or a single ``.cff``), SPICE raw (``.raw``), NumPy ``.npy`` or Parquet. A list of
+        files forms one capture (one file per channel, same time base; see
+        :func:`combine_captures`).
     sample_rate_hz : float or None
         Sample rate for files without a time column or declared interval. [Hz]
     current, voltage : sequence of str or None
@@ -97,6 +107,9 @@ def load_capture(
         names and units are used.
     time_column : str or None
         Name of the time column when it is not recognisable.
+    encoding : str or None
+        Text encoding of a delimited file or of a COMTRADE ``.cfg`` (``"cp1251"``,
+        ``"gbk"``, ...); None detects it.
 
     Returns
     -------
@@ -112,7 +125,7 @@ def load_capture(
     open_capture : the same, read block by block for long files, with an optional cache.
     """
     cap = open_capture(path, sample_rate_hz=sample_rate_hz, time_column=time_column,
-                       stream_over_bytes=None)
+                       stream_over_bytes=None, encoding=encoding)
     if not isinstance(cap, Capture):
         cap = cap.load()
     return assign_roles(cap, current=current, voltage=voltage)
@@ -131,12 +144,13 @@ def open_capture(
     time_column: str | None = None,
     cache=None,
     stream_over_bytes: int | None | str = "default",
+    encoding: str | None = None,
 ):
     """Open a capture for analysis: in memory when small, block by block when large.
 
     Parameters
     ----------
-    path, sample_rate_hz, current, voltage, time_column
+    path, sample_rate_hz, current, voltage, time_column, encoding
         As for :func:`load_capture`.
     cache : pqcheck.run.cache.Cache or None
         Cache of parsed samples. On a hit the text file is not parsed again; on a miss the
@@ -149,32 +163,39 @@ def open_capture(
     -------
     Capture or CaptureStream
     """
+    if isinstance(path, (list, tuple)):
+        parts = [open_capture(q, sample_rate_hz=sample_rate_hz, time_column=time_column,
+                              stream_over_bytes=None, encoding=encoding) for q in path]
+        return assign_roles(combine_captures(parts), current=current, voltage=voltage)
     p = Path(path)
-    if not p.exists():
-        raise CaptureFormatError("file not found; check the path", path=str(path))
-    if p.is_dir():
-        raise CaptureFormatError("is a folder, not a capture file", path=str(path))
-    if sample_rate_hz is not None and not (sample_rate_hz > 0):
-        raise CaptureFormatError(f"sample rate must be positive, got {sample_rate_hz!r}",
-                                 field="--sample-rate")
+    size = require_regular_file(p, what="capture", error=CaptureFormatError)
+    if sample_rate_hz is not None and not (np.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+        raise CaptureFormatError(f"sample rate must be a positive number, got "
+                                 f"{sample_rate_hz!r}", field="sample_rate_hz")
     if stream_over_bytes == "default":
         stream_over_bytes = STREAM_OVER_BYTES
     suffix = p.suffix.lower()
     reader_opts = {"sample_rate_hz": sample_rate_hz, "time_column": time_column}
-    try:
-        size = p.stat().st_size
-    except OSError as exc:
-        raise CaptureFormatError(f"cannot read the file: {exc.strerror}", path=str(path)) from None
-    if suffix == ".cfg" or (suffix == ".dat" and _has_sibling(p, ".cfg")):
+    if encoding is not None:
+        reader_opts["encoding"] = encoding
+    from .spice import looks_like_spice_raw
+
+    if suffix in (".cfg", ".cff") or (suffix == ".dat" and _has_sibling(p, ".cfg")):
         from .comtrade import read_comtrade
 
-        cap = read_comtrade(p)
+        if suffix == ".cfg":
+            require_regular_file(p, what="capture", error=CaptureFormatError)
+        cap = read_comtrade(p, encoding=encoding)
     elif suffix in (".npy", ".parquet", ".pq"):
         from .binary import open_npy, open_parquet
 
         opener = open_npy if suffix == ".npy" else open_parquet
         cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column,
                      sha256=capture_sha256(p))
+    elif looks_like_spice_raw(p):
+        from .spice import read_spice_raw
+
+        cap = read_spice_raw(p, sha256=_sha(p))
     else:
         cap = None
         if stream_over_bytes is not None and size > stream_over_bytes:
@@ -183,8 +204,71 @@ def open_capture(
             from .delimited import read_delimited
 
             cap = read_delimited(p, sample_rate_hz=sample_rate_hz, time_column=time_column,
-                                 sha256=_sha(p))
+                                 sha256=_sha(p), encoding=encoding)
     return assign_roles(cap, current=current, voltage=voltage)
+
+
+def combine_captures(parts) -> Capture:
+    """One capture from several files of the same record (one file per channel, say).
+
+    Parameters
+    ----------
+    parts : sequence of Capture
+        Captures read from the files, in the order given.
+
+    Returns
+    -------
+    Capture
+        Their channels side by side. Provenance: the sources joined by `` + ``, a SHA-256 over
+        the files' SHA-256 values in order, and each file's reader settings under ``files``.
+
+    Raises
+    ------
+    CaptureFormatError
+        The time bases differ (sample rate, first sample time or number of samples), or two
+        files hold a channel of the same name.
+    """
+    parts = [p.load() if not isinstance(p, Capture) else p for p in parts]
+    if len(parts) == 1:
+        return parts[0]
+    first = parts[0]
+    src0 = first.provenance.source
+    names = list(first.names)
+    for other in parts[1:]:
+        src = other.provenance.source
+        if abs(other.fs_hz - first.fs_hz) > 1e-9 * first.fs_hz:
+            raise CaptureFormatError(
+                f"sample rate {other.fs_hz:.9g} Hz differs from {first.fs_hz:.9g} Hz in "
+                f"{src0}; files combined into one capture need the same time base",
+                path=src, field="sample_rate_hz")
+        if other.n_samples != first.n_samples:
+            raise CaptureFormatError(
+                f"{other.n_samples} samples against {first.n_samples} in {src0}; files "
+                "combined into one capture need the same time base (same length)", path=src)
+        if abs(other.t0_s - first.t0_s) > 0.5 / first.fs_hz:
+            raise CaptureFormatError(
+                f"first sample at {other.t0_s:.9g} s against {first.t0_s:.9g} s in {src0}; "
+                "files combined into one capture need the same time base (same start)",
+                path=src)
+        for n in other.names:
+            if n in names:
+                raise CaptureFormatError(
+                    f"channel {n!r} is also in an earlier file of the capture; rename one so "
+                    "every channel has its own name", path=src, field=n)
+            names.append(n)
+    h = hashlib.sha256()
+    for part in parts:
+        h.update(part.provenance.sha256.encode("ascii"))
+    settings = {"files": [{"source": q.provenance.source, "sha256": q.provenance.sha256,
+                           "reader": q.provenance.reader, **q.provenance.settings}
+                          for q in parts],
+                "time_base": "the same in every file (checked)",
+                "sample_rate_hz": first.fs_hz}
+    prov = Provenance(" + ".join(q.provenance.source for q in parts), h.hexdigest(),
+                      "combined", settings)
+    findings = tuple(f for q in parts for f in q.findings)
+    return Capture(np.vstack([q.samples for q in parts]), first.fs_hz,
+                   tuple(c for q in parts for c in q.channels), first.t0_s, prov, findings)
 
 
 def _sha(p: Path) -> str:
@@ -216,7 +300,8 @@ def _open_text_stream(p, sample_rate_hz, time_column, cache, reader_opts):
 
     try:
         return stream_delimited(p, sample_rate_hz=sample_rate_hz, time_column=time_column,
-                                on_complete=done, tee=writer)
+                                on_complete=done, tee=writer,
+                                encoding=reader_opts.get("encoding"))
     except NotStreamable:
         return None
 

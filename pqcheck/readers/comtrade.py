@@ -21,15 +21,16 @@ from __future__ import annotations
 
 import hashlib
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime
 from fractions import Fraction
 from pathlib import Path
 
 import numpy as np
 
-from ..capture import Capture, Channel, Provenance, guess_role
+from ..capture import Capture, Channel, Provenance, phase_evidence
 from ..errors import CaptureFormatError
+from ..files.inputs import require_regular_file
 from ..findings import Finding
 
 __all__ = ["read_comtrade"]
@@ -111,7 +112,7 @@ class _Config:
     extras: dict = field(default_factory=dict)
 
 
-def read_comtrade(path, *, use_primary: bool = True) -> Capture:
+def read_comtrade(path, *, use_primary: bool = True, encoding: str | None = None) -> Capture:
     """Read a COMTRADE record (IEEE C37.111-1999 or -2013) into a :class:`Capture`.
 
     Parameters
@@ -123,6 +124,10 @@ def read_comtrade(path, *, use_primary: bool = True) -> Capture:
         Return primary-side values (the power-system quantity). When a channel is recorded on the
         other side (its PS flag), values are converted with the channel's ``primary/secondary``
         ratio. With False, secondary-side values are returned. [unitless]
+    encoding : str or None
+        Text encoding of the ``.cfg`` (``"cp1251"``, ``"gbk"``, ...). None: UTF-8 when the
+        bytes are valid UTF-8, else the legacy 8-bit encoding detected from the bytes
+        (charset-normalizer), recorded in the provenance settings.
 
     Returns
     -------
@@ -188,10 +193,67 @@ def read_comtrade(path, *, use_primary: bool = True) -> Capture:
     >>> cap.fs_hz, cap.names  # doctest: +SKIP
     (4800.0, ('IA', 'IB', 'IC', 'VA', 'VB', 'VC'))
     """
+    if Path(path).suffix.lower() == ".cff":
+        return read_cff(path, use_primary=use_primary, encoding=encoding)
     cfg_path, dat_path = _pair(Path(path))
     cfg_bytes = _read_bytes(cfg_path, "configuration")
-    cfg = _parse_cfg(cfg_bytes, str(cfg_path))
+    cfg = _parse_cfg(cfg_bytes, str(cfg_path), encoding)
     dat_bytes = _read_bytes(dat_path, "data")
+    return _record(cfg, cfg_bytes, dat_bytes, cfg_path, dat_path, use_primary)
+
+
+_CFF_SECTION = re.compile(
+    rb"^-{3}\s*file\s+type:\s*([A-Za-z]+)(?:\s+([A-Za-z0-9]+))?\s*(?::\s*(\d+))?\s*-{3}[ \t]*\r?\n",
+    re.IGNORECASE | re.MULTILINE)
+
+
+def read_cff(path, *, use_primary: bool = True, encoding: str | None = None) -> Capture:
+    """Read a COMTRADE 2013 single-file record (``.cff``): the CFG, INF, HDR and DAT parts in
+    one file, each after a line ``--- file type: CFG ---`` (``DAT ASCII``, or
+    ``DAT BINARY: <bytes>`` for binary data). Same result as :func:`read_comtrade` on the
+    equivalent ``.cfg``/``.dat`` pair; the SHA-256 is that of the ``.cff`` bytes.
+
+    Raises
+    ------
+    CaptureFormatError
+        No CFG or DAT part, or a binary DAT part shorter than its declared size.
+    """
+    p = Path(path)
+    data = _read_bytes(p, "single-file (.cff)")
+    marks = list(_CFF_SECTION.finditer(data))
+    parts = {}
+    for k, m in enumerate(marks):
+        kind = m.group(1).decode("ascii").upper()
+        end = marks[k + 1].start() if k + 1 < len(marks) else len(data)
+        body = data[m.end():end]
+        if kind == "DAT" and m.group(3) is not None:
+            n = int(m.group(3))
+            body = data[m.end():m.end() + n]
+            if len(body) < n:
+                raise CaptureFormatError(
+                    f"the DAT part declares {n} bytes but the file holds {len(body)} after it; "
+                    "the file is cut short", path=str(p), field="DAT")
+        parts.setdefault(kind, (body, data[: m.end()].count(b"\n") + 1))
+    for need in ("CFG", "DAT"):
+        if need not in parts:
+            raise CaptureFormatError(
+                f"no '--- file type: {need} ---' part; a .cff holds the CFG and DAT parts of a "
+                "COMTRADE 2013 record, each after such a line", path=str(p), field=need)
+    cfg_bytes, first_line = parts["CFG"]
+    try:
+        cfg = _parse_cfg(cfg_bytes, str(p), encoding)
+    except CaptureFormatError as exc:  # line numbers of the .cff, not of the CFG part
+        raise CaptureFormatError(exc.problem, path=str(p),
+                                 line=None if exc.line is None else exc.line + first_line - 1,
+                                 field=exc.field) from None
+    cap = _record(cfg, cfg_bytes, parts["DAT"][0], p, p, use_primary)
+    settings = dict(cap.provenance.settings, single_file=True)
+    digest = hashlib.sha256(data).hexdigest()
+    return replace(cap, provenance=Provenance(str(p), digest, "comtrade", settings))
+
+
+def _record(cfg, cfg_bytes, dat_bytes, cfg_path, dat_path, use_primary) -> Capture:
+    """The capture of a parsed .cfg and the bytes of its data."""
     raw, stamps, missing, findings = _read_dat(dat_bytes, cfg, str(dat_path))
     values, channels, ch_settings, more = _scale(raw, cfg, use_primary)
     findings += more
@@ -237,11 +299,7 @@ def _pair(path: Path) -> tuple:
     """Return ``(cfg_path, dat_path)`` from either of the two."""
     ext = path.suffix.lower()
     if ext == ".cff":
-        raise CaptureFormatError(
-            "combined .cff files (C37.111-2013) are not read; export the record as a .cfg and "
-            "a .dat file",
-            path=path,
-        )
+        return path, path
     if ext not in (".cfg", ".dat"):
         raise CaptureFormatError(
             f"a COMTRADE record is read from its .cfg or .dat file, got extension {path.suffix!r}",
@@ -283,6 +341,7 @@ def _sibling(path: Path, ext: str) -> Path | None:
 
 
 def _read_bytes(path: Path, what: str) -> bytes:
+    require_regular_file(path, what=f"COMTRADE {what} file", error=CaptureFormatError)
     try:
         return path.read_bytes()
     except OSError as exc:
@@ -348,11 +407,40 @@ def _int(lines: _Lines, text: str, line: int, name: str, *, lo: int, hi: int) ->
     return value
 
 
-def _parse_cfg(data: bytes, path: str) -> _Config:
+def decode_cfg(data: bytes, path: str, encoding: str | None = None) -> tuple:
+    """``(text, encoding)`` of a .cfg: the given encoding, else UTF-8 (with or without a
+    byte-order mark), else the legacy encoding that charset-normalizer finds most likely
+    (Cyrillic and Chinese recorders write cp1251, koi8-r, gbk, big5, ...), else Latin-1."""
+    if encoding is not None:
+        try:
+            return data.decode(encoding), encoding
+        except LookupError:
+            raise CaptureFormatError(f"unknown text encoding {encoding!r}; give a name such as "
+                                     "utf-8, cp1251, gbk or latin-1", path=path,
+                                     field="encoding") from None
+        except UnicodeDecodeError as exc:
+            raise CaptureFormatError(
+                f"the .cfg is not valid {encoding} (byte {exc.start}); give its real encoding",
+                path=path, field="encoding") from None
+    if data.startswith(b"\xff\xfe") or data.startswith(b"\xfe\xff"):
+        return data.decode("utf-16"), "utf-16"
     try:
-        text = data.decode("utf-8-sig")
+        return data.decode("utf-8-sig"), "utf-8"
     except UnicodeDecodeError:
-        text = data.decode("latin-1")
+        pass
+    try:
+        from charset_normalizer import from_bytes
+
+        best = from_bytes(data).best()
+    except Exception:  # pragma: no cover - detection is a help, Latin-1 the fallback
+        best = None
+    if best is not None and best.encoding:
+        return str(best), best.encoding
+    return data.decode("latin-1"), "latin-1"
+
+
+def _parse_cfg(data: bytes, path: str, encoding: str | None = None) -> _Config:
+    text, used = decode_cfg(data, path, encoding)
     lines = _Lines(text.replace("\x1a", ""), path)
 
     # station_name,rec_dev_id,rev_year
@@ -474,7 +562,7 @@ def _parse_cfg(data: bytes, path: str) -> _Config:
         )
 
     timemult = 1.0
-    extras = {}
+    extras = {"cfg_encoding": used}
     if lines.peek() is not None:
         ln, f = lines.take("timemult")
         timemult = _num(lines, f[0], ln, "timemult", blank=1.0, what="the time multiplier")
@@ -748,10 +836,30 @@ def _unit(uu: str) -> tuple:
     return quantity, letter, _UNIT_PREFIX[m.group(1)]
 
 
+def _ph_field_trusted(analog) -> bool:
+    """The ``ph`` fields name phases, not a vendor code: not the same value on every one of
+    three or more channels (a recorder writing one code everywhere would make every channel
+    phase a)."""
+    codes = [ch.ph.strip().lower() for ch in analog]
+    return not (len(codes) >= 3 and len(set(codes)) == 1)
+
+
+def _phase_of(ch, name: str, trust_ph: bool) -> tuple:
+    """``(phase, evidence)`` of a channel from its ``ph`` field, else from its name."""
+    code = ch.ph.strip()
+    if trust_ph and code.lower() in _PHASE_FIELD:
+        return _PHASE_FIELD[code.lower()], f"phase field ph = {code!r}"
+    phase, why = phase_evidence(name)
+    if phase and code and not trust_ph:
+        why += f" (the phase field {code!r} is the same on every channel, so not used)"
+    return phase or "", why
+
+
 def _scale(raw: np.ndarray, cfg: _Config, use_primary: bool) -> tuple:
     values = np.empty_like(raw)
     channels, settings, unknown_side, skewed = [], [], [], []
     seen = set()
+    trust_ph = _ph_field_trusted(cfg.analog)
     for row, ch in enumerate(cfg.analog):
         quantity, unit, to_si = _unit(ch.uu)
         ratio = 1.0
@@ -777,8 +885,10 @@ def _scale(raw: np.ndarray, cfg: _Config, use_primary: bool) -> tuple:
         if name in seen:
             name = f"{name} [A{ch.index}]"
         seen.add(name)
-        phase = _PHASE_FIELD.get(ch.ph.strip().lower()) or guess_role(name)[1]
-        channels.append(Channel(name, quantity, phase, unit, "guess"))
+        phase, evidence = _phase_of(ch, name, trust_ph)
+        why = [f"unit {ch.uu!r}"] if quantity != "other" else []
+        channels.append(Channel(name, quantity, phase, unit, "guess",
+                                evidence="; ".join(why + ([evidence] if evidence else []))))
         if ch.skew_s:
             skewed.append(name)
         settings.append(

@@ -20,7 +20,7 @@ from dataclasses import replace
 import numpy as np
 import pandas as pd
 
-from ..capture import CaptureStream, Channel, Provenance, guess_role
+from ..capture import CaptureStream, Provenance
 from ..errors import CaptureFormatError
 from ..findings import Finding
 from . import delimited as _d
@@ -103,13 +103,13 @@ class _HashingRaw(io.RawIOBase):
 
 
 def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=1 << 18,
-                     on_complete=None, tee=None) -> CaptureStream:
+                     on_complete=None, tee=None, encoding=None) -> CaptureStream:
     """Open a uniform delimited capture for block-by-block reading.
 
     Parameters
     ----------
     path : str or Path
-    sample_rate_hz, time_column
+    sample_rate_hz, time_column, encoding
         As for :func:`pqcheck.readers.delimited.read_delimited`.
     block_rows : int
         Rows parsed per chunk.
@@ -127,10 +127,11 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
         Layout problems found in the first chunk; later problems surface while iterating.
     """
     path = str(path)
-    d = _d.sniff(path)
-    if d.encoding in ("gzip", "utf-16"):
-        raise NotStreamable(d.encoding)
+    d = _d.sniff(path, encoding=encoding)
+    if d.compression or d.encoding.startswith("utf-16"):
+        raise NotStreamable(d.compression or d.encoding)
     names = list(d.names)
+    dropped = []
     t_idx = _d.find_time_column(d, time_column, path)
     settings = _d.base_settings(d)
     first = _first_chunk(path, d, min(block_rows, 1 << 16))
@@ -149,26 +150,29 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
         settings.update(_d.time_settings(names[t_idx], d.scales[t_idx]))
         settings["time_base"] = "column"
     else:
-        fs = sample_rate_hz or _d._declared_rate(d.metadata)
-        if fs is None:
-            raise CaptureFormatError(
-                "no time column and no sample interval in the file's header lines; give the "
-                "sample rate with --sample-rate HZ (or name the time column with --time-column)",
-                path=path, field="sample rate")
-        settings["time_base"] = "--sample-rate" if sample_rate_hz else "declared in metadata"
-        t0 = 0.0
+        declared = _d.declared_interval(d.metadata)
+        _, kept, _, _ = _d._drop_counter(first, names, list(d.units), list(d.scales), d, path,
+                                         sample_rate_hz, declared, settings)
+        if len(kept) < len(names):
+            dropped = [0]  # a sample-index column
+        if sample_rate_hz:
+            fs = sample_rate_hz
+            settings["time_base"] = "sample_rate_hz"
+        elif declared is not None:
+            fs = 1.0 / declared[0]
+            settings["time_base"] = "declared in metadata"
+            settings["declared_by"] = declared[1]
+        else:
+            raise _d.no_time_base(path, d)
+        t0 = _d.declared_start(d.metadata)
     fs = float(fs)
     settings["sample_rate_hz"] = fs
     settings["streamed"] = True
-    keep = [j for j in range(len(names)) if j != t_idx]
+    keep = [j for j in range(len(names)) if j != t_idx and j not in dropped]
     if not keep:
         raise CaptureFormatError("the file has a time column but no signal columns", path=path,
                                  line=d.header_line)
-    chans = []
-    for j in keep:
-        quantity, phase = guess_role(names[j], d.units[j])
-        unit = d.units[j] or {"current": "A", "voltage": "V"}.get(quantity, "")
-        chans.append(Channel(names[j], quantity, phase, unit, "guess"))
+    chans = [_d.channel_for(names[j], d.units[j]) for j in keep]
     scales = np.array([d.scales[j] for j in keep])[:, None]
     hint = int(os.path.getsize(path) / max(1.0, _avg_row_bytes(path, d)))
     stream = CaptureStream(fs, chans, None, Provenance(path, "", "delimited", settings),
@@ -213,10 +217,7 @@ def _produce_blocks(spec: dict, out: dict):
     try:
         for _ in range(d.data_line - 1):
             fh.readline()
-        reader = pd.read_csv(
-            fh, sep=d.delimiter or ",", decimal=d.decimal, header=None, names=names,
-            dtype=np.float64, encoding=_d._pd_encoding(d), engine="c",
-            skip_blank_lines=True, chunksize=spec["rows"])
+        reader = pd.read_csv(fh, **_d.pandas_options(d), chunksize=spec["rows"])
         last_t = None
         row0 = 0
         pending = None
@@ -380,13 +381,10 @@ def _prefetch(iterator, depth: int = 2):
 
 def _first_chunk(path, d, rows):
     try:
-        df = pd.read_csv(
-            path, sep=d.delimiter or ",", decimal=d.decimal, header=None, names=list(d.names),
-            skiprows=d.data_line - 1, dtype=np.float64, encoding=_d._pd_encoding(d),
-            engine="c", nrows=rows, na_values=["", "nan", "NaN", "NAN", "-nan"])
+        df = pd.read_csv(path, **_d.pandas_options(d), skiprows=d.data_line - 1, nrows=rows)
     except (ValueError, pd.errors.ParserError):
         raise NotStreamable("first chunk") from None
-    return df.to_numpy(dtype=np.float64)
+    return _d.checked_columns(df.to_numpy(dtype=np.float64), d, path)
 
 
 def _avg_row_bytes(path, d) -> float:
@@ -407,7 +405,7 @@ def _chunks(reader, path, d, names):
             return
         except (ValueError, pd.errors.ParserError) as exc:
             raise _d.parse_error(path, d, exc, line_offset=d.data_line - 1) from None
-        yield chunk.to_numpy(dtype=np.float64)
+        yield _d.checked_columns(chunk.to_numpy(dtype=np.float64), d, path)
 
 
 def _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings):
@@ -428,7 +426,7 @@ def _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings):
             "the time column is not uniform here (a step of "
             f"{step[k] / fs:.6g} s against {1 / fs:.6g} s); pqcheck reads long files block by "
             "block and needs a uniform time base: resample the export, or drop the time column "
-            "and give --sample-rate", path=path, line=line, field="time")
+            "and give the sample rate (sample_rate_hz)", path=path, line=line, field="time")
     # gaps: insert NaN samples so later windows keep their place in time
     r = np.rint(step).astype(np.int64)
     missing = int((r - 1).sum())

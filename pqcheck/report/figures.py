@@ -24,7 +24,7 @@ import matplotlib
 matplotlib.use("Agg")
 
 import numpy as np  # noqa: E402
-from matplotlib import patheffects, ticker  # noqa: E402
+from matplotlib import ticker  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch  # noqa: E402
@@ -52,6 +52,9 @@ _INK = "#1a1a1a"
 _PASS_FILL = "#a9b4bf"
 _FAIL_FILL = "#1a1a1a"
 _GRID = "#d9dde1"
+_LIMIT_INK = "#24404f"
+_BAR_WIDTH = 0.56
+_LIMIT_HALF_WIDTH = 0.46
 _LINE_STYLES = ("-", "--", ":", "-.")
 _LINE_GREYS = ("#1a1a1a", "#4d5966", "#7f8b96", "#1a1a1a")
 
@@ -379,20 +382,22 @@ def plot_spectrum(data: SpectrumData) -> Figure:
             fail = verdicts == "fail"
             inc = verdicts == "inconclusive"
             ok = ~(fail | inc)
-            ax.bar(x[ok], y[ok], width=0.7, color=_PASS_FILL, edgecolor="#4d5966",
-                   linewidth=0.4)
+            ax.bar(x[ok], y[ok], width=_BAR_WIDTH, color=_PASS_FILL, edgecolor="#4d5966",
+                   linewidth=0.4, zorder=2)
             if inc.any():
-                ax.bar(x[inc], y[inc], width=0.7, color="white", edgecolor=_INK,
-                       linewidth=0.6, hatch="////")
+                ax.bar(x[inc], y[inc], width=_BAR_WIDTH, color="white", edgecolor=_INK,
+                       linewidth=0.6, hatch="////", zorder=2)
             if fail.any():
-                ax.bar(x[fail], y[fail], width=0.7, color=_FAIL_FILL, edgecolor=_INK,
-                       linewidth=0.6)
+                ax.bar(x[fail], y[fail], width=_BAR_WIDTH, color=_FAIL_FILL, edgecolor=_INK,
+                       linewidth=0.6, zorder=2)
             lim = p.limit
             fin = np.isfinite(lim)
             if fin.any():
-                ax.hlines(lim[fin], x[fin] - 0.45, x[fin] + 0.45, colors=_INK, linewidth=1.6,
-                          path_effects=[patheffects.withStroke(linewidth=3.2,
-                                                               foreground="white")])
+                # The limit mark is wider than its bar and drawn *behind* the bars, without a
+                # halo: a bar's top stays visible however close it is to its limit (a bar just
+                # above the limit covers the middle of the mark, whose ends still show).
+                ax.hlines(lim[fin], x[fin] - _LIMIT_HALF_WIDTH, x[fin] + _LIMIT_HALF_WIDTH,
+                          colors=_LIMIT_INK, linewidth=1.5, zorder=1.5)
             top_vals = np.concatenate([y, np.where(fin, lim, 0.0)])
             top = float(np.nanmax(top_vals)) if top_vals.size else 1.0
             top = top if top > 0 else 1.0
@@ -428,7 +433,8 @@ def plot_spectrum(data: SpectrumData) -> Figure:
         handles = [Patch(facecolor=_PASS_FILL, edgecolor="#4d5966", linewidth=0.4,
                          label="measured" + (" (within limit)" if has_limit else ""))]
         if has_limit:
-            handles.append(Line2D([], [], color=_INK, linewidth=1.6, label="limit"))
+            handles.append(Line2D([], [], color=_LIMIT_INK, linewidth=1.5,
+                                  label="limit (mark wider than its bar)"))
         if any_fail:
             handles.append(Patch(facecolor=_FAIL_FILL, edgecolor=_INK,
                                  label="\u2715 n  exceeds its limit (FAIL)"))

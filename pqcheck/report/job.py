@@ -128,6 +128,13 @@ class ReportMeta:
     tool_version : str
     command : str
         The command line that produced the report (for traceability), or empty.
+    detail : str
+        ``"full"`` (default): the body leads with what decides and appendix A holds every
+        table in full; ``"summary"``: the body only (the full tables stay in the attached
+        results JSON).
+    test_date : str
+        Date of the measurements as the user or the capture's header gives it (ISO 8601),
+        or empty.
     """
 
     title: str = "Harmonic emission test report"
@@ -138,6 +145,8 @@ class ReportMeta:
     created_utc: datetime = field(default_factory=lambda: datetime.now(timezone.utc))
     tool_version: str = __version__
     command: str = ""
+    detail: str = "full"
+    test_date: str = ""
 
 
 @dataclass(frozen=True, eq=False)

@@ -59,6 +59,7 @@ from .style import (
     fmt_like,
     fmt_pct,
     register_fonts,
+    shown_path,
     styles,
 )
 
@@ -82,6 +83,8 @@ _PHASE_ORDER = {"a": 0, "": 0, "b": 1, "c": 2, "n": 3}
 class _ReportCanvas(rl_canvas.Canvas):
     """Canvas that draws header and footer once the page count is known, and embeds the
     results JSON as a file attachment."""
+
+    footer_text = "pqcheck harmonic emission report \u2013 not a certification"
 
     def __init__(self, *args, report_id: str, header_left: str, header_right: str,
                  attachment: bytes, **kwargs):
@@ -116,8 +119,7 @@ class _ReportCanvas(rl_canvas.Canvas):
         self.setFont(FONT, 7)
         self.setFillColor(MUTED)
         self.drawString(_MARGIN, 9 * mm, f"Report {self._report_id}")
-        self.drawCentredString(w / 2, 9 * mm, "pqcheck harmonic emission report \u2013 "
-                                              "not a certification")
+        self.drawCentredString(w / 2, 9 * mm, self.footer_text)
         self.setFont(FONT_BOLD, 7)
         self.setFillColor(INK)
         self.drawRightString(w - _MARGIN, 9 * mm, f"Page {page} of {total}")
@@ -325,16 +327,72 @@ def _check_item(chk) -> str:
 
 
 def _limit_text(chk) -> str:
-    s = fmt(chk.limit, 4)
-    return s + (" \u2020" if getattr(chk, "verify", False) else "")
+    """The limit as a number (decimals as the check's own column uses them)."""
+    return fmt(chk.limit, 4)
+
+
+_TAG_WORDS = {"P": "partly verified", "M": "from memory"}
+
+
+def _source_mark(chk) -> str:
+    """Where a limit value comes from, when it is not verified: ``"† from memory"``."""
+    if not getattr(chk, "verify", False):
+        return ""
+    word = _TAG_WORDS.get(getattr(chk, "tag", ""), "unconfirmed")
+    return f"\u2020 {word}"
+
+
+def _unit_text(chk) -> str:
+    """Unit of a check's values, naming its basis: ``"% of IL"``, ``"% of fundamental"``,
+    ``"A"``, ``"mA/W"`` (the plain unit when the basis is not known)."""
+    basis = getattr(chk, "basis", "")
+    return _BASIS_LABEL.get(basis, chk.unit) if basis else chk.unit
+
+
+def _designation(lim) -> str:
+    """``"IEEE Std 519-2022"``, ``"IEC 61000-3-2 ed. 5.0 (2018)"``: the standard as it is
+    cited."""
+    std, ed = (lim.standard or "").strip(), (lim.edition or "").strip()
+    if not std:
+        return lim.table_id
+    if not ed:
+        return std
+    if ed.isdigit() and len(ed) == 4:
+        return f"{std}-{ed}"
+    return f"{std} ed. {ed}"
+
+
+def _clause_text(lim, chk) -> str:
+    """Where a limit comes from: the standard and edition with the clause or table, e.g.
+    ``"IEEE Std 519-2022, Table 2"``."""
+    return ", ".join(x for x in (_designation(lim), chk.clause or "") if x)
+
+
+def _decimals_for(values, digits: int = 3) -> int:
+    """Decimals that show the smallest non-zero ``values`` (limits, usually) with ``digits``
+    significant digits; one count for a whole column so its decimals never change."""
+    import math as _m
+
+    mags = [abs(float(v)) for v in values
+            if v is not None and _m.isfinite(float(v)) and float(v) != 0.0]
+    if not mags:
+        return 3
+    return int(min(5, max(0, digits - 1 - _m.floor(_m.log10(min(mags))))))
+
+
+def _fixed(x, decimals: int) -> str:
+    """``x`` with exactly ``decimals`` decimals; a dash for None or NaN."""
+    import math as _m
+
+    if x is None or not _m.isfinite(float(x)):
+        return "\u2013"
+    s_ = f"{float(x):.{decimals}f}"
+    return s_[1:] if s_.startswith("-") and float(s_) == 0 else s_
 
 
 def _table_name(lim) -> str:
-    parts = [lim.table_id]
-    std = " ".join(x for x in (lim.standard, lim.edition) if x)
-    if std:
-        parts.append(std)
-    return " \u2013 ".join(parts)
+    name = getattr(lim, "display_name", lim.table_id)
+    return f"{name} \u2013 {_designation(lim)}" if lim.standard else name
 
 
 _BASIS_LABEL = {
@@ -506,6 +564,19 @@ def _cover(b: _Builder) -> None:
     tables = job.limit_tables()
     pairs.append(("Limit tables", "; ".join(f"{_table_name(t)}: {t.title}" for t in tables)
                   if tables else "none (analysis only)"))
+    # why the verdict is what it is (scope, plausibility, observation) and every deviation
+    # from the standard's conditions, next to the verdict
+    why = list(dict.fromkeys(m for r in job.runs for a in r.assessments
+                             for m in getattr(a, "reasons", ())))
+    dev = list(dict.fromkeys(m for r in job.runs for a in r.assessments
+                             for m in getattr(a, "deviations", ())))
+    at = sum(1 for k, _ in pairs if k in ("Not decided", "Limits exceeded"))
+    for label, texts in (("Deviations from the standard's conditions", dev),
+                         ("Why (scope, data, observation)", why)):
+        if texts:
+            shown = texts[:8] + ([f"and {len(texts) - 8} more (see the notes of each capture)"]
+                                 if len(texts) > 8 else [])
+            pairs.insert(at, (label, b.m("<br/>".join(esc(x) for x in shown), "cell")))
     pairs.append(("Report id", meta.report_id))
     pairs.append(("Produced with", f"pqcheck {meta.tool_version}"))
     b.add(b.kv(pairs))
@@ -574,42 +645,123 @@ def _summary(b: _Builder) -> None:
                   "caption"))
 
     if job.assessed:
-        bad = []
-        for r in job.runs:
-            for a in r.tables:
-                for c in a.checks:
-                    if c.verdict in ("fail", "inconclusive"):
-                        bad.append((r, a, c))
-        b.h3(f"1.{next(sub)}  Checks that did not pass")
-        if not bad:
-            b.add(b.p("None: every applicable check passed.", "body"))
-        else:
-            bad.sort(key=lambda t: (t[2].verdict != "fail",
-                                    t[2].margin_percent if t[2].margin_percent is not None
-                                    else 0.0))
-            rows = [["Capture", "Table", "Item", "Phase", "Measured", "Limit", "Unit", "Margin",
-                     "Verdict"]]
-            extra = []
-            for r, a, c in bad[:_MAX_LISTED]:
-                rows.append([r.id, a.limits.table_id, _check_item(c),
-                             _channel_label(r.result, c.channel) if c.channel else "all",
-                             fmt(c.measured, 4), _limit_text(c), c.unit,
-                             fmt_pct(c.margin_percent), _verdict_para(b, c.verdict)])
-                extra += _verdict_style(8, len(rows) - 1, c.verdict)
-            b.add(b.table(rows, [0.13, 0.13, 0.1, 0.1, 0.1, 0.1, 0.07, 0.1, 0.17],
-                          right=(4, 5, 7), extra_style=extra))
-            more = len(bad) - _MAX_LISTED
-            note = ("Failing checks first, smallest margin first. Section 3 explains the "
-                    "data-quality findings behind inconclusive checks.")
-            if more > 0:
-                note += f" {more} more are listed in the full tables of section 2."
-            b.add(b.p(note, "caption"))
-        if any(getattr(c, "verify", False) for r in job.runs for a in r.tables
-               for c in a.checks):
-            b.add(b.m("<b>\u2020 Verify against your copy.</b> " + esc(
-                "Limits marked \u2020 come from values that pqcheck could not confirm against "
-                "the text of the standard. Check them against your licensed copy before "
-                "relying on a verdict that depends on them."), "small"))
+        _decisive_tables(b, sub)
+
+
+_CLOSEST_LISTED = 5
+
+
+def _cause_of(run, chk) -> str:
+    """Why ``chk`` is undecided, in one line: the error findings on its channel (or on the
+    whole capture), else the first remark of its note."""
+    fs = [f for f in run.result.findings if f.severity == "error"
+          and (not f.channels or chk.channel in f.channels)]
+    if fs:
+        codes = list(dict.fromkeys(f.code for f in fs))
+        first = next(f for f in fs if f.code == codes[0])
+        return f"{', '.join(codes)}: {first.message}"
+    note = (getattr(chk, "note", "") or "").removeprefix("inconclusive: ")
+    return note.split("; ")[0] if note else "the data do not allow a decision"
+
+
+def undecided_groups(job) -> list:
+    """Undecided checks grouped by capture, channel and cause: one entry per shared cause.
+
+    Returns
+    -------
+    list of (run, channel label, checks, cause)
+    """
+    groups: dict = {}
+    for r in job.runs:
+        for a in r.tables:
+            for c in a.checks:
+                if c.verdict != "inconclusive":
+                    continue
+                key = (r.id, c.channel, _cause_of(r, c))
+                groups.setdefault(key, (r, []))[1].append(c)
+    out = []
+    for (_rid, ch, cause), (r, checks) in groups.items():
+        lbl = _channel_label(r.result, ch) if ch else "all channels"
+        out.append((r, lbl, checks, cause))
+    return out
+
+
+def _items_text(checks) -> str:
+    """``"TDD, THD(I); orders 2–50"`` for a group of checks."""
+    totals = list(dict.fromkeys(c.label for c in checks if c.quantity != "harmonic"))
+    orders = [c.order for c in checks if c.quantity == "harmonic" and c.order is not None]
+    parts = totals + ([f"order{'s' if len(set(orders)) > 1 else ''} "
+                       f"{_compact_orders(orders)}"] if orders else [])
+    return "; ".join(parts)
+
+
+def _decided(job, verdict):
+    return [(r, a, c) for r in job.runs for a in r.tables for c in a.checks
+            if c.verdict == verdict]
+
+
+def _decisive_tables(b: _Builder, sub) -> None:
+    """What decides the verdict: every failing check, the undecided checks grouped by cause,
+    and the passing checks closest to their limits."""
+    job = b.job
+    fails = sorted(_decided(job, "fail"), key=lambda t: t[2].margin_percent
+                   if t[2].margin_percent is not None else 0.0)
+    b.h3(f"1.{next(sub)}  Limits exceeded")
+    if not fails:
+        b.add(b.p("None: no measured value exceeds its limit.", "body"))
+    else:
+        _check_rows_table(b, fails[:_MAX_LISTED])
+        more = len(fails) - _MAX_LISTED
+        note = "Smallest margin (largest excess) first."
+        if more > 0:
+            note += f" {more} more are listed in the full tables (appendix A)."
+        b.add(b.p(note, "caption"))
+    groups = undecided_groups(job)
+    if groups:
+        b.h3(f"1.{next(sub)}  Checks that could not be decided, by cause")
+        rows = [["Capture", "Phase", "Checks", "Cause (section 3 has the details)"]]
+        for r, lbl, checks, cause in groups:
+            rows.append([r.id, lbl, f"{len(checks)}: {_items_text(checks)}", cause])
+        b.add(b.table(rows, [0.14, 0.12, 0.24, 0.5]))
+        b.add(b.p("An undecided check is neither passed nor failed: the data-quality finding "
+                  "named removes the basis for a verdict on it. Remove the cause (re-measure) "
+                  "or exclude the capture with a stated reason.", "caption"))
+    passes = sorted((t for t in _decided(job, "pass") if t[2].margin_percent is not None),
+                    key=lambda t: t[2].margin_percent)
+    if passes:
+        b.h3(f"1.{next(sub)}  Passing checks closest to their limits")
+        _check_rows_table(b, passes[:_CLOSEST_LISTED])
+        b.add(b.p(f"The {min(_CLOSEST_LISTED, len(passes))} passing checks with the smallest "
+                  "margin, of all captures and tables. Margin = (limit \u2212 measured) / "
+                  "limit.", "caption"))
+    _verify_mark_note(b)
+
+
+def _check_rows_table(b: _Builder, triples) -> None:
+    """Checks of several captures and tables in one table, values with their basis."""
+    head = ["Capture", "Table", "Item", "Phase", "Measured", "Limit", "Basis", "Margin",
+            "Verdict", "Limit value"]
+    rows = [head]
+    extra = []
+    for r, a, c in triples:
+        rows.append([r.id, a.limits.table_id, _check_item(c),
+                     _channel_label(r.result, c.channel) if c.channel else "all",
+                     fmt(c.measured, 4), _limit_text(c), _unit_text(c),
+                     fmt_pct(c.margin_percent), _verdict_para(b, c.verdict),
+                     _source_mark(c) or "verified"])
+        extra += _verdict_style(8, len(rows) - 1, c.verdict)
+    b.add(b.table(rows, [0.12, 0.12, 0.07, 0.09, 0.09, 0.08, 0.1, 0.09, 0.12, 0.12],
+                  right=(4, 5, 7), extra_style=extra))
+
+
+def _verify_mark_note(b: _Builder) -> None:
+    if any(getattr(c, "verify", False) for r in b.job.runs for a in r.tables
+           for c in a.checks):
+        b.add(b.m("<b>\u2020 Verify against your copy.</b> " + esc(
+            "Limits marked \u2020 come from values that pqcheck could not confirm against "
+            "the text of the standard (partly verified, or from memory, as the limit table "
+            "tags them). Check them against your licensed copy before relying on a verdict "
+            "that depends on them."), "small"))
 
 
 def _capture_facts(b: _Builder, run) -> None:
@@ -664,24 +816,26 @@ def _assessment_block(b: _Builder, run, a) -> None:
         stats = {c.statistic for c in totals}
         one_stat = len(stats) == 1
         head = ["Quantity", "Phase"] + ([] if one_stat else ["Statistic"]) + [
-            "Measured", "Limit", "Unit", "Margin", "Verdict", "Clause"]
+            "Measured", "Limit", "Basis", "Margin", "Verdict", "Clause", "Limit value"]
         rows = [head]
         extra = []
         for c in sorted(totals, key=lambda c: (c.quantity, _channel_sort_key(res, c.channel)
                                                 if c.channel else (0, ""))):
             rows.append([c.label, _channel_label(res, c.channel) if c.channel else "all"]
                         + ([] if one_stat else [c.statistic])
-                        + [fmt(c.measured, 4), _limit_text(c), c.unit,
-                           fmt_pct(c.margin_percent), _verdict_para(b, c.verdict), c.clause])
-            extra += _verdict_style(len(head) - 2, len(rows) - 1, c.verdict)
+                        + [_fixed(c.measured, _decimals_for([c.limit])), _limit_text(c),
+                           _unit_text(c), fmt_pct(c.margin_percent),
+                           _verdict_para(b, c.verdict), _clause_text(lim, c),
+                           _source_mark(c) or "verified"])
+            extra += _verdict_style(len(head) - 3, len(rows) - 1, c.verdict)
         cap = f"{run.id}: totals against {lim.table_id}"
         cap += f" ({next(iter(stats))})." if one_stat else "."
         b.tcaption(cap)
         if one_stat:
-            widths = [0.1, 0.12, 0.12, 0.1, 0.07, 0.11, 0.18, 0.2]
+            widths = [0.09, 0.09, 0.09, 0.08, 0.11, 0.08, 0.13, 0.19, 0.14]
             right = (2, 3, 5)
         else:
-            widths = [0.08, 0.08, 0.23, 0.1, 0.09, 0.05, 0.09, 0.15, 0.13]
+            widths = [0.07, 0.07, 0.17, 0.08, 0.07, 0.1, 0.07, 0.12, 0.13, 0.12]
             right = (3, 4, 6)
         b.add(b.table(rows, widths, right=right, extra_style=extra))
 
@@ -693,7 +847,17 @@ def _assessment_block(b: _Builder, run, a) -> None:
     for (quantity, statistic, unit), group in groups.items():
         what = "current" if quantity == "current" else "voltage" if quantity == "voltage" \
             else "harmonic"
-        unit_label = _basis_label(lim, quantity, unit)
+        unit_label = _unit_text(group[0])
+        deciding = [r for r in _harmonic_rows(group, res)
+                    if r[3] != "pass" or r[4] is None or r[4] < _BODY_MARGIN_PERCENT]
+        if quantity == "voltage" and not deciding:
+            # Voltage harmonics that all pass far from their limits: one line says so, the
+            # chart would add a page and nothing a reviewer needs (appendix A lists them).
+            margins = [c.margin_percent for c in group if c.margin_percent is not None]
+            b.add(b.p(f"{run.id}: all {len({c.order for c in group})} individual voltage "
+                      f"harmonics pass on every phase with a margin of at least "
+                      f"{fmt(min(margins), 3)} % ({statistic}).", "body"))
+            continue
         data = figures.spectrum_from_checks(
             res, group, title=f"{run.id}: {what} harmonics against {lim.table_id}",
             unit_label=unit_label)
@@ -703,8 +867,9 @@ def _assessment_block(b: _Builder, run, a) -> None:
                      f"{lim.table_id} limits (black bars across each order) in {unit_label}. "
                      "Orders "
                      "over their limit are filled black and marked \u2715 with their order "
-                     "number; inconclusive orders are hatched and marked ?.")
-        _harmonic_table(b, run, lim, group, what, statistic, unit)
+                     "number; undecided orders are hatched and marked "
+                     f"{VERDICT_MARK['inconclusive']}.")
+        _harmonic_table(b, run, lim, group, what, statistic, unit, full=False)
     notes = _group_notes(checks)
     if notes:
         b.add(b.p("Notes on individual checks", "h3"))
@@ -779,49 +944,84 @@ def _group_notes(checks) -> list:
     return out
 
 
-def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit) -> None:
-    res = run.result
-    chans = sorted({c.channel for c in group}, key=lambda n: _channel_sort_key(res, n))
+_BODY_MARGIN_PERCENT = 50.0
+"""Harmonic rows whose every phase passes with at least this margin go to appendix A. [%]"""
+
+
+def _harmonic_rows(group, res):
+    """Rows of a harmonic table: (order, limit check, {channel: check}, worst verdict,
+    smallest margin)."""
+    rank = {"fail": 3, "inconclusive": 2, "pass": 1, "not applicable": 0}
     rows_by_key: dict = {}
     for c in group:
         key = (c.order, c.limit, getattr(c, "verify", False))
         rows_by_key.setdefault(key, {})[c.channel] = c
-    head = ["Order", f"Limit [{unit}]"]
+    out = []
+    for key in sorted(rows_by_key, key=lambda k: (k[0], k[1] if k[1] is not None else 0)):
+        cells = rows_by_key[key]
+        worst = max((c.verdict for c in cells.values()), key=lambda v: rank.get(v, 2))
+        margins = [c.margin_percent for c in cells.values() if c.margin_percent is not None]
+        out.append((key[0], next(iter(cells.values())), cells, worst,
+                    min(margins) if margins else None))
+    return out
+
+
+def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
+                    full: bool) -> None:
+    """Individual harmonics against a table. In the body (``full=False``) only the rows that
+    decide (failing, undecided, or a margin under 50 %) are listed, with a line saying what
+    the others are; appendix A (``full=True``) lists every order."""
+    res = run.result
+    chans = sorted({c.channel for c in group}, key=lambda n: _channel_sort_key(res, n))
+    all_rows = _harmonic_rows(group, res)
+    if full:
+        shown = all_rows
+    else:
+        shown = [r for r in all_rows if r[3] != "pass" or r[4] is None
+                 or r[4] < _BODY_MARGIN_PERCENT]
+    rest = [r for r in all_rows if r not in shown]
+    basis = _unit_text(group[0])
+    decimals = _decimals_for([c.limit for c in group])
+    head = ["Order", f"Limit [{basis}]"]
     for ch in chans:
-        lbl = _channel_label(res, ch)
-        head += [f"{lbl} measured", "margin"]
-    head.append("Verdict")
+        head += [f"{_channel_label(res, ch)} [{basis}]", "margin"]
+    head += ["Verdict", "Limit value"]
     rows = [head]
     extra = []
-    rank = {"fail": 3, "inconclusive": 2, "pass": 1, "not applicable": 0}
-    for key in sorted(rows_by_key, key=lambda k: (k[0], k[1] if k[1] is not None else 0)):
-        order = key[0]
-        cells = rows_by_key[key]
-        any_chk = next(iter(cells.values()))
-        row = [str(order), _limit_text(any_chk)]
-        worst = None
+    for order, any_chk, cells, worst, _ in shown:
+        row = [str(order), _fixed(any_chk.limit, decimals)]
         for ch in chans:
             c = cells.get(ch)
             if c is None:
                 row += ["", ""]
                 continue
-            mark = {"fail": " \u2717", "inconclusive": " ?"}.get(c.verdict, "")
-            row += [fmt_like(c.measured, c.limit) + mark, fmt_pct(c.margin_percent)]
-            if worst is None or rank.get(c.verdict, 2) > rank.get(worst, 2):
-                worst = c.verdict
-        row.append(_verdict_para(b, worst or ""))
+            mark = {"fail": " \u2717", "inconclusive": " " + VERDICT_MARK["inconclusive"]
+                    }.get(c.verdict, "")
+            row += [_fixed(c.measured, decimals) + mark, fmt_pct(c.margin_percent)]
+        row += [_verdict_para(b, worst or ""), _source_mark(any_chk) or "verified"]
         rows.append(row)
-        extra += _verdict_style(len(row) - 1, len(rows) - 1, worst or "")
+        extra += _verdict_style(len(row) - 2, len(rows) - 1, worst or "")
     n = len(chans)
-    rest = min(1.0 - 0.07 - 0.11 - 0.17, 0.22 * n)
-    widths = [0.07, 0.11] + [rest / (2 * n) * 1.1, rest / (2 * n) * 0.9] * n + [0.17]
+    room = 1.0 - 0.06 - 0.1 - 0.14 - 0.12
+    widths = ([0.06, 0.1] + [room / (2 * n) * 1.15, room / (2 * n) * 0.85] * n
+              + [0.14, 0.12])
     mult = {c.multiplier for c in group}
     times = (f" Limits shown are {mult.pop():g} \u00d7 the table's values, as its evaluation "
              "rule allows for this statistic." if len(mult) == 1 and 1.0 not in mult else "")
+    scope = "every order assessed" if full or not rest else "the orders that decide"
     b.tcaption(f"{run.id}: individual {what} harmonics against {lim.table_id} "
-               f"({statistic}), every order assessed.{times} \u2717 over the limit, ? inconclusive, "
-               "\u2020 verify the limit against your copy. Verdict: the worst over the phases.")
-    b.add(b.table(rows, widths, right=tuple(range(1, 2 + 2 * n)), extra_style=extra))
+               f"({statistic}), {scope}.{times} \u2717 over the limit, "
+               f"{VERDICT_MARK['inconclusive']} undecided, \u2020 limit value to verify "
+               "against your copy. Verdict: the worst over the phases.")
+    if len(rows) > 1:
+        b.add(b.table(rows, widths, right=tuple(range(1, 2 + 2 * n)), extra_style=extra))
+    if rest:
+        smallest = min(r[4] for r in rest)
+        orders = _compact_orders([r[0] for r in rest])
+        where = ("listed in appendix A" if b.job.meta.detail == "full"
+                 else "in the attached results data")
+        b.add(b.p(f"{len(rest)} further orders ({orders}) pass on every phase with a margin of "
+                  f"at least {fmt(smallest, 3)} %; {where}.", "small"))
 
 
 def _analysis_tables(b: _Builder, run, harmonics) -> None:
@@ -906,6 +1106,18 @@ def _channels_and_power(b: _Builder, run) -> None:
                                 INK)]))
 
 
+_MIN_TREND_WINDOWS = 10
+"""A THD-per-window chart needs at least this many windows to say more than the table. """
+
+
+def _harmonic_groups(a) -> dict:
+    groups: dict = {}
+    for c in a.checks:
+        if c.quantity == "harmonic" and c.order is not None:
+            groups.setdefault((c.applies_to, c.statistic, c.unit), []).append(c)
+    return groups
+
+
 def _per_capture(b: _Builder) -> None:
     from ..export import harmonics_frame, windows_frame
 
@@ -914,7 +1126,7 @@ def _per_capture(b: _Builder) -> None:
     b.h1("2  Results per capture")
     for k, run in enumerate(job.runs, start=1):
         if k > 1:
-            b.add(PageBreak())
+            b.add(CondPageBreak(120 * mm))
         title = f"2.{k}  {run.id}"
         if run.load_point:
             title += f" \u2013 load point {run.load_point}"
@@ -935,12 +1147,40 @@ def _per_capture(b: _Builder) -> None:
                  f"{run.id}: three cycles of the recorded voltages and currents, from the "
                  "start of the first valid analysis window (raw samples).",
                  heading="Waveforms and distortion over time")
-        b.figure(figures.plot_trend(figures.trend_data(run.result,
-                                                       windows=windows_frame(run.result))),
-                 f"{run.id}: THD of each channel per {run.result.settings.cycles_per_window}-"
-                 "cycle window across the capture (gaps: invalid windows).")
+        n_valid = int(run.result.windows.valid.sum())
+        if n_valid >= _MIN_TREND_WINDOWS:
+            b.figure(figures.plot_trend(figures.trend_data(run.result,
+                                                           windows=windows_frame(run.result))),
+                     f"{run.id}: THD of each channel per "
+                     f"{run.result.settings.cycles_per_window}-cycle window across the "
+                     "capture (gaps: invalid windows).")
+        else:
+            b.add(b.p(f"{run.id}: {n_valid} valid analysis windows: too few for a chart of "
+                      "THD over time; the per-window values are in the attached results "
+                      "data.", "small"))
         b.h3("Channel values and power quantities")
         _channels_and_power(b, run)
+
+
+def _appendix(b: _Builder) -> None:
+    """Appendix A: every harmonic table in full (only in the full report)."""
+    job = b.job
+    if job.meta.detail != "full":
+        return
+    if not any(_harmonic_groups(a) for r in job.runs for a in r.tables):
+        return
+    b.add(PageBreak())
+    b.h1("Appendix A  Full harmonic tables")
+    b.add(b.p("Every assessed order of every capture and limit table. The body of the report "
+              "lists only the orders that decide (failing, undecided, or within 50 % of their "
+              "limit).", "body"))
+    for run in job.runs:
+        for a in run.tables:
+            lim = a.limits
+            for (quantity, statistic, unit), group in _harmonic_groups(a).items():
+                what = "current" if quantity == "current" else "voltage" \
+                    if quantity == "voltage" else "harmonic"
+                _harmonic_table(b, run, lim, group, what, statistic, unit, full=True)
 
 
 def _findings(b: _Builder) -> None:
@@ -1003,8 +1243,7 @@ def _method(b: _Builder) -> None:
         note = getattr(ev, "note", "") if ev is not None else ""
         if note:
             use += f". Evaluation: {note}"
-        rows.append([" ".join(x for x in (lim.standard, lim.edition) if x) or lim.table_id,
-                     use])
+        rows.append([_designation(lim), use])
     b.add(b.table(rows, [0.25, 0.75]))
 
 
@@ -1062,19 +1301,30 @@ def _traceability(b: _Builder) -> None:
     b.add(b.p("SHA-256 digests of every file this report rests on. Recompute them (for "
               "example with sha256sum) to confirm that an archived file is the one analysed.",
               "body"))
-    rows = [["Item", "File", "SHA-256"]]
+    plan_path = job.plan.path if job.plan is not None else None
+    rows = [["Item", "File and SHA-256"]]
+
+    def file_cell(path_text, digest):
+        # Path and digest each on a line of their own, in monospace and small enough that a
+        # 64-digit SHA-256 never breaks: copied from the PDF, it goes straight into
+        # ``sha256sum -c``.
+        return b.m(f"{esc(path_text)}<br/>{esc(digest)}", "hash")
+
     if job.plan is not None:
-        rows.append(["test plan", str(job.plan.path), b.m(esc(job.plan.sha256), "mono")])
+        rows.append(["test plan", file_cell(shown_path(job.plan.path), job.plan.sha256)])
     for r in job.runs:
-        rows.append([f"capture {r.id}", r.result.source,
-                     b.m(esc(r.result.sha256 or "in memory"), "mono")])
+        rows.append([f"capture {r.id}", file_cell(shown_path(r.result.source, plan_path),
+                                                  r.result.sha256 or "in memory")])
     for lim in job.limit_tables():
-        rows.append([f"limit table {lim.table_id}", lim.source or "bundled",
-                     b.m(esc(lim.sha256 or "\u2013"), "mono")])
+        rows.append([f"limit table {lim.table_id}",
+                     file_cell(shown_path(lim.source, plan_path) or "bundled",
+                               lim.sha256 or "\u2013")])
     digest = hashlib.sha256(b.results_json).hexdigest()
-    rows.append([f"results ({ATTACHMENT_NAME}, attached to this PDF)", ATTACHMENT_NAME,
-                 b.m(esc(digest), "mono")])
-    b.add(b.table(rows, [0.2, 0.33, 0.47]))
+    rows.append(["results data (attached to this PDF)", file_cell(ATTACHMENT_NAME, digest)])
+    b.add(b.table(rows, [0.24, 0.76]))
+    where = ("Paths are relative to the test plan's folder, or as given on the command line."
+             if job.plan is not None else "Paths are as given on the command line.")
+    b.add(b.p(where, "caption"))
     import numpy
     import scipy
 
@@ -1181,6 +1431,7 @@ def render_pdf(job, *, results_json: bytes) -> bytes:
     _traceability(b)
     _safety(b)
     _signoff(b)
+    _appendix(b)
 
     meta = job.meta
     verdict = job.verdict

@@ -22,7 +22,7 @@ from reportlab.lib.styles import ParagraphStyle
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
 
-__all__ = ["esc", "fmt", "fmt_like", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
+__all__ = ["esc", "shown_path", "is_bundled_table", "fmt", "fmt_like", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
            "INK", "ACCENT", "MUTED", "RULE", "SHADE", "FONT", "FONT_BOLD", "FONT_MONO"]
 
 FONT = "PQSans"
@@ -37,7 +37,7 @@ RULE = colors.HexColor("#9aa3ab")
 SHADE = colors.HexColor("#eef1f3")
 SHADE_DARK = colors.HexColor("#d5dadf")
 
-VERDICT_MARK = {"pass": "\u2713", "fail": "\u2717", "inconclusive": "?",
+VERDICT_MARK = {"pass": "\u2713", "fail": "\u2717", "inconclusive": "\u25d0",
                 "not applicable": "\u2013", "": ""}
 VERDICT_WORD = {"pass": "PASS", "fail": "FAIL", "inconclusive": "INCONCLUSIVE",
                 "not applicable": "NOT APPLICABLE", "": ""}
@@ -68,6 +68,46 @@ def esc(text) -> str:
     if text is None:
         return ""
     return _xml_escape(str(text)).replace("\n", "<br/>")
+
+
+def is_bundled_table(source) -> bool:
+    """True when ``source`` is the file of a limit table bundled with pqcheck."""
+    if not source:
+        return False
+    try:
+        from importlib import resources
+
+        with resources.as_file(resources.files("pqcheck.limit_tables")) as folder:
+            return Path(source).resolve().parent == Path(folder).resolve()
+    except (OSError, ValueError, ModuleNotFoundError):
+        return False
+
+
+def shown_path(source, base=None) -> str:
+    """How a report shows the path of an input file.
+
+    A relative path (as the user typed it, relative to the working folder) is shown as it
+    is; an absolute path inside ``base`` (the test plan's folder, when there is a plan) is
+    shown relative to it; a limit table bundled with pqcheck is shown by its file name with
+    ``bundled`` (never the installation folder); anything else is shown as recorded. Only
+    recorded strings are used, so a report re-rendered elsewhere (``pqcheck verify``) shows
+    the same paths.
+    """
+    if source is None or source == "":
+        return ""
+    text_ = str(source)
+    if is_bundled_table(text_):
+        return f"{Path(text_).name} (bundled with pqcheck)"
+    p = Path(text_)
+    if not p.is_absolute():
+        return text_
+    if base is not None:
+        try:
+            return str(p.relative_to(Path(base).resolve().parent if Path(base).suffix
+                                     else Path(base).resolve()))
+        except ValueError:
+            pass
+    return text_
 
 
 def fmt(x, digits: int = 4, unit: str = "") -> str:
@@ -132,6 +172,9 @@ def styles() -> dict:
                                      textColor=ACCENT)
     st["cell_head_r"] = ParagraphStyle("cell_head_r", parent=st["cell_head"], alignment=TA_RIGHT)
     st["mono"] = ParagraphStyle("mono", parent=st["cell"], fontName=FONT_MONO, fontSize=6.9)
+    # paths and SHA-256 digests: 64 hex digits fit a 0.76-width cell on one line
+    st["hash"] = ParagraphStyle("hash", parent=st["cell"], fontName=FONT_MONO, fontSize=6.6,
+                                leading=8.4)
     st["h1"] = ParagraphStyle("h1", parent=base, fontName=FONT_BOLD, fontSize=14, leading=18,
                               textColor=ACCENT, spaceBefore=12, spaceAfter=8, keepWithNext=1)
     st["h2"] = ParagraphStyle("h2", parent=base, fontName=FONT_BOLD, fontSize=11, leading=14,

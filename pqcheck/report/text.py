@@ -82,10 +82,9 @@ STANDARDS_METHOD = (
 )
 
 UNCERTAINTY_METHOD = (
-    "Method contribution: each window spans an exact number of measured fundamental cycles to "
-    "within half a sample, inside the synchronisation tolerance of IEC 61000-4-7, and the "
-    "residual length mismatch is corrected per order, so spectral leakage and scalloping "
-    "contribute little compared with the instrument chain. Not covered by the method: the "
+    "Method contribution: each window spans an exact number of measured fundamental cycles "
+    "and is resampled to that span before the DFT (software synchronisation), so spectral "
+    "leakage and scalloping contribute little compared with the instrument chain. Not covered by the method: the "
     "ratio and phase errors of probes and transducers, their bandwidth and frequency "
     "response at higher orders, the digitiser's gain, offset, resolution and anti-alias "
     "filter, noise, and the representativeness of the captured interval for the operating "

@@ -132,6 +132,8 @@ class BatchSpec:
     analysis : tuple of (str, object)
         Keyword arguments of :func:`pqcheck.analyze` (``nominal_hz``, ``max_order``, ``il_a``,
         ``wiring``, ...).
+    declared : pqcheck.gates.Declared or None
+        Location, behaviour, representative period... for the assessment's gates.
     il_a, rated_current_a, iref_a, active_power_w : float or None
         Reference values of :func:`pqcheck.assess.assess`. [A], [A], [A], [W]
     cache_dir : str or None
@@ -151,6 +153,7 @@ class BatchSpec:
     rated_current_a: float | None = None
     iref_a: float | None = None
     active_power_w: float | None = None
+    declared: object = None
     cache_dir: str | None = None
     use_cache: bool = True
 
@@ -411,6 +414,10 @@ def _check_rows(task: dict) -> list:
     from .check import analyze_file
 
     spec = BatchSpec(**task["spec"])
+    if isinstance(spec.declared, dict):  # a spec sent to a worker as plain data
+        from ..gates import Declared
+
+        spec = dataclasses.replace(spec, declared=Declared(**spec.declared))
     capture, sha, key = task["capture"], task.get("sha256"), task.get("key", "")
     tables = spec.resolve()
     cache = Cache(spec.cache_dir) if spec.use_cache else None
@@ -422,7 +429,7 @@ def _check_rows(task: dict) -> list:
         raise PqcheckError(f"{capture}: the file changed while the batch ran (SHA-256 "
                            f"{sha[:12]}... then {result.sha256[:12]}...); run the batch again")
     a = assess(result, tables, il_a=spec.il_a, rated_current_a=spec.rated_current_a,
-               iref_a=spec.iref_a, active_power_w=spec.active_power_w)
+               iref_a=spec.iref_a, active_power_w=spec.active_power_w, declared=spec.declared)
     table_sha = {t.table_id: t.sha256 for t in a.tables}
     base = _blank_row(capture, sha or result.sha256, key)
     base.update(capture_verdict=a.verdict, capture_notes="; ".join(a.notes))
@@ -1051,10 +1058,12 @@ def summarize(table: pa.Table, *, worst: int = 10) -> dict:
 
 def exit_code(summary: dict) -> int:
     """1 if a capture fails, else 3 if one is inconclusive or could not be checked (error),
-    else 0."""
+    else 4 if one is not applicable (outside the tables' scope; never 0), else 0."""
     v = summary["verdicts"]
     if v.get("fail"):
         return 1
     if v.get("inconclusive") or v.get("error"):
         return 3
+    if v.get("not applicable"):
+        return 4
     return 0

@@ -25,6 +25,7 @@ def analyze_file(
     time_column=None,
     cache=None,
     progress=None,
+    encoding=None,
     **analysis_kwargs,
 ):
     """Open and analyse one capture file.
@@ -33,7 +34,7 @@ def analyze_file(
     ----------
     path : str or Path
         Capture file (see :func:`pqcheck.readers.load_capture` for formats).
-    sample_rate_hz, current, voltage, time_column
+    sample_rate_hz, current, voltage, time_column, encoding
         Reader options. [Hz] for the rate.
     cache : pqcheck.run.cache.Cache or None
         Cache of parsed samples and results; None disables caching.
@@ -90,14 +91,16 @@ def _file_states(path) -> tuple:
 def _open_and_analyze(path, sample_rate_hz, current, voltage, time_column, cache, progress,
                       analysis_kwargs):
     capture = open_capture(path, sample_rate_hz=sample_rate_hz, current=current,
-                           voltage=voltage, time_column=time_column, cache=cache)
+                           voltage=voltage, time_column=time_column, cache=cache,
+                           encoding=encoding)
     key = None
     sha = capture.provenance.sha256
     if cache is not None:
         key = {
             "analysis": {k: analysis_kwargs.get(k) for k in sorted(analysis_kwargs)},
             "channels": [(c.name, c.quantity, c.phase) for c in capture.channels],
-            "reader": {"sample_rate_hz": sample_rate_hz, "time_column": time_column},
+            "reader": {"sample_rate_hz": sample_rate_hz, "time_column": time_column,
+                       **({"encoding": encoding} if encoding else {})},
         }
         if sha:
             hit = cache.load_result(sha, key)

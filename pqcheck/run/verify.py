@@ -348,12 +348,13 @@ def _rerun_capture(doc: dict, bases, files: list, notes: list, params: dict):
         nominal_hz=int(s["nominal_hz"]) if s.get("nominal_source") == "user" else None,
         wiring=s.get("wiring") if s.get("wiring_source") == "user" else None)
     sample_rate = params.get("sample_rate")
-    if not params and (rec.get("reader") or {}).get("time_base") == "--sample-rate":
+    if not params and (rec.get("reader") or {}).get("time_base") in ("--sample-rate",
+                                                                      "sample_rate_hz"):
         sample_rate = rec["reader"].get("sample_rate_hz")
     capture, result = analyze_file(
         where, sample_rate_hz=sample_rate, current=_split(params.get("current")),
         voltage=_split(params.get("voltage")), time_column=params.get("time_column"),
-        cache=None, **kwargs)
+        encoding=params.get("encoding"), cache=None, **kwargs)
     assessments = assess_each(result, resolved, il_a=s.get("il_a"),
                               rated_current_a=params.get("rated_current"),
                               iref_a=params.get("iref"), active_power_w=params.get("active_power"))
@@ -621,7 +622,10 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
     """
     from ..report.job import ReportJob, ReportMeta
     from ..report.results import job_json
+    from .site_verify import is_site_document, verify_site
 
+    if is_site_document(path):
+        return verify_site(path, search=search, rel_tol=rel_tol, abs_tol=abs_tol)
     p = Path(path)
     recorded, pdf, attached = _load(p)
     origin = p.resolve().parent

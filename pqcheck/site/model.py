@@ -183,6 +183,9 @@ class Unit:
         bus by this angle; 0: none). [deg]
     line : int or None
         Line of the entry in the site file.
+    source_kind : str
+        ``"capture"`` (the spectrum was analysed from a capture) or ``"results"`` (read from
+        saved results).
     """
 
     name: str
@@ -191,6 +194,7 @@ class Unit:
     spectrum: UnitSpectrum
     phase_shift_deg: float = 0.0
     line: int | None = None
+    source_kind: str = "results"
 
 
 @dataclass(frozen=True)

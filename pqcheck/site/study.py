@@ -217,6 +217,22 @@ class SiteStudy:
         """The check labelled ``label`` (``"V5"``, ``"I7"``, ``"TDD"``, ``"THD(V)"``)."""
         return next((c for c in self.checks if c.label == label), None)
 
+    @property
+    def inputs(self) -> tuple:
+        """Every file the study rests on, as ``(what, name, path, sha256)``: the site file,
+        each unit's capture or results file and the limit table (path "" when bundled)."""
+        s = self.site
+        out = [("site file", s.name, "" if s.path is None else str(s.path), s.sha256)]
+        for u in s.units:
+            what = "unit capture" if u.source_kind == "capture" else "unit results"
+            out.append((what, u.name, u.spectrum.source, u.spectrum.sha256))
+        lim = self.limits
+        if lim is not None:
+            out.append(("limit table", lim.table_id,
+                        "" if _is_bundled(s.limits) else str(lim.source or s.limits),
+                        lim.sha256 or ""))
+        return tuple(out)
+
     def outcome(self, summation: str) -> SummationOutcome | None:
         """The outcome under one summation method (None if not computed)."""
         return next((o for o in self.by_summation if o.summation == summation), None)
@@ -261,6 +277,11 @@ class _Limits:
                 raise PlanError(f"limit table {self.table.id}: {exc.problem}",
                                 path=self.site.path, field="limits.table") from None
         return self.cache[key]
+
+
+def _is_bundled(table: str) -> bool:
+    """A site's ``limits`` names a bundled table by id (a path has a folder or ends .toml)."""
+    return not ("/" in table or "\\" in table or table.lower().endswith(".toml"))
 
 
 def _load_limit_table(table: str, site_path):
@@ -724,10 +745,17 @@ def _num(x, digits=10):
     return float(f"{x:.{digits}g}") if math.isfinite(x) else None
 
 
-def study_to_dict(study: SiteStudy) -> dict:
+def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
     """JSON-ready form of a :class:`SiteStudy` (non-finite numbers become None).
 
-    Keys: ``tool``, ``site`` (name, file, sha256, supply, transformer, pcc, other_load,
+    Parameters
+    ----------
+    study : SiteStudy
+    report : dict or None
+        Who and when, recorded as the ``report`` block: ``title``, ``operator``, ``id``,
+        ``time_of_analysis_utc`` (ISO 8601), as a report writes them.
+
+    Keys: ``tool``, ``site`` (name, path, sha256, supply, transformer, pcc, other_load,
     units, each with ``pcc_current_a``: one unit's current at the PCC for orders 1..H, worst
     phase), ``summation``, ``pcc`` (voltage, impedance, ISC, IL, ISC/IL), ``limits`` (table,
     rows), ``harmonics`` (per order: current per phase and % of IL, voltage per phase and % of
@@ -736,7 +764,7 @@ def study_to_dict(study: SiteStudy) -> dict:
     failing checks under each summation method), ``findings`` and ``cautions``.
     """
     from .. import __version__
-    from .sitefile import SCHEMA_VERSION
+    from .sitefile import SCHEMA_VERSION, shown_path
 
     s = study.site
     t = s.transformer
@@ -754,7 +782,7 @@ def study_to_dict(study: SiteStudy) -> dict:
         "tool": {"name": "pqcheck", "version": __version__, "kind": "site study",
                  "schema": SCHEMA_VERSION},
         "site": {
-            "name": s.name, "file": None if s.path is None else str(s.path),
+            "name": s.name, "path": None if s.path is None else str(s.path),
             "sha256": s.sha256, "nominal_frequency_hz": s.nominal_hz,
             "supply": {"nominal_voltage_v": s.supply.nominal_voltage_v,
                        "ssc_va": _num(s.supply.ssc_va), "isc_a": _num(s.supply.isc_a),
@@ -806,4 +834,7 @@ def study_to_dict(study: SiteStudy) -> dict:
                           "note": o.note} for o in study.by_summation],
         "findings": [f.to_dict() for f in study.findings],
         "cautions": list(CAUTIONS),
-    }
+        "inputs": [{"what": what, "name": name,
+                    "path": shown_path(path, s.path) if path else "",
+                    "sha256": sha} for what, name, path, sha in study.inputs],
+    } | ({"report": dict(report)} if report is not None else {})
