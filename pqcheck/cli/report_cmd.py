@@ -81,17 +81,18 @@ def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
     return (CaptureRun(id=run_id, capture=capture, result=result, assessments=assessments),)
 
 
-def _input_files(source: str, limits) -> list:
-    """Files the report reads: the capture (with the other files of its record) or the plan,
-    and the limit tables given by path."""
+def _input_files(*sources: str, limits) -> list:
+    """Files the report reads: the captures (with the other files of their records) or the
+    plan, and the limit tables given by path."""
     from ..readers import capture_files
 
-    files = [source]
-    if not source.lower().endswith(".toml"):
-        try:
-            files += capture_files(source)
-        except Exception:  # noqa: BLE001 - a broken capture is reported when it is read
-            pass
+    files = list(sources)
+    for source in sources:
+        if not source.lower().endswith(".toml"):
+            try:
+                files += capture_files(source)
+            except Exception:  # noqa: BLE001 - a broken capture is reported when it is read
+                pass
     files += [x for x in limits or () if os.path.exists(x)]
     return files
 
@@ -155,7 +156,8 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
 
     # 1. Every output must be writable, and none an input, before any work is done.
     outputs = OutputSet(force=force)
-    outputs.protect(_input_files(source, lim["limits"]))
+    outputs.protect(_input_files(source, limits=lim["limits"]))
+    outputs.protect(_input_files(*opts.get("add_file") or (), limits=()))
     out = outputs.add(output, "-o")
     if json_path is not None:
         outputs.add(json_path, "--json")

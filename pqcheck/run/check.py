@@ -53,7 +53,8 @@ def analyze_file(
     """
     before = _file_states(path)
     capture, result, save = _open_and_analyze(path, sample_rate_hz, current, voltage,
-                                              time_column, cache, progress, analysis_kwargs)
+                                              time_column, cache, progress, encoding,
+                                              analysis_kwargs)
     if _file_states(path) != before:
         from ..errors import CaptureFormatError
 
@@ -73,10 +74,12 @@ def _file_states(path) -> tuple:
 
     from ..readers import capture_files
 
-    try:
-        files = capture_files(path)
-    except Exception:  # noqa: BLE001 - a missing part is reported by the reader
-        files = [path]
+    files = []
+    for one in (path if isinstance(path, (list, tuple)) else [path]):  # several files
+        try:
+            files += capture_files(one)
+        except Exception:  # noqa: BLE001 - a missing part is reported by the reader
+            files.append(one)
     out = []
     for f in files:
         try:
@@ -89,7 +92,7 @@ def _file_states(path) -> tuple:
 
 
 def _open_and_analyze(path, sample_rate_hz, current, voltage, time_column, cache, progress,
-                      analysis_kwargs):
+                      encoding, analysis_kwargs):
     capture = open_capture(path, sample_rate_hz=sample_rate_hz, current=current,
                            voltage=voltage, time_column=time_column, cache=cache,
                            encoding=encoding)

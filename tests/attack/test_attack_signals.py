@@ -29,6 +29,7 @@ import pytest
 from _kit import (
     EXIT,
     LIMITS,
+    VERDICTS,
     finish,
     invoke,
     outcome,
@@ -132,9 +133,9 @@ def test_signals_to_report_leave_all_or_nothing(tmp_path):
         elif sent[c.name]:
             # SIGTERM during start-up (before the command line runs) ends the process by the
             # default action (the shell shows 143 too); a signal just after the end: too late
-            codes = [SIG_CODE[c.sig], -c.sig, EXIT["pass"]]
+            codes = [SIG_CODE[c.sig], -c.sig, *VERDICTS]
         else:
-            codes = [EXIT["pass"]]
+            codes = list(VERDICTS)
         states[c.name] = outcome(run, codes=codes, inputs_before=before, outputs=_set(d),
                                  previous={p: v for p, v in prev.items() if d in p.parents},
                                  out_dirs=[d, d / "csv"], killed=killed)
@@ -170,8 +171,7 @@ def test_signals_to_site_leave_no_partial_pdf(tmp_path):
         run, d = runs[c.name], tmp_path / c.name
         killed = c.sig == signal.SIGKILL and sent[c.name]
         codes = ([-signal.SIGKILL] if killed else
-                 [SIG_CODE[c.sig], -c.sig, EXIT["pass"], EXIT["fail"]] if sent[c.name] else
-                 [EXIT["pass"], EXIT["fail"]])
+                 [SIG_CODE[c.sig], -c.sig, *VERDICTS] if sent[c.name] else list(VERDICTS))
         state = outcome(run, codes=codes, inputs_before=c.before, outputs=[d / "site.pdf"],
                         out_dirs=[d], killed=killed)
         if run.code in SIG_CODE.values() or run.code < 0:
