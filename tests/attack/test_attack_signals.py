@@ -197,15 +197,27 @@ def _cached_results(cache: Path) -> int:
 
 
 def _rows(path: Path) -> dict:
+    """Capture file name to its verdict, from a results table."""
     import pyarrow.csv as pacsv
 
     t = pacsv.read_csv(path).to_pydict()
-    return {c: v for c, v in zip(t["capture"], t["capture_verdict"])}
+    return {Path(c).name: v for c, v in zip(t["capture"], t["capture_verdict"])}
+
+
+@pytest.fixture(scope="module")
+def fresh_batch(tmp_path_factory):
+    """The results of an uninterrupted batch over the same fleet (file name to verdict)."""
+    d = tmp_path_factory.mktemp("fresh")
+    fleet = _fleet(d)
+    ref = invoke(["batch", fleet, *LIMITS, "--csv", d / "fresh.csv", "-q", "--jobs", "1",
+                  "--no-cache"])
+    assert ref.code == EXIT["fail"], ref.stderr
+    return _rows(d / "fresh.csv")
 
 
 @pytest.mark.parametrize("sig, jobs", [(signal.SIGTERM, 1), (signal.SIGINT, 1),
                                        (signal.SIGTERM, 2), (signal.SIGKILL, 1)])
-def test_signal_mid_batch_keeps_finished_rows_and_resumes(tmp_path, sig, jobs):
+def test_signal_mid_batch_keeps_finished_rows_and_resumes(tmp_path, sig, jobs, fresh_batch):
     fleet = _fleet(tmp_path)
     before = snapshot(fleet)
     cache = tmp_path / "cache"
@@ -240,11 +252,8 @@ def test_signal_mid_batch_keeps_finished_rows_and_resumes(tmp_path, sig, jobs):
     # the re-run resumes and ends with every capture, as a fresh batch in another file
     again = invoke(argv)
     outcome(again, codes=[EXIT["fail"]], inputs_before=before)
-    fresh = tmp_path / "fresh.csv"
-    ref = invoke(["batch", fleet, *LIMITS, "--csv", fresh, "-q", "--jobs", "1", "--no-cache"])
-    assert ref.code == EXIT["fail"]
-    assert _rows(res) == _rows(fresh)
-    assert len(_rows(res)) == N_CAPTURES
+    assert _rows(res) == fresh_batch
+    assert len(fresh_batch) == N_CAPTURES
 
 
 def _group_gone(pgid: int, timeout_s: float = 10.0) -> None:
