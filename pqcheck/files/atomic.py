@@ -182,7 +182,7 @@ class OutputSet:
                 raise ReportError(f"{named}: is {_kind(st.st_mode)}, not a regular file; "
                                   "pqcheck writes only regular files: give another name")
             if not self.force:
-                raise ReportError(f"{named}: file exists; give --force to replace it "
+                raise ReportError(f"{named}: file exists; give `force` to replace it "
                                   "(left unchanged)")
 
     @staticmethod
@@ -343,7 +343,7 @@ class OutputSet:
         for t in self._targets:
             if os.path.lexists(t.path):
                 if not self.force:
-                    raise ReportError(f"{t.named}: file appeared while writing; give --force "
+                    raise ReportError(f"{t.named}: file appeared while writing; give `force` "
                                       "to replace it (nothing was written)")
                 t.backup = t.tmp[:-len(".part")] + ".old"
                 try:
@@ -360,7 +360,7 @@ class OutputSet:
                 try:
                     os.link(t.tmp, t.path)
                 except FileExistsError:
-                    raise ReportError(f"{t.named}: file appeared while writing; give --force "
+                    raise ReportError(f"{t.named}: file appeared while writing; give `force` "
                                       "to replace it (nothing was written)") from None
                 except OSError:  # a file system without hard links
                     if os.path.lexists(t.path):

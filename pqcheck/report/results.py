@@ -1,7 +1,7 @@
 """Results export of a report: one JSON document and tidy CSV tables.
 
-The JSON is what ``--json`` writes and what the PDF carries as its ``results.json``
-attachment (the same bytes). The CSV tables (``--csv DIR``) are tidy: one row per
+The JSON is what ``pqcheck report`` writes as its JSON file and what the PDF carries as its
+``results.json`` attachment (the same bytes). The CSV tables (a folder of them) are tidy: one row per
 observation, one column per variable, a ``capture`` column wherever several captures are
 stacked. Both are formatted from the result objects through :mod:`pqcheck.export` and the
 assessment's own dict form; nothing is recomputed.
@@ -65,6 +65,7 @@ def job_to_dict(job) -> dict:
                 "verdict": r.verdict,
                 "analysis": analysis_to_dict(r.result),
                 "assessments": [a.to_dict() for a in r.assessments],
+                "run_spec": None if r.spec is None else r.spec.to_dict(),
             }
             for r in job.runs
         ],
@@ -152,7 +153,7 @@ def job_frames(job, doc: dict | None = None) -> dict:
 
 def job_csv_texts(job, doc: dict | None = None) -> list:
     """The CSV tables of a report job as text, in the order of :data:`CSV_TABLES` (the files
-    ``--csv DIR`` holds, ``<name>.csv``)."""
+    ``<name>.csv`` of the report's CSV folder)."""
     frames = job_frames(job, doc)
     return [frames[name].to_csv(index=False, lineterminator="\n") for name in CSV_TABLES]
 
@@ -168,7 +169,7 @@ def write_csv_dir(frames: dict, folder, *, force: bool = False) -> list:
         Files written.
     """
     outputs = OutputSet(force=force)
-    paths = outputs.add_folder(folder, [f"{n}.csv" for n in CSV_TABLES], "--csv")
+    paths = outputs.add_folder(folder, [f"{n}.csv" for n in CSV_TABLES], "`csv`")
     for name, path in zip(CSV_TABLES, paths):
         outputs.put(path, frames[name].to_csv(index=False, lineterminator="\n"))
     return outputs.commit()
