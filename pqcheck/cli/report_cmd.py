@@ -5,7 +5,6 @@ from __future__ import annotations
 import os
 from dataclasses import replace
 from datetime import datetime, timezone
-from pathlib import Path
 
 import click
 
