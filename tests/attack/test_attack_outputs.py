@@ -264,3 +264,26 @@ def test_full_disk_leaves_no_partial_set(tmp_path, room, previous):
         assert state == "absent"
         if not previous:
             assert tree(disk) == [], "nothing may be left on the full disk"
+
+
+def test_site_pdf_and_json_all_or_nothing(tmp_path):
+    from _kit import write_site
+
+    site = write_site(tmp_path)
+    before = snapshot(site, tmp_path / "unit.csv")
+    with read_only_folder(tmp_path / "ro") as ro:
+        run = invoke(["site", site, "-o", tmp_path / "s.pdf", "--json", ro / "s.json"])
+        outcome(run, codes=[EXIT["usage"]], inputs_before=before,
+                outputs=[tmp_path / "s.pdf", ro / "s.json"], out_dirs=[tmp_path, ro],
+                message=r"s\.json: .*(not writable|read-only)")
+    assert not (tmp_path / "s.pdf").exists()
+
+
+def test_aggregate_never_replaces_its_recording(tmp_path):
+    rec = write_capture(tmp_path / "rec.csv")
+    before = snapshot(rec)
+    run = invoke(["aggregate", rec, "-o", rec, "--force", "--start-time",
+                  "2026-01-01T00:00:00"])
+    outcome(run, codes=[EXIT["usage"]], inputs_before=before, out_dirs=[tmp_path],
+            message=INPUT_CLASH)
+    assert "--force" not in run.stderr
