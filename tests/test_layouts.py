@@ -512,3 +512,17 @@ def test_two_field_metadata_line_above_a_gap_stays_metadata(tmp_path):
                                                        for b in _wave()))
     cap = load_capture(p)
     assert cap.names == ("col1", "col2") and cap.fs_hz == pytest.approx(FS, rel=1e-12)
+
+
+def test_declared_interval_that_does_not_fit_the_rounded_times(tmp_path):
+    p = tmp_path / "misfit.csv"
+    _coarse(p)
+    text = p.read_text().replace("Microseconds_Per_Sample,32.506", "Microseconds_Per_Sample,31")
+    p.write_text(text)
+    cap = load_capture(p)
+    f = {f.code: f.message for f in cap.findings}
+    assert "declared-interval-mismatch" in f and "time-rounded" in f
+    assert "the declared interval 'Microseconds_Per_Sample' (3.1e-05 s) does not fit the time " \
+           "column" in f["declared-interval-mismatch"]
+    # the column decides (its end-to-end step), not the declared 31 us
+    assert cap.fs_hz == pytest.approx(1 / DT_COARSE, rel=1e-4)
