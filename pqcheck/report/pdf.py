@@ -656,8 +656,9 @@ _DATE_KEYS = ("start time", "start", "date", "trigger time", "recorded", "acquir
 
 
 def _test_date(job) -> str:
-    """Date of the measurements: given (``--test-date``), the plan's, or the start time the
-    capture's header records; "not stated" otherwise (never the time of analysis)."""
+    """Date of the measurements: given (``test_date`` of the report details), the plan's,
+    or the start time the capture's header records; "not stated" otherwise (never the time
+    of analysis)."""
     if job.meta.test_date:
         return job.meta.test_date
     if job.plan is not None and job.plan.conditions.date:
