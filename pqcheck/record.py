@@ -337,9 +337,9 @@ class ReportDetails:
     test_date : str or None
         Date of the measurements (ISO 8601, ``YYYY-MM-DD``); None: taken from the capture's
         header where it records a start time, else "not stated".
-    detail : str
-        ``"full"``: the report with appendix A (every harmonic table in full); ``"summary"``:
-        without it (the attached results keep every number).
+    detail : str or None
+        ``"full"`` (or None, the default): the report with appendix A (every harmonic table
+        in full); ``"summary"``: without it (the attached results keep every number).
     """
 
     title: str | None = None
@@ -348,7 +348,7 @@ class ReportDetails:
     operator: str | None = None
     report_id: str | None = None
     test_date: str | None = None
-    detail: str = "full"
+    detail: str | None = None
 
     def __post_init__(self):
         _text(self, "title", "equipment", "site", "operator", "report_id", "test_date")

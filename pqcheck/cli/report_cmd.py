@@ -77,10 +77,9 @@ def _plan_files(plan) -> list:
 @click.option("--test-date", "test_date", metavar="YYYY-MM-DD",
               help="Date of the measurements. Default: the plan's [conditions] date, else the "
                    "start time in the capture's header, else 'not stated'.")
-@click.option("--detail", type=click.Choice(["full", "summary"]), default="full",
-              show_default=True,
-              help="full: the report with appendix A (every harmonic table); summary: without "
-                   "it (the attached results keep every number).")
+@click.option("--detail", type=click.Choice(["full", "summary"]), default=None,
+              help="full (default): the report with appendix A (every harmonic table); "
+                   "summary: without it (the attached results keep every number).")
 @_report_limit_options
 @capture_options
 @click.pass_context
