@@ -19,6 +19,7 @@ from ._limits import (
     tables_max_order,
 )
 from .analyze import capture_options, load_and_analyze
+from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__: list = []
 
@@ -100,6 +101,7 @@ def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
                    "and the data.")
 @_report_limit_options
 @capture_options
+@survey_options
 @click.pass_context
 @handle_errors
 def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operator, site, title,
@@ -127,6 +129,7 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
     )
 
     lim = {k: opts.pop(k) for k in LIMIT_OPTION_NAMES}
+    survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
     created = datetime.now(timezone.utc)
 
     # 1. Every output must be writable before any work is done.
@@ -144,6 +147,14 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
                 fail_usage(f"--csv {csv_dir} would overwrite {p}; choose another folder")
 
     # 2. Analyse and assess (any bad input stops here with exit 2 and nothing written).
+    from .survey_cmd import is_survey_input, report_survey
+
+    if is_survey_input([source], survey_opts):
+        meta = ReportMeta(title=title or "Harmonic survey report", equipment=equipment or "",
+                          site=site or "", operator=operator or "", created_utc=created,
+                          command=_command_line(ctx))
+        report_survey(source, out, json_path, csv_dir, meta, report_id, lim,
+                      {**opts, **survey_opts}, force)
     plan = None
     if source.lower().endswith(".toml"):
         from ..run.build import run_plan

@@ -215,6 +215,37 @@ def check_recording(paths, fmt, lim, opts):
     raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
 
 
+def report_survey(source, out, json_path, csv_dir, meta, report_id, lim, opts, force):
+    """`pqcheck report` on an interval log: the report with its survey section."""
+    from dataclasses import replace
+
+    from ..files.atomic import write_atomic
+    from ..report.job import make_report_id
+    from ..report.survey_pdf import render_survey_pdf, survey_job_dict
+    from ..survey import assess_survey
+    from ._limits import resolve_limits
+
+    if not lim.get("limits"):
+        fail_usage("a survey report needs --limits (its statistics are those of a table)")
+    if csv_dir is not None:
+        fail_usage("--csv is not available for a survey report; use --json (every period's "
+                   "values are in it)")
+    resolved = resolve_limits(lim, opts.get("il_a"))
+    survey = load_survey([source], opts)
+    sa = assess_survey(survey, resolved, il_a=opts.get("il_a"))
+    rid = report_id or make_report_id(list(survey.sha256), meta.created_utc)
+    meta = replace(meta, report_id=rid)
+    doc = survey_job_dict(sa, meta)
+    results = (json.dumps(doc, indent=2) + "\n").encode("utf-8")
+    pdf = render_survey_pdf(sa, meta, results_json=results)
+    write_atomic(out, pdf, force=force, option="-o")
+    click.echo(f"{out}: {sa.verdict.upper()}; survey {', '.join(survey.sources)}; report {rid}")
+    if json_path is not None:
+        write_atomic(json_path, results, force=force, option="--json")
+        click.echo(f"  also wrote {json_path}")
+    raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
+
+
 def _register():
     from ._common import handle_errors, main
     from .analyze import capture_options
