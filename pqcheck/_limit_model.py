@@ -21,7 +21,10 @@ SCHEMA_VERSION = 1
 TAGS = ("V", "C", "P", "M")
 VERIFY_TAGS = frozenset({"P", "M"})
 
-MEASURES = ("group", "subgroup", "component")
+MEASURES = ("group", "subgroup", "component", "flicker")
+#: ``measure = "flicker"``: the table limits flicker and voltage changes (IEC 61000-3-3 /
+#: 61000-3-11), measured by pqcheck.flicker, and holds no harmonic orders.
+FLICKER_MEASURE = "flicker"
 APPLIES_TO = ("current", "voltage")
 
 #: basis -> (unit, quantities it can describe: which `applies_to`)
@@ -32,6 +35,9 @@ BASES = {
     "percent_of_iref": ("%", ("current",)),
     "amperes": ("A", ("current",)),
     "milliamperes_per_watt": ("mA/W", ("current",)),
+    "unitless": ("", ("voltage",)),
+    "percent_of_nominal_voltage": ("%", ("voltage",)),
+    "seconds": ("s", ("voltage",)),
 }
 
 #: total quantity -> (bases it may be expressed in, what it is)
@@ -43,7 +49,17 @@ TOTALS = {
     "PWHD": (("percent_of_fundamental",), "partial weighted harmonic distortion, % of the fundamental"),
     "TRD": (("percent_of_rated_current",), "total rated-current distortion, % of rated current"),
     "DC": (("percent_of_rated_current", "percent_of_il", "amperes"), "dc component"),
+    "Pst": (("unitless",), "short-term flicker severity (IEC 61000-4-15), per 10 min"),
+    "Plt": (("unitless",), "long-term flicker severity, per 2 h (12 Pst)"),
+    "dc_rel": (("percent_of_nominal_voltage",),
+               "relative steady-state voltage change dc, % of Un (IEC 61000-3-3)"),
+    "dmax": (("percent_of_nominal_voltage",), "maximum relative voltage change, % of Un"),
+    "Tmax": (("seconds",), "time the relative voltage change d(t) exceeds 3.3 %"),
 }
+
+#: The totals of flicker tables (``measure = "flicker"``) and the series they are taken from.
+FLICKER_TOTALS = {"Pst": "pst", "Plt": "plt", "dc_rel": "changes", "dmax": "changes",
+                  "Tmax": "changes"}
 
 #: Where a capture was taken (``[scope] location``): the point of common coupling of a site,
 #: or the supply terminals of one piece of equipment.
@@ -74,10 +90,14 @@ SELECTORS = {
     "equipment_class": ("choice", "--class", "", "equipment class"),
     "equipment": ("choice", "--equipment-kind", "", "kind of equipment"),
     "generation": ("flag", "--generation", "", "the equipment is power-generation equipment"),
+    "switching": ("choice", "--switching", "",
+                  "how the equipment is switched (selects the IEC 61000-3-3 dmax limit)"),
 }
 
 #: Series an evaluation statistic is taken over.
-SERIES = ("window", "smoothed", "3s", "10min")
+SERIES = ("window", "smoothed", "3s", "10min", "pst", "plt", "changes")
+#: Series of flicker tables: Pst per 10 min, Plt per 2 h, the voltage changes of the record.
+FLICKER_SERIES = ("pst", "plt", "changes")
 #: Statistics: mean, max, rms, or a percentile ``pNN``.
 _STATISTIC = re.compile(r"mean|max|rms|p(\d{1,2}(\.\d+)?)$")
 #: Measured factors a limit may be multiplied by (``times = ...``).

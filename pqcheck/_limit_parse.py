@@ -15,6 +15,9 @@ from collections import defaultdict
 from ._limit_model import (
     APPLIES_TO,
     BASES,
+    FLICKER_MEASURE,
+    FLICKER_SERIES,
+    FLICKER_TOTALS,
     LOCATIONS,
     MEASURES,
     SCHEMA_VERSION,
@@ -96,6 +99,7 @@ class _Ctx:
         self.errors: list[LimitTableError] = []
         self.selectors: dict[str, SelectorSpec] = {}
         self.max_order: int | None = None
+        self.flicker = False
 
     def error(self, problem: str, where, field: str | None = None) -> None:
         where = tuple(where)
@@ -234,7 +238,10 @@ def _table(ctx: _Ctx, raw: dict) -> LimitTable | None:
     measure_tag = ctx.string(raw, "measure_tag", where, choices=TAGS)
     tag = ctx.string(raw, "tag", where, default="V", choices=TAGS) or "V"
     max_order = raw.get("max_order", _MISSING)
-    if max_order is _MISSING:
+    ctx.flicker = measure == FLICKER_MEASURE
+    if max_order is _MISSING and ctx.flicker:
+        max_order = None  # a flicker table limits no harmonic order
+    elif max_order is _MISSING:
         ctx.error("missing field 'max_order' (the highest harmonic order the standard assesses, "
                   "e.g. 40 or 50)", (), field="max_order")
         max_order = None
@@ -478,6 +485,10 @@ def _checks(ctx, raw, key, where, tau) -> tuple:
         w = where + (key, i)
         ctx.keys(c, _CHECK_FIELDS, w, f"an evaluation.{key} entry")
         of = ctx.string(c, "of", w, required=True, choices=SERIES)
+        if of and (of in FLICKER_SERIES) != ctx.flicker:
+            ctx.error(f"of = {of!r} " + ("is for harmonic tables; a flicker table compares "
+                      f"{', '.join(map(repr, FLICKER_SERIES))}" if ctx.flicker else
+                      "needs measure = 'flicker'"), w + ("of",))
         stat = ctx.string(c, "statistic", w, required=True)
         if stat and not valid_statistic(stat):
             ctx.error(f"statistic {stat!r} is not one of mean, max, rms or pNN (a percentile, "
@@ -640,6 +651,10 @@ def _observation(ctx: _Ctx, raw) -> Observation:
 def _orders(ctx, spec, where) -> tuple:
     if not spec:
         return ()
+    if ctx.flicker:
+        ctx.error(f"a flicker table (measure = 'flicker') limits no harmonic orders, got "
+                  f"{spec!r}; give quantity = one of {', '.join(FLICKER_TOTALS)}", where)
+        return ()
     try:
         return parse_orders(spec, max_order=ctx.max_order)
     except ValueError as exc:
@@ -749,6 +764,11 @@ def _total_name(text: str) -> str:
 
 def _check_total_basis(ctx, q, basis, where):
     bases, meaning = TOTALS[q]
+    if (q in FLICKER_TOTALS) != ctx.flicker:
+        ctx.error(f"{q} ({meaning}) belongs in a table with measure = 'flicker'" if ctx.flicker
+                  is False else f"a flicker table (measure = 'flicker') limits only "
+                  f"{', '.join(FLICKER_TOTALS)}, not {q}", where)
+        return
     if basis and basis not in bases:
         ctx.error(f"basis {basis!r} does not fit {q} ({meaning}); {q} takes basis "
                   f"{' or '.join(map(repr, bases))}: put it in a [[limits]] block with that "

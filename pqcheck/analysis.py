@@ -262,6 +262,8 @@ class AnalysisResult:
     power: PowerResult | None
     findings: tuple
     reader_settings: dict = field(default_factory=dict)
+    #: :class:`pqcheck.flicker.FlickerAnalysis` when flicker was evaluated (never cached)
+    flicker: object = None
 
     def channel_index(self, name: str) -> int:
         """Index of channel ``name`` in :attr:`channels` and the window arrays."""

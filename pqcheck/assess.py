@@ -278,13 +278,48 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
     declared = declared or gates.Declared()
     checks, notes, found = [], [], []
     for t in tables:
-        c, n, g = _TableAssessor(result, t, refs, declared).run_gated()
+        if t.measure == "flicker":  # IEC 61000-3-3 / -3-11: pqcheck.flicker assesses them
+            c, n, g = _flicker_table(result, t, refs, declared)
+        else:
+            c, n, g = _TableAssessor(result, t, refs, declared).run_gated()
         checks += c
         notes += n
         found += g
     counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
     return Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
                       notes=tuple(dict.fromkeys(notes)), counts=counts, gates=tuple(found))
+
+
+def _flicker_table(result, table, refs, declared):
+    """Checks of a flicker table (pqcheck.flicker), behind the table's scope gates."""
+    from .flicker.assess import flicker_checks
+
+    flicker = getattr(result, "flicker", None)
+    if flicker is None:
+        raise InputError(f"{table.table_id} limits flicker and voltage changes; the analysis "
+                         "has no flicker evaluation (analyse with flicker = true)",
+                         field="flicker")
+    found = gates.scope_gates(result, table, declared, refs, trust_measured=True)
+    out_of_scope = [g for g in found if g.effect == "not applicable"]
+    blocking = [g for g in found if g.effect == "inconclusive"]
+    notes = [g.message for g in found if g.effect == "deviation"]
+    rows = [_gate_row(table, g) for g in out_of_scope + blocking]
+    if out_of_scope:
+        return rows, notes + [g.message for g in out_of_scope], found
+    checks, n = flicker_checks(flicker, table, check_cls=Check)
+    if blocking:
+        why = "; ".join(g.code for g in blocking)
+        checks = [replace(c, verdict="inconclusive", note=f"inconclusive: {why}; {c.note}")
+                  if c.verdict == "pass" else c for c in checks]
+    return checks + rows, notes + n, found
+
+
+def _gate_row(table, g) -> Check:
+    """A scope gate as a check row of a flicker table."""
+    return Check(table_id=table.table_id, quantity=g.code, order=None, applies_to="voltage",
+                 phase="", channel=", ".join(g.channels), statistic="gate", measured=g.value,
+                 limit=None, unit=g.unit, margin_percent=None, verdict=g.effect,
+                 clause="scope", verify=False, note=g.message)
 
 
 # --- one table -----------------------------------------------------------------------------

@@ -63,7 +63,11 @@ def analysis_to_dict(result, *, include_windows: bool = False) -> dict:
     phase_deg, group_rms, subgroup_rms}`` for orders 1..H, values ``null`` where the
     sample rate does not resolve the order), ``power`` (``phases`` with ``p_w``, ``s_va``,
     ``p1_w``, ``q1_var``, ``s1_va``, ``pf``, ``dpf``; ``total`` with ``p_w``, ``se_va``, ``pf``,
-    ``wiring`` and the three-phase extras) and ``findings``.
+    ``wiring`` and the three-phase extras) and ``findings``. With a flicker evaluation, each
+    evaluated channel (the voltage, or the current it was derived from) has a ``flicker``
+    object (``lamp``, ``pst``, ``pst_interval_s``, ``plt`` or null with ``plt_reason``,
+    ``pinst_max``, ``dc_percent``, ``dmax_percent``, ``tmax_s``, ``derived_from``, ``path``,
+    ...) and the top level a ``flicker`` summary (``path``, ``nominal_hz``, ``findings``).
     """
     w = result.windows
     chans = []
@@ -135,6 +139,15 @@ def analysis_to_dict(result, *, include_windows: bool = False) -> dict:
         "power": power,
         "findings": [f.to_dict() for f in result.findings],
     }
+    fa = getattr(result, "flicker", None)
+    if fa is not None:
+        by_name = {c["name"]: c for c in chans}
+        for cf in fa.channels:
+            if cf.channel in by_name:
+                by_name[cf.channel]["flicker"] = cf.to_dict()
+        out["flicker"] = {"path": fa.path, "nominal_hz": fa.nominal_hz,
+                          "channels": [cf.channel for cf in fa.channels],
+                          "findings": [f.to_dict() for f in fa.findings]}
     if include_windows:
         out["window_series"] = clean(windows_frame(result).to_dict(orient="list"))
     return clean(out)

@@ -107,6 +107,8 @@ def quantity_label(quantity, applies_to, order) -> str:
         return f"{iv}{int(order)}"
     if quantity == "THD":
         return f"THD({iv})"
+    if quantity == "dc_rel":  # IEC 61000-3-3 relative steady-state voltage change
+        return "dc"
     return quantity
 
 
@@ -380,6 +382,7 @@ _INPUTS = {
     "isc_il": "--isc and --il",
     "generation": "--generation",
     "equipment_class": "--class",
+    "switching": "--switching",
     "equipment": "--equipment-kind",
     "rsce": "--rsce",
     "ssc": "--ssc",
@@ -923,7 +926,8 @@ def dump_toml(table: LimitTable) -> str:
     for key in ("id", "title", "standard", "edition", "clause", "measure", "measure_tag"):
         if getattr(t, key) or key in ("id", "title", "standard", "edition", "measure"):
             _put(out, key, getattr(t, key))
-    _put(out, "max_order", t.max_order)
+    if t.max_order:  # a flicker table has none
+        _put(out, "max_order", t.max_order)
     _put(out, "tag", t.tag)
     if t.notes:
         out.append("notes = [")

@@ -26,7 +26,8 @@ from pqcheck.limits import (
 )
 
 LIMITS_DIR = Path(__file__).resolve().parents[1] / "limits"
-IDS = ["ieee519-2022", "ieee519-2014", "iec61000-3-2", "iec61000-3-12", "ieee1547-2018"]
+IDS = ["ieee519-2022", "ieee519-2014", "iec61000-3-2", "iec61000-3-12", "ieee1547-2018",
+       "iec61000-3-3", "iec61000-3-11"]
 
 
 def lim(resolved: ResolvedLimits, order, *, quantity=HARMONIC, applies_to="current", unit=None):
@@ -59,13 +60,16 @@ def all_cases(tid):
         kinds = ["single-phase", "interphase", "unbalanced-three-phase", "balanced-three-phase",
                  "balanced-three-phase-table4"]
         return [dict(equipment=k, rsce=r) for k in kinds for r in (33, 50, 66, 120, 250, 350, 900)]
+    if tid in ("iec61000-3-3", "iec61000-3-11"):
+        return [dict(switching=k) for k in ("automatic", "manual-or-delayed-restart",
+                                            "attended-or-twice-daily")]
     return [{}]
 
 
 # --- the tables as data --------------------------------------------------------------------
 
 
-def test_bundled_ids_are_the_five_sets():
+def test_bundled_ids_are_the_seven_sets():
     assert sorted(bundled_ids()) == sorted(IDS)
 
 
@@ -81,7 +85,8 @@ def test_table_file_is_named_by_its_id_and_hashed(tid):
 @pytest.mark.parametrize("tid", IDS)
 def test_units_present_and_match_the_basis(tid):
     units = {"percent_of_fundamental": "%", "percent_of_il": "%", "percent_of_iref": "%",
-             "percent_of_rated_current": "%", "amperes": "A", "milliamperes_per_watt": "mA/W"}
+             "percent_of_rated_current": "%", "amperes": "A", "milliamperes_per_watt": "mA/W",
+             "unitless": "", "percent_of_nominal_voltage": "%", "seconds": "s"}
     for case in all_cases(tid):
         for item in resolve(tid, **case).items:
             assert item.unit == units[item.basis], item
@@ -425,7 +430,8 @@ def test_load_by_path_and_unknown_id():
     assert read_table(path) == load_table("IEC61000-3-2")
     assert load_table(str(path)) == load_table("iec61000-3-2")
     with pytest.raises(LimitTableError, match=r"^--limits: unknown limit table 'ieee-519'; "
-                                              r"bundled tables: iec61000-3-12, iec61000-3-2, "):
+                                              r"bundled tables: iec61000-3-11, iec61000-3-12, "
+                                              r"iec61000-3-2, "):
         load_table("ieee-519")
 
 

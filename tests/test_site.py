@@ -32,11 +32,11 @@ from hypothesis import strategies as st
 from pqcheck import Capture, analyze
 from pqcheck.cli import main
 from pqcheck.errors import PlanError
+from pqcheck.run.site import load_site
 from pqcheck.site import (
     aggregate,
     harmonic_impedance,
     harmonic_voltages,
-    load_site,
     site_template,
     source_impedance,
     spectrum_from_analysis,

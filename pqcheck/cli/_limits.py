@@ -16,7 +16,7 @@ __all__ = ["LIMIT_OPTION_NAMES", "limit_options", "resolve_limits", "positive_op
 LIMIT_OPTION_NAMES = ("limits", "voltage_level", "isc", "generation", "equipment_class",
                       "equipment_kind", "rsce", "ssc", "rated_power", "rated_current", "iref",
                       "active_power", "location", "behaviour", "cycle", "representative_period",
-                      "phases")
+                      "phases", "switching")
 
 
 def limit_options(*, required: bool, limits_help: str | None = None):
@@ -59,6 +59,10 @@ def limit_options(*, required: bool, limits_help: str | None = None):
                           "--iref)."),
         click.option("--iref", type=float, metavar="A",
                      help="Reference current Iref (IEC 61000-3-12)."),
+        click.option("--switching", "switching", metavar="KIND",
+                     help="How the equipment is switched (IEC 61000-3-3 / -3-11 dmax limit): "
+                          "automatic (4 %), manual-or-delayed-restart (6 %), "
+                          "attended-or-twice-daily (7 %)."),
         click.option("--active-power", "active_power", type=float, metavar="W",
                      help="Declared active input power for per-watt limits and the scope's "
                           "power bounds (IEC 61000-3-2); used when within 10 % of the "
@@ -117,7 +121,7 @@ def selectors_from(lim: dict, il_a) -> dict:
     return dict(voltage_level=lim.get("voltage_level"), isc=lim.get("isc"), il=il_a,
                 generation=lim.get("generation"), equipment_class=lim.get("equipment_class"),
                 equipment=lim.get("equipment_kind"), rsce=lim.get("rsce"), ssc=lim.get("ssc"),
-                rated_power=lim.get("rated_power"))
+                rated_power=lim.get("rated_power"), switching=lim.get("switching"))
 
 
 def resolve_limits(lim: dict, il_a) -> list:
@@ -149,5 +153,6 @@ _OPTION_OF = {"equipment_class": "--class", "equipment": "--equipment-kind", "rs
 def tables_max_order(ctx, opts: dict, resolved) -> None:
     """Without an explicit --max-order, analyse up to the highest order the tables assess."""
     src = ctx.get_parameter_source("max_order")
-    if resolved and (src is None or src.name in ("DEFAULT", "DEFAULT_MAP")):
-        opts["max_order"] = max(r.max_order for r in resolved)
+    orders = [r.max_order for r in resolved if r.max_order]  # flicker tables have none
+    if orders and (src is None or src.name in ("DEFAULT", "DEFAULT_MAP")):
+        opts["max_order"] = max(orders)

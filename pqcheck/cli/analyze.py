@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import math
+
 import click
 import numpy as np
 
 from ._common import EXIT_OK, handle_errors, main, split_columns
 
-__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs"]
+__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs", "flicker_settings",
+           "with_flicker"]
 
 
 def capture_options(func):
@@ -44,6 +47,27 @@ def capture_options(func):
                      type=click.Choice(["line-to-neutral", "line-to-line"]),
                      help="How the voltages were measured. Default: line-to-line when the "
                           "three voltage names end in ab, bc, ca, else line-to-neutral."),
+        click.option("--flicker", "flicker", is_flag=True, default=False,
+                     help="Also evaluate flicker (IEC 61000-4-15 Pst, Plt) and voltage changes "
+                          "(IEC 61000-3-3 dc, dmax, Tmax) per voltage channel, or per current "
+                          "channel through an impedance. Implied by a flicker limit table."),
+        click.option("--flicker-path", "flicker_path",
+                     type=click.Choice(["auto", "voltage", "reference-impedance",
+                                        "system-impedance"]), default="auto", show_default=True,
+                     help="Voltage the flickermeter sees: the measured voltage, or the current "
+                          "through the IEC 61000-3-3 reference impedance or through "
+                          "--system-impedance (IEC 61000-3-11). auto: voltage when the capture "
+                          "has one, else reference-impedance."),
+        click.option("--system-impedance", "system_impedance", metavar="R,X[,RN,XN]",
+                     help="Supply impedance for IEC 61000-3-11 in ohm (reactance at 50 Hz): "
+                          "phase R,X and optionally neutral RN,XN; with only R,X it is a "
+                          "single-phase loop split 3:2 between phase and neutral as Zref."),
+        click.option("--lamp", type=click.Choice(["230V", "120V"]),
+                     help="Flickermeter lamp. Default: 120V below 180 V nominal, else 230V."),
+        click.option("--nominal-voltage", "nominal_voltage", type=float, metavar="V",
+                     help="Nominal line-to-neutral voltage Un the voltage changes are relative "
+                          "to. Default: the standard value nearest to the data (230 V on the "
+                          "impedance paths at 50 Hz, 120 V at 60 Hz)."),
         click.option("--no-cache", "no_cache", is_flag=True,
                      help="Do not read or write the cache of parsed captures and results."),
         click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False),
@@ -67,6 +91,50 @@ def analysis_kwargs(opts: dict) -> dict:
     }
 
 
+def flicker_settings(opts: dict):
+    """:class:`pqcheck.flicker.FlickerSettings` from parsed options (None: no flicker)."""
+    from ..errors import InputError
+    from ..flicker import FlickerSettings, SupplyImpedance
+
+    path = opts.get("flicker_path") or "auto"
+    zsys = opts.get("system_impedance")
+    wanted = opts.get("flicker") or path != "auto" or zsys
+    if not wanted:
+        return None
+    z = None
+    if zsys:
+        try:
+            parts = [float(x) for x in str(zsys).replace(";", ",").split(",")]
+        except ValueError:
+            parts = []
+        if len(parts) not in (2, 4):
+            raise InputError(f"give R,X or R,X,RN,XN in ohm, got {zsys!r}",
+                             field="--system-impedance")
+        z = (SupplyImpedance.from_loop(*parts) if len(parts) == 2
+             else SupplyImpedance(*parts))
+        if path == "auto":
+            path = "system-impedance"
+    elif path == "system-impedance":
+        raise InputError("the system-impedance path needs --system-impedance R,X[,RN,XN]",
+                         field="--system-impedance")
+    nominal_v = opts.get("nominal_voltage")
+    if nominal_v is not None and not (nominal_v > 0 and math.isfinite(nominal_v)):
+        raise InputError(f"must be a positive voltage, got {nominal_v:g}",
+                         field="--nominal-voltage")
+    return FlickerSettings(path=path, lamp=opts.get("lamp"), nominal_v=nominal_v,
+                           system_impedance=z)
+
+
+def with_flicker(capture, result, settings):
+    """The analysis result with its flicker evaluation (``result.flicker``)."""
+    import dataclasses
+
+    from ..flicker import analyze_flicker
+
+    fa = analyze_flicker(capture, nominal_hz=int(result.settings.nominal_hz), settings=settings)
+    return dataclasses.replace(result, flicker=fa)
+
+
 def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
     """Read and analyse one capture with parsed capture options; returns (capture, result).
 
@@ -81,8 +149,9 @@ def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
     if progress is None and not opts.get("quiet"):
         bar = _ProgressBar(capture_path)
         progress = bar
+    fl = flicker_settings(opts)
     try:
-        return analyze_file(
+        capture, result = analyze_file(
             [capture_path, *opts["add_file"]] if opts.get("add_file") else capture_path,
             sample_rate_hz=opts.get("sample_rate"),
             current=split_columns(opts.get("current")),
@@ -93,6 +162,9 @@ def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
             progress=progress,
             **analysis_kwargs(opts),
         )
+        if fl is not None:
+            result = with_flicker(capture, result, fl)
+        return capture, result
     finally:
         if bar is not None:
             bar.close()
@@ -214,6 +286,9 @@ def render_table(result) -> str:
         if "i_unbalance_percent" in p.extra:
             lines.append(f"  current unbalance (I2/I1) {_fmt(p.extra['i_unbalance_percent'], 3)} %"
                          f", voltage unbalance {_fmt(p.extra['v_unbalance_percent'], 3)} %")
+    if r.flicker is not None:
+        lines.append("")
+        lines += render_flicker(r.flicker)
     lines.append("")
     if r.findings:
         lines.append("Findings")
@@ -222,6 +297,31 @@ def render_table(result) -> str:
     else:
         lines.append("Findings: none")
     return "\n".join(lines)
+
+
+def render_flicker(fa) -> list:
+    """Text lines of a flicker evaluation."""
+    out = [f"Flicker (IEC 61000-4-15) and voltage changes (IEC 61000-3-3), path {fa.path}"]
+    head = (f"{'channel':<12}{'lamp':<11}{'Pst max':>9}{'Plt':>8}{'Pinst max':>11}"
+            f"{'dc %':>8}{'dmax %':>8}{'Tmax s':>8}  Pst interval")
+    out.append(head)
+    out.append("-" * len(head))
+    for c in fa.channels:
+        d = c.to_dict()
+        out.append(
+            f"{c.channel:<12}{c.meter.lamp:<11}{_fmt(c.pst_max, 4):>9}"
+            f"{_fmt(c.plt, 4) if c.plt is not None else '-':>8}"
+            f"{_fmt(c.meter.pinst_max, 4):>11}{_fmt(d['dc_percent'], 3):>8}"
+            f"{_fmt(c.change.dmax_percent, 3):>8}{_fmt(c.change.tmax_s, 3):>8}  "
+            f"{len(c.meter.pst)} x {c.meter.interval_s:g} s")
+        if c.derived_from:
+            out.append(f"  derived from {c.derived_from} through {c.impedance}, source "
+                       f"{c.source}, Un {c.un_v:g} V")
+        for f in c.findings:
+            out.append(f"  [{f.severity}] {f.code}: {f.message}")
+    for f in fa.findings:
+        out.append(f"  [{f.severity}] {f.code}: {f.message}")
+    return out
 
 
 @main.command("analyze")

@@ -52,7 +52,9 @@ def render_assessment(assessment, result=None) -> str:
             lines.append(f"           selectors: {sel}")
         for row in t.rows:
             lines.append(f"           {row}")
-        lines.append(f"           measure: IEC 61000-4-7 harmonic {t.measure}")
+        lines.append("           measure: IEC 61000-4-15 flickermeter and IEC 61000-3-3 "
+                     "voltage changes" if t.measure == "flicker"
+                     else f"           measure: IEC 61000-4-7 harmonic {t.measure}")
     if a.notes:
         lines.append("Notes")
         lines += [f"  - {n}" for n in a.notes]
@@ -118,6 +120,8 @@ def check_cmd(ctx, capture, fmt, **opts):
     capture = capture[0]
     resolved = resolve_limits(lim, opts.get("il_a"))
     tables_max_order(ctx, opts, resolved)
+    if any(r.measure == "flicker" for r in resolved):
+        opts["flicker"] = True
     _, result = load_and_analyze(capture, opts)
     a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=lim["rated_current"],
                iref_a=lim["iref"], active_power_w=lim["active_power"],

@@ -17,11 +17,15 @@ _BASIS_TEXT = {
     "percent_of_iref": "% of the reference current Iref",
     "amperes": "A (rms)",
     "milliamperes_per_watt": "mA per W of active input power",
+    "unitless": "unitless (flicker severity)",
+    "percent_of_nominal_voltage": "% of the nominal voltage Un",
+    "seconds": "s",
 }
 _MEASURE_TEXT = {"group": "harmonic group", "subgroup": "harmonic subgroup",
                  "component": "harmonic component (single 5 Hz bin)"}
 _SERIES_TEXT = {"window": "10/12-cycle values", "smoothed": "1.5 s smoothed values",
-                "3s": "3 s values", "10min": "10 min values"}
+                "3s": "3 s values", "10min": "10 min values", "pst": "10-minute Pst values",
+                "plt": "2-hour Plt values", "changes": "voltage changes of the capture"}
 _LEGEND = ("* verify against your copy of the standard (tag P: partly verified, M: from "
            "memory). Tags: V verified in a public reproduction, C computed from a published "
            "formula.")
@@ -93,9 +97,14 @@ def render_table(table: LimitTable) -> str:
     if t.source:
         lines.append(f"File        {t.source}")
         lines.append(f"SHA-256     {t.sha256}")
-    lines.append(f"Measure     IEC 61000-4-7 {_MEASURE_TEXT[t.measure]}"
-                 f"{' ' + _mark(t.measure_tag) if _mark(t.measure_tag) else ''}, "
-                 f"orders up to {t.max_order}")
+    if t.measure == "flicker":
+        lines.append("Measure     IEC 61000-4-15 flickermeter (Pst, Plt) and IEC 61000-3-3 "
+                     "relative voltage changes (dc, dmax, Tmax)"
+                     f"{' ' + _mark(t.measure_tag) if _mark(t.measure_tag) else ''}")
+    else:
+        lines.append(f"Measure     IEC 61000-4-7 {_MEASURE_TEXT[t.measure]}"
+                     f"{' ' + _mark(t.measure_tag) if _mark(t.measure_tag) else ''}, "
+                     f"orders up to {t.max_order}")
     if t.selectors:
         lines.append("Selectors")
         for s in t.selectors:
@@ -206,6 +215,14 @@ def _render_block(t: LimitTable, blk) -> list:
                 if rule.factor is not None else f"{_num(rule.limit)} {blk.unit}")
         lines.append(f"  even h {rule.orders}: {what}{' ' + _mark(tag) if _mark(tag) else ''}"
                      + (f" ({rule.note})" if rule.note else ""))
+    if not blk.columns:  # rows holding items only (e.g. dmax by switching condition)
+        for r in blk.rows:
+            cond = "; ".join(f"{k} {_cond(t, k, c)}" for k, c in r.conditions)
+            for it in r.items:
+                tag = it.tag or r.tag or tag0
+                lines.append(f"  {cond}: {it.quantity}: {_num(it.limit)} "
+                             f"{BASES[blk.basis][0]}{' ' + _mark(tag) if _mark(tag) else ''}"
+                             + (f" ({it.note})" if it.note else ""))
     for it in blk.items:
         tag = it.tag or tag0
         what = f"h {it.orders}" if it.orders else it.quantity

@@ -210,7 +210,8 @@ def site_run(site_file, output, json_path, force, fmt, summation, title, operato
     from ..export import dumps
     from ..files.atomic import check_target, write_atomic
     from ..report.job import make_report_id
-    from ..site import load_site, study_site, study_to_dict
+    from ..run.site import load_site
+    from ..site import study_site, study_to_dict
 
     # 1. Every output must be writable, and none may be an input, before any work is done.
     outputs = [(opt, Path(p)) for opt, p in (("-o", output), ("--json", json_path))

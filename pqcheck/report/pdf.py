@@ -402,6 +402,9 @@ _BASIS_LABEL = {
     "percent_of_iref": "% of Iref",
     "amperes": "A",
     "milliamperes_per_watt": "mA/W",
+    "unitless": "",
+    "percent_of_nominal_voltage": "% of Un",
+    "seconds": "s",
 }
 
 

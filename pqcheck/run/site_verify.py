@@ -103,7 +103,8 @@ def verify_site(path, *, search=(), rel_tol: float = REL_TOL,
         no longer runs (the message says what and where it was looked for).
     """
     from ..export import dumps
-    from ..site import load_site, study_site, study_to_dict
+    from ..site import study_site, study_to_dict
+    from .site import load_site
 
     p = Path(path)
     recorded, pdf, attached = _read(p)

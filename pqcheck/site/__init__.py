@@ -16,8 +16,10 @@ each kind of unit, in three modules:
     The site description as frozen dataclasses (:class:`Site` with :class:`Supply`,
     :class:`SiteTransformer`, :class:`OtherLoad`, :class:`Unit`, :class:`UnitSpectrum`), the
     unit spectra (:func:`spectrum_from_analysis`, :func:`spectrum_from_dict`) and the site file
-    (:func:`load_site`: TOML, every problem a :class:`~pqcheck.errors.PlanError` naming file,
-    line and field; :func:`site_template`).
+    (:func:`read_site`: TOML, every problem a :class:`~pqcheck.errors.PlanError` naming file,
+    line and field, every number within its physical range; :func:`build_site`;
+    :func:`site_template`). :func:`pqcheck.run.site.load_site` reads a site file and the
+    units' data (captures analysed like any capture check, or saved results).
 :mod:`pqcheck.site.study`
     :func:`study_site`: the estimate at the PCC, one :class:`pqcheck.assess.Check` per limit
     (the verdict rule of :func:`pqcheck.assess.overall_verdict`), the outcome under every
@@ -67,7 +69,17 @@ from .network import (
     transformer_shift,
     vector_group_shift,
 )
-from .sitefile import MAX_UNITS, RANGES, SCHEMA_VERSION, load_site, shown_path, site_template
+from .sitefile import (
+    MAX_UNITS,
+    RANGES,
+    SCHEMA_VERSION,
+    SiteFile,
+    UnitEntry,
+    build_site,
+    read_site,
+    shown_path,
+    site_template,
+)
 from .study import (
     CAUTIONS,
     MAX_HEADROOM,
@@ -103,7 +115,10 @@ __all__ = [
     "Headroom",
     "SummationOutcome",
     "SiteStudy",
-    "load_site",
+    "SiteFile",
+    "UnitEntry",
+    "read_site",
+    "build_site",
     "spectrum_from_analysis",
     "spectrum_from_dict",
     "study_site",

@@ -1,5 +1,7 @@
-"""The site file: :func:`load_site` reads and validates a site description (TOML) and the unit
-data it names; :func:`site_template` is the commented template ``pqcheck site new`` writes.
+"""The site file: :func:`read_site` reads and validates a site description (TOML),
+:func:`build_site` makes the :class:`~pqcheck.site.Site` once the units' data are read (by
+:func:`pqcheck.run.site.load_site`), and :func:`site_template` is the commented template
+``pqcheck site new`` writes.
 
 Every problem is a :class:`~pqcheck.errors.PlanError` naming the file, the line and the field;
 every number is checked against its physical range (:data:`RANGES`) before anything is
@@ -9,25 +11,17 @@ computed with it.
 from __future__ import annotations
 
 import hashlib
-import json
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
 from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
-from .model import (
-    PCC_LOCATIONS,
-    OtherLoad,
-    Site,
-    SiteTransformer,
-    Supply,
-    Unit,
-    spectrum_from_analysis,
-    spectrum_from_dict,
-)
+from .model import PCC_LOCATIONS, OtherLoad, Site, SiteTransformer, Supply, Unit
 from .network import SQRT3, SUMMATIONS, vector_group_shift
 from .study import SITE_BASES
 
-__all__ = ["SCHEMA_VERSION", "MAX_UNITS", "RANGES", "load_site", "site_template", "shown_path"]
+__all__ = ["SCHEMA_VERSION", "MAX_UNITS", "RANGES", "SiteFile", "UnitEntry", "read_site",
+           "build_site", "site_template", "shown_path"]
 
 #: Version of the site file's layout this pqcheck reads.
 SCHEMA_VERSION = 1
@@ -98,39 +92,35 @@ class _Reader(DocReader):
         return out
 
 
-def load_site(path, *, analyse=None) -> Site:
-    """Read and validate a site description and the unit data it names.
+def read_site(path) -> SiteFile:
+    """Read and validate a site description (not yet the unit data it names).
 
     Parameters
     ----------
     path : str or os.PathLike
         The site file (TOML; write a commented one with :func:`site_template`).
-    analyse : callable or None
-        ``analyse(capture_path, options) -> AnalysisResult`` for units given by a capture;
-        default: :func:`pqcheck.load_capture` and :func:`pqcheck.analyze` with the site's
-        nominal frequency and orders up to 50.
 
     Returns
     -------
-    Site
+    SiteFile
+        Everything the file says, each unit as a :class:`UnitEntry` (its data file checked
+        to exist); :func:`pqcheck.run.site.load_site` reads the units' data and builds the
+        :class:`~pqcheck.site.Site`.
 
     Raises
     ------
     PlanError
         The file is missing or not TOML, a field is unknown, has the wrong type or value, a
-        required field is missing, a file it names does not exist or does not hold usable
-        results, or the units' nominal frequencies disagree. The message names the file, the
-        line and the field.
-    InputError
-        A capture named by a unit cannot be read or analysed (the reader's own error, naming
-        the capture file).
+        required field is missing, a number is outside its physical range (:data:`RANGES`)
+        or a file it names does not exist. The message names the file, the line and the
+        field.
 
     Examples
     --------
     >>> import pathlib, tempfile
     >>> d = pathlib.Path(tempfile.mkdtemp())
     >>> _ = (d / "site.toml").write_text('[supply]\\nnominal_voltage_v = 400\\n')
-    >>> load_site(d / "site.toml")
+    >>> read_site(d / "site.toml")
     Traceback (most recent call last):
     ...
     pqcheck.errors.PlanError: ...site.toml:1: supply: missing field 'ssc_va' or 'isc_a': ...
@@ -251,14 +241,38 @@ def load_site(path, *, analyse=None) -> Site:
     if not isinstance(entries, list) or not all(isinstance(x, dict) for x in entries) \
             or not entries:
         raise r.error(("units",), "must be an array of tables ([[units]] entries)")
-    units = []
-    for k, item in enumerate(entries):
-        units.append(_load_unit(r, item, k, folder, f_nom, analyse))
+    units = tuple(_unit_entry(r, item, k, folder) for k, item in enumerate(entries))
     names = [u.name for u in units]
     for k, u in enumerate(units):
         if names.index(u.name) != k:
             raise r.error(("units", k, "name"),
                           f"unit name {u.name!r} is used twice; give each kind its own name")
+    return SiteFile(
+        name=top.get("name", "") or path.stem, nominal_hz=f_nom, supply=supply,
+        units=units, transformer=transformer, pcc_location=location, other_load=other,
+        summation=summation, il_a=pcc.get("il_a"), limits=table,
+        generation=lim.get("generation", False), notes=top.get("notes", ""), path=path,
+        sha256=hashlib.sha256(raw).hexdigest(), limit_table=limit_table, reader=r)
+
+
+def build_site(sf: SiteFile, units) -> Site:
+    """The :class:`~pqcheck.site.Site` of a site file once every unit's data are read.
+
+    Parameters
+    ----------
+    sf : SiteFile
+    units : sequence of Unit
+        One per entry of ``sf.units``, in order.
+
+    Raises
+    ------
+    PlanError
+        The units' nominal frequencies disagree (with each other or the site's), or the
+        phasor sum is asked for a unit without a voltage reference (naming file, line and
+        field).
+    """
+    r = sf.reader
+    f_nom = sf.nominal_hz
     noms = {u.spectrum.nominal_hz for u in units if u.spectrum.nominal_hz}
     if f_nom is None:
         if len(noms) > 1:
@@ -275,7 +289,7 @@ def load_site(path, *, analyse=None) -> Site:
                 raise r.error(("units", k),
                               f"the data of unit {u.name!r} are for {u.spectrum.nominal_hz:g} "
                               f"Hz but the site is {f_nom:g} Hz")
-    if summation == "phasor":
+    if sf.summation == "phasor":
         for k, u in enumerate(units):
             if not u.spectrum.phase_measured:
                 raise r.error(("units", k),
@@ -284,25 +298,13 @@ def load_site(path, *, analyse=None) -> Site:
                               "voltage reference; measure a voltage with the currents or use "
                               "summation = \"general\"")
     return Site(
-        name=top.get("name", "") or path.stem, nominal_hz=float(f_nom), supply=supply,
-        units=tuple(units), transformer=transformer, pcc_location=location, other_load=other,
-        summation=summation, il_a=pcc.get("il_a"), limits=table,
-        generation=lim.get("generation", False), notes=top.get("notes", ""), path=path,
-        sha256=hashlib.sha256(raw).hexdigest(), limit_table=limit_table)
+        name=sf.name, nominal_hz=float(f_nom), supply=sf.supply, units=tuple(units),
+        transformer=sf.transformer, pcc_location=sf.pcc_location, other_load=sf.other_load,
+        summation=sf.summation, il_a=sf.il_a, limits=sf.limits, generation=sf.generation,
+        notes=sf.notes, path=sf.path, sha256=sf.sha256, limit_table=sf.limit_table)
 
 
-def _default_analyse(capture_path, options):
-    from ..analysis import analyze
-    from ..readers import load_capture
-
-    cap = load_capture(capture_path, sample_rate_hz=options.get("sample_rate_hz"),
-                       current=options.get("current"), voltage=options.get("voltage"),
-                       time_column=options.get("time_column"))
-    nominal = options.get("nominal_hz")
-    return analyze(cap, nominal_hz=None if nominal is None else int(nominal), max_order=50)
-
-
-def _load_unit(r: _Reader, item, k: int, folder: Path, f_nom, analyse) -> Unit:
+def _unit_entry(r: _Reader, item, k: int, folder: Path) -> UnitEntry:
     kp = ("units", k)
     vals = r.table(item, kp, _UNIT)
     name = vals.get("name", "").strip()
@@ -312,7 +314,6 @@ def _load_unit(r: _Reader, item, k: int, folder: Path, f_nom, analyse) -> Unit:
     load_point = r.require(vals, kp, "load_point", "the operating point the capture "
                                                    "represents, e.g. \"100 %\" (every unit is "
                                                    "assumed to run there)")
-    shift = vals.get("phase_shift_deg", 0.0)
     connection = vals.get("connection")
     if connection is not None and connection not in ("three-phase", "single-phase"):
         raise r.error(kp + ("connection",), f"must be \"three-phase\" or \"single-phase\", got "
@@ -342,29 +343,95 @@ def _load_unit(r: _Reader, item, k: int, folder: Path, f_nom, analyse) -> Unit:
         where = "" if Path(text).is_absolute() else \
             f" (resolved against the site file's folder {folder})"
         raise r.error(kp + (key,), f"file {text!r} not found{where}")
-    try:
-        if has_cap:
-            options = {"current": vals.get("current"), "voltage": vals.get("voltage"),
-                       "sample_rate_hz": vals.get("sample_rate_hz"),
-                       "time_column": vals.get("time_column"), "nominal_hz": f_nom}
-            result = (analyse or _default_analyse)(fpath, options)
-            spectrum = spectrum_from_analysis(result, connection=connection, phase=phase)
-        else:
-            raw = fpath.read_bytes()
-            try:
-                doc = json.loads(raw.decode("utf-8"))
-            except (UnicodeDecodeError, ValueError) as exc:
-                raise ValueError(f"not JSON results ({exc})") from None
-            spectrum = spectrum_from_dict(doc, source=str(fpath),
-                                          sha256=hashlib.sha256(raw).hexdigest(),
-                                          connection=connection, phase=phase,
-                                          load_point=load_point)
-    except ValueError as exc:
-        if isinstance(exc, InputError):
-            raise
-        raise r.error(kp + (key,), f"{text}: {exc}") from None
-    return Unit(name=name, count=count, load_point=load_point, spectrum=spectrum,
-                phase_shift_deg=shift, line=r.lines.line(kp), source_kind=key)
+    return UnitEntry(index=k, name=name, count=count, load_point=load_point,
+                     phase_shift_deg=vals.get("phase_shift_deg", 0.0), connection=connection,
+                     phase=phase, kind=key, text=text, path=fpath,
+                     current=vals.get("current"), voltage=vals.get("voltage"),
+                     sample_rate_hz=vals.get("sample_rate_hz"),
+                     time_column=vals.get("time_column"), line=r.lines.line(kp))
+
+
+@dataclass(frozen=True)
+class UnitEntry:
+    """One ``[[units]]`` entry of a site file, before its data are read.
+
+    Attributes
+    ----------
+    index : int
+        Position in the file (0-based).
+    name : str
+    count : int
+        [unitless]
+    load_point : str
+    phase_shift_deg : float
+        [deg]
+    connection, phase : str or None
+        For data with one current channel.
+    kind : str
+        ``"capture"`` or ``"results"``.
+    text : str
+        The file as written in the site file.
+    path : pathlib.Path
+        The file, resolved against the site file's folder.
+    current, voltage : tuple of str or None
+        Channel map of a capture.
+    sample_rate_hz : float or None
+        [Hz]
+    time_column : str or None
+    line : int or None
+        Line of the entry.
+    """
+
+    index: int
+    name: str
+    count: int
+    load_point: str
+    phase_shift_deg: float
+    connection: str | None
+    phase: str | None
+    kind: str
+    text: str
+    path: Path
+    current: tuple | None = None
+    voltage: tuple | None = None
+    sample_rate_hz: float | None = None
+    time_column: str | None = None
+    line: int | None = None
+
+    def unit(self, spectrum) -> Unit:
+        """The :class:`~pqcheck.site.Unit` of this entry with its spectrum."""
+        return Unit(name=self.name, count=self.count, load_point=self.load_point,
+                    spectrum=spectrum, phase_shift_deg=self.phase_shift_deg, line=self.line,
+                    source_kind=self.kind)
+
+
+@dataclass(frozen=True, eq=False)
+class SiteFile:
+    """A validated site file (:func:`read_site`): a :class:`~pqcheck.site.Site` without the
+    units' data. Fields as :class:`~pqcheck.site.Site`; ``nominal_hz`` is None when the file
+    leaves it to the units' data, ``units`` holds :class:`UnitEntry` records."""
+
+    name: str
+    nominal_hz: float | None
+    supply: Supply
+    units: tuple
+    transformer: SiteTransformer | None
+    pcc_location: str
+    other_load: OtherLoad
+    summation: str
+    il_a: float | None
+    limits: str
+    generation: bool
+    notes: str
+    path: Path
+    sha256: str
+    limit_table: object
+    reader: object = field(repr=False)
+
+    def error(self, entry: UnitEntry, key: str | None, problem: str):
+        """A :class:`~pqcheck.errors.PlanError` about one unit entry (file, line, field)."""
+        kp = ("units", entry.index) + ((key,) if key else ())
+        return self.reader.error(kp, problem)
 
 
 _TEMPLATE = '''\
