@@ -80,17 +80,18 @@ SCOPE_EFFECTS = ("not applicable", "inconclusive")
 #: The one quantity name of an individual harmonic order.
 HARMONIC = "harmonic"
 
-#: Selector names pqcheck knows: name -> (kind, command-line option(s), unit, meaning)
+#: Selector names pqcheck knows: name -> (kind, the resolve() keyword(s) that give it, unit,
+#: meaning)
 SELECTORS = {
-    "voltage_level": ("band", "--voltage-level", "V", "nominal bus voltage at the PCC"),
-    "isc_il": ("band", "--isc and --il", "",
+    "voltage_level": ("band", "`voltage_level_v`", "V", "nominal bus voltage at the PCC"),
+    "isc_il": ("band", "`isc_a` and `il_a`", "",
                "ISC/IL, maximum short-circuit current over maximum demand load current at the PCC"),
-    "rsce": ("points", "--rsce (or --ssc and --rated-power)", "",
+    "rsce": ("points", "`rsce` (or `ssc_va` and `rated_apparent_power_va`)", "",
              "short-circuit ratio Rsce"),
-    "equipment_class": ("choice", "--class", "", "equipment class"),
-    "equipment": ("choice", "--equipment-kind", "", "kind of equipment"),
-    "generation": ("flag", "--generation", "", "the equipment is power-generation equipment"),
-    "switching": ("choice", "--switching", "",
+    "equipment_class": ("choice", "`equipment_class`", "", "equipment class"),
+    "equipment": ("choice", "`equipment_kind`", "", "kind of equipment"),
+    "generation": ("flag", "`generation`", "", "the equipment is power-generation equipment"),
+    "switching": ("choice", "`switching`", "",
                   "how the equipment is switched (selects the IEC 61000-3-3 dmax limit)"),
 }
 

@@ -248,7 +248,7 @@ def _table(ctx: _Ctx, raw: dict) -> LimitTable | None:
     elif isinstance(max_order, bool) or not isinstance(max_order, int) or max_order < 2:
         ctx.error(f"max_order must be a whole number >= 2, got {max_order!r}", ("max_order",))
         max_order = None
-    elif max_order > 100:  # the analysis reports orders up to 100 (pqcheck analyze --max-order)
+    elif max_order > 100:  # the analysis reports orders up to 100 (max_order)
         ctx.error(f"max_order must be at most 100 (the highest order pqcheck analyses), got "
                   f"{max_order}", ("max_order",))
         max_order = None

@@ -352,18 +352,18 @@ def analyze(
     if nominal_hz is not None and nominal_hz not in (50, 60):
         raise InputError(
             f"nominal frequency must be 50 or 60 Hz, got {nominal_hz!r}", path=path,
-            field="--nominal-frequency",
+            field="nominal_hz",
         )
     if not (isinstance(max_order, (int, np.integer)) and 2 <= max_order <= 100):
         raise InputError(
             f"maximum order must be a whole number from 2 to 100, got {max_order!r}",
-            path=path, field="--max-order",
+            path=path, field="max_order",
         )
     if il_a is not None and not (np.isfinite(il_a) and il_a > 0):
-        raise InputError(f"IL must be a positive current in A, got {il_a!r}", field="--il")
+        raise InputError(f"IL must be a positive current in A, got {il_a!r}", field="il_a")
     if wiring is not None and wiring not in WIRINGS:
         raise InputError(f"wiring must be one of {', '.join(WIRINGS)}, got {wiring!r}",
-                         field="--wiring")
+                         field="wiring")
     max_order = int(max_order)
     fs = float(capture.fs_hz)
     chans = [c for c in capture.channels if c.quantity in ("current", "voltage")]
@@ -372,7 +372,7 @@ def analyze(
     names = [c.name for c in chans]
     if reference is not None and reference not in names:
         raise InputError(f"reference channel {reference!r} is not an analysed channel; "
-                         f"choose one of {', '.join(names)}", path=path, field="--reference")
+                         f"choose one of {', '.join(names)}", path=path, field="reference")
     nominal_in = nominal_hz
     max_order = int(max_order)
     for c in chans:
@@ -380,7 +380,7 @@ def analyze(
             findings.append(Finding(
                 "role-mismatch", "warning",
                 f"column {c.name!r} looks like a {c.guessed} (by its name or unit) but is "
-                f"analysed as a {c.quantity}; check --current and --voltage.",
+                f"analysed as a {c.quantity}; check `current` and `voltage`.",
                 channels=(c.name,)))
     transform = None
     ll = _line_to_line(chans, voltage_connection, path)
@@ -397,7 +397,7 @@ def analyze(
             channels=tuple(chans[k].name for k in ll)))
         if wiring == "4-wire":
             raise InputError("4-wire needs line-to-neutral voltages; these are line to line",
-                             path=path, field="--wiring")
+                             path=path, field="wiring")
         wiring = "3-wire"
     one_window_s = 12 / 60  # both 10/50 and 12/60 windows last 0.2 s
 
@@ -592,7 +592,7 @@ def analyze(
         if wiring is not None:
             findings.append(Finding(
                 "wiring-ignored", "info",
-                f"--wiring {wiring} ignored: the capture is not three-phase."))
+                f"`wiring` {wiring} ignored: the capture is not three-phase."))
         wiring = None
     power = acc.power(wiring)
 
@@ -673,13 +673,13 @@ def _initial_state(buf, fs, chans, reference, nominal_hz, max_order, path, findi
         if nominal_hz is None:
             raise AnalysisError(
                 f"no fundamental between 40 and 70 Hz found on channel {chans[ref].name!r}; "
-                "give --nominal-frequency 50 or 60 and check the channel map",
-                path=path, field="--nominal-frequency",
+                "give `nominal_hz` 50 or 60 and check the channel map",
+                path=path, field="nominal_hz",
             )
         findings.append(Finding(
             "nominal-detected", "info",
             f"nominal frequency taken as {nominal_hz} Hz from the measured fundamental "
-            f"({f_coarse:.3f} Hz); give --nominal-frequency to set it.",
+            f"({f_coarse:.3f} Hz); give `nominal_hz` to set it.",
             value=float(nominal_hz), unit="Hz"))
     nominal_hz = float(nominal_hz)
     cycles = 10 if nominal_hz == 50 else 12
@@ -734,14 +734,14 @@ def _line_to_line(chans, connection, path):
     """Rows of the ab, bc, ca voltages when voltages are line to line, else None."""
     if connection not in (None, "line-to-neutral", "line-to-line"):
         raise InputError(f"voltage connection must be line-to-neutral or line-to-line, got "
-                         f"{connection!r}", path=path, field="--voltage-connection")
+                         f"{connection!r}", path=path, field="voltage_connection")
     if connection == "line-to-neutral":
         return None
     volts = [k for k, c in enumerate(chans) if c.quantity == "voltage" and c.phase != "n"]
     if len(volts) != 3:
         if connection == "line-to-line":
             raise InputError("line-to-line voltages need exactly three voltage channels "
-                             "(ab, bc, ca)", path=path, field="--voltage-connection")
+                             "(ab, bc, ca)", path=path, field="voltage_connection")
         return None
     names = [chans[k].name.lower().split("[")[0].split("(")[0].strip() for k in volts]
     if connection is None and not any(

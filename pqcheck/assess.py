@@ -263,14 +263,14 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
     Raises
     ------
     InputError
-        A limit needs a reference value that was not given (``--il``, ``--rated-current``,
-        ``--iref``), or a reference value is not positive.
+        A limit needs a reference value that was not given (``il_a``, ``rated_current_a``,
+        ``iref_a``), or a reference value is not positive.
     """
     tables = (limits,) if isinstance(limits, ResolvedLimits) else tuple(limits)
     if il_a is None:
         il_a = getattr(result.settings, "il_a", None)
-    for name, v in (("--il", il_a), ("--rated-current", rated_current_a), ("--iref", iref_a),
-                    ("--active-power", active_power_w)):
+    for name, v in (("il_a", il_a), ("rated_current_a", rated_current_a), ("iref_a", iref_a),
+                    ("active_power_w", active_power_w)):
         if v is not None and not (math.isfinite(v) and v > 0):
             raise InputError(f"must be a positive number, got {v!r}", field=name)
     refs = {"il": il_a, "rated": rated_current_a, "iref": iref_a or rated_current_a,
@@ -365,12 +365,12 @@ class _TableAssessor:
     def _ref(self, key: str, basis: str) -> float:
         v = self.refs[key]
         if v is None:
-            what = {"il": ("% of IL", "--il A (maximum demand load current at the PCC)"),
-                    "rated": ("% of rated current", "--rated-current A"),
-                    "iref": ("% of the reference current Iref", "--iref A (or --rated-current A)")}
+            what = {"il": ("% of IL", "`il_a` [A] (maximum demand load current at the PCC)"),
+                    "rated": ("% of rated current", "`rated_current_a` [A]"),
+                    "iref": ("% of the reference current Iref", "`iref_a` [A] (or `rated_current_a` [A])")}
             unit, option = what[key]
             raise InputError(f"table {self.t.table_id} gives limits in {unit}: give {option}",
-                             field=option.split()[0])
+                             field=option.split()[0].strip("`"))
         return float(v)
 
     def power_w(self):
@@ -410,7 +410,7 @@ class _TableAssessor:
         if w.p_total_w is None or rule is None:
             self._power = 0.0
             self.notes.append(f"{self.t.table_id}: per-watt limits need the active power: "
-                              "capture the voltage with the current, or give --active-power W.")
+                              "capture the voltage with the current, or give `active_power_w` [W].")
             return None
         p = np.where(self.valid, np.asarray(w.p_total_w, dtype=np.float64), np.nan)
         series = self._aggregate(p, rule.of)
@@ -489,7 +489,7 @@ class _TableAssessor:
             h = item.order
             if h > top:
                 return _Series(item, None, f"order {h} was not analysed (analysis up to order "
-                               f"{top}); rerun with --max-order {h} or more", frozenset({h}))
+                               f"{top}); rerun with `max_order` {h} or more", frozenset({h}))
             x = np.where(self.valid, mags[:, h], np.nan)
             orders = {h} | ({1} if item.basis == "percent_of_fundamental" else set())
             vals = self._to_basis(x, item, k)

@@ -465,7 +465,7 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
     src = capture.provenance.source
     path = src if src != "<memory>" else None
     seen = set()
-    for opt, names in (("--current", current), ("--voltage", voltage)):
+    for opt, names in (("current", current), ("voltage", voltage)):
         if len(names) > 4:
             raise InputError(
                 f"at most 4 channels (phases a, b, c and neutral) per quantity, got {len(names)}",
@@ -509,7 +509,7 @@ def require_channels(capture: Capture) -> None:
         src = capture.provenance.source
         raise CaptureFormatError(
             "no current or voltage channel recognised among "
-            f"{', '.join(capture.names) or '(none)'}; name them with --current and --voltage",
+            f"{', '.join(capture.names) or '(none)'}; name them with `current` and `voltage`",
             path=src if src != "<memory>" else None,
             field="channels",
         )

@@ -83,7 +83,7 @@ class AnalysisError(InputError):
 
 
 class ReportError(PqcheckError, OSError):
-    """A report or export could not be written (for example it exists and --force was not given)."""
+    """A report or export could not be written (for example it exists and ``force`` was not given)."""
 
 
 class PqcheckWarning(UserWarning):

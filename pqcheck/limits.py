@@ -19,7 +19,7 @@ Rows between points
 Examples
 --------
 >>> from pqcheck.limits import load_table, resolve
->>> lim = resolve(load_table("IEEE519-2014"), voltage_level=480, isc=35_000, il=1_000)
+>>> lim = resolve(load_table("IEEE519-2014"), voltage_level_v=480, isc_a=35_000, il_a=1_000)
 >>> [i.limit for i in lim.find("harmonic", 11, "current")]  # IEEE 519-2014 Table 2, 20 < 50
 [3.5]
 """
@@ -297,7 +297,7 @@ def load_table(id_or_path) -> LimitTable:
     if res is None:
         raise LimitTableError(
             f"unknown limit table {name!r}; bundled tables: {', '.join(bundled_ids())} "
-            "(or give the path of a .toml file)", field="--limits")
+            "(or give the path of a .toml file)", field="table")
     with resources.as_file(res) as p:
         return read_table(p)
 
@@ -375,19 +375,22 @@ def _bundled_reference(key: str):
 
 # --- resolution ----------------------------------------------------------------------------
 
-_INPUTS = {
-    "voltage_level": "--voltage-level",
-    "isc": "--isc",
-    "il": "--il",
-    "isc_il": "--isc and --il",
-    "generation": "--generation",
-    "equipment_class": "--class",
-    "switching": "--switching",
-    "equipment": "--equipment-kind",
-    "rsce": "--rsce",
-    "ssc": "--ssc",
-    "rated_power": "--rated-power",
+# resolve() keyword of each input (the run-specification names, see pqcheck.record) -> the
+# selector or input it gives inside a table
+_KEYWORDS = {
+    "voltage_level_v": "voltage_level",
+    "isc_a": "isc",
+    "il_a": "il",
+    "isc_il": "isc_il",
+    "generation": "generation",
+    "equipment_class": "equipment_class",
+    "equipment_kind": "equipment",
+    "rsce": "rsce",
+    "ssc_va": "ssc",
+    "rated_apparent_power_va": "rated_power",
+    "switching": "switching",
 }
+_INPUTS = {inner: kw for kw, inner in _KEYWORDS.items()}  # for error fields
 _NUMERIC = ("voltage_level", "isc", "il", "isc_il", "rsce", "ssc", "rated_power")
 _KIND_ORDER = {"choice": 0, "flag": 1, "band": 2, "points": 3}
 
@@ -399,21 +402,24 @@ def resolve(table, **selectors) -> ResolvedLimits:
     ----------
     table : LimitTable or str
         A loaded table, or an id or path for :func:`load_table`.
-    voltage_level : float, optional
+    voltage_level_v : float, optional
         Nominal bus voltage at the PCC [V].
-    isc, il : float, optional
+    isc_a, il_a : float, optional
         Maximum short-circuit current and maximum demand load current at the PCC [A]; give
         both, or ``isc_il`` [unitless] directly.
     generation : bool, optional
         Power-generation equipment (IEEE 519: first ISC/IL row whatever the ratio).
     equipment_class : str, optional
         IEC 61000-3-2 class: ``"A"``, ``"B"``, ``"C"`` or ``"D"`` (case-insensitive).
-    equipment : str, optional
+    equipment_kind : str, optional
         IEC 61000-3-12 kind of equipment (choices in the table).
     rsce : float, optional
-        Short-circuit ratio [unitless]; or give ``ssc`` [VA] and ``rated_power`` [VA] and
-        ``equipment`` to compute Rsce = Ssc / (k x rated power).
+        Short-circuit ratio [unitless]; or give ``ssc_va`` [VA] and
+        ``rated_apparent_power_va`` [VA] and ``equipment_kind`` to compute
+        Rsce = Ssc / (k x rated power).
 
+    The keywords are the field names of :class:`pqcheck.record.LimitSelection`; errors name
+    them.
     Selectors that are None are ignored; selectors the table does not use are ignored too.
 
     Returns
@@ -429,14 +435,15 @@ def resolve(table, **selectors) -> ResolvedLimits:
     if not isinstance(table, LimitTable):
         table = load_table(table)
     given = {}
-    for key, v in selectors.items():
-        if key not in _INPUTS:
-            raise InputError(f"unknown selector {key!r}; known: {', '.join(_INPUTS)}", field=key)
+    for kw, v in selectors.items():
+        if kw not in _KEYWORDS:
+            raise InputError(f"unknown selector {kw!r}; known: {', '.join(_KEYWORDS)}", field=kw)
         if v is None:
             continue
+        key = _KEYWORDS[kw]
         if key in _NUMERIC:
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 < v < math.inf:
-                raise InputError(f"must be a positive number, got {v!r}", field=_INPUTS[key])
+                raise InputError(f"must be a positive number, got {v!r}", field=kw)
             v = float(v)
         given[key] = v
     values, used = _selector_values(table, given)
@@ -485,9 +492,10 @@ def _selector_values(table: LimitTable, given: dict):
                 eq = _choice(table.selector("equipment"), given.get("equipment"))
                 if eq is None:
                     raise InputError(
-                        "Rsce from --ssc and --rated-power needs the kind of equipment: give "
-                        f"--equipment-kind ({', '.join(c for c, _ in spec.ssc_divisor)})",
-                        field="--equipment-kind")
+                        "Rsce from `ssc_va` and `rated_apparent_power_va` needs the kind of "
+                        f"equipment: give `equipment_kind` "
+                        f"({', '.join(c for c, _ in spec.ssc_divisor)})",
+                        field="equipment_kind")
                 k = dict(spec.ssc_divisor)[eq]
                 values[name] = given["ssc"] / (k * given["rated_power"])
                 used.update(ssc=given["ssc"], rated_power=given["rated_power"])
@@ -554,21 +562,21 @@ class _Resolver:
         meaning = SELECTORS[name][3]
         if name == "isc_il":
             meaning = meaning.split(", ", 1)[-1]
-            lack = [o for o in ("isc", "il") if o not in self.given]
-            option = " and ".join("--" + o for o in lack)
+            lack = [_INPUTS[o] for o in ("isc", "il") if o not in self.given]
+            option = " and ".join(f"`{o}`" for o in lack)
             return InputError(
                 f"table {self.t.id} ({where}) selects its row by ISC/IL ({meaning}); give "
-                f"{option} [A]", field=option)
+                f"{option} [A]", field=lack[0] if len(lack) == 1 else "isc_il")
         if spec.kind == "choice":
             return InputError(f"table {self.t.id} ({where}) needs the {meaning}: give "
-                              f"{spec.option} ({', '.join(spec.choices)})", field=spec.option)
+                              f"{spec.option} ({', '.join(spec.choices)})", field=_INPUTS[name])
         if name == "rsce":
             return InputError(f"table {self.t.id} ({where}) selects its row by the {meaning}: "
-                              f"give --rsce, or --ssc [VA] with --rated-power [VA] and "
-                              "--equipment-kind", field="--rsce")
+                              "give `rsce`, or `ssc_va` [VA] with `rated_apparent_power_va` "
+                              "[VA] and `equipment_kind`", field="rsce")
         unit = f" [{spec.unit}]" if spec.unit else ""
         return InputError(f"table {self.t.id} ({where}) selects limits by the {meaning}: give "
-                          f"{spec.option}{unit}", field=spec.option)
+                          f"{spec.option}{unit}", field=_INPUTS[name])
 
     def _value(self, name: str, where: str):
         if name not in self.values:
@@ -907,8 +915,8 @@ def _dump_scope(out: list, t: LimitTable) -> None:
 def dump_toml(table: LimitTable) -> str:
     """Write ``table`` as TOML that :func:`load_table` reads back to an equal table.
 
-    Comments of the original file are not kept (``pqcheck limits show --format toml`` prints
-    the file itself, comments included).
+    Comments of the original file are not kept (``pqcheck limits show`` in TOML format
+    prints the file itself, comments included).
 
     Returns
     -------

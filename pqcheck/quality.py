@@ -172,7 +172,7 @@ def sample_rate_findings(fs_hz, nominal_hz, max_order, resolved, cycles_per_wind
                 f"a sample rate of {fs_hz:g} Hz resolves harmonic orders up to {resolved} only "
                 f"(order {max_order} needs at least {need:g} Hz); orders "
                 f"{resolved + 1}..{max_order} are not reported. Capture faster or lower "
-                "--max-order.",
+                "`max_order`.",
                 orders=tuple(range(resolved + 1, max_order + 1)),
                 value=fs_hz,
                 unit="Hz",
@@ -193,7 +193,7 @@ def frequency_findings(freq_hz, nominal_hz, *, tracked: bool, reference: str):
                 "error",
                 f"the fundamental of the reference channel {reference!r} is too weak to track; "
                 f"windows assume exactly {nominal_hz:g} Hz and may not be synchronous. Include a "
-                "voltage channel (--voltage) or a channel that carries the fundamental.",
+                "voltage channel (`voltage`) or a channel that carries the fundamental.",
                 channels=(),
             )
         )
@@ -211,7 +211,7 @@ def frequency_findings(freq_hz, nominal_hz, *, tracked: bool, reference: str):
                 "error",
                 f"measured fundamental {mean:.3f} Hz is nearer {other:g} Hz than the nominal "
                 f"{nominal_hz:g} Hz given, so the windows do not hold the cycles IEC 61000-4-7 "
-                f"prescribes for a {other:g} Hz system. Give --nominal-frequency "
+                f"prescribes for a {other:g} Hz system. Give `nominal_hz` "
                 f"{other:g} (or leave it out to detect it) and check the limits chosen.",
                 value=mean,
                 unit="Hz",
@@ -224,7 +224,7 @@ def frequency_findings(freq_hz, nominal_hz, *, tracked: bool, reference: str):
                 "warning",
                 f"measured fundamental {mean:.3f} Hz is more than 1 % from the nominal "
                 f"{nominal_hz:g} Hz; windows follow the measured frequency. Check the "
-                "--nominal-frequency setting and the supply.",
+                "`nominal_hz` setting and the supply.",
                 value=mean,
                 unit="Hz",
             )

@@ -60,7 +60,7 @@ def ieee519_capture(i5, i7, i11, fs=7680.0, dur=3.0):
 
 def ieee519_limits():
     # 480 V bus, ISC/IL = 3500 / 100 = 35: IEEE 519-2022 Table 2 row "20 < 50"
-    return resolve(without_observation("ieee519-2022"), voltage_level=480, isc=3500, il=100)
+    return resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=3500, il_a=100)
 
 
 def test_ieee519_bench_capture_fails_on_11th_and_tdd():
@@ -96,9 +96,9 @@ def test_ieee519_bench_capture_passes():
 
 def test_ieee519_needs_il():
     res = analyze(ieee519_capture(5.0, 3.0, 2.0), nominal_hz=60)
-    limits = resolve(without_observation("ieee519-2022"), voltage_level=480, isc_il=35)
-    with pytest.raises(InputError, match=r"^--il: table ieee519-2022 gives limits in % of IL: "
-                                         r"give --il A \(maximum demand load current"):
+    limits = resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_il=35)
+    with pytest.raises(InputError, match=r"^il_a: table ieee519-2022 gives limits in % of IL: "
+                                         r"give `il_a` \[A\] \(maximum demand load current"):
         assess(res, limits)
 
 
@@ -241,14 +241,14 @@ def test_iec61000_3_12_in_percent_of_iref():
     t = times(5000.0, 6.0)
     i = wave(t, 50.0, {1: 30.0, 3: 6.0, 5: 4.0})
     res = analyze(Capture.from_arrays(5000.0, currents={"i": i}), nominal_hz=50)
-    limits = resolve(without_observation("iec61000-3-12"), equipment="single-phase", rsce=33)
+    limits = resolve(without_observation("iec61000-3-12"), equipment_kind="single-phase", rsce=33)
     a = assess(res, limits, rated_current_a=32.0)
     assert one(a, "I3", "mean").measured == pytest.approx(18.75, rel=2e-3)
     assert one(a, "I3", "mean").verdict == "pass" and one(a, "I5", "mean").verdict == "fail"
     assert one(a, "THC", "mean").measured == pytest.approx(100 * math.sqrt(52) / 32, rel=2e-3)
     assert all(c.verify for c in a.checks)  # every 61000-3-12 number is from memory
-    with pytest.raises(InputError, match=r"^--iref: table iec61000-3-12 gives limits in % of "
-                                         r"the reference current Iref: give --iref A"):
+    with pytest.raises(InputError, match=r"^iref_a: table iec61000-3-12 gives limits in % of "
+                                         r"the reference current Iref: give `iref_a` \[A\]"):
         assess(res, limits)
 
 
@@ -265,8 +265,8 @@ def test_ieee1547_trd_and_dc_injection():
     dc = one(a, "DC")
     assert dc.measured == pytest.approx(0.625, rel=2e-3) and dc.verdict == "fail"
     assert a.verdict == "fail"
-    with pytest.raises(InputError, match=r"^--rated-current: table ieee1547-2018 gives limits "
-                                         r"in % of rated current: give --rated-current A$"):
+    with pytest.raises(InputError, match=r"^rated_current_a: table ieee1547-2018 gives limits "
+                                         r"in % of rated current: give `rated_current_a` \[A\]$"):
         assess(res, resolve("ieee1547-2018"))
 
 

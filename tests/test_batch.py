@@ -28,10 +28,11 @@ from test_comtrade import FS as CT_FS
 from test_comtrade import analog_line, quantise, three_phase_record, write_comtrade
 
 from pqcheck.cli import main
+from pqcheck.cli._fields import cli_text
 from pqcheck.readers.comtrade import read_comtrade
+from pqcheck.record import AnalysisSettings, LimitSelection, RunSpec
 from pqcheck.run import batch
 from pqcheck.run.batch import (
-    BatchSpec,
     DaskExecutor,
     InlineExecutor,
     MissingExtraError,
@@ -49,7 +50,7 @@ V1 = 230.0  # [V]
 IL = 20.0  # [A]
 LIMIT_ARGS = ["--limits", "ieee519-2022", "--voltage-level", "400", "--isc", "5000",
               "--il", str(IL)]
-SELECTORS = {"voltage_level": 400.0, "isc": 5000.0, "il": IL}
+SELECTORS = {"voltage_level_v": 400.0, "isc_a": 5000.0, "il_a": IL}
 
 
 @pytest.fixture(autouse=True, scope="module")
@@ -116,9 +117,9 @@ def fleet(tmp_path_factory):
 CAPTURES = ("a-pass.csv", "b-fail.parquet", "broken.csv", "site2/c.npy", "site2/rec.cfg")
 
 
-def spec(**kw) -> BatchSpec:
-    return BatchSpec.make([LIMIT_ARGS[1]], selectors=SELECTORS,
-                          analysis={"max_order": 50, "il_a": IL}, il_a=IL, use_cache=False, **kw)
+def spec() -> RunSpec:
+    return RunSpec(analysis=AnalysisSettings(max_order=50, il_a=IL),
+                   limits=(LimitSelection(table=LIMIT_ARGS[1], **SELECTORS),))
 
 
 def rows_by_capture(table: pa.Table) -> dict:
@@ -130,12 +131,12 @@ def rows_by_capture(table: pa.Table) -> dict:
 
 @pytest.fixture(scope="module")
 def inline_table(fleet):
-    return run_batch([fleet], spec(), executor=InlineExecutor()).table
+    return run_batch([fleet], spec(), executor=InlineExecutor(), use_cache=False).table
 
 
 @pytest.fixture(scope="module")
 def pool_table(fleet):
-    return run_batch([fleet], spec(), executor=ProcessExecutor(2)).table
+    return run_batch([fleet], spec(), executor=ProcessExecutor(2), use_cache=False).table
 
 
 # --- finding captures -------------------------------------------------------------------
@@ -200,7 +201,10 @@ def test_batch_rows_equal_check_results(fleet, tmp_path):
             [row] = rows
             assert row["verdict"] == row["capture_verdict"] == "error"
             # the batch records what `check` prints as its error (names the capture as found)
-            assert "pqcheck: error: " + row["error"] in ref.stderr
+            # the table holds the library's words, the command line its options
+            # (the field after the file name too: sample_rate_hz is --sample-rate)
+            shown = cli_text(row["error"]).replace(": sample_rate_hz: ", ": --sample-rate: ")
+            assert "pqcheck: error: " + shown in ref.stderr
             continue
         d = json.loads(ref.stdout)
         assert ref.exit_code == {"pass": 0, "fail": 1, "inconclusive": 3}[d["verdict"]]
@@ -240,7 +244,7 @@ def test_damaged_comtrade_records_become_error_rows(fleet, tmp_path, monkeypatch
     (tmp_path / "lone.cfg").write_bytes(cfg.read_bytes())  # no .dat beside it
     (tmp_path / "good.csv").write_bytes((fleet / "a-pass.csv").read_bytes())
     monkeypatch.chdir(tmp_path)
-    run = run_batch(["."], spec())
+    run = run_batch(["."], spec(), use_cache=False)
     groups = rows_by_capture(run.table)
     assert run.checked == 3 and sorted(groups) == ["cut.cfg", "good.csv", "lone.cfg"]
     [cut], [lone] = groups["cut.cfg"], groups["lone.cfg"]
@@ -276,19 +280,19 @@ def test_resume_skips_captures_already_in_the_output(fleet, tmp_path, monkeypatc
 
     monkeypatch.setattr(pipeline, "analyze_file", counting)
     out = tmp_path / "r.parquet"
-    first = run_batch([fleet], spec(), out=out)
+    first = run_batch([fleet], spec(), out=out, use_cache=False)
     assert first.checked == len(CAPTURES) and first.skipped == 0
     assert len(calls) == len(CAPTURES)
     table1 = read_results(out)
 
     calls.clear()
-    again = run_batch([fleet], spec(), out=out)
+    again = run_batch([fleet], spec(), out=out, use_cache=False)
     assert calls == [] and again.checked == 0 and again.skipped == len(CAPTURES)
     assert read_results(out).equals(table1)
     assert again.table.equals(table1)
 
     calls.clear()
-    retry = run_batch([fleet], spec(), out=out, retry_errors=True)
+    retry = run_batch([fleet], spec(), out=out, retry_errors=True, use_cache=False)
     assert calls == ["broken.csv"] and retry.checked == 1
     assert read_results(out).equals(table1)
 
@@ -297,12 +301,12 @@ def test_resume_skips_captures_already_in_the_output(fleet, tmp_path, monkeypatc
     extra.mkdir()
     write_csv(extra / "d.csv", three_phase(0.10))
     calls.clear()
-    run_batch([fleet, extra], spec(), out=out)
+    run_batch([fleet, extra], spec(), out=out, use_cache=False)
     assert calls == ["d.csv"]
     n_d = len(rows_by_capture(read_results(out))["d.csv"])
     write_csv(extra / "d.csv", three_phase(0.30))
     calls.clear()
-    run = run_batch([extra], spec(), out=out)
+    run = run_batch([extra], spec(), out=out, use_cache=False)
     assert calls == ["d.csv"]
     groups = rows_by_capture(read_results(out))
     assert len(groups["d.csv"]) == n_d  # old rows replaced, not added to
@@ -339,10 +343,10 @@ def test_interrupted_batch_keeps_the_work_done(fleet, tmp_path, monkeypatch):
     monkeypatch.setattr(pipeline, "analyze_file", interrupt_on_third)
     out = tmp_path / "r.parquet"
     with pytest.raises(KeyboardInterrupt):
-        run_batch([fleet], spec(), out=out)
+        run_batch([fleet], spec(), out=out, use_cache=False)
     assert len(rows_by_capture(read_results(out))) == 2  # the two finished captures
     monkeypatch.setattr(pipeline, "analyze_file", real)
-    rerun = run_batch([fleet], spec(), out=out)
+    rerun = run_batch([fleet], spec(), out=out, use_cache=False)
     assert rerun.skipped == 2 and rerun.checked == len(CAPTURES) - 2
 
 
@@ -351,7 +355,7 @@ def test_interrupted_batch_keeps_the_work_done(fleet, tmp_path, monkeypatch):
 
 def test_parquet_and_csv_outputs_agree(fleet, tmp_path, inline_table):
     out, csv = tmp_path / "r.parquet", tmp_path / "r.csv"
-    run = run_batch([fleet], spec(), out=out, csv=csv)
+    run = run_batch([fleet], spec(), out=out, csv=csv, use_cache=False)
     from_parquet, from_csv = read_results(out), read_results(csv)
     assert from_parquet.schema == from_csv.schema == batch.SCHEMA
     assert from_csv.equals(from_parquet)  # floats round-trip exactly through the CSV text
@@ -365,7 +369,7 @@ def test_results_file_that_is_not_one_is_refused(fleet, tmp_path):
     out = tmp_path / "r.parquet"
     pq.write_table(pa.table({"x": [1]}), out)
     with pytest.raises(batch.InputError, match="not a pqcheck batch results table"):
-        run_batch([fleet / "a-pass.csv"], spec(), out=out)
+        run_batch([fleet / "a-pass.csv"], spec(), out=out, use_cache=False)
 
 
 # --- executors ----------------------------------------------------------------------------
@@ -391,7 +395,7 @@ def test_dead_worker_fails_only_its_item():
 
 def test_local_dask_cluster_gives_the_same_table(fleet, pool_table):
     pytest.importorskip("distributed")
-    table = run_batch([fleet], spec(), executor=DaskExecutor(workers=2)).table
+    table = run_batch([fleet], spec(), executor=DaskExecutor(workers=2), use_cache=False).table
     assert table.equals(pool_table)
 
 

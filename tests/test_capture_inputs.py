@@ -195,8 +195,8 @@ def test_files_with_different_time_bases_are_refused(tmp_path):
 # --------------------------------------------------------------------------- analysis words
 
 def test_record_without_a_mains_component_names_the_real_problem(tmp_path):
-    # 0.25 s of noise (no mains component) longer than one 0.2 s window at 60 Hz
-    t = np.arange(int(0.25 * FS)) / FS
+    # 0.21 s of noise (no mains component), longer than one 0.2 s window at 60 Hz
+    t = np.arange(int(0.21 * FS)) / FS
     rng = np.random.default_rng(1)
     p = tmp_path / "nomains.csv"
     p.write_text("time,va\n" + "".join(f"{a:.9g},{rng.normal():.6g}\n" for a in t))
@@ -205,7 +205,7 @@ def test_record_without_a_mains_component_names_the_real_problem(tmp_path):
     assert res.exit_code == 2
     assert "capture a longer record" not in res.stderr
     assert re.search(r"nomains\.csv: (reference|--reference): no 12-cycle window fits in the "
-                     r"0\.25 s record: the reference channel 'va' has no clear mains "
+                     r"0\.21 s record: the reference channel 'va' has no clear mains "
                      r"fundamental near 60 Hz", res.stderr), res.stderr
 
 
@@ -221,10 +221,86 @@ def test_voltage_only_analysis_says_nothing_about_phase_currents(tmp_path):
     assert "sum to zero" not in res.stdout
 
 
-def test_no_runtime_warning_reaches_stderr(tmp_path):
+def test_no_runtime_warning_reaches_stderr(tmp_path, monkeypatch):
+    import warnings
+
+    import pqcheck.run.check as check
+
+    real = check.analyze
+
+    def noisy(*args, **kwargs):
+        # numpy warns like this on 0/0 and on an empty mean; the command must stay quiet
+        np.float64(0.0) / np.float64(0.0)
+        warnings.warn("Mean of empty slice", RuntimeWarning, stacklevel=1)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(check, "analyze", noisy)
     p = tmp_path / "silent.csv"
     t = np.arange(N) / FS
     p.write_text("time,ia,va\n" + "".join(
         f"{ti:.9g},0,{325 * np.sin(2 * np.pi * 50 * ti):.6g}\n" for ti in t))
-    res = CliRunner().invoke(main, ["analyze", str(p), "-q", "--no-cache"])
-    assert "RuntimeWarning" not in res.stderr and "Warning" not in res.stderr
+    def show(message, category, filename, lineno, file=None, line=None):
+        # Python's default: the warning and its source line on (the command's) stderr
+        sys.stderr.write(warnings.formatwarning(message, category, filename, lineno, line))
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("always")
+        warnings.showwarning = show
+        res = CliRunner().invoke(main, ["analyze", str(p), "-q", "--no-cache"])
+    assert res.exit_code == 0, res.output
+    assert "RuntimeWarning" not in res.stderr and "Mean of empty slice" not in res.stderr
+
+
+def test_files_with_different_rates_or_starts_are_refused(tmp_path):
+    a = tmp_path / "i.csv"
+    b = tmp_path / "v.csv"
+    a.write_text(_text(names=("ia",), amps=(10.0,)))
+    b.write_text("Sample interval: 50 us\nva\n" + "".join(
+        f"{x:.6g}\n" for x in fourier_series(20_000.0, 50.0, {1: (230.0, 0.0)}, N / 20_000.0)))
+    with pytest.raises(CaptureFormatError,
+                       match=r"v\.csv: sample_rate_hz: sample rate 20000 Hz differs from 10000 "
+                             r"Hz in .*i\.csv; files combined into one capture need the same "
+                             r"time base"):
+        load_capture([a, b])
+    b.write_text("Sample interval: 100 us\nStart: 0.5\nva\n" + "".join(
+        f"{x:.6g}\n" for x in fourier_series(FS, 50.0, {1: (230.0, 0.0)}, N / FS)))
+    with pytest.raises(CaptureFormatError,
+                       match=r"v\.csv: first sample at 0\.5 s against 0 s in .*i\.csv"):
+        load_capture([a, b])
+
+
+def test_unknown_encoding_name_for_a_cfg(tmp_path):
+    from pqcheck.readers.comtrade import read_comtrade
+
+    cfg = tmp_path / "r.cfg"
+    cfg.write_text("S,D,1999\n1,1A,0D\n1,IA,A,,A,1,0,0,-32767,32767,1,1,P\n50\n1\n1000,2\n"
+                   "01/01/2024,00:00:00.000\n01/01/2024,00:00:00.000\nASCII\n1\n")
+    (tmp_path / "r.dat").write_text("1,0,5\n2,1000,6\n")
+    with pytest.raises(CaptureFormatError,
+                       match=r"r\.cfg: encoding: unknown text encoding 'klingon'; give a name "
+                             r"such as utf-8, cp1251, gbk or latin-1"):
+        read_comtrade(cfg, encoding="klingon")
+
+
+def test_socket_is_refused(tmp_path):
+    import socket
+
+    path = tmp_path / "s.csv"
+    srv = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
+    try:
+        srv.bind(str(path))
+        with pytest.raises(CaptureFormatError,
+                           match=r"s\.csv: is a socket, not a regular file; give a saved "
+                                 r"capture file"):
+            load_capture(path)
+    finally:
+        srv.close()
+
+
+def test_analyze_with_an_encoding_option(tmp_path):
+    p = tmp_path / "cyr.csv"
+    p.write_bytes(("Прибор: осциллограф\n" + _text(names=("Ток", "va"))).encode("cp1251"))
+    res = CliRunner().invoke(main, ["analyze", str(p), "--encoding", "cp1251", "--current",
+                                    "Ток", "-q", "--no-cache"])
+    assert res.exit_code == 0, res.output
+    assert "Ток" in res.stdout

@@ -170,7 +170,7 @@ def test_limit_table_loader_raises_only_documented_errors(text, voltage):
         assert problem.path == str(path)
     try:
         table = read_table(path)
-        resolve(table, voltage_level=voltage)
+        resolve(table, voltage_level_v=voltage)
     except PqcheckError:
         pass
 
@@ -207,7 +207,7 @@ def test_plan_loader_raises_only_documented_errors(text, check_files):
         return
     for spec in plan.limits:  # what the report does next with a loaded plan
         try:
-            plan.resolve_arguments(spec)
+            plan.limit_selection(spec)
         except PqcheckError:
             pass
 
@@ -221,4 +221,4 @@ def test_fuzz_inputs_start_from_valid_files():
     (d / "run 1 ü.csv").write_text("time [s],ia [A]\n0,1\n0.001,2\n")
     (d / "plan.toml").write_text(_PLAN)
     assert load_plan(d / "plan.toml").captures[0].id == "c1"
-    assert np.isfinite(resolve(read_table(d / "t.toml"), voltage_level=400.0).items[0].limit)
+    assert np.isfinite(resolve(read_table(d / "t.toml"), voltage_level_v=400.0).items[0].limit)

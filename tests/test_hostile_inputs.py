@@ -546,7 +546,7 @@ CASES = [
     V("path-with-spaces-and-unicode", signal_file("mesure n° 1 – été.csv"), "check", "pass",
       (0,)),
     E("sample-rate-zero", signal_file("sr0.csv"), "analyze",
-      r"(--sample-rate|sample_rate_hz): sample rate must be a positive", args=("--sample-rate", "0")),
+      r"(--sample-rate|sample_rate_hz): (sample rate )?must be a positive", args=("--sample-rate", "0")),
     E("negative-il", signal_file("il.csv"), "analyze", r"--il: .*positive", args=("--il", "-5")),
     E("unknown-current-column", signal_file("col.csv"), "analyze",
       r"col\.csv: --current: no column named 'ib'; the capture has: ia, va",

@@ -408,3 +408,86 @@ def test_inspect_says_none_found_without_a_mains_fundamental(tmp_path):
     assert res.exit_code == 0, res.output
     assert "Fundamental none found between 40 and 70 Hz on 'va'; its strongest component is " \
            "at about 1000 Hz" in res.stdout
+
+
+# --------------------------------------------------------------------------- long-file path
+
+@pytest.mark.parametrize("layout", LAYOUT_WRITERS)
+def test_streaming_reader_reads_every_layout_as_the_whole_file_reader(tmp_path, layout):
+    from pqcheck.capture import CaptureStream
+    from pqcheck.readers import open_capture
+
+    p = tmp_path / "s.csv"
+    names, cols = _write_layout(p, {"layout": layout, "n": 3000, "amp": 100.0, "crlf": False,
+                                    "bom": "", "seed": 11})
+    stream = open_capture(p, stream_over_bytes=0)  # block by block, as a long file
+    assert isinstance(stream, CaptureStream)
+    cap = stream.load()
+    assert cap.names == names
+    assert cap.fs_hz == pytest.approx(25_000.0, rel=1e-6)
+    for k, col in enumerate(cols):
+        np.testing.assert_array_equal(cap.samples[k], np.array([float(v) for v in col]))
+    whole = load_capture(p)
+    assert whole.t0_s == pytest.approx(cap.t0_s, abs=1e-15)
+
+
+def test_streaming_reader_refuses_an_overflowing_cell_with_its_line(tmp_path):
+    from pqcheck.readers import open_capture
+
+    lines = [f"{i / FS:.9g},{b:.6g}" for i, b in enumerate(_wave(5.0))]
+    lines[1700] = f"{1700 / FS:.9g},1e999"
+    p = tmp_path / "sbig.csv"
+    p.write_text("time,ia\n" + "\n".join(lines) + "\n")
+    with pytest.raises(CaptureFormatError,
+                       match=r"sbig\.csv:1702: ia: cell '1e999' is not a finite number"):
+        open_capture(p, stream_over_bytes=0).load()
+
+
+def test_streaming_reader_refuses_an_overflowing_cell_after_the_first_chunk(tmp_path):
+    from pqcheck.readers.stream import stream_delimited
+
+    lines = [f"{i / FS:.9g},{b:.6g}" for i, b in enumerate(_wave(5.0))]
+    lines[1700] = f"{1700 / FS:.9g},-Infinity"
+    p = tmp_path / "late.csv"
+    p.write_text("time,ia\n" + "\n".join(lines) + "\n")
+    stream = stream_delimited(p, block_rows=1024)  # the first chunk ends before the cell
+    with pytest.raises(CaptureFormatError,
+                       match=r"late\.csv:1702: ia: cell '-Infinity' is not a finite number"):
+        stream.load()
+
+
+def test_text_in_the_first_column_of_every_row_is_not_metadata(tmp_path):
+    # clock times in column 1 of every row: not the metadata-beside-data layout
+    p = tmp_path / "clock.csv"
+    p.write_text("".join(f"10:00:{i:02d},{i * 0.5:.3f},{np.sin(i):.6f}\n" for i in range(60)))
+    with pytest.raises(CaptureFormatError, match=r"clock\.csv:60: no rows of numbers found in "
+                                                 r"the first lines \(this one reads '10:00:59"):
+        load_capture(p)
+
+
+def test_header_of_unit_symbols_stays_a_header(tmp_path):
+    p = tmp_path / "sym.csv"
+    p.write_text("Sample interval: 40 us\nV,A\n" + "".join(
+        f"{b:.6g},{b / 30:.6g}\n" for b in _wave()))
+    cap = load_capture(p)
+    assert cap.names == ("V", "A")
+
+
+def test_unnamed_time_column_matching_the_declared_rate_is_not_a_signal(tmp_path):
+    p = tmp_path / "zeit.csv"
+    p.write_text("Sample interval: 40 us\nZeitstempel,ia\n" + "".join(
+        f"{i / FS:.9g},{b:.6g}\n" for i, b in enumerate(_wave(5.0))))
+    cap = load_capture(p)
+    assert cap.names == ("ia",)
+    assert "Zeitstempel" in cap.provenance.settings["dropped_columns"]
+
+
+@pytest.mark.parametrize(("line", "rate"), [
+    ("Sampling,40us", FS), ("Sampling: 25 kS/s", FS), ("Sample Rate,25000", FS),
+    ("Sample Interval,CH1:4.0E-05", FS), ("Microseconds_Per_Sample,40", FS),
+    ("Increment,4e-05", FS), ("Sampling Frequency: 25 kHz", FS),
+])
+def test_declared_sample_interval_or_rate(tmp_path, line, rate):
+    p = tmp_path / "decl.csv"
+    p.write_text(f"{line}\nia,va\n" + "".join(f"{b / 30:.6g},{b:.6g}\n" for b in _wave()))
+    assert load_capture(p).fs_hz == pytest.approx(rate, rel=1e-12)

@@ -52,14 +52,14 @@ def totals(resolved, applies_to="current"):
 def all_cases(tid):
     """Selector sets that reach every row of a bundled table."""
     if tid.startswith("ieee519"):
-        return [dict(voltage_level=v, isc_il=r) for v in (480, 13_800, 115_000, 230_000)
+        return [dict(voltage_level_v=v, isc_il=r) for v in (480, 13_800, 115_000, 230_000)
                 for r in (10, 30, 70, 500, 2000)]
     if tid == "iec61000-3-2":
         return [dict(equipment_class=c) for c in "ABCD"]
     if tid == "iec61000-3-12":
         kinds = ["single-phase", "interphase", "unbalanced-three-phase", "balanced-three-phase",
                  "balanced-three-phase-table4"]
-        return [dict(equipment=k, rsce=r) for k in kinds for r in (33, 50, 66, 120, 250, 350, 900)]
+        return [dict(equipment_kind=k, rsce=r) for k in kinds for r in (33, 50, 66, 120, 250, 350, 900)]
     if tid in ("iec61000-3-3", "iec61000-3-11"):
         return [dict(switching=k) for k in ("automatic", "manual-or-delayed-restart",
                                             "attended-or-twice-daily")]
@@ -155,10 +155,10 @@ def test_iec61000_3_2_orders_covered():
 def test_iec61000_3_12_orders_covered():
     # IEC 61000-3-12 Tables 2-4 (from memory): individual orders up to 13, even h <= 12,
     # THC and PWHC; orders >= 14 covered by PWHC only
-    r = resolve("iec61000-3-12", equipment="single-phase", rsce=33)
+    r = resolve("iec61000-3-12", equipment_kind="single-phase", rsce=33)
     assert orders(r) == [2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13]
     assert totals(r) == ["THC", "PWHC"]
-    r = resolve("iec61000-3-12", equipment="balanced-three-phase", rsce=33)
+    r = resolve("iec61000-3-12", equipment_kind="balanced-three-phase", rsce=33)
     assert orders(r) == [2, 4, 5, 6, 7, 8, 10, 11, 12, 13]
     assert totals(r) == ["THC", "PWHC"]
 
@@ -184,7 +184,7 @@ def test_ieee1547_orders_covered():
     (5000, (15.0, 7.0, 6.0, 2.5, 1.4, 20.0)),
 ])
 def test_ieee519_table2_rows(tid, ratio, expected):
-    r = resolve(tid, voltage_level=480, isc=ratio * 100.0, il=100.0)
+    r = resolve(tid, voltage_level_v=480, isc_a=ratio * 100.0, il_a=100.0)
     got = (lim(r, 3), lim(r, 11), lim(r, 17), lim(r, 23), lim(r, 35), lim(r, 0, quantity="TDD"))
     assert got == pytest.approx(expected, abs=0)
     # every odd order of a range has the range's value (IEEE 519 Table 2 ranges)
@@ -195,11 +195,11 @@ def test_ieee519_table2_rows(tid, ratio, expected):
 def test_ieee519_table1_voltage_limits():
     # IEEE 519-2014/2022 Table 1: V <= 1.0 kV: individual 5.0 %, THD 8.0 % (verified);
     # 1 kV < V <= 69 kV: 3.0 / 5.0 (well known, tagged M)
-    r = resolve("ieee519-2022", voltage_level=480, isc_il=30)
+    r = resolve("ieee519-2022", voltage_level_v=480, isc_il=30)
     assert lim(r, 5, applies_to="voltage") == 5.0
     assert lim(r, 0, quantity="THD", applies_to="voltage") == 8.0
     assert not r.find(HARMONIC, 5, "voltage")[0].verify
-    r = resolve("ieee519-2022", voltage_level=13_800, isc_il=30)
+    r = resolve("ieee519-2022", voltage_level_v=13_800, isc_il=30)
     assert lim(r, 5, applies_to="voltage") == 3.0
     assert lim(r, 0, quantity="THD", applies_to="voltage") == 5.0
     assert r.find(HARMONIC, 5, "voltage")[0].verify
@@ -208,18 +208,18 @@ def test_ieee519_table1_voltage_limits():
 def test_ieee519_tables_3_and_4_are_tagged_to_verify():
     # IEEE 519 Table 3 (69-161 kV) is half of Table 2 (from memory); Table 4 (> 161 kV) from
     # memory: 20 <= ISC/IL < 50 -> 3.5 % (Table 3); 25 <= ISC/IL < 50 -> 2.0 % (Table 4)
-    r = resolve("ieee519-2022", voltage_level=115_000, isc_il=30)
+    r = resolve("ieee519-2022", voltage_level_v=115_000, isc_il=30)
     assert lim(r, 3) == 3.5 and lim(r, 0, quantity="TDD") == 4.0
     assert all(i.verify for i in r.items)
-    r = resolve("ieee519-2022", voltage_level=230_000, isc_il=30)
+    r = resolve("ieee519-2022", voltage_level_v=230_000, isc_il=30)
     assert lim(r, 3) == 2.0 and lim(r, 0, quantity="TDD") == 2.5
 
 
 def test_ieee519_even_harmonics_per_edition():
     # IEEE 519-2014: even harmonics at 25 % of the odd limit of the range (verified);
     # IEEE 519-2022: h <= 6 at 50 %, h > 6 at 100 % (partly verified); row 20 < 50
-    r14 = resolve("ieee519-2014", voltage_level=480, isc_il=35)
-    r22 = resolve("ieee519-2022", voltage_level=480, isc_il=35)
+    r14 = resolve("ieee519-2014", voltage_level_v=480, isc_il=35)
+    r22 = resolve("ieee519-2022", voltage_level_v=480, isc_il=35)
     assert lim(r14, 2) == pytest.approx(0.25 * 7.0)
     assert lim(r14, 12) == pytest.approx(0.25 * 3.5)
     assert lim(r14, 50) == pytest.approx(0.25 * 0.5)
@@ -235,7 +235,7 @@ def test_ieee519_even_harmonics_per_edition():
     (19.999, 4.0), (20.0, 7.0), (49.999, 7.0), (50.0, 10.0), (1000.0, 15.0),
 ])
 def test_ieee519_isc_il_band_edges(ratio, i3):
-    r = resolve("ieee519-2022", voltage_level=480, isc_il=ratio)
+    r = resolve("ieee519-2022", voltage_level_v=480, isc_il=ratio)
     assert lim(r, 3) == i3
 
 
@@ -245,7 +245,7 @@ def test_ieee519_isc_il_band_edges(ratio, i3):
     (1000.0, 5.0, 7.0), (1000.5, 3.0, 7.0), (69_000.0, 3.0, 7.0), (69_001.0, 1.5, 3.5),
 ])
 def test_ieee519_voltage_band_edges(volts, v5, i3):
-    r = resolve("ieee519-2022", voltage_level=volts, isc_il=35)
+    r = resolve("ieee519-2022", voltage_level_v=volts, isc_il=35)
     assert lim(r, 5, applies_to="voltage") == v5
     assert lim(r, 3) == i3
 
@@ -253,9 +253,9 @@ def test_ieee519_voltage_band_edges(volts, v5, i3):
 def test_ieee519_generation_equipment_takes_first_row():
     # IEEE 519 Tables 2-4 footnote c: power generation equipment is limited to the first row
     # whatever the actual ISC/IL (verified, 1992 wording kept)
-    r = resolve("ieee519-2022", voltage_level=480, isc_il=500, generation=True)
+    r = resolve("ieee519-2022", voltage_level_v=480, isc_il=500, generation=True)
     assert lim(r, 3) == 4.0 and lim(r, 0, quantity="TDD") == 5.0
-    r = resolve("ieee519-2022", voltage_level=230_000, generation=True)  # ISC/IL not needed
+    r = resolve("ieee519-2022", voltage_level_v=230_000, generation=True)  # ISC/IL not needed
     assert lim(r, 3) == 1.0  # Table 4 first row "< 25" (from memory)
     assert "generation" in r.rows[1]
 
@@ -264,7 +264,7 @@ def test_ieee519_statistical_evaluation_rule():
     # IEEE 519-2014 clause 5: voltage: daily 99th pct of 3 s values < 1.5 x, weekly 95th pct
     # of 10 min values < 1.0 x (verified); current: 2.0 x / 1.5 x / 1.0 x (multipliers from
     # memory)
-    ev = resolve("ieee519-2022", voltage_level=480, isc_il=35).evaluation
+    ev = resolve("ieee519-2022", voltage_level_v=480, isc_il=35).evaluation
     got = {(c.applies_to, c.of, c.statistic, c.period_s): c.multiplier for c in ev.checks}
     assert got == {("voltage", "3s", "p99", 86400.0): 1.5,
                    ("voltage", "10min", "p95", 604800.0): 1.0,
@@ -338,14 +338,14 @@ def test_iec61000_3_2_evaluation_rules():
 def test_iec61000_3_12_rows_and_interpolation():
     # IEC 61000-3-12 Table 2 (from memory): Rsce 33: I3 21.6, I5 10.7, THC 23, PWHC 23;
     # Rsce >= 350: I3 41
-    r = resolve("iec61000-3-12", equipment="single-phase", rsce=33)
+    r = resolve("iec61000-3-12", equipment_kind="single-phase", rsce=33)
     assert (lim(r, 3), lim(r, 5), lim(r, 0, quantity="THC"), lim(r, 0, quantity="PWHC")) == \
         (21.6, 10.7, 23.0, 23.0)
     assert all(i.verify for i in r.items)
-    assert lim(resolve("iec61000-3-12", equipment="single-phase", rsce=1e4), 3) == 41.0
+    assert lim(resolve("iec61000-3-12", equipment_kind="single-phase", rsce=1e4), 3) == 41.0
     # linear interpolation between Rsce rows is allowed: Rsce 100 between 66 (I3 24) and 120
     # (I3 27): 24 + (100 - 66) / (120 - 66) * 3
-    r = resolve("iec61000-3-12", equipment="single-phase", rsce=100)
+    r = resolve("iec61000-3-12", equipment_kind="single-phase", rsce=100)
     assert lim(r, 3) == pytest.approx(24 + 34 / 54 * 3)
     assert lim(r, 0, quantity="PWHC") == pytest.approx(26 + 34 / 54 * 4)
     assert "interpolated" in r.rows[0]
@@ -357,13 +357,13 @@ def test_iec61000_3_12_rsce_from_ssc():
     # IEC 61000-3-12 3.x: Rsce = Ssc / (3 Sequ) single-phase, Ssc / (2 Sequ) interphase,
     # Ssc / Sequ three-phase (from memory)
     s_equ = 10e3
-    r = resolve("iec61000-3-12", equipment="single-phase", ssc=3 * 66 * s_equ,
-                rated_power=s_equ)
+    r = resolve("iec61000-3-12", equipment_kind="single-phase", ssc_va=3 * 66 * s_equ,
+                rated_apparent_power_va=s_equ)
     assert r.selector("rsce") == pytest.approx(66) and lim(r, 3) == 24.0
-    r = resolve("iec61000-3-12", equipment="interphase", ssc=2 * 120 * s_equ, rated_power=s_equ)
+    r = resolve("iec61000-3-12", equipment_kind="interphase", ssc_va=2 * 120 * s_equ, rated_apparent_power_va=s_equ)
     assert r.selector("rsce") == pytest.approx(120)
-    r = resolve("iec61000-3-12", equipment="balanced-three-phase", ssc=250 * s_equ,
-                rated_power=s_equ)
+    r = resolve("iec61000-3-12", equipment_kind="balanced-three-phase", ssc_va=250 * s_equ,
+                rated_apparent_power_va=s_equ)
     assert r.selector("rsce") == pytest.approx(250) and lim(r, 5) == 31.0
     assert r.selector("ssc") == 250 * s_equ
 
@@ -383,7 +383,7 @@ def test_ieee1547_limits():
 
 
 def test_resolved_limits_record_their_source():
-    r = resolve("IEEE519-2022", voltage_level=480, isc=35_000, il=1_000)
+    r = resolve("IEEE519-2022", voltage_level_v=480, isc_a=35_000, il_a=1_000)
     assert r.table_id == "ieee519-2022" and r.standard == "IEEE Std 519" and r.edition == "2022"
     assert r.sha256 == hashlib.sha256(Path(r.source).read_bytes()).hexdigest()
     assert dict(r.selectors) == {"voltage_level": 480.0, "isc": 35_000.0, "il": 1_000.0,
@@ -395,30 +395,31 @@ def test_resolved_limits_record_their_source():
 
 
 @pytest.mark.parametrize("tid, kw, message", [
-    ("ieee519-2022", {}, r"^--voltage-level: table ieee519-2022 \(Table 1\) selects limits by "
-                         r"the nominal bus voltage at the PCC: give --voltage-level \[V\]$"),
-    ("ieee519-2022", {"voltage_level": 480},
-     r"^--isc and --il: table ieee519-2022 \(Tables 2 to 4\) selects its row by ISC/IL "
+    ("ieee519-2022", {}, r"^voltage_level_v: table ieee519-2022 \(Table 1\) selects limits by "
+                         r"the nominal bus voltage at the PCC: give `voltage_level_v` \[V\]$"),
+    ("ieee519-2022", {"voltage_level_v": 480},
+     r"^isc_il: table ieee519-2022 \(Tables 2 to 4\) selects its row by ISC/IL "
      r"\(maximum short-circuit current over maximum demand load current at the PCC\); give "
-     r"--isc and --il \[A\]$"),
-    ("ieee519-2022", {"voltage_level": 480, "isc": 1e4}, r"^--il: .* give --il \[A\]$"),
-    ("iec61000-3-2", {}, r"^--class: table iec61000-3-2 \(Class A\) needs the equipment class: "
-                         r"give --class \(A, B, C, D\)$"),
-    ("iec61000-3-2", {"equipment_class": "E"}, r"^--class: 'E' is not one of: A, B, C, D$"),
-    ("iec61000-3-12", {"equipment": "single-phase"},
-     r"^--rsce: table iec61000-3-12 \(Table 2\) selects its row by the short-circuit ratio "
-     r"Rsce: give --rsce, or --ssc \[VA\] with --rated-power \[VA\] and --equipment-kind$"),
-    ("iec61000-3-12", {"equipment": "single-phase", "rsce": 20},
-     r"^--rsce: rsce = 20 is below the lowest row \(33\) of Table 2 in table iec61000-3-12: "
+     r"`isc_a` and `il_a` \[A\]$"),
+    ("ieee519-2022", {"voltage_level_v": 480, "isc_a": 1e4}, r"^il_a: .* give `il_a` \[A\]$"),
+    ("iec61000-3-2", {}, r"^equipment_class: table iec61000-3-2 \(Class A\) needs the equipment "
+                         r"class: give `equipment_class` \(A, B, C, D\)$"),
+    ("iec61000-3-2", {"equipment_class": "E"}, r"^equipment_class: 'E' is not one of: A, B, C, D$"),
+    ("iec61000-3-12", {"equipment_kind": "single-phase"},
+     r"^rsce: table iec61000-3-12 \(Table 2\) selects its row by the short-circuit ratio "
+     r"Rsce: give `rsce`, or `ssc_va` \[VA\] with `rated_apparent_power_va` \[VA\] and "
+     r"`equipment_kind`$"),
+    ("iec61000-3-12", {"equipment_kind": "single-phase", "rsce": 20},
+     r"^rsce: rsce = 20 is below the lowest row \(33\) of Table 2 in table iec61000-3-12: "
      r"the table does not cover it$"),
-    ("iec61000-3-12", {"ssc": 1e6, "rated_power": 1e4},
-     r"^--equipment-kind: Rsce from --ssc and --rated-power needs the kind of equipment: give "
-     r"--equipment-kind \(single-phase, interphase, "),
-    ("ieee519-2022", {"voltage_level": -480}, r"^--voltage-level: must be a positive number, "
-                                              r"got -480$"),
-    ("ieee519-2022", {"isc": 0, "il": 5}, r"^--isc: must be a positive number, got 0$"),
+    ("iec61000-3-12", {"ssc_va": 1e6, "rated_apparent_power_va": 1e4},
+     r"^equipment_kind: Rsce from `ssc_va` and `rated_apparent_power_va` needs the kind of "
+     r"equipment: give `equipment_kind` \(single-phase, interphase, "),
+    ("ieee519-2022", {"voltage_level_v": -480}, r"^voltage_level_v: must be a positive number, "
+                                                r"got -480$"),
+    ("ieee519-2022", {"isc_a": 0, "il_a": 5}, r"^isc_a: must be a positive number, got 0$"),
     ("ieee519-2022", {"voltage": 480}, r"^voltage: unknown selector 'voltage'; known: "
-                                       r"voltage_level, isc, il"),
+                                       r"voltage_level_v, isc_a, il_a"),
 ])
 def test_resolve_errors_name_the_option(tid, kw, message):
     with pytest.raises(InputError, match=message):
@@ -429,7 +430,7 @@ def test_load_by_path_and_unknown_id():
     path = LIMITS_DIR / "iec61000-3-2.toml"
     assert read_table(path) == load_table("IEC61000-3-2")
     assert load_table(str(path)) == load_table("iec61000-3-2")
-    with pytest.raises(LimitTableError, match=r"^--limits: unknown limit table 'ieee-519'; "
+    with pytest.raises(LimitTableError, match=r"^table: unknown limit table 'ieee-519'; "
                                               r"bundled tables: iec61000-3-11, iec61000-3-12, "
                                               r"iec61000-3-2, "):
         load_table("ieee-519")
@@ -462,5 +463,5 @@ def test_dump_toml_of_an_edited_table(tmp_path):
     path.write_text(dump_toml(edited), encoding="utf-8")
     back = read_table(path)
     assert back == edited
-    r = resolve(back, voltage_level=480, isc_il=35)
+    r = resolve(back, voltage_level_v=480, isc_il=35)
     assert lim(r, 3) == 6.0 and r.find(HARMONIC, 3, "current")[0].verify

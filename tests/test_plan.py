@@ -73,9 +73,9 @@ def test_minimal_plan_loads_with_paths_relative_to_the_plan(folder, monkeypatch,
 def test_selection_defaults_to_site_and_equipment_and_entry_overrides(folder):
     text = MINIMAL.replace('table = "ieee519-2022"', 'table = "ieee519-2022"\nil_a = 120')
     plan = load_plan(write(folder, text))
-    resolve_kw, assess_kw = plan.resolve_arguments(plan.limits[0])
-    assert resolve_kw == {"voltage_level": 400.0, "isc": 3500.0, "il": 120.0}
-    assert assess_kw["il_a"] == 120.0 and assess_kw["rated_current_a"] == 75.0
+    sel = plan.limit_selection(plan.limits[0])
+    assert sel.resolve_kwargs() == {"voltage_level_v": 400.0, "isc_a": 3500.0, "il_a": 120.0}
+    assert sel.il_a == 120.0 and sel.rated_current_a == 75.0
 
 
 def test_template_is_a_valid_plan(tmp_path):

@@ -204,7 +204,7 @@ def test_a_capture_as_long_as_the_period_is_assessed_period_by_period(tmp_path):
                                                                     "period_s = 120")
     edited = tmp_path / "short-periods.toml"
     edited.write_text(text, encoding="utf-8")
-    lim = resolve(load_table(edited), voltage_level=480, isc=700, il=10)
+    lim = resolve(load_table(edited), voltage_level_v=480, isc_a=700, il_a=10)
     t = np.arange(int(200 * FS)) / FS
     p = _npy(tmp_path / "rec.npy", t, lambda x: np.where((x >= 66) & (x < 78), 3.0, 0.2))
     result = analyze(load_capture(p), **ANALYSIS, il_a=10)

@@ -333,7 +333,7 @@ def assessed(tmp_path_factory):
     d = tmp_path_factory.mktemp("assessed")
     cap = pqcheck.load_capture(write_capture(d / "c.csv", six_pulse()))
     result = pqcheck.analyze(cap, il_a=100.0)
-    a = assess(result, resolve("ieee519-2022", voltage_level=400, isc=3500, il=100))
+    a = assess(result, resolve("ieee519-2022", voltage_level_v=400, isc_a=3500, il_a=100))
     return cap, result, a
 
 
@@ -415,7 +415,7 @@ def test_pdf_plots_what_the_extractors_return(assessed, monkeypatch, fast_figure
 def test_write_atomic_refuses_existing_file(tmp_path):
     p = tmp_path / "a.txt"
     p.write_text("old")
-    with pytest.raises(ReportError, match=r"a\.txt: file exists; give --force"):
+    with pytest.raises(ReportError, match=r"a\.txt: file exists; give `force`"):
         write_atomic(p, "new")
     assert p.read_text() == "old"
     write_atomic(p, "new", force=True)

@@ -1239,3 +1239,52 @@ def test_verify_site_pdf_with_other_pages_is_caught(tmp_path):
     assert r.exit_code == 1, r.output
     out = json.loads(r.output)
     assert {d["what"] for d in out["differences"]} == {"visible report"}
+
+
+# ---------------------------------------------------------------------------------------------
+# the published JSON Schema of the site study document
+# ---------------------------------------------------------------------------------------------
+
+
+def test_site_documents_validate_against_the_published_schema(tmp_path):
+    # jsonschema (the reference implementation of JSON Schema draft 2020-12) checks every
+    # document the site command writes: pass, fail and inconclusive, with and without a site
+    # transformer, with the report block of --json
+    jsonschema = pytest.importorskip("jsonschema")
+    from pqcheck.site import STUDY_SCHEMA, study_schema
+
+    schema = study_schema()
+    jsonschema.Draft202012Validator.check_schema(schema)
+    validator = jsonschema.Draft202012Validator(schema)
+    runner = CliRunner()
+    no_tx = SITE_BUS.format(summation="general", location="bus", count=1, demand_w=0, il="")
+    no_tx = no_tx.replace(no_tx[no_tx.index("[transformer]"):no_tx.index("[pcc]")], "")
+    no_tx = no_tx.replace('location = "bus"', "").replace("nominal_voltage_v = 11000",
+                                                          "nominal_voltage_v = 400")
+    no_tx = no_tx.replace("ssc_va = 250e6", "ssc_va = 20e6")
+    def folder(name):
+        (tmp_path / name).mkdir()
+        return tmp_path / name
+
+    cases = {
+        "pass": write_site(folder("p"), results=unit_results({5: (1.0, 0.0)}),
+                           il="il_a = 10000"),
+        "fail": write_site(folder("f"), location="supply"),
+        "inconclusive": write_site(folder("i"), il="il_a = 10000",
+                                   results=unit_results({5: (1.0, 0.0)}, max_order=40)),
+        "no transformer": write_site(folder("n"), text=no_tx),
+    }
+    for what, site in cases.items():
+        out = site.parent / "study.json"
+        r = runner.invoke(main, ["site", str(site), "--json", str(out)])
+        assert r.exit_code in (0, 1, 3), (what, r.output)
+        doc = json.loads(out.read_text())
+        assert doc["tool"]["schema"] == STUDY_SCHEMA
+        errors = [f"{e.json_path}: {e.message}" for e in validator.iter_errors(doc)]
+        assert not errors, (what, errors[:5])
+    # the schema is not a formality: a wrong verdict word or an unknown block is refused
+    doc["verdict"] = "ok"
+    assert not validator.is_valid(doc)
+    doc["verdict"] = "pass"
+    doc["extra"] = 1
+    assert not validator.is_valid(doc)

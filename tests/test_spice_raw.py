@@ -119,3 +119,38 @@ def test_cut_short_ascii_is_refused(tmp_path):
                        match=r"cut\.raw: No\. Points: the values section holds \d+ numbers, "
                              r"fewer than the 100 points"):
         load_capture(p)
+
+
+@pytest.mark.parametrize(("edit", "match"), [
+    (lambda h: h.replace("No. Points: 50", "No. Points: many"),
+     r"bad\.raw:6: No\. Points: the header needs 'No\. Points: <number>'"),
+    (lambda h: h.replace("No. Variables: 3", "No. Variables: 4"),
+     r"bad\.raw:5: Variables: 'No\. Variables' is 4 but 3 variables are listed"),
+    (lambda h: h.replace("\t0\ttime\ttime", "\t0\tfreq\tfrequency"),
+     r"bad\.raw:8: Variables: the first variable is 'freq', not time"),
+    (lambda h: h.replace("Flags: real", "Flags: complex").replace(
+        "Transient Analysis", "Transient Analysis"),
+     r"bad\.raw:4: Flags: complex values \(an AC analysis\) are not a waveform"),
+    (lambda h: h.replace("Values:", "Vals:"),
+     r"bad\.raw: the header has no 'Values:' or 'Binary:' line"),
+    (lambda h: h.replace(" 7\t", " 9\t", 1),
+     r"bad\.raw: Values: point 7 is numbered 9; the values section is out of step"),
+    (lambda h: h.replace(" 3\t", " 3\tx", 1),
+     r"bad\.raw: Values: value 'x.*' is not a number"),
+])
+def test_malformed_raw_files_are_refused_with_the_field(tmp_path, edit, match):
+    p = tmp_path / "bad.raw"
+    write_ascii(p, np.arange(50) / FS)
+    p.write_text(edit(p.read_text()))
+    with pytest.raises(CaptureFormatError, match=match):
+        load_capture(p)
+
+
+def test_time_that_does_not_increase_is_refused(tmp_path):
+    p = tmp_path / "back.raw"
+    t = np.arange(50) / FS
+    t[20] = t[18]
+    write_binary(p, t)
+    with pytest.raises(CaptureFormatError,
+                       match=r"back\.raw: time: time does not increase at point 20"):
+        load_capture(p)

@@ -38,7 +38,7 @@ from pqcheck.survey import (
 DAY = 86400.0
 T0 = dt.datetime(2026, 3, 2, 0, 0, tzinfo=dt.timezone.utc).timestamp()
 IL = 100.0
-SEL = dict(voltage_level=480, isc=7000, il=IL)  # ISC/IL = 70: Table 2 row 50-100
+SEL = dict(voltage_level_v=480, isc_a=7000, il_a=IL)  # ISC/IL = 70: Table 2 row 50-100
 
 
 def _series(start_s, n, interval_s, i_h, *, flagged=None, orders=50, level=None):

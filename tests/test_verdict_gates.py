@@ -85,7 +85,7 @@ def test_not_applicable_exits_4_with_the_reason_in_the_json(tmp_path):
 def test_declared_rating_decides_the_current_scope():
     # IEC 61000-3-12 covers a rated input current above 16 A: a unit rated 10 A is not in it
     res = single({1: 8.0, 5: 0.5})
-    a = assess(res, resolve(without_observation("iec61000-3-12"), equipment="single-phase",
+    a = assess(res, resolve(without_observation("iec61000-3-12"), equipment_kind="single-phase",
                             rsce=33), rated_current_a=10.0)
     assert verdict_of(a) == ("not applicable", ["scope-input-current"])
 
@@ -130,7 +130,7 @@ def test_single_phase_capture_checked_as_balanced_three_phase_is_not_a_pass():
     # phase currents are needed (THC 7.5 % is within Table 3's 13 %)
     res = single({1: 20.0, 9: 1.5})
     a = assess(res, resolve(without_observation("iec61000-3-12"),
-                            equipment="balanced-three-phase", rsce=33), rated_current_a=20.0)
+                            equipment_kind="balanced-three-phase", rsce=33), rated_current_a=20.0)
     assert a.verdict == "inconclusive" and "scope-phases" in verdict_of(a)[1]
 
 
@@ -156,7 +156,7 @@ def test_three_phase_unit_measured_on_one_phase_cannot_pass():
 def test_ieee519_at_the_equipment_terminals_is_not_applicable():
     # IEEE 519-2022 (standards-facts 1.1): limits apply at the PCC only
     res = single({1: 100.0, 5: 3.0}, v1=277.0, f0=60.0)
-    lim = resolve(without_observation("ieee519-2022"), voltage_level=480, isc=3500, il=100)
+    lim = resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=3500, il_a=100)
     a = assess(res, lim, il_a=100, declared=Declared(location="equipment-terminals"))
     assert verdict_of(a) == ("not applicable", ["scope-location"])
     a = assess(res, lim, il_a=100, declared=Declared(location="pcc"))
@@ -169,8 +169,8 @@ def test_ieee519_dc_offset_is_a_check():
     # IEEE 519 (standards-facts 1.1): current distortion that gives a dc offset is not
     # allowed; the table counts dc above 0.5 % of IL: 2 A of dc on IL = 100 A is 2 % -> fail
     res = single({1: 100.0, 5: 3.0}, v1=277.0, f0=60.0, dc=2.0)
-    a = assess(res, resolve(without_observation("ieee519-2022"), voltage_level=480, isc=3500,
-                            il=100), il_a=100)
+    a = assess(res, resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=3500,
+                            il_a=100), il_a=100)
     dc = [c for c in a.checks if c.quantity == "DC"]
     assert a.verdict == "fail" and dc and dc[0].verdict == "fail"
     assert dc[0].measured == pytest.approx(2.0, rel=1e-3)
@@ -183,11 +183,11 @@ def test_short_capture_is_inconclusive_against_the_bundled_tables():
     # IEEE 519: statistics over a day and a week; a 3 s capture that meets every limit as a
     # steady state is not a pass
     res = single({1: 100.0, 5: 3.0}, v1=277.0, f0=60.0)
-    a = assess(res, resolve("ieee519-2022", voltage_level=480, isc=3500, il=100), il_a=100)
+    a = assess(res, resolve("ieee519-2022", voltage_level_v=480, isc_a=3500, il_a=100), il_a=100)
     assert a.verdict == "inconclusive" and "observation-short" in verdict_of(a)[1]
     # a measured excess stays a fail (I5 = 9 % of IL, limit 7 %)
     res = single({1: 100.0, 5: 9.0}, v1=277.0, f0=60.0)
-    a = assess(res, resolve("ieee519-2022", voltage_level=480, isc=3500, il=100), il_a=100)
+    a = assess(res, resolve("ieee519-2022", voltage_level_v=480, isc_a=3500, il_a=100), il_a=100)
     assert a.verdict == "fail"
     # IEC 61000-3-2 Table 4 (from memory): a quasi-stationary unit is observed for 2.5 min
     res = single({1: 5.0, 3: 0.5})
@@ -236,12 +236,12 @@ def test_white_noise_given_as_a_current_never_passes():
 
 
 def test_idle_unit_and_a_wrong_il_are_not_passes():
-    lim = resolve(without_observation("ieee519-2022"), voltage_level=480, isc=35000, il=1000)
+    lim = resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=35000, il_a=1000)
     # fundamental 2 A on IL = 1000 A (0.2 %): TDD trivially small, but the unit was idle
     a = assess(single({1: 2.0, 5: 1.0}, v1=277.0, f0=60.0), lim, il_a=1000)
     assert a.verdict == "inconclusive" and "fundamental-low" in verdict_of(a)[1]
     # fundamental 300 A on IL = 100 A: IL cannot be the maximum demand current
-    lim = resolve(without_observation("ieee519-2022"), voltage_level=480, isc=3500, il=100)
+    lim = resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=3500, il_a=100)
     a = assess(single({1: 300.0, 5: 30.0}, v1=277.0, f0=60.0), lim, il_a=100)
     assert a.verdict == "inconclusive" and "fundamental-high" in verdict_of(a)[1]
 
@@ -249,15 +249,15 @@ def test_idle_unit_and_a_wrong_il_are_not_passes():
 def test_voltage_level_that_does_not_fit_the_measured_voltage_is_refused(tmp_path):
     # a 13.8 kV bus (7.97 kV phase) declared as 480 V would pick the <= 1 kV voltage row
     res = single({1: 100.0, 5: 3.0}, v1=7967.0, f0=60.0)
-    lim = resolve(without_observation("ieee519-2022"), voltage_level=480, isc=3500, il=100)
+    lim = resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=3500, il_a=100)
     with pytest.raises(InputError, match=r"does not fit the declared bus voltage of 480 V"):
         assess(res, lim, il_a=100)
     # 13.8 typed for 13.8 kV
     with pytest.raises(InputError, match=r"13.8 V is below 100 V.*13800 V"):
-        resolve("ieee519-2022", voltage_level=13.8, isc=3500, il=100)
+        resolve("ieee519-2022", voltage_level_v=13.8, isc_a=3500, il_a=100)
     # ISC/IL = 0.02: a short-circuit current below the load current
     with pytest.raises(InputError, match=r"ISC/IL = 0.02: the short-circuit current"):
-        resolve("ieee519-2022", voltage_level=480, isc=2, il=100)
+        resolve("ieee519-2022", voltage_level_v=480, isc_a=2, il_a=100)
     t = times(2.0)
     path = write_csv(tmp_path / "c.csv", t, {"ia [A]": wave(t, 60.0, {1: 100.0}),
                                              "va [V]": wave(t, 60.0, {1: 277.0})})
@@ -311,8 +311,8 @@ def test_no_current_channel_cannot_pass_on_voltage_checks_alone():
     t = times(3.0)
     cap = Capture.from_arrays(FS, voltages={"va": wave(t, 60.0, {1: 277.0, 5: 2.0})})
     a = assess(analyze(cap, nominal_hz=60),
-               resolve(without_observation("ieee519-2022"), voltage_level=480, isc=3500,
-                       il=100), il_a=100)
+               resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=3500,
+                       il_a=100), il_a=100)
     assert a.verdict == "inconclusive" and "no-current" in verdict_of(a)[1]
 
 
@@ -335,14 +335,14 @@ def test_edited_copy_of_a_bundled_table_is_named_a_modified_copy(tmp_path):
                                                    "values = [70.0, 35, 25, 10, 5, 80]")
     path = tmp_path / "loose.toml"
     path.write_text(text, encoding="utf-8")
-    lim = resolve(load_table(path), voltage_level=480, isc=3500, il=100)
+    lim = resolve(load_table(path), voltage_level_v=480, isc_a=3500, il_a=100)
     assert lim.provenance.startswith("modified copy of the bundled ieee519-2022")
     assert lim.display_name.startswith("ieee519-2022 (modified copy of the bundled")
-    assert resolve("ieee519-2022", voltage_level=480, isc=3500, il=100).provenance == "bundled"
+    assert resolve("ieee519-2022", voltage_level_v=480, isc_a=3500, il_a=100).provenance == "bundled"
     same = tmp_path / "same.toml"
     same.write_text(dump_toml(load_table("ieee519-2022")), encoding="utf-8")
-    assert resolve(load_table(same), voltage_level=480, isc=3500,
-                   il=100).provenance.startswith("copy of the bundled")
+    assert resolve(load_table(same), voltage_level_v=480, isc_a=3500,
+                   il_a=100).provenance.startswith("copy of the bundled")
     t = times(2.0)
     cap = write_csv(tmp_path / "c.csv", t, {"ia [A]": wave(t, 60.0, {1: 100.0}),
                                             "va [V]": wave(t, 60.0, {1: 277.0})})

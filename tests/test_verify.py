@@ -95,13 +95,16 @@ def test_fresh_report_verifies_from_pdf_and_json(made, monkeypatch):
         assert n > 500  # harmonics of two channels, checks of two tables, findings
 
 
-def test_the_command_line_is_what_makes_the_rerun_possible(copy, monkeypatch):
-    # without the recorded options the columns ch1/ch2 have no role: nothing to analyse
-    _edit(copy / "results.json", lambda d: d["report"].update(command=""))
+def test_the_run_spec_is_what_makes_the_rerun_possible(copy, monkeypatch):
+    # the recorded command line is a record for the reader only: verify never parses it
+    _edit(copy / "results.json", lambda d: d["report"].update(command="pqcheck report x.csv"))
+    res = _run("verify", copy / "results.json", monkeypatch=monkeypatch)
+    assert res.exit_code == 0, res.output
+    _edit(copy / "results.json", lambda d: d["captures"][0].pop("run_spec"))
     res = _run("verify", copy / "results.json", monkeypatch=monkeypatch)
     assert res.exit_code == 2
-    assert re.search(r"results\.json: cannot re-run the recorded analysis: .*run\.csv: "
-                     r"channels: no current or voltage channel recognised", res.stderr)
+    assert re.search(r"results\.json: cannot re-run the recorded analysis: "
+                     r"captures\[0\]\.run_spec: the results record no run specification", res.stderr)
 
 
 def test_moved_report_folder_verifies_from_anywhere(copy, tmp_path, monkeypatch):
@@ -209,11 +212,20 @@ def test_pdf_without_attachment_exits_2(tmp_path, monkeypatch):
 
 
 def test_mangled_json_exits_2_not_a_traceback(copy, monkeypatch):
-    _edit(copy / "results.json", lambda d: d["captures"][0]["analysis"].pop("settings"))
+    _edit(copy / "results.json", lambda d: d["captures"][0]["analysis"].pop("capture"))
     res = _run("verify", copy / "results.json", monkeypatch=monkeypatch)
     assert res.exit_code == 2
     assert re.search(r"results\.json: the recorded results lack what a re-run needs "
-                     r"\(KeyError: 'settings'\)", res.stderr)
+                     r"\(KeyError: 'capture'\)", res.stderr)
+
+
+def test_an_impossible_recorded_setting_exits_2_naming_it(copy, monkeypatch):
+    _edit(copy / "results.json",
+          lambda d: d["captures"][0]["run_spec"]["analysis"].update(max_order=500))
+    res = _run("verify", copy / "results.json", monkeypatch=monkeypatch)
+    assert res.exit_code == 2
+    assert re.search(r"run_spec\.analysis\.max_order: must be a whole number from 2 to 100, "
+                     r"got 500", res.stderr)
 
 
 def test_plan_report_verifies_and_catches_a_changed_plan(tmp_path, monkeypatch):

@@ -11,6 +11,7 @@ import numpy as np
 
 from .. import __version__
 from ..errors import InputError, PqcheckError, ReportError
+from ._fields import cli_message
 
 EXIT_OK = 0
 EXIT_FAIL = 1
@@ -51,12 +52,8 @@ def handle_errors(func):
             with warnings.catch_warnings(), np.errstate(all="ignore"):
                 warnings.simplefilter("ignore", RuntimeWarning)
                 return func(*args, **kwargs)
-        except InputError as exc:
-            fail_usage(exc.location_message())
-        except ReportError as exc:
-            fail_usage(str(exc))
-        except PqcheckError as exc:
-            fail_usage(str(exc))
+        except (InputError, ReportError, PqcheckError) as exc:
+            fail_usage(cli_message(exc))
         except MemoryError:
             fail_usage("out of memory; try a shorter capture or a machine with more memory")
         except KeyboardInterrupt:
@@ -64,13 +61,3 @@ def handle_errors(func):
             sys.exit(130)
 
     return wrapper
-
-
-def split_columns(value: str | None) -> list | None:
-    """Split a comma-separated column list option (None stays None)."""
-    if value is None:
-        return None
-    cols = [c.strip() for c in value.split(",")]
-    if any(not c for c in cols):
-        fail_usage(f"empty column name in {value!r}; give names separated by commas, e.g. ia,ib,ic")
-    return cols

@@ -2,15 +2,13 @@
 
 from __future__ import annotations
 
-import math
-
 import click
 import numpy as np
 
-from ._common import EXIT_OK, handle_errors, main, split_columns
+from ._common import EXIT_OK, handle_errors, main
+from ._fields import cli_text, spec_from_options
 
-__all__ = ["capture_options", "load_and_analyze", "analysis_kwargs", "flicker_settings",
-           "with_flicker"]
+__all__ = ["capture_options", "run_checked"]
 
 
 def capture_options(func):
@@ -21,21 +19,22 @@ def capture_options(func):
                           "(a neutral may follow). Default: guessed from names and units."),
         click.option("--voltage", "voltage", metavar="COLS",
                      help="Voltage columns (line-to-neutral), comma-separated, phase order a,b,c."),
-        click.option("--sample-rate", "sample_rate", type=float, metavar="HZ",
+        click.option("--sample-rate", "sample_rate_hz", type=float, metavar="HZ",
                      help="Sample rate, for files without a time column or declared interval."),
         click.option("--time-column", "time_column", metavar="NAME",
                      help="Name of the time column when it is not recognised."),
-        click.option("--add-file", "add_file", multiple=True, metavar="FILE",
+        click.option("--add-file", "other_files", multiple=True, metavar="FILE",
                      type=click.Path(dir_okay=False),
                      help="Another file of the same capture (one file per channel, same time "
                           "base, checked); repeat for more files."),
         click.option("--encoding", "encoding", metavar="NAME",
                      help="Text encoding of the capture (or of a COMTRADE .cfg), e.g. cp1251, "
                           "gbk, utf-16. Default: detected."),
-        click.option("--nominal-frequency", "nominal", type=click.Choice(["50", "60"]),
+        click.option("--nominal-frequency", "nominal_hz", type=click.Choice(["50", "60"]),
                      help="Nominal system frequency. Default: detected from the data."),
-        click.option("--max-order", "max_order", type=click.IntRange(2, 100), default=50,
-                     show_default=True, help="Highest harmonic order analysed."),
+        click.option("--max-order", "max_order", type=click.IntRange(2, 100),
+                     help="Highest harmonic order analysed. Default: the highest order the "
+                          "limit tables assess, 50 without tables."),
         click.option("--il", "il_a", type=float, metavar="A",
                      help="Maximum demand load current IL at the PCC, for TDD."),
         click.option("--wiring", type=click.Choice(["3-wire", "4-wire"]),
@@ -58,13 +57,13 @@ def capture_options(func):
                           "through the IEC 61000-3-3 reference impedance or through "
                           "--system-impedance (IEC 61000-3-11). auto: voltage when the capture "
                           "has one, else reference-impedance."),
-        click.option("--system-impedance", "system_impedance", metavar="R,X[,RN,XN]",
+        click.option("--system-impedance", "system_impedance_ohm", metavar="R,X[,RN,XN]",
                      help="Supply impedance for IEC 61000-3-11 in ohm (reactance at 50 Hz): "
                           "phase R,X and optionally neutral RN,XN; with only R,X it is a "
                           "single-phase loop split 3:2 between phase and neutral as Zref."),
         click.option("--lamp", type=click.Choice(["230V", "120V"]),
                      help="Flickermeter lamp. Default: 120V below 180 V nominal, else 230V."),
-        click.option("--nominal-voltage", "nominal_voltage", type=float, metavar="V",
+        click.option("--nominal-voltage", "nominal_voltage_v", type=float, metavar="V",
                      help="Nominal line-to-neutral voltage Un the voltage changes are relative "
                           "to. Default: the standard value nearest to the data (230 V on the "
                           "impedance paths at 50 Hz, 120 V at 60 Hz)."),
@@ -79,92 +78,21 @@ def capture_options(func):
     return func
 
 
-def analysis_kwargs(opts: dict) -> dict:
-    """Keyword arguments of :func:`pqcheck.analyze` from parsed capture options."""
-    return {
-        "nominal_hz": None if opts.get("nominal") is None else int(opts["nominal"]),
-        "max_order": opts.get("max_order", 50),
-        "il_a": opts.get("il_a"),
-        "wiring": opts.get("wiring"),
-        "reference": opts.get("reference"),
-        "voltage_connection": opts.get("voltage_connection"),
-    }
-
-
-def flicker_settings(opts: dict):
-    """:class:`pqcheck.flicker.FlickerSettings` from parsed options (None: no flicker)."""
-    from ..errors import InputError
-    from ..flicker import FlickerSettings, SupplyImpedance
-
-    path = opts.get("flicker_path") or "auto"
-    zsys = opts.get("system_impedance")
-    wanted = opts.get("flicker") or path != "auto" or zsys
-    if not wanted:
-        return None
-    z = None
-    if zsys:
-        try:
-            parts = [float(x) for x in str(zsys).replace(";", ",").split(",")]
-        except ValueError:
-            parts = []
-        if len(parts) not in (2, 4):
-            raise InputError(f"give R,X or R,X,RN,XN in ohm, got {zsys!r}",
-                             field="--system-impedance")
-        z = (SupplyImpedance.from_loop(*parts) if len(parts) == 2
-             else SupplyImpedance(*parts))
-        if path == "auto":
-            path = "system-impedance"
-    elif path == "system-impedance":
-        raise InputError("the system-impedance path needs --system-impedance R,X[,RN,XN]",
-                         field="--system-impedance")
-    nominal_v = opts.get("nominal_voltage")
-    if nominal_v is not None and not (nominal_v > 0 and math.isfinite(nominal_v)):
-        raise InputError(f"must be a positive voltage, got {nominal_v:g}",
-                         field="--nominal-voltage")
-    return FlickerSettings(path=path, lamp=opts.get("lamp"), nominal_v=nominal_v,
-                           system_impedance=z)
-
-
-def with_flicker(capture, result, settings):
-    """The analysis result with its flicker evaluation (``result.flicker``)."""
-    import dataclasses
-
-    from ..flicker import analyze_flicker
-
-    fa = analyze_flicker(capture, nominal_hz=int(result.settings.nominal_hz), settings=settings)
-    return dataclasses.replace(result, flicker=fa)
-
-
-def load_and_analyze(capture_path: str, opts: dict, *, progress=None):
-    """Read and analyse one capture with parsed capture options; returns (capture, result).
-
-    Long captures are read block by block and, unless ``--no-cache``, cached; a progress bar
-    is shown on stderr for work over about a second when stderr is a terminal.
-    """
+def run_checked(spec, opts: dict, *, progress=None):
+    """Run :func:`pqcheck.run.check.check_capture` for ``spec`` with the cache options
+    (``no_cache``, ``cache_dir``) and, unless ``quiet``, a progress bar on stderr for work over
+    about a second when stderr is a terminal. Returns the :class:`CaptureRun`."""
     from ..run.cache import Cache
-    from ..run.check import analyze_file
+    from ..run.check import check_capture, refuse_unused_selectors
 
+    refuse_unused_selectors(spec)
     cache = None if opts.get("no_cache") else Cache(opts.get("cache_dir"))
     bar = None
     if progress is None and not opts.get("quiet"):
-        bar = _ProgressBar(capture_path)
+        bar = _ProgressBar(spec.reader.path)
         progress = bar
-    fl = flicker_settings(opts)
     try:
-        capture, result = analyze_file(
-            [capture_path, *opts["add_file"]] if opts.get("add_file") else capture_path,
-            sample_rate_hz=opts.get("sample_rate"),
-            current=split_columns(opts.get("current")),
-            voltage=split_columns(opts.get("voltage")),
-            time_column=opts.get("time_column"),
-            encoding=opts.get("encoding"),
-            cache=cache,
-            progress=progress,
-            **analysis_kwargs(opts),
-        )
-        if fl is not None:
-            result = with_flicker(capture, result, fl)
-        return capture, result
+        return check_capture(spec, cache=cache, progress=progress)
     finally:
         if bar is not None:
             bar.close()
@@ -293,7 +221,7 @@ def render_table(result) -> str:
     if r.findings:
         lines.append("Findings")
         for f in r.findings:
-            lines.append(f"  [{f.severity}] {f.code}: {f.message}")
+            lines.append(f"  [{f.severity}] {f.code}: {cli_text(f.message)}")
     else:
         lines.append("Findings: none")
     return "\n".join(lines)
@@ -338,7 +266,7 @@ def analyze_cmd(capture, fmt, **opts):
     """
     from ..export import analysis_to_dict, dumps, harmonics_frame
 
-    _, result = load_and_analyze(capture, opts)
+    result = run_checked(spec_from_options(capture, opts), opts).result
     if fmt == "json":
         click.echo(dumps(analysis_to_dict(result)))
     elif fmt == "csv":
@@ -356,7 +284,7 @@ def _survey_options(func):
 
 @main.command("inspect")
 @click.argument("capture", type=click.Path(dir_okay=False))
-@click.option("--sample-rate", "sample_rate", type=float, metavar="HZ",
+@click.option("--sample-rate", "sample_rate_hz", type=float, metavar="HZ",
               help="Sample rate, for files without a time column or declared interval.")
 @click.option("--time-column", "time_column", metavar="NAME",
               help="Name of the time column when it is not recognised.")
@@ -364,7 +292,7 @@ def _survey_options(func):
               help="Text encoding of the file (e.g. cp1251, gbk). Default: detected.")
 @_survey_options
 @handle_errors
-def inspect_cmd(capture, sample_rate, time_column, encoding, **survey_opts):
+def inspect_cmd(capture, sample_rate_hz, time_column, encoding, **survey_opts):
     """Show what pqcheck reads in CAPTURE: layout, columns, time base and where it came from,
     guessed roles with their evidence, and the options that confirm or override them. When
     the time base cannot be found it still lists the columns and metadata and says which
@@ -378,7 +306,7 @@ def inspect_cmd(capture, sample_rate, time_column, encoding, **survey_opts):
     if is_survey_input([capture], survey_opts):
         inspect_survey([capture], survey_opts)
     try:
-        cap = load_capture(capture, sample_rate_hz=sample_rate, time_column=time_column,
+        cap = load_capture(capture, sample_rate_hz=sample_rate_hz, time_column=time_column,
                            encoding=encoding)
     except TimeBaseNotFound as exc:
         _inspect_without_time_base(capture, exc)

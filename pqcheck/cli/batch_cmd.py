@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import json
 import math
 import os
@@ -10,15 +9,10 @@ import sys
 
 import click
 
-from ._common import fail_usage, handle_errors, main, split_columns
-from ._limits import (
-    declared_from,
-    limit_options,
-    positive_options,
-    selectors_from,
-    tables_max_order,
-)
-from .analyze import analysis_kwargs, capture_options
+from ._common import fail_usage, handle_errors, main
+from ._fields import spec_from_options
+from ._limits import limit_options
+from .analyze import capture_options
 
 __all__ = ["render_summary"]
 
@@ -96,9 +90,8 @@ def render_summary(summary: dict, run) -> str:
               help="Check again the captures the results file records as errors.")
 @click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
               show_default=True, help="Summary on stdout.")
-@click.pass_context
 @handle_errors
-def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry_errors, fmt,
+def batch_cmd(inputs, out, csv_path, jobs, scheduler, workers, force, retry_errors, fmt,
               **opts):
     """Check every capture in folders or glob patterns against limit tables.
 
@@ -117,7 +110,6 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
     not applicable (outside the tables' scope) and none fails or is inconclusive, 2 bad input.
     """
     from ..run.batch import (
-        BatchSpec,
         DaskExecutor,
         InlineExecutor,
         ProcessExecutor,
@@ -136,19 +128,10 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
     if jobs is not None and (scheduler or workers):
         fail_usage("--jobs sets local worker processes; with Dask use --workers (local "
                    "cluster) or the cluster's own workers (--scheduler)")
-    positive_options(opts, opts.get("il_a"))
-    selectors = selectors_from(opts, opts.get("il_a"))
-    spec = BatchSpec.make(
-        opts["limits"], selectors=selectors, analysis=analysis_kwargs(opts),
-        current=split_columns(opts.get("current")), voltage=split_columns(opts.get("voltage")),
-        sample_rate_hz=opts.get("sample_rate"), time_column=opts.get("time_column"),
-        il_a=opts.get("il_a"), rated_current_a=opts.get("rated_current"),
-        iref_a=opts.get("iref"), active_power_w=opts.get("active_power"),
-        declared=declared_from(opts),
-        cache_dir=opts.get("cache_dir"), use_cache=not opts.get("no_cache"))
-    ana = dict(spec.analysis)
-    tables_max_order(ctx, ana, spec.resolve())  # as `check`: up to the tables' highest order
-    spec = dataclasses.replace(spec, analysis=tuple(sorted(ana.items())))
+    from ..run.check import refuse_unused_selectors
+
+    spec = spec_from_options(None, opts)
+    refuse_unused_selectors(spec)
     if scheduler or workers:
         executor = DaskExecutor(address=scheduler, workers=workers)
     elif jobs == 1:
@@ -157,7 +140,8 @@ def batch_cmd(ctx, inputs, out, csv_path, jobs, scheduler, workers, force, retry
         executor = ProcessExecutor(jobs)
     run = run_batch(inputs, spec, out=out, csv=csv_path, executor=executor, force=force,
                     retry_errors=retry_errors,
-                    progress=not opts.get("quiet") and sys.stderr.isatty())
+                    progress=not opts.get("quiet") and sys.stderr.isatty(),
+                    cache_dir=opts.get("cache_dir"), use_cache=not opts.get("no_cache"))
     for path in run.ignored:
         click.echo(f"pqcheck: note: {path}: left out, no .cfg next to this .dat", err=True)
     summary = summarize(run.table)

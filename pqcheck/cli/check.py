@@ -8,14 +8,9 @@ import math
 import click
 
 from ._common import VERDICT_EXIT, handle_errors, main
-from ._limits import (
-    LIMIT_OPTION_NAMES,
-    declared_from,
-    limit_options,
-    resolve_limits,
-    tables_max_order,
-)
-from .analyze import capture_options, load_and_analyze
+from ._fields import cli_text, spec_from_options
+from ._limits import limit_options
+from .analyze import capture_options, run_checked
 from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__ = ["render_assessment"]
@@ -57,7 +52,7 @@ def render_assessment(assessment, result=None) -> str:
                      else f"           measure: IEC 61000-4-7 harmonic {t.measure}")
     if a.notes:
         lines.append("Notes")
-        lines += [f"  - {n}" for n in a.notes]
+        lines += [f"  - {cli_text(n)}" for n in a.notes]
     checks = sorted(a.checks, key=lambda k: (_ORDER[k.verdict],
                                              k.margin_percent if k.margin_percent is not None
                                              else math.inf))
@@ -68,7 +63,7 @@ def render_assessment(assessment, result=None) -> str:
         rows.append([k.verdict.upper() if k.verdict in ("fail", "inconclusive") else k.verdict,
                      k.table_id, k.channel, k.label, k.statistic, _num(k.measured),
                      _num(k.limit) + ("*" if k.verify else ""), k.unit,
-                     _num(k.margin_percent, 3), k.clause, k.note])
+                     _num(k.margin_percent, 3), k.clause, cli_text(k.note)])
     widths = [max(len(str(r[i])) for r in [head] + rows) for i in range(len(head) - 1)]
     lines.append("")
     lines.append("  ".join(h.ljust(w) for h, w in zip(head, widths)) + "  note")
@@ -89,9 +84,8 @@ def render_assessment(assessment, result=None) -> str:
 @survey_options
 @click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
               show_default=True, help="Output on stdout.")
-@click.pass_context
 @handle_errors
-def check_cmd(ctx, capture, fmt, **opts):
+def check_cmd(capture, fmt, **opts):
     """Check CAPTURE against limit tables.
 
     CAPTURE is a waveform capture, or one or more interval logs of a survey (one row per
@@ -105,27 +99,17 @@ def check_cmd(ctx, capture, fmt, **opts):
     Exit code: 0 pass, 1 a limit is exceeded, 2 bad input, 3 inconclusive (data quality,
     duration, a deviation), 4 not applicable (outside the table's scope).
     """
-    from ..assess import assess
-
-    lim = {k: opts.pop(k) for k in LIMIT_OPTION_NAMES}
     survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
     from .survey_cmd import check_survey, is_survey_input
 
     if is_survey_input(capture, survey_opts):
-        check_survey(capture, fmt, lim, {**opts, **survey_opts})
+        check_survey(capture, fmt, spec_from_options(None, opts), {**opts, **survey_opts})
     if len(capture) > 1:
         from .survey_cmd import check_recording
 
-        check_recording(capture, fmt, lim, {**opts, **survey_opts})
-    capture = capture[0]
-    resolved = resolve_limits(lim, opts.get("il_a"))
-    tables_max_order(ctx, opts, resolved)
-    if any(r.measure == "flicker" for r in resolved):
-        opts["flicker"] = True
-    _, result = load_and_analyze(capture, opts)
-    a = assess(result, resolved, il_a=opts.get("il_a"), rated_current_a=lim["rated_current"],
-               iref_a=lim["iref"], active_power_w=lim["active_power"],
-               declared=declared_from(lim))
+        check_recording(capture, fmt, spec_from_options(None, opts), {**opts, **survey_opts})
+    run = run_checked(spec_from_options(capture[0], opts), opts)
+    result, a = run.result, run.assessment
     if fmt == "json":
         d = a.to_dict()
         d["capture"] = {"source": result.source, "sha256": result.sha256,

@@ -2,29 +2,20 @@
 
 from __future__ import annotations
 
-import shlex
 from dataclasses import replace
 from datetime import datetime, timezone
 from pathlib import Path
 
 import click
 
+from ..record import RunSpec
 from ._common import EXIT_OK, VERDICT_EXIT, fail_usage, handle_errors, main
-from ._limits import (
-    LIMIT_OPTION_NAMES,
-    declared_from,
-    limit_options,
-    positive_options,
-    resolve_limits,
-    tables_max_order,
-)
-from .analyze import capture_options, load_and_analyze
+from ._fields import command_line, given_spec_options, spec_from_options
+from ._limits import LIMIT_OPTION_NAMES, limit_options
+from .analyze import capture_options, run_checked
 from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__: list = []
-
-_CAPTURE_ONLY = ("current", "voltage", "sample_rate", "time_column", "encoding", "add_file",
-                 "nominal", "max_order", "il_a", "wiring", "reference")
 
 _report_limit_options = limit_options(
     required=False,
@@ -32,53 +23,8 @@ _report_limit_options = limit_options(
                 "file. Repeat for several. Without it the report holds the analysis only (no "
                 "verdict).")
 
-
-def _given(ctx, name: str) -> bool:
-    src = ctx.get_parameter_source(name)
-    return src is not None and src.name not in ("DEFAULT", "DEFAULT_MAP")
-
-
-def _command_line(ctx) -> str:
-    """The command as given (options from the command line only), for traceability."""
-    parts = ["pqcheck", "report"]
-    for p in ctx.command.params:
-        if not _given(ctx, p.name):
-            continue
-        value = ctx.params[p.name]
-        if isinstance(p, click.Argument):
-            parts.append(shlex.quote(str(value)))
-            continue
-        flag = max(p.opts, key=len)
-        if p.is_flag:
-            parts.append(flag)
-        elif p.multiple:
-            for v in value:
-                parts += [flag, shlex.quote(str(v))]
-        else:
-            parts += [flag, shlex.quote(str(value))]
-    return " ".join(parts)
-
-
-def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
-    """Analyse and assess one capture as `pqcheck check` does."""
-    from ..report.job import CaptureRun
-    from ..run.build import assess_each
-
-    positive_options(lim, opts.get("il_a"))
-    if not lim["limits"]:
-        given = [n for n in LIMIT_OPTION_NAMES if n != "limits" and _given(ctx, n)]
-        if given:
-            fail_usage(f"--{given[0].replace('_', '-')} selects limit-table rows; give "
-                       "--limits too (or leave it out for an analysis-only report)")
-    resolved = resolve_limits(lim, opts.get("il_a"))
-    tables_max_order(ctx, opts, resolved)
-    capture, result = load_and_analyze(source, opts)
-    assessments = assess_each(result, resolved, il_a=opts.get("il_a"),
-                              rated_current_a=lim["rated_current"], iref_a=lim["iref"],
-                              active_power_w=lim["active_power"],
-                              declared=declared_from(lim))
-    run_id = Path(source).stem or "capture"
-    return (CaptureRun(id=run_id, capture=capture, result=result, assessments=assessments),)
+_REPORT_FIELDS = ("title", "equipment", "site", "operator", "report_id")
+_ROW_FIELDS = tuple(n for n in LIMIT_OPTION_NAMES if n != "table")
 
 
 @main.command("report")
@@ -104,10 +50,10 @@ def _capture_runs(ctx, source: str, opts: dict, lim: dict) -> tuple:
 @survey_options
 @click.pass_context
 @handle_errors
-def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operator, site, title,
-               report_id, **opts):
-    """Write a PDF report of CAPTURE_OR_PLAN: a capture file, or a test plan (.toml) that
-    lists captures, load points and limit tables (`pqcheck plan new` writes a template).
+def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
+    """Write a PDF report of CAPTURE_OR_PLAN: a capture file, a test plan (.toml) that
+    lists captures, load points and limit tables (`pqcheck plan new` writes a template), or
+    an interval log of a survey (the report then has its survey section).
 
     The report holds the verdict, the harmonic tables and charts against the limits, power
     quantities, data-quality findings, method, traceability (SHA-256 of every input), the
@@ -128,7 +74,6 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
         write_csv_dir,
     )
 
-    lim = {k: opts.pop(k) for k in LIMIT_OPTION_NAMES}
     survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
     created = datetime.now(timezone.utc)
 
@@ -150,44 +95,52 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, equipment, operat
     from .survey_cmd import is_survey_input, report_survey
 
     if is_survey_input([source], survey_opts):
-        meta = ReportMeta(title=title or "Harmonic survey report", equipment=equipment or "",
-                          site=site or "", operator=operator or "", created_utc=created,
-                          command=_command_line(ctx))
-        report_survey(source, out, json_path, csv_dir, meta, report_id, lim,
-                      {**opts, **survey_opts}, force)
+        spec = spec_from_options(source, opts)
+        report_survey(source, out, json_path, csv_dir, spec, created,
+                      command_line("report", spec), {**opts, **survey_opts}, force)
     plan = None
+    given = [(n, o) for n, o in given_spec_options(ctx) if n not in _REPORT_FIELDS]
     if source.lower().endswith(".toml"):
+        from ..record import ReportDetails
         from ..run.build import run_plan
         from ..run.plan import load_plan
 
-        clash = [n for n in LIMIT_OPTION_NAMES + _CAPTURE_ONLY if _given(ctx, n)]
-        if clash:
-            name = clash[0].replace("_", "-")
-            name = {"il-a": "il", "nominal": "nominal-frequency"}.get(name, name)
-            fail_usage(f"--{name} cannot be combined with a test plan: set it in the plan "
+        if given:
+            fail_usage(f"{given[0][1]} cannot be combined with a test plan: set it in the plan "
                        f"({source})")
+        details = ReportDetails(**{k: opts.get(k) for k in _REPORT_FIELDS})
         plan = load_plan(source)
         cache = None
         if not opts.get("no_cache"):
             from ..run.cache import Cache
 
             cache = Cache(opts.get("cache_dir"))
-        runs = run_plan(plan, cache=cache)
+        runs = run_plan(plan, cache=cache, report=details)
+        command = command_line("report", RunSpec(report=details), source=source)
     else:
-        runs = _capture_runs(ctx, source, opts, lim)
+        spec = spec_from_options(source, opts)
+        if not spec.limits:
+            rows = [o for n, o in given if n in _ROW_FIELDS]
+            if rows:
+                fail_usage(f"{rows[0]} selects limit-table rows; give --limits too (or leave "
+                           "it out for an analysis-only report)")
+        runs = (run_checked(spec, opts),)
+        command = command_line("report", spec)
+    details = runs[0].spec.report
 
     # 3. Render everything in memory.
     meta = ReportMeta(
-        title=title or (plan.title if plan is not None and plan.title else
-                        "Harmonic emission test report"),
-        equipment=equipment if equipment is not None else
+        title=details.title or (plan.title if plan is not None and plan.title else
+                                "Harmonic emission test report"),
+        equipment=details.equipment if details.equipment is not None else
         (plan.equipment.name if plan is not None else ""),
-        site=site if site is not None else (plan.site.name if plan is not None else ""),
-        operator=operator or "",
+        site=details.site if details.site is not None else
+        (plan.site.name if plan is not None else ""),
+        operator=details.operator or "",
         created_utc=created,
-        command=_command_line(ctx),
+        command=command,
     )
-    rid = report_id or (plan.report_id if plan is not None else "") or make_report_id(
+    rid = details.report_id or (plan.report_id if plan is not None else "") or make_report_id(
         [r.result.sha256 for r in runs] + [plan.sha256 if plan is not None else ""], created)
     meta = replace(meta, report_id=rid)
     job = ReportJob(meta=meta, runs=runs, plan=plan)

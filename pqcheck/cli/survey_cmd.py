@@ -9,6 +9,7 @@ import math
 import click
 
 from ._common import EXIT_OK, VERDICT_EXIT, fail_usage
+from ._fields import cli_text
 
 __all__ = ["survey_options", "SURVEY_OPTION_NAMES", "is_survey_input", "check_survey",
            "inspect_survey", "load_survey", "render_survey", "parse_interval"]
@@ -139,14 +140,16 @@ def survey_json(sa) -> dict:
     return d
 
 
-def check_survey(paths, fmt, lim, opts):
-    """`pqcheck check` on interval logs: assess per period and exit with the verdict."""
-    from ..survey import assess_survey
-    from ._limits import resolve_limits
+def check_survey(paths, fmt, spec, opts):
+    """`pqcheck check` on interval logs: assess per period and exit with the verdict.
 
-    resolved = resolve_limits(lim, opts.get("il_a"))
+    ``spec`` is the :class:`~pqcheck.record.RunSpec` of the options (its limit selections)."""
+    from ..run.check import resolve_limits
+    from ..survey import assess_survey
+
+    resolved = resolve_limits(spec)
     survey = load_survey(paths, opts)
-    sa = assess_survey(survey, resolved, il_a=opts.get("il_a"))
+    sa = assess_survey(survey, resolved, il_a=spec.analysis.il_a)
     if fmt == "json":
         click.echo(json.dumps(survey_json(sa), indent=2))
     else:
@@ -178,36 +181,38 @@ def inspect_survey(paths, opts):
     for col, meaning in s.mapping:
         click.echo(f"{col:<{width}}  {meaning}")
     for f in s.findings:
-        click.echo(f"[{f.severity}] {f.code}: {f.message}")
+        click.echo(f"[{f.severity}] {f.code}: {cli_text(f.message)}")
     raise click.exceptions.Exit(EXIT_OK)
 
 
 def recording_survey(paths, opts, *, levels=("3s", "10min", "2h"), executor=None):
     """Aggregate waveform files into a survey (IEC 61000-4-30) with the parsed options."""
+    from ..run.check import DEFAULT_MAX_ORDER
     from ..run.recording import aggregate_recording
-    from ._common import split_columns
-    from .analyze import analysis_kwargs
+    from ._fields import spec_from_options
 
-    reader = {"sample_rate_hz": opts.get("sample_rate"),
-              "current": split_columns(opts.get("current")),
-              "voltage": split_columns(opts.get("voltage")),
-              "time_column": opts.get("time_column")}
+    spec = spec_from_options(None, opts)
+    reader = {"sample_rate_hz": spec.reader.sample_rate_hz,
+              "current": None if spec.channels.current is None else list(spec.channels.current),
+              "voltage": None if spec.channels.voltage is None else list(spec.channels.voltage),
+              "time_column": spec.reader.time_column}
+    analysis = spec.analysis.analyze_kwargs(spec.analysis.max_order or DEFAULT_MAX_ORDER)
     return aggregate_recording(paths, start_time=opts.get("start_time"),
                                timezone=opts.get("timezone"),
                                declared_voltage_v=opts.get("declared_voltage"),
-                               il_a=opts.get("il_a"), reader=reader,
-                               analysis=analysis_kwargs(opts), executor=executor, levels=levels)
+                               il_a=spec.analysis.il_a, reader=reader,
+                               analysis=analysis, executor=executor, levels=levels)
 
 
-def check_recording(paths, fmt, lim, opts):
+def check_recording(paths, fmt, spec, opts):
     """`pqcheck check` on a waveform recording of several files: aggregate, then assess per
-    period."""
+    period (``spec``: the :class:`~pqcheck.record.RunSpec` of the options)."""
+    from ..run.check import resolve_limits
     from ..survey import assess_survey
-    from ._limits import resolve_limits
 
-    resolved = resolve_limits(lim, opts.get("il_a"))
+    resolved = resolve_limits(spec)
     survey = recording_survey(paths, opts, levels=("3s", "10min"))
-    sa = assess_survey(survey, resolved, il_a=opts.get("il_a"))
+    sa = assess_survey(survey, resolved, il_a=spec.analysis.il_a)
     if fmt == "json":
         click.echo(json.dumps(survey_json(sa), indent=2))
     else:
@@ -215,26 +220,29 @@ def check_recording(paths, fmt, lim, opts):
     raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
 
 
-def report_survey(source, out, json_path, csv_dir, meta, report_id, lim, opts, force):
-    """`pqcheck report` on an interval log: the report with its survey section."""
-    from dataclasses import replace
-
+def report_survey(source, out, json_path, csv_dir, spec, created, command, opts, force):
+    """`pqcheck report` on an interval log: the report with its survey section (``spec``:
+    the :class:`~pqcheck.record.RunSpec` of the options)."""
     from ..files.atomic import write_atomic
-    from ..report.job import make_report_id
+    from ..report.job import ReportMeta, make_report_id
     from ..report.survey_pdf import render_survey_pdf, survey_job_dict
+    from ..run.check import resolve_limits
     from ..survey import assess_survey
-    from ._limits import resolve_limits
 
-    if not lim.get("limits"):
+    if not spec.limits:
         fail_usage("a survey report needs --limits (its statistics are those of a table)")
     if csv_dir is not None:
         fail_usage("--csv is not available for a survey report; use --json (every period's "
                    "values are in it)")
-    resolved = resolve_limits(lim, opts.get("il_a"))
+    resolved = resolve_limits(spec)
     survey = load_survey([source], opts)
-    sa = assess_survey(survey, resolved, il_a=opts.get("il_a"))
-    rid = report_id or make_report_id(list(survey.sha256), meta.created_utc)
-    meta = replace(meta, report_id=rid)
+    sa = assess_survey(survey, resolved, il_a=spec.analysis.il_a)
+    d = spec.report
+    meta = ReportMeta(title=d.title or "Harmonic survey report", equipment=d.equipment or "",
+                      site=d.site or "", operator=d.operator or "", created_utc=created,
+                      command=command)
+    rid = d.report_id or make_report_id(list(survey.sha256), created)
+    meta = ReportMeta(**{**meta.__dict__, "report_id": rid})
     doc = survey_job_dict(sa, meta)
     results = (json.dumps(doc, indent=2) + "\n").encode("utf-8")
     pdf = render_survey_pdf(sa, meta, results_json=results)

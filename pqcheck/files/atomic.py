@@ -47,7 +47,7 @@ def check_target(path, *, force: bool = False, option: str | None = None) -> Pat
     if p.is_dir():
         raise ReportError(f"{named}: is a folder; give a file name")
     if p.exists() and not force:
-        raise ReportError(f"{named}: file exists; give --force to replace it (left unchanged)")
+        raise ReportError(f"{named}: file exists; give `force` to replace it (left unchanged)")
     parent = p.parent if str(p.parent) else Path(".")
     if not parent.is_dir():
         raise ReportError(f"{named}: folder {parent} does not exist; create it first")
@@ -121,11 +121,11 @@ def atomic_open(path, mode: str = "wb", *, force: bool = False, option: str | No
                 os.link(tmp, target)
             except FileExistsError:
                 raise ReportError(
-                    f"{named}: file appeared while writing; give --force to replace it "
+                    f"{named}: file appeared while writing; give `force` to replace it "
                     "(left unchanged)") from None
             except OSError:  # file system without hard links
                 if target.exists():
-                    raise ReportError(f"{named}: file exists; give --force to replace it "
+                    raise ReportError(f"{named}: file exists; give `force` to replace it "
                                       "(left unchanged)") from None
                 os.replace(tmp, target)
     except ReportError:

@@ -6,7 +6,7 @@ channel). Columns are named ``col1``, ``col2``, ... unless a JSON file of the sa
 Loaded with ``allow_pickle=False`` and memory-mapped, so it is read block by block.
 
 Parquet: one column per channel; a time column is recognised by name (``time``, ``t``, ...) or
-unit (``time [s]``); otherwise the sample rate comes from ``--sample-rate`` or the key
+unit (``time [s]``); otherwise the sample rate comes from ``sample_rate_hz`` or the key
 ``sample_rate_hz`` in the file's key-value metadata. Read row group by row group.
 """
 
@@ -43,7 +43,7 @@ def _time_base(t, path, field):
     if med <= 0 or np.any(np.abs(dt - med) > 0.01 * med):
         raise CaptureFormatError(
             "the time column is not uniform; give uniformly sampled data or drop the time "
-            "column and pass --sample-rate", path=path, field=field)
+            "column and give `sample_rate_hz`", path=path, field=field)
     return (t.size - 1) / (t[-1] - t[0]), float(t[0])
 
 
@@ -138,7 +138,7 @@ def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha25
     if time_column is not None:
         if time_column not in names:
             raise CaptureFormatError(f"no column named {time_column!r}; columns are: "
-                                     f"{', '.join(names)}", path=path, field="--time-column")
+                                     f"{', '.join(names)}", path=path, field="time_column")
         t_idx = names.index(time_column)
     else:
         for i, (n, u) in enumerate(zip(names, units)):
@@ -153,7 +153,7 @@ def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha25
         settings["time_base"] = "column"
     elif fs is None:
         raise CaptureFormatError(
-            "no time column and no sample rate; give --sample-rate HZ", path=path,
+            "no time column and no sample rate; give `sample_rate_hz`", path=path,
             field="sample rate")
     else:
         settings["time_base"] = "given"

@@ -173,7 +173,11 @@ def checked_columns(table, dialect: Dialect, path):
             "delimiter at the end of the rows); give that column a name in the header line "
             "or remove the value", path=path, line=line)
     out = table[:, [cols.index(j) for j in dialect.keep]] if dialect.selects else table
-    if np.isinf(out).any():
+    # a sum is finite when every cell is (and cheaper than a cell-by-cell test); only when it
+    # is not (NaN gaps, or an overflow) are the cells looked at one by one
+    with np.errstate(all="ignore"):
+        total = float(np.sum(out))
+    if not np.isfinite(total) and np.isinf(out).any():
         found = _locate_cell(path, dialect, "infinite")
         line, col, text = found if found else (None, None, "inf")
         shown = text if len(text) <= 40 else text[:37] + "..."
@@ -385,6 +389,15 @@ def _drop_counter(table, names, units, scales, d, path, sample_rate_hz, declared
     if kind == "index":
         settings["dropped_columns"] = {names[0]: "sample index (0, 1, 2, ...)"}
         return table[:, 1:], names[1:], units[1:], scales[1:]
+    rate = sample_rate_hz or (1.0 / declared[0] if declared is not None else None)
+    if kind == "uniform" and rate is not None:
+        x = table[:, 0]
+        step = (x[-1] - x[0]) / (x.size - 1)
+        if abs(step * rate - 1.0) <= 0.01:  # time in seconds at the rate: not a signal
+            settings["dropped_columns"] = {
+                names[0]: f"time in seconds (uniform steps of {step:.6g} s match the "
+                          f"{rate:.6g} Hz sample rate)"}
+            return table[:, 1:], names[1:], units[1:], scales[1:]
     if kind == "uniform" and sample_rate_hz is None and declared is None:
         raise TimeBaseNotFound(
             f"column {names[0]!r} increases in uniform steps like a time column, but its name "

@@ -380,6 +380,13 @@ def declared_interval(meta: dict):
                 return 1.0 / number, key
             if unit == "s":
                 return number, key
+        # a key about sampling whose value carries its unit ("Sampling,10us", "Sampling,
+        # 100 kS/s"): the unit says whether it is an interval or a rate
+        if k.startswith("sampl") or k in ("interval", "sampling time"):
+            if unit == "s":
+                return number, key
+            if unit == "hz":
+                return 1.0 / number, key
     return None
 
 
@@ -621,9 +628,16 @@ def beside_layout(lines, path) -> Plan | None:
                 tail_ok = all(all(_is_number(c, decimal) for c in r[j:kk]) for r in filled)
                 if not tail_ok:
                     continue
-                texty = [r for r in rows if r[0].strip() and not _is_number(r[0], decimal)]
+                texty = [n for n, r in enumerate(rows) if r[0].strip()
+                         and not _is_number(r[0], decimal)]
                 if len(texty) < 2:
                     break  # plain numeric rows: the generic layout reads them
+                # the metadata fill the first lines only; below them the first columns are
+                # empty (text in column 1 of every row is a text column, not metadata)
+                top = texty[-1] + 1
+                if texty != list(range(len(texty))) or top > len(rows) // 2 or any(
+                        any(c.strip() for c in r[:j]) for r in rows[top:]):
+                    break
                 meta, meta_lines = {}, []
                 for n, r in enumerate(rows):
                     if r[0].strip() and not _is_number(r[0], decimal):
@@ -650,8 +664,12 @@ def beside_layout(lines, path) -> Plan | None:
                             unit_words=units, metadata=meta, metadata_lines=meta_lines)
                 for n in range(j):
                     plan.drop[n] = "metadata beside the data"
-                if m >= 2:
+                tcol = [float(r[j]) for r in filled]
+                if m >= 2 and all(b > a for a, b in zip(tcol, tcol[1:])):
                     plan.time_column = j
+                elif m >= 2:  # not increasing: not a time column, every column a signal
+                    names[j:kk] = [f"CH{n + 1}" for n in range(m)]
+                    units[j] = vu
                 plan.notes.append(f"metadata in columns 1-{j}, samples in columns {j + 1}-{kk} "
                                   "of the same lines")
                 return plan
@@ -677,6 +695,9 @@ def units_row(plan: Plan, lines, path) -> None:
     cells = plan.raw_names
     if not all(unit_word(c) or not c.strip() for c in cells) or not any(c.strip()
                                                                           for c in cells):
+        return
+    # a unit written out (second, Volt, Amp): a header of bare symbols (V, A) stays a header
+    if not any(len(c.strip().strip('"')) >= 3 for c in cells if c.strip()):
         return
     above = lines[plan.header_line - 2].split(plan.delimiter) if plan.delimiter else []
     if len(above) != plan.width or not any(c.strip() and not _is_number(c, plan.decimal)

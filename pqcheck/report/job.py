@@ -84,6 +84,9 @@ class CaptureRun:
         Operating point in percent of rated power. [%]
     notes : str
         Free text from the plan.
+    spec : RunSpec or None
+        What was run (:class:`pqcheck.record.RunSpec`), recorded in the results so the run
+        can be repeated (:mod:`pqcheck.run.verify`).
     """
 
     id: str
@@ -93,6 +96,24 @@ class CaptureRun:
     load_point: str = ""
     load_percent: float | None = None
     notes: str = ""
+    spec: object = None
+
+    @property
+    def assessment(self):
+        """The assessments of every table as one :class:`~pqcheck.assess.Assessment` (checks
+        and tables in order, notes without repeats, the overall verdict); None without any."""
+        if not self.assessments:
+            return None
+        if len(self.assessments) == 1:
+            return self.assessments[0]
+        from ..assess import VERDICTS, Assessment
+
+        checks = tuple(c for a in self.assessments for c in a.checks)
+        notes = tuple(dict.fromkeys(n for a in self.assessments for n in a.notes))
+        return Assessment(verdict=_overall(checks), checks=checks,
+                          tables=tuple(t for a in self.assessments for t in a.tables),
+                          notes=notes,
+                          counts={v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS})
 
     @property
     def tables(self) -> list:

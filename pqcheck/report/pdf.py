@@ -494,7 +494,7 @@ def _cover(b: _Builder) -> None:
     all_checks = [c for r in job.runs for a in r.tables for c in a.checks]
     if verdict == NOT_ASSESSED:
         big, line = "NO VERDICT", ("No limit table was applied: this report presents the "
-                                   "analysis only. Give --limits (or [[limits]] in a test plan) "
+                                   "analysis only. Give limit tables (limits in a test plan) "
                                    "for a compliance verdict.")
     else:
         big = f"{VERDICT_MARK.get(verdict, '')}  {VERDICT_WORD.get(verdict, verdict.upper())}"
@@ -1416,7 +1416,7 @@ def render_pdf(job, *, results_json: bytes) -> bytes:
     job : ReportJob
         Captures, results, assessments and metadata.
     results_json : bytes
-        The results JSON (what ``--json`` writes), embedded as ``results.json``.
+        The results JSON (the report's JSON file), embedded as ``results.json``.
 
     Returns
     -------

@@ -1,7 +1,7 @@
 """Results export of a report: one JSON document and tidy CSV tables.
 
-The JSON is what ``--json`` writes and what the PDF carries as its ``results.json``
-attachment (the same bytes). The CSV tables (``--csv DIR``) are tidy: one row per
+The JSON is what ``pqcheck report`` writes as its JSON file and what the PDF carries as its
+``results.json`` attachment (the same bytes). The CSV tables (a folder of them) are tidy: one row per
 observation, one column per variable, a ``capture`` column wherever several captures are
 stacked. Both are formatted from the result objects through :mod:`pqcheck.export` and the
 assessment's own dict form; nothing is recomputed.
@@ -65,6 +65,7 @@ def job_to_dict(job) -> dict:
                 "verdict": r.verdict,
                 "analysis": analysis_to_dict(r.result),
                 "assessments": [a.to_dict() for a in r.assessments],
+                "run_spec": None if r.spec is None else r.spec.to_dict(),
             }
             for r in job.runs
         ],
@@ -165,13 +166,13 @@ def check_csv_targets(folder, *, force: bool = False) -> list:
 
     d = Path(folder)
     if d.exists() and not d.is_dir():
-        raise ReportError(f"--csv {d}: exists and is not a folder")
+        raise ReportError(f"`csv` {d}: exists and is not a folder")
     if not d.exists():
         parent = d.parent if str(d.parent) else Path(".")
         if not parent.is_dir():
-            raise ReportError(f"--csv {d}: folder {parent} does not exist; create it first")
+            raise ReportError(f"`csv` {d}: folder {parent} does not exist; create it first")
         return [d / f"{name}.csv" for name in CSV_TABLES]
-    return [check_target(d / f"{name}.csv", force=force, option="--csv")
+    return [check_target(d / f"{name}.csv", force=force, option="`csv`")
             for name in CSV_TABLES]
 
 
@@ -191,5 +192,5 @@ def write_csv_dir(frames: dict, folder, *, force: bool = False) -> list:
     out = []
     for name, path in zip(CSV_TABLES, paths):
         text = frames[name].to_csv(index=False, lineterminator="\n")
-        out.append(write_atomic(path, text, force=force, option="--csv"))
+        out.append(write_atomic(path, text, force=force, option="`csv`"))
     return out

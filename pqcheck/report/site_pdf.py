@@ -172,17 +172,24 @@ def _first_page(study, report: dict, st) -> list:
     undecided = [c for c in study.checks if c.verdict == "inconclusive"]
     closest = sorted((c for c in study.checks if c.verdict == "pass"
                       and c.margin_percent is not None), key=lambda c: c.margin_percent)
-    rows = [["Check", "Estimate", "Limit", "Margin", "Verdict", "Why"]]
+    rows = [["Check", "Estimate", "Limit", "Margin", "Verdict", "Phase or reason"]]
     for c in failing + closest[:_CLOSEST]:
-        rows.append(_check_row(c))
-    for c in undecided:
         rows.append(_check_row(c))
     out.append(_table(rows, [0.09, 0.2, 0.16, 0.1, 0.16, 0.29], st))
     out.append(Paragraph(
-        f"{len(failing)} check(s) exceed their limit, {len(undecided)} are inconclusive; the "
-        f"{min(_CLOSEST, len(closest))} closest passes follow the failures. Margin is "
-        "(limit \u2212 estimate) / limit: negative when the limit is exceeded.",
-        st["caption"]))
+        f"{len(failing)} check(s) exceed their limit; the {min(_CLOSEST, len(closest))} "
+        "closest passes follow the failures. Margin is (limit \u2212 estimate) / limit: "
+        "negative when the limit is exceeded.", st["caption"]))
+    if undecided:
+        groups: dict = {}
+        for c in undecided:
+            groups.setdefault(c.note.split("; ")[0] or "not measured", []).append(c.label)
+        rows = [["Why undecided", "Checks"]]
+        rows += [[esc(why), esc(", ".join(labels))] for why, labels in groups.items()]
+        out.append(_table(rows, [0.45, 0.55], st))
+        out.append(Paragraph(
+            f"{len(undecided)} check(s) are inconclusive, grouped by their reason; an "
+            "inconclusive check is never a pass.", st["caption"]))
 
     out.append(Paragraph("How the verdict depends on the summation method", st["h2"]))
     rows = [["Summation", "Verdict", "Failing checks", "Closest to its limit"]]
@@ -459,7 +466,7 @@ def render_site_pdf(study, *, report: dict, results_json: bytes) -> bytes:
         Who and when, as recorded in the results: ``title``, ``operator``, ``id``,
         ``time_of_analysis_utc`` (ISO 8601).
     results_json : bytes
-        The results JSON (what ``--json`` writes), embedded as ``results.json``.
+        The results JSON (the JSON file the command writes), embedded as ``results.json``.
 
     Returns
     -------

@@ -2,12 +2,11 @@
 
 A charging-network operator or a utility may hold thousands of captures from a fleet.
 :func:`run_batch` finds the captures in folders or glob patterns (:func:`find_captures`), and
-checks each one exactly as ``pqcheck check`` does (:func:`pqcheck.run.check.analyze_file`, then
-:func:`pqcheck.limits.resolve` and :func:`pqcheck.assess.assess`), collecting one row per
+checks each one exactly as ``pqcheck check`` does (:func:`pqcheck.run.check.check_capture`), collecting one row per
 capture and check (:data:`SCHEMA`).
 
 Parallel work
-    The same module-level work function (:func:`check_capture`, plain dicts in and out) runs
+    The same module-level work function (:func:`check_task`, plain dicts in and out) runs
     in-process (one job), in a process pool (:class:`ProcessExecutor`) or on a Dask cluster
     (:class:`DaskExecutor`), so every executor gives the same table.
 
@@ -34,7 +33,6 @@ from __future__ import annotations
 import collections
 import contextlib
 import dataclasses
-import functools
 import glob
 import hashlib
 import json
@@ -54,11 +52,12 @@ from ..readers import capture_sha256
 __all__ = [
     "SCHEMA",
     "CAPTURE_SUFFIXES",
-    "BatchSpec",
+    "batch_spec",
+    "settings_key",
     "BatchRun",
     "find_captures",
     "hash_capture",
-    "check_capture",
+    "check_task",
     "run_batch",
     "read_results",
     "write_results",
@@ -113,107 +112,36 @@ class MissingExtraError(PqcheckError):
 # --- what every capture is checked with ---------------------------------------------------
 
 
-@dataclass(frozen=True)
-class BatchSpec:
-    """Limits and options shared by every capture of a batch (plain, picklable data).
+def batch_spec(spec):
+    """The template :class:`~pqcheck.record.RunSpec` of a batch: no capture path, and the
+    paths of user limit tables made absolute (workers may run in another folder)."""
+    lims = tuple(dataclasses.replace(s, table=os.path.abspath(s.table))
+                 if os.path.isfile(s.table) else s for s in spec.limits)
+    return dataclasses.replace(spec, reader=dataclasses.replace(spec.reader, path=""),
+                               limits=lims)
 
-    Attributes
-    ----------
-    limits : tuple of str
-        Limit tables: bundled ids or paths of .toml files (paths made absolute).
-    selectors : tuple of (str, object)
-        Keyword arguments of :func:`pqcheck.limits.resolve`; None values left out.
-    sample_rate_hz : float or None
-        Sample rate for files without a time base. [Hz]
-    current, voltage : tuple of str or None
-        Channel map (column names in phase order a, b, c).
-    time_column : str or None
-        Name of the time column when it is not recognised.
-    analysis : tuple of (str, object)
-        Keyword arguments of :func:`pqcheck.analyze` (``nominal_hz``, ``max_order``, ``il_a``,
-        ``wiring``, ...).
-    declared : pqcheck.gates.Declared or None
-        Location, behaviour, representative period... for the assessment's gates.
-    il_a, rated_current_a, iref_a, active_power_w : float or None
-        Reference values of :func:`pqcheck.assess.assess`. [A], [A], [A], [W]
-    cache_dir : str or None
-        Cache folder (None: the default folder on each worker).
-    use_cache : bool
-        Read and write the cache of parsed captures and results.
+
+def settings_key(spec) -> str:
+    """Short hash of everything that decides a row: the tables (id and SHA-256 of the file,
+    the selectors used) and the spec without its capture path and report details.
+
+    Raises
+    ------
+    InputError
+        A table cannot be read, or a selector it needs is missing or out of range.
     """
+    from .check import resolve_limits
 
-    limits: tuple
-    selectors: tuple = ()
-    sample_rate_hz: float | None = None
-    current: tuple | None = None
-    voltage: tuple | None = None
-    time_column: str | None = None
-    analysis: tuple = ()
-    il_a: float | None = None
-    rated_current_a: float | None = None
-    iref_a: float | None = None
-    active_power_w: float | None = None
-    declared: object = None
-    cache_dir: str | None = None
-    use_cache: bool = True
-
-    @classmethod
-    def make(cls, limits, *, selectors=None, analysis=None, current=None, voltage=None,
-             cache_dir=None, **kwargs) -> BatchSpec:
-        """Build a spec from lists and dicts (paths made absolute, None selectors dropped)."""
-        lims = tuple(os.path.abspath(x) if _is_file(x) else str(x) for x in limits)
-        sel = tuple(sorted((k, v) for k, v in (selectors or {}).items() if v is not None))
-        ana = tuple(sorted((analysis or {}).items()))
-        return cls(limits=lims, selectors=sel, analysis=ana,
-                   current=None if current is None else tuple(current),
-                   voltage=None if voltage is None else tuple(voltage),
-                   cache_dir=None if cache_dir is None else os.path.abspath(cache_dir),
-                   **kwargs)
-
-    def resolve(self) -> tuple:
-        """The resolved limit tables (:class:`pqcheck.limits.ResolvedLimits`), in order.
-
-        Raises
-        ------
-        InputError
-            A table cannot be read, or a selector it needs is missing or out of range.
-        """
-        return _resolved(self.limits, self.selectors, _stamps(self.limits))
-
-    def key(self) -> str:
-        """Short hash of everything that decides a row: the tables (id and SHA-256 of the
-        file), the selectors, the channel map and the analysis and assessment options."""
-        tables = [(t.table_id, t.sha256, [list(s) for s in t.selectors]) for t in self.resolve()]
-        d = dataclasses.asdict(self)
-        for k in ("limits", "cache_dir", "use_cache"):
-            d.pop(k)
-        d["tables"] = tables
-        text = json.dumps(d, sort_keys=True, default=str)
-        return hashlib.sha256(text.encode()).hexdigest()[:16]
-
-
-def _is_file(x) -> bool:
-    return isinstance(x, os.PathLike) or (os.path.isfile(str(x)))
-
-
-def _stamps(limits: tuple) -> tuple:
-    """Size and modification time of each table file, so an edited file is read again."""
-    out = []
-    for x in limits:
-        try:
-            st = os.stat(x)
-            out.append((st.st_size, st.st_mtime_ns))
-        except OSError:
-            out.append(None)
-    return tuple(out)
-
-
-@functools.lru_cache(maxsize=8)
-def _resolved(limits: tuple, selectors: tuple, stamps: tuple) -> tuple:
-    """Resolved tables, cached per process (a worker resolves once, not once per capture)."""
-    from ..limits import load_table, resolve
-
-    return tuple(resolve(load_table(x), **dict(selectors)) for x in limits)
+    tables = [(t.table_id, t.sha256, [list(x) for x in t.selectors])
+              for t in resolve_limits(spec)]
+    d = spec.to_dict()
+    d.pop("report")
+    d["reader"].pop("path")
+    for sel in d["limits"]:
+        sel.pop("table")
+    d["tables"] = tables
+    text = json.dumps(d, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
 # --- finding captures ---------------------------------------------------------------------
@@ -363,15 +291,16 @@ def error_row(capture: str, sha, key: str, message: str) -> dict:
     return row
 
 
-def check_capture(task: dict) -> list:
+def check_task(task: dict) -> list:
     """Work function: analyse and assess one capture, return its rows.
 
     Parameters
     ----------
     task : dict
         ``capture`` (path as it goes in the table), ``path`` (path to open), ``sha256`` (from
-        the hashing pass), ``key`` (:meth:`BatchSpec.key`) and ``spec`` (the fields of a
-        :class:`BatchSpec` as a dict).
+        the hashing pass), ``key`` (:func:`settings_key`), ``spec``
+        (:meth:`pqcheck.record.RunSpec.to_dict` of the batch's template), ``cache_dir`` and
+        ``use_cache``.
 
     Returns
     -------
@@ -388,27 +317,18 @@ def check_capture(task: dict) -> list:
 
 
 def _check_rows(task: dict) -> list:
-    from ..assess import assess
+    from ..record import RunSpec
     from .cache import Cache
-    from .check import analyze_file
+    from .check import check_capture
 
-    spec = BatchSpec(**task["spec"])
-    if isinstance(spec.declared, dict):  # a spec sent to a worker as plain data
-        from ..gates import Declared
-
-        spec = dataclasses.replace(spec, declared=Declared(**spec.declared))
+    spec = RunSpec.from_dict(task["spec"]).with_capture(task["path"])
     capture, sha, key = task["capture"], task.get("sha256"), task.get("key", "")
-    tables = spec.resolve()
-    cache = Cache(spec.cache_dir) if spec.use_cache else None
-    _, result = analyze_file(task["path"], sample_rate_hz=spec.sample_rate_hz,
-                             current=None if spec.current is None else list(spec.current),
-                             voltage=None if spec.voltage is None else list(spec.voltage),
-                             time_column=spec.time_column, cache=cache, **dict(spec.analysis))
+    cache = Cache(task.get("cache_dir")) if task.get("use_cache", True) else None
+    run = check_capture(spec, cache=cache)
+    result, a = run.result, run.assessment
     if sha and result.sha256 and result.sha256 != sha:
         raise PqcheckError(f"{capture}: the file changed while the batch ran (SHA-256 "
                            f"{sha[:12]}... then {result.sha256[:12]}...); run the batch again")
-    a = assess(result, tables, il_a=spec.il_a, rated_current_a=spec.rated_current_a,
-               iref_a=spec.iref_a, active_power_w=spec.active_power_w, declared=spec.declared)
     table_sha = {t.table_id: t.sha256 for t in a.tables}
     base = _blank_row(capture, sha or result.sha256, key)
     base.update(capture_verdict=a.verdict, capture_notes="; ".join(a.notes))
@@ -430,7 +350,7 @@ def _check_rows(task: dict) -> list:
 
 
 class InlineExecutor:
-    """Runs the work in this process, one capture after another (``--jobs 1``)."""
+    """Runs the work in this process, one capture after another (one job)."""
 
     def __enter__(self):
         return self
@@ -606,7 +526,7 @@ class DaskExecutor:
                 self.client = Client(self.address, timeout="10s")
             except (OSError, TimeoutError) as exc:
                 raise InputError(f"cannot reach the Dask scheduler ({exc})",
-                                 field="--scheduler") from None
+                                 field="scheduler") from None
         else:
             self.cluster = LocalCluster(n_workers=self.workers or os.cpu_count() or 1,
                                         threads_per_worker=1, processes=True,
@@ -683,11 +603,11 @@ def read_results(path, *, fmt: str | None = None) -> pa.Table:
             table = pq.read_table(p)
     except (OSError, pa.ArrowException) as exc:
         raise InputError(f"cannot read it as a results table ({exc}); give another output "
-                         "file or --force to replace it", path=str(p)) from None
+                         "file or `force` to replace it", path=str(p)) from None
     missing = [n for n in SCHEMA.names if n not in table.column_names]
     if missing:
         raise InputError(f"not a pqcheck batch results table (no column {missing[0]!r}); give "
-                         "another output file or --force to replace it", path=str(p))
+                         "another output file or `force` to replace it", path=str(p))
     try:
         return table.select(SCHEMA.names).cast(SCHEMA)
     except (pa.ArrowException, ValueError) as exc:
@@ -708,10 +628,10 @@ def write_results(table: pa.Table, *, parquet=None, csv=None) -> None:
     from ..files.atomic import atomic_open
 
     if parquet is not None:
-        with atomic_open(parquet, "wb", force=True, option="--out") as fh:
+        with atomic_open(parquet, "wb", force=True, option="`out`") as fh:
             pq.write_table(table, fh)
     if csv is not None:
-        with atomic_open(csv, "wb", force=True, option="--csv") as fh:
+        with atomic_open(csv, "wb", force=True, option="`csv`") as fh:
             pacsv.write_csv(table, fh)
 
 
@@ -722,7 +642,7 @@ class _Results:
         from ..files.atomic import check_target
 
         self.parquet, self.csv = parquet, csv
-        for path, opt in ((parquet, "--out"), (csv, "--csv")):
+        for path, opt in ((parquet, "`out`"), (csv, "`csv`")):
             if path is not None:
                 check_target(path, force=True, option=opt)
         self.old = _empty_table()
@@ -734,7 +654,7 @@ class _Results:
             if keys:
                 raise InputError(
                     "holds results made with other limit tables, selectors or options; give "
-                    "another output file, or --force to start it afresh", path=str(source[0]))
+                    "another output file, or `force` to start it afresh", path=str(source[0]))
         self.new: list = []  # one Arrow table per capture (columnar: a fleet's rows fit)
         self.redone_paths: set = set()
         self.redone_shas: set = set()
@@ -821,16 +741,17 @@ def _bar(total: int, desc: str, show: bool):
                 leave=False, disable=not show)
 
 
-def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, force=False,
-              retry_errors=False, progress=False) -> BatchRun:
+def run_batch(inputs, spec, *, out=None, csv=None, executor=None, force=False,
+              retry_errors=False, progress=False, cache_dir=None, use_cache=True) -> BatchRun:
     """Check every capture found in ``inputs`` against the spec's limit tables.
 
     Parameters
     ----------
     inputs : sequence of str or os.PathLike
         Folders, glob patterns or files (see :func:`find_captures`).
-    spec : BatchSpec
-        Limits and options.
+    spec : RunSpec
+        Limits and options (its capture path is ignored: each capture found is checked with
+        :meth:`~pqcheck.record.RunSpec.with_capture`).
     out, csv : str or os.PathLike or None
         Results files (Parquet, CSV). An existing one is resumed from (captures whose SHA-256
         it holds are skipped) unless ``force``.
@@ -842,6 +763,10 @@ def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, for
         Check again the captures that the results file records as errors.
     progress : bool
         Show progress bars on stderr.
+    cache_dir : str or None
+        Cache folder (None: the default folder on each worker).
+    use_cache : bool
+        Read and write the cache of parsed captures and results.
 
     Returns
     -------
@@ -857,12 +782,14 @@ def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, for
     MissingExtraError
         The executor needs an optional dependency.
     """
-    key = spec.key()  # resolves the tables: bad limits stop the batch before any work
+    spec = batch_spec(spec)
+    key = settings_key(spec)  # resolves the tables: bad limits stop the batch before any work
     captures, ignored = find_captures(inputs, exclude=(out, csv))
     results = _Results(out, csv, key, force)
     done = results.done(retry_errors)
     executor = executor or InlineExecutor()
-    spec_dict = dataclasses.asdict(spec)
+    spec_dict = spec.to_dict()
+    cache_dir = None if cache_dir is None else os.path.abspath(cache_dir)
     shas: list = [None] * len(captures)
     opened = [os.path.abspath(c) for c in captures]  # workers may run in another folder
     todo, skipped_shas, unreadable = [], set(), 0
@@ -883,13 +810,14 @@ def run_batch(inputs, spec: BatchSpec, *, out=None, csv=None, executor=None, for
                     else:
                         todo.append(i)
             tasks = [{"capture": captures[i], "path": opened[i],
-                      "sha256": shas[i], "key": key, "spec": spec_dict} for i in sorted(todo)]
+                      "sha256": shas[i], "key": key, "spec": spec_dict, "cache_dir": cache_dir,
+                      "use_cache": use_cache} for i in sorted(todo)]
 
             def crashed(task, message):
                 return [error_row(task["capture"], task["sha256"], key, message)]
 
             with _bar(len(tasks), "checking", progress) as bar:
-                for i, rows in ex.imap_unordered(check_capture, tasks, crashed):
+                for i, rows in ex.imap_unordered(check_task, tasks, crashed):
                     bar.update(1)
                     results.add(tasks[i]["capture"], tasks[i]["sha256"], rows)
                     results.write()

@@ -17,8 +17,8 @@ the fingerprint and the file is read afresh. Everything is data (JSON and ``nump
 ``allow_pickle=False``); entries are written to a temporary name and renamed into place, so a
 killed run never leaves a half-written entry. Delete the folder at any time to clear it.
 
-Location: ``--cache-dir``, else ``$PQCHECK_CACHE_DIR``, else ``$XDG_CACHE_HOME/pqcheck``, else
-``~/.cache/pqcheck``. ``--no-cache`` bypasses it.
+Location: the ``cache_dir`` given, else ``$PQCHECK_CACHE_DIR``, else ``$XDG_CACHE_HOME/pqcheck``, else
+``~/.cache/pqcheck``. Commands bypass it on request (no cache).
 """
 
 from __future__ import annotations

@@ -242,7 +242,7 @@ class LimitSpec:
 
     @property
     def source(self) -> str:
-        """What to pass as ``--limits``: the resolved path or the bundled id."""
+        """The table to load: the resolved path or the bundled id."""
         return str(self.path) if self.path is not None else self.table
 
 
@@ -283,29 +283,6 @@ class CaptureSpec:
     limits: tuple | None = None
     notes: str = ""
     line: int | None = None
-
-    def analysis_kwargs(self, analysis: AnalysisOptions, site: Site, *,
-                        max_order: int = 50) -> dict:
-        """Keyword arguments of :func:`pqcheck.run.check.analyze_file` for this capture.
-
-        Parameters
-        ----------
-        analysis, site
-            The plan's analysis options and site.
-        max_order : int
-            Highest order when the plan does not set one. [unitless]
-        """
-        nominal = analysis.nominal_frequency_hz or site.nominal_frequency_hz
-        return {
-            "current": None if self.current is None else list(self.current),
-            "voltage": None if self.voltage is None else list(self.voltage),
-            "sample_rate_hz": self.sample_rate_hz,
-            "time_column": self.time_column,
-            "nominal_hz": None if nominal is None else int(nominal),
-            "max_order": analysis.max_order or max_order,
-            "il_a": site.il_a,
-            "wiring": analysis.wiring,
-        }
 
 
 @dataclass(frozen=True)
@@ -369,26 +346,54 @@ class Plan:
         base.update(spec.selectors)
         return {k: v for k, v in base.items() if v is not None}
 
-    def resolve_arguments(self, spec: LimitSpec) -> tuple:
-        """Arguments for :func:`pqcheck.limits.resolve` and :func:`pqcheck.assess.assess`
-        from :meth:`selection`.
+    def limit_selection(self, spec: LimitSpec):
+        """The :class:`~pqcheck.record.LimitSelection` of one ``[[limits]]`` entry (its own
+        values, else the site's and the equipment's: :meth:`selection`)."""
+        from ..record import LimitSelection
 
-        Returns
-        -------
-        (dict, dict)
-            Keyword arguments of ``resolve`` (``voltage_level``, ``isc``, ``il``, ``rsce``,
-            ``ssc``, ``rated_power``, ``equipment_class``, ``equipment``, ``generation``) and
-            of ``assess`` (``il_a``, ``rated_current_a``, ``iref_a``, ``active_power_w``).
+        return LimitSelection(table=spec.source, **self.selection(spec))
+
+    def run_spec(self, capture: CaptureSpec, report=None):
+        """The :class:`~pqcheck.record.RunSpec` of one capture of the plan: its file, reader
+        options and channel map, the plan's analysis settings (nominal frequency from
+        ``[analysis]``, else ``[site]``; IL from ``[site]``) and one selection per table that
+        applies to it.
+
+        Parameters
+        ----------
+        capture : CaptureSpec
+        report : ReportDetails or None
+            What the report says (as given on the command line).
         """
-        sel = self.selection(spec)
-        names = {"voltage_level_v": "voltage_level", "isc_a": "isc", "il_a": "il",
-                 "rsce": "rsce", "ssc_va": "ssc", "rated_apparent_power_va": "rated_power",
-                 "equipment_class": "equipment_class", "equipment_kind": "equipment",
-                 "generation": "generation"}
-        resolve_kw = {names[k]: v for k, v in sel.items() if k in names}
-        assess_kw = {"il_a": sel.get("il_a"), "rated_current_a": sel.get("rated_current_a"),
-                     "iref_a": sel.get("iref_a"), "active_power_w": sel.get("active_power_w")}
-        return resolve_kw, assess_kw
+        from ..record import (
+            AnalysisSettings,
+            ChannelRoles,
+            ReaderOptions,
+            ReportDetails,
+            RunSpec,
+        )
+
+        nominal = self.analysis.nominal_frequency_hz or self.site.nominal_frequency_hz
+        return RunSpec(
+            reader=ReaderOptions(path=str(capture.path), sample_rate_hz=capture.sample_rate_hz,
+                                 time_column=capture.time_column),
+            channels=ChannelRoles(current=capture.current, voltage=capture.voltage),
+            analysis=AnalysisSettings(nominal_hz=None if nominal is None else int(nominal),
+                                      max_order=self.analysis.max_order, il_a=self.site.il_a,
+                                      wiring=self.analysis.wiring),
+            limits=tuple(self.limit_selection(s) for s in self.limits_for(capture)),
+            report=report if report is not None else ReportDetails(),
+        )
+
+
+PLAN_KEYS = {"nominal_hz": "nominal_frequency_hz"}
+"""Run-specification field -> plan key, where they differ (the plan boundary's one table)."""
+
+
+def plan_terms(text: str) -> str:
+    """A library message in the plan's terms: ```field``` names become plan keys."""
+    return re.sub(r"`([A-Za-z_][A-Za-z0-9_]*)`", lambda m: PLAN_KEYS.get(m.group(1), m.group(1)),
+                  text)
 
 
 # ---------------------------------------------------------------------------------------------

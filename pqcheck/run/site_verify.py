@@ -1,6 +1,6 @@
 """Re-verification of a site study: re-run it from its recorded inputs and compare.
 
-A site study's results (the ``--json`` file of ``pqcheck site``, or the ``results.json``
+A site study's results (the JSON file of ``pqcheck site``, or the ``results.json``
 attached to its PDF) record the site file with its SHA-256, every unit's data file and the
 limit table with theirs, the summation used and the headroom range searched.
 :func:`verify_site` finds the site file again (as recorded, then beside the document being

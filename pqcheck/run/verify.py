@@ -1,9 +1,9 @@
 """Re-verification of a report: recompute the recorded results and compare, number by number.
 
-A report's results JSON (the ``--json`` file, or the ``results.json`` attached to the PDF)
-records what was analysed and how: the SHA-256 of every capture, limit table and plan, the
-analysis settings, the selector values of every table and the command line (or the plan) that
-made it. :func:`verify` finds those files again, checks their SHA-256, re-runs the analysis and
+A report's results JSON (its JSON file, or the ``results.json`` attached to the PDF)
+records what was analysed and how: the SHA-256 of every capture, limit table and plan, and
+the run specification of every capture (reader options, channel map, analysis settings, the
+limit tables with their selectors and reference values, the report details). :func:`verify` finds those files again, checks their SHA-256, re-runs the analysis and
 the assessment without any cache, formats the new results exactly as the report did and
 compares the two documents: every number within a tight relative tolerance (the computation is
 deterministic, so only the last bits may differ), every verdict, count, finding and text
@@ -17,16 +17,17 @@ Finding the files
     bundled limit table is also looked up by its id.
 
 How it re-runs
-    A report made from a plan is re-run from the plan (:func:`pqcheck.run.plan.load_plan`,
-    :func:`pqcheck.run.build.run_plan`). A report of one capture is re-run with the options
-    of its recorded command line (reader, channel map, reference currents), the recorded analysis
-    settings (nominal frequency and wiring when the user set them, maximum order, IL, reference
-    channel) and the recorded selector values of each limit table.
+    Every capture of the results carries its run specification (``run_spec``,
+    :class:`pqcheck.record.RunSpec`), read back as data. A report made from a plan is re-run
+    from the plan (:func:`pqcheck.run.plan.load_plan`, :func:`pqcheck.run.build.run_plan`).
+    A report of one capture is re-run from its recorded run specification, with the capture
+    and limit tables where they were found, through the same
+    :func:`pqcheck.run.check.check_capture` that made it.
 
 What is not compared as a result
-    The ``report`` block (who and when) is checked against what the recorded command line and
-    plan make of it (title, names, a generated report id); the time of analysis and the command
-    are records, not results. File locations (``source`` and ``path``) are not compared: the
+    The ``report`` block (who and when) is checked against what the recorded report details
+    and plan make of it (title, names, a generated report id); the time of analysis and the
+    command are records, not results. File locations (``source`` and ``path``) are not compared: the
     files may have moved, and their SHA-256 are compared instead. A different pqcheck version
     is reported as a note.
 
@@ -40,11 +41,9 @@ The PDF itself
 
 from __future__ import annotations
 
-import hashlib
 import io
 import json
 import math
-import shlex
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -59,8 +58,6 @@ ABS_TOL = 1e-12
 """Default absolute tolerance, for values that are zero up to rounding. [unit of the value]"""
 
 _SKIP_KEYS = {"source", "path"}
-_SELECTORS = ("voltage_level", "isc", "il", "isc_il", "generation", "equipment_class",
-              "equipment", "rsce", "ssc", "rated_power")
 
 
 @dataclass(frozen=True)
@@ -192,12 +189,12 @@ def _load(path) -> tuple:
         doc = json.loads(data.decode("utf-8"))
     except (UnicodeDecodeError, ValueError) as exc:
         raise InputError(f"not a PDF and not a results JSON ({exc}); give the report PDF or "
-                         "the file written by pqcheck report --json", path=p) from None
+                         "the JSON file written by pqcheck report", path=p) from None
     if not (isinstance(doc, dict) and isinstance(doc.get("tool"), dict)
             and doc["tool"].get("name") == "pqcheck" and isinstance(doc.get("captures"), list)
             and doc["captures"]):
         raise InputError("not the results of a pqcheck report (no tool or captures); give the "
-                         "report PDF or the file written by pqcheck report --json", path=p)
+                         "report PDF or the JSON file written by pqcheck report", path=p)
     return doc, pdf, data
 
 
@@ -219,12 +216,13 @@ def _attachment(data: bytes, p: Path) -> bytes:
 # ---- finding files --------------------------------------------------------------------------
 
 
-def _sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
+def _sha256(path: Path, capture: bool) -> str:
+    """SHA-256 as the record holds it: a capture by the reader's rule
+    (:func:`pqcheck.readers.capture_sha256`: COMTRADE .cfg + .dat, .npy + side-car), any
+    other file by its bytes."""
+    from ..readers import capture_sha256, file_sha256
+
+    return capture_sha256(path) if capture else file_sha256(path)
 
 
 def _candidates(recorded: str, bases) -> list:
@@ -243,17 +241,17 @@ def _candidates(recorded: str, bases) -> list:
     return unique
 
 
-def _locate(recorded: str, sha: str, bases) -> tuple:
+def _locate(recorded: str, sha: str, bases, *, capture: bool = False) -> tuple:
     """(path, its SHA-256) of the best candidate, or (None, "")."""
     found = []
     for c in _candidates(recorded, bases):
         try:
             if c.is_file():
-                digest = _sha256(c)
+                digest = _sha256(c, capture)
                 if digest == sha:
                     return c, digest
                 found.append((c, digest))
-        except OSError:
+        except (OSError, PqcheckError):
             continue
     return found[0] if found else (None, "")
 
@@ -261,106 +259,69 @@ def _locate(recorded: str, sha: str, bases) -> tuple:
 # ---- re-running -----------------------------------------------------------------------------
 
 
-def _command_params(command: str) -> dict:
-    """Options of the recorded ``pqcheck report`` command line, parsed by the command itself."""
-    if not command:
-        return {}
-    from ..cli import main
-
-    try:
-        words = shlex.split(command)
-    except ValueError:
-        return {}
-    if words[:2] == ["pqcheck", "report"]:
-        words = words[2:]
-    cmd = main.get_command(None, "report")
-    try:
-        ctx = cmd.make_context("report", words, resilient_parsing=True)
-    except Exception:  # a damaged command line: fall back to the structured record
-        return {}
-    return dict(ctx.params)
-
-
-def _split(value):
-    if not value:
-        return None
-    return [c.strip() for c in str(value).split(",")]
-
-
-def _table_for(rec: dict, bases, files: list):
-    """Load the limit table recorded as ``rec`` (an assessment's ``tables[0]``)."""
+def _table_for(rec: dict, bases, files: list) -> str:
+    """Where the limit table recorded as ``rec`` (an assessment's ``tables[0]``) is now: a
+    path, or the bundled id when the bundled table is the recorded one."""
     from ..limits import bundled_ids, load_table
 
     src, sha, tid = rec.get("source") or "", rec.get("sha256") or "", rec.get("id") or ""
     where, digest = _locate(src, sha, bases) if src else (None, "")
-    table = None
+    chosen = None
     if where is not None and digest == sha:
-        table = load_table(where)
+        chosen = str(where)
     elif tid.casefold() in bundled_ids():
         bundled = load_table(tid)
         if bundled.sha256 == sha or where is None:
-            table, where, digest = bundled, Path(bundled.source), bundled.sha256
-    if table is None and where is not None:
-        table = load_table(where)
+            chosen, where, digest = tid, Path(bundled.source), bundled.sha256
+    if chosen is None and where is not None:
+        chosen = str(where)
     files.append(FileCheck(f"limit table {tid!r}", src, None if where is None else str(where),
                            sha, digest))
-    if table is None:
+    if chosen is None:
         raise InputError(f"limit table {tid!r} not found (recorded at {src}); put it next to "
-                         "the report or give its folder with --search", field="limit_tables")
-    return table
+                         "the report or give its folder with `search`", field="limit_tables")
+    return chosen
 
 
-def _rerun_capture(doc: dict, bases, files: list, notes: list, params: dict):
-    from ..cli.analyze import analysis_kwargs
-    from ..limits import resolve
-    from ..report.job import CaptureRun
-    from .build import assess_each
-    from .check import analyze_file
+def _recorded_spec(cap_doc: dict, where: str):
+    """The :class:`~pqcheck.record.RunSpec` recorded with a capture (read as data)."""
+    from ..record import RunSpec
 
-    if not params:
-        notes.append("the results record no command line: the capture is re-read with the "
-                     "channel roles guessed from its column names")
+    if not isinstance(cap_doc.get("run_spec"), dict):
+        raise InputError("the results record no run specification (run_spec), so the run "
+                         "cannot be repeated; were they made by an older pqcheck?",
+                         field=f"{where}.run_spec")
+    return RunSpec.from_dict(cap_doc["run_spec"])
+
+
+def _rerun_capture(doc: dict, bases, files: list):
+    from dataclasses import replace
+
+    from .check import check_capture
+
     cap_doc = doc["captures"][0]
-    ana = cap_doc["analysis"]
-    rec = ana["capture"]
-    where, digest = _locate(rec["source"], rec["sha256"], bases)
+    spec = _recorded_spec(cap_doc, "captures[0]")
+    rec = cap_doc["analysis"]["capture"]
+    where, digest = _locate(rec["source"], rec["sha256"], bases, capture=True)
     files.append(FileCheck(f"capture {cap_doc.get('id', '')!r}", rec["source"],
                            None if where is None else str(where), rec["sha256"], digest))
     if where is None:
         raise InputError(f"capture file not found (recorded as {rec['source']}); put it next "
-                         "to the report or give its folder with --search",
+                         "to the report or give its folder with `search`",
                          field=f"captures[0] ({cap_doc.get('id', '')})")
-    resolved = []
-    for a in cap_doc.get("assessments") or []:
-        for t in a.get("tables") or []:
-            table = _table_for(t, bases, files)
-            sel = {k: v for k, v in (t.get("selectors") or {}).items() if k in _SELECTORS}
-            # give the inputs a value was computed from, so it is computed (and recorded) again
-            if "isc" in sel and "il" in sel:
-                sel.pop("isc_il", None)
-            if "ssc" in sel and "rated_power" in sel:
-                sel.pop("rsce", None)
-            resolved.append(resolve(table, **sel))
-    s = ana["settings"]
-    kwargs = analysis_kwargs(params)
-    kwargs.update(
-        max_order=int(s["max_order"]), il_a=s.get("il_a"), reference=s.get("reference"),
-        nominal_hz=int(s["nominal_hz"]) if s.get("nominal_source") == "user" else None,
-        wiring=s.get("wiring") if s.get("wiring_source") == "user" else None)
-    sample_rate = params.get("sample_rate")
-    if not params and (rec.get("reader") or {}).get("time_base") in ("--sample-rate",
-                                                                      "sample_rate_hz"):
-        sample_rate = rec["reader"].get("sample_rate_hz")
-    capture, result = analyze_file(
-        where, sample_rate_hz=sample_rate, current=_split(params.get("current")),
-        voltage=_split(params.get("voltage")), time_column=params.get("time_column"),
-        encoding=params.get("encoding"), cache=None, **kwargs)
-    assessments = assess_each(result, resolved, il_a=s.get("il_a"),
-                              rated_current_a=params.get("rated_current"),
-                              iref_a=params.get("iref"), active_power_w=params.get("active_power"))
-    run = CaptureRun(id=cap_doc.get("id") or "capture", capture=capture, result=result,
-                     assessments=assessments, load_point=cap_doc.get("load_point") or "",
-                     load_percent=cap_doc.get("load_percent"))
+    recorded_tables = [t for a in cap_doc.get("assessments") or [] for t in a.get("tables") or []]
+    if len(recorded_tables) != len(spec.limits):
+        raise InputError(f"the run specification names {len(spec.limits)} limit tables, the "
+                         f"results {len(recorded_tables)}; was the JSON edited by hand?",
+                         field="captures[0].run_spec.limits")
+    limits = []
+    for sel, t in zip(spec.limits, recorded_tables):
+        table = _table_for(t, bases, files)
+        limits.append(replace(sel, table=table))
+    spec = replace(spec, limits=tuple(limits)).with_capture(where)
+    run = check_capture(spec, cache=None, id=cap_doc.get("id") or "capture",
+                        load_point=cap_doc.get("load_point") or "",
+                        load_percent=cap_doc.get("load_percent"))
     return (run,), None
 
 
@@ -374,32 +335,32 @@ def _rerun_plan(doc: dict, bases, files: list):
                            rec.get("sha256") or "", digest))
     if where is None:
         raise InputError(f"test plan not found (recorded as {rec.get('path')}); put it next to "
-                         "the report or give its folder with --search", field="plan")
+                         "the report or give its folder with `search`", field="plan")
     plan = load_plan(where)
-    return run_plan(plan, cache=None), plan
+    details = _recorded_spec(doc["captures"][0], "captures[0]").report
+    return run_plan(plan, cache=None, report=details), plan
 
 
-def _meta_differences(recorded: dict, params: dict, runs, plan) -> list:
-    """The report block against what the recorded command line (and plan) make of it: title,
-    names and a generated report id follow from them, so an edit shows. Without a recorded
-    command nothing is known and nothing is compared."""
+def _meta_differences(recorded: dict, runs, plan) -> list:
+    """The report block against what the recorded report details (and plan) make of it:
+    title, names and a generated report id follow from them, so an edit shows."""
     from datetime import datetime
 
     from ..report.job import ReportMeta, make_report_id
 
     rep = recorded.get("report")
-    if not params or not isinstance(rep, dict):
+    if not isinstance(rep, dict) or not runs or runs[0].spec is None:
         return []
+    d = runs[0].spec.report
     expect = {
-        "title": params.get("title") or (plan.title if plan is not None and plan.title
-                                         else ReportMeta().title),
-        "equipment": params["equipment"] if params.get("equipment") is not None else (
+        "title": d.title or (plan.title if plan is not None and plan.title
+                             else ReportMeta().title),
+        "equipment": d.equipment if d.equipment is not None else (
             plan.equipment.name if plan is not None else ""),
-        "site": params["site"] if params.get("site") is not None else (
-            plan.site.name if plan is not None else ""),
-        "operator": params.get("operator") or "",
+        "site": d.site if d.site is not None else (plan.site.name if plan is not None else ""),
+        "operator": d.operator or "",
     }
-    rid = params.get("report_id") or (plan.report_id if plan is not None else "")
+    rid = d.report_id or (plan.report_id if plan is not None else "")
     if not rid:
         try:
             created = datetime.fromisoformat(rep["time_of_analysis_utc"])
@@ -430,7 +391,17 @@ def _as_recorded_paths(recorded: dict, runs, plan) -> tuple:
                 replace(t, source=tables[t.table_id]) if t.table_id in tables else t
                 for t in a.tables))
             for a in run.assessments)
-        out.append(replace(run, result=result, assessments=assessments))
+        spec = run.spec
+        rec_spec = cap.get("run_spec") if isinstance(cap, dict) else None
+        if spec is not None and isinstance(rec_spec, dict):
+            spec = replace(spec, reader=replace(spec.reader, path=str(
+                _get(rec_spec, "reader", "path") or spec.reader.path)))
+            rec_lims = rec_spec.get("limits") if isinstance(rec_spec.get("limits"), list) else []
+            if len(rec_lims) == len(spec.limits):
+                spec = replace(spec, limits=tuple(
+                    replace(sel, table=str(_get(r, "table") or sel.table))
+                    for sel, r in zip(spec.limits, rec_lims)))
+        out.append(replace(run, result=result, assessments=assessments, spec=spec))
     path = _get(recorded, "plan", "path")
     if plan is not None and isinstance(path, str):
         plan = replace(plan, path=Path(path))
@@ -633,12 +604,11 @@ def verify(path, *, search=(), rel_tol: float = REL_TOL, abs_tol: float = ABS_TO
     files: list = []
     notes: list = []
     try:
-        params = _command_params(str(_get(recorded, "report", "command") or ""))
         if recorded.get("plan"):
             runs, plan = _rerun_plan(recorded, bases, files)
         else:
-            runs, plan = _rerun_capture(recorded, bases, files, notes, params)
-        meta_diffs = _meta_differences(recorded, params, runs, plan)
+            runs, plan = _rerun_capture(recorded, bases, files)
+        meta_diffs = _meta_differences(recorded, runs, plan)
         if plan is not None:
             files += _file_checks_from(recorded, runs)
         runs, plan = _as_recorded_paths(recorded, runs, plan)

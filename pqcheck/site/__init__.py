@@ -83,9 +83,11 @@ from .sitefile import (
 from .study import (
     CAUTIONS,
     MAX_HEADROOM,
+    STUDY_SCHEMA,
     Headroom,
     SiteStudy,
     SummationOutcome,
+    study_schema,
     study_site,
     study_to_dict,
 )
@@ -123,6 +125,8 @@ __all__ = [
     "spectrum_from_dict",
     "study_site",
     "study_to_dict",
+    "study_schema",
+    "STUDY_SCHEMA",
     "site_template",
     "shown_path",
 ]

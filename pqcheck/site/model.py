@@ -406,7 +406,7 @@ def spectrum_from_dict(doc: dict, *, source: str = "<results>", sha256: str = ""
     Parameters
     ----------
     doc : dict
-        The JSON of ``pqcheck analyze --format json``: needs ``channels``, a list of
+        The results JSON of ``pqcheck analyze`` (JSON format): needs ``channels``, a list of
         ``{name, quantity, phase, harmonics: [{order, rms, phase_deg}]}``;
         ``settings.reference`` and ``settings.nominal_hz`` are used when present. Or the
         results of ``pqcheck report`` (a ``captures`` list, each with ``id``, ``load_point``
@@ -433,7 +433,7 @@ def spectrum_from_dict(doc: dict, *, source: str = "<results>", sha256: str = ""
         doc = doc["analysis"]
     if not isinstance(doc, dict) or not isinstance(doc.get("channels"), list):
         raise ValueError("not pqcheck analysis results: no 'channels' list (save them with "
-                         "pqcheck analyze CAPTURE --format json)")
+                         "pqcheck analyze CAPTURE in JSON format)")
     settings = doc.get("settings") or {}
     ref = settings.get("reference")
     currents, phases, names = [], [], []

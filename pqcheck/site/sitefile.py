@@ -328,7 +328,7 @@ def _unit_entry(r: _Reader, item, k: int, folder: Path) -> UnitEntry:
     has_cap, has_res = "capture" in vals, "results" in vals
     if has_cap == has_res:
         raise r.error(kp, "give exactly one of 'capture' (a capture file to analyse) and "
-                          "'results' (saved results of pqcheck analyze --format json)")
+                          "'results' (saved results of pqcheck analyze in JSON format)")
     key = "capture" if has_cap else "results"
     if not has_cap:
         for opt in ("current", "voltage", "sample_rate_hz", "time_column"):
@@ -493,7 +493,7 @@ table = "ieee519-2022"           # bundled id or the path of your own table file
 generation = false               # true: IEEE 519 rule for generation (first ISC/IL row)
 
 # One entry per kind of unit. Give a capture to analyse or saved results: the JSON of
-# pqcheck analyze CAPTURE --format json, or of pqcheck report PLAN --json (then load_point
+# pqcheck analyze CAPTURE in JSON format, or the JSON file of pqcheck report PLAN (then load_point
 # picks the capture by its load point or id).
 [[units]]
 name = "DC charger 150 kW"

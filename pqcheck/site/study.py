@@ -29,8 +29,12 @@ from ..metrics import sequence_components
 from .model import Site, Unit
 from .network import SQRT3, SUMMATIONS, aggregate, harmonic_voltages, transformer_shift
 
-__all__ = ["MAX_HEADROOM", "CAUTIONS", "Headroom", "SummationOutcome",
+__all__ = ["STUDY_SCHEMA", "study_schema", "MAX_HEADROOM", "CAUTIONS", "Headroom", "SummationOutcome",
            "SiteStudy", "study_site", "study_to_dict"]
+
+#: Version of the site study's results document (``tool.schema``; the JSON Schema is
+#: :func:`study_schema`).
+STUDY_SCHEMA = 1
 
 #: Largest number of extra units the headroom search tries per kind.
 MAX_HEADROOM = 1000
@@ -271,8 +275,8 @@ class _Limits:
         key = self.key(isc_a, il_a)
         if key not in self.cache:
             try:
-                self.cache[key] = resolve(self.table, voltage_level=self.site.pcc_voltage_v,
-                                          isc=isc_a, il=il_a, generation=self.site.generation)
+                self.cache[key] = resolve(self.table, voltage_level_v=self.site.pcc_voltage_v,
+                                          isc_a=isc_a, il_a=il_a, generation=self.site.generation)
             except InputError as exc:
                 raise PlanError(f"limit table {self.table.id}: {exc.problem}",
                                 path=self.site.path, field="limits.table") from None
@@ -406,7 +410,7 @@ class _Case:
             note = ""
             if vals is None:
                 k, val, complete = 0, math.nan, False
-                note = f"order {item.order} is above the orders the study computes"
+                note = f"above the orders the study computes (up to {orders.size - 1})"
             else:
                 row = vals[m]
                 k = _worst_phase(row)
@@ -414,14 +418,14 @@ class _Case:
                 if item.quantity == HARMONIC:
                     complete = item.order <= max_h and item.order not in self.bad_orders
                     if not complete:
-                        note = (f"order {item.order} is not resolved by every unit's data"
-                                if item.order > max_h else
-                                f"a unit's data have an error finding for order {item.order}")
+                        note = (f"not resolved by every unit's data (they resolve orders up "
+                                f"to {max_h})" if item.order > max_h else
+                                "a unit's data have an error finding for this order")
                 else:
                     complete = complete_totals
                     if not complete:
                         note = (f"counts only orders 2 to {max_h} and orders without an error "
-                                "finding in the units' data")
+                                "finding in the units' data, so it may read low")
             if _exceeded(val, item.limit):
                 verdict = "fail"
             elif not math.isfinite(val) or not complete:
@@ -437,7 +441,7 @@ class _Case:
                 statistic=statistic, measured=measured, limit=item.limit, unit=item.unit,
                 margin_percent=margin, verdict=verdict, clause=item.clause,
                 verify=bool(item.verify), note="; ".join(x for x in (note, item.note) if x),
-                table_limit=item.limit, multiplier=1.0))
+                table_limit=item.limit, multiplier=1.0, basis=item.basis, tag=item.tag))
         return tuple(out)
 
     def fails(self, st: _State) -> np.ndarray:
@@ -735,9 +739,6 @@ def _orders_text(orders) -> str:
 # Plain-data form
 # ---------------------------------------------------------------------------------------------
 
-_BASIS = {"current": "percent_of_il", "voltage": "percent_of_fundamental"}
-
-
 def _num(x, digits=10):
     if x is None:
         return None
@@ -760,11 +761,11 @@ def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
     phase), ``summation``, ``pcc`` (voltage, impedance, ISC, IL, ISC/IL), ``limits`` (table,
     rows), ``harmonics`` (per order: current per phase and % of IL, voltage per phase and % of
     nominal), ``totals`` (THD of voltage, TDD), ``checks`` (as :meth:`pqcheck.assess.Check.to_dict`
-    with ``label`` and ``basis``), ``verdict``, ``headroom``, ``by_summation`` (the verdict and
+    with ``label``), ``verdict``, ``headroom``, ``by_summation`` (the verdict and
     failing checks under each summation method), ``findings`` and ``cautions``.
     """
     from .. import __version__
-    from .sitefile import SCHEMA_VERSION, shown_path
+    from .sitefile import shown_path
 
     s = study.site
     t = s.transformer
@@ -780,7 +781,7 @@ def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
     lim = study.limits
     return {
         "tool": {"name": "pqcheck", "version": __version__, "kind": "site study",
-                 "schema": SCHEMA_VERSION},
+                 "schema": STUDY_SCHEMA},
         "site": {
             "name": s.name, "path": None if s.path is None else str(s.path),
             "sha256": s.sha256, "nominal_frequency_hz": s.nominal_hz,
@@ -818,8 +819,7 @@ def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
         "harmonics": harmonics,
         "totals": {"thd_v_percent": _num(study.thd_v_percent),
                    "tdd_percent": _num(study.tdd_percent)},
-        "checks": [dict(c.to_dict(), label=c.label, basis=_BASIS[c.applies_to])
-                   for c in study.checks],
+        "checks": [dict(c.to_dict(), label=c.label) for c in study.checks],
         "verdict": study.verdict,
         "headroom": [{"unit": h.unit, "count": h.count, "extra_units": h.extra_units,
                       "searched_up_to": h.searched_up_to, "binding": h.binding,
@@ -838,3 +838,13 @@ def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
                     "path": shown_path(path, s.path) if path else "",
                     "sha256": sha} for what, name, path, sha in study.inputs],
     } | ({"report": dict(report)} if report is not None else {})
+
+
+def study_schema() -> dict:
+    """The published JSON Schema (draft 2020-12) of :func:`study_to_dict`'s document, as
+    shipped in ``pqcheck/site/study.schema.json``."""
+    import json
+    from importlib import resources
+
+    return json.loads(resources.files("pqcheck.site").joinpath("study.schema.json")
+                      .read_text(encoding="utf-8"))
