@@ -3,6 +3,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 
@@ -242,7 +243,7 @@ def report_survey(source, out, json_path, csv_dir, spec, created, command, opts,
                       site=d.site or "", operator=d.operator or "", created_utc=created,
                       command=command)
     rid = d.report_id or make_report_id(list(survey.sha256), created)
-    meta = ReportMeta(**{**meta.__dict__, "report_id": rid})
+    meta = dataclasses.replace(meta, report_id=rid)
     doc = survey_job_dict(sa, meta)
     results = (json.dumps(doc, indent=2) + "\n").encode("utf-8")
     pdf = render_survey_pdf(sa, meta, results_json=results)
