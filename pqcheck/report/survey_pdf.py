@@ -167,7 +167,7 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     sa : pqcheck.survey.SurveyAssessment
     meta : pqcheck.report.job.ReportMeta
     results_json : bytes
-        Embedded as ``results.json`` (what ``--json`` writes).
+        Embedded as ``results.json`` (the results document of the report).
 
     Returns
     -------
