@@ -221,10 +221,10 @@ def check_recording(paths, fmt, spec, opts):
     raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
 
 
-def report_survey(source, out, json_path, csv_dir, spec, created, command, opts, force):
+def report_survey(source, outputs, out, json_path, csv_dir, spec, created, command, opts):
     """`pqcheck report` on an interval log: the report with its survey section (``spec``:
-    the :class:`~pqcheck.record.RunSpec` of the options)."""
-    from ..files.atomic import write_atomic
+    the :class:`~pqcheck.record.RunSpec` of the options; ``outputs``: the report's
+    :class:`~pqcheck.files.atomic.OutputSet`, written all together or not at all)."""
     from ..report.job import ReportMeta, make_report_id
     from ..report.survey_pdf import render_survey_pdf, survey_job_dict
     from ..run.check import resolve_limits
@@ -247,11 +247,13 @@ def report_survey(source, out, json_path, csv_dir, spec, created, command, opts,
     doc = survey_job_dict(sa, meta)
     results = (json.dumps(doc, indent=2) + "\n").encode("utf-8")
     pdf = render_survey_pdf(sa, meta, results_json=results)
-    write_atomic(out, pdf, force=force, option="-o")
-    click.echo(f"{out}: {sa.verdict.upper()}; survey {', '.join(survey.sources)}; report {rid}")
+    outputs.put(out, pdf)
     if json_path is not None:
-        write_atomic(json_path, results, force=force, option="--json")
-        click.echo(f"  also wrote {json_path}")
+        outputs.put(json_path, results)
+    written = [str(p) for p in outputs.commit()]
+    click.echo(f"{out}: {sa.verdict.upper()}; survey {', '.join(survey.sources)}; report {rid}")
+    for p in written[1:]:
+        click.echo(f"  also wrote {p}")
     raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
 
 
@@ -309,7 +311,7 @@ def _register():
             if opts.get(k):
                 fail_usage(f"--{k.replace('_', '-')} concerns interval logs; aggregate reads "
                            "waveform recordings")
-        check_target(out, force=force, option="-o")
+        check_target(out, force=force, option="-o", protect=recording)  # never an input
         executor = None
         if scheduler or workers:
             from ..run.batch import DaskExecutor
@@ -327,7 +329,7 @@ def _register():
         frames = [interval_frame(s, tz) for s in survey.levels if s.level in wanted]
         frame = pd.concat(frames, ignore_index=True)
         if suffix == ".csv":
-            with atomic_open(out, "w", force=force, option="-o") as fh:
+            with atomic_open(out, "w", force=force, option="-o", protect=recording) as fh:
                 fh.write("# pqcheck aggregate: IEC 61000-4-30 interval values "
                          "(RMS aggregation of IEC 61000-4-7 harmonic subgroups)\n")
                 fh.write("# timestamp = start\n")
@@ -348,7 +350,7 @@ def _register():
                 "sources": json.dumps(list(survey.sources))})
             buf = io.BytesIO()
             pq.write_table(table, buf)
-            with atomic_open(out, "wb", force=force, option="-o") as fh:
+            with atomic_open(out, "wb", force=force, option="-o", protect=recording) as fh:
                 fh.write(buf.getvalue())
         for f in survey.findings:
             if f.severity != "info":
