@@ -14,7 +14,8 @@ import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import InputError
+from ..errors import InputError, PlanError
+from ..files.inputs import require_regular_file
 from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from .model import PCC_LOCATIONS, OtherLoad, Site, SiteTransformer, Supply, Unit
 from .network import SQRT3, SUMMATIONS, vector_group_shift
@@ -25,6 +26,9 @@ __all__ = ["SCHEMA_VERSION", "MAX_UNITS", "RANGES", "SiteFile", "UnitEntry", "re
 
 #: Version of the site file's layout this pqcheck reads.
 SCHEMA_VERSION = 1
+
+#: Largest site file read (a site file is a few kilobytes). [bytes]
+_MAX_SITE_FILE = 16 << 20
 
 #: Largest number of units of one kind a site file may give (a site, not a fleet).
 MAX_UNITS = 10_000
@@ -126,6 +130,8 @@ def read_site(path) -> SiteFile:
     pqcheck.errors.PlanError: ...site.toml:1: supply: missing field 'ssc_va' or 'isc_a': ...
     """
     path = Path(path)
+    if path.exists():  # a pipe or a device would block or never end
+        require_regular_file(path, what="site file", max_bytes=_MAX_SITE_FILE, error=PlanError)
     raw, text, doc = read_document(path, "site file")
     r = _Reader(path, text)
     folder = path.resolve().parent
@@ -339,7 +345,7 @@ def _unit_entry(r: _Reader, item, k: int, folder: Path) -> UnitEntry:
     fpath = Path(text).expanduser()
     if not fpath.is_absolute():
         fpath = folder / fpath
-    if not fpath.is_file():
+    if not fpath.exists():  # special files are refused where they are read
         where = "" if Path(text).is_absolute() else \
             f" (resolved against the site file's folder {folder})"
         raise r.error(kp + (key,), f"file {text!r} not found{where}")
@@ -398,11 +404,12 @@ class UnitEntry:
     time_column: str | None = None
     line: int | None = None
 
-    def unit(self, spectrum) -> Unit:
-        """The :class:`~pqcheck.site.Unit` of this entry with its spectrum."""
+    def unit(self, spectrum, *, run_spec=None) -> Unit:
+        """The :class:`~pqcheck.site.Unit` of this entry with its spectrum (and the
+        :class:`~pqcheck.record.RunSpec` its capture was checked with)."""
         return Unit(name=self.name, count=self.count, load_point=self.load_point,
                     spectrum=spectrum, phase_shift_deg=self.phase_shift_deg, line=self.line,
-                    source_kind=self.kind)
+                    source_kind=self.kind, run_spec=run_spec)
 
 
 @dataclass(frozen=True, eq=False)
