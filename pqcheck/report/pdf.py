@@ -1163,6 +1163,43 @@ def _per_capture(b: _Builder) -> None:
                       "data.", "small"))
         b.h3("Channel values and power quantities")
         _channels_and_power(b, run)
+        if getattr(run.result, "flicker", None) is not None:
+            _flicker_section(b, run)
+
+
+def _flicker_section(b: _Builder, run) -> None:
+    """Flicker and voltage changes: the Pst table, d(t) against its limits, Pinst."""
+    fa = run.result.flicker
+    checks = [c for a in run.assessments for c in a.checks]
+    b.h3("Flicker and voltage changes (IEC 61000-4-15, IEC 61000-3-3)")
+    path = {"voltage": "the measured voltage",
+            "reference-impedance": "the voltage computed from the current through the "
+                                   "IEC 61000-3-3 reference impedance",
+            "system-impedance": "the voltage computed from the current through the given "
+                                "system impedance"}[fa.path]
+    b.add(b.p(f"Evaluated on {path}.", "small"))
+    rows = [["channel", "lamp", "interval", "Pst", "Plt", "Pinst max", "dc %", "dmax %",
+             "Tmax s"]]
+    for cf in fa.channels:
+        m, c = cf.meter, cf.change
+        pst = ", ".join("-" if p != p else f"{p:.3f}" for p in m.pst[:12])
+        if len(m.pst) > 12:
+            pst += f" ... ({len(m.pst)})"
+        rows.append([cf.channel + (f" (from {cf.derived_from})" if cf.derived_from else ""),
+                     m.lamp, f"{m.interval_s:g} s", pst,
+                     "-" if cf.plt is None else f"{cf.plt:.3f}", f"{m.pinst_max:.3f}",
+                     "-" if c.dc_percent != c.dc_percent else f"{c.dc_percent:.3f}",
+                     f"{c.dmax_percent:.3f}", f"{c.tmax_s:.3f}"])
+    b.add(b.table(rows, [0.2, 0.1, 0.09, 0.2, 0.07, 0.09, 0.08, 0.08, 0.09],
+                  right=(2, 3, 4, 5, 6, 7, 8)))
+    b.tcaption(f"{run.id}: short-term flicker per interval (10 min, or the whole capture when "
+               "shorter, as stated), long-term flicker (12 intervals), and the largest "
+               "relative voltage changes.")
+    for cf in fa.channels:
+        b.figure(figures.plot_flicker(figures.flicker_data(cf, checks)),
+                 f"{run.id}: relative voltage change d(t) of {cf.channel} against the limit "
+                 "lines (blank where the voltage is steady), and the instantaneous flicker "
+                 "sensation Pinst over the capture.")
 
 
 def _appendix(b: _Builder) -> None:
