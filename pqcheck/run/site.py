@@ -125,11 +125,10 @@ def _load_unit(sf, entry, cache):
             spectrum = spectrum_from_analysis(run.result, connection=entry.connection,
                                               phase=entry.phase)
         else:
-            from ..files.inputs import require_regular_file
+            from ..files.read import read_bounded
 
-            require_regular_file(entry.path, what="results file", max_bytes=_MAX_RESULTS,
-                                 error=InputError)
-            raw = entry.path.read_bytes()
+            raw = read_bounded(entry.path, what="results file", max_bytes=_MAX_RESULTS,
+                               error=InputError)
             try:
                 doc = json.loads(raw.decode("utf-8"))
             except (UnicodeDecodeError, ValueError) as exc:

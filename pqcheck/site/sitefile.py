@@ -14,8 +14,7 @@ import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import InputError, PlanError
-from ..files.inputs import require_regular_file
+from ..errors import InputError
 from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
 from .model import PCC_LOCATIONS, OtherLoad, Site, SiteTransformer, Supply, Unit
 from .network import SQRT3, SUMMATIONS, vector_group_shift
@@ -26,9 +25,6 @@ __all__ = ["SCHEMA_VERSION", "MAX_UNITS", "RANGES", "SiteFile", "UnitEntry", "re
 
 #: Version of the site file's layout this pqcheck reads.
 SCHEMA_VERSION = 1
-
-#: Largest site file read (a site file is a few kilobytes). [bytes]
-_MAX_SITE_FILE = 16 << 20
 
 #: Largest number of units of one kind a site file may give (a site, not a fleet).
 MAX_UNITS = 10_000
@@ -130,8 +126,6 @@ def read_site(path) -> SiteFile:
     pqcheck.errors.PlanError: ...site.toml:1: supply: missing field 'ssc_va' or 'isc_a': ...
     """
     path = Path(path)
-    if path.exists():  # a pipe or a device would block or never end
-        require_regular_file(path, what="site file", max_bytes=_MAX_SITE_FILE, error=PlanError)
     raw, text, doc = read_document(path, "site file")
     r = _Reader(path, text)
     folder = path.resolve().parent
