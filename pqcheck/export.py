@@ -12,10 +12,10 @@ import math
 import numpy as np
 
 from . import __version__
+from .results import SCHEMA_VERSION
 
 __all__ = ["analysis_to_dict", "harmonics_frame", "windows_frame", "clean", "dumps"]
 
-SCHEMA_VERSION = 1
 
 
 def clean(obj, *, finite_only: bool = True):
