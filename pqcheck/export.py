@@ -12,9 +12,12 @@ import math
 import numpy as np
 
 from . import __version__
-from .results import SCHEMA_VERSION
 
 __all__ = ["analysis_to_dict", "harmonics_frame", "windows_frame", "clean", "dumps"]
+
+SCHEMA_VERSION = 2
+"""Version of the results documents (:mod:`pqcheck.results`; 1: before the run specification
+was recorded)."""
 
 
 

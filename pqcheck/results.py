@@ -1,9 +1,9 @@
 """The one versioned results schema: every JSON document pqcheck writes, and reading them back.
 
 Documents
-    ``analysis`` (``pqcheck analyze --format json``), ``check`` (``pqcheck check --format
-    json``), ``report`` (the report's JSON file and the PDF's ``results.json`` attachment) and
-    ``batch`` (the summary of ``pqcheck batch --format json``). Each carries
+    ``analysis`` (``pqcheck analyze`` in JSON format), ``check`` (``pqcheck check`` in JSON
+    format), ``report`` (the report's JSON file and the PDF's ``results.json`` attachment) and
+    ``batch`` (the summary of ``pqcheck batch`` in JSON format). Each carries
     ``schema_version`` (:data:`SCHEMA_VERSION`), a ``tool`` block naming pqcheck, its version
     and the document's ``kind``, and the run specification (:class:`pqcheck.record.RunSpec`,
     ``run_spec``; in a report one per capture, in a batch the template every capture was
@@ -29,13 +29,12 @@ from importlib import resources
 
 from . import __version__
 from .errors import InputError
+from .export import SCHEMA_VERSION  # version of the documents (1: before run_spec)
 
 __all__ = ["SCHEMA_VERSION", "KINDS", "tool_block", "analysis_document", "check_document",
            "batch_document", "read_document", "run_spec_of", "results_schema",
            "shipped_schema", "dumps"]
 
-SCHEMA_VERSION = 2
-"""Version of the results documents (1: before the run specification was recorded)."""
 
 KINDS = ("analysis", "check", "report", "batch")
 
