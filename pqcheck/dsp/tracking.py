@@ -188,14 +188,16 @@ def window_boundaries(
     # pass 2: demodulate by the phase pass 1 found, one of its cycles at a time; what is left
     # is the deviation of the true phase from that model, free of the leakage an off-frequency
     # demodulation lets in (harmonics, the negative-frequency image) after a frequency step
+    head = tail = slice(0, mid.size)
     if not weak and mid.size >= 3:
         for _ in range(PASSES):  # each pass leaves about the previous model's error squared
-            mid, _, raw_count, bad2 = _second_pass(x, missing, mid, count, amp, local0)
+            mid2, model, raw2, bad2 = _second_pass(x, missing, mid, count, amp, local0)
+            if mid2.size < 3 or np.max(np.abs(raw2 - model)) > MAX_CORRECTION:
+                break  # no steady phase to refine (noise, no mains): keep what there is
+            mid, raw_count = mid2, raw2
             segments = _segments(mid, raw_count, bad2)
             count = np.concatenate([_smooth_counts(raw_count[sl]) for sl in segments])
-        head, tail = segments[0], segments[-1]
-    else:
-        head = tail = slice(0, mid.size)
+            head, tail = segments[0], segments[-1]
     # Cycle count at the start edge: a straight line through the first cycles' counts,
     # extended half a cycle back (the same at the end of the record); never across a step.
     count_start, _ = _edge_line(mid[head], raw_count[head], local0, first=True)
@@ -326,6 +328,10 @@ def _second_pass(x, missing, mid, count, amp, local0):
 
 PASSES = 3
 """Passes of :func:`_second_pass` after the first demodulation."""
+
+MAX_CORRECTION = 0.1
+"""Largest phase correction (cycles) a pass may make; more means the reference holds no
+steady fundamental to refine, and the previous pass stands."""
 
 STEP_RUN = 5
 """Cycles on each side of a candidate frequency step whose median frequencies are compared."""
