@@ -271,7 +271,10 @@ def phase_evidence(name: str) -> tuple:
     if m:  # (the second: ia_3, a name made unique by a number suffix, is still phase a)
         return _LETTER_PHASE[m.group(1)], f"name {name!r} reads quantity + phase {m.group(1)!r}"
     m = _PHASE_LAST_WORD.search(base)
-    if m and re.search(r"[a-z]{2,}", base[: m.start()]):
+    # "Channel A", "CH B", "Input C", "Trace A": a scope's channel letter, not a phase
+    if m and re.search(r"[a-z]{2,}", base[: m.start()]) and not re.search(
+            r"(?:^|[\s_.-])(?:channel|chan|ch|input|inp|trace|probe|signal|source)[\s_.-]*$",
+            base[: m.start()]):
         return _LETTER_PHASE[m.group(1)], (f"phase letter {m.group(1).upper()!r} is the last "
                                            f"word of {name!r}")
     return None, ""

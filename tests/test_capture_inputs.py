@@ -304,3 +304,16 @@ def test_analyze_with_an_encoding_option(tmp_path):
                                     "Ток", "-q", "--no-cache"])
     assert res.exit_code == 0, res.output
     assert "Ток" in res.stdout
+
+
+def test_folder_as_a_plan_capture_says_it_is_a_folder(tmp_path):
+    from pqcheck.errors import PlanError
+    from pqcheck.run.plan import load_plan
+
+    (tmp_path / "run-50.csv").mkdir()
+    p = tmp_path / "plan.toml"
+    p.write_text('title = "T"\n[site]\nnominal_voltage_v = 400\nisc_a = 3500\nil_a = 100\n'
+                 '[[limits]]\ntable = "ieee519-2022"\n[[captures]]\nfile = "run-50.csv"\n')
+    with pytest.raises(PlanError, match=r"plan\.toml:9: captures\[1\]\.file: 'run-50\.csv' is a "
+                                         r"folder, not a file .*give the file inside it"):
+        load_plan(p)

@@ -153,3 +153,20 @@ def test_paths_need_their_channels():
         FlickerSettings(path="system-impedance")
     with pytest.raises(AnalysisError, match="not one of"):
         FlickerSettings(path="magic")
+
+
+@pytest.mark.parametrize("with_supply", [False, True])
+def test_impedance_path_keeps_every_sample(with_supply):
+    # the terminal voltage covers the whole record (its quarter-period look-ahead is flushed
+    # at the end), so a 600 s capture gives one complete 10-minute Pst interval
+    fs = 1600.0
+    t = np.arange(int(600 * fs)) / fs
+    e = UN * np.sqrt(2) * np.sin(2 * np.pi * 50 * t)
+    i = np.where((t // 30) % 2 == 0, 4.0, 8.0) * np.sqrt(2) * np.sin(2 * np.pi * 50 * t)
+    volts = {"u": e} if with_supply else None
+    cap = Capture.from_arrays(fs, currents={"i": i}, voltages=volts)
+    c = analyze_flicker(cap, nominal_hz=50,
+                        settings=FlickerSettings(path="reference-impedance")).channel("i")
+    assert c.meter.complete_intervals and len(c.meter.pst) == 1
+    # 4 A steps every 30 s: d = 0.40 * 4 / 230 (IEC 61000-3-3 clause 4.1)
+    assert c.change.dc_percent == pytest.approx(100 * 0.4 * 4 / UN, rel=0.005)

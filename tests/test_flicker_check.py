@@ -135,3 +135,15 @@ def test_bad_system_impedance_is_refused(tmp_path):
              "--nominal-frequency", "50", "--no-cache", "-q")
     assert r.exit_code == 2
     assert "--system-impedance" in r.output and "R,X or R,X,RN,XN" in r.output
+
+
+def test_report_has_the_flicker_section(tmp_path):
+    pypdf = pytest.importorskip("pypdf")
+    p = _inrush(tmp_path, 30.0, 10.0, duration_s=6.0)
+    out = tmp_path / "r.pdf"
+    r = _run("report", str(p), "-o", str(out), "--limits", "iec61000-3-3", "--current",
+             "i_load", "--nominal-frequency", "50", "--no-cache", "-q")
+    assert r.exit_code == 1, r.output  # dmax 5.2 % > 4 %
+    text = " ".join(pg.extract_text() or "" for pg in pypdf.PdfReader(str(out)).pages)
+    assert "Flicker and voltage changes" in text
+    assert "Relative voltage change" in text or "d(t)" in text

@@ -491,3 +491,24 @@ def test_declared_sample_interval_or_rate(tmp_path, line, rate):
     p = tmp_path / "decl.csv"
     p.write_text(f"{line}\nia,va\n" + "".join(f"{b / 30:.6g},{b:.6g}\n" for b in _wave()))
     assert load_capture(p).fs_hz == pytest.approx(rate, rel=1e-12)
+
+
+def test_units_row_in_parentheses_and_a_blank_line_before_the_data(tmp_path):
+    t = np.arange(N) / FS
+    p = tmp_path / "paren.csv"
+    p.write_text("Time,Channel A,Channel B\n(ms),(V),(V)\n\n" + "".join(
+        f"{a * 1e3:.8f},{b:.5f},{c:.5f}\n" for a, b, c in zip(t, _wave(), _wave(1.0))))
+    cap = load_capture(p)
+    assert cap.names == ("Channel A", "Channel B")
+    assert [c.phase for c in cap.channels] == ["", ""]  # scope channel letters, not phases
+    assert [c.unit for c in cap.channels] == ["V", "V"]
+    assert cap.fs_hz == pytest.approx(FS, rel=1e-6)
+    np.testing.assert_array_equal(cap.samples[0], _col(_cells(p), 1, 3))
+
+
+def test_two_field_metadata_line_above_a_gap_stays_metadata(tmp_path):
+    p = tmp_path / "gap.csv"
+    p.write_text("Sample interval,40 us\n\n" + "".join(f"{b:.6g},{b / 30:.6g}\n"
+                                                       for b in _wave()))
+    cap = load_capture(p)
+    assert cap.names == ("col1", "col2") and cap.fs_hz == pytest.approx(FS, rel=1e-12)

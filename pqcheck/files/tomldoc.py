@@ -171,5 +171,8 @@ class DocReader:
         if check and not p.is_file():
             where = f" (resolved against the {self.what}'s folder {folder})" \
                 if not Path(text).is_absolute() else ""
+            if p.is_dir():
+                raise self.error(key_path, f"{text!r} is a folder, not a file{where}; give the "
+                                           "file inside it")
             raise self.error(key_path, f"file {text!r} not found{where}")
         return p

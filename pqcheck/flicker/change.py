@@ -119,8 +119,11 @@ class HalfPeriodRms:
         u = np.asarray(u, dtype=np.float64)
         if u.size == 0:
             return
-        u = np.where(np.isfinite(u), u, 0.0)
-        r = u if ref is None else np.where(np.isfinite(ref), np.asarray(ref, float), 0.0)
+        if not np.isfinite(u).all():
+            u = np.where(np.isfinite(u), u, 0.0)
+        r = u if ref is None else np.asarray(ref, dtype=np.float64)
+        if r is not u and not np.isfinite(r).all():
+            r = np.where(np.isfinite(r), r, 0.0)
         if self.zi is None:
             # pre-roll: the first cycle repeated for half a second settles the band-pass copy
             n_c = max(2, int(round(self.fs / self.f0)))
@@ -135,66 +138,102 @@ class HalfPeriodRms:
         k = np.flatnonzero(sb[1:] != sb[:-1])  # crossing between yy[k] and yy[k+1]
         frac = yy[k] / (yy[k] - yy[k + 1])
         pos = (k - off + frac) + self.n - self.delay  # global position of the crossing
-        # accepted crossings: none closer than 0.3 half period to the previous one
-        bnd = []
-        for x in pos:
-            if self._last_c is not None and x - self._last_c < self.min_gap:
-                continue
-            self._last_c = x
-            self._hist.append(x)
-            if len(self._hist) > _PERIOD_AVERAGE + 1:
-                self._hist.pop(0)
-            if self._last_b is None:
-                bnd.append(x)
-                self._last_b = x
-            else:
-                h = self._hist
-                gap = (h[-1] - h[0]) / (len(h) - 1)
-                bnd.append((bnd[-1] if bnd else self._last_b) + gap)
+        pos = self._accept(pos)
+        bnd = self._boundaries(pos)
         # integrands: u^2 and the further quantities
         if self.nm:
             x = np.atleast_2d(np.asarray(means, dtype=np.float64))
-            q = np.vstack([u * u, np.where(np.isfinite(x), x, 0.0)])
+            if not np.isfinite(x).all():
+                x = np.where(np.isfinite(x), x, 0.0)
+            q = np.empty((1 + x.shape[0], u.size))
+            np.multiply(u, u, out=q[0])
+            q[1:] = x
         else:
             q = (u * u)[None, :]
-        # cumulative integral at a position b: sum over samples < floor(b), plus the
-        # fraction of sample floor(b); the previous block's tail is kept for boundaries
-        # that fall just before this block
         ext = np.concatenate([self._tail, q], axis=1)
         ext0 = self.n - self._tail.shape[1]
-        csum = np.concatenate([np.zeros((q.shape[0], 1)), np.cumsum(ext, axis=1)], axis=1)
-        before = self.c0 - self._tail.sum(axis=1)
-        if bnd:
-            loc = np.asarray(bnd) - ext0
+        if bnd.size:
+            # integral from the start of ext to each boundary b: whole samples below
+            # floor(b) (segment sums) plus the fraction of sample floor(b)
+            loc = bnd - ext0
             i = np.clip(np.floor(loc).astype(np.int64), 0, ext.shape[1] - 1)
             part = np.clip(loc - i, 0.0, 1.0)
-            vals = before[:, None] + csum[:, i] + part[None, :] * ext[:, i]
-            first = 0
+            idx = np.concatenate([[0], i])
+            seg = np.add.reduceat(ext, idx, axis=1)[:, :-1] if i.size else np.zeros((1, 0))
+            # reduceat gives sum(ext[idx[j]:idx[j+1]]) for j < last; an empty segment
+            # (equal indices) returns ext[idx[j]] instead of 0
+            empty = idx[1:] == idx[:-1]
+            seg[:, empty] = 0.0
+            before = self.c0 - self._tail.sum(axis=1)
+            vals = before[:, None] + np.cumsum(seg, axis=1) + part[None, :] * ext[:, i]
             if self._last_v is None:
-                self._last_v, first = vals[:, 0], 1
-            for j in range(first, len(bnd)):
-                xb = bnd[j]
-                gap = xb - self._last_b
-                if gap > 0:
-                    dv = (vals[:, j] - self._last_v) / gap
-                    self._t.append(0.5 * (xb + self._last_b) / self.fs)
-                    self._u.append(np.sqrt(max(dv[0], 0.0)))
-                    self._dt.append(gap / self.fs)
-                    if self.nm:
-                        self._p.append(dv[1:])
-                self._last_b, self._last_v = xb, vals[:, j]
+                self._last_v, self._last_b = vals[:, 0], float(bnd[0])
+                vals, bnd = vals[:, 1:], bnd[1:]
+            if bnd.size:
+                allb = np.concatenate([[self._last_b], bnd])
+                allv = np.concatenate([self._last_v[:, None], vals], axis=1)
+                gap = np.diff(allb)
+                dv = np.diff(allv, axis=1) / gap[None, :]
+                self._t.append(0.5 * (allb[1:] + allb[:-1]) / self.fs)
+                self._u.append(np.sqrt(np.maximum(dv[0], 0.0)))
+                self._dt.append(gap / self.fs)
+                if self.nm:
+                    self._p.append(dv[1:].T.copy())
+                self._last_b, self._last_v = float(bnd[-1]), vals[:, -1].copy()
         self.c0 = self.c0 + q.sum(axis=1)
         self.n += u.size
         self.prev_y = y[-1]
-        self._tail = ext[:, -self._tail_n:]
+        self._tail = ext[:, -self._tail_n:].copy()
+
+    def _accept(self, pos):
+        """Crossings at least 0.3 half period after the previous accepted one."""
+        prev = -np.inf if self._last_c is None else self._last_c
+        gaps = np.diff(np.concatenate([[prev], pos]))
+        if pos.size and (gaps < self.min_gap).any():  # rare: noise near a crossing
+            keep = []
+            for x in pos:
+                if x - prev >= self.min_gap:
+                    keep.append(x)
+                    prev = x
+            pos = np.asarray(keep)
+        if pos.size:
+            self._last_c = float(pos[-1])
+        return pos
+
+    def _boundaries(self, pos):
+        """Half-period boundaries: the first crossing, then steps of the mean spacing of the
+        last crossings (up to ``_PERIOD_AVERAGE``)."""
+        if pos.size == 0:
+            return pos
+        hist = np.asarray(self._hist, dtype=float)
+        allc = np.concatenate([hist, pos])
+        j = np.arange(hist.size, allc.size)
+        lo = np.maximum(j - _PERIOD_AVERAGE, 0)
+        self._hist = list(allc[-(_PERIOD_AVERAGE + 1):])
+        with np.errstate(invalid="ignore", divide="ignore"):
+            gap = (allc[j] - allc[lo]) / (j - lo)
+        if self._last_b is None and self._last_v is None:
+            start = pos[0]
+            steps = gap[1:]
+            return np.concatenate([[start], start + np.cumsum(steps)])
+        return self._last_bnd() + np.cumsum(gap)
+
+    def _last_bnd(self):
+        return self._last_b if self._last_b is not None else 0.0
 
     def finish(self):
         """Return ``(t_s, u_hp_v, duration_s)`` arrays: mid time, rms, half-period length."""
-        return (np.asarray(self._t), np.asarray(self._u), np.asarray(self._dt))
+        return _cat(self._t), _cat(self._u), _cat(self._dt)
 
     def means(self) -> np.ndarray:
         """Half-period means of the further quantities, shape ``(n_halfperiods, n_means)``."""
-        return np.asarray(self._p).reshape(-1, self.nm)
+        if not self._p:
+            return np.empty((0, self.nm))
+        return np.concatenate(self._p, axis=0)
+
+
+def _cat(parts):
+    return np.concatenate(parts) if parts else np.empty(0)
 
 
 def half_period_rms(u, *, fs_hz, nominal_hz, ref=None):

@@ -221,7 +221,7 @@ def _fundamental_phase(x, fs, f0):
     return float(np.arctan2(c, s)), float(np.hypot(s, c) * np.sqrt(2) / n)
 
 
-def analyze_flicker(capture, *, nominal_hz, settings=None, block_samples=1 << 20,
+def analyze_flicker(capture, *, nominal_hz, settings=None, block_samples=1 << 18,
                     progress=None) -> FlickerAnalysis:
     """Flickermeter and voltage change characteristics of every voltage of a capture.
 
@@ -332,30 +332,32 @@ def _impedance_path(capture, fs, f0, currs, volts, z, path, s, block_samples, fi
     # d(t) by IEC 61000-3-3 clause 4.1: dU = dIp R + dIq X with the active and reactive
     # currents of each half period (see the module notes)
     n = len(currs)
-    hps = [HalfPeriodRms(fs, f0, n_means=2 + 2 * n) for _ in currs]
-    for block in capture.blocks(block_samples):
-        i = block[currs]
-        e = block[sources] if measured else None
-        u, ec, eq, ic = tv.feed(i, e)
+    hps = [HalfPeriodRms(fs, f0, n_means=1 + 2 * n) for _ in currs]
+    def outputs():
+        for block in capture.blocks(block_samples):
+            yield tv.feed(block[currs], block[sources] if measured else None)
+        yield tv.flush()
+
+    for u, ec, eq, ic in outputs():
         if u.shape[1] == 0:
             continue
         for j in range(n):
             meters[j].feed(u[j])
-            hps[j].feed(u[j], ec[j], np.vstack([ec[j:j + 1] ** 2, ic[j:j + 1] ** 2,
-                                                 ec[j] * ic, eq[j] * ic]))
+            # the rms kept is the source's (E); the means are i^2, e i and e(t - T/4) i
+            hps[j].feed(ec[j], ec[j], np.vstack([ic[j:j + 1] ** 2, ec[j] * ic, eq[j] * ic]))
     scale = f0 / z.x_at_hz
     rp, xp = z.r_phase_ohm, z.x_phase_ohm * scale
     rn, xn = z.r_neutral_ohm, z.x_neutral_ohm * scale
     out = []
     for j in range(len(currs)):
         mm = hps[j].means()
-        e_rms = np.sqrt(np.maximum(mm[:, 0], 0.0))
+        e_rms = hps[j].finish()[1]
         with np.errstate(invalid="ignore", divide="ignore"):
-            ip = mm[:, 2:2 + n] / e_rms[:, None]
-            iq = mm[:, 2 + n:] / e_rms[:, None]
+            ip = mm[:, 1:1 + n] / e_rms[:, None]
+            iq = mm[:, 1 + n:] / e_rms[:, None]
         if not measured:
             # ideal source in phase with the current: the phase's own current is all active
-            ip[:, j] = np.sqrt(np.maximum(mm[:, 1], 0.0))
+            ip[:, j] = np.sqrt(np.maximum(mm[:, 0], 0.0))
             iq[:, j] = 0.0
         u_hp = e_rms - (rp * ip[:, j] + xp * iq[:, j] + rn * ip.sum(axis=1)
                         + xn * iq.sum(axis=1))

@@ -128,8 +128,7 @@ class TerminalVoltage:
         self.buf_i = np.empty((self.n, 0))
         self.buf_e = np.empty((self.n, 0))
         self.g0 = 0  # global index of the buffers' first column
-        # next output sample; with a measured source the first look samples have no past
-        self.k = self.look if source == "measured" else 0
+        self.k = 0  # next output sample
 
     @staticmethod
     def _shift(x, c, m, by):
@@ -145,9 +144,9 @@ class TerminalVoltage:
         Four arrays ``(n_phases, n)`` on the same samples: ``u`` the terminal voltage, ``e``
         the source, ``eq`` the source a quarter period earlier (``e(t - T/4)``, for the
         reactive current) and ``i`` the currents. The outputs lag the inputs by about a
-        quarter period (the first call returns that many samples fewer). The source gives
-        the zero crossings that delimit the half periods (IEC 61000-3-3 evaluates half
-        periods between the source's zero crossings).
+        quarter period; :meth:`flush` returns the last ones. The source gives the zero
+        crossings that delimit the half periods (IEC 61000-3-3 evaluates half periods
+        between the source's zero crossings).
         """
         i = np.atleast_2d(np.asarray(currents, dtype=np.float64))
         if self.source == "measured":
@@ -157,17 +156,25 @@ class TerminalVoltage:
         self.buf_i = np.concatenate([self.buf_i, i], axis=1)
         self.buf_e = np.concatenate([self.buf_e, e], axis=1)
         g_end = self.g0 + self.buf_i.shape[1]
-        m = g_end - self.look - self.k
+        return self._out(g_end - self.look - self.k, ahead=True)
+
+    def flush(self):
+        """The outputs of the last samples (their quarter-period look-ahead is replaced by
+        the sign-flipped quarter-period look-back: ``i(t + T/4) = -i(t - T/4)`` for a
+        sinusoid)."""
+        return self._out(self.g0 + self.buf_i.shape[1] - self.k, ahead=False)
+
+    def _out(self, m, *, ahead):
         empty = np.empty((self.n, 0))
         if m <= 0:
             return empty, empty, empty, empty
         c = self.k - self.g0
         q = self.q0 + self.qf
         ic = self.buf_i[:, c:c + m]
-        iq = self._shift(self.buf_i, c, m, q)
+        iq = self._shift(self.buf_i, c, m, q) if ahead else -self._back(self.buf_i, c, m, q)
         if self.source == "measured":
             ec = self.buf_e[:, c:c + m]
-            eq = self._shift(self.buf_e, c, m, -q)
+            eq = self._back(self.buf_e, c, m, q)
         else:
             t = (self.k + np.arange(m)) / self.fs
             arg = 2 * np.pi * self.f * t[None, :] + self.ph[:, None]
@@ -181,3 +188,15 @@ class TerminalVoltage:
         self.buf_e = self.buf_e[:, keep:]
         self.g0 += keep
         return u, ec, eq, ic
+
+    def _back(self, x, c, m, q):
+        """x a quarter period earlier; where the record has no such past (its first quarter
+        period), the sign-flipped quarter period later."""
+        lead = c + int(np.floor(-q))  # first column the look-back needs
+        if lead >= 0:
+            return self._shift(x, c, m, -q)
+        out = -self._shift(x, c, m, q)
+        start = -lead  # the first output that has its past
+        if start < m:
+            out[:, start:] = self._shift(x, c + start, m - start, -q)
+        return out

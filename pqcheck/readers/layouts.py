@@ -367,6 +367,7 @@ def declared_interval(meta: dict):
         if any(w in k for w in ("sample interval", "sampling interval", "time step", "increment",
                                 "sample period", "sampling period", "per sample",
                                 "time per point", "horizontal interval", "x increment",
+                                "hresolution", "horizontal resolution",
                                 "xincrement", "delta t", "deltat")) or k in ("dt", "ts"):
             if unit == "s":
                 return number, key
@@ -556,8 +557,20 @@ def header_layout(lines, path) -> Plan:
         fields = cand.split(delim)
         if len(fields) == k and not numeric_fields(fields, decimal):
             header_idx = startl - 1
-        else:
+        elif cand.strip():
             _refuse_mixed_delimiters(cand, delim, k, startl, path)
+        else:
+            # blank lines between the header (or a units row) and the data: the header is the
+            # line above them when it has as many fields and three or more of them, or is a
+            # row of units (a two-field "key,value" line above a gap stays metadata)
+            h = startl - 1
+            while h > 0 and not lines[h - 1].strip():
+                h -= 1
+            if h > 0:
+                above = lines[h - 1].split(delim)
+                if len(above) == k and not numeric_fields(above, decimal) and (
+                        k >= 3 or all(unit_word(c) for c in above)):
+                    header_idx = h - 1
     raw = lines[header_idx].split(delim) if header_idx is not None else [""] * k
     top = header_idx if header_idx is not None else startl
     return Plan("header", delim, decimal, None if header_idx is None else header_idx + 1,

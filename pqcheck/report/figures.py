@@ -41,6 +41,9 @@ __all__ = [
     "plot_spectrum",
     "plot_waveforms",
     "plot_trend",
+    "FlickerData",
+    "flicker_data",
+    "plot_flicker",
     "to_png",
     "FIG_WIDTH_IN",
 ]
@@ -518,6 +521,99 @@ def plot_trend(data: TrendData) -> Figure:
             lo, hi = float(data.t_s[0]), float(data.t_s[-1])
             pad = 0.03 * (hi - lo) if hi > lo else 0.1
             axes[-1].set_xlim(lo - pad, hi + pad)
+        return fig
+
+
+@dataclass(frozen=True)
+class FlickerData:
+    """d(t) and Pinst over the capture for one voltage (measured or derived from a current).
+
+    Attributes
+    ----------
+    label : str
+        Channel label (with the current it was derived from).
+    t_s, d_percent : numpy.ndarray
+        Half-period mid times and d(t), NaN in steady states. [s], [%]
+    u_rel_percent : numpy.ndarray
+        Half-period rms relative to Un minus 100 (the whole record, for context). [%]
+    pinst_t_s, pinst : numpy.ndarray
+        Pinst maximum per step and the step start times. [s], [unitless]
+    d_limits : tuple of (str, float)
+        Horizontal limit lines of d(t): label and level. [%]
+    """
+
+    label: str
+    t_s: np.ndarray
+    d_percent: np.ndarray
+    u_rel_percent: np.ndarray
+    pinst_t_s: np.ndarray
+    pinst: np.ndarray
+    d_limits: tuple
+
+
+def flicker_data(cf, checks=()) -> FlickerData:
+    """Copy the series of a :class:`pqcheck.flicker.ChannelFlicker` (and the d(t) limit lines
+    of its checks: dmax, dc and the 3.3 % level of Tmax) into a :class:`FlickerData`."""
+    c, m = cf.change, cf.meter
+    lines = []
+    for k in checks:
+        if k.channel == cf.channel and k.quantity in ("dmax", "dc_rel") and k.limit:
+            lines.append((f"{'dmax' if k.quantity == 'dmax' else 'dc'} limit", float(k.limit)))
+    lines.append(("Tmax level", 3.3))
+    label = cf.channel if not cf.derived_from else f"{cf.channel} through {cf.impedance}"
+    n = m.pinst.size
+    return FlickerData(
+        label=label, t_s=np.asarray(c.t_s), d_percent=np.asarray(c.d_percent),
+        u_rel_percent=(np.asarray(c.u_hp_v) / c.un_v - 1.0) * 100.0,
+        pinst_t_s=np.arange(n) * m.pinst_step_s, pinst=np.asarray(m.pinst),
+        d_limits=tuple(dict(lines).items()))
+
+
+def plot_flicker(data: FlickerData) -> Figure:
+    """Two panels: d(t) with its limit lines (and the half-period rms for context), and
+    Pinst over the capture with the Pinst = 1 level.
+
+    Parameters
+    ----------
+    data : FlickerData
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib as mpl
+
+    with mpl.rc_context(_RC):
+        fig = _figure(3.6)
+        ax1, ax2 = fig.subplots(2, 1, squeeze=True)
+        for ax in (ax1, ax2):
+            ax.grid(True, color=_GRID, linewidth=0.5)
+            ax.set_axisbelow(True)
+        ax1.plot(data.t_s, -data.u_rel_percent, color=_LINE_GREYS[2], linewidth=0.6,
+                 label="(Un - U_hp) / Un")
+        ax1.plot(data.t_s, data.d_percent, color=_INK, linewidth=1.0, label="d(t)")
+        for k, (name, level) in enumerate(data.d_limits):
+            ax1.axhline(level, color=_LIMIT_INK, linestyle=_LINE_STYLES[(k + 1) % 4],
+                        linewidth=0.9, label=f"{name} {level:g} %")
+        ax1.set_ylabel("d [%]")
+        ax1.set_xlabel("time in the capture [s] (half periods)")
+        ax1.set_title(f"Relative voltage change, {data.label}", loc="left", fontweight="bold")
+        ax1.legend(loc="upper right", fontsize=6.5, ncol=2)
+        vals = np.concatenate([data.d_percent[np.isfinite(data.d_percent)],
+                               [lv for _, lv in data.d_limits]])
+        ax1.set_ylim(min(0.0, float(np.nanmin(-data.u_rel_percent))) if data.t_s.size else 0.0,
+                     float(vals.max()) * 1.2 if vals.size else 5.0)
+        ax2.plot(data.pinst_t_s, data.pinst, color=_INK, linewidth=0.8,
+                 label="Pinst (max per step)")
+        ax2.axhline(1.0, color=_LIMIT_INK, linestyle="--", linewidth=0.9, label="Pinst = 1")
+        ax2.set_ylabel("Pinst")
+        ax2.set_xlabel("time in the capture [s]")
+        ax2.set_title("Instantaneous flicker sensation (IEC 61000-4-15)", loc="left",
+                      fontweight="bold")
+        ax2.legend(loc="upper right", fontsize=6.5)
+        if data.pinst.size:
+            top = float(np.nanmax(data.pinst))
+            ax2.set_ylim(0, max(top, 1.0) * 1.15)
         return fig
 
 

@@ -69,7 +69,8 @@ __all__ = [
     "MissingExtraError",
 ]
 
-CAPTURE_SUFFIXES = (".csv", ".csv.gz", ".tsv", ".tsv.gz", ".cfg", ".npy", ".parquet", ".pq")
+CAPTURE_SUFFIXES = (".csv", ".csv.gz", ".tsv", ".tsv.gz", ".cfg", ".cff", ".raw", ".npy",
+                    ".parquet", ".pq")
 """Names found in folders and glob patterns (case-insensitive). A COMTRADE record counts once,
 by its .cfg; a .dat without a .cfg next to it is not a capture."""
 
