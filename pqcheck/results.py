@@ -161,7 +161,7 @@ def _part_schema(cls) -> dict:
         kinds = kinds if isinstance(kinds, list) else [kinds]
         s: dict = {"type": kinds if len(kinds) > 1 else kinds[0]}
         if "array" in kinds:
-            s["items"] = {"type": ["string", "number"]}
+            s["items"] = {"type": ["string", "number", "object"]}
         props[name] = s
     return {"type": "object", "properties": props, "required": sorted(props),
             "additionalProperties": False}
