@@ -215,7 +215,8 @@ def resample_windows(samples, starts, lengths, m_points: int, kernel: SyncKernel
     per = max(1, _CHUNK // max(1, c_n * m_points * taps))
     u = np.arange(m_points, dtype=np.float64) / m_points
     curve = u * (1.0 - u)
-    for lo in range(0, n_win, per):
+
+    def chunk(lo):
         sl = slice(lo, min(n_win, lo + per))
         pos = starts[sl, None] + lengths[sl, None] * u[None, :]
         if warp is not None and np.any(warp[sl]):
@@ -226,7 +227,30 @@ def resample_windows(samples, starts, lengths, m_points: int, kernel: SyncKernel
         wts = kernel.table[phase]  # (w, M, T)
         seg = view[:, base]  # (C, w, M, T)
         np.einsum("cwmt,wmt->cwm", seg, wts, out=out[:, sl])
+
+    los = range(0, n_win, per)
+    threads = _threads() if len(los) > 1 else 1
+    if threads > 1:  # chunks are independent: the same numbers in any order
+        list(_pool(threads).map(chunk, los))
+    else:
+        for lo in los:
+            chunk(lo)
     return out
+
+
+def _threads() -> int:
+    """Threads for the resampling: one per CPU, or one when :data:`FFT_WORKERS` is 1 (batch
+    worker processes)."""
+    if FFT_WORKERS == 1:
+        return 1
+    return max(1, min(os.cpu_count() or 1, 8) if FFT_WORKERS < 1 else FFT_WORKERS)
+
+
+@functools.lru_cache(maxsize=2)
+def _pool(threads: int):
+    from concurrent.futures import ThreadPoolExecutor
+
+    return ThreadPoolExecutor(max_workers=threads, thread_name_prefix="pqcheck-resample")
 
 
 def _extend(samples, before: int, after: int, kernel, first_start, first_len, last_end,

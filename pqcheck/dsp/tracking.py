@@ -198,6 +198,8 @@ def window_boundaries(
             segments = _segments(mid, raw_count, bad2)
             count = np.concatenate([_smooth_counts(raw_count[sl]) for sl in segments])
             head, tail = segments[0], segments[-1]
+            if np.ptp(raw2 - model) < CONVERGED:
+                break  # the model was already right: a further pass changes nothing
     # Cycle count at the start edge: a straight line through the first cycles' counts,
     # extended half a cycle back (the same at the end of the record); never across a step.
     count_start, _ = _edge_line(mid[head], raw_count[head], local0, first=True)
@@ -328,6 +330,9 @@ def _second_pass(x, missing, mid, count, amp, local0):
 
 PASSES = 3
 """Passes of :func:`_second_pass` after the first demodulation."""
+
+CONVERGED = 1e-6
+"""A pass whose corrections all lie within this (cycles) ends the refinement."""
 
 MAX_CORRECTION = 0.1
 """Largest phase correction (cycles) a pass may make; more means the reference holds no
