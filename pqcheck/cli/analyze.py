@@ -440,7 +440,10 @@ def inspect_lines(cap) -> list:
     cur = [c.name for c in cap.by_quantity("current")]
     vol = [c.name for c in cap.by_quantity("voltage")]
     out.append("Roles as guessed; to set them explicitly use:")
-    out.append(f"  --current {','.join(cur) or 'COLS'} --voltage {','.join(vol) or 'COLS'}")
+    import shlex  # names with spaces or brackets, ready to paste into a shell
+
+    out.append(f"  --current {shlex.quote(','.join(cur)) if cur else 'COLS'} "
+               f"--voltage {shlex.quote(','.join(vol)) if vol else 'COLS'}")
     for fnd in cap.findings:
         out.append(f"[{fnd.severity}] {fnd.code}: {fnd.message}")
     return out
