@@ -286,11 +286,13 @@ def analyze_cmd(capture, fmt, **opts):
     Prints harmonics, THD/TDD, power quantities and data-quality findings. Exit code 0,
     or 2 for bad input.
     """
-    from ..export import analysis_to_dict, dumps, harmonics_frame
+    from ..export import harmonics_frame
+    from ..results import analysis_document, dumps
 
-    result = run_checked(spec_from_options(capture, opts), opts).result
+    run = run_checked(spec_from_options(capture, opts), opts)
+    result = run.result
     if fmt == "json":
-        click.echo(dumps(analysis_to_dict(result)))
+        click.echo(dumps(analysis_document(run)))
     elif fmt == "csv":
         click.echo(harmonics_frame(result).to_csv(index=False), nl=False)
     else:
