@@ -331,14 +331,16 @@ def validate_file(path) -> list:
 
 def _read(path):
     p = Path(path)
-    try:
-        data = p.read_bytes()
-    except FileNotFoundError:
+    from .files.read import read_bounded
+
+    if not p.exists() and not p.is_symlink():
         return None, [LimitTableError("no such file", path=str(p))]
-    except IsADirectoryError:
+    if p.is_dir():
         return None, [LimitTableError("is a directory, not a limit-table file", path=str(p))]
-    except OSError as exc:
-        return None, [LimitTableError(f"cannot read: {exc.strerror}", path=str(p))]
+    try:
+        data = read_bounded(p, what="limit table", error=LimitTableError)
+    except LimitTableError as exc:
+        return None, [exc]
     try:
         text = data.decode("utf-8").removeprefix("\ufeff")  # byte-order mark (Windows editors)
     except UnicodeDecodeError as exc:

@@ -8,7 +8,7 @@ import numpy as np
 from ._common import EXIT_OK, handle_errors, main
 from ._fields import cli_text, spec_from_options
 
-__all__ = ["capture_options", "run_checked"]
+__all__ = ["capture_options", "run_checked", "print_cache_notices"]
 
 
 def capture_options(func):
@@ -96,6 +96,15 @@ def run_checked(spec, opts: dict, *, progress=None):
     finally:
         if bar is not None:
             bar.close()
+        if cache is not None:
+            print_cache_notices(cache)
+
+
+def print_cache_notices(cache) -> None:
+    """Print what the cache found wrong (an entry that failed its checksum) on stderr."""
+    for note in cache.notices:
+        click.echo(f"pqcheck: note: {note}", err=True)
+    cache.notices.clear()
 
 
 class _ProgressBar:
