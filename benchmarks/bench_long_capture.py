@@ -23,7 +23,7 @@ What is measured, each in a fresh process, interleaved over the repetitions, med
   of the same capture as ``.npy`` (2 workers);
 - ``binary``: ``pqcheck analyze`` of that ``.npy`` (no text parse).
 
-Peak RSS comes from ``os.wait4`` of each child. The captures are generated here: a 50 Hz
+Peak RSS is each child's own ``VmHWM`` at exit. The captures are generated here: a 50 Hz
 three-phase set, currents with 20 % fifth and 10 % seventh harmonic (THD 22.36 %), printed
 like a scope export; the THD pqcheck reports is checked against that known content.
 """
@@ -134,17 +134,38 @@ print(100 * np.sqrt(np.mean(np.square(thd[:len(thd) // 2]))))
 """
 
 
+WRAP = """
+import atexit, os, runpy, sys
+def _hwm():
+    for line in open('/proc/self/status'):
+        if line.startswith('VmHWM'):
+            open(os.environ['PQ_BENCH_HWM'], 'w').write(line.split()[1])
+atexit.register(_hwm)
+mode, what = sys.argv[1], sys.argv[2]
+sys.argv = [what] + sys.argv[3:]
+if mode == '-m':
+    runpy.run_module(what, run_name='__main__', alter_sys=True)
+else:
+    exec(compile(what, '<child>', 'exec'), {'__name__': '__main__'})
+"""
+
+
 def run_child(argv, env=None):
-    """Run a command; return (seconds, peak RSS in MB, stdout)."""
+    """Run a Python command (``[python, -c, code, ...]`` or ``[python, -m, module, ...]``);
+    return (seconds, peak RSS in MB, stdout). The peak RSS is the child's own high-water
+    mark (``VmHWM`` at exit; ``ru_maxrss`` would count the memory of this process, which the
+    child is forked from)."""
+    hwm = Path(tempfile.mkstemp(prefix="pq-bench-hwm-")[1])
+    env = dict(os.environ if env is None else env, PQ_BENCH_HWM=str(hwm))
     t0 = time.perf_counter()
-    proc = subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
-    out = proc.stdout.read()
-    err = proc.stderr.read()
-    _, status, usage = os.wait4(proc.pid, 0)
+    proc = subprocess.run([argv[0], "-c", WRAP] + list(argv[1:]), capture_output=True,
+                          env=env)
     dt = time.perf_counter() - t0
-    if os.waitstatus_to_exitcode(status) not in (0,):
-        raise RuntimeError(f"{argv[:3]} failed: {err.decode()[-2000:]}")
-    return dt, usage.ru_maxrss / 1024, out.decode()
+    if proc.returncode != 0:
+        raise RuntimeError(f"{argv[:3]} failed: {proc.stderr.decode()[-2000:]}")
+    text = hwm.read_text().strip()
+    hwm.unlink()
+    return dt, (int(text) / 1024 if text else float("nan")), proc.stdout.decode()
 
 
 PARSERS = ("parse", "arrow", "polars", "duckdb")
