@@ -53,7 +53,8 @@ from ._limit_model import (
     valid_statistic,
 )
 from .errors import LimitTableError
-from .files.toml import KeyLines, syntax_error_line, tomllib
+from .files.toml import KeyLines, TooDeep, syntax_error_line, tomllib
+from .files.toml import loads as toml_loads
 
 __all__ = ["parse_table", "block_keys"]
 
@@ -187,7 +188,9 @@ def parse_table(text: str, path: str) -> tuple[LimitTable | None, list]:
         Every problem found, in line order (empty when the table is valid).
     """
     try:
-        raw = tomllib.loads(text)
+        raw = toml_loads(text)
+    except TooDeep as exc:
+        return None, [LimitTableError(f"not a limit table: {exc}", path=path)]
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         line = syntax_error_line(msg, text)

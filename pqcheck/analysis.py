@@ -532,7 +532,7 @@ def analyze(
                 f"reference channel {chans[ref].name!r} has no clear mains fundamental near "
                 f"{nominal_hz:g} Hz (the strongest line found is at {f_used:.4g} Hz, where a "
                 f"window lasts {cycles / f_used:.3g} s); check that the reference channel "
-                "(reference) carries the mains voltage or current and the nominal frequency",
+                "(`reference`) carries the mains voltage or current and the nominal frequency",
                 path=path, field="reference")
         raise AnalysisError(
             "no complete window fits in the capture; capture a longer record",

@@ -36,7 +36,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from . import aggregate, gates, metrics
+from . import aggregate, gates, metrics, uncertainty
 from ._limit_model import parse_orders
 from .errors import InputError
 from .limits import HARMONIC, LimitItem, ResolvedLimits, quantity_label
@@ -101,6 +101,14 @@ class Check:
     period_start, period_end : str
         For a statistic over periods of a survey (IEEE 519 daily / weekly percentiles): the
         worst period, whose value ``measured`` is (ISO 8601; "" otherwise).
+    uncertainty : float or None
+        Expanded uncertainty (k = 2) of ``measured`` (:mod:`pqcheck.uncertainty`). [unit]
+    marginal : bool
+        The margin is smaller than the uncertainty: under the default guarded-acceptance rule
+        such a value is inconclusive, never a clean pass.
+
+    A gate of :mod:`pqcheck.gates` (scope, plausibility, observation) appears as a check too,
+    with the gate's code as ``quantity`` and ``statistic = "gate"``.
     """
 
     table_id: str
@@ -124,6 +132,8 @@ class Check:
     tag: str = ""
     period_start: str = ""
     period_end: str = ""
+    uncertainty: float | None = None
+    marginal: bool = False
 
     @property
     def label(self) -> str:
@@ -142,7 +152,8 @@ class Check:
             "margin_percent": _json_num(self.margin_percent), "verdict": self.verdict,
             "clause": self.clause, "verify": self.verify,
             "table_limit": _json_num(self.table_limit), "multiplier": self.multiplier,
-            "basis": self.basis, "tag": self.tag})
+            "basis": self.basis, "tag": self.tag,
+            "uncertainty": _json_num(self.uncertainty), "marginal": self.marginal})
         if self.period_start:
             d["period"] = {"start": self.period_start, "end": self.period_end}
         if self.note:
@@ -616,12 +627,14 @@ class _TableAssessor:
             self.notes += [g.message for g in found]
             return [self._gate_check(g) for g in out_of_scope], self.notes, found
         found += gates.observation_gates(t, self.observed_s, d)
+        found += gates.chain_gates(self.r, t, d)
+        found += gates.plan_gates(t, d)
         checks, notes = self.run_checks()
         found += self.gates  # raised while assessing (declared power)
         blocking = [g for g in found if g.effect == "inconclusive"]
         out = []
         for c in checks:
-            hit = [g for g in blocking if g.concerns(c.channel, c.applies_to)
+            hit = [g for g in blocking if g.concerns(c.channel, c.applies_to, c.quantity, c.order)
                    and (c.verdict == "pass" or (g.void and c.verdict == "fail"))]
             if hit:
                 why = "; ".join(f"{g.code}" for g in hit)
@@ -771,10 +784,68 @@ class _TableAssessor:
                         f"{allowed:.4g} {it.unit}; every smoothed value within 150 %: "
                         f"{'yes' if max_ok else 'no'})")
 
+    def _uncertainty(self, it, ch, measured):
+        """Expanded uncertainty of one assessed value (:mod:`pqcheck.uncertainty`)."""
+        chains = self.declared.all_chains
+        chain = uncertainty.chain_for(chains, ch.name, ch.quantity)
+        f0 = self.r.settings.nominal_hz
+        if it.quantity == HARMONIC:
+            f = it.order * f0
+        elif it.quantity == "DC":
+            f = 0.0
+        else:
+            f = min(self.t.max_order, self.r.max_resolved_order) * f0
+        ratio = it.basis == "percent_of_fundamental" or it.quantity in ("THD", "PWHD")
+        floor = 0.0
+        if chain is not None and chain.floor:
+            b = it.basis
+            ref = {"percent_of_il": self.refs["il"], "percent_of_rated_current":
+                   self.refs["rated"], "percent_of_iref": self.refs["iref"] or
+                   self.refs["rated"]}.get(b)
+            if b == "amperes":
+                floor = chain.floor
+            elif ref:
+                floor = 100.0 * chain.floor / ref
+            elif b == "percent_of_fundamental" and ch.fundamental_rms > 0:
+                floor = 100.0 * chain.floor / ch.fundamental_rms
+            elif b == "milliamperes_per_watt" and self._power:
+                floor = 1000.0 * chain.floor / self._power
+        other = None
+        if it.basis == "milliamperes_per_watt" and self.voltage_channels:
+            other = uncertainty.chain_for(chains, self.voltage_channels[0], "voltage")
+        return uncertainty.expanded_uncertainty(measured, chain=chain, ratio=ratio, f_hz=f,
+                                                floor_in_unit=floor, other=other)
+
+    def _decide(self, verdict, measured, limit, u, notes):
+        """The decision rule: guarded acceptance (default) or simple acceptance."""
+        if u is None or verdict not in ("pass", "fail") or not limit:
+            return verdict, False
+        if (verdict == "pass") != (measured <= limit):
+            return verdict, False  # decided by an exception or allowance with its own bounds
+        if verdict == "pass" and measured + u > limit:
+            if self.declared.decision_rule == "guarded":
+                notes.insert(0, f"inconclusive: marginal, the margin {limit - measured:.3g} is "
+                                f"smaller than the expanded uncertainty {u:.3g} (guarded "
+                                "acceptance, ILAC-G8 4.2.3, guard band = U)")
+                return "inconclusive", True
+            notes.insert(0, f"pass (marginal): the margin {limit - measured:.3g} is smaller "
+                            f"than the expanded uncertainty {u:.3g} (simple acceptance)")
+            return "pass", True
+        if verdict == "fail" and measured - u <= limit:
+            notes.insert(0, f"fail (marginal): the excess {measured - limit:.3g} is within "
+                            f"the expanded uncertainty {u:.3g}")
+            return "fail", True
+        return verdict, False
+
     def _check(self, it, ch, stat_text, measured, limit, verdict, verify, notes, multiplier):
         margin = None
+        u = None
+        marginal = False
         if measured is not None and math.isfinite(measured) and limit and limit > 0:
             margin = (limit - measured) / limit * 100.0
+            u = self._uncertainty(it, ch, measured)
+            notes = list(notes)
+            verdict, marginal = self._decide(verdict, measured, limit, u, notes)
         note = "; ".join(n for n in [*notes, it.note] if n)
         return Check(
             table_id=self.t.table_id, quantity=it.quantity, order=it.order,
@@ -782,7 +853,8 @@ class _TableAssessor:
             measured=None if measured is None or not math.isfinite(measured) else measured,
             limit=limit, unit=it.unit, margin_percent=margin, verdict=verdict,
             clause=it.clause, verify=bool(verify), note=note,
-            table_limit=it.limit, multiplier=multiplier, basis=it.basis, tag=it.tag)
+            table_limit=it.limit, multiplier=multiplier, basis=it.basis, tag=it.tag,
+            uncertainty=u, marginal=marginal)
 
 
 def _stat_text(rule) -> str:

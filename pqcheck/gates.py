@@ -84,6 +84,19 @@ class Declared:
         Rated active power of the equipment (scope bounds in W). [W]
     phases : int or None
         Number of phases of the equipment (1 or 3).
+    chains : tuple of pqcheck.uncertainty.Chain
+        The declared instrument chain (accuracy, bandwidth, dc coupling) of the channels, as
+        a test plan lists it (mappings of the Chain fields are accepted).
+    current_accuracy, voltage_accuracy : str or None
+        Accuracy of the whole current (voltage) chain, e.g. ``"1 % of reading + 0.05 A"``.
+    bandwidth_hz : float or None
+        -3 dB bandwidth of the chain. [Hz]
+    dc_coupled : bool
+        The current chain passes dc and was zeroed before the capture.
+    decision_rule : str
+        ``"guarded"`` (default) or ``"simple"`` (see :mod:`pqcheck.uncertainty`).
+    plan_problems : tuple of str
+        Template text or empty required fields of a test plan (a plan with them cannot pass).
     """
 
     location: str | None = None
@@ -92,16 +105,56 @@ class Declared:
     representative_period: bool = False
     rated_power_w: float | None = None
     phases: int | None = None
+    chains: tuple = ()
+    current_accuracy: str | None = None
+    voltage_accuracy: str | None = None
+    bandwidth_hz: float | None = None
+    dc_coupled: bool = False
+    decision_rule: str = "guarded"
+    plan_problems: tuple = ()
+
+    @property
+    def all_chains(self) -> tuple:
+        """The chains of :attr:`chains` and those of the one-line declarations
+        (``current_accuracy``, ``voltage_accuracy``, ``bandwidth_hz``, ``dc_coupled``)."""
+        from .uncertainty import Chain, parse_accuracy
+
+        out = list(self.chains)
+        for q in ("current", "voltage"):
+            text = getattr(self, f"{q}_accuracy")
+            acc = parse_accuracy(text) if text else None
+            dc = self.dc_coupled and q == "current"
+            if acc is not None or self.bandwidth_hz or dc:
+                out.append(Chain(quantity=q, accuracy_percent=acc[0] if acc else None,
+                                 floor=acc[1] if acc else None, bandwidth_hz=self.bandwidth_hz,
+                                 dc_coupled=True if dc else None, zeroed=True if dc else None,
+                                 name="declared on the command line"))
+        return tuple(out)
 
     def __post_init__(self):
+        from .uncertainty import Chain, parse_accuracy
+
+        chains = tuple(c if isinstance(c, Chain) else
+                       Chain(**{k: tuple(v) if isinstance(v, list) else v for k, v in c.items()})
+                       for c in self.chains)
+        object.__setattr__(self, "chains", chains)
+        object.__setattr__(self, "plan_problems", tuple(self.plan_problems))
+        for q in ("current", "voltage"):
+            text = getattr(self, f"{q}_accuracy")
+            if text is not None and parse_accuracy(text) is None:
+                raise InputError(f"cannot read accuracy {text!r}; write e.g. '1 %' or "
+                                 "'1 % of reading + 0.05 A'", field=f"{q}_accuracy")
         if self.location is not None and self.location not in LOCATIONS:
             raise InputError(f"location {self.location!r} is not one of: "
                              f"{', '.join(LOCATIONS)}", field="location")
-        for name in ("cycle_s", "rated_power_w"):
+        for name in ("cycle_s", "rated_power_w", "bandwidth_hz"):
             v = getattr(self, name)
             if v is not None and not (isinstance(v, (int, float)) and math.isfinite(v)
                                       and v > 0):
                 raise InputError(f"must be a positive number, got {v!r}", field=name)
+        if self.decision_rule not in ("guarded", "simple"):
+            raise InputError(f"decision rule must be 'guarded' or 'simple', got "
+                             f"{self.decision_rule!r}", field="decision_rule")
         if self.phases is not None and self.phases not in (1, 2, 3):
             raise InputError(f"phases must be 1, 2 or 3, got {self.phases!r}", field="phases")
 
@@ -123,6 +176,10 @@ class Gate:
         What was found and what to do, shown next to the verdict.
     channels : tuple of str
         Channels concerned (empty: every channel of the table).
+    quantities : tuple of str
+        Check quantities concerned (``"DC"``, ``"harmonic"``...; empty: all).
+    orders : tuple of int
+        Harmonic orders concerned (empty: all).
     applies_to : str
         ``"current"``, ``"voltage"`` or "" (both).
     void : bool
@@ -139,6 +196,8 @@ class Gate:
     channels: tuple = ()
     applies_to: str = ""
     void: bool = False
+    quantities: tuple = ()
+    orders: tuple = ()
     value: float | None = None
     unit: str = ""
 
@@ -155,9 +214,14 @@ class Gate:
             d["unit"] = self.unit
         return d
 
-    def concerns(self, channel: str, applies_to: str) -> bool:
+    def concerns(self, channel: str, applies_to: str, quantity: str = "",
+                 order: int | None = None) -> bool:
         """True when the gate concerns a check of ``channel`` (a ``applies_to`` quantity)."""
         if self.applies_to and self.applies_to != applies_to:
+            return False
+        if self.quantities and quantity not in self.quantities:
+            return False
+        if self.orders and (order is None or order not in self.orders):
             return False
         return not self.channels or channel in self.channels
 
@@ -261,7 +325,7 @@ def refusals(result, table) -> None:
                 f"{vln * math.sqrt(3):.4g} V line-to-line if three-phase) does not fit the "
                 f"declared bus voltage of {level:g} V (expected about {lo:.4g} V "
                 f"line-to-neutral or {hi:.4g} V): give the nominal bus voltage in volts "
-                f"(e.g. {_nominal_guess(vln)})", field="voltage_level")
+                f"(e.g. {_nominal_guess(vln)})", field="voltage_level_v")
 
 
 def _nominal_guess(vln: float) -> str:
@@ -601,4 +665,89 @@ def observation_gates(table, observed_s: float, declared: Declared) -> list:
                         f"observation period for {label}equipment is {why}{extra}. "
                         + (ob.note if ob.note and not ob.behaviours else ""),
                         value=observed_s, unit="s"))
+    return out
+
+
+# --- instrument chain --------------------------------------------------------------------------
+
+#: A chain reading a component low by more than this cannot assess it (first-order roll-off;
+#: 10 % at about half the -3 dB bandwidth). common practice
+BANDWIDTH_ERROR_MAX = 0.10
+
+
+def plan_gates(table, declared: Declared) -> list:
+    """A test plan with template text or empty required fields cannot pass."""
+    if not declared.plan_problems:
+        return []
+    return [Gate("plan-incomplete", "inconclusive",
+                 f"{table.table_id}: the test plan is not filled in ("
+                 + "; ".join(declared.plan_problems) + "); complete it before a verdict.")]
+
+
+def chain_gates(result, table, declared: Declared) -> list:
+    """Gates from the declared instrument chain: dc checks need a dc-coupled, zeroed chain;
+    orders the chain's bandwidth attenuates by more than 10 % cannot be assessed; a declared
+    sample rate that is not the capture's is a deviation; no chain at all is a deviation (the
+    uncertainty then assumes an IEC 61000-4-7 Class I instrument).
+    """
+    from .uncertainty import bandwidth_error, chain_for
+
+    tid = table.table_id
+    out = []
+    f0 = result.settings.nominal_hz
+    chans = [c for c in result.channels if c.phase != "n"]
+    kinds = {i.applies_to for i in table.items}
+    chans = [c for c in chans if c.quantity in kinds]
+    chains = declared.all_chains
+    if not chains:
+        out.append(Gate("chain-not-declared", "deviation",
+                        f"{tid}: the instrument chain (accuracy, bandwidth, dc coupling) was not "
+                        "declared; the uncertainty assumes an IEC 61000-4-7 Class I instrument "
+                        "(5 % of reading for harmonics)."))
+    has_dc = [i for i in table.items if i.quantity == "DC"]
+    # a numeric dc-injection limit (IEEE 1547, % of rated current) needs a chain declared
+    # dc-coupled and zeroed; a dc offset the standard forbids outright (IEEE 519, % of IL) is
+    # checked with an undeclared chain too (a gross offset still shows), but never with a
+    # chain declared not to pass dc or not zeroed
+    strict = any(i.basis != "percent_of_il" for i in has_dc)
+    for c in chans:
+        ch = chain_for(chains, c.name, c.quantity)
+        undeclared = ch is None or ch.dc_coupled is None
+        if has_dc and c.quantity == "current" and undeclared and not strict:
+            out.append(Gate("chain-dc-undeclared", "deviation",
+                            f"{tid}: the dc component of {c.name!r} was measured through a "
+                            "chain not declared dc-coupled and zeroed; a small dc offset may "
+                            "be the instrument's."))
+        elif has_dc and c.quantity == "current" and not (ch and ch.dc_coupled and ch.zeroed):
+            why = ("no chain was declared for it" if ch is None else
+                   "its chain does not pass dc" if ch.dc_coupled is False else
+                   "its chain was not declared dc-coupled" if not ch.dc_coupled else
+                   "its offset was not declared zeroed")
+            out.append(Gate("chain-dc", "inconclusive",
+                            f"{tid}: the dc component of {c.name!r} cannot be assessed: {why}; "
+                            "a dc limit needs a dc-coupled chain (shunt, Hall-effect clamp) "
+                            "zeroed before the capture, or the offset is the instrument's.",
+                            channels=(c.name,), void=True, quantities=("DC",)))
+        if ch is not None and ch.bandwidth_hz:
+            bad = tuple(h for h in range(2, table.max_order + 1)
+                        if bandwidth_error(h * f0, ch.bandwidth_hz) > BANDWIDTH_ERROR_MAX)
+            if bad:
+                out.append(Gate("chain-bandwidth", "inconclusive",
+                                f"{tid}: the chain of {c.name!r} ({ch.bandwidth_hz:g} Hz "
+                                f"bandwidth) reads orders {bad[0]} and above ({bad[0] * f0:g} Hz) "
+                                f"more than {100 * BANDWIDTH_ERROR_MAX:g} % low; they cannot "
+                                "be assessed.", channels=(c.name,), void=True, orders=bad,
+                                value=ch.bandwidth_hz, unit="Hz"))
+                totals = tuple(i.quantity for i in table.items if i.quantity not in
+                               ("harmonic", "DC"))
+                if totals:
+                    out.append(Gate("chain-bandwidth", "inconclusive",
+                                    f"{tid}: totals of {c.name!r} sum orders its chain cannot "
+                                    "read.", channels=(c.name,), void=True, quantities=totals))
+        if ch is not None and ch.sample_rate_hz and \
+                abs(ch.sample_rate_hz - result.fs_hz) > 0.01 * result.fs_hz:
+            out.append(Gate("chain-sample-rate", "deviation",
+                            f"{tid}: the capture's sample rate ({result.fs_hz:g} Hz) is not "
+                            f"the declared {ch.sample_rate_hz:g} Hz of the chain of {c.name!r}; "
+                            "the capture's rate was used."))
     return out

@@ -295,8 +295,14 @@ def load_table(id_or_path) -> LimitTable:
     name = str(id_or_path).strip()
     res = _bundled().get(name.casefold())
     if res is None:
+        import difflib
+
+        ids = bundled_ids()
+        near = [i for i in ids if i.startswith(name.casefold())] or difflib.get_close_matches(
+            name.casefold(), ids, n=3, cutoff=0.5)
+        hint = f"did you mean {' or '.join(near)}? " if near else ""
         raise LimitTableError(
-            f"unknown limit table {name!r}; bundled tables: {', '.join(bundled_ids())} "
+            f"unknown limit table {name!r}; {hint}bundled tables: {', '.join(ids)} "
             "(or give the path of a .toml file)", field="table")
     with resources.as_file(res) as p:
         return read_table(p)
@@ -325,14 +331,16 @@ def validate_file(path) -> list:
 
 def _read(path):
     p = Path(path)
-    try:
-        data = p.read_bytes()
-    except FileNotFoundError:
+    from .files.read import read_bounded
+
+    if not p.exists() and not p.is_symlink():
         return None, [LimitTableError("no such file", path=str(p))]
-    except IsADirectoryError:
+    if p.is_dir():
         return None, [LimitTableError("is a directory, not a limit-table file", path=str(p))]
-    except OSError as exc:
-        return None, [LimitTableError(f"cannot read: {exc.strerror}", path=str(p))]
+    try:
+        data = read_bounded(p, what="limit table", error=LimitTableError)
+    except LimitTableError as exc:
+        return None, [exc]
     try:
         text = data.decode("utf-8").removeprefix("\ufeff")  # byte-order mark (Windows editors)
     except UnicodeDecodeError as exc:
@@ -463,15 +471,15 @@ def _plausible_selectors(table, given: dict, values: dict) -> None:
         raise InputError(
             f"a bus voltage of {lvl:g} V is below {_LEVEL_MIN_V:g} V, lower than any table "
             f"covers; give it in volts (a {lvl:g} kV bus is {lvl * 1000:g} V)",
-            field="voltage_level")
+            field="voltage_level_v")
     ratio = values.get("isc_il") if table.selector("isc_il") else None
     if ratio is None and "isc" in given and "il" in given:
         ratio = given["isc"] / given["il"]
     if ratio is not None and ratio < 1.0:
         raise InputError(
             f"ISC/IL = {ratio:.3g}: the short-circuit current at the PCC cannot be smaller "
-            "than the load current; check isc and il (both in A, isc is usually kA)",
-            field="isc")
+            "than the load current; check isc_a and il_a (both in A, isc is usually kA)",
+            field="isc_a")
 
 
 def _selector_values(table: LimitTable, given: dict):

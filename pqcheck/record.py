@@ -436,7 +436,9 @@ def _part_dict(part) -> dict:
     out = {}
     for f in dataclasses.fields(part):
         v = getattr(part, f.name)
-        out[f.name] = list(v) if isinstance(v, tuple) else v
+        if isinstance(v, tuple):  # records inside (the declared instrument chain) as mappings
+            v = [_part_dict(x) if dataclasses.is_dataclass(x) else x for x in v]
+        out[f.name] = v
     return out
 
 

@@ -172,3 +172,16 @@ def write_without_observation(folder, table_id: str):
     path = folder / f"{table_id}-no-observation.toml"
     path.write_text(dump_toml(without_observation(table_id)), encoding="utf-8")
     return path
+
+
+def filled_plan(text: str) -> str:
+    """A test-plan text with the fields a plan needs before it can pass: the equipment's
+    name, the date and one declared instrument (an incomplete plan is inconclusive), appended
+    so that the line numbers of the original text stay."""
+    if "[equipment]" not in text:
+        text += '\n[equipment]\nname = "Unit under test"\n'
+    if "[conditions]" not in text:
+        text += ('\n[conditions]\ndate = "2026-01-15"\n'
+                 '[[conditions.instruments]]\nrole = "digitiser"\nmodel = "bench digitiser"\n'
+                 'accuracy = "0.5 %"\n')
+    return text

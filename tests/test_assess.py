@@ -20,7 +20,9 @@ from pqcheck.assess import Check, assess, overall_verdict
 from pqcheck.capture import Capture
 from pqcheck.cli import main
 from pqcheck.errors import InputError
+from pqcheck.gates import Declared
 from pqcheck.limits import resolve
+from pqcheck.uncertainty import Chain
 
 SQ2 = math.sqrt(2.0)
 
@@ -259,7 +261,11 @@ def test_ieee1547_trd_and_dc_injection():
     t = times(6000.0, 4.0)
     i = wave(t, 60.0, {1: 16.0, 5: 0.5}, dc=0.1)
     res = analyze(Capture.from_arrays(6000.0, currents={"i": i}), nominal_hz=60)
-    a = assess(res, resolve("ieee1547-2018"), rated_current_a=16.0)
+    # dc injection needs a chain declared dc-coupled and zeroed (else the offset may be the
+    # instrument's): a shunt with 0.5 % of reading
+    dc_chain = Declared(chains=(Chain(quantity="current", accuracy_percent=0.5, dc_coupled=True,
+                                      zeroed=True),))
+    a = assess(res, resolve("ieee1547-2018"), rated_current_a=16.0, declared=dc_chain)
     assert one(a, "I5").measured == pytest.approx(3.125, rel=2e-3)
     assert one(a, "TRD").measured == pytest.approx(100 * math.sqrt(0.26) / 16, rel=2e-3)
     dc = one(a, "DC")
@@ -358,12 +364,22 @@ def test_cli_check_exit_codes_and_json(tmp_path):
     assert all("order" not in c for c in d["checks"] if c["quantity"] == "TDD")
     res = run("check", ok, *opts)
     assert res.exit_code == 0, res.output
-    assert res.output.startswith("Verdict    PASS")
-    # table view: failing items first, with their margins
+    assert res.output.startswith("Verdict   PASS")
+    # table view: failing items first, with their margins; the closest passes after them
     res = run("check", fail, *opts)
-    lines = [ln for ln in res.output.splitlines() if ln.startswith(("FAIL", "pass"))]
+    lines = [ln.strip() for ln in res.output.splitlines()
+             if ln.strip().startswith(("FAIL", "pass"))]
     assert lines[0].startswith("FAIL") and lines[1].startswith("FAIL")
     assert "-14.3" in lines[0] or "-14.3" in lines[1]  # I11: (3.5 - 4.0) / 3.5
+    assert "Closest to their limits" in res.output
+    assert max(len(ln) for ln in res.output.splitlines()) <= 110  # readable in a terminal
+    every = run("check", fail, *opts, "--all-checks")
+    n_checks = len(d["checks"])
+    assert sum(ln.strip().startswith(("FAIL", "pass", "INCONCLUSIVE"))
+               for ln in every.output.splitlines()) == n_checks
+    md = run("check", fail, *opts, "--format", "markdown")
+    assert md.exit_code == 1
+    assert sum(ln.startswith("| FAIL") for ln in md.output.splitlines()) == 2
 
 
 def test_cli_check_inconclusive_and_usage_errors(tmp_path):

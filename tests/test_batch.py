@@ -428,6 +428,8 @@ def test_batch_takes_the_limit_options_of_check():
     batch_names = {p.name for p in batch_cmd.params}
     from pqcheck.cli.survey_cmd import SURVEY_OPTION_NAMES
 
-    # the interval-log options of check concern surveys, which batch does not take
-    check_names = {p.name for p in check_cmd.params} - {"capture", *SURVEY_OPTION_NAMES}
+    # the interval-log options of check concern surveys, which batch does not take; its
+    # terminal presentation (all_checks) neither
+    check_names = {p.name for p in check_cmd.params} - {"capture", "all_checks",
+                                                         *SURVEY_OPTION_NAMES}
     assert check_names <= batch_names  # every option of check, so selectors never drift

@@ -317,3 +317,22 @@ def test_folder_as_a_plan_capture_says_it_is_a_folder(tmp_path):
     with pytest.raises(PlanError, match=r"plan\.toml:9: captures\[1\]\.file: 'run-50\.csv' is a "
                                          r"folder, not a file .*give the file inside it"):
         load_plan(p)
+
+
+def test_fifo_as_the_side_car_of_an_npy_capture(tmp_path):
+    p = tmp_path / "a.npy"
+    np.save(p, np.zeros((100, 2)))
+    os.mkfifo(tmp_path / "a.json")
+    with pytest.raises(CaptureFormatError,
+                       match=r"a\.json: is a pipe \(FIFO or piped standard input\), not a "
+                             r"regular file; save the side-car JSON to a file first"):
+        load_capture(p, sample_rate_hz=1000.0)
+
+
+def test_gzip_of_nothing(tmp_path):
+    p = tmp_path / "nothing.csv"
+    p.write_bytes(gzip.compress(b""))
+    with pytest.raises(CaptureFormatError,
+                       match=r"nothing\.csv: the compressed file is empty; export the capture "
+                             r"again"):
+        load_capture(p)

@@ -173,7 +173,9 @@ def test_user_text_is_shown_literally_in_the_report(tmp_path):
         'nominal_voltage_v = 400\nnominal_frequency_hz = 50\nisc_a = 20000\nil_a = 100\n'
         f'[[limits]]\ntable = "{write_without_observation(tmp_path, "ieee519-2022").name}"\n'
         '[[captures]]\nid = "c1"\nfile = "capture.csv"\nload_percent = 50\n'
-        'notes = "note <b>bold?</b> & <link href=\'x\'>link</link>"\n')
+        'notes = "note <b>bold?</b> & <link href=\'x\'>link</link>"\n'
+        '[equipment]\nname = "unit"\n[conditions]\ndate = "2026-01-15"\n'
+        '[[conditions.instruments]]\nrole = "digitiser"\nmodel = "d"\naccuracy = "0.5 %"\n')
     out, js = tmp_path / "r.pdf", tmp_path / "r.json"
     res = CliRunner().invoke(main, [
         "report", str(plan), "-o", str(out), "--json", str(js), "-q", "--no-cache",

@@ -40,7 +40,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from conftest import write_without_observation
+from conftest import filled_plan, write_without_observation
 
 from pqcheck.cli import main
 
@@ -315,15 +315,20 @@ def plan(old=None, new=None, *, extra=None, capture_text=None, raw=None, files=N
         p = d / "plan.toml"
         short = write_without_observation(d, "ieee519-2022").as_posix()
         if raw is not None:
-            p.write_bytes(raw.replace(b'table = "ieee519-2022"',
-                                      f'table = "{short}"'.encode()))
+            bom = b"\xef\xbb\xbf" if raw.startswith(b"\xef\xbb\xbf") else b""
+            data = raw
+            if raw[len(bom):] == PLAN.encode():  # the control plan, with a byte-order mark
+                data = bom + filled_plan(PLAN).replace(
+                    'table = "ieee519-2022"', f'table = "{short}"').encode("utf-8")
+            p.write_bytes(data)
             return p
         body = PLAN
         if old is not None:
             assert body.count(old) == 1, old
             body = body.replace(old, new)
-        p.write_text(body.replace('table = "ieee519-2022"', f'table = "{short}"')
-                     + (extra or ""))
+        body = body.replace('table = "ieee519-2022"', f'table = "{short}"') + (extra or "")
+        # the plan that must pass has the fields a complete plan needs
+        p.write_text(filled_plan(body) if old is None and extra is None else body)
         return p
     return make
 
@@ -627,7 +632,7 @@ CASES = [
     E("table-is-a-directory", folder("tables.toml"), "validate", r"tables\.toml' is a directory"),
     E("table-missing", missing("none.toml"), "validate", r"none\.toml: no such file"),
     E("table-unknown-id", lambda d: Path("ieee999"), "table",
-      r"--limits: unknown limit table 'ieee999'; bundled tables: "),
+      r"--limits: unknown limit table 'ieee999'; (did you mean [^?]*\? )?bundled tables: "),
     # -- plans
     E("plan-capture-missing", plan('file = "run 1 ü.csv"', 'file = "nope.csv"'), "plan",
       r"plan\.toml:15: captures\[1\]\.file: file 'nope\.csv' not found \(resolved against"),

@@ -17,11 +17,10 @@ appear, and never a file under the target's own name that is incomplete.
 
 Kill moments: the real write of a ~400 kB PDF takes about a millisecond, so kills spread over
 the run (after 1 s, 2.5 s, and the instant the temporary file appears) mostly land before or
-after it. Two more children run the same command with the writer slowed down (the content is
-handed to the real temporary file in 16 kB pieces with a pause after each, by wrapping
-``atomic_open`` before the command starts) and are killed 0 and 0.25 s after their
-temporary file appears, i.e. in the middle of writing. All children run at once to keep the
-test near 15 s.
+after it. Two more children run the same command with the write phase slowed down (a pause
+of 0.4 s in ``os.fsync``, which the writer calls on every temporary before it takes its
+name) and are killed 0 and 0.25 s after their first temporary file appears, i.e. in the
+middle of writing the set. All children run at once to keep the test near 15 s.
 """
 
 from __future__ import annotations
@@ -47,29 +46,15 @@ PREVIOUS_PDF = b"%PDF-1.4\n% the previous report, which must survive\n%%EOF\n"
 PREVIOUS_JSON = b'{"previous": true}\n'
 
 SLOW_WRITER = r"""
-import contextlib, sys, time
-import pqcheck.files.atomic as atomic
+import os, sys, time
 
-_real = atomic.atomic_open
+_fsync = os.fsync
 
-@contextlib.contextmanager
-def _slow(*args, **kwargs):
-    with _real(*args, **kwargs) as fh:
-        class Slow:
-            def write(self, data):
-                view = memoryview(data if isinstance(data, bytes) else data.encode())
-                for k in range(0, len(view), 16384):
-                    fh.write(view[k:k + 16384])
-                    fh.flush()
-                    time.sleep(0.02)
-                return len(view)
+def _slow_fsync(fd):  # every output is flushed to disk before it takes its name
+    time.sleep(0.4)
+    return _fsync(fd)
 
-            def __getattr__(self, name):
-                return getattr(fh, name)
-
-        yield Slow()
-
-atomic.atomic_open = _slow
+os.fsync = _slow_fsync
 from pqcheck.cli import main
 sys.argv[0] = "pqcheck"
 main()

@@ -142,7 +142,8 @@ def test_uniform_unnamed_first_column_is_never_a_signal(tmp_path):
     p.write_text("clock,ia\n" + "".join(f"{a:.9g},{b:.6g}\n" for a, b in zip(t, _wave(5.0))))
     with pytest.raises(CaptureFormatError,
                        match=r"clock\.csv: time_column: column 'clock' increases in uniform "
-                             r"steps like a time column.*\(time_column='clock'\)"):
+                             r"steps like a time column.*name it as the time column "
+                             r"\(time_column\), or give the sample rate \(sample_rate_hz\)"):
         load_capture(p)
     cap = load_capture(p, time_column="clock")
     assert cap.names == ("ia",) and cap.fs_hz == pytest.approx(FS, rel=1e-6)
@@ -512,3 +513,30 @@ def test_two_field_metadata_line_above_a_gap_stays_metadata(tmp_path):
                                                        for b in _wave()))
     cap = load_capture(p)
     assert cap.names == ("col1", "col2") and cap.fs_hz == pytest.approx(FS, rel=1e-12)
+
+
+def test_declared_interval_that_does_not_fit_the_rounded_times(tmp_path):
+    p = tmp_path / "misfit.csv"
+    _coarse(p)
+    text = p.read_text().replace("Microseconds_Per_Sample,32.506", "Microseconds_Per_Sample,31")
+    p.write_text(text)
+    cap = load_capture(p)
+    f = {f.code: f.message for f in cap.findings}
+    assert "declared-interval-mismatch" in f and "time-rounded" in f
+    assert "the declared interval 'Microseconds_Per_Sample' (3.1e-05 s) does not fit the time " \
+           "column" in f["declared-interval-mismatch"]
+    # the column decides (its end-to-end step), not the declared 31 us
+    assert cap.fs_hz == pytest.approx(1 / DT_COARSE, rel=1e-4)
+
+
+def test_utf16_without_a_byte_order_mark_needs_its_encoding(tmp_path):
+    text = "t,ia\n" + "".join(f"{i / FS:.9g},{b:.6g}\n" for i, b in enumerate(_wave(5.0)))
+    p = tmp_path / "nobom.csv"
+    p.write_bytes(text.encode("utf-16-le"))
+    with pytest.raises(CaptureFormatError,
+                       match=r"nobom\.csv: the file looks like UTF-16 text without a byte-order "
+                             r"mark.*or give its encoding \(`encoding`, e\.g\. utf-16-le\)"):
+        load_capture(p)
+    cap = load_capture(p, encoding="utf-16-le")
+    ref = np.array([float(line.split(",")[1]) for line in text.splitlines()[1:]])
+    np.testing.assert_array_equal(cap.samples[0], ref)

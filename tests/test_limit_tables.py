@@ -430,8 +430,9 @@ def test_load_by_path_and_unknown_id():
     path = LIMITS_DIR / "iec61000-3-2.toml"
     assert read_table(path) == load_table("IEC61000-3-2")
     assert load_table(str(path)) == load_table("iec61000-3-2")
-    with pytest.raises(LimitTableError, match=r"^table: unknown limit table 'ieee-519'; "
-                                              r"bundled tables: iec61000-3-11, iec61000-3-12, "
+    with pytest.raises(LimitTableError, match=r"^table: unknown limit table 'ieee-519'; did you "
+                                              r"mean ieee519-2022 or ieee519-2014\? bundled "
+                                              r"tables: iec61000-3-11, iec61000-3-12, "
                                               r"iec61000-3-2, "):
         load_table("ieee-519")
 

@@ -142,7 +142,10 @@ def test_cli_plan_and_batch_give_equal_specs(folder, monkeypatch):
         '[site]\nnominal_voltage_v = 400\nnominal_frequency_hz = 50\nisc_a = 20000\n'
         f'il_a = 100\n[[limits]]\ntable = "{table}"\n'
         '[[captures]]\nfile = "run.csv"\nsample_rate_hz = 6400\ncurrent = ["ch1"]\n'
-        'voltage = ["ch2"]\n')
+        'voltage = ["ch2"]\n'
+        # a plan passes only when complete: equipment, date and the instrument chain
+        '[equipment]\nname = "unit"\n[conditions]\ndate = "2026-01-15"\n'
+        '[[conditions.instruments]]\nrole = "digitiser"\nmodel = "d"\naccuracy = "5 %"\n')
     res = _report(folder, monkeypatch, "plan.toml", "-o", "p.pdf", "--json", "p.json")
     assert res.exit_code == 0, res.output
     from_plan = RunSpec.from_dict(json.loads((folder / "p.json").read_text())
@@ -151,7 +154,9 @@ def test_cli_plan_and_batch_give_equal_specs(folder, monkeypatch):
     assert Path(from_plan.reader.path) == (folder / "run.csv").resolve()
     # ... and the table by its path resolved against the plan's folder
     assert Path(from_plan.limits[0].table) == (folder / table).resolve()
-    from_plan = dataclasses.replace(from_plan, limits=tuple(
+    # the plan declares its instrument chain, the command line none
+    assert from_plan.declared.chains[0].accuracy_percent == 5.0
+    from_plan = dataclasses.replace(from_plan, declared=from_cli.declared, limits=tuple(
         dataclasses.replace(s, table=table) for s in from_plan.limits))
     assert from_plan.with_capture("run.csv") == from_cli
     # a batch checks every capture with the same template (user tables by absolute path)

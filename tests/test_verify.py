@@ -231,11 +231,13 @@ def test_an_impossible_recorded_setting_exits_2_naming_it(copy, monkeypatch):
 def test_plan_report_verifies_and_catches_a_changed_plan(tmp_path, monkeypatch):
     _write_capture(tmp_path / "run.csv")
     (tmp_path / "plan.toml").write_text(
-        'schema = 1\ntitle = "verify plan"\n[site]\nnominal_voltage_v = 400\n'
+        'schema = 1\ntitle = "verify plan"\n[site]\nname = "s"\nnominal_voltage_v = 400\n'
         'nominal_frequency_hz = 50\nisc_a = 20000\nil_a = 100\n'
         f'[[limits]]\ntable = "{write_without_observation(tmp_path, "ieee519-2022").name}"\n'
         '[[captures]]\nid = "c1"\nfile = "run.csv"\nsample_rate_hz = 6400\n'
-        'current = ["ch1"]\nvoltage = ["ch2"]\n')
+        'current = ["ch1"]\nvoltage = ["ch2"]\n'
+        '[equipment]\nname = "unit"\n[conditions]\ndate = "2026-01-15"\n'
+        '[[conditions.instruments]]\nrole = "digitiser"\nmodel = "d"\naccuracy = "0.5 %"\n')
     res = _run("report", "plan.toml", "-o", "r.pdf", "--json", "r.json", "-q", "--no-cache",
                cwd=tmp_path,
                monkeypatch=monkeypatch)

@@ -1,13 +1,7 @@
 """Command line of pqcheck: a thin layer that parses options, calls the API, prints and exits.
 
-Exit codes (one convention for every command):
-
-- 0: ran, and every assessed limit passed (or no limit table was asked for)
-- 1: a limit was exceeded
-- 2: bad input or usage (nothing was written)
-- 3: inconclusive (data quality, duration or a deviation does not allow a verdict)
-- 4: not applicable (the case is outside the scope of the tables, or nothing was assessable)
-- 5: internal error
+Exit codes: one convention for every command, the table ``_common.EXIT_CODES`` (printed by
+``pqcheck --help`` and repeated in the README).
 
 Each command lives in its own module of this package and registers itself on :data:`main`.
 """

@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import functools
+import os
+import signal
 import sys
+import threading
 import warnings
 
 import click
@@ -18,6 +21,28 @@ EXIT_FAIL = 1
 EXIT_USAGE = 2
 EXIT_INCONCLUSIVE = 3
 EXIT_NOT_APPLICABLE = 4
+EXIT_INTERNAL = 5
+EXIT_SIGINT = 130
+EXIT_SIGTERM = 143
+
+EXIT_CODES = (
+    (EXIT_OK, "pass: every assessed limit is met (or no limit table was asked for)"),
+    (EXIT_FAIL, "fail: a limit is exceeded"),
+    (EXIT_USAGE, "bad input or usage; nothing was written"),
+    (EXIT_INCONCLUSIVE, "inconclusive: data quality, duration or a deviation forbid a verdict"),
+    (EXIT_NOT_APPLICABLE, "not applicable: outside the scope of the tables applied (never 0)"),
+    (EXIT_INTERNAL, "internal error (a defect of pqcheck: please report it); nothing written"),
+    (EXIT_SIGINT, "interrupted by SIGINT (Ctrl-C); no output, a batch keeps finished rows"),
+    (EXIT_SIGTERM, "terminated by SIGTERM; as for SIGINT"),
+)
+"""The exit codes of every command: the one table that ``pqcheck --help`` prints and the
+README repeats (a test compares the two)."""
+
+
+def _exit_code_epilog() -> str:
+    lines = ["\b", "Exit codes (every command):"]
+    lines += [f"  {code:<5}{text}" for code, text in EXIT_CODES]
+    return "\n".join(lines)
 
 #: Exit code of each verdict. "not applicable" (the case is outside the scope of every table
 #: applied, or nothing could be assessed) is never 0: a script must not read it as a pass.
@@ -25,7 +50,32 @@ VERDICT_EXIT = {"pass": EXIT_OK, "fail": EXIT_FAIL, "inconclusive": EXIT_INCONCL
                 "not applicable": EXIT_NOT_APPLICABLE}
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+class Terminated(BaseException):
+    """SIGTERM arrived (``timeout``, a scheduler, a cancelled CI job): unwinds like Ctrl-C, so
+    temporaries are removed and a batch saves its finished rows, then exits with 143."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
+class _Group(click.Group):
+    """The top-level group: SIGTERM becomes :class:`Terminated` while a command runs, and
+    whatever a command lets escape gets its documented exit code, never a traceback."""
+
+    def invoke(self, ctx):
+        old = None
+        if threading.current_thread() is threading.main_thread():
+            old = signal.signal(signal.SIGTERM, _on_sigterm)
+        try:
+            return _guarded(super().invoke, ctx)
+        finally:
+            if old is not None:
+                signal.signal(signal.SIGTERM, old)
+
+
+@click.group(cls=_Group, epilog=_exit_code_epilog(),
+             context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
 @click.version_option(__version__, prog_name="pqcheck")
 def main():
     """pqcheck: harmonic analysis and compliance checks of power-electronics captures.
@@ -41,23 +91,44 @@ def fail_usage(message: str) -> click.exceptions.Exit:
     raise click.exceptions.Exit(EXIT_USAGE)
 
 
+def _guarded(func, *args, **kwargs):
+    """Run ``func``; map every exception to its exit code (see :data:`EXIT_CODES`)."""
+    try:
+        return func(*args, **kwargs)
+    except (click.exceptions.Exit, click.ClickException, click.Abort):
+        raise
+    except (InputError, ReportError, PqcheckError) as exc:
+        fail_usage(cli_message(exc))
+    except MemoryError:
+        fail_usage("out of memory; try a shorter capture or a machine with more memory")
+    except KeyboardInterrupt:
+        click.echo("pqcheck: interrupted (SIGINT)", err=True)
+        sys.exit(EXIT_SIGINT)
+    except Terminated:
+        click.echo("pqcheck: terminated (SIGTERM)", err=True)
+        sys.exit(EXIT_SIGTERM)
+    except Exception as exc:  # noqa: BLE001 - the last guard: a defect, reported as one
+        if os.environ.get("PQCHECK_TRACEBACK"):
+            raise
+        text = " ".join(str(exc).split())
+        text = text if len(text) <= 300 else text[:297] + "..."
+        click.echo(f"pqcheck: internal error: {type(exc).__name__}: {text}", err=True)
+        click.echo("pqcheck: this is a defect of pqcheck; please report it with the command "
+                   "line (set PQCHECK_TRACEBACK=1 to see where it happened); nothing was "
+                   "written", err=True)
+        sys.exit(EXIT_INTERNAL)
+
+
 def handle_errors(func):
-    """Turn pqcheck's documented errors into one stderr line and exit code 2."""
+    """Turn pqcheck's documented errors into one stderr line and exit code 2 (see
+    :data:`EXIT_CODES` for the others)."""
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
-        try:
-            # numpy's RuntimeWarnings (a mean of an empty window, 0/0 in a silent channel)
-            # are handled as NaN results and findings; their text never reaches stderr
-            with warnings.catch_warnings(), np.errstate(all="ignore"):
-                warnings.simplefilter("ignore", RuntimeWarning)
-                return func(*args, **kwargs)
-        except (InputError, ReportError, PqcheckError) as exc:
-            fail_usage(cli_message(exc))
-        except MemoryError:
-            fail_usage("out of memory; try a shorter capture or a machine with more memory")
-        except KeyboardInterrupt:
-            click.echo("pqcheck: interrupted", err=True)
-            sys.exit(130)
+        # numpy's RuntimeWarnings (a mean of an empty window, 0/0 in a silent channel)
+        # are handled as NaN results and findings; their text never reaches stderr
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return _guarded(func, *args, **kwargs)
 
     return wrapper

@@ -15,7 +15,8 @@ LIMIT_OPTION_NAMES = ("table", "voltage_level_v", "isc_a", "generation", "equipm
                       "equipment_kind", "rsce", "ssc_va", "rated_apparent_power_va",
                       "rated_current_a", "iref_a", "active_power_w", "location",
                       "behaviour", "cycle_s", "representative_period", "phases",
-                      "switching")
+                      "switching", "current_accuracy", "voltage_accuracy", "bandwidth_hz",
+                      "dc_coupled", "decision_rule")
 
 
 def limit_options(*, required: bool, limits_help: str | None = None):
@@ -84,6 +85,23 @@ def limit_options(*, required: bool, limits_help: str | None = None):
         click.option("--phases", type=click.IntRange(1, 3), metavar="N",
                      help="Number of phases of the equipment (a three-phase unit captured on "
                           "fewer phases cannot pass)."),
+        click.option("--current-accuracy", "current_accuracy", metavar="TEXT",
+                     help="Accuracy of the current chain (clamp and digitiser), e.g. '1 %' or "
+                          "'1 % of reading + 0.05 A'; feeds the uncertainty. Default: IEC "
+                          "61000-4-7 Class I assumed."),
+        click.option("--voltage-accuracy", "voltage_accuracy", metavar="TEXT",
+                     help="Accuracy of the voltage chain, as --current-accuracy."),
+        click.option("--bandwidth", "bandwidth_hz", type=float, metavar="HZ",
+                     help="-3 dB bandwidth of the measurement chain; orders it reads more than "
+                          "10 % low are not assessed."),
+        click.option("--dc-coupled", "dc_coupled", is_flag=True, default=False,
+                     help="The current chain passes dc and was zeroed before the capture (dc "
+                          "injection limits need it)."),
+        click.option("--decision-rule", "decision_rule", type=click.Choice(["guarded", "simple"]),
+                     default="guarded", show_default=True,
+                     help="guarded: a value within its uncertainty of the limit is "
+                          "inconclusive (ILAC-G8 guarded acceptance); simple: it passes, marked "
+                          "marginal."),
     ]
 
     def decorate(func):

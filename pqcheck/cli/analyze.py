@@ -8,7 +8,7 @@ import numpy as np
 from ._common import EXIT_OK, handle_errors, main
 from ._fields import cli_text, spec_from_options
 
-__all__ = ["capture_options", "run_checked"]
+__all__ = ["capture_options", "run_checked", "print_cache_notices"]
 
 
 def capture_options(func):
@@ -96,6 +96,15 @@ def run_checked(spec, opts: dict, *, progress=None):
     finally:
         if bar is not None:
             bar.close()
+        if cache is not None:
+            print_cache_notices(cache)
+
+
+def print_cache_notices(cache) -> None:
+    """Print what the cache found wrong (an entry that failed its checksum) on stderr."""
+    for note in cache.notices:
+        click.echo(f"pqcheck: note: {note}", err=True)
+    cache.notices.clear()
 
 
 class _ProgressBar:
@@ -164,23 +173,36 @@ def render_table(result) -> str:
         f"Frequency  {r.fundamental_hz:.4f} Hz mean ({r.freq_min_hz:.4f} to {r.freq_max_hz:.4f}),"
         f" nominal {s.nominal_hz:g} Hz ({s.nominal_source}); reference {s.reference}")
     lines.append("")
-    head = f"{'channel':<12}{'role':<11}{'rms':>11}{'fund.':>11}{'THD %':>8}{'THDG %':>8}"
-    head += f"{'TDD %':>8}{'CF':>6}"
+    def fixed(x, dec, unit=""):
+        if x is None or not np.isfinite(x):
+            return "-"
+        return f"{x:.{dec}f}" + (f" {unit}" if unit else "")
+
+    def role_of(c):
+        what = {"current": "current", "voltage": "voltage"}.get(c.quantity, c.quantity)
+        return f"{what}, phase {c.phase}" if c.phase else f"{what}, single-phase"
+
+    name_w = max([7] + [len(c.name) for c in r.channels]) + 2
+    role_w = max(len(role_of(c)) for c in r.channels) + 2
+    head = (f"{'channel':<{name_w}}{'role':<{role_w}}{'rms':>12}{'fundamental':>14}"
+            f"{'THD %':>9}{'THDG %':>9}{'TDD %':>9}{'crest':>8}")
     lines.append(head)
     lines.append("-" * len(head))
     for c in r.channels:
-        role = f"{c.quantity[0].upper()} {c.phase or '1ph'}"
+        # amperes and volts with two decimals, percentages with two, crest factor with three
         lines.append(
-            f"{c.name:<12}{role:<11}{_fmt(c.rms, 5, c.unit):>11}"
-            f"{_fmt(c.fundamental_rms, 5, c.unit):>11}{_fmt(c.thd_percent, 3):>8}"
-            f"{_fmt(c.thd_group_percent, 3):>8}{_fmt(c.tdd_percent, 3):>8}"
-            f"{_fmt(c.crest_factor, 3):>6}")
+            f"{c.name:<{name_w}}{role_of(c):<{role_w}}{fixed(c.rms, 2, c.unit):>12}"
+            f"{fixed(c.fundamental_rms, 2, c.unit):>14}{fixed(c.thd_percent, 2):>9}"
+            f"{fixed(c.thd_group_percent, 2):>9}{fixed(c.tdd_percent, 2):>9}"
+            f"{fixed(c.crest_factor, 3):>8}")
     lines.append("")
-    # harmonic table: % of fundamental, orders 2..H with any value >= 0.05 %
+    # harmonic table: % of fundamental, orders 2..H with any value >= 0.1 %
     chans = r.channels
-    lines.append("Harmonics, % of fundamental (component; orders under 0.1 % in every "
-                 "channel not shown)")
-    head = f"{'order':>5}" + "".join(f"{c.name[:10]:>11}" for c in chans)
+    lines.append("Harmonics, % of each channel's fundamental (components)")
+    lines.append("orders under 0.1 % in every channel not shown; n/r: not resolved at this "
+                 "sample rate")
+    col_w = max([10] + [len(c.name) + 2 for c in chans])
+    head = f"{'order':>5}" + "".join(f"{c.name:>{col_w}}" for c in chans)
     lines.append(head)
     lines.append("-" * len(head))
     H = len(chans[0].orders) - 1
@@ -190,11 +212,11 @@ def render_table(result) -> str:
             f1 = c.harmonic_rms[1]
             vals.append(100 * c.harmonic_rms[h] / f1 if f1 > 0 else np.nan)
         if all(not np.isfinite(v) for v in vals):
-            lines.append(f"{h:>5}" + "".join(f"{'n/r':>11}" for _ in chans))
+            lines.append(f"{h:>5}" + "".join(f"{'n/r':>{col_w}}" for _ in chans))
             continue
         if max(np.nan_to_num(vals)) < 0.1:
             continue
-        lines.append(f"{h:>5}" + "".join(f"{_fmt(v, 3):>11}" for v in vals))
+        lines.append(f"{h:>5}" + "".join(f"{fixed(v, 3):>{col_w}}" for v in vals))
     if r.power is not None:
         p = r.power
         lines.append("")

@@ -3,89 +3,32 @@
 from __future__ import annotations
 
 import json
-import math
 
 import click
 
 from ._common import VERDICT_EXIT, handle_errors, main
-from ._fields import cli_text, spec_from_options
+from ._fields import spec_from_options
 from ._limits import limit_options
+from ._render import render_assessment, render_markdown
 from .analyze import capture_options, run_checked
 from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__ = ["render_assessment"]
-
-_ORDER = {"fail": 0, "inconclusive": 1, "pass": 2, "not applicable": 3}
-
-
-def _num(x, digits=4) -> str:
-    if x is None or not math.isfinite(x):
-        return "-"
-    return f"{x:.{digits}g}"
-
-
-def render_assessment(assessment, result=None) -> str:
-    """Text view of an assessment: verdict, limits used, notes, then the checks with failing
-    items first (most exceeded first) and their margins."""
-    a = assessment
-    lines = [f"Verdict    {a.verdict.upper()}"]
-    c = a.counts
-    lines.append(f"Checks     {c.get('fail', 0)} fail, {c.get('inconclusive', 0)} inconclusive, "
-                 f"{c.get('pass', 0)} pass, {c.get('not applicable', 0)} not applicable")
-    for label, texts in (("Why", a.reasons), ("Deviation", a.deviations)):
-        for k, text in enumerate(texts):
-            lines.append(f"{label if k == 0 else '':<10} {text}")
-    if result is not None:
-        lines.append(f"Capture    {result.source} ({result.duration_s:.3f} s, "
-                     f"{int(result.windows.valid.sum())} valid windows)")
-    for t in a.tables:
-        lines.append(f"Limits     {t.display_name}: {t.standard} {t.edition}, {t.title}")
-        lines.append(f"           file {t.source} (SHA-256 {t.sha256})")
-        sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
-                        for k, v in t.selectors)
-        if sel:
-            lines.append(f"           selectors: {sel}")
-        for row in t.rows:
-            lines.append(f"           {row}")
-        lines.append("           measure: IEC 61000-4-15 flickermeter and IEC 61000-3-3 "
-                     "voltage changes" if t.measure == "flicker"
-                     else f"           measure: IEC 61000-4-7 harmonic {t.measure}")
-    if a.notes:
-        lines.append("Notes")
-        lines += [f"  - {cli_text(n)}" for n in a.notes]
-    checks = sorted(a.checks, key=lambda k: (_ORDER[k.verdict],
-                                             k.margin_percent if k.margin_percent is not None
-                                             else math.inf))
-    head = ["verdict", "table", "channel", "limit of", "statistic", "measured", "limit", "unit",
-            "margin %", "clause", "note"]
-    rows = []
-    for k in checks:
-        rows.append([k.verdict.upper() if k.verdict in ("fail", "inconclusive") else k.verdict,
-                     k.table_id, k.channel, k.label, k.statistic, _num(k.measured),
-                     _num(k.limit) + ("*" if k.verify else ""), k.unit,
-                     _num(k.margin_percent, 3), k.clause, cli_text(k.note)])
-    widths = [max(len(str(r[i])) for r in [head] + rows) for i in range(len(head) - 1)]
-    lines.append("")
-    lines.append("  ".join(h.ljust(w) for h, w in zip(head, widths)) + "  note")
-    for r in rows:
-        lines.append(("  ".join(str(x).ljust(w) for x, w in zip(r, widths)) + "  " + r[-1])
-                     .rstrip())
-    lines.append("")
-    lines.append("* limit tagged to verify against your copy of the standard. Margin = (limit - "
-                 "measured) / limit; negative means the limit is exceeded. A pqcheck verdict is "
-                 "an engineering aid, not a certification.")
-    return "\n".join(lines) + "\n"
-
 
 @main.command("check")
 @click.argument("capture", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @limit_options(required=True)
 @capture_options
 @survey_options
-@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
-              show_default=True, help="Output on stdout.")
+@click.option("--format", "fmt", type=click.Choice(["table", "json", "markdown"]),
+              default="table", show_default=True,
+              help="Output on stdout: a readable summary (table), the results document "
+                   "(json), or every check as a Markdown table to paste (markdown).")
+@click.option("--all-checks", is_flag=True,
+              help="With --format table: every check, one line each (default: what failed, "
+                   "the inconclusive checks grouped by cause, the closest passes, findings).")
 @handle_errors
-def check_cmd(capture, fmt, **opts):
+def check_cmd(capture, fmt, all_checks, **opts):
     """Check CAPTURE against limit tables.
 
     CAPTURE is a waveform capture, or one or more interval logs of a survey (one row per
@@ -116,6 +59,8 @@ def check_cmd(capture, fmt, **opts):
                         "duration_s": result.duration_s}
         d["findings"] = [f.to_dict() for f in result.findings]
         click.echo(json.dumps(d, indent=2))
+    elif fmt == "markdown":
+        click.echo(render_markdown(a, result), nl=False)
     else:
-        click.echo(render_assessment(a, result), nl=False)
+        click.echo(render_assessment(a, result, all_rows=all_checks), nl=False)
     raise click.exceptions.Exit(VERDICT_EXIT[a.verdict])

@@ -240,12 +240,20 @@ def limits_group():
 
 
 @limits_group.command("list")
+@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
+              show_default=True, help="Output on stdout.")
 @handle_errors
-def list_cmd():
+def list_cmd(fmt):
     """List the bundled limit tables."""
     rows = []
-    for tid in bundled_ids():
-        t = load_table(tid)
+    tables = [load_table(tid) for tid in bundled_ids()]
+    if fmt == "json":
+        import json
+
+        click.echo(json.dumps([{"id": t.id, "standard": t.standard, "edition": t.edition,
+                                "title": t.title} for t in tables], indent=2))
+        raise click.exceptions.Exit(EXIT_OK)
+    for t in tables:
         rows.append([t.id, f"{t.standard} {t.edition}", t.title])
     click.echo("\n".join(_grid(["ID", "STANDARD", "TITLE"], rows)))
     click.echo("\nShow one with `pqcheck limits show ID`; copy it with "

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
+import os
 from dataclasses import replace
 from datetime import datetime, timezone
-from pathlib import Path
 
 import click
 
@@ -12,7 +12,7 @@ from ..record import RunSpec
 from ._common import EXIT_OK, VERDICT_EXIT, fail_usage, handle_errors, main
 from ._fields import command_line, given_spec_options, spec_from_options
 from ._limits import LIMIT_OPTION_NAMES, limit_options
-from .analyze import capture_options, run_checked
+from .analyze import capture_options, print_cache_notices, run_checked
 
 __all__: list = []
 
@@ -24,6 +24,36 @@ _report_limit_options = limit_options(
 
 _REPORT_FIELDS = ("title", "equipment", "site", "operator", "report_id")
 _ROW_FIELDS = tuple(n for n in LIMIT_OPTION_NAMES if n != "table")
+
+
+def _input_files(*sources: str, limits) -> list:
+    """Files the report reads: the captures (with the other files of their records) or the
+    plan, and the limit tables given by path."""
+    from ..readers import capture_files
+
+    files = list(sources)
+    for source in sources:
+        if not source.lower().endswith(".toml"):
+            try:
+                files += capture_files(source)
+            except Exception:  # noqa: BLE001 - a broken capture is reported when it is read
+                pass
+    files += [x for x in limits or () if os.path.exists(x)]
+    return files
+
+
+def _plan_files(plan) -> list:
+    """Every capture file and user limit table a plan names."""
+    from ..readers import capture_files
+
+    files = [spec.path for spec in plan.limits if spec.path is not None]
+    for c in plan.captures:
+        files.append(c.path)
+        try:
+            files += capture_files(c.path)
+        except Exception:  # noqa: BLE001 - reported when the capture is read
+            pass
+    return files
 
 
 @main.command("report")
@@ -60,32 +90,23 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
     3 inconclusive, 4 not applicable, 2 bad input or an existing output without --force
     (nothing is written).
     """
-    from ..files.atomic import check_target, write_atomic
+    from ..files.atomic import OutputSet
     from ..report.job import ReportJob, ReportMeta, make_report_id
     from ..report.pdf import render_pdf
-    from ..report.results import (
-        check_csv_targets,
-        job_frames,
-        job_json,
-        job_to_dict,
-        write_csv_dir,
-    )
+    from ..report.results import CSV_TABLES, job_csv_texts, job_json, job_to_dict
 
     created = datetime.now(timezone.utc)
 
-    # 1. Every output must be writable before any work is done.
-    out = Path(output)
-    targets = [out.resolve()]
-    check_target(out, force=force, option="-o")
+    # 1. Every output must be writable, and none an input, before any work is done.
+    outputs = OutputSet(force=force)
+    outputs.protect(_input_files(source, limits=opts.get("table")))
+    outputs.protect(_input_files(*opts.get("add_file") or (), limits=()))
+    out = outputs.add(output, "-o")
     if json_path is not None:
-        if Path(json_path).resolve() in targets:
-            fail_usage("--json and -o name the same file; give two different paths")
-        check_target(json_path, force=force, option="--json")
-        targets.append(Path(json_path).resolve())
+        outputs.add(json_path, "--json")
+    csv_paths = []
     if csv_dir is not None:
-        for p in check_csv_targets(csv_dir, force=force):
-            if p.resolve() in targets:
-                fail_usage(f"--csv {csv_dir} would overwrite {p}; choose another folder")
+        csv_paths = outputs.add_folder(csv_dir, [f"{n}.csv" for n in CSV_TABLES], "--csv")
 
     # 2. Analyse and assess (any bad input stops here with exit 2 and nothing written).
     plan = None
@@ -100,12 +121,17 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
                        f"({source})")
         details = ReportDetails(**{k: opts.get(k) for k in _REPORT_FIELDS})
         plan = load_plan(source)
+        outputs.protect(_plan_files(plan))  # what the plan names is an input too
         cache = None
         if not opts.get("no_cache"):
             from ..run.cache import Cache
 
             cache = Cache(opts.get("cache_dir"))
-        runs = run_plan(plan, cache=cache, report=details)
+        try:
+            runs = run_plan(plan, cache=cache, report=details)
+        finally:
+            if cache is not None:
+                print_cache_notices(cache)
         command = command_line("report", RunSpec(report=details), source=source)
     else:
         spec = spec_from_options(source, opts)
@@ -137,16 +163,15 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
     doc = job_to_dict(job)
     results = job_json(job)
     pdf = render_pdf(job, results_json=results)
-    frames = job_frames(job, doc) if csv_dir is not None else None
-
-    # 4. Write (each file atomically).
-    write_atomic(out, pdf, force=force, option="-o")
-    written = [str(out)]
+    outputs.put(out, pdf)
     if json_path is not None:
-        write_atomic(json_path, results, force=force, option="--json")
-        written.append(str(json_path))
+        outputs.put(json_path, results)
     if csv_dir is not None:
-        written += [str(p) for p in write_csv_dir(frames, csv_dir, force=force)]
+        for path, text in zip(csv_paths, job_csv_texts(job, doc)):
+            outputs.put(path, text)
+
+    # 4. Write: all the files, or none of them.
+    written = [str(p) for p in outputs.commit()]
 
     verdict = job.verdict
     n_tables = len(job.limit_tables())

@@ -208,7 +208,7 @@ def site_run(site_file, output, json_path, force, fmt, summation, title, operato
     from datetime import datetime, timezone
 
     from ..export import dumps
-    from ..files.atomic import check_target, write_atomic
+    from ..files.atomic import OutputSet, check_target
     from ..report.job import make_report_id
     from ..run.site import load_site
     from ..site import study_site, study_to_dict
@@ -240,13 +240,14 @@ def site_run(site_file, output, json_path, force, fmt, summation, title, operato
         from ..report.site_pdf import render_site_pdf
 
         pdf = render_site_pdf(study, report=meta, results_json=results)
-    written = []
+    # both files or neither (never an input of the study)
+    files = OutputSet(force=force, protect=[site_file, *(path for *_, path, _ in study.inputs
+                                                         if path)])
     if output is not None:
-        write_atomic(output, pdf, force=force, option="-o")
-        written.append(output)
+        files.put(files.add(output, "-o"), pdf)
     if json_path is not None:
-        write_atomic(json_path, results, force=force, option="--json")
-        written.append(json_path)
+        files.put(files.add(json_path, "--json"), results)
+    written = [str(p) for p in files.commit()] if files.paths else []
     if fmt == "json":
         click.echo(results.decode("utf-8"))
     else:

@@ -274,7 +274,7 @@ def _register():
             if opts.get(k):
                 fail_usage(f"--{k.replace('_', '-')} concerns interval logs; aggregate reads "
                            "waveform recordings")
-        check_target(out, force=force, option="-o")
+        check_target(out, force=force, option="-o", protect=recording)  # never an input
         executor = None
         if scheduler or workers:
             from ..run.batch import DaskExecutor
@@ -292,7 +292,7 @@ def _register():
         frames = [interval_frame(s, tz) for s in survey.levels if s.level in wanted]
         frame = pd.concat(frames, ignore_index=True)
         if suffix == ".csv":
-            with atomic_open(out, "w", force=force, option="-o") as fh:
+            with atomic_open(out, "w", force=force, option="-o", protect=recording) as fh:
                 fh.write("# pqcheck aggregate: IEC 61000-4-30 interval values "
                          "(RMS aggregation of IEC 61000-4-7 harmonic subgroups)\n")
                 fh.write("# timestamp = start\n")
@@ -313,7 +313,7 @@ def _register():
                 "sources": json.dumps(list(survey.sources))})
             buf = io.BytesIO()
             pq.write_table(table, buf)
-            with atomic_open(out, "wb", force=force, option="-o") as fh:
+            with atomic_open(out, "wb", force=force, option="-o", protect=recording) as fh:
                 fh.write(buf.getvalue())
         for f in survey.findings:
             if f.severity != "info":

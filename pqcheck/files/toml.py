@@ -18,7 +18,45 @@ try:  # Python >= 3.11
 except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
-__all__ = ["tomllib", "KeyLines", "syntax_error_line", "format_value", "format_key"]
+__all__ = ["tomllib", "KeyLines", "syntax_error_line", "format_value", "format_key",
+           "loads", "TooDeep", "MAX_DEPTH"]
+
+MAX_DEPTH = 32
+"""Deepest nesting of arrays and tables accepted in a user's TOML document (pqcheck's own
+documents nest at most 4 deep)."""
+
+
+class TooDeep(ValueError):
+    """A TOML document nests arrays or tables deeper than :data:`MAX_DEPTH`."""
+
+
+def loads(text: str) -> dict:
+    """Parse a TOML document as ``tomllib.loads`` does, refusing deep nesting.
+
+    ``tomllib`` parses nested arrays and inline tables recursively, so a document such as
+    ``a = [[[[...]]]]`` a few thousand levels deep exhausts Python's recursion limit; the code
+    that reads the parsed values recurses too. Both are stopped here.
+
+    Raises
+    ------
+    tomllib.TOMLDecodeError
+        Invalid TOML.
+    TooDeep
+        Nested deeper than :data:`MAX_DEPTH` levels.
+    """
+    try:
+        doc = tomllib.loads(text)
+    except RecursionError:
+        raise TooDeep(f"arrays or tables nested too deeply (more than {MAX_DEPTH} levels)") \
+            from None
+    stack = [(doc, 1)]
+    while stack:  # iterative: the check itself must not recurse
+        value, depth = stack.pop()
+        if depth > MAX_DEPTH:
+            raise TooDeep(f"arrays or tables nested too deeply (more than {MAX_DEPTH} levels)")
+        children = value.values() if isinstance(value, dict) else value
+        stack.extend((v, depth + 1) for v in children if isinstance(v, (dict, list)))
+    return doc
 
 _BARE_KEY = re.compile(r"[A-Za-z0-9_-]+")
 

@@ -12,7 +12,8 @@ import re
 from pathlib import Path
 
 from ..errors import PlanError
-from .toml import KeyLines, syntax_error_line, tomllib
+from .toml import KeyLines, TooDeep, syntax_error_line, tomllib
+from .toml import loads as toml_loads
 
 __all__ = ["DocReader", "read_document", "NUM", "POS", "STR", "BOOL", "STRS", "INT", "LABEL",
            "field_name", "kind_of"]
@@ -24,21 +25,18 @@ def read_document(path: Path, what: str) -> tuple:
     A UTF-8 byte-order mark (as Windows editors write) is accepted. Errors are
     :class:`PlanError` naming the file (and the line, for bad UTF-8 or TOML syntax).
     """
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise PlanError(f"{what} not found", path=path) from None
-    except IsADirectoryError:
-        raise PlanError(f"is a folder, not a {what}", path=path) from None
-    except OSError as exc:
-        raise PlanError(f"cannot read the {what}: {exc.strerror or exc}", path=path) from None
+    from .read import read_bounded
+
+    raw = read_bounded(path, what=what, error=PlanError)
     try:
         text = raw.decode("utf-8").removeprefix("\ufeff")
     except UnicodeDecodeError as exc:
         raise PlanError(f"not UTF-8 text (byte {exc.start})", path=path,
                         line=raw[:exc.start].count(b"\n") + 1) from None
     try:
-        doc = tomllib.loads(text)
+        doc = toml_loads(text)
+    except TooDeep as exc:
+        raise PlanError(f"not a {what} pqcheck can read: {exc}", path=path) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         raise PlanError(f"not valid TOML: {re.sub(r' [(]at .*[)]$', '', msg)}", path=path,

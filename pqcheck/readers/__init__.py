@@ -16,6 +16,7 @@ from ..errors import CaptureFormatError
 from ..files.inputs import require_regular_file
 
 __all__ = ["load_capture", "open_capture", "combine_captures", "file_sha256", "capture_sha256",
+           "capture_files",
            "STREAM_OVER_BYTES"]
 
 def file_sha256(path) -> str:
@@ -26,6 +27,26 @@ def file_sha256(path) -> str:
         for block in iter(lambda: fh.read(1 << 20), b""):
             h.update(block)
     return h.hexdigest()
+
+
+def capture_files(path) -> list:
+    """The files a capture is read from, in hashing order: a COMTRADE record's .cfg and .dat,
+    a ``.npy`` array and its side-car ``.json``, else the file itself.
+
+    Raises
+    ------
+    CaptureFormatError
+        The other file of a COMTRADE pair is missing.
+    """
+    p = Path(path)
+    suffix = p.suffix.lower()
+    if suffix == ".cfg" or (suffix == ".dat" and _has_sibling(p, ".cfg")):
+        from .comtrade import _pair  # the reader's own pairing rule
+
+        return list(_pair(p))
+    if suffix == ".npy" and p.with_suffix(".json").is_file():
+        return [p, p.with_suffix(".json")]
+    return [p]
 
 
 def capture_sha256(path) -> str:
@@ -44,14 +65,7 @@ def capture_sha256(path) -> str:
     p = Path(path)
     require_regular_file(p, what="capture", error=CaptureFormatError)
     try:
-        suffix = p.suffix.lower()
-        parts = [p]
-        if suffix == ".cfg" or (suffix == ".dat" and _has_sibling(p, ".cfg")):
-            from .comtrade import _pair  # the reader's own pairing rule
-
-            parts = list(_pair(p))
-        elif suffix == ".npy" and p.with_suffix(".json").is_file():
-            parts = [p, p.with_suffix(".json")]
+        parts = capture_files(p)
         h = hashlib.sha256()
         for f in parts:
             require_regular_file(f, what="capture", error=CaptureFormatError)

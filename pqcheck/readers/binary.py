@@ -20,6 +20,7 @@ import numpy as np
 
 from ..capture import CaptureStream, Channel, Provenance, guess_role
 from ..errors import CaptureFormatError
+from ..files.inputs import require_regular_file
 from .delimited import _TIME_NAMES, _split_unit
 
 __all__ = ["open_npy", "open_parquet"]
@@ -69,6 +70,8 @@ def open_npy(path, *, sample_rate_hz=None, time_column=None, sha256="") -> Captu
     side = Path(path).with_suffix(".json")
     meta = {}
     if side.exists():
+        require_regular_file(side, what="side-car JSON", max_bytes=16 << 20,
+                             error=CaptureFormatError)
         try:
             meta = json.loads(side.read_text())
         except (OSError, ValueError) as exc:

@@ -197,7 +197,7 @@ def read_table(path, dialect: Dialect):
         df = pd.read_csv(path, **kwargs)
     except UnicodeDecodeError as exc:  # a ValueError: must come before the branch below
         raise CaptureFormatError(f"text encoding problem ({exc.reason}); save the file as "
-                                 "UTF-8 or give its encoding (encoding=...)", path=path,
+                                 "UTF-8 or give its encoding (`encoding`)", path=path,
                                  field="encoding") from None
     except (ValueError, pd.errors.ParserError) as exc:
         raise parse_error(path, dialect, exc) from None
@@ -401,8 +401,8 @@ def _drop_counter(table, names, units, scales, d, path, sample_rate_hz, declared
     if kind == "uniform" and sample_rate_hz is None and declared is None:
         raise TimeBaseNotFound(
             f"column {names[0]!r} increases in uniform steps like a time column, but its name "
-            f"is not one pqcheck knows as time; if it is time in seconds, name it "
-            f"(time_column={names[0]!r}), or give the sample rate (sample_rate_hz)",
+            f"is not one pqcheck knows as time; if it is time in seconds, name it as the time "
+            f"column (time_column), or give the sample rate (sample_rate_hz)",
             path=path, field="time_column", dialect=d)
     return table, names, units, scales
 

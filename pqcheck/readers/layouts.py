@@ -227,7 +227,7 @@ def _decode_head(raw: bytes, path: str, encoding: str | None = None):
             raise CaptureFormatError(
                 "the file looks like UTF-16 text without a byte-order mark, which cannot be "
                 "read reliably; save it as UTF-8 (or UTF-16 with a byte-order mark), or give "
-                "its encoding (encoding='utf-16-le')", path=path)
+                "its encoding (`encoding`, e.g. utf-16-le)", path=path)
         raise CaptureFormatError(
             "the file holds binary data (NUL bytes), not delimited text; export the capture "
             "as CSV, or give a .cfg/.dat COMTRADE pair, .npy or .parquet", path=path)

@@ -52,13 +52,16 @@ from .style import (
     RULE,
     SHADE,
     SHADE_DARK,
+    SUBSTITUTED,
     VERDICT_MARK,
     VERDICT_WORD,
     esc,
     fmt,
     fmt_like,
     fmt_pct,
+    printable,
     register_fonts,
+    reset_substitutions,
     shown_path,
     styles,
 )
@@ -225,6 +228,7 @@ class _Builder:
         t = Table(out, colWidths=[w * _WIDTH for w in widths],
                   repeatRows=1 if (header and repeat) else 0, hAlign="LEFT")
         cmds = [
+            ("FONTNAME", (0, 0), (-1, -1), FONT),
             ("VALIGN", (0, 0), (-1, -1), "TOP"),
             ("TOPPADDING", (0, 0), (-1, -1), 2.2),
             ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
@@ -249,6 +253,7 @@ class _Builder:
                 for k, v in pairs]
         t = Table(rows, colWidths=[key_width * _WIDTH, (1 - key_width) * _WIDTH], hAlign="LEFT")
         t.setStyle(TableStyle([
+            ("FONTNAME", (0, 0), (-1, -1), FONT),
             ("VALIGN", (0, 0), (-1, -1), "TOP"),
             ("TOPPADDING", (0, 0), (-1, -1), 2.2),
             ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
@@ -512,7 +517,8 @@ def _cover(b: _Builder) -> None:
             Spacer(1, 2 * mm),
             Paragraph(f'<font color="{fg}">{esc(line)}</font>', st["verdict_text"])]
     box = Table([[cell]], colWidths=[_WIDTH], hAlign="LEFT")
-    box_style = [("LEFTPADDING", (0, 0), (-1, -1), 10), ("RIGHTPADDING", (0, 0), (-1, -1), 10),
+    box_style = [("FONTNAME", (0, 0), (-1, -1), FONT),
+                 ("LEFTPADDING", (0, 0), (-1, -1), 10), ("RIGHTPADDING", (0, 0), (-1, -1), 10),
                  ("TOPPADDING", (0, 0), (-1, -1), 8), ("BOTTOMPADDING", (0, 0), (-1, -1), 10)]
     if verdict == "fail":
         box_style += [("BACKGROUND", (0, 0), (-1, -1), colors.HexColor("#2b2b2b"))]
@@ -522,7 +528,9 @@ def _cover(b: _Builder) -> None:
     else:
         box_style += [("BOX", (0, 0), (-1, -1), 2.0, INK)]
     box.setStyle(TableStyle(box_style))
-    b.add(box, Spacer(1, 7 * mm))
+    b.add(box, Spacer(1, 4 * mm))
+    _deciding_items(b)
+    b.add(Spacer(1, 3 * mm))
 
     eq = plan.equipment if plan is not None else None
     pairs = []
@@ -589,6 +597,56 @@ def _cover(b: _Builder) -> None:
                                       "voltages. Read the cautions in section 7 before "
                                       "repeating or extending them."), "small"))
     b.add(PageBreak())
+
+
+_COVER_ROWS = 6
+
+
+def _deciding_items(b: _Builder) -> None:
+    """The cover's short list of what decides the verdict: the failing checks (largest
+    excess first), every cause of undecided checks, or, for a pass, the closest margins."""
+    job = b.job
+    if not job.assessed:
+        return
+    rows = [["Decides", "Capture", "Item", "Phase", "Measured", "Limit", "Basis", "Margin"]]
+    extra = []
+    fails = sorted(_decided(job, "fail"), key=lambda t: t[2].margin_percent
+                   if t[2].margin_percent is not None else 0.0)
+    # one row per capture and item (its worst phase), the phases that fail named beside it
+    by_item: dict = {}
+    for r, a, c in fails:
+        by_item.setdefault((r.id, a.limits.table_id, c.label), []).append((r, c))
+    for (rid, _tid, label), items in list(by_item.items())[:_COVER_ROWS]:
+        r, c = items[0]
+        phases = ", ".join(sorted({x.phase or x.channel for _, x in items})) or "all"
+        rows.append([_verdict_para(b, "fail"), rid, label, phases,
+                     fmt(c.measured, 4), _limit_text(c), _unit_text(c),
+                     fmt_pct(c.margin_percent)])
+        extra += _verdict_style(0, len(rows) - 1, "fail")
+    groups = undecided_groups(job)
+    for r, lbl, checks, cause in groups[:_COVER_ROWS]:
+        rows.append([_verdict_para(b, "inconclusive"), r.id, _items_text(checks), lbl,
+                     b.m(esc(cause.split(":")[0]) + f" ({len(checks)} checks)", "cell"),
+                     "", "", ""])
+        extra += _verdict_style(0, len(rows) - 1, "inconclusive")
+        extra.append(("SPAN", (4, len(rows) - 1), (7, len(rows) - 1)))
+    if not fails and not groups:
+        passes = sorted((t for t in _decided(job, "pass") if t[2].margin_percent is not None),
+                        key=lambda t: t[2].margin_percent)
+        for r, _a, c in passes[:3]:
+            rows.append(["closest", r.id, c.label,
+                         _channel_label(r.result, c.channel) if c.channel else "all",
+                         fmt(c.measured, 4), _limit_text(c), _unit_text(c),
+                         fmt_pct(c.margin_percent)])
+    if len(rows) == 1:
+        return
+    b.add(b.table(rows, [0.16, 0.16, 0.14, 0.1, 0.11, 0.09, 0.13, 0.11], right=(4, 5, 7),
+                  extra_style=extra, zebra=False))
+    more = len(by_item) - _COVER_ROWS
+    note = ("Worst phase shown; section 1 lists every check that failed or could not be "
+            "decided")
+    note += f" ({more} more failing items)." if more > 0 else "."
+    b.add(b.p(note, "caption"))
 
 
 def _summary(b: _Builder) -> None:
@@ -1365,6 +1423,7 @@ def _traceability(b: _Builder) -> None:
     where = ("Paths are relative to the test plan's folder, or as given on the command line."
              if job.plan is not None else "Paths are as given on the command line.")
     b.add(b.p(where, "caption"))
+    b.substitution_note = len(b.story)  # filled in once every section is built
     import numpy
     import scipy
 
@@ -1423,6 +1482,7 @@ def _signoff(b: _Builder) -> None:
     t = Table(rows, colWidths=[0.22 * _WIDTH, 0.32 * _WIDTH, 0.16 * _WIDTH, 0.30 * _WIDTH],
               rowHeights=[None] + [17 * mm] * 3, hAlign="LEFT")
     t.setStyle(TableStyle([
+        ("FONTNAME", (0, 0), (-1, -1), FONT),
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
         ("BACKGROUND", (0, 0), (-1, 0), SHADE_DARK),
         ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT),
@@ -1461,6 +1521,7 @@ def render_pdf(job, *, results_json: bytes) -> bytes:
         The PDF document.
     """
     register_fonts()
+    reset_substitutions()
     b = _Builder(job, results_json)
     _cover(b)
     _summary(b)
@@ -1472,19 +1533,31 @@ def render_pdf(job, *, results_json: bytes) -> bytes:
     _safety(b)
     _signoff(b)
     _appendix(b)
+    if SUBSTITUTED:
+        shown = ", ".join(f"U+{cp:04X}" for cp in sorted(SUBSTITUTED)[:12])
+        b.story.insert(getattr(b, "substitution_note", len(b.story)), b.p(
+            "Characters shown as [U+XXXX]: text given to pqcheck (names, notes, file "
+            "contents) holds control characters or characters that no font embedded in this "
+            f"report can draw ({shown}{', ...' if len(SUBSTITUTED) > 12 else ''}). They are "
+            "shown by their Unicode code point instead of an empty box; the attached results "
+            "data keep the original text.", "small"))
 
     meta = job.meta
     verdict = job.verdict
     right = ("Overall verdict: " + _verdict_cell(verdict)) if verdict != NOT_ASSESSED \
         else "Analysis only: no verdict"
-    left = meta.title + (f" \u2013 {meta.equipment}" if meta.equipment else "")
+    left = printable(meta.title + (f" \u2013 {meta.equipment}" if meta.equipment else ""))
     buf = io.BytesIO()
     doc = SimpleDocTemplate(
         buf, pagesize=PAGE_SIZE, leftMargin=_MARGIN, rightMargin=_MARGIN,
         topMargin=17 * mm, bottomMargin=18 * mm, title=f"{meta.title} ({meta.report_id})",
         author=meta.operator or "", subject=meta.equipment or "harmonic emission test",
-        creator=f"pqcheck {meta.tool_version}", keywords=meta.report_id)
+        creator=f"pqcheck {meta.tool_version}", keywords=meta.report_id,
+        # the pages' initial font is an embedded one: PDF/A allows no font that is not
+        initialFontName=FONT, initialFontSize=8)
     maker = functools.partial(_ReportCanvas, report_id=meta.report_id, header_left=left,
                               header_right=right, attachment=results_json)
     doc.build(b.story, canvasmaker=maker)
-    return buf.getvalue()
+    from .archival import to_pdfa
+
+    return to_pdfa(buf.getvalue(), created=meta.created_utc)

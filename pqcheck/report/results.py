@@ -14,10 +14,10 @@ from datetime import timezone
 
 from .. import __version__
 from ..export import analysis_to_dict, clean, harmonics_frame, windows_frame
-from ..files.atomic import check_target, write_atomic
+from ..files.atomic import OutputSet
 
 __all__ = ["SCHEMA_VERSION", "CSV_TABLES", "job_to_dict", "job_json", "job_frames",
-           "check_csv_targets", "write_csv_dir"]
+           "job_csv_texts", "write_csv_dir"]
 
 SCHEMA_VERSION = 1
 
@@ -151,46 +151,25 @@ def job_frames(job, doc: dict | None = None) -> dict:
     return frames
 
 
-def check_csv_targets(folder, *, force: bool = False) -> list:
-    """Check that every CSV file of :func:`write_csv_dir` can be written in ``folder`` (which
-    may not exist yet); raise :class:`~pqcheck.errors.ReportError` otherwise.
-
-    Returns
-    -------
-    list of pathlib.Path
-        The files that will be written.
-    """
-    from pathlib import Path
-
-    from ..errors import ReportError
-
-    d = Path(folder)
-    if d.exists() and not d.is_dir():
-        raise ReportError(f"`csv` {d}: exists and is not a folder")
-    if not d.exists():
-        parent = d.parent if str(d.parent) else Path(".")
-        if not parent.is_dir():
-            raise ReportError(f"`csv` {d}: folder {parent} does not exist; create it first")
-        return [d / f"{name}.csv" for name in CSV_TABLES]
-    return [check_target(d / f"{name}.csv", force=force, option="`csv`")
-            for name in CSV_TABLES]
+def job_csv_texts(job, doc: dict | None = None) -> list:
+    """The CSV tables of a report job as text, in the order of :data:`CSV_TABLES` (the files
+    ``<name>.csv`` of the report's CSV folder)."""
+    frames = job_frames(job, doc)
+    return [frames[name].to_csv(index=False, lineterminator="\n") for name in CSV_TABLES]
 
 
 def write_csv_dir(frames: dict, folder, *, force: bool = False) -> list:
-    """Write each table as ``<name>.csv`` in ``folder`` (created if missing), atomically per
-    file; refuses to replace existing files unless ``force``.
+    """Write each table as ``<name>.csv`` in ``folder`` (created if missing), all of them or
+    none (:class:`pqcheck.files.atomic.OutputSet`); refuses to replace existing files unless
+    ``force``.
 
     Returns
     -------
     list of pathlib.Path
         Files written.
     """
-    from pathlib import Path
-
-    paths = check_csv_targets(folder, force=force)
-    Path(folder).mkdir(exist_ok=True)
-    out = []
+    outputs = OutputSet(force=force)
+    paths = outputs.add_folder(folder, [f"{n}.csv" for n in CSV_TABLES], "`csv`")
     for name, path in zip(CSV_TABLES, paths):
-        text = frames[name].to_csv(index=False, lineterminator="\n")
-        out.append(write_atomic(path, text, force=force, option="`csv`"))
-    return out
+        outputs.put(path, frames[name].to_csv(index=False, lineterminator="\n"))
+    return outputs.commit()

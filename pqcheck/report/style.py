@@ -22,7 +22,7 @@ from reportlab.lib.styles import ParagraphStyle
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
 
-__all__ = ["esc", "shown_path", "is_bundled_table", "fmt", "fmt_like", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
+__all__ = ["esc", "printable", "can_draw", "reset_substitutions", "SUBSTITUTED", "shown_path", "is_bundled_table", "fmt", "fmt_like", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
            "INK", "ACCENT", "MUTED", "RULE", "SHADE", "FONT", "FONT_BOLD", "FONT_MONO"]
 
 FONT = "PQSans"
@@ -62,12 +62,141 @@ def register_fonts() -> None:
     _registered = True
 
 
-def esc(text) -> str:
-    """Escape user or file text for a reportlab Paragraph: ``&``, ``<``, ``>`` shown literally,
-    line breaks kept. None becomes an empty string."""
+_FALLBACK_FONTS: list = []  # (reportlab name, set of code points), found on first need
+_fallback_searched = False
+SUBSTITUTED: set = set()
+"""Code points of user text that no embedded font could draw (shown as ``[U+XXXX]``) and
+control characters made visible, since the last :func:`reset_substitutions`."""
+
+
+def reset_substitutions() -> None:
+    """Forget the substitutions of the previous document (call before rendering one)."""
+    SUBSTITUTED.clear()
+
+
+_MAIN_CMAP: dict = {}
+
+
+def _main_cmap() -> dict:
+    """Code points DejaVu Sans draws, restricted to the Basic Multilingual Plane: reportlab
+    writes 16-bit text mappings, so a character beyond U+FFFF (emoji) would be drawn but
+    copied out of the PDF as another character."""
+    if not _MAIN_CMAP:
+        register_fonts()
+        _MAIN_CMAP.update({cp: g for cp, g in pdfmetrics.getFont(FONT).face.charToGlyph.items()
+                           if cp <= 0xFFFF})
+    return _MAIN_CMAP
+
+
+def _find_fallbacks() -> None:
+    """Register installed TrueType fonts (glyph outlines, the only kind reportlab embeds) that
+    can draw what DejaVu Sans cannot: CJK, for example, where the system has such a font."""
+    global _fallback_searched
+    if _fallback_searched:
+        return
+    _fallback_searched = True
+    try:
+        from fontTools.ttLib import TTFont as _FtFont
+        from matplotlib import font_manager
+    except ImportError:  # pragma: no cover - matplotlib depends on fontTools
+        return
+    for k, path in enumerate(sorted(font_manager.findSystemFonts(fontext="ttf"))):
+        if not path.lower().endswith(".ttf") or "dejavu" in path.lower():
+            continue
+        try:
+            ft = _FtFont(path, lazy=True)
+            if "glyf" not in ft:
+                continue
+            cps = {cp for cp in (ft.getBestCmap() or {}) if cp <= 0xFFFF}
+            name = f"PQFallback{k}"
+            pdfmetrics.registerFont(TTFont(name, path))
+        except Exception:  # noqa: BLE001 - a broken system font is skipped, never fatal
+            continue
+        _FALLBACK_FONTS.append((name, cps))
+
+
+def _fallback_for(cp: int):
+    _find_fallbacks()
+    for name, cps in _FALLBACK_FONTS:
+        if cp in cps:
+            return name
+    return None
+
+
+def can_draw(ch: str) -> bool:
+    """True when an embedded font of the report can draw ``ch``."""
+    cp = ord(ch)
+    return cp in _main_cmap() or _fallback_for(cp) is not None
+
+
+def _is_control(ch: str) -> bool:
+    import unicodedata
+
+    return unicodedata.category(ch) in ("Cc", "Cf", "Cs", "Co", "Cn") and ch not in "\n\t"
+
+
+def printable(text) -> str:
+    """Plain text with every character the report's fonts can show: control characters and
+    characters no embedded font has become a visible ``[U+XXXX]`` (never an empty box)."""
     if text is None:
         return ""
-    return _xml_escape(str(text)).replace("\n", "<br/>")
+    out = []
+    cmap = _main_cmap()
+    for ch in str(text):
+        if ch == "\t":
+            out.append(" ")
+        elif ch == "\n" or (ord(ch) in cmap and not _is_control(ch)):
+            out.append(ch)
+        else:
+            SUBSTITUTED.add(ord(ch))
+            out.append(f"[U+{ord(ch):04X}]")
+    return "".join(out)
+
+
+def esc(text) -> str:
+    """Escape user or file text for a reportlab Paragraph: ``&``, ``<``, ``>`` shown literally,
+    line breaks kept. None becomes an empty string.
+
+    Characters DejaVu Sans lacks are drawn with an installed TrueType font that has them
+    (embedded like the others); a control character, or a character no font here can draw,
+    is shown as ``[U+XXXX]`` and recorded in :data:`SUBSTITUTED` so the report can say so.
+    """
+    if text is None:
+        return ""
+    cmap = _main_cmap()
+    out = []
+    run_font, run = None, []
+
+    def flush():
+        if run:
+            piece = _xml_escape("".join(run))
+            out.append(f'<font name="{run_font}">{piece}</font>' if run_font else piece)
+            run.clear()
+
+    for ch in str(text):
+        cp = ord(ch)
+        if ch == "\n":
+            flush()
+            out.append("<br/>")
+            continue
+        if ch == "\t":
+            ch, cp = " ", 32
+        if _is_control(ch):
+            font, ch = None, f"[U+{cp:04X}]"
+            SUBSTITUTED.add(cp)
+        elif cp in cmap:
+            font = None
+        else:
+            font = _fallback_for(cp)
+            if font is None:
+                SUBSTITUTED.add(cp)
+                ch = f"[U+{cp:04X}]"
+        if font != run_font:
+            flush()
+            run_font = font
+        run.append(ch)
+    flush()
+    return "".join(out)
 
 
 def is_bundled_table(source) -> bool:

@@ -232,6 +232,27 @@ def find_captures(inputs, *, exclude=()) -> tuple:
     return tuple(found), tuple(ignored)
 
 
+def _refuse_captures_as_results(inputs, out, csv) -> None:
+    """A results file that is one of the batch's own captures (and not a results table) is
+    refused, whatever ``force`` says: it would replace a measurement."""
+    from ..files.atomic import same_file
+
+    named = [(p, opt) for p, opt in ((out, "out"), (csv, "csv"))
+             if p is not None and os.path.exists(p)]
+    if not named:
+        return
+    try:
+        found, _ = find_captures(inputs)
+    except InputError:
+        return
+    for p, opt in named:
+        if any(same_file(p, c) for c in found) and not _is_results_table(p):
+            raise InputError(
+                "is one of the captures of this batch, not a results table; a capture is never "
+                "replaced: give a results file outside the inputs or with another name",
+                path=str(p), field=opt)
+
+
 def _walk(root: Path):
     for dirpath, dirnames, filenames in os.walk(root):
         dirnames[:] = [d for d in dirnames if not d.startswith(".")]
@@ -402,10 +423,10 @@ class ProcessExecutor:
             # no public way to stop running workers before Python 3.14 (terminate_workers)
             running = getattr(self.pool, "_processes", None)
             procs = list(running.values()) if isinstance(running, dict) else []
+            results = getattr(self.pool, "_result_queue", None)  # shutdown() drops it
             self.pool.shutdown(wait=exc_type is None, cancel_futures=True)
             if exc_type is not None:  # interrupted: do not wait for captures in progress
-                for proc in procs:
-                    proc.terminate()
+                _stop_workers(procs, results)
             self.pool = None
         return False
 
@@ -472,6 +493,30 @@ class ProcessExecutor:
         finally:
             if pool is not None:
                 pool.shutdown(wait=False, cancel_futures=True)
+
+
+def _stop_workers(procs, result_queue) -> None:
+    """Stop the workers of an interrupted pool so the program can exit.
+
+    A worker stopped while it sends its result leaves half a message in the pool's result
+    pipe; the pool's manager thread then waits for the rest for ever, and Python waits for
+    that thread at exit (a batch killed with SIGTERM would hang). After the workers are gone
+    the pipe's last write end (held by this process) is closed: the manager thread reads the
+    end of the pipe, takes the pool as broken and ends.
+    """
+    for proc in procs:
+        with contextlib.suppress(Exception):
+            proc.terminate()
+    for proc in procs:
+        with contextlib.suppress(Exception):
+            proc.join(timeout=5.0)
+            if proc.is_alive():
+                proc.kill()
+                proc.join(timeout=5.0)
+    writer = getattr(result_queue, "_writer", None)
+    if writer is not None:
+        with contextlib.suppress(Exception):
+            writer.close()
 
 
 def _worker_init():
@@ -615,37 +660,64 @@ def read_results(path, *, fmt: str | None = None) -> pa.Table:
         raise InputError(f"columns of unexpected types ({exc})", path=str(p)) from None
 
 
-def write_results(table: pa.Table, *, parquet=None, csv=None) -> None:
-    """Write the results table to Parquet and/or CSV, each atomically, replacing old files.
+def write_results(table: pa.Table, *, parquet=None, csv=None, protect=()) -> None:
+    """Write the results table to Parquet and/or CSV, both or neither (one
+    :class:`~pqcheck.files.atomic.OutputSet`), replacing old results files.
+
+    Parameters
+    ----------
+    table : pyarrow.Table
+    parquet, csv : str or os.PathLike or None
+        Results files.
+    protect : iterable of paths
+        Inputs (captures, limit tables) that neither file may be.
 
     Raises
     ------
     ReportError
-        A file cannot be written (its folder is missing, the disk is full, ...).
+        A file cannot be written (its folder is missing, the disk is full, it is an input or
+        not a regular file, ...).
     """
     import pyarrow.csv as pacsv
     import pyarrow.parquet as pq
 
-    from ..files.atomic import atomic_open
+    from ..files.atomic import OutputSet
 
+    outputs = OutputSet(force=True, protect=protect)
     if parquet is not None:
-        with atomic_open(parquet, "wb", force=True, option="`out`") as fh:
-            pq.write_table(table, fh)
+        outputs.put(outputs.add(parquet, "`out`"), lambda fh: pq.write_table(table, fh))
     if csv is not None:
-        with atomic_open(csv, "wb", force=True, option="`csv`") as fh:
-            pacsv.write_csv(table, fh)
+        outputs.put(outputs.add(csv, "`csv`"), lambda fh: pacsv.write_csv(table, fh))
+    outputs.commit()
+
+
+def _is_results_table(path) -> bool:
+    """Whether ``path`` holds a results table of :func:`write_results` (its columns)."""
+    try:
+        if str(path).lower().endswith(".csv"):
+            with open(path, encoding="utf-8", errors="replace") as fh:
+                head = fh.readline(1 << 16)
+            cols = [c.strip().strip('"') for c in head.strip().split(",")]
+        else:
+            import pyarrow.parquet as pq
+
+            cols = pq.read_schema(path).names
+    except (OSError, pa.ArrowException, ValueError):
+        return False
+    return set(SCHEMA.names) <= set(cols)
 
 
 class _Results:
     """Old rows from the results file, new rows of this run, periodic atomic rewrites."""
 
-    def __init__(self, parquet, csv, key: str, force: bool):
+    def __init__(self, parquet, csv, key: str, force: bool, protect=()):
         from ..files.atomic import check_target
 
         self.parquet, self.csv = parquet, csv
+        self.protect = tuple(protect)
         for path, opt in ((parquet, "`out`"), (csv, "`csv`")):
             if path is not None:
-                check_target(path, force=True, option=opt)
+                check_target(path, force=True, option=opt, protect=self.protect)
         self.old = _empty_table()
         source = next(((p, f) for p, f in ((parquet, "parquet"), (csv, "csv"))
                        if p is not None and Path(p).exists()), None)
@@ -658,21 +730,20 @@ class _Results:
                     "another output file, or `force` to start it afresh", path=str(source[0]))
         self.new: list = []  # one Arrow table per capture (columnar: a fleet's rows fit)
         self.redone_paths: set = set()
-        self.redone_shas: set = set()
         self.last_write = time.monotonic()
 
     def done(self, retry_errors: bool) -> set:
-        """SHA-256 of the captures the file already holds (without error rows if asked)."""
+        """``(capture path, SHA-256)`` of the captures the file already holds (without error
+        rows if asked): a capture is done when both its path and its content match, so equal
+        bytes under another name still get their own rows."""
+        caps = self.old.column("capture").to_pylist()
         shas = self.old.column("capture_sha256").to_pylist()
         verdicts = self.old.column("capture_verdict").to_pylist()
-        if retry_errors:
-            return {s for s, v in zip(shas, verdicts) if s and v != "error"}
-        return {s for s in shas if s}
+        return {(c, s) for c, s, v in zip(caps, shas, verdicts)
+                if s and not (retry_errors and v == "error")}
 
     def add(self, capture: str, sha, rows: list):
         self.redone_paths.add(capture)
-        if sha:
-            self.redone_shas.add(sha)
         self.new.append(pa.Table.from_pylist(rows, schema=SCHEMA))
 
     def table(self) -> pa.Table:
@@ -680,12 +751,10 @@ class _Results:
         import pyarrow.compute as pc
 
         old = self.old
-        if old.num_rows and (self.redone_paths or self.redone_shas):
-            redone = pc.or_(
-                pc.is_in(old.column("capture"), pa.array(sorted(self.redone_paths), pa.string())),
-                pc.fill_null(pc.is_in(old.column("capture_sha256"),
-                                      pa.array(sorted(self.redone_shas), pa.string())), False))
-            old = old.filter(pc.invert(redone))
+        if old.num_rows and self.redone_paths:
+            redone = pc.is_in(old.column("capture"),
+                              pa.array(sorted(self.redone_paths), pa.string()))
+            old = old.filter(pc.invert(pc.fill_null(redone, False)))
         t = pa.concat_tables([old, *self.new])
         return t.take(pc.sort_indices(t, sort_keys=[("capture", "ascending")]))
 
@@ -694,7 +763,7 @@ class _Results:
             return
         if not final and time.monotonic() - self.last_write < CHECKPOINT_S:
             return
-        write_results(self.table(), parquet=self.parquet, csv=self.csv)
+        write_results(self.table(), parquet=self.parquet, csv=self.csv, protect=self.protect)
         self.last_write = time.monotonic()
 
 
@@ -786,14 +855,16 @@ def run_batch(inputs, spec, *, out=None, csv=None, executor=None, force=False,
     spec = batch_spec(spec)
     key = settings_key(spec)  # resolves the tables: bad limits stop the batch before any work
     captures, ignored = find_captures(inputs, exclude=(out, csv))
-    results = _Results(out, csv, key, force)
+    _refuse_captures_as_results(inputs, out, csv)
+    tables = [sel.table for sel in spec.limits if os.path.isfile(sel.table)]
+    results = _Results(out, csv, key, force, protect=(*captures, *tables))
     done = results.done(retry_errors)
     executor = executor or InlineExecutor()
     spec_dict = spec.to_dict()
     cache_dir = None if cache_dir is None else os.path.abspath(cache_dir)
     shas: list = [None] * len(captures)
     opened = [os.path.abspath(c) for c in captures]  # workers may run in another folder
-    todo, skipped_shas, unreadable = [], set(), 0
+    todo, skipped_paths, unreadable = [], set(), 0
     try:
         with executor as ex:
             with _bar(len(captures), "hashing", progress) as bar:
@@ -806,8 +877,8 @@ def run_batch(inputs, spec, *, out=None, csv=None, executor=None, force=False,
                         message = _relabel(h["error"], opened[i], captures[i])
                         results.add(captures[i], None,
                                     [error_row(captures[i], None, key, message)])
-                    elif h["sha256"] in done:
-                        skipped_shas.add(h["sha256"])
+                    elif (captures[i], h["sha256"]) in done:
+                        skipped_paths.add(captures[i])
                     else:
                         todo.append(i)
             tasks = [{"capture": captures[i], "path": opened[i],
@@ -831,10 +902,8 @@ def run_batch(inputs, spec, *, out=None, csv=None, executor=None, force=False,
     full = results.table()
     import pyarrow.compute as pc
 
-    mine = pc.or_(
-        pc.is_in(full.column("capture"), pa.array(sorted(results.redone_paths), pa.string())),
-        pc.fill_null(pc.is_in(full.column("capture_sha256"),
-                              pa.array(sorted(skipped_shas), pa.string())), False))
+    mine = pc.fill_null(pc.is_in(full.column("capture"), pa.array(
+        sorted(results.redone_paths | skipped_paths), pa.string())), False)
     written = tuple(str(p) for p in (out, csv) if p is not None)
     return BatchRun(table=full.filter(mine), captures=captures,
                     checked=len(tasks) + unreadable,

@@ -147,6 +147,48 @@ def analyze_file(
         :class:`~pqcheck.capture.CaptureStream` and the
         :class:`~pqcheck.analysis.AnalysisResult`.
     """
+    before = _file_states(path)
+    capture, result, save = _open_and_analyze(path, sample_rate_hz, current, voltage,
+                                              time_column, cache, progress, encoding,
+                                              analysis_kwargs)
+    if _file_states(path) != before:
+        from ..errors import CaptureFormatError
+
+        raise CaptureFormatError(
+            "the file changed while it was being read (its size or times differ before and "
+            "after); the recorded SHA-256 would not cover what was analysed: wait until the "
+            "recording is complete (or copy it), then run again", path=str(path))
+    if save is not None:  # only what was read from an unchanged file is cached
+        save()
+    return capture, result
+
+
+def _file_states(path) -> tuple:
+    """Size, times and identity of each file of the capture (the .cfg and .dat of a COMTRADE
+    record, a .npy and its side-car), to tell whether it changed while it was read."""
+    import os
+
+    from ..readers import capture_files
+
+    files = []
+    for one in (path if isinstance(path, (list, tuple)) else [path]):  # several files
+        try:
+            files += capture_files(one)
+        except Exception:  # noqa: BLE001 - a missing part is reported by the reader
+            files.append(one)
+    out = []
+    for f in files:
+        try:
+            st = os.stat(f)
+        except OSError:
+            out.append(None)
+            continue
+        out.append((st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
+    return tuple(out)
+
+
+def _open_and_analyze(path, sample_rate_hz, current, voltage, time_column, cache, progress,
+                      encoding, analysis_kwargs):
     capture = open_capture(path, sample_rate_hz=sample_rate_hz, current=current,
                            voltage=voltage, time_column=time_column, cache=cache,
                            encoding=encoding)
@@ -162,11 +204,13 @@ def analyze_file(
         if sha:
             hit = cache.load_result(sha, key)
             if hit is not None:
-                return capture, dataclasses.replace(hit, source=str(path))
+                return capture, dataclasses.replace(hit, source=str(path)), None
     result = analyze(capture, progress=progress, **analysis_kwargs)
+    save = None
     if cache is not None and result.sha256:
-        cache.save_result(result.sha256, key, result)
-    return capture, result
+        def save():
+            cache.save_result(result.sha256, key, result)
+    return capture, result, save
 
 
 def analysis_order(spec: RunSpec, resolved) -> int:

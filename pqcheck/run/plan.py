@@ -156,6 +156,9 @@ class Instrument:
         -3 dB bandwidth. [Hz]
     sample_rate_hz : float or None
         Sample rate (digitisers). [Hz]
+    dc_coupled, zeroed : bool or None
+        The element passes dc (shunt, Hall-effect clamp) and its offset was zeroed before the
+        capture (dc limits need both).
     """
 
     role: str = ""
@@ -170,6 +173,8 @@ class Instrument:
     measurement_category: str = ""
     calibration_due: str = ""
     notes: str = ""
+    dc_coupled: bool | None = None
+    zeroed: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -185,6 +190,17 @@ class Conditions:
     ambient_c : float or None
         Ambient temperature. [degC]
     instruments : tuple of Instrument
+    measured_at : str
+        ``"pcc"`` or ``"equipment-terminals"`` ("" not stated).
+    behaviour : str
+        Type of equipment behaviour for the observation period (IEC 61000-3-2/-3-12).
+    cycle_s : float or None
+        Operating cycle of cyclic equipment. [s]
+    representative_period : bool
+        The captures are declared representative periods shorter than the standard's
+        observation (where the table allows it).
+    decision_rule : str
+        ``"guarded"`` (default) or ``"simple"`` (pqcheck.uncertainty).
     """
 
     date: str = ""
@@ -193,6 +209,11 @@ class Conditions:
     supply: str = ""
     instruments: tuple = ()
     notes: str = ""
+    measured_at: str = ""
+    behaviour: str = ""
+    cycle_s: float | None = None
+    representative_period: bool = False
+    decision_rule: str = ""
 
 
 @dataclass(frozen=True)
@@ -346,6 +367,53 @@ class Plan:
         base.update(spec.selectors)
         return {k: v for k, v in base.items() if v is not None}
 
+    def placeholders(self) -> list:
+        """Template text left in the plan and required fields left empty (``pqcheck plan
+        new`` writes them), as ``"field: problem"`` strings; such a plan cannot pass."""
+        out = []
+        s, e, c = self.site, self.equipment, self.conditions
+        for field_, value, template in (
+                ("site.name", s.name, "Site name"),
+                ("site.pcc", s.pcc, "Where the point of common coupling is"),
+                ("equipment.name", e.name, "Equipment under test"),
+                ("conditions.date", c.date, "YYYY-MM-DD"),
+                ("conditions.supply", c.supply, "What fed the equipment during the test")):
+            if value and value.strip().startswith(template):
+                out.append(f"{field_}: still the template text {value!r}")
+        for field_, value in (("equipment.name", e.name), ("conditions.date", c.date)):
+            if not (value or "").strip():
+                out.append(f"{field_}: empty")
+        for k, ins in enumerate(c.instruments):
+            where = f"conditions.instruments[{k + 1}]"
+            if not ins.model.strip():
+                out.append(f"{where}.model: empty")
+            if not ins.accuracy.strip():
+                out.append(f"{where}.accuracy: empty")
+        if not c.instruments:
+            out.append("conditions.instruments: no instrument declared")
+        return out
+
+    def declared(self):
+        """The :class:`pqcheck.gates.Declared` of this plan: location, behaviour, cycle,
+        representative period, rated power, the instrument chain and the decision rule."""
+        from ..gates import Declared
+        from ..uncertainty import Chain, parse_accuracy
+
+        c, e = self.conditions, self.equipment
+        chains = []
+        for ins in c.instruments:
+            acc = parse_accuracy(ins.accuracy)
+            chains.append(Chain(
+                channels=tuple(ins.channels), accuracy_percent=acc[0] if acc else None,
+                floor=acc[1] if acc else None, bandwidth_hz=ins.bandwidth_hz,
+                sample_rate_hz=ins.sample_rate_hz, dc_coupled=ins.dc_coupled,
+                zeroed=ins.zeroed, name=" ".join(x for x in (ins.role, ins.model) if x)))
+        return Declared(location=c.measured_at or None, behaviour=c.behaviour or None,
+                        cycle_s=c.cycle_s, representative_period=c.representative_period,
+                        rated_power_w=e.rated_power_w, chains=tuple(chains),
+                        decision_rule=c.decision_rule or "guarded",
+                        plan_problems=tuple(self.placeholders()))
+
     def limit_selection(self, spec: LimitSpec):
         """The :class:`~pqcheck.record.LimitSelection` of one ``[[limits]]`` entry (its own
         values, else the site's and the equipment's: :meth:`selection`)."""
@@ -382,6 +450,7 @@ class Plan:
                                       max_order=self.analysis.max_order, il_a=self.site.il_a,
                                       wiring=self.analysis.wiring),
             limits=tuple(self.limit_selection(s) for s in self.limits_for(capture)),
+            declared=self.declared(),
             report=report if report is not None else ReportDetails(),
         )
 
@@ -413,9 +482,12 @@ _EQUIPMENT = {"name": _STR, "manufacturer": _STR, "model": _STR, "serial": _STR,
               "equipment_class": _STR, "equipment_kind": _STR, "generation": _BOOL}
 _INSTRUMENT = {"role": _STR, "model": _STR, "serial": _STR, "channels": _STRS, "ratio": _STR,
                "bandwidth_hz": _POS, "sample_rate_hz": _POS, "range": _STR, "accuracy": _STR,
-               "measurement_category": _STR, "calibration_due": _STR, "notes": _STR}
+               "measurement_category": _STR, "calibration_due": _STR, "notes": _STR,
+               "dc_coupled": _BOOL, "zeroed": _BOOL}
 _CONDITIONS = {"date": _STR, "location": _STR, "ambient_c": _NUM, "supply": _STR,
-               "instruments": "array of tables", "notes": _STR}
+               "instruments": "array of tables", "notes": _STR, "measured_at": _STR,
+               "behaviour": _STR, "cycle_s": _POS, "representative_period": _BOOL,
+               "decision_rule": _STR}
 _ANALYSIS = {"nominal_frequency_hz": _POS, "max_order": "whole number", "wiring": _STR}
 _SELECTOR_KEYS = {"voltage_level_v": _POS, "isc_a": _POS, "il_a": _POS, "rsce": _POS,
                   "ssc_va": _POS, "rated_apparent_power_va": _POS, "rated_current_a": _POS,
@@ -502,6 +574,11 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
     for k, item in enumerate(r.array(cond_doc, ("conditions", "instruments"))):
         instruments.append(Instrument(**r.table(item, ("conditions", "instruments", k),
                                                 _INSTRUMENT)))
+    for key, allowed in (("measured_at", ("pcc", "equipment-terminals")),
+                         ("decision_rule", ("guarded", "simple"))):
+        if cond.get(key) and cond[key] not in allowed:
+            raise r.error(("conditions", key), f"must be one of {', '.join(allowed)}, got "
+                                               f"{cond[key]!r}")
     conditions = Conditions(instruments=tuple(instruments), **cond)
 
     ana = r.table(doc.get("analysis", {}), ("analysis",), _ANALYSIS)
@@ -642,6 +719,11 @@ location = ""
 # ambient_c = 21
 supply = "What fed the equipment during the test"
 notes = ""
+# measured_at = "pcc"            # or "equipment-terminals": where the limits must apply
+# behaviour = "quasi-stationary" # IEC 61000-3-2/-3-12: short-cyclic, random, long-cyclic
+# cycle_s = 60                   # operating cycle of cyclic equipment
+# representative_period = false  # true: the captures are declared representative periods
+# decision_rule = "guarded"      # or "simple" (a pass within the uncertainty is marked)
 
 # The instrument chain: one entry per digitiser, probe or transducer, as its data sheet and
 # calibration certificate state it. The report's measurement-uncertainty statement lists them.
@@ -664,7 +746,9 @@ serial = ""
 channels = ["ia", "ib", "ic"]
 ratio = ""                       # e.g. "10 mV/A"
 # bandwidth_hz = 100000
-accuracy = ""
+accuracy = ""                    # e.g. "1 % of reading + 0.05 A" (feeds the uncertainty)
+# dc_coupled = true              # shunt or Hall-effect clamp (dc limits need it) ...
+# zeroed = true                  # ... and the offset zeroed before the capture
 measurement_category = ""
 calibration_due = ""
 
