@@ -15,7 +15,10 @@ from . import __version__
 
 __all__ = ["analysis_to_dict", "harmonics_frame", "windows_frame", "clean", "dumps"]
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+"""Version of the results documents (:mod:`pqcheck.results`; 1: before the run specification
+was recorded)."""
+
 
 
 def clean(obj, *, finite_only: bool = True):

@@ -482,10 +482,33 @@ class SurveyAssessment:
     values: tuple
     availability: tuple
     flagged: tuple
+    sources: tuple = ()  # per check: (table, item, channel, rule), to get its series again
+    il_a: float | None = None
 
     @property
     def verdict(self) -> str:
         return self.assessment.verdict
+
+    def series_of(self, index: int):
+        """The interval values check ``index`` was computed from, by the same code.
+
+        Returns
+        -------
+        (level, start_s, values, usable) or None
+            ``level`` (IntervalSeries), interval starts (POSIX) [s], values in the check's
+            unit, and which values entered the statistic (complete, not flagged).
+        """
+        if not 0 <= index < len(self.sources) or self.sources[index] is None:
+            return None
+        table, it, ch, rule = self.sources[index]
+        series = self.survey.level(rule.of)
+        if series is None:
+            return None
+        x, _ = _SurveyTable(self.survey, table, self.il_a, MIN_COVERAGE, [], [], [],
+                            [])._series(it, ch, series)
+        if x is None:
+            return None
+        return series, series.start_s, np.asarray(x, np.float64), series.usable()
 
     def to_dict(self) -> dict:
         """The survey section of the results (JSON)."""
@@ -587,14 +610,16 @@ def assess_survey(survey: Survey, limits, *, il_a: float | None = None,
     if not 0 < min_coverage <= 1:
         raise InputError(f"must be in (0, 1], got {min_coverage!r}", field="min_coverage")
     survey = with_derived_levels(survey)
-    checks, notes, rules, values = [], [], [], []
+    checks, notes, rules, values, sources = [], [], [], [], []
     for t in tables:
         if not is_survey_evaluation(t):
             raise InputError(
                 f"table {t.table_id} has no statistic over periods of 3 s / 10 min values "
                 "(its evaluation needs waveform windows); a survey or interval log can be "
                 "checked only against such a table (IEEE 519)", field="limits")
-        _SurveyTable(survey, t, il_a, min_coverage, checks, notes, rules, values).run()
+        st = _SurveyTable(survey, t, il_a, min_coverage, checks, notes, rules, values)
+        st.sources = sources
+        st.run()
     counts = {v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS}
     a = Assessment(verdict=overall_verdict(checks), checks=tuple(checks), tables=tables,
                    notes=tuple(dict.fromkeys(notes)), counts=counts)
@@ -605,7 +630,7 @@ def assess_survey(survey: Survey, limits, *, il_a: float | None = None,
     flagged = [(s.level, float(t)) for s in survey.levels for t in s.start_s[s.flagged]]
     return SurveyAssessment(assessment=a, survey=survey, rules=tuple(rules),
                             values=tuple(values), availability=tuple(avail),
-                            flagged=tuple(flagged))
+                            flagged=tuple(flagged), sources=tuple(sources), il_a=il_a)
 
 
 class _SurveyTable:
@@ -618,6 +643,7 @@ class _SurveyTable:
         self.notes = notes
         self.rules = rules
         self.values = values
+        self.sources = []
 
     def run(self):
         from .assess import _stat_text  # the one wording of statistics
@@ -746,6 +772,7 @@ class _SurveyTable:
                     basis=it.basis, tag=it.tag)
         idx = len(self.checks)
         self.rules[-1]["check_ids"].append(idx)
+        self.sources.append((self.t, it, ch, rule))
         if reason:
             self.checks.append(Check(measured=None, margin_percent=None, verdict="inconclusive",
                                      note="; ".join(n for n in (reason, note_mult, it.note)

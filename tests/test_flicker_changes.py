@@ -170,3 +170,17 @@ def test_impedance_path_keeps_every_sample(with_supply):
     assert c.meter.complete_intervals and len(c.meter.pst) == 1
     # 4 A steps every 30 s: d = 0.40 * 4 / 230 (IEC 61000-3-3 clause 4.1)
     assert c.change.dc_percent == pytest.approx(100 * 0.4 * 4 / UN, rel=0.005)
+
+
+def test_gap_in_the_voltage_is_a_finding_not_a_dip():
+    # 40 missing samples: their half periods are no voltage (no 100 % dip in d(t)) and an
+    # error finding keeps a pass from being claimed
+    fs = 3200.0
+    t = np.arange(int(12 * fs)) / fs
+    u = UN * np.sqrt(2) * np.sin(2 * np.pi * 50 * t)
+    u[int(5 * fs):int(5 * fs) + 40] = np.nan
+    c = analyze_flicker(Capture.from_arrays(fs, voltages={"u": u}), nominal_hz=50).channel("u")
+    assert c.change.dmax_percent < 3.3
+    codes = {f.code: f.severity for f in c.findings}
+    assert codes.get("flicker-gap-halfperiods") == "error"
+    assert codes.get("flicker-gap") == "error"

@@ -412,3 +412,36 @@ def test_inspect_shows_each_column_mapping(tmp_path):
         in r.output
     assert "not used (a max value" in r.output
     assert "timestamps mark the interval end" in r.output
+
+
+def test_report_of_a_log_has_the_survey_section_and_the_json(tmp_path):
+    # the 8-day log of the worst-period test: the PDF carries the results JSON, which names
+    # the worst period as `check --format json` does
+    n = 8 * 144
+    stamps, *_ = _rows(n)
+    i5 = np.full(n, 5.0)
+    i5[6 * 144:] = 12.0
+    i5[7 * 144:] = 13.0
+    p = tmp_path / "week.csv"
+    with open(p, "w") as f:
+        f.write("timestamp,I1_a [A],I5_a [A],THD_I_a [%],flag\n")
+        for k in range(n):
+            f.write(f"{stamps[k].isoformat()}+00:00,100,{i5[k]},{i5[k]},{int(k == 5)}\n")
+    pdf, js = tmp_path / "r.pdf", tmp_path / "r.json"
+    r = CliRunner().invoke(main, ["report", str(p), "-o", str(pdf), "--json", str(js),
+                                  "--limits", "ieee519-2022", "--voltage-level", "480",
+                                  "--isc", "7000", "--il", "100"])
+    assert r.exit_code == 1, r.output
+    data = pdf.read_bytes()
+    assert data.startswith(b"%PDF") and b"results.json" in data
+    d = json.loads(js.read_text())
+    assert d["verdict"] == "fail" and d["captures"][0]["kind"] == "interval log"
+    assert (d["worst_period"]["start"], d["worst_period"]["end"]) == (
+        "2026-03-03T00:00:00+00:00", "2026-03-10T00:00:00+00:00")
+    assert d["survey"]["flagged_intervals"] == [{"level": "10min",
+                                                 "start": "2026-03-02T00:50:00+00:00"}]
+    assert len(d["survey"]["availability"]) == 8
+    r = CliRunner().invoke(main, ["report", str(p), "-o", str(pdf), "--limits",
+                                  "ieee519-2022", "--voltage-level", "480", "--isc", "7000",
+                                  "--il", "100"])
+    assert r.exit_code == 2 and "file exists" in r.stderr  # nothing replaced without --force

@@ -185,7 +185,7 @@ def test_missing_capture_is_refused_then_found_with_search(copy, tmp_path, monke
 
 @pytest.mark.parametrize("content, pattern", [
     (b"", r"not a PDF and not a results JSON"),
-    (b'{"tool": {"name": "other"}}', r"not the results of a pqcheck report"),
+    (b'{"tool": {"name": "other"}}', r"not pqcheck results \(no tool block naming pqcheck\)"),
     (b"%PDF-1.4\n garbage", r"the PDF cannot be read"),
     (b"\xff\xfe\x00junk", r"not a PDF and not a results JSON"),
 ])

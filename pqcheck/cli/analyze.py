@@ -286,11 +286,13 @@ def analyze_cmd(capture, fmt, **opts):
     Prints harmonics, THD/TDD, power quantities and data-quality findings. Exit code 0,
     or 2 for bad input.
     """
-    from ..export import analysis_to_dict, dumps, harmonics_frame
+    from ..export import harmonics_frame
+    from ..results import analysis_document, dumps
 
-    result = run_checked(spec_from_options(capture, opts), opts).result
+    run = run_checked(spec_from_options(capture, opts), opts)
+    result = run.result
     if fmt == "json":
-        click.echo(dumps(analysis_to_dict(result)))
+        click.echo(dumps(analysis_document(run)))
     elif fmt == "csv":
         click.echo(harmonics_frame(result).to_csv(index=False), nl=False)
     else:
@@ -438,7 +440,10 @@ def inspect_lines(cap) -> list:
     cur = [c.name for c in cap.by_quantity("current")]
     vol = [c.name for c in cap.by_quantity("voltage")]
     out.append("Roles as guessed; to set them explicitly use:")
-    out.append(f"  --current {','.join(cur) or 'COLS'} --voltage {','.join(vol) or 'COLS'}")
+    import shlex  # names with spaces or brackets, ready to paste into a shell
+
+    out.append(f"  --current {shlex.quote(','.join(cur)) if cur else 'COLS'} "
+               f"--voltage {shlex.quote(','.join(vol)) if vol else 'COLS'}")
     for fnd in cap.findings:
         out.append(f"[{fnd.severity}] {fnd.code}: {fnd.message}")
     return out

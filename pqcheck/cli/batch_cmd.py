@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 import os
 import sys
@@ -147,11 +146,12 @@ def batch_cmd(inputs, out, csv_path, jobs, scheduler, workers, force, retry_erro
     summary = summarize(run.table)
     if fmt == "json":
         per = summary.pop("per_capture")
-        d = {"run": {"found": len(run.captures), "checked": run.checked,
-                     "skipped": run.skipped, "written": list(run.written),
-                     "rows_written": run.rows_written},
-             "summary": summary, "captures": per}
-        click.echo(json.dumps(d, indent=2))
+        from ..results import batch_document, dumps
+        from ..run.batch import batch_spec
+
+        info = {"found": len(run.captures), "checked": run.checked, "skipped": run.skipped,
+                "written": list(run.written), "rows_written": run.rows_written}
+        click.echo(dumps(batch_document(summary, info, per, batch_spec(spec))))
     else:
         click.echo(render_summary(summary, run), nl=False)
     raise click.exceptions.Exit(exit_code(summary))

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import json
-
 import click
 
 from ._common import VERDICT_EXIT, handle_errors, main
@@ -54,11 +52,9 @@ def check_cmd(capture, fmt, all_checks, **opts):
     run = run_checked(spec_from_options(capture[0], opts), opts)
     result, a = run.result, run.assessment
     if fmt == "json":
-        d = a.to_dict()
-        d["capture"] = {"source": result.source, "sha256": result.sha256,
-                        "duration_s": result.duration_s}
-        d["findings"] = [f.to_dict() for f in result.findings]
-        click.echo(json.dumps(d, indent=2))
+        from ..results import check_document, dumps
+
+        click.echo(dumps(check_document(run)))
     elif fmt == "markdown":
         click.echo(render_markdown(a, result), nl=False)
     else:

@@ -13,6 +13,7 @@ from ._common import EXIT_OK, VERDICT_EXIT, fail_usage, handle_errors, main
 from ._fields import command_line, given_spec_options, spec_from_options
 from ._limits import LIMIT_OPTION_NAMES, limit_options
 from .analyze import capture_options, print_cache_notices, run_checked
+from .survey_cmd import SURVEY_OPTION_NAMES, survey_options
 
 __all__: list = []
 
@@ -76,11 +77,13 @@ def _plan_files(plan) -> list:
                    "and the data.")
 @_report_limit_options
 @capture_options
+@survey_options
 @click.pass_context
 @handle_errors
 def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
-    """Write a PDF report of CAPTURE_OR_PLAN: a capture file, or a test plan (.toml) that
-    lists captures, load points and limit tables (`pqcheck plan new` writes a template).
+    """Write a PDF report of CAPTURE_OR_PLAN: a capture file, a test plan (.toml) that
+    lists captures, load points and limit tables (`pqcheck plan new` writes a template), or
+    an interval log of a survey (the report then has its survey section).
 
     The report holds the verdict, the harmonic tables and charts against the limits, power
     quantities, data-quality findings, method, traceability (SHA-256 of every input), the
@@ -95,6 +98,7 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
     from ..report.pdf import render_pdf
     from ..report.results import CSV_TABLES, job_csv_texts, job_json, job_to_dict
 
+    survey_opts = {k: opts.pop(k) for k in SURVEY_OPTION_NAMES}
     created = datetime.now(timezone.utc)
 
     # 1. Every output must be writable, and none an input, before any work is done.
@@ -109,6 +113,12 @@ def report_cmd(ctx, source, output, force, json_path, csv_dir, **opts):
         csv_paths = outputs.add_folder(csv_dir, [f"{n}.csv" for n in CSV_TABLES], "--csv")
 
     # 2. Analyse and assess (any bad input stops here with exit 2 and nothing written).
+    from .survey_cmd import is_survey_input, report_survey
+
+    if is_survey_input([source], survey_opts):
+        spec = spec_from_options(source, opts)
+        report_survey(source, outputs, out, json_path, csv_dir, spec, created,
+                      command_line("report", spec), {**opts, **survey_opts})
     plan = None
     given = [(n, o) for n, o in given_spec_options(ctx) if n not in _REPORT_FIELDS]
     if source.lower().endswith(".toml"):

@@ -3,6 +3,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 
@@ -217,6 +218,42 @@ def check_recording(paths, fmt, spec, opts):
         click.echo(json.dumps(survey_json(sa), indent=2))
     else:
         click.echo(render_survey(sa), nl=False)
+    raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
+
+
+def report_survey(source, outputs, out, json_path, csv_dir, spec, created, command, opts):
+    """`pqcheck report` on an interval log: the report with its survey section (``spec``:
+    the :class:`~pqcheck.record.RunSpec` of the options; ``outputs``: the report's
+    :class:`~pqcheck.files.atomic.OutputSet`, written all together or not at all)."""
+    from ..report.job import ReportMeta, make_report_id
+    from ..report.survey_pdf import render_survey_pdf, survey_job_dict
+    from ..run.check import resolve_limits
+    from ..survey import assess_survey
+
+    if not spec.limits:
+        fail_usage("a survey report needs --limits (its statistics are those of a table)")
+    if csv_dir is not None:
+        fail_usage("--csv is not available for a survey report; use --json (every period's "
+                   "values are in it)")
+    resolved = resolve_limits(spec)
+    survey = load_survey([source], opts)
+    sa = assess_survey(survey, resolved, il_a=spec.analysis.il_a)
+    d = spec.report
+    meta = ReportMeta(title=d.title or "Harmonic survey report", equipment=d.equipment or "",
+                      site=d.site or "", operator=d.operator or "", created_utc=created,
+                      command=command)
+    rid = d.report_id or make_report_id(list(survey.sha256), created)
+    meta = dataclasses.replace(meta, report_id=rid)
+    doc = survey_job_dict(sa, meta)
+    results = (json.dumps(doc, indent=2) + "\n").encode("utf-8")
+    pdf = render_survey_pdf(sa, meta, results_json=results)
+    outputs.put(out, pdf)
+    if json_path is not None:
+        outputs.put(json_path, results)
+    written = [str(p) for p in outputs.commit()]
+    click.echo(f"{out}: {sa.verdict.upper()}; survey {', '.join(survey.sources)}; report {rid}")
+    for p in written[1:]:
+        click.echo(f"  also wrote {p}")
     raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
 
 

@@ -108,6 +108,7 @@ class HalfPeriodRms:
         self._u = []
         self._dt = []
         self._p = []
+        self._bad = []  # positions of non-finite samples
 
     def feed(self, u, ref=None, means=None) -> None:
         """Process the next block of samples. [V]
@@ -120,6 +121,7 @@ class HalfPeriodRms:
         if u.size == 0:
             return
         if not np.isfinite(u).all():
+            self._bad.append(np.flatnonzero(~np.isfinite(u)) + self.n)
             u = np.where(np.isfinite(u), u, 0.0)
         r = u if ref is None else np.asarray(ref, dtype=np.float64)
         if r is not u and not np.isfinite(r).all():
@@ -144,6 +146,7 @@ class HalfPeriodRms:
         if self.nm:
             x = np.atleast_2d(np.asarray(means, dtype=np.float64))
             if not np.isfinite(x).all():
+                self._bad.append(np.flatnonzero(~np.isfinite(x).all(axis=0)) + self.n)
                 x = np.where(np.isfinite(x), x, 0.0)
             q = np.empty((1 + x.shape[0], u.size))
             np.multiply(u, u, out=q[0])
@@ -223,13 +226,33 @@ class HalfPeriodRms:
 
     def finish(self):
         """Return ``(t_s, u_hp_v, duration_s)`` arrays: mid time, rms, half-period length."""
-        return _cat(self._t), _cat(self._u), _cat(self._dt)
+        t, u, dt = _cat(self._t), _cat(self._u), _cat(self._dt)
+        self._mark_gaps(t, dt, u)
+        return t, u, dt
+
+    def _mark_gaps(self, t, dt, u):
+        """Half periods that held a non-finite sample get NaN (they are no voltage)."""
+        if not self._bad or not t.size:
+            return
+        bad_t = _cat(self._bad) / self.fs
+        start = t - dt / 2
+        k = np.searchsorted(start, bad_t, side="right") - 1
+        k = k[(k >= 0) & (bad_t < t[np.clip(k, 0, t.size - 1)] + dt[np.clip(k, 0, t.size - 1)]
+                          / 2)]
+        u[k] = np.nan
+        self.gap_halfperiods = np.unique(k)
+
+    gap_halfperiods = np.empty(0, dtype=np.int64)
 
     def means(self) -> np.ndarray:
-        """Half-period means of the further quantities, shape ``(n_halfperiods, n_means)``."""
+        """Half-period means of the further quantities, shape ``(n_halfperiods, n_means)``;
+        NaN for half periods that held a non-finite sample."""
         if not self._p:
             return np.empty((0, self.nm))
-        return np.concatenate(self._p, axis=0)
+        m = np.concatenate(self._p, axis=0)
+        t, _, _ = self.finish()
+        m[self.gap_halfperiods] = np.nan
+        return m
 
 
 def _cat(parts):

@@ -281,7 +281,7 @@ def _voltage_path(capture, fs, f0, volts, s, block_samples, findings):
             findings.append(Finding(
                 "flicker-nominal-voltage", "info",
                 f"nominal voltage of {capture.channels[k].name!r} taken as {un:g} V (the "
-                f"standard value nearest to its {rms:.1f} V rms); give nominal_v to set it",
+                f"standard value nearest to its {rms:.1f} V rms); give nominal_voltage_v to set it",
                 channels=(capture.channels[k].name,), value=un, unit="V"))
     meters = [Flickermeter(fs, nominal_hz=f0, lamp=s.lamp or lamp_for(un)) for un in uns]
     hps = [HalfPeriodRms(fs, f0) for _ in volts]
@@ -386,6 +386,13 @@ def _finish(name, derived, path, zlabel, src, un, meter, hp, f0, capture, findin
             "flicker-gap", "error",
             f"{name}: short-term interval(s) {list(res.invalid_intervals)} contain missing or "
             f"non-finite samples; their Pst is not computed", channels=(name,)))
+    n_gap = int(np.sum(~np.isfinite(u)))
+    if n_gap:
+        own.append(Finding(
+            "flicker-gap-halfperiods", "error",
+            f"{name}: {n_gap} half period(s) held missing or non-finite samples; d(t) is not "
+            "evaluated there and the voltage changes around them cannot support a pass",
+            channels=(name,), value=float(n_gap), unit="half periods"))
     if not change.steady_found:
         own.append(Finding(
             "flicker-no-steady-state", "warning",

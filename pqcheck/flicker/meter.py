@@ -489,6 +489,10 @@ class Flickermeter:
 
     def finish(self) -> FlickerResult:
         """Close the last interval and return the :class:`FlickerResult`."""
+        # an interval short of its length by at most 10 ms (sample-count rounding of a
+        # record meant to be whole intervals) still counts as complete
+        if self._in_interval and self.interval_n - self._in_interval <= 0.01 * self.d.fs_int_hz:
+            self._close_interval()
         complete = bool(self._pst)
         interval_s = self.interval_n / self.d.fs_int_hz
         if not self._pst and self._in_interval > 0:
@@ -496,11 +500,9 @@ class Flickermeter:
             interval_s = self._in_interval / self.d.fs_int_hz
             self._close_interval()
         pst = tuple(self._pst)
-        good = [p for p in pst if np.isfinite(p)] if complete else []
         plt = tuple(plt_from_pst(pst[i:i + PLT_COUNT])
                     for i in range(0, len(pst) - PLT_COUNT + 1, PLT_COUNT)
                     if complete and all(np.isfinite(pst[i:i + PLT_COUNT])))
-        del good
         steps = self._steps + ([self._step_buf.max(keepdims=True)] if self._step_buf.size else [])
         chart = np.concatenate(steps) if steps else np.empty(0)
         ref = "adaptive" if self.reference_v is None else f"fixed {self.reference_v:g} V"

@@ -12,14 +12,13 @@ from __future__ import annotations
 import json
 from datetime import timezone
 
-from .. import __version__
 from ..export import analysis_to_dict, clean, harmonics_frame, windows_frame
 from ..files.atomic import OutputSet
+from ..results import SCHEMA_VERSION, tool_block
 
 __all__ = ["SCHEMA_VERSION", "CSV_TABLES", "job_to_dict", "job_json", "job_frames",
            "job_csv_texts", "write_csv_dir"]
 
-SCHEMA_VERSION = 1
 
 CSV_TABLES = ("captures", "channels", "harmonics", "windows", "power", "findings", "checks")
 """Names of the CSV files written by :func:`write_csv_dir` (``<name>.csv``)."""
@@ -39,7 +38,8 @@ def job_to_dict(job) -> dict:
     meta = job.meta
     plan = job.plan
     return clean({
-        "tool": {"name": "pqcheck", "version": __version__, "schema": SCHEMA_VERSION},
+        "schema_version": SCHEMA_VERSION,
+        "tool": tool_block("report"),
         "report": {
             "id": meta.report_id,
             "title": meta.title,

@@ -190,11 +190,16 @@ def _load(path) -> tuple:
     except (UnicodeDecodeError, ValueError) as exc:
         raise InputError(f"not a PDF and not a results JSON ({exc}); give the report PDF or "
                          "the JSON file written by pqcheck report", path=p) from None
-    if not (isinstance(doc, dict) and isinstance(doc.get("tool"), dict)
-            and doc["tool"].get("name") == "pqcheck" and isinstance(doc.get("captures"), list)
-            and doc["captures"]):
-        raise InputError("not the results of a pqcheck report (no tool or captures); give the "
-                         "report PDF or the JSON file written by pqcheck report", path=p)
+    from ..results import read_document
+
+    try:
+        read_document(doc, path=str(p), kinds=("report",))
+    except InputError as exc:
+        raise InputError(f"{exc.problem}; give the report PDF or the JSON file written by "
+                         "pqcheck report", path=p, field=exc.field) from None
+    if not (isinstance(doc.get("captures"), list) and doc["captures"]):
+        raise InputError("not the results of a pqcheck report (no captures); give the report "
+                         "PDF or the JSON file written by pqcheck report", path=p)
     return doc, pdf, data
 
 
@@ -203,13 +208,19 @@ def _attachment(data: bytes, p: Path) -> bytes:
     from pypdf.errors import PyPdfError
 
     try:
-        files = PdfReader(io.BytesIO(data)).attachments
-        found = files.get("results.json")
+        files = dict(PdfReader(io.BytesIO(data)).attachments)
     except (PyPdfError, ValueError, KeyError, TypeError, OSError) as exc:
         raise InputError(f"the PDF cannot be read ({exc})", path=p) from None
+    found = files.pop("results.json", None)
     if not found:
         raise InputError("the PDF carries no results.json attachment; was it made by pqcheck "
                          "report? Give the results JSON instead", path=p)
+    # a pqcheck report carries exactly one file: anything else was added after it was made
+    if files or len(found) != 1:
+        extra = sorted(files) or ["a second results.json"]
+        raise InputError(f"the PDF carries an attachment pqcheck does not write "
+                         f"({', '.join(map(repr, extra))}); it was changed after it was made "
+                         "and cannot be verified", path=p)
     return found[0]
 
 
@@ -285,13 +296,9 @@ def _table_for(rec: dict, bases, files: list) -> str:
 
 def _recorded_spec(cap_doc: dict, where: str):
     """The :class:`~pqcheck.record.RunSpec` recorded with a capture (read as data)."""
-    from ..record import RunSpec
+    from ..results import run_spec_of
 
-    if not isinstance(cap_doc.get("run_spec"), dict):
-        raise InputError("the results record no run specification (run_spec), so the run "
-                         "cannot be repeated; were they made by an older pqcheck?",
-                         field=f"{where}.run_spec")
-    return RunSpec.from_dict(cap_doc["run_spec"])
+    return run_spec_of(cap_doc, where)
 
 
 def _rerun_capture(doc: dict, bases, files: list):

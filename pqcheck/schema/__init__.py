@@ -1,0 +1,1 @@
+"""Published JSON Schemas of pqcheck's documents (package data)."""
