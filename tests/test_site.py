@@ -1288,3 +1288,73 @@ def test_site_documents_validate_against_the_published_schema(tmp_path):
     doc["verdict"] = "pass"
     doc["extra"] = 1
     assert not validator.is_valid(doc)
+
+
+# ---------------------------------------------------------------------------------------------
+# capture units run through a RunSpec and check_capture
+# ---------------------------------------------------------------------------------------------
+
+
+def _three_phase_csv(path, *, time=True):
+    """A synthesised balanced unit: 230 V, 10 A fundamental and a 2 A fifth (negative
+    sequence), 10 kS/s for 2 s; with or without a time column."""
+    t = np.arange(20_000) / 10_000.0
+    cols, names = ([t], ["time"]) if time else ([], [])
+    for k, ph in enumerate("abc"):
+        cols.append(230 * np.sqrt(2) * np.cos(2 * np.pi * 50 * t - 2 * np.pi * k / 3))
+        names.append(f"v{ph}")
+    for k, ph in enumerate("abc"):
+        sh = -2 * np.pi * k / 3
+        cols.append(10 * np.sqrt(2) * np.cos(2 * np.pi * 50 * t + sh)
+                    + 2 * np.sqrt(2) * np.cos(5 * (2 * np.pi * 50 * t + sh)))
+        names.append(f"i{ph}")
+    np.savetxt(path, np.column_stack(cols), delimiter=",", header=",".join(names),
+               comments="", fmt="%.9g")
+
+
+def test_capture_unit_runs_through_a_run_spec(tmp_path):
+    from pqcheck.record import RunSpec
+
+    _three_phase_csv(tmp_path / "unit.csv")
+    (tmp_path / "site.toml").write_text(BASE.replace('results = "unit.json"',
+                                                     'capture = "unit.csv"'))
+    site = load_site(tmp_path / "site.toml")
+    spec = site.units[0].run_spec
+    # analysed up to the highest order IEEE 519-2022 assesses (50; standards notes 1.3)
+    assert spec.analysis.max_order == 50 and spec.analysis.nominal_hz == 50
+    assert spec.reader.path == str(tmp_path / "unit.csv") and spec.limits == ()
+    assert abs(site.units[0].spectrum.current[0, 5]) == pytest.approx(2.0, rel=1e-3)
+    d = study_to_dict(study_site(site, headroom=False))
+    assert RunSpec.from_dict(d["site"]["units"][0]["run_spec"]) == spec
+
+
+def test_capture_unit_errors_name_the_site_files_field(tmp_path):
+    _three_phase_csv(tmp_path / "unit.csv", time=False)
+    (tmp_path / "site.toml").write_text(BASE.replace('results = "unit.json"',
+                                                     'capture = "unit.csv"'))
+    r = CliRunner().invoke(main, ["site", str(tmp_path / "site.toml")])
+    assert r.exit_code == 2
+    assert re.search(r"site.toml:\d+: units\[1\].sample_rate_hz: unit.csv: no time base found",
+                     r.output), r.output
+    assert "the unit's sample_rate_hz" in r.output and "--sample-rate" not in r.output
+
+
+def test_results_file_that_is_a_pipe_is_refused(tmp_path):
+    import os
+
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("no FIFOs on this system")
+    (tmp_path / "site.toml").write_text(BASE.replace('"unit.json"', '"pipe.json"'))
+    os.mkfifo(tmp_path / "pipe.json")
+    with pytest.raises(PlanError, match=r"units\[1\].results: pipe.json: is a pipe"):
+        load_site(tmp_path / "site.toml")
+
+
+def test_site_file_that_is_a_pipe_is_refused(tmp_path):
+    import os
+
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("no FIFOs on this system")
+    os.mkfifo(tmp_path / "site.toml")
+    r = CliRunner().invoke(main, ["site", str(tmp_path / "site.toml")])
+    assert r.exit_code == 2 and "is a pipe" in r.output, r.output

@@ -186,6 +186,8 @@ class Unit:
     source_kind : str
         ``"capture"`` (the spectrum was analysed from a capture) or ``"results"`` (read from
         saved results).
+    run_spec : pqcheck.record.RunSpec or None
+        For a capture: the run specification it was read and analysed with.
     """
 
     name: str
@@ -195,6 +197,7 @@ class Unit:
     phase_shift_deg: float = 0.0
     line: int | None = None
     source_kind: str = "results"
+    run_spec: object = field(default=None, compare=False)
 
 
 @dataclass(frozen=True)

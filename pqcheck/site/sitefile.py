@@ -339,7 +339,7 @@ def _unit_entry(r: _Reader, item, k: int, folder: Path) -> UnitEntry:
     fpath = Path(text).expanduser()
     if not fpath.is_absolute():
         fpath = folder / fpath
-    if not fpath.is_file():
+    if not fpath.exists():  # special files are refused where they are read
         where = "" if Path(text).is_absolute() else \
             f" (resolved against the site file's folder {folder})"
         raise r.error(kp + (key,), f"file {text!r} not found{where}")
@@ -398,11 +398,12 @@ class UnitEntry:
     time_column: str | None = None
     line: int | None = None
 
-    def unit(self, spectrum) -> Unit:
-        """The :class:`~pqcheck.site.Unit` of this entry with its spectrum."""
+    def unit(self, spectrum, *, run_spec=None) -> Unit:
+        """The :class:`~pqcheck.site.Unit` of this entry with its spectrum (and the
+        :class:`~pqcheck.record.RunSpec` its capture was checked with)."""
         return Unit(name=self.name, count=self.count, load_point=self.load_point,
                     spectrum=spectrum, phase_shift_deg=self.phase_shift_deg, line=self.line,
-                    source_kind=self.kind)
+                    source_kind=self.kind, run_spec=run_spec)
 
 
 @dataclass(frozen=True, eq=False)

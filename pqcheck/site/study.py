@@ -802,7 +802,8 @@ def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
                        "phase_measured": u.spectrum.phase_measured,
                        "fundamental_a": _num(float(np.max(np.abs(u.spectrum.current[:, 1])))),
                        "pcc_current_a": [_num(float(np.max(np.abs(study.unit_current_a[k, :, h]))))
-                                         for h in study.orders[1:]]}
+                                         for h in study.orders[1:]],
+                       "run_spec": None if u.run_spec is None else u.run_spec.to_dict()}
                       for k, u in enumerate(s.units)],
         },
         "summation": study.summation,
