@@ -9,9 +9,10 @@ The public API follows the data flow: :func:`load_capture` reads a file into a
 
 __version__ = "0.1.0"
 
-from .analysis import AnalysisResult, analyze  # noqa: E402
-from .assess import Assessment, assess  # noqa: E402
-from .capture import Capture, Channel, Provenance, assign_roles  # noqa: E402
+import importlib as _importlib
+import sys as _sys
+import types as _types
+
 from .errors import (  # noqa: E402
     AnalysisError,
     CaptureFormatError,
@@ -22,9 +23,43 @@ from .errors import (  # noqa: E402
     PqcheckWarning,
     ReportError,
 )
-from .findings import Finding  # noqa: E402
-from .limits import load_table, resolve  # noqa: E402
-from .readers import load_capture  # noqa: E402
+
+# The computing API is imported on first use (numpy, scipy, pandas take a good part of a
+# second), so `import pqcheck` is quick and the command line can take over Ctrl-C before the
+# heavy imports run.
+_LAZY = {
+    "AnalysisResult": "analysis", "analyze": "analysis",
+    "Assessment": "assess", "assess": "assess",
+    "Capture": "capture", "Channel": "capture", "Provenance": "capture",
+    "assign_roles": "capture",
+    "Finding": "findings",
+    "load_table": "limits", "resolve": "limits",
+    "load_capture": "readers",
+}
+
+
+class _Package(_types.ModuleType):
+    """The package module: its API names load on first access; a submodule import never
+    replaces an API function of the same name (``pqcheck.assess`` is the function)."""
+
+    def __getattr__(self, name):
+        where = _LAZY.get(name)
+        if where is None:
+            raise AttributeError(f"module 'pqcheck' has no attribute {name!r}")
+        value = getattr(_importlib.import_module(f".{where}", __name__), name)
+        self.__dict__[name] = value
+        return value
+
+    def __setattr__(self, name, value):
+        if name in _LAZY and isinstance(value, _types.ModuleType):
+            return  # the submodule stays in sys.modules; the name keeps the API object
+        super().__setattr__(name, value)
+
+    def __dir__(self):
+        return sorted(set(super().__dir__()) | set(_LAZY))
+
+
+_sys.modules[__name__].__class__ = _Package
 
 __all__ = [
     "__version__",

@@ -8,9 +8,10 @@ the captures it finished, so a re-run resumes. SIGKILL cannot be caught: it may 
 ``.part`` temporaries, but never an output under its own name that is incomplete, and a
 batch's results file is the last complete one.
 
-Moments: a fixed delay after the start (during start-up or the analysis; SIGTERM only:
-SIGINT before the command line runs, while Python imports the package, gets Python's own
-KeyboardInterrupt report), and a delay after the first temporary of the write phase appears. The write phase is stretched by pausing in
+Moments: a fixed delay after the start (during start-up or the analysis), and a delay after
+the first temporary of the write phase appears. A signal during start-up, before the command
+runs, ends the process as the signal does by default (SIGINT: one line, no traceback, once
+Python itself has started; the shell shows 130 or 143 either way). The write phase is stretched by pausing in
 ``os.fsync`` in the child (see ``_kit.PRELUDE_SLOW_FSYNC``), so the "after the first
 temporary" signals land while the set is being written. Children run at once to keep the
 test short; a child that finished before its moment must have produced the complete set.
@@ -92,6 +93,7 @@ def _send_when_due(children, root: Path, timeout_s: float = 90.0) -> dict:
 
 REPORT_CHILDREN = [
     Child("term-at-0.8s", signal.SIGTERM, after_start_s=0.8),
+    Child("int-at-1.2s", signal.SIGINT, after_start_s=1.2),
     Child("term-at-1.8s", signal.SIGTERM, after_start_s=1.8),
     Child("int-at-write", signal.SIGINT, after_part_s=0.0),
     Child("term-mid-write", signal.SIGTERM, after_part_s=0.35, previous=True),
