@@ -17,9 +17,13 @@ What is measured, each in a fresh process, interleaved over the repetitions, med
   synchronisation, no groups, no power: much less than pqcheck does);
 - ``cold``: ``pqcheck analyze --no-cache --format json`` end to end (process start, imports,
   parse, IEC 61000-4-7 analysis, JSON);
-- ``cached``: the same command with the cache warm (second run of the same file).
+- ``cached``: the same command with the cache warm (second run of the same file);
+- ``arrow`` (and ``polars``, ``duckdb`` when installed): other parsers of the whole file;
+- ``fft``: the bare batched ``scipy.fft.rfft`` of every 4000-sample window of every channel
+  of the same capture as ``.npy`` (2 workers);
+- ``binary``: ``pqcheck analyze`` of that ``.npy`` (no text parse).
 
-Peak RSS comes from ``os.wait4`` of each child. The captures are generated here: a 50 Hz
+Peak RSS is each child's own ``VmHWM`` at exit. The captures are generated here: a 50 Hz
 three-phase set, currents with 20 % fifth and 10 % seventh harmonic (THD 22.36 %), printed
 like a scope export; the THD pqcheck reports is checked against that known content.
 """
@@ -86,6 +90,34 @@ for chunk in pd.read_csv(sys.argv[1], engine='c', dtype=np.float64, chunksize=1 
     n += len(chunk)
 """
 
+CHILD_PARSE_ARROW = """
+import sys, pyarrow.csv as pc
+t = pc.read_csv(sys.argv[1])
+print(t.num_rows)
+"""
+
+CHILD_PARSE_POLARS = """
+import sys, polars as pl
+print(pl.read_csv(sys.argv[1]).height)
+"""
+
+CHILD_PARSE_DUCKDB = """
+import sys, duckdb
+print(duckdb.sql(f"select count(*) from read_csv_auto('{sys.argv[1]}')").fetchone())
+"""
+
+CHILD_FFT = """
+import sys, numpy as np
+from scipy import fft
+x = np.load(sys.argv[1], mmap_mode='r')
+N = 4000
+block = 64 * N
+for lo in range(0, x.shape[0] - N + 1, block):
+    seg = np.ascontiguousarray(x[lo:lo + block].T)
+    w = seg.shape[1] // N
+    spec = fft.rfft(seg[:, : w * N].reshape(seg.shape[0], w, N), axis=-1, workers=2)
+"""
+
 CHILD_NAIVE = """
 import sys, numpy as np, pandas as pd
 df = pd.read_csv(sys.argv[1])
@@ -102,30 +134,84 @@ print(100 * np.sqrt(np.mean(np.square(thd[:len(thd) // 2]))))
 """
 
 
+WRAP = """
+import atexit, os, runpy, sys
+def _hwm():
+    for line in open('/proc/self/status'):
+        if line.startswith('VmHWM'):
+            open(os.environ['PQ_BENCH_HWM'], 'w').write(line.split()[1])
+atexit.register(_hwm)
+mode, what = sys.argv[1], sys.argv[2]
+sys.argv = [what] + sys.argv[3:]
+if mode == '-m':
+    runpy.run_module(what, run_name='__main__', alter_sys=True)
+else:
+    exec(compile(what, '<child>', 'exec'), {'__name__': '__main__'})
+"""
+
+
 def run_child(argv, env=None):
-    """Run a command; return (seconds, peak RSS in MB, stdout)."""
+    """Run a Python command (``[python, -c, code, ...]`` or ``[python, -m, module, ...]``);
+    return (seconds, peak RSS in MB, stdout). The peak RSS is the child's own high-water
+    mark (``VmHWM`` at exit; ``ru_maxrss`` would count the memory of this process, which the
+    child is forked from)."""
+    hwm = Path(tempfile.mkstemp(prefix="pq-bench-hwm-")[1])
+    env = dict(os.environ if env is None else env, PQ_BENCH_HWM=str(hwm))
     t0 = time.perf_counter()
-    proc = subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
-    out = proc.stdout.read()
-    err = proc.stderr.read()
-    _, status, usage = os.wait4(proc.pid, 0)
+    proc = subprocess.run([argv[0], "-c", WRAP] + list(argv[1:]), capture_output=True,
+                          env=env)
     dt = time.perf_counter() - t0
-    if os.waitstatus_to_exitcode(status) not in (0,):
-        raise RuntimeError(f"{argv[:3]} failed: {err.decode()[-2000:]}")
-    return dt, usage.ru_maxrss / 1024, out.decode()
+    if proc.returncode != 0:
+        raise RuntimeError(f"{argv[:3]} failed: {proc.stderr.decode()[-2000:]}")
+    text = hwm.read_text().strip()
+    hwm.unlink()
+    return dt, (int(text) / 1024 if text else float("nan")), proc.stdout.decode()
+
+
+PARSERS = ("parse", "arrow", "polars", "duckdb")
+
+
+CHILD_TO_NPY = """
+import sys, json, numpy as np, pyarrow.csv as pc
+t = pc.read_csv(sys.argv[1])
+names = t.column_names[1:]
+np.save(sys.argv[2], np.column_stack([t.column(n).to_numpy() for n in names]))
+print(json.dumps([n.split(' [')[0] for n in names]))
+"""
+
+
+def to_npy(csv: Path) -> Path:
+    """The same capture as a .npy array (samples x channels) with its JSON side file, written
+    by a child process (so that this process stays small: a child's peak RSS counts the
+    memory of the process it was forked from)."""
+    out = csv.with_suffix(".npy")
+    _, _, cols = run_child([sys.executable, "-c", CHILD_TO_NPY, str(csv), str(out)])
+    out.with_suffix(".json").write_text(json.dumps({"columns": json.loads(cols),
+                                                    "sample_rate_hz": FS}))
+    return out
 
 
 def measure(path: Path, repeat: int, cache_dir: Path):
     py = sys.executable
-    pq = [py, "-m", "pqcheck.cli", "analyze", str(path), "--nominal-frequency", "50",
-          "--current", "ia,ib,ic", "--voltage", "va,vb,vc", "--format", "json", "--quiet"]
+    npy = to_npy(path)
+    opts = ["--nominal-frequency", "50", "--current", "ia,ib,ic", "--voltage", "va,vb,vc",
+            "--format", "json", "--quiet"]
+    pq = [py, "-m", "pqcheck.cli", "analyze", str(path)] + opts
     jobs = {
         "read": [py, "-c", CHILD_READ, str(path)],
         "parse": [py, "-c", CHILD_PARSE, str(path)],
+        "arrow": [py, "-c", CHILD_PARSE_ARROW, str(path)],
+        "polars": [py, "-c", CHILD_PARSE_POLARS, str(path)],
+        "duckdb": [py, "-c", CHILD_PARSE_DUCKDB, str(path)],
         "naive": [py, "-c", CHILD_NAIVE, str(path)],
+        "fft": [py, "-c", CHILD_FFT, str(npy)],
+        "binary": [py, "-m", "pqcheck.cli", "analyze", str(npy)] + opts + ["--no-cache"],
         "cold": pq + ["--no-cache"],
         "cached": pq + ["--cache-dir", str(cache_dir)],
     }
+    for name in ("polars", "duckdb"):  # optional parsers: measured when installed
+        if subprocess.run([py, "-c", f"import {name}"], capture_output=True).returncode:
+            del jobs[name]
     # warm the cache once, and the page cache for every job
     run_child(jobs["cached"])
     times = {k: [] for k in jobs}
@@ -188,12 +274,19 @@ def main(argv=None) -> int:
             med, peak, thd = measure(path, reps, tmp / "cache")
             for k in med:
                 print(f"  {k:<7} {med[k]:8.2f} s   peak RSS {peak[k]:7.0f} MB")
-            print(f"  cold / parse   = {med['cold'] / med['parse']:.2f}  (target <= 1.5)")
+            fastest = min((k for k in PARSERS if k in med), key=med.get)
+            n_ch = 6 * FS * seconds
+            print(f"  fastest parser: {fastest}")
+            print(f"  binary         = {n_ch / med['binary'] / 1e6:.1f} M channel-samples/s "
+                  "(target >= 100)")
+            print(f"  binary / fft   = {med['binary'] / med['fft']:.1f}")
+            print(f"  cold / parser  = {med['cold'] / med[fastest]:.2f}  (target <= 1.3)")
             print(f"  cold / naive   = {med['cold'] / med['naive']:.2f}  (target < 1)")
             print(f"  cold / cached  = {med['cold'] / med['cached']:.1f}  (target >= 5)")
             print(f"  THD reported {thd:.3f} %, known content {EXPECTED_THD:.3f} %")
             rows.append((seconds, size, med, peak, thd))
             path.unlink()
+            path.with_suffix(".npy").unlink()
         if len(rows) > 1:
             base = rows[-2] if args.scaling else rows[0]
             last = rows[-1]

@@ -588,6 +588,15 @@ def measurement_gates(result, table, refs: dict, declared: Declared) -> list:
 # --- observation period --------------------------------------------------------------------
 
 
+def _duration(s: float) -> str:
+    """``"0.9996 s"``, ``"2.5 min"``, ``"7 days"``."""
+    if s >= 86400:
+        return f"{s / 86400:.3g} day{'s' if s != 86400 else ''}"
+    if s >= 120:
+        return f"{s / 60:.3g} min"
+    return f"{s:.4g} s"
+
+
 def observation_gates(table, observed_s: float, declared: Declared) -> list:
     """Gates from the table's ``[observation]``: a capture shorter than the standard's
     observation period is inconclusive, unless the user declares a representative period the
@@ -627,7 +636,7 @@ def observation_gates(table, observed_s: float, declared: Declared) -> list:
     if not (minimum or cycles or rep):
         return out
     need = minimum
-    why = f"{minimum:.4g} s"
+    why = _duration(minimum)
     if cycles:
         if declared.cycle_s:
             need = max(need, cycles * declared.cycle_s)
@@ -660,9 +669,10 @@ def observation_gates(table, observed_s: float, declared: Declared) -> list:
     if observed_s + 1e-9 < need:
         extra = (f"; a representative period of at least {rep:.4g} s may be declared instead"
                  if rep is not None else "")
+        what = f"for {label}equipment " if label else ""
         out.append(Gate("observation-short", "inconclusive",
-                        f"{tid}: the capture covers {observed_s:.4g} s; the standard's "
-                        f"observation period for {label}equipment is {why}{extra}. "
+                        f"{tid}: the capture covers {_duration(observed_s)}; the standard's "
+                        f"observation period {what}is {why}{extra}. "
                         + (ob.note if ob.note and not ob.behaviours else ""),
                         value=observed_s, unit="s"))
     return out
@@ -670,9 +680,6 @@ def observation_gates(table, observed_s: float, declared: Declared) -> list:
 
 # --- instrument chain --------------------------------------------------------------------------
 
-#: A chain reading a component low by more than this cannot assess it (first-order roll-off;
-#: 10 % at about half the -3 dB bandwidth). common practice
-BANDWIDTH_ERROR_MAX = 0.10
 
 
 def plan_gates(table, declared: Declared) -> list:
@@ -690,7 +697,7 @@ def chain_gates(result, table, declared: Declared) -> list:
     sample rate that is not the capture's is a deviation; no chain at all is a deviation (the
     uncertainty then assumes an IEC 61000-4-7 Class I instrument).
     """
-    from .uncertainty import bandwidth_error, chain_for
+    from .uncertainty import chain_for
 
     tid = table.table_id
     out = []
@@ -729,14 +736,16 @@ def chain_gates(result, table, declared: Declared) -> list:
                             "zeroed before the capture, or the offset is the instrument's.",
                             channels=(c.name,), void=True, quantities=("DC",)))
         if ch is not None and ch.bandwidth_hz:
-            bad = tuple(h for h in range(2, table.max_order + 1)
-                        if bandwidth_error(h * f0, ch.bandwidth_hz) > BANDWIDTH_ERROR_MAX)
+            # beyond the -3 dB bandwidth a component cannot be measured; within it, the
+            # roll-off enters the uncertainty (pqcheck.uncertainty.bandwidth_error)
+            bad = tuple(h for h in range(2, (table.max_order or 0) + 1)
+                        if h * f0 > ch.bandwidth_hz)
             if bad:
                 out.append(Gate("chain-bandwidth", "inconclusive",
                                 f"{tid}: the chain of {c.name!r} ({ch.bandwidth_hz:g} Hz "
-                                f"bandwidth) reads orders {bad[0]} and above ({bad[0] * f0:g} Hz) "
-                                f"more than {100 * BANDWIDTH_ERROR_MAX:g} % low; they cannot "
-                                "be assessed.", channels=(c.name,), void=True, orders=bad,
+                                f"bandwidth) cannot measure orders {bad[0]} and above "
+                                f"({bad[0] * f0:g} Hz); they are not assessed.",
+                                channels=(c.name,), void=True, orders=bad,
                                 value=ch.bandwidth_hz, unit="Hz"))
                 totals = tuple(i.quantity for i in table.items if i.quantity not in
                                ("harmonic", "DC"))

@@ -11,6 +11,11 @@ whole waveform in time, so phases relative to the fundamental do not depend on i
 
 from __future__ import annotations
 
+import hashlib
+import os
+import tempfile
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -185,3 +190,76 @@ def filled_plan(text: str) -> str:
                  '[[conditions.instruments]]\nrole = "digitiser"\nmodel = "bench digitiser"\n'
                  'accuracy = "0.5 %"\n')
     return text
+
+
+# --- hermetic runs ------------------------------------------------------------------------
+
+
+_PRIVATE: dict = {}
+
+
+def pytest_sessionstart(session):
+    """Give this run a system temporary folder of its own (inside pytest's folder, so runs
+    on a shared machine do not see each other's files) and keep matplotlib's cache and Dask's
+    scratch space out of the user's folders."""
+    factory = session.config._tmp_path_factory
+    _PRIVATE["tmp"] = factory.mktemp("system-tmp", numbered=False)
+    _PRIVATE["old"] = {k: os.environ.get(k) for k in ("TMPDIR", "MPLCONFIGDIR",
+                                                      "DASK_TEMPORARY_DIRECTORY")}
+    os.environ["TMPDIR"] = tempfile.tempdir = str(_PRIVATE["tmp"])
+    os.environ["MPLCONFIGDIR"] = str(factory.mktemp("matplotlib", numbered=False))
+    os.environ["DASK_TEMPORARY_DIRECTORY"] = str(factory.mktemp("dask", numbered=False))
+
+
+def _pqcheck_leftovers() -> set:
+    """What the tests could leave outside pytest's folders: anything in the run's system
+    temporary folder, and files in the user's cache folders."""
+    out = set()
+    tmp = _PRIVATE.get("tmp")
+    if tmp is not None and tmp.is_dir():
+        # multiprocessing's pymp-* folders are removed when the interpreter exits
+        out |= {str(p) for p in tmp.rglob("*") if not p.relative_to(tmp).parts[0].startswith(
+            "pymp-")}
+    caches = [Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache") / "pqcheck",
+              Path.home() / ".cache" / "pqcheck"]
+    for c in caches:
+        if c.is_dir():
+            out |= {str(p) for p in c.rglob("*") if p.is_file()}
+    return out
+
+
+def _shared_state() -> dict:
+    """Module-level settings and bundled data a test must leave as it found them."""
+    from importlib import resources
+
+    from pqcheck.dsp import spectrum
+
+    tables = {}
+    for f in resources.files("pqcheck.limit_tables").iterdir():
+        if f.name.endswith(".toml"):
+            tables[f.name] = hashlib.sha256(f.read_bytes()).hexdigest()
+    return {"FFT_WORKERS": spectrum.FFT_WORKERS, "tables": tables}
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _hermetic_session(tmp_path_factory):
+    """Fail the run if the tests leave files outside pytest's temporary folders (the run's
+    system temporary folder, the user's cache) or change shared state (bundled tables,
+    module-level settings such as ``dsp.spectrum.FFT_WORKERS``)."""
+    before, state = _pqcheck_leftovers(), _shared_state()
+    try:
+        import dask
+
+        dask.config.set({"temporary-directory": os.environ["DASK_TEMPORARY_DIRECTORY"]})
+    except (ImportError, KeyError):
+        pass
+    yield
+    left = sorted(_pqcheck_leftovers() - before)
+    assert not left, f"tests left files outside pytest's temporary folders: {left[:5]}"
+    assert _shared_state() == state, "a test changed shared state (bundled tables or settings)"
+
+
+@pytest.fixture(autouse=True)
+def _cache_in_tmp(tmp_path_factory, monkeypatch):
+    """The cache of every test is a pytest folder, never the user's ``~/.cache``."""
+    monkeypatch.setenv("PQCHECK_CACHE_DIR", str(tmp_path_factory.getbasetemp() / "cache"))

@@ -18,6 +18,7 @@ import tempfile
 from pathlib import Path
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from test_hostile_inputs import PLAN, TABLE
@@ -32,8 +33,19 @@ FUZZ = settings(max_examples=70, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 
 
+_BASE: list = []
+
+
+@pytest.fixture(autouse=True, scope="module")
+def _fuzz_base(tmp_path_factory):
+    """Every example writes in a folder of its own inside pytest's temporary folder."""
+    _BASE[:] = [tmp_path_factory.mktemp("fuzz")]
+    yield
+    _BASE.clear()
+
+
 def _tmpdir() -> Path:
-    return Path(tempfile.mkdtemp(prefix="pqcheck-fuzz-"))
+    return Path(tempfile.mkdtemp(prefix="example-", dir=_BASE[0]))
 
 
 # ---- CSV captures --------------------------------------------------------------------------

@@ -127,21 +127,26 @@ def kernel_for(band: float, stopband_db: float = STOPBAND_DB) -> SyncKernel:
 
     Notes
     -----
-    Passband ``[0, band]``, stopband from half the sample rate up: a recorded component
-    between ``band`` and half the rate has its image above half the rate, and an image that
-    passed would sit off the window's lines and leak into them (a 2 % 49th harmonic at
+    Passband ``[0, band]``, stopband from ``stop = 0.5 + (0.5 - band) / 2`` up. A recorded
+    component between ``band`` and half the rate has its image above half the rate; an image
+    that passed would sit off the window's lines and leak into them (a 2 % 49th harmonic at
     5 kS/s, 3 samples per period short of the Nyquist rate, read 3e-4 of the fundamental
-    into order 38 with the cut-off at half the rate). Cut-off mid-way, ``(band + 0.5) / 2``;
-    the resampled window has ``M >= L`` points, so no stopband content folds back onto a
-    kept line. Kaiser's length formula for a transition ``0.5 - band`` wide (Kaiser 1974;
+    into order 38 with the cut-off at half the rate). With the stopband from ``stop`` the
+    images of everything below ``1 - stop`` are removed, and what passes lies at least
+    ``stop - band`` (half the distance from the band to half the rate) above the kept lines,
+    where the rectangular window's leakage is below ``1 / (pi (stop - band) L)`` of it (2e-4
+    at 20 kS/s) -- content that a recorder's anti-aliasing filter removes anyway. The
+    resampled window has ``M >= L`` points, so no stopband content folds back onto a kept
+    line. Kaiser's length formula for a transition ``stop - band`` wide (Kaiser 1974;
     Oppenheim & Schafer, Discrete-Time Signal Processing, eq. 7.63 -- from memory). ``band``
     is rounded up to a 1/512 grid so that few distinct kernels are built.
     """
     band = min(np.ceil(float(band) * 512) / 512, 0.48)
-    width = 0.5 - band
+    stop = 0.5 + 0.5 * (0.5 - band)
+    width = stop - band
     taps = int(np.ceil((stopband_db - 7.95) / (2.285 * 2 * np.pi * width))) + 1
     taps = min(max(taps + (taps % 2), 4), MAX_TAPS)
-    return sync_kernel(taps, 0.5 * (band + 0.5), stopband_db)
+    return sync_kernel(taps, 0.5 * (band + stop), stopband_db)
 
 
 @functools.lru_cache(maxsize=16)

@@ -299,22 +299,45 @@ def _second_pass(x, missing, mid, count, amp, local0):
     k_last = int(np.floor(rel[-1] - 1.5 + 1e-9))
     if k_last - k_first < 2:
         return mid, count, count, np.zeros(count.size, dtype=bool)
-    y = x * np.exp(-2j * np.pi * (phi - np.floor(phi)))
-    z = np.zeros(k_last - k_first + 1, dtype=np.complex128)
-    wsum = np.zeros(z.size)
-    miss = np.zeros(z.size)
-    lead = np.floor(rel + 0.5) - 1.0  # the earlier of the two windows holding each sample
-    for k in (lead, lead + 1.0):
-        w = np.sin(0.5 * np.pi * (rel - k + 0.5)) ** 2
-        idx = (k - k_first).astype(np.int64)
-        ok = (idx >= 0) & (idx < z.size)
-        wy = (w * y)[ok]
-        z += np.bincount(idx[ok], weights=wy.real, minlength=z.size) + 1j * np.bincount(
-            idx[ok], weights=wy.imag, minlength=z.size)
-        wsum += np.bincount(idx[ok], weights=w[ok], minlength=z.size)
-        if missing.any():
-            miss += np.bincount(idx[ok], weights=missing[ok].astype(np.float64),
-                                minlength=z.size)
+    ang = 2 * np.pi * (phi - np.floor(phi))
+    yr, yi = x * np.cos(ang), -x * np.sin(ang)  # x exp(-j 2 pi phi)
+    del ang
+    # sample n lies in windows j = lead(n) (weight w) and j + 1 (weight 1 - w: the two Hann
+    # halves, sin^2 and cos^2 of the same angle); lead is non-decreasing, so the sums over
+    # each j are sums over contiguous runs (reduceat)
+    lead = np.floor(rel + 0.5) - 1.0 - k_first
+    w = np.sin(0.5 * np.pi * (rel - (lead + k_first) + 0.5)) ** 2
+    nz = k_last - k_first + 1
+    # run r holds the samples with lead = r - 2: before the first window (r <= 1, only the
+    # later half of window 0 when r = 1), windows 0 .. nz - 1, past the last (r = nz + 2)
+    j = np.clip(lead, -2, nz).astype(np.int64) + 2
+    starts = np.searchsorted(j, np.arange(nz + 3))
+    has = starts < j.size
+    run = np.zeros((5, nz + 3))
+
+    def sums(v):
+        out = np.zeros(nz + 3)
+        s0 = starts[has]
+        red = np.add.reduceat(v, s0)
+        empty = np.append(s0[1:] == s0[:-1], s0[-1] >= j.size) if s0.size else s0
+        out[np.flatnonzero(has)] = np.where(empty, 0.0, red)
+        return out
+
+    run[0], run[1], run[2], run[3] = sums(w * yr), sums(w * yi), sums(yr), sums(yi)
+    run[4] = sums(w)
+    cnt = np.diff(np.append(starts, j.size)).astype(np.float64)
+    # window j: its own samples at weight w, plus the previous run's at 1 - w
+    own, prev = slice(2, nz + 2), slice(1, nz + 1)
+    zr = run[0, own] + (run[2, prev] - run[0, prev])
+    zi = run[1, own] + (run[3, prev] - run[1, prev])
+    z = zr + 1j * zi
+    wsum = run[4, own] + (cnt[prev] - run[4, prev])
+    miss = np.zeros(nz)
+    if missing.any():
+        mcum = np.concatenate(([0], np.cumsum(missing)))
+        bounds = np.append(starts, j.size)
+        # samples of window i: runs i + 1 and i + 2
+        miss = (mcum[bounds[3:nz + 3]] - mcum[bounds[1:nz + 1]]).astype(np.float64)
     ks = np.arange(k_first, k_last + 1, dtype=np.float64)
     mag = np.sqrt(2) * np.abs(z) / np.maximum(wsum, 1e-300)
     bad = (mag < max(0.2 * amp, 1e-12)) | (wsum <= 0) | (miss > 0)
