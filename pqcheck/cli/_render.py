@@ -138,8 +138,10 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
                                    initial_indent=f"{label if k == 0 else '':<10}",
                                    subsequent_indent=" " * 12)
     if result is not None:
-        lines.append(f"Capture   {result.source}  ({result.duration_s:.3f} s, "
-                     f"{int(result.windows.valid.sum())} valid windows)")
+        lines += textwrap.wrap(f"{result.source}  ({result.duration_s:.3f} s, "
+                               f"{int(result.windows.valid.sum())} valid windows)",
+                               width=width, initial_indent="Capture   ",
+                               subsequent_indent=" " * 12, break_on_hyphens=False)
     for t in a.tables:
         sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
                         for k, v in t.selectors)

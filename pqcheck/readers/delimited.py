@@ -60,7 +60,7 @@ def _locate_cell(path, dialect, kind: str = "bad"):
     names = dialect.pandas_names
     reader = pd.read_csv(
         path,
-        sep=dialect.delimiter or "\n",
+        sep=dialect.delimiter or "\x1f",  # one column: a separator no text file holds
         header=None,
         names=names,
         skiprows=dialect.data_line - 1,
