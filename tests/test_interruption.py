@@ -199,8 +199,16 @@ def test_killed_report_leaves_previous_or_complete_files(tmp_path):
     print(outcomes)  # shown with pytest -s: (killed, pdf, json) per child
     # the slowed children were killed while writing the PDF: the kill hit a half-written
     # temporary file, and the target still shows the previous version or nothing
+    inside = 0
     for name in ("slow-write-start", "slow-write-0.25s"):
         killed, pdf, js = outcomes[name]
-        assert killed and pdf in ("absent", "previous") and js in ("absent", "previous"), (
-            name, outcomes[name])
-        assert _parts(tmp_path / name), f"{name}: the kill did not land inside the write"
+        if not killed:  # a loaded machine can finish the write first: then it is complete
+            assert (pdf, js) == ("complete", "complete"), (name, outcomes[name])
+            continue
+        # all or nothing: both old (or absent), or both complete (killed after the commit)
+        assert ((pdf in ("absent", "previous") and js in ("absent", "previous"))
+                or (pdf, js) == ("complete", "complete")), (name, outcomes[name])
+        inside += bool(_parts(tmp_path / name))
+    # at least one kill must have landed inside the (slowed) write, or the test proved
+    # nothing about half-written files
+    assert inside >= 1, f"no kill landed inside the write: {outcomes}"
