@@ -681,9 +681,9 @@ def _pcc_basis(plan) -> str:
         return ""
     parts = []
     if isc:
-        parts.append(f"ISC = {fmt(isc, 5, 'A')}")
+        parts.append(f"ISC = {isc:g} A")
     if il:
-        parts.append(f"IL = {fmt(il, 5, 'A')}")
+        parts.append(f"IL = {il:g} A")
     if isc and il:
         parts.append(f"ISC/IL = {fmt(isc / il, 3)}")
     text_ = ", ".join(parts) + " (test plan, [site])"
