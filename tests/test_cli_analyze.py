@@ -168,3 +168,15 @@ def test_inspect_lists_columns_and_guessed_roles(single_phase_csv):
     assert "10000 Hz" in out  # sample rate from the ms time column
     assert "--current i_a --voltage v_a" in out  # how to confirm the guessed roles
     assert "semicolon" in out and "','" in out  # detected dialect shown to the user
+
+
+def test_a_plan_or_a_report_given_to_analyze_names_the_right_command(tmp_path):
+    plan = tmp_path / "plan.toml"
+    plan.write_text('schema = 1\n[[captures]]\nfile = "x.csv"\n', encoding="utf-8")
+    res = CliRunner().invoke(main, ["analyze", str(plan)])
+    assert res.exit_code == 2
+    assert "a TOML file is not a capture: for a test plan use `pqcheck report" in res.output
+    pdf = tmp_path / "r.pdf"
+    pdf.write_bytes(b"%PDF-1.4\n")
+    res = CliRunner().invoke(main, ["analyze", str(pdf)])
+    assert res.exit_code == 2 and "pqcheck verify" in res.output

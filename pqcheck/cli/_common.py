@@ -132,3 +132,15 @@ def handle_errors(func):
             return _guarded(func, *args, **kwargs)
 
     return wrapper
+
+
+def refuse_non_capture(path) -> None:
+    """Exit 2 with the right command when ``path`` is a test plan, a limit table or a report
+    rather than a capture (instead of a reader error about its first line)."""
+    low = str(path).lower()
+    if low.endswith(".toml"):
+        fail_usage(f"{path}: a TOML file is not a capture: for a test plan use `pqcheck report "
+                   f"{path} -o report.pdf`; a limit table goes to --limits")
+    if low.endswith(".pdf"):
+        fail_usage(f"{path}: this is a PDF (a report?), not a capture: check a report with "
+                   f"`pqcheck verify {path}`")

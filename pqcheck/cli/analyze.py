@@ -288,7 +288,9 @@ def analyze_cmd(capture, fmt, **opts):
     """
     from ..export import harmonics_frame
     from ..results import analysis_document, dumps
+    from ._common import refuse_non_capture
 
+    refuse_non_capture(capture)
     run = run_checked(spec_from_options(capture, opts), opts)
     result = run.result
     if fmt == "json":

@@ -72,8 +72,10 @@ def render_summary(summary: dict, run) -> str:
 @click.argument("inputs", nargs=-1, required=True, metavar="DIR_OR_GLOB...")
 @limit_options(required=True)
 @capture_options
-@click.option("--out", "out", type=click.Path(dir_okay=False), metavar="FILE",
-              help="Results table as Parquet (resumed from when it exists).")
+@click.option("-o", "--output", "--out", "out", type=click.Path(dir_okay=False),
+              metavar="FILE",
+              help="Results table as Parquet (resumed from when it exists); -o/--output as "
+                   "for every command that writes a file (--out still works).")
 @click.option("--csv", "csv_path", type=click.Path(dir_okay=False), metavar="FILE",
               help="Results table as CSV (resumed from when it exists and --out does not).")
 @click.option("--jobs", "-j", type=click.IntRange(1), metavar="N",
