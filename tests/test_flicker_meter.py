@@ -10,7 +10,7 @@ Sources of the expected values (each check names its table beside it):
 * IEC 61000-4-15:2010 Table 5: rectangular changes per minute giving Pst = 1.00. Accuracy
   required: Pst within +-5 %.
 
-The table values below were read from a public transcription of the 2010 edition's tables
+The table values below were read from a public reproduction of the 2010 edition's tables
 (a metrology institute's verification script) and agree with the 2003 edition's values where
 those are unchanged; they were not compared with a paper copy of the standard, so treat them
 as `from memory` for an audit and check them against your copy. dV/V is the peak-to-peak
