@@ -43,6 +43,7 @@ import threading
 from pathlib import Path
 
 from ..errors import ReportError
+from .read import describe_mode
 
 __all__ = ["OutputSet", "check_target", "atomic_open", "write_atomic", "same_file"]
 
@@ -71,16 +72,7 @@ def same_file(a, b) -> bool:
     return ia is not None and ia == _identity(b)
 
 
-def _kind(mode: int) -> str:
-    if stat.S_ISDIR(mode):
-        return "a folder"
-    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
-        return "a device"
-    if stat.S_ISFIFO(mode):
-        return "a FIFO (named pipe)"
-    if stat.S_ISSOCK(mode):
-        return "a socket"
-    return "not a regular file"
+_kind = describe_mode  # one wording for a file that is not a regular file
 
 
 class _Target:

@@ -16,7 +16,6 @@ even when the attachment was left alone.
 
 from __future__ import annotations
 
-import difflib
 import json
 from pathlib import Path
 
@@ -24,14 +23,13 @@ from ..errors import InputError, PqcheckError
 from .verify import (
     ABS_TOL,
     REL_TOL,
-    Difference,
     FileCheck,
     Verification,
     _attachment,
     _locate,
     _page_texts,
-    _zip_longest_lines,
     compare_documents,
+    compare_page_texts,
 )
 
 __all__ = ["SITE_KIND", "is_site_document", "verify_site"]
@@ -168,19 +166,5 @@ def _pdf_differences(pdf: bytes, attached: bytes, study, recorded: dict) -> tupl
     and compare the text of each page. Returns (differences, lines compared)."""
     from ..report.site_pdf import render_site_pdf
 
-    old = _page_texts(pdf)
-    new = _page_texts(render_site_pdf(study, report=recorded.get("report") or {},
-                                      results_json=attached))
-    out, count = [], 0
-    if len(old) != len(new):
-        out.append(Difference("pdf pages", f"{len(old)} pages", f"{len(new)} pages",
-                              "visible report"))
-    for k, (a, b) in enumerate(zip(old, new), start=1):
-        count += max(len(a), len(b))
-        sm = difflib.SequenceMatcher(a=a, b=b, autojunk=False)
-        for tag, i1, i2, j1, j2 in sm.get_opcodes():
-            if tag == "equal":
-                continue
-            for x, y in _zip_longest_lines(a[i1:i2], b[j1:j2]):
-                out.append(Difference(f"pdf page {k}", x, y, "visible report"))
-    return out, count
+    return compare_page_texts(_page_texts(pdf), _page_texts(render_site_pdf(
+        study, report=recorded.get("report") or {}, results_json=attached)))

@@ -525,7 +525,6 @@ def _pdf_text_differences(pdf: bytes, attached: bytes, recorded: dict, runs, pla
     results printed on its pages is that of the data that travel with the PDF: the numbers
     themselves were compared with the recomputation already, within the tolerance, and the
     last bits of a float may differ from one machine to another."""
-    import difflib
     from datetime import datetime
 
     from ..report.job import ReportJob, ReportMeta
@@ -547,7 +546,15 @@ def _pdf_text_differences(pdf: bytes, attached: bytes, recorded: dict, runs, pla
                      "names, id or time)")
         return [], 0
     job = ReportJob(meta=meta, runs=runs, plan=plan)
-    old, new = _page_texts(pdf), _page_texts(render_pdf(job, results_json=attached))
+    return compare_page_texts(_page_texts(pdf),
+                              _page_texts(render_pdf(job, results_json=attached)))
+
+
+def compare_page_texts(old, new) -> tuple:
+    """Line differences between the recorded and the re-rendered pages' texts (one list
+    per page), and the number of lines compared: ``(differences, count)``."""
+    import difflib
+
     out, count = [], 0
     if len(old) != len(new):
         out.append(Difference("pdf pages", f"{len(old)} pages", f"{len(new)} pages",
