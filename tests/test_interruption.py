@@ -194,7 +194,7 @@ def test_killed_report_leaves_previous_or_complete_files(tmp_path):
         for p in _parts(d):
             assert p.name.startswith("."), "temporaries are hidden and never the target name"
         if not c.killed:  # finished before its moment: then it wrote complete files
-            assert c.proc.returncode == 0
+            assert c.proc.returncode in (0, 1, 3, 4)  # a verdict, not an error (exit codes)
             assert (pdf, js) == ("complete", "complete")
     print(outcomes)  # shown with pytest -s: (killed, pdf, json) per child
     # the slowed children were killed while writing the PDF: the kill hit a half-written
