@@ -219,3 +219,22 @@ def test_test_date_option_and_summary_detail(tmp_path):
     bad = CliRunner().invoke(main, ["report", str(cap), *LIMIT_ARGS, "-o",
                                     str(tmp_path / "x.pdf"), "--test-date", "yesterday"])
     assert bad.exit_code == 2 and "YYYY-MM-DD" in bad.output
+
+
+def test_repeated_wording_is_said_once():
+    from pqcheck.report.text import merge_variants
+
+    # texts that differ in one quoted name or one number are merged; others stay apart
+    texts = ["T: the dc component of 'ia' was measured through x.",
+             "T: the dc component of 'ib' was measured through x.",
+             "T: the dc component of 'ic' was measured through x.",
+             "T: the capture covers 0.9996 s; the period is 7 days.",
+             "T: the capture covers 1 s; the period is 7 days.",
+             "T: the capture covers 1 s; the period is 7 days.",
+             "IEC 61000-4-7 applies to 'ia' at 2 kHz.",
+             "IEC 61000-4-7 applies to 'ib' at 9 kHz."]  # two slots differ: kept apart
+    assert merge_variants(texts) == [
+        "T: the dc component of 'ia', 'ib' and 'ic' was measured through x.",
+        "T: the capture covers 0.9996 to 1 s; the period is 7 days.",
+        "IEC 61000-4-7 applies to 'ia' at 2 kHz.",
+        "IEC 61000-4-7 applies to 'ib' at 9 kHz."]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 import numpy as np
 
-from ._common import EXIT_OK, handle_errors, main
+from ._common import EXIT_OK, format_option, handle_errors, main
 from ._fields import cli_text, spec_from_options
 
 __all__ = ["capture_options", "run_checked", "print_cache_notices"]
@@ -69,7 +69,7 @@ def capture_options(func):
                           "impedance paths at 50 Hz, 120 V at 60 Hz)."),
         click.option("--no-cache", "no_cache", is_flag=True,
                      help="Do not read or write the cache of parsed captures and results."),
-        click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False),
+        click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False), metavar="DIR",
                      help="Cache folder (default $PQCHECK_CACHE_DIR or ~/.cache/pqcheck)."),
         click.option("--quiet", "-q", is_flag=True, help="No progress bar."),
     ]
@@ -277,8 +277,8 @@ def render_flicker(fa) -> list:
 @main.command("analyze")
 @click.argument("capture", type=click.Path(dir_okay=False))
 @capture_options
-@click.option("--format", "fmt", type=click.Choice(["table", "json", "csv"]), default="table",
-              show_default=True, help="Output on stdout.")
+@format_option("analyze", help="Output on stdout: a readable table, the results document "
+                                "(json), or one CSV row per channel and order (csv).")
 @handle_errors
 def analyze_cmd(capture, fmt, **opts):
     """Harmonic analysis of CAPTURE by the IEC 61000-4-7 method.

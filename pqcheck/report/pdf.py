@@ -357,14 +357,9 @@ def _unit_text(chk) -> str:
 def _designation(lim) -> str:
     """``"IEEE Std 519-2022"``, ``"IEC 61000-3-2 ed. 5.0 (2018)"``: the standard as it is
     cited."""
-    std, ed = (lim.standard or "").strip(), (lim.edition or "").strip()
-    if not std:
-        return lim.table_id
-    if not ed:
-        return std
-    if ed.isdigit() and len(ed) == 4:
-        return f"{std}-{ed}"
-    return f"{std} ed. {ed}"
+    from ..limits import designation
+
+    return designation(lim.standard, lim.edition, lim.table_id)
 
 
 def _clause_text(lim, chk) -> str:
