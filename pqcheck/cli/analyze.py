@@ -182,6 +182,14 @@ def render_table(result) -> str:
         what = {"current": "current", "voltage": "voltage"}.get(c.quantity, c.quantity)
         return f"{what}, phase {c.phase}" if c.phase else f"{what}, single-phase"
 
+    from ..findings import channel_flags
+
+    flags = channel_flags(r.findings, [c.name for c in r.channels])
+
+    def flag(*names):  # the errors (findings) that undermine these channels' values
+        codes = list(dict.fromkeys(x for n in names for x in flags.get(n, ())))
+        return f"  ! {', '.join(codes)}" if codes else ""
+
     name_w = max([7] + [len(c.name) for c in r.channels]) + 2
     role_w = max(len(role_of(c)) for c in r.channels) + 2
     head = (f"{'channel':<{name_w}}{'role':<{role_w}}{'rms':>12}{'fundamental':>14}"
@@ -194,7 +202,7 @@ def render_table(result) -> str:
             f"{c.name:<{name_w}}{role_of(c):<{role_w}}{fixed(c.rms, 2, c.unit):>12}"
             f"{fixed(c.fundamental_rms, 2, c.unit):>14}{fixed(c.thd_percent, 2):>9}"
             f"{fixed(c.thd_group_percent, 2):>9}{fixed(c.tdd_percent, 2):>9}"
-            f"{fixed(c.crest_factor, 3):>8}")
+            f"{fixed(c.crest_factor, 3):>8}" + flag(c.name))
     lines.append("")
     # harmonic table: % of fundamental, orders 2..H with any value >= 0.1 %
     chans = r.channels
@@ -225,14 +233,16 @@ def render_table(result) -> str:
             lines.append(
                 f"  phase {ph.phase or '1ph':<4} P {_eng(ph.p_w, 'W'):>11}  "
                 f"S {_eng(ph.s_va, 'VA'):>11}  Q1 {_eng(ph.q1_var, 'var'):>11}  "
-                f"PF {_fmt(ph.pf, 4):>7}  DPF {_fmt(ph.dpf, 4):>7}")
+                f"PF {_fmt(ph.pf, 4):>7}  DPF {_fmt(ph.dpf, 4):>7}"
+                + flag(ph.voltage, ph.current))
         tot = f"  total      P {_eng(p.p_w, 'W'):>11}"
         if p.se_va is not None:
             tot += f"  Se {_eng(p.se_va, 'VA'):>11}"
         tot += f"  PF {_fmt(p.pf, 4):>7}"
         if p.wiring:
             tot += f"  ({p.wiring})"
-        lines.append(tot)
+        bad = [ph.phase or "1ph" for ph in p.phases if flag(ph.voltage, ph.current)]
+        lines.append(tot + (f"  ! includes phase {', '.join(bad)}" if bad else ""))
         if "i_unbalance_percent" in p.extra:
             lines.append(f"  current unbalance (I2/I1) {_fmt(p.extra['i_unbalance_percent'], 3)} %"
                          f", voltage unbalance {_fmt(p.extra['v_unbalance_percent'], 3)} %")
@@ -240,6 +250,8 @@ def render_table(result) -> str:
         lines.append("")
         lines += render_flicker(r.flicker)
     lines.append("")
+    if flags:
+        lines.append("! values of a channel that an error below undermines: shown, not relied on")
     if r.findings:
         lines.append("Findings")
         for f in r.findings:

@@ -41,6 +41,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from ..findings import channel_flags
 from . import figures, text
 from .job import NOT_ASSESSED
 from .style import (
@@ -732,15 +733,21 @@ def _summary(b: _Builder) -> None:
             tdd = (" / ".join(fmt(c.tdd_percent, 3) for c in cur) + " %"
                    if cur and any(c.tdd_percent is not None for c in cur) else "\u2013")
             p = res.power
+            flagged = channel_flags(res.findings, [c.name for c in res.channels])
+            mark = f" {_FLAG}" if flagged else ""
             rows.append([r.load_point or "\u2013", r.id,
-                         fmt(p.p_w / 1e3, 4, "kW") if p is not None else "\u2013",
+                         fmt(p.p_w / 1e3, 4, "kW") + mark if p is not None else "\u2013",
                          thd, tdd, fmt(p.pf, 3) if p is not None else "\u2013",
                          _verdict_para(b, r.verdict)])
             extra += _verdict_style(6, len(rows) - 1, r.verdict)
         b.add(b.table(rows, [0.11, 0.15, 0.11, 0.2, 0.18, 0.07, 0.18], right=(2, 5),
                       extra_style=extra))
         b.add(b.p("P total: active power over the capture (negative = export). THD and TDD: "
-                  "capture values per phase a / b / c. PF: total power factor (IEEE 1459).",
+                  "capture values per phase a / b / c. PF: total power factor (IEEE 1459)."
+                  + (f" {_FLAG}: a data-quality error undermines a channel of this capture "
+                     "(section 3); its values are shown, not relied on." if any(
+                         channel_flags(r.result.findings, [c.name for c in r.result.channels])
+                         for r in runs) else ""),
                   "caption"))
 
     if job.assessed:
@@ -1164,8 +1171,21 @@ def _analysis_tables(b: _Builder, run, harmonics) -> None:
     b.add(b.table(rows, widths, right=tuple(range(1, n + 1))))
 
 
+_FLAG = "\u26a0"
+"""Marks a value that a data-quality error undermines (with the finding's code beside it)."""
+
+
+def _flagged(b: _Builder, label: str, codes) -> Paragraph | str:
+    """A row label with the codes of the errors that undermine its values: ``ib`` over
+    ``⚠ clipping``."""
+    if not codes:
+        return label
+    return b.m(f"{esc(label)}<br/><b>{_FLAG} {esc(', '.join(codes))}</b>", "cell")
+
+
 def _channels_and_power(b: _Builder, run) -> None:
     res = run.result
+    flags = channel_flags(res.findings, [c.name for c in res.channels])
     chans = sorted(res.channels, key=lambda c: (c.quantity != "current",
                                                  _PHASE_ORDER.get(c.phase, 9)))
     rows = [["Channel", "Phase", "rms", "Fundamental", "THD", "THD group", "TDD", "PWHD",
@@ -1174,7 +1194,8 @@ def _channels_and_power(b: _Builder, run) -> None:
         def pct(x):
             return fmt_like(x, 10.0) + " %"
 
-        rows.append([c.name, c.phase or "1ph", fmt(c.rms, 4, c.unit),
+        rows.append([_flagged(b, c.name, flags.get(c.name)), c.phase or "1ph",
+                     fmt(c.rms, 4, c.unit),
                      fmt(c.fundamental_rms, 4, c.unit), pct(c.thd_percent),
                      pct(c.thd_group_percent),
                      pct(c.tdd_percent) if c.tdd_percent is not None else "\u2013",
@@ -1183,7 +1204,9 @@ def _channels_and_power(b: _Builder, run) -> None:
     il = res.settings.il_a
     b.tcaption(f"{run.id}: channel values over the capture. THD over orders 2 to "
                f"{res.max_resolved_order}; TDD relative to IL = "
-               + (f"{il:g} A" if il else "not given") + "; PWHD over orders 14 to 40 (groups).")
+               + (f"{il:g} A" if il else "not given") + "; PWHD over orders 14 to 40 (groups)."
+               + (f" {_FLAG}: a data-quality error (section 3) undermines the channel's values; "
+                  "they are shown, not relied on." if flags else ""))
     b.add(b.table(rows, [0.09, 0.07, 0.1, 0.14, 0.08, 0.09, 0.08, 0.12, 0.09, 0.14],
                   right=tuple(range(2, 10))))
     p = res.power
@@ -1196,13 +1219,19 @@ def _channels_and_power(b: _Builder, run) -> None:
     def k(x, ref, unit):  # kW, kVA, kvar with the decimals of the phase's apparent power
         return fmt_like(x / 1e3, ref / 1e3 if ref else None) + f" {unit}"
 
+    bad_phases = []
     for ph in p.phases:
-        rows.append([f"{ph.phase or '1ph'} ({ph.voltage} \u00d7 {ph.current})",
+        codes = tuple(dict.fromkeys(flags.get(ph.voltage, ()) + flags.get(ph.current, ())))
+        if codes:
+            bad_phases.append(ph.phase or "1ph")
+        rows.append([_flagged(b, f"{ph.phase or '1ph'} ({ph.voltage} \u00d7 {ph.current})",
+                              codes),
                      k(ph.p_w, ph.s_va, "kW"), k(ph.s_va, ph.s_va, "kVA"),
                      k(ph.p1_w, ph.s_va, "kW"), k(ph.q1_var, ph.s_va, "kvar"),
                      k(ph.s1_va, ph.s_va, "kVA"), fmt(ph.pf, 4), fmt(ph.dpf, 4)])
     ref = p.se_va if p.se_va else None
-    total = ["total", k(p.p_w, ref, "kW"),
+    total = [b.m(f"total<br/><b>{_FLAG} includes {esc(', '.join(bad_phases))}</b>", "cell")
+             if bad_phases else "total", k(p.p_w, ref, "kW"),
              k(p.se_va, ref, "kVA") + (" (Se)" if p.wiring else "")
              if p.se_va is not None else "\u2013", "", "", "", fmt(p.pf, 4), ""]
     if "dpf_pos" in p.extra:
@@ -1219,6 +1248,10 @@ def _channels_and_power(b: _Builder, run) -> None:
     if "i_unbalance_percent" in p.extra:
         cap += (f" Current unbalance I2/I1 {fmt(p.extra['i_unbalance_percent'], 3, '%')}, "
                 f"voltage unbalance {fmt(p.extra.get('v_unbalance_percent'), 3, '%')}.")
+    if bad_phases:
+        cap += (f" {_FLAG}: the power of phase {', '.join(bad_phases)} comes from a channel "
+                "that a data-quality error (section 3) undermines, and so does the total; "
+                "shown, not relied on.")
     b.tcaption(cap)
     b.add(b.table(rows, [0.22, 0.1, 0.13, 0.11, 0.12, 0.1, 0.1, 0.12],
                   right=tuple(range(1, 8)),
