@@ -171,13 +171,15 @@ file = "{clipped.name}"
     return p, clipped
 
 
-def test_excluded_capture_is_listed_with_its_reason_and_does_not_decide(tmp_path):
+def test_excluded_capture_is_listed_with_its_reason_and_does_not_decide(tmp_path,
+                                                                       monkeypatch):
     from conftest import write_without_observation
 
     table = write_without_observation(tmp_path, "ieee519-2022")
     plan, clipped = _plan(tmp_path, table, exclude_line='exclude = "range set wrongly"')
     out, js = tmp_path / "r.pdf", tmp_path / "r.json"
-    res = CliRunner().invoke(main, ["report", str(plan), "-o", str(out), "--json", str(js),
+    monkeypatch.chdir(tmp_path)  # the plan named as typed, relative to the working folder
+    res = CliRunner().invoke(main, ["report", plan.name, "-o", str(out), "--json", str(js),
                                     "--no-cache"])
     # the clean capture (5th at 2 % of IL < 7 %, IEEE 519-2022 Table 2, 20 <= ISC/IL < 50)
     # passes; the excluded six-pulse record would fail, and does not count
@@ -186,6 +188,8 @@ def test_excluded_capture_is_listed_with_its_reason_and_does_not_decide(tmp_path
     assert "range set wrongly" in text and "excluded" in text.lower()
     assert hashlib.sha256(clipped.read_bytes()).hexdigest() in text  # still traceable
     assert "2026-11-30" in text and "T. Ester" in text  # date of test and operator
+    # every file is shown relative to the plan's folder, never by this machine's path
+    assert str(tmp_path) not in text.replace("\n", "") and "clean.csv" in text
     import json
 
     doc = json.loads(js.read_text())
