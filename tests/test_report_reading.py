@@ -242,3 +242,20 @@ def test_repeated_wording_is_said_once():
         "T: the capture covers 0.9996 to 1 s; the period is 7 days.",
         "IEC 61000-4-7 applies to 'ia' at 2 kHz.",
         "IEC 61000-4-7 applies to 'ib' at 9 kHz."]
+
+
+def test_verdict_reasons_are_said_once_and_gates_stay_out_of_the_tables(report):
+    first, text = report["pages"][0], report["text"]
+    flat = " ".join(text.split())
+    # one deviation for the three phase currents, not three lines that differ in a name
+    assert "'ia', 'ib' and 'ic'" in " ".join(first.split())
+    assert "of 'ib' was measured" not in flat
+    # the observation gate is named beside the verdict, not as a row of the totals table:
+    # the totals compare one statistic, named in the caption
+    assert "Undecided by observation-short: ieee519-2022: the capture covers" in flat
+    assert "totals against ieee519-2022 (RMS of 10/12-cycle values over the capture)" in flat
+    assert "capture; gate" not in flat
+    # the method says what was compared, and that the table's survey evaluation was not run
+    assert "Compared in this report: RMS of 10/12-cycle values over the capture." in flat
+    assert "needs a survey longer than these captures and was not applied" in flat
+    assert "[U+00AD]" not in text  # no soft hyphen of our own shown as a code point
