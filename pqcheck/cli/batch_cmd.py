@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-import math
 import os
 import sys
 
 import click
 
+from .. import numfmt
 from ._common import fail_usage, format_option, handle_errors, main, output_option
 from ._fields import cli_text, spec_from_options
 from ._limits import limit_options
@@ -16,12 +16,6 @@ from .analyze import capture_options
 __all__ = ["render_summary"]
 
 _MAX_ERRORS = 20
-
-
-def _num(x, digits=4) -> str:
-    if x is None or not math.isfinite(x):
-        return "-"
-    return f"{x:.{digits}g}"
 
 
 _MAX_NAMED = 10
@@ -148,11 +142,11 @@ def render_summary(summary: dict, run) -> str:
         rows = []
         for w in s["worst"]:
             cap_v = verdict_of.get(w["capture"], w["verdict"])
-            rows.append([_num(w["margin_percent"], 3),
+            rows.append([numfmt.value(w["margin_percent"], "margin", unit=""),
                          cap_v.upper() if cap_v != "pass" else cap_v,
                          w["capture"], w["table_id"], w["channel"], w["label"],
                          w["verdict"] if w["verdict"] != cap_v else "",
-                         _num(w["measured"]), _num(w["limit"]), w["unit"]])
+                         *numfmt.value_and_limit(w["measured"], w["limit"]), w["unit"]])
         if not any(r[6] for r in rows):
             head.pop(6)
             rows = [r[:6] + r[7:] for r in rows]
