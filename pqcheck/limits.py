@@ -34,6 +34,7 @@ from dataclasses import dataclass, replace
 from importlib import resources
 from pathlib import Path
 
+from . import numfmt
 from ._limit_model import (
     BASES,
     HARMONIC,
@@ -83,6 +84,7 @@ __all__ = [
     "ResolvedLimits",
     "HARMONIC",
     "bundled_ids",
+    "table_path",
     "list_tables",
     "load_table",
     "read_table",
@@ -267,9 +269,46 @@ def list_tables() -> list:
     return [load_table(i) for i in bundled_ids()]
 
 
-def _looks_like_path(name: str) -> bool:
-    return (os.sep in name or "/" in name or name.lower().endswith(".toml")
-            or os.path.exists(name))
+def table_path(id_or_path, folder=None) -> Path | None:
+    """The one rule that tells a bundled table id from the path of a table file.
+
+    A path is an ``os.PathLike``, or text with a folder separator (``/`` or ``\\``) or ending
+    in ``.toml`` (any case); anything else is a bundled id (name XOR path: a file in the
+    current folder is never taken for an id, nor an id for a file). Every place that takes a
+    table (the API's :func:`load_table`, the command line, test plans, site files) decides
+    it here.
+
+    Parameters
+    ----------
+    id_or_path : str or os.PathLike
+        As the user wrote it.
+    folder : str or os.PathLike or None
+        The folder a relative path resolves against (a plan's or a site file's); None: as
+        given (the current folder).
+
+    Returns
+    -------
+    pathlib.Path or None
+        The table file's path (``~`` expanded, relative ones joined to ``folder``), or None
+        for a bundled id.
+
+    Examples
+    --------
+    >>> table_path("ieee519-2022") is None
+    True
+    >>> str(table_path("tables/utility.toml", folder="/srv/plans"))
+    '/srv/plans/tables/utility.toml'
+    """
+    if not isinstance(id_or_path, os.PathLike):
+        text = str(id_or_path).strip()
+        if not ("/" in text or "\\" in text or os.sep in text
+                or text.lower().endswith(".toml")):
+            return None
+        id_or_path = text
+    p = Path(id_or_path).expanduser()
+    if folder is not None and not p.is_absolute():
+        p = Path(folder) / p
+    return p
 
 
 def load_table(id_or_path) -> LimitTable:
@@ -290,7 +329,7 @@ def load_table(id_or_path) -> LimitTable:
         The file is missing, not valid TOML, or breaks the schema (the first problem; all of
         them are in the exception's ``errors`` attribute).
     """
-    if isinstance(id_or_path, os.PathLike) or _looks_like_path(str(id_or_path)):
+    if table_path(id_or_path) is not None:
         return read_table(id_or_path)
     name = str(id_or_path).strip()
     res = _bundled().get(name.casefold())
@@ -301,9 +340,11 @@ def load_table(id_or_path) -> LimitTable:
         near = [i for i in ids if i.startswith(name.casefold())] or difflib.get_close_matches(
             name.casefold(), ids, n=3, cutoff=0.5)
         hint = f"did you mean {' or '.join(near)}? " if near else ""
+        file = (f"; a bare name is a bundled id: to use the file {name!r}, write "
+                f"'./{name}'") if os.path.isfile(name) else ""
         raise LimitTableError(
             f"unknown limit table {name!r}; {hint}bundled tables: {', '.join(ids)} "
-            "(or give the path of a .toml file)", field="table")
+            f"(or give the path of a .toml file){file}", field="table")
     with resources.as_file(res) as p:
         return read_table(p)
 
@@ -531,7 +572,7 @@ def _choice(spec: SelectorSpec | None, value):
 
 
 def _fmt(x: float) -> str:
-    return "inf" if math.isinf(x) else f"{x:g}"
+    return numfmt.given(x)
 
 
 def _cond_text(spec: SelectorSpec, cond) -> str:

@@ -32,8 +32,8 @@ from .errors import InputError
 from .export import SCHEMA_VERSION  # version of the documents (1: before run_spec)
 
 __all__ = ["SCHEMA_VERSION", "KINDS", "tool_block", "analysis_document", "check_document",
-           "batch_document", "read_document", "run_spec_of", "results_schema",
-           "shipped_schema", "dumps"]
+           "batch_document", "read_document", "run_spec_of", "batch_row_spec", "spec_json",
+           "results_schema", "shipped_schema", "dumps"]
 
 
 KINDS = ("analysis", "check", "report", "batch")
@@ -86,6 +86,42 @@ def batch_document(summary: dict, run_info: dict, captures: list, spec) -> dict:
 def dumps(doc: dict) -> str:
     """JSON text of a document (indented)."""
     return json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False)
+
+
+def spec_json(spec: dict) -> str:
+    """Compact JSON of a run specification (:meth:`~pqcheck.record.RunSpec.to_dict`), keys
+    sorted: the ``run_spec`` column of the batch rows."""
+    return json.dumps(spec, separators=(",", ":"), sort_keys=True, ensure_ascii=False,
+                      allow_nan=False)
+
+
+def batch_row_spec(row: dict, *, where: str = "row"):
+    """The :class:`~pqcheck.record.RunSpec` of one row of a batch results table
+    (:data:`pqcheck.run.batch.SCHEMA`), read as data, to check that capture again.
+
+    Parameters
+    ----------
+    row : dict
+        One row (e.g. ``table.to_pylist()[k]``) with ``schema_version`` and ``run_spec``.
+    where : str
+        How messages name the row.
+
+    Raises
+    ------
+    InputError
+        The row is of another schema version, or carries no run specification or one that
+        does not validate.
+    """
+    version = row.get("schema_version")
+    if version != SCHEMA_VERSION:
+        raise InputError(f"a batch row of results schema version {version!r}; this pqcheck "
+                         f"reads version {SCHEMA_VERSION} (run the batch again with this "
+                         "version)", field=f"{where}.schema_version")
+    try:
+        spec = json.loads(row.get("run_spec") or "null")
+    except ValueError as exc:
+        raise InputError(f"run_spec is not JSON ({exc})", field=f"{where}.run_spec") from None
+    return run_spec_of({"run_spec": spec}, where)
 
 
 def read_document(doc, *, path=None, kinds=KINDS) -> dict:

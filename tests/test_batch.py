@@ -433,3 +433,64 @@ def test_batch_takes_the_limit_options_of_check():
     check_names = {p.name for p in check_cmd.params} - {"capture", "all_checks",
                                                          *SURVEY_OPTION_NAMES}
     assert check_names <= batch_names  # every option of check, so selectors never drift
+
+
+# --- every row carries its run specification --------------------------------------------------
+
+
+def test_every_row_carries_the_schema_version_and_its_run_spec(fleet, tmp_path):
+    import jsonschema
+
+    from pqcheck.results import SCHEMA_VERSION, batch_row_spec, results_schema
+    from pqcheck.run.check import check_capture
+
+    csv = tmp_path / "r.csv"
+    run_batch([fleet], spec(), csv=csv, use_cache=False)
+    rows = read_results(csv).to_pylist()  # through the CSV text: the JSON column survives it
+    schema = results_schema()
+    spec_schema = {"$defs": schema["$defs"], "$ref": "#/$defs/run_spec"}
+    by_capture = {}
+    for r in rows:
+        assert r["schema_version"] == SCHEMA_VERSION
+        jsonschema.validate(json.loads(r["run_spec"]), spec_schema)
+        s = batch_row_spec(r)
+        # the row's spec is the batch's, for this capture (opened by its absolute path)
+        assert s.reader.path == os.path.abspath(r["capture"])
+        assert s.with_capture("") == spec().with_capture("")
+        by_capture.setdefault(r["capture"], []).append(r)
+    assert {os.path.relpath(c, fleet) for c in by_capture} == set(CAPTURES)
+    broken = [r for c, rs in by_capture.items() if c.endswith("broken.csv") for r in rs]
+    assert broken[0]["verdict"] == "error" and batch_row_spec(broken[0]).reader.path
+    # one row checked again on its own, from its run_spec alone: the same number and verdict
+    [row] = [r for r in by_capture[str(fleet / "b-fail.parquet")]
+             if r["quantity"] == "harmonic" and r["order"] == 5 and r["channel"] == "ia"]
+    again = check_capture(batch_row_spec(row))
+    [c] = [c for c in again.assessment.checks
+           if c.quantity == "harmonic" and c.order == 5 and c.channel == "ia"]
+    assert (c.measured, c.verdict) == (row["measured"], row["verdict"])
+    assert again.result.sha256 == row["capture_sha256"]
+
+
+def test_a_row_of_another_schema_version_is_refused():
+    from pqcheck.errors import InputError
+    from pqcheck.results import SCHEMA_VERSION as V
+    from pqcheck.results import batch_row_spec
+
+    with pytest.raises(InputError, match=rf"^row\.schema_version: a batch row of results schema "
+                                         rf"version 0; this pqcheck reads version {V}"):
+        batch_row_spec({"schema_version": 0, "run_spec": "{}"})
+    with pytest.raises(InputError, match=r"^row\.run_spec: run_spec is not JSON"):
+        batch_row_spec({"schema_version": V, "run_spec": "{"})
+    with pytest.raises(InputError, match=r"^row\.run_spec: the results record no run "
+                                         r"specification"):
+        batch_row_spec({"schema_version": V, "run_spec": None})
+
+
+def test_results_of_an_older_pqcheck_are_not_resumed(fleet, tmp_path):
+    out = tmp_path / "r.parquet"
+    run_batch([fleet / "a-pass.csv"], spec(), out=out, use_cache=False)
+    old = pq.read_table(out).drop_columns(["schema_version", "run_spec"])
+    pq.write_table(old, out)
+    with pytest.raises(batch.InputError, match=r"batch results of an older pqcheck \(no "
+                                               r"schema_version and run_spec columns\)"):
+        run_batch([fleet / "a-pass.csv"], spec(), out=out, use_cache=False)

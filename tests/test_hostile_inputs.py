@@ -637,7 +637,7 @@ CASES = [
     E("plan-capture-missing", plan('file = "run 1 ü.csv"', 'file = "nope.csv"'), "plan",
       r"plan\.toml:15: captures\[1\]\.file: file 'nope\.csv' not found \(resolved against"),
     E("plan-table-missing", plan('table = "ieee519-2022"', 'table = "mine/limits.toml"'), "plan",
-      r"plan\.toml:11: limits\[1\]\.table: file 'mine/limits\.toml' not found"),
+      r"plan\.toml:11: limits\[1\]\.table: limit table 'mine/limits\.toml' not found"),
     E("plan-capture-broken", plan(capture_text="".join(
         replace_line(101, lambda f: [f[0], "abc", f[2]])())), "plan",
       r"plan\.toml:13: captures\[1\]: capture 'c1': .*run 1 ü\.csv:101: ia: cell 'abc'"),

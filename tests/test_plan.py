@@ -174,7 +174,7 @@ def test_user_limit_table_path_resolves_against_plan(folder):
     plan = load_plan(write(folder, text))
     assert plan.limits[0].path == folder.resolve() / "tables" / "mine.toml"
     text = MINIMAL.replace('table = "ieee519-2022"', 'table = "tables/other.toml"')
-    with pytest.raises(PlanError, match=r"limits\[1\]\.table: file 'tables/other\.toml' not "
+    with pytest.raises(PlanError, match=r"limits\[1\]\.table: limit table 'tables/other\.toml' not "
                                         "found"):
         load_plan(write(folder, text))
 

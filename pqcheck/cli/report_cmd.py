@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import os
 from dataclasses import replace
 from datetime import datetime, timezone
 
@@ -39,7 +38,9 @@ def _input_files(*sources: str, limits) -> list:
                 files += capture_files(source)
             except Exception:  # noqa: BLE001 - a broken capture is reported when it is read
                 pass
-    files += [x for x in limits or () if os.path.exists(x)]
+    from ..limits import table_path
+
+    files += [str(p) for p in map(table_path, limits or ()) if p is not None and p.exists()]
     return files
 
 

@@ -161,8 +161,10 @@ class DocReader:
             raise self.error(key_path, f"missing field '{key}': {what}")
         return vals[key]
 
-    def file(self, text: str, folder: Path, key_path: tuple, check: bool) -> Path:
-        """A file path, relative ones resolved against ``folder``; checked to exist."""
+    def file(self, text: str, folder: Path, key_path: tuple, check: bool,
+             what: str = "file") -> Path:
+        """A file path, relative ones resolved against ``folder``; checked to exist
+        (``what`` names it in the message: "file", "limit table")."""
         p = Path(text).expanduser()
         if not p.is_absolute():
             p = folder / p
@@ -172,5 +174,5 @@ class DocReader:
             if p.is_dir():
                 raise self.error(key_path, f"{text!r} is a folder, not a file{where}; give the "
                                            "file inside it")
-            raise self.error(key_path, f"file {text!r} not found{where}")
+            raise self.error(key_path, f"{what} {text!r} not found{where}")
         return p

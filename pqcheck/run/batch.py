@@ -97,8 +97,13 @@ SCHEMA = pa.schema([
     ("capture_notes", pa.string()),      # the assessment's notes, joined by "; "
     ("error", pa.string()),              # message on an error row
     ("settings_key", pa.string()),       # limits and options the row was made with
+    ("schema_version", pa.int64()),      # pqcheck.results.SCHEMA_VERSION of the row
+    ("run_spec", pa.string()),           # JSON of the capture's RunSpec (to re-run the row)
 ])
-"""Columns of the results table."""
+"""Columns of the results table. ``run_spec`` is the capture's
+:class:`~pqcheck.record.RunSpec` as JSON (:meth:`~pqcheck.record.RunSpec.to_dict`, capture
+path as opened), so any row can be checked again on its own
+(:func:`pqcheck.results.batch_row_spec`)."""
 
 CHECKPOINT_S = 60.0
 """Seconds between rewrites of the results files while a batch runs."""
@@ -116,8 +121,10 @@ class MissingExtraError(PqcheckError):
 def batch_spec(spec):
     """The template :class:`~pqcheck.record.RunSpec` of a batch: no capture path, and the
     paths of user limit tables made absolute (workers may run in another folder)."""
-    lims = tuple(dataclasses.replace(s, table=os.path.abspath(s.table))
-                 if os.path.isfile(s.table) else s for s in spec.limits)
+    from ..limits import table_path
+
+    lims = tuple(dataclasses.replace(s, table=os.path.abspath(table_path(s.table)))
+                 if table_path(s.table) is not None else s for s in spec.limits)
     return dataclasses.replace(spec, reader=dataclasses.replace(spec.reader, path=""),
                                limits=lims)
 
@@ -300,15 +307,27 @@ def _num(x):
     return x if math.isfinite(x) else None
 
 
-def _blank_row(capture: str, sha, key: str) -> dict:
+def row_spec(spec: dict, path: str) -> str:
+    """The ``run_spec`` column of a capture's rows: the batch's template spec (a
+    :meth:`~pqcheck.record.RunSpec.to_dict`) for the capture at ``path``, as compact JSON."""
+    from ..results import spec_json
+
+    return spec_json({**spec, "reader": {**spec["reader"], "path": path}})
+
+
+def _blank_row(capture: str, sha, key: str, spec: str | None) -> dict:
+    from ..results import SCHEMA_VERSION
+
     row = dict.fromkeys(SCHEMA.names)
-    row.update(capture=capture, capture_sha256=sha, settings_key=key)
+    row.update(capture=capture, capture_sha256=sha, settings_key=key,
+               schema_version=SCHEMA_VERSION, run_spec=spec)
     return row
 
 
-def error_row(capture: str, sha, key: str, message: str) -> dict:
-    """The one row that records a capture that could not be checked."""
-    row = _blank_row(capture, sha, key)
+def error_row(capture: str, sha, key: str, message: str, spec: str | None = None) -> dict:
+    """The one row that records a capture that could not be checked (``spec``: its
+    :func:`row_spec`)."""
+    row = _blank_row(capture, sha, key, spec)
     row.update(capture_verdict="error", verdict="error", error=message)
     return row
 
@@ -335,7 +354,14 @@ def check_task(task: dict) -> list:
     try:
         return _check_rows(task)
     except Exception as exc:  # noqa: BLE001 - a batch records every failure as data
-        return [error_row(capture, sha, key, _relabel(_message(exc), task["path"], capture))]
+        return [error_row(capture, sha, key, _relabel(_message(exc), task["path"], capture),
+                          _task_spec(task))]
+
+
+def _task_spec(task: dict) -> str | None:
+    """The ``run_spec`` column of a task's rows (None if the task carries no spec)."""
+    spec = task.get("spec")
+    return None if not isinstance(spec, dict) else row_spec(spec, task["path"])
 
 
 def _check_rows(task: dict) -> list:
@@ -352,7 +378,9 @@ def _check_rows(task: dict) -> list:
         raise PqcheckError(f"{capture}: the file changed while the batch ran (SHA-256 "
                            f"{sha[:12]}... then {result.sha256[:12]}...); run the batch again")
     table_sha = {t.table_id: t.sha256 for t in a.tables}
-    base = _blank_row(capture, sha or result.sha256, key)
+    from ..results import spec_json
+
+    base = _blank_row(capture, sha or result.sha256, key, spec_json(spec.to_dict()))
     base.update(capture_verdict=a.verdict, capture_notes="; ".join(a.notes))
     if not a.checks:
         return [{**base, "verdict": a.verdict}]
@@ -651,13 +679,26 @@ def read_results(path, *, fmt: str | None = None) -> pa.Table:
         raise InputError(f"cannot read it as a results table ({exc}); give another output "
                          "file or `force` to replace it", path=str(p)) from None
     missing = [n for n in SCHEMA.names if n not in table.column_names]
+    if missing and set(missing) <= {"schema_version", "run_spec"}:
+        raise InputError("batch results of an older pqcheck (no schema_version and run_spec "
+                         "columns); give another output file or `force` to start it afresh",
+                         path=str(p))
     if missing:
         raise InputError(f"not a pqcheck batch results table (no column {missing[0]!r}); give "
                          "another output file or `force` to replace it", path=str(p))
     try:
-        return table.select(SCHEMA.names).cast(SCHEMA)
+        table = table.select(SCHEMA.names).cast(SCHEMA)
     except (pa.ArrowException, ValueError) as exc:
         raise InputError(f"columns of unexpected types ({exc})", path=str(p)) from None
+    from ..results import SCHEMA_VERSION
+
+    versions = set(table.column("schema_version").to_pylist())
+    if versions - {SCHEMA_VERSION}:
+        other = sorted(v for v in versions - {SCHEMA_VERSION} if v is not None)
+        raise InputError(f"rows of results schema version {other[0] if other else 'none'}; this "
+                         f"pqcheck writes version {SCHEMA_VERSION}: give another output file or "
+                         "`force` to start it afresh", path=str(p))
+    return table
 
 
 def write_results(table: pa.Table, *, parquet=None, csv=None, protect=()) -> None:
@@ -856,7 +897,7 @@ def run_batch(inputs, spec, *, out=None, csv=None, executor=None, force=False,
     key = settings_key(spec)  # resolves the tables: bad limits stop the batch before any work
     captures, ignored = find_captures(inputs, exclude=(out, csv))
     _refuse_captures_as_results(inputs, out, csv)
-    tables = [sel.table for sel in spec.limits if os.path.isfile(sel.table)]
+    tables = [sel.table for sel in spec.limits if os.path.isfile(sel.table)]  # absolute paths
     results = _Results(out, csv, key, force, protect=(*captures, *tables))
     done = results.done(retry_errors)
     executor = executor or InlineExecutor()
@@ -876,7 +917,8 @@ def run_batch(inputs, spec, *, out=None, csv=None, executor=None, force=False,
                         unreadable += 1
                         message = _relabel(h["error"], opened[i], captures[i])
                         results.add(captures[i], None,
-                                    [error_row(captures[i], None, key, message)])
+                                    [error_row(captures[i], None, key, message,
+                                               row_spec(spec_dict, opened[i]))])
                     elif (captures[i], h["sha256"]) in done:
                         skipped_paths.add(captures[i])
                     else:
@@ -886,7 +928,8 @@ def run_batch(inputs, spec, *, out=None, csv=None, executor=None, force=False,
                       "use_cache": use_cache} for i in sorted(todo)]
 
             def crashed(task, message):
-                return [error_row(task["capture"], task["sha256"], key, message)]
+                return [error_row(task["capture"], task["sha256"], key, message,
+                                  _task_spec(task))]
 
             with _bar(len(tasks), "checking", progress) as bar:
                 for i, rows in ex.imap_unordered(check_task, tasks, crashed):

@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..files.tomldoc import BOOL, NUM, POS, STR, STRS, DocReader, read_document
+from ..limits import table_path
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -530,10 +531,6 @@ class _Reader(DocReader):
         super().__init__(path, text, "plan")
 
 
-def _looks_like_path(table: str) -> bool:
-    return "/" in table or "\\" in table or table.lower().endswith(".toml")
-
-
 def load_plan(path, *, check_files: bool = True) -> Plan:
     """Read and validate a test plan.
 
@@ -623,8 +620,8 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
         if not table:
             raise r.error(kp + ("table",), "must not be empty")
         lpath = None
-        if _looks_like_path(table):
-            lpath = r.file(table, folder, kp + ("table",), check_files)
+        if table_path(table) is not None:
+            lpath = r.file(table, folder, kp + ("table",), check_files, "limit table")
         if any(spec.table == table for spec in limits):
             raise r.error(kp + ("table",), f"table {table!r} is listed twice; give one entry "
                                            "per table")

@@ -16,6 +16,7 @@ from pathlib import Path
 
 from ..errors import InputError
 from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
+from ..limits import load_table, table_path
 from .model import PCC_LOCATIONS, OtherLoad, Site, SiteTransformer, Supply, Unit
 from .network import SQRT3, SUMMATIONS, vector_group_shift
 from .study import SITE_BASES
@@ -212,15 +213,8 @@ def read_site(path) -> SiteFile:
     table = lim.get("table", "ieee519-2022").strip()
     if not table:
         raise r.error(("limits", "table"), "must not be empty")
-    if "/" in table or "\\" in table or table.lower().endswith(".toml"):
-        tpath = Path(table).expanduser()
-        if not tpath.is_absolute():
-            tpath = folder / tpath
-        if not tpath.is_file():
-            raise r.error(("limits", "table"), f"limit table {table!r} not found (resolved "
-                                               f"against the site file's folder {folder})")
-        table = str(tpath)
-    from ..limits import load_table
+    if table_path(table) is not None:
+        table = str(r.file(table, folder, ("limits", "table"), True, "limit table"))
 
     try:
         limit_table = load_table(table)

@@ -24,7 +24,7 @@ from .. import metrics
 from ..assess import Check, overall_verdict
 from ..errors import InputError, PlanError
 from ..findings import Finding
-from ..limits import HARMONIC
+from ..limits import HARMONIC, table_path
 from ..metrics import sequence_components
 from .model import Site, Unit
 from .network import SQRT3, SUMMATIONS, aggregate, harmonic_voltages, transformer_shift
@@ -233,7 +233,7 @@ class SiteStudy:
         lim = self.limits
         if lim is not None:
             out.append(("limit table", lim.table_id,
-                        "" if _is_bundled(s.limits) else str(lim.source or s.limits),
+                        "" if table_path(s.limits) is None else str(lim.source or s.limits),
                         lim.sha256 or ""))
         return tuple(out)
 
@@ -281,11 +281,6 @@ class _Limits:
                 raise PlanError(f"limit table {self.table.id}: {exc.problem}",
                                 path=self.site.path, field="limits.table") from None
         return self.cache[key]
-
-
-def _is_bundled(table: str) -> bool:
-    """A site's ``limits`` names a bundled table by id (a path has a folder or ends .toml)."""
-    return not ("/" in table or "\\" in table or table.lower().endswith(".toml"))
 
 
 def _load_limit_table(table: str, site_path):
