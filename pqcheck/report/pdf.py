@@ -1223,6 +1223,10 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
                  or r[4] < _BODY_MARGIN_PERCENT]
     rest = [r for r in all_rows if r not in shown]
     basis = _unit_text(group[0])
+    fund = ""
+    if basis == "% of fundamental":  # "fundamental" is wider than a value column
+        fund = "U1" if what == "voltage" else "I1" if what == "current" else "h1"
+        basis = f"% of {fund}"
     dec = b.decimals(run)
     decimals = max(dec.get(numfmt.check_key(c), 3) for c in group)
     head = ["Order", f"Limit [{basis}]"]
@@ -1253,6 +1257,8 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
     times = (f" Limits shown are {mult.pop():g} \u00d7 the table's values, as its evaluation "
              "rule allows for this statistic." if len(mult) == 1 and 1.0 not in mult else "")
     scope = "every order assessed" if full or not rest else "the orders that decide"
+    if fund:
+        times = f" % of {fund}: in % of the channel's fundamental.{times}"
     b.tcaption(f"{run.id}: individual {what} harmonics against {lim.table_id} "
                f"({statistic}), {scope}.{times} \u2717 over the limit, "
                f"{VERDICT_MARK['inconclusive']} undecided, \u2020 limit value to verify "
