@@ -12,6 +12,7 @@ import itertools
 import math
 from collections import defaultdict
 
+from . import numfmt
 from ._limit_model import (
     APPLIES_TO,
     BASES,
@@ -1109,7 +1110,7 @@ def _tile_groups(ctx, entries, band_names, selectors, *, same_ok, label) -> None
 
 
 def _fmt(x: float) -> str:
-    return "inf" if math.isinf(x) else f"{x:g}"
+    return numfmt.given(x)
 
 
 def _band_text(spec, band) -> str:

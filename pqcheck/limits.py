@@ -34,6 +34,7 @@ from dataclasses import dataclass, replace
 from importlib import resources
 from pathlib import Path
 
+from . import numfmt
 from ._limit_model import (
     BASES,
     HARMONIC,
@@ -571,7 +572,7 @@ def _choice(spec: SelectorSpec | None, value):
 
 
 def _fmt(x: float) -> str:
-    return "inf" if math.isinf(x) else f"{x:g}"
+    return numfmt.given(x)
 
 
 def _cond_text(spec: SelectorSpec, cond) -> str:

@@ -11,6 +11,7 @@ import math
 import shutil
 import textwrap
 
+from .. import numfmt
 from ._fields import cli_text
 
 __all__ = ["render_assessment", "render_markdown", "BASIS_WORDS"]
@@ -33,21 +34,6 @@ def _width() -> int:
     return max(72, min(110, shutil.get_terminal_size((100, 24)).columns))
 
 
-def _num(x, decimals: int | None = None) -> str:
-    if x is None or not math.isfinite(x):
-        return "-"
-    if decimals is not None:
-        return f"{x:.{decimals}f}"
-    return f"{x:.4g}"
-
-
-def _decimals(values) -> int:
-    mags = [abs(v) for v in values if v is not None and math.isfinite(v) and v != 0]
-    if not mags:
-        return 3
-    return int(min(5, max(0, 2 - math.floor(math.log10(min(mags))))))
-
-
 def _basis(k) -> str:
     return BASIS_WORDS.get(getattr(k, "basis", ""), k.unit)
 
@@ -56,18 +42,19 @@ def _where(k) -> str:
     return k.phase or k.channel or "all"
 
 
-def _rows_table(checks, *, with_table: bool) -> list:
-    """Aligned lines, one per check: verdict, item, phase, measured, limit, basis, margin."""
-    dec = _decimals([k.limit for k in checks])
+def _rows_table(checks, decimals: dict, *, with_table: bool) -> list:
+    """Aligned lines, one per check: verdict, item, phase, measured, limit, basis, margin
+    (numbers by :func:`pqcheck.numfmt.check_cells`, with ``decimals`` of the whole
+    assessment; the verify mark after the basis, the limit's unit)."""
     head = ["", "item", "phase", "measured", "limit", "basis", "margin"]
     if with_table:
         head.insert(1, "table")
     rows = []
     for k in checks:
-        mark = " +" if getattr(k, "verify", False) else ""
-        r = [_WORD.get(k.verdict, k.verdict), k.label, _where(k), _num(k.measured, dec),
-             _num(k.limit, dec) + mark, _basis(k),
-             "-" if k.margin_percent is None else f"{k.margin_percent:+.1f} %"]
+        measured, limit, margin = numfmt.check_cells(k, decimals)
+        basis = numfmt.marked(_basis(k), "+" if getattr(k, "verify", False) else "")
+        r = [_WORD.get(k.verdict, k.verdict), k.label, _where(k), measured, limit, basis,
+             margin]
         if with_table:
             r.insert(1, k.table_id)
         rows.append(r)
@@ -138,7 +125,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
                                    initial_indent=f"{label if k == 0 else '':<10}",
                                    subsequent_indent=" " * 12)
     if result is not None:
-        lines += textwrap.wrap(f"{result.source}  ({result.duration_s:.3f} s, "
+        lines += textwrap.wrap(f"{result.source}  ({numfmt.value(result.duration_s, 'duration')}, "
                                f"{int(result.windows.valid.sum())} valid windows)",
                                width=width, initial_indent="Capture   ",
                                subsequent_indent=" " * 12, break_on_hyphens=False)
@@ -158,16 +145,17 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
     if stats:
         lines.append("Compared  " + "; ".join(stats))
     with_table = len(a.tables) > 1
+    dec = numfmt.check_decimals(a.checks)
     checks = sorted(a.checks, key=lambda k: (_ORDER.get(k.verdict, 9),
                                              k.margin_percent if k.margin_percent is not None
                                              else math.inf))
     if all_rows:
-        lines += ["", "Every check"] + _rows_table(checks, with_table=with_table)
+        lines += ["", "Every check"] + _rows_table(checks, dec, with_table=with_table)
     else:
         fails = [k for k in checks if k.verdict == "fail"]
         lines.append("")
         if fails:
-            lines += [f"Limits exceeded ({len(fails)})"] + _rows_table(fails,
+            lines += [f"Limits exceeded ({len(fails)})"] + _rows_table(fails, dec,
                                                                      with_table=with_table)
         else:
             lines.append("Limits exceeded: none")
@@ -184,7 +172,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
         if passes and closest:
             lines += ["", f"Closest to their limits ({min(closest, len(passes))} of "
                           f"{len(passes)} passing)"]
-            lines += _rows_table(passes[:closest], with_table=with_table)
+            lines += _rows_table(passes[:closest], dec, with_table=with_table)
     if a.notes:
         lines += ["", "Notes"]
         for n in a.notes:
@@ -215,11 +203,11 @@ def render_markdown(assessment, result=None) -> str:
     checks = sorted(a.checks, key=lambda k: (_ORDER.get(k.verdict, 9),
                                              k.margin_percent if k.margin_percent is not None
                                              else math.inf))
-    dec = _decimals([k.limit for k in checks])
+    dec = numfmt.check_decimals(a.checks)
     for k in checks:
+        measured, limit, margin = numfmt.check_cells(k, dec)
         out.append("| " + " | ".join([
-            _WORD.get(k.verdict, k.verdict), k.table_id, k.label, _where(k),
-            _num(k.measured, dec), _num(k.limit, dec) + (" (verify)" if k.verify else ""),
-            _basis(k), "-" if k.margin_percent is None else f"{k.margin_percent:+.1f} %",
+            _WORD.get(k.verdict, k.verdict), k.table_id, k.label, _where(k), measured, limit,
+            numfmt.marked(_basis(k), "(verify)" if k.verify else ""), margin,
             k.clause]) + " |")
     return "\n".join(out) + "\n"

@@ -5,6 +5,7 @@ from __future__ import annotations
 import click
 import numpy as np
 
+from .. import numfmt
 from ._common import EXIT_OK, handle_errors, main
 from ._fields import cli_text, spec_from_options
 
@@ -141,22 +142,7 @@ class _ProgressBar:
             self.bar.close()
 
 
-def _fmt(x, digits=4, unit=""):
-    if x is None or not np.isfinite(x):
-        return "-"
-    s = f"{x:.{digits}g}"
-    return f"{s} {unit}".rstrip()
-
-
-def _eng(x, unit, digits=4):
-    """Engineering notation with an SI prefix: 150690 W -> '150.7 kW'."""
-    if x is None or not np.isfinite(x):
-        return "-"
-    a = abs(x)
-    for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k")):
-        if a >= scale:
-            return f"{x / scale:.{digits}g} {prefix}{unit}"
-    return f"{x:.{digits}g} {unit}"
+_fmt = numfmt.number  # the one number formatter
 
 
 def render_table(result) -> str:
@@ -167,17 +153,16 @@ def render_table(result) -> str:
     lines.append(f"Capture    {r.source}")
     lines.append(f"SHA-256    {r.sha256 or '-'}")
     lines.append(
-        f"Sampling   {r.fs_hz:g} Hz, {r.duration_s:.3f} s, {r.windows.n_windows} windows of "
+        f"Sampling   {numfmt.value(r.fs_hz, 'sample_rate')}, "
+        f"{numfmt.value(r.duration_s, 'duration')}, {r.windows.n_windows} windows of "
         f"{s.cycles_per_window} cycles ({int(r.windows.valid.sum())} valid)")
     lines.append(
-        f"Frequency  {r.fundamental_hz:.4f} Hz mean ({r.freq_min_hz:.4f} to {r.freq_max_hz:.4f}),"
-        f" nominal {s.nominal_hz:g} Hz ({s.nominal_source}); reference {s.reference}")
+        f"Frequency  {numfmt.value(r.fundamental_hz, 'frequency')} mean "
+        f"({numfmt.value(r.freq_min_hz, 'frequency', unit='')} to "
+        f"{numfmt.value(r.freq_max_hz, 'frequency', unit='')}),"
+        f" nominal {numfmt.given(s.nominal_hz, 'Hz')} ({s.nominal_source}); "
+        f"reference {s.reference}")
     lines.append("")
-    def fixed(x, dec, unit=""):
-        if x is None or not np.isfinite(x):
-            return "-"
-        return f"{x:.{dec}f}" + (f" {unit}" if unit else "")
-
     def role_of(c):
         what = {"current": "current", "voltage": "voltage"}.get(c.quantity, c.quantity)
         return f"{what}, phase {c.phase}" if c.phase else f"{what}, single-phase"
@@ -188,13 +173,15 @@ def render_table(result) -> str:
             f"{'THD %':>9}{'THDG %':>9}{'TDD %':>9}{'crest':>8}")
     lines.append(head)
     lines.append("-" * len(head))
-    for c in r.channels:
-        # amperes and volts with two decimals, percentages with two, crest factor with three
+    rms_col = numfmt.channel_columns(r.channels)
+    for c, (rms, fund) in zip(r.channels, rms_col):
+        # the channel table's rule (numfmt.channel_columns), as in the PDF report
         lines.append(
-            f"{c.name:<{name_w}}{role_of(c):<{role_w}}{fixed(c.rms, 2, c.unit):>12}"
-            f"{fixed(c.fundamental_rms, 2, c.unit):>14}{fixed(c.thd_percent, 2):>9}"
-            f"{fixed(c.thd_group_percent, 2):>9}{fixed(c.tdd_percent, 2):>9}"
-            f"{fixed(c.crest_factor, 3):>8}")
+            f"{c.name:<{name_w}}{role_of(c):<{role_w}}{rms:>12}{fund:>14}"
+            f"{numfmt.value(c.thd_percent, 'distortion', unit=''):>9}"
+            f"{numfmt.value(c.thd_group_percent, 'distortion', unit=''):>9}"
+            f"{numfmt.value(c.tdd_percent, 'distortion', unit=''):>9}"
+            f"{numfmt.value(c.crest_factor, 'crest_factor'):>8}")
     lines.append("")
     # harmonic table: % of fundamental, orders 2..H with any value >= 0.1 %
     chans = r.channels
@@ -216,26 +203,30 @@ def render_table(result) -> str:
             continue
         if max(np.nan_to_num(vals)) < 0.1:
             continue
-        lines.append(f"{h:>5}" + "".join(f"{fixed(v, 3):>{col_w}}" for v in vals))
+        lines.append(f"{h:>5}" + "".join(f"{numfmt.value(v, 'harmonic', unit=''):>{col_w}}"
+                                         for v in vals))
     if r.power is not None:
         p = r.power
         lines.append("")
         lines.append("Power (IEEE 1459; negative P = export)")
         for ph in p.phases:
             lines.append(
-                f"  phase {ph.phase or '1ph':<4} P {_eng(ph.p_w, 'W'):>11}  "
-                f"S {_eng(ph.s_va, 'VA'):>11}  Q1 {_eng(ph.q1_var, 'var'):>11}  "
-                f"PF {_fmt(ph.pf, 4):>7}  DPF {_fmt(ph.dpf, 4):>7}")
-        tot = f"  total      P {_eng(p.p_w, 'W'):>11}"
+                f"  phase {ph.phase or '1ph':<4} P {numfmt.power(ph.p_w, ref=ph.s_va):>11}  "
+                f"S {numfmt.power(ph.s_va, 'VA', ref=ph.s_va):>11}  "
+                f"Q1 {numfmt.power(ph.q1_var, 'var', ref=ph.s_va):>11}  "
+                f"PF {numfmt.value(ph.pf, 'power_factor'):>7}  "
+                f"DPF {numfmt.value(ph.dpf, 'power_factor'):>7}")
+        tot = f"  total      P {numfmt.power(p.p_w, ref=p.se_va):>11}"
         if p.se_va is not None:
-            tot += f"  Se {_eng(p.se_va, 'VA'):>11}"
-        tot += f"  PF {_fmt(p.pf, 4):>7}"
+            tot += f"  Se {numfmt.power(p.se_va, 'VA', ref=p.se_va):>11}"
+        tot += f"  PF {numfmt.value(p.pf, 'power_factor'):>7}"
         if p.wiring:
             tot += f"  ({p.wiring})"
         lines.append(tot)
         if "i_unbalance_percent" in p.extra:
-            lines.append(f"  current unbalance (I2/I1) {_fmt(p.extra['i_unbalance_percent'], 3)} %"
-                         f", voltage unbalance {_fmt(p.extra['v_unbalance_percent'], 3)} %")
+            lines.append("  current unbalance (I2/I1) "
+                         f"{numfmt.value(p.extra['i_unbalance_percent'], 'percent')}, voltage "
+                         f"unbalance {numfmt.value(p.extra['v_unbalance_percent'], 'percent')}")
     if r.flicker is not None:
         lines.append("")
         lines += render_flicker(r.flicker)
@@ -259,10 +250,12 @@ def render_flicker(fa) -> list:
     for c in fa.channels:
         d = c.to_dict()
         out.append(
-            f"{c.channel:<12}{c.meter.lamp:<11}{_fmt(c.pst_max, 4):>9}"
-            f"{_fmt(c.plt, 4) if c.plt is not None else '-':>8}"
-            f"{_fmt(c.meter.pinst_max, 4):>11}{_fmt(d['dc_percent'], 3):>8}"
-            f"{_fmt(c.change.dmax_percent, 3):>8}{_fmt(c.change.tmax_s, 3):>8}  "
+            f"{c.channel:<12}{c.meter.lamp:<11}{numfmt.value(c.pst_max, 'flicker'):>9}"
+            f"{numfmt.value(c.plt, 'flicker'):>8}"
+            f"{numfmt.value(c.meter.pinst_max, 'flicker'):>11}"
+            f"{numfmt.value(d['dc_percent'], 'percent', unit=''):>8}"
+            f"{numfmt.value(c.change.dmax_percent, 'percent', unit=''):>8}"
+            f"{numfmt.value(c.change.tmax_s, 'duration', unit=''):>8}  "
             f"{len(c.meter.pst)} x {c.meter.interval_s:g} s")
         if c.derived_from:
             out.append(f"  derived from {c.derived_from} through {c.impedance}, source "

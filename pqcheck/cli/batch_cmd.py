@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-import math
 import os
 import sys
 
 import click
 
+from .. import numfmt
 from ._common import fail_usage, handle_errors, main
 from ._fields import spec_from_options
 from ._limits import limit_options
@@ -16,12 +16,6 @@ from .analyze import capture_options
 __all__ = ["render_summary"]
 
 _MAX_ERRORS = 20
-
-
-def _num(x, digits=4) -> str:
-    if x is None or not math.isfinite(x):
-        return "-"
-    return f"{x:.{digits}g}"
 
 
 def render_summary(summary: dict, run) -> str:
@@ -41,10 +35,11 @@ def render_summary(summary: dict, run) -> str:
         lines.append(f"Lowest margin of each capture (lowest first, at most {len(s['worst'])})")
         head = ["margin %", "verdict", "capture", "table", "channel", "limit of", "statistic",
                 "measured", "limit", "unit"]
-        rows = [[_num(w["margin_percent"], 3),
+        rows = [[numfmt.value(w["margin_percent"], "margin", unit=""),
                  w["verdict"].upper() if w["verdict"] != "pass" else w["verdict"],
                  w["capture"], w["table_id"], w["channel"], w["label"], w["statistic"],
-                 _num(w["measured"]), _num(w["limit"]), w["unit"]] for w in s["worst"]]
+                 *numfmt.value_and_limit(w["measured"], w["limit"]), w["unit"]]
+                for w in s["worst"]]
         widths = [max(len(str(r[i])) for r in [head] + rows) for i in range(len(head))]
         lines.append("  " + "  ".join(h.ljust(w) for h, w in zip(head, widths)).rstrip())
         for r in rows:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from .. import numfmt
 from .._limit_model import BASES, TOTALS, VERIFY_TAGS
 from ..limits import LimitTable, bundled_ids, load_table, read_table, validate_file
 from ._common import EXIT_OK, EXIT_USAGE, handle_errors, main
@@ -36,9 +37,7 @@ def _mark(tag: str) -> str:
 
 
 def _num(v) -> str:
-    if isinstance(v, str):
-        return v
-    return f"{v:g}"
+    return numfmt.given(v)
 
 
 def _cond(table: LimitTable, name: str, cond) -> str:
@@ -48,12 +47,12 @@ def _cond(table: LimitTable, name: str, cond) -> str:
         lo, hi = cond
         le, ge = ("<", "<=") if spec.closed == "upper" else ("<=", "<")
         if hi == float("inf"):
-            return f"{'>' if le == '<' else '>='} {lo:g}{unit}"
+            return f"{'>' if le == '<' else '>='} {_num(lo)}{unit}"
         if lo == 0:
-            return f"{ge} {hi:g}{unit}"
-        return f"{lo:g} {le} x {ge} {hi:g}{unit}"
+            return f"{ge} {_num(hi)}{unit}"
+        return f"{_num(lo)} {le} x {ge} {_num(hi)}{unit}"
     if spec.kind == "points":
-        return f"{cond:g}{unit}"
+        return f"{_num(cond)}{unit}"
     return ", ".join(cond)
 
 

@@ -9,6 +9,7 @@ import math
 
 import click
 
+from .. import numfmt
 from ._common import EXIT_OK, VERDICT_EXIT, fail_usage
 from ._fields import cli_text
 
@@ -102,7 +103,8 @@ def render_survey(sa) -> str:
     tz = s.timezone
     lines = [f"Survey     {s.origin}: {', '.join(s.sources)}",
              f"           {format_time(s.start_s, tz)} to {format_time(s.end_s, tz)} "
-             f"({s.duration_s / 86400:.3f} days; time zone {tz or 'not given, as written'})"]
+             f"({numfmt.value(s.duration_s / 86400, 'days')}; time zone "
+             f"{tz or 'not given, as written'})"]
     for lv in s.levels:
         lines.append(f"           {lv.level} values: {lv.n} intervals of {lv.interval_s:g} s, "
                      f"{int(lv.flagged.sum())} flagged, {int((~lv.complete).sum())} incomplete")
@@ -116,8 +118,9 @@ def render_survey(sa) -> str:
         lines.append(f"{head}: {len(r['periods'])} period(s)")
         w = sa.worst(r)
         if w:
-            lines.append(f"    worst {w['label']} {w['channel']} {w['value']:.4g} "
-                         f"(limit {w['limit']:.4g} {w['unit']}, {w['verdict']}) in "
+            value, limit = numfmt.value_and_limit(w["value"], w["limit"], w["unit"])
+            lines.append(f"    worst {w['label']} {w['channel']} {value} "
+                         f"(limit {limit}, {w['verdict']}) in "
                          f"{w['start']} to {w['end']}")
     text = "\n".join(lines) + "\n"
     findings = [f for f in s.findings if f.severity != "info"]
@@ -158,7 +161,7 @@ def inspect_survey(paths, opts):
     click.echo(f"Time zone   {tz or 'not given (timestamps as written)'}; timestamps mark the "
                f"interval {s.settings.get('timestamp', 'start')}")
     click.echo(f"Span        {format_time(s.start_s, tz)} to {format_time(s.end_s, tz)} "
-               f"({s.duration_s / 86400:.4g} days)")
+               f"({numfmt.value(s.duration_s / 86400, 'days')})")
     for lv in s.levels:
         click.echo(f"Level       {lv.level}: {lv.n} intervals of {lv.interval_s:g} s, "
                    f"{int(lv.flagged.sum())} flagged; channels "

@@ -6,6 +6,7 @@ import json
 
 import click
 
+from .. import numfmt
 from ._common import EXIT_FAIL, EXIT_OK, handle_errors, main
 
 __all__: list = []
@@ -13,7 +14,7 @@ __all__: list = []
 
 def _show(value) -> str:
     if isinstance(value, float):
-        return f"{value:.12g}"
+        return numfmt.given(value)
     text = json.dumps(value, ensure_ascii=False) if not isinstance(value, str) else repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
 

@@ -41,6 +41,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from .. import numfmt
 from . import figures, text
 from .job import NOT_ASSESSED
 from .style import (
@@ -57,7 +58,6 @@ from .style import (
     VERDICT_WORD,
     esc,
     fmt,
-    fmt_like,
     fmt_pct,
     printable,
     register_fonts,
@@ -181,6 +181,19 @@ class _Builder:
         self.results_json = results_json
         self.fig_count = 0
         self.table_count = 0
+        self._decimals: dict = {}
+
+    def cells(self, run, chk) -> tuple:
+        """``(measured, limit, margin)`` texts of a check (:func:`pqcheck.numfmt.check_cells`):
+        decimals of its table and basis over every check of the capture, as the terminal and
+        the Markdown table write them."""
+        return numfmt.check_cells(chk, self.decimals(run))
+
+    def decimals(self, run) -> dict:
+        """:func:`pqcheck.numfmt.check_decimals` of every check of ``run``."""
+        if id(run) not in self._decimals:
+            self._decimals[id(run)] = numfmt.check_decimals(run.checks)
+        return self._decimals[id(run)]
 
     # -- text --
     def p(self, text_plain: str, style: str = "body") -> Paragraph:
@@ -331,9 +344,11 @@ def _check_item(chk) -> str:
     return chk.label
 
 
-def _limit_text(chk) -> str:
-    """The limit as a number (decimals as the check's own column uses them)."""
-    return fmt(chk.limit, 4)
+def _value_cells(b, run, chk) -> list:
+    """Measured, limit, basis and margin cells of a check row (the basis after the limit, so
+    the limit reads with its unit)."""
+    measured, limit, margin = b.cells(run, chk)
+    return [measured, limit, _unit_text(chk), margin]
 
 
 _TAG_WORDS = {"P": "partly verified", "M": "from memory"}
@@ -371,28 +386,6 @@ def _clause_text(lim, chk) -> str:
     """Where a limit comes from: the standard and edition with the clause or table, e.g.
     ``"IEEE Std 519-2022, Table 2"``."""
     return ", ".join(x for x in (_designation(lim), chk.clause or "") if x)
-
-
-def _decimals_for(values, digits: int = 3) -> int:
-    """Decimals that show the smallest non-zero ``values`` (limits, usually) with ``digits``
-    significant digits; one count for a whole column so its decimals never change."""
-    import math as _m
-
-    mags = [abs(float(v)) for v in values
-            if v is not None and _m.isfinite(float(v)) and float(v) != 0.0]
-    if not mags:
-        return 3
-    return int(min(5, max(0, digits - 1 - _m.floor(_m.log10(min(mags))))))
-
-
-def _fixed(x, decimals: int) -> str:
-    """``x`` with exactly ``decimals`` decimals; a dash for None or NaN."""
-    import math as _m
-
-    if x is None or not _m.isfinite(float(x)):
-        return "\u2013"
-    s_ = f"{float(x):.{decimals}f}"
-    return s_[1:] if s_.startswith("-") and float(s_) == 0 else s_
 
 
 def _table_name(lim) -> str:
@@ -621,9 +614,7 @@ def _deciding_items(b: _Builder) -> None:
     for (rid, _tid, label), items in list(by_item.items())[:_COVER_ROWS]:
         r, c = items[0]
         phases = ", ".join(sorted({x.phase or x.channel for _, x in items})) or "all"
-        rows.append([_verdict_para(b, "fail"), rid, label, phases,
-                     fmt(c.measured, 4), _limit_text(c), _unit_text(c),
-                     fmt_pct(c.margin_percent)])
+        rows.append([_verdict_para(b, "fail"), rid, label, phases, *_value_cells(b, r, c)])
         extra += _verdict_style(0, len(rows) - 1, "fail")
     groups = undecided_groups(job)
     for runs, phases, checks, cause in groups[:_COVER_ROWS]:
@@ -638,8 +629,7 @@ def _deciding_items(b: _Builder) -> None:
         for r, _a, c in passes[:3]:
             rows.append(["closest", r.id, c.label,
                          _channel_label(r.result, c.channel) if c.channel else "all",
-                         fmt(c.measured, 4), _limit_text(c), _unit_text(c),
-                         fmt_pct(c.margin_percent)])
+                         *_value_cells(b, r, c)])
     if len(rows) == 1:
         return
     b.add(b.table(rows, [0.16, 0.16, 0.14, 0.1, 0.11, 0.09, 0.13, 0.11], right=(4, 5, 7),
@@ -733,13 +723,17 @@ def _summary(b: _Builder) -> None:
             res = r.result
             cur = sorted(res.channels_of("current"), key=lambda c: _PHASE_ORDER.get(c.phase, 9))
             cur = [c for c in cur if c.phase != "n"]
-            thd = " / ".join(fmt(c.thd_percent, 3) for c in cur) + " %" if cur else "\u2013"
-            tdd = (" / ".join(fmt(c.tdd_percent, 3) for c in cur) + " %"
+            def pcts(xs):
+                return " / ".join(numfmt.value(x, "distortion", unit="") for x in xs) + " %"
+
+            thd = pcts(c.thd_percent for c in cur) if cur else "\u2013"
+            tdd = (pcts(c.tdd_percent for c in cur)
                    if cur and any(c.tdd_percent is not None for c in cur) else "\u2013")
             p = res.power
             rows.append([r.load_point or "\u2013", r.id,
-                         fmt(p.p_w / 1e3, 4, "kW") if p is not None else "\u2013",
-                         thd, tdd, fmt(p.pf, 3) if p is not None else "\u2013",
+                         numfmt.power(p.p_w, ref=p.se_va) if p is not None else "\u2013",
+                         thd, tdd,
+                         numfmt.value(p.pf, "power_factor") if p is not None else "\u2013",
                          _verdict_para(b, r.verdict)])
             extra += _verdict_style(6, len(rows) - 1, r.verdict)
         b.add(b.table(rows, [0.11, 0.15, 0.11, 0.2, 0.18, 0.07, 0.18], right=(2, 5),
@@ -862,8 +856,7 @@ def _check_rows_table(b: _Builder, triples) -> None:
     for r, a, c in triples:
         rows.append([r.id, a.limits.table_id, _check_item(c),
                      _channel_label(r.result, c.channel) if c.channel else "all",
-                     fmt(c.measured, 4), _limit_text(c), _unit_text(c),
-                     fmt_pct(c.margin_percent), _verdict_para(b, c.verdict),
+                     *_value_cells(b, r, c), _verdict_para(b, c.verdict),
                      _source_mark(c) or "verified"])
         extra += _verdict_style(8, len(rows) - 1, c.verdict)
     b.add(b.table(rows, [0.12, 0.12, 0.07, 0.09, 0.09, 0.08, 0.1, 0.09, 0.12, 0.12],
@@ -890,14 +883,17 @@ def _capture_facts(b: _Builder, run) -> None:
     pairs = [
         ("File", res.source),
         ("SHA-256", b.m(esc(res.sha256 or "not available (in-memory capture)"), "mono")),
-        ("Recording", f"{res.fs_hz:g} Hz sample rate, {fmt(res.duration_s, 4, 's')}, "
+        ("Recording", f"{numfmt.value(res.fs_hz, 'sample_rate')} sample rate, "
+                      f"{numfmt.value(res.duration_s, 'duration')}, "
                       f"{res.n_samples} samples per channel ({cap.provenance.reader} reader)"),
         ("Channels", f"currents: {cur or 'none'}; voltages: {vol or 'none'}"),
         ("Windows", f"{int(w.valid.sum())} valid of {w.n_windows} windows of "
-                    f"{res.settings.cycles_per_window} cycles ({fmt(res.analysed_s, 4, 's')} "
+                    f"{res.settings.cycles_per_window} cycles "
+                    f"({numfmt.value(res.analysed_s, 'duration')} "
                     "analysed)"),
-        ("Fundamental", f"{fmt(res.fundamental_hz, 6, 'Hz')} mean "
-                        f"({fmt(res.freq_min_hz, 6)} to {fmt(res.freq_max_hz, 6, 'Hz')})"),
+        ("Fundamental", f"{numfmt.value(res.fundamental_hz, 'frequency')} mean "
+                        f"({numfmt.value(res.freq_min_hz, 'frequency', unit='')} to "
+                        f"{numfmt.value(res.freq_max_hz, 'frequency')})"),
     ]
     meta = (res.reader_settings or {}).get("metadata") or {}
     if meta:
@@ -913,7 +909,7 @@ def _assessment_block(b: _Builder, run, a) -> None:
     res = run.result
     lim = a.limits
     b.h3(f"Against {_table_name(lim)}: {lim.title}")
-    sel = ", ".join(f"{k} = {v:.6g}" if isinstance(v, float) else f"{k} = {v}"
+    sel = ", ".join(f"{k} = {numfmt.given(v)}" if isinstance(v, float) else f"{k} = {v}"
                     for k, v in lim.selectors) or "none"
     pairs = [("Verdict", _verdict_para(b, a.verdict)),
              ("Checks", _counts_text(a.checks)),
@@ -939,8 +935,7 @@ def _assessment_block(b: _Builder, run, a) -> None:
                                                 if c.channel else (0, ""))):
             rows.append([c.label, _channel_label(res, c.channel) if c.channel else "all"]
                         + ([] if one_stat else [c.statistic])
-                        + [_fixed(c.measured, _decimals_for([c.limit])), _limit_text(c),
-                           _unit_text(c), fmt_pct(c.margin_percent),
+                        + [*_value_cells(b, run, c),
                            _verdict_para(b, c.verdict), _clause_text(lim, c),
                            _source_mark(c) or "verified"])
             extra += _verdict_style(len(head) - 3, len(rows) - 1, c.verdict)
@@ -974,7 +969,7 @@ def _assessment_block(b: _Builder, run, a) -> None:
             how = "pass" if verdicts == {"pass"} else "are undecided (see the causes above)" \
                 if verdicts == {"inconclusive"} else "pass or are undecided"
             b.add(b.p(f"{run.id}: all {len({c.order for c in group})} individual voltage "
-                      f"harmonics {how}, each at least {fmt(min(margins), 3)} % inside its "
+                      f"harmonics {how}, each at least {numfmt.margin(min(margins), signed=False)} inside its "
                       f"limit on every phase ({statistic}).", "body"))
             continue
         data = figures.spectrum_from_checks(
@@ -1102,7 +1097,8 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
                  or r[4] < _BODY_MARGIN_PERCENT]
     rest = [r for r in all_rows if r not in shown]
     basis = _unit_text(group[0])
-    decimals = _decimals_for([c.limit for c in group])
+    dec = b.decimals(run)
+    decimals = max(dec.get(numfmt.check_key(c), 3) for c in group)
     head = ["Order", f"Limit [{basis}]"]
     for ch in chans:
         head += [f"{_channel_label(res, ch)} [{basis}]", "margin"]
@@ -1110,7 +1106,7 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
     rows = [head]
     extra = []
     for order, any_chk, cells, worst, _ in shown:
-        row = [str(order), _fixed(any_chk.limit, decimals)]
+        row = [str(order), numfmt.fixed(any_chk.limit, decimals)]
         for ch in chans:
             c = cells.get(ch)
             if c is None:
@@ -1118,7 +1114,7 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
                 continue
             mark = {"fail": " \u2717", "inconclusive": " " + VERDICT_MARK["inconclusive"]
                     }.get(c.verdict, "")
-            row += [_fixed(c.measured, decimals) + mark, fmt_pct(c.margin_percent)]
+            row += [numfmt.fixed(c.measured, decimals) + mark, numfmt.margin(c.margin_percent)]
         row += [_verdict_para(b, worst or ""), _source_mark(any_chk) or "verified"]
         rows.append(row)
         extra += _verdict_style(len(row) - 2, len(rows) - 1, worst or "")
@@ -1146,7 +1142,8 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
                "are undecided for the cause named above" if verdicts == ["inconclusive"] else
                "pass or are undecided")
         b.add(b.p(f"{len(rest)} further orders ({orders}) {how}, each at least "
-                  f"{fmt(smallest, 3)} % inside its limit on every phase; {where}.", "small"))
+                  f"{numfmt.margin(smallest, signed=False)} inside its limit on every phase; "
+                  f"{where}.", "small"))
 
 
 def _analysis_tables(b: _Builder, run, harmonics) -> None:
@@ -1161,7 +1158,8 @@ def _analysis_tables(b: _Builder, run, harmonics) -> None:
         sub = harmonics[harmonics["channel"] == c.name]
         pct[c.name] = dict(zip(sub["order"].tolist(), sub["percent_of_fundamental"].tolist()))
     for h in range(1, res.max_resolved_order + 1):
-        rows.append([str(h)] + [fmt_like(pct[c.name].get(h), 1.0) for c in chans])
+        rows.append([str(h)] + [numfmt.value(pct[c.name].get(h), "harmonic", unit="")
+                                for c in chans])
     n = len(chans)
     widths = [0.08] + [min(0.92 / n, 0.14)] * n
     b.tcaption(f"{run.id}: harmonic components in % of each channel's fundamental (rms over "
@@ -1175,20 +1173,19 @@ def _channels_and_power(b: _Builder, run) -> None:
                                                  _PHASE_ORDER.get(c.phase, 9)))
     rows = [["Channel", "Phase", "rms", "Fundamental", "THD", "THD group", "TDD", "PWHD",
              "Crest factor", "DC"]]
-    for c in chans:
-        def pct(x):
-            return fmt_like(x, 10.0) + " %"
+    def pct(x):
+        return numfmt.value(x, "distortion")
 
-        rows.append([c.name, c.phase or "1ph", fmt(c.rms, 4, c.unit),
-                     fmt(c.fundamental_rms, 4, c.unit), pct(c.thd_percent),
-                     pct(c.thd_group_percent),
-                     pct(c.tdd_percent) if c.tdd_percent is not None else "\u2013",
-                     pct(c.pwhd_percent), fmt(c.crest_factor, 3),
-                     fmt_like(c.dc, c.rms) + f" {c.unit}"])
+    for c, (rms, fund) in zip(chans, numfmt.channel_columns(chans)):
+        rows.append([c.name, c.phase or "1ph", rms, fund, pct(c.thd_percent),
+                     pct(c.thd_group_percent), pct(c.tdd_percent),
+                     pct(c.pwhd_percent), numfmt.value(c.crest_factor, "crest_factor"),
+                     numfmt.fixed(c.dc, numfmt.decimals_for([c.rms], numfmt.RMS_DIGITS), c.unit)])
     il = res.settings.il_a
     b.tcaption(f"{run.id}: channel values over the capture. THD over orders 2 to "
                f"{res.max_resolved_order}; TDD relative to IL = "
-               + (f"{il:g} A" if il else "not given") + "; PWHD over orders 14 to 40 (groups).")
+               + (numfmt.given(il, "A") if il else "not given")
+               + "; PWHD over orders 14 to 40 (groups).")
     b.add(b.table(rows, [0.09, 0.07, 0.1, 0.14, 0.08, 0.09, 0.08, 0.12, 0.09, 0.14],
                   right=tuple(range(2, 10))))
     p = res.power
@@ -1198,32 +1195,35 @@ def _channels_and_power(b: _Builder, run) -> None:
         return
     rows = [["Phase", "P", "S", "P1", "Q1", "S1", "PF", "DPF"]]
 
-    def k(x, ref, unit):  # kW, kVA, kvar with the decimals of the phase's apparent power
-        return fmt_like(x / 1e3, ref / 1e3 if ref else None) + f" {unit}"
+    def k(x, ref, unit):  # W, VA, var with the prefix and decimals of the apparent power
+        return numfmt.power(x, unit, ref=ref)
 
     for ph in p.phases:
         rows.append([f"{ph.phase or '1ph'} ({ph.voltage} \u00d7 {ph.current})",
-                     k(ph.p_w, ph.s_va, "kW"), k(ph.s_va, ph.s_va, "kVA"),
-                     k(ph.p1_w, ph.s_va, "kW"), k(ph.q1_var, ph.s_va, "kvar"),
-                     k(ph.s1_va, ph.s_va, "kVA"), fmt(ph.pf, 4), fmt(ph.dpf, 4)])
+                     k(ph.p_w, ph.s_va, "W"), k(ph.s_va, ph.s_va, "VA"),
+                     k(ph.p1_w, ph.s_va, "W"), k(ph.q1_var, ph.s_va, "var"),
+                     k(ph.s1_va, ph.s_va, "VA"), numfmt.value(ph.pf, "power_factor"),
+                     numfmt.value(ph.dpf, "power_factor")])
     ref = p.se_va if p.se_va else None
-    total = ["total", k(p.p_w, ref, "kW"),
-             k(p.se_va, ref, "kVA") + (" (Se)" if p.wiring else "")
-             if p.se_va is not None else "\u2013", "", "", "", fmt(p.pf, 4), ""]
+    total = ["total", k(p.p_w, ref, "W"),
+             k(p.se_va, ref, "VA") + (" (Se)" if p.wiring else "")
+             if p.se_va is not None else "\u2013", "", "", "",
+             numfmt.value(p.pf, "power_factor"), ""]
     if "dpf_pos" in p.extra:
-        total[7] = fmt(p.extra["dpf_pos"], 4) + " (+seq)"
+        total[7] = numfmt.value(p.extra["dpf_pos"], "power_factor") + " (+seq)"
     if "p1pos_w" in p.extra:
-        total[3] = k(p.extra["p1pos_w"], ref, "kW") + " (+seq)"
+        total[3] = k(p.extra["p1pos_w"], ref, "W") + " (+seq)"
     if "q1pos_var" in p.extra:
-        total[4] = k(p.extra["q1pos_var"], ref, "kvar") + " (+seq)"
+        total[4] = k(p.extra["q1pos_var"], ref, "var") + " (+seq)"
     rows.append(total)
     cap = (f"{run.id}: power quantities (IEEE 1459; negative P = export; negative PF and DPF "
            "when exporting; +seq: positive-sequence fundamental quantities).")
     if p.wiring:
         cap += f" Three-phase {p.wiring} connection ({res.settings.wiring_source})."
     if "i_unbalance_percent" in p.extra:
-        cap += (f" Current unbalance I2/I1 {fmt(p.extra['i_unbalance_percent'], 3, '%')}, "
-                f"voltage unbalance {fmt(p.extra.get('v_unbalance_percent'), 3, '%')}.")
+        cap += (" Current unbalance I2/I1 "
+                f"{numfmt.value(p.extra['i_unbalance_percent'], 'percent')}, voltage "
+                f"unbalance {numfmt.value(p.extra.get('v_unbalance_percent'), 'percent')}.")
     b.tcaption(cap)
     b.add(b.table(rows, [0.22, 0.1, 0.13, 0.11, 0.12, 0.1, 0.1, 0.12],
                   right=tuple(range(1, 8)),
@@ -1304,14 +1304,15 @@ def _flicker_section(b: _Builder, run) -> None:
              "Tmax s"]]
     for cf in fa.channels:
         m, c = cf.meter, cf.change
-        pst = ", ".join("-" if p != p else f"{p:.3f}" for p in m.pst[:12])
+        pst = ", ".join(numfmt.value(p, "flicker") for p in m.pst[:12])
         if len(m.pst) > 12:
             pst += f" ... ({len(m.pst)})"
         rows.append([cf.channel + (f" (from {cf.derived_from})" if cf.derived_from else ""),
-                     m.lamp, f"{m.interval_s:g} s", pst,
-                     "-" if cf.plt is None else f"{cf.plt:.3f}", f"{m.pinst_max:.3f}",
-                     "-" if c.dc_percent != c.dc_percent else f"{c.dc_percent:.3f}",
-                     f"{c.dmax_percent:.3f}", f"{c.tmax_s:.3f}"])
+                     m.lamp, numfmt.given(m.interval_s, "s"), pst,
+                     numfmt.value(cf.plt, "flicker"), numfmt.value(m.pinst_max, "flicker"),
+                     numfmt.value(c.dc_percent, "percent", unit=""),
+                     numfmt.value(c.dmax_percent, "percent", unit=""),
+                     numfmt.value(c.tmax_s, "duration", unit="")])
     b.add(b.table(rows, [0.2, 0.1, 0.09, 0.2, 0.07, 0.09, 0.08, 0.08, 0.09],
                   right=(2, 3, 4, 5, 6, 7, 8)))
     b.tcaption(f"{run.id}: short-term flicker per interval (10 min, or the whole capture when "
@@ -1485,10 +1486,14 @@ def _uncertainty(b: _Builder) -> None:
                      "Verdict"]]
             extra = []
             for r, a, c in sorted(close, key=lambda t: abs(t[2].margin_percent))[:_MAX_LISTED]:
+                measured, limit, margin = b.cells(r, c)
                 rows.append([r.id, a.limits.table_id, _check_item(c),
                              _channel_label(r.result, c.channel) if c.channel else "all",
-                             fmt(c.measured, 4, c.unit), _limit_text(c) + f" {c.unit}",
-                             fmt_pct(c.margin_percent), _verdict_para(b, c.verdict)])
+                             f"{measured} {c.unit}".rstrip() if c.measured is not None
+                             else measured,
+                             numfmt.marked(f"{limit} {c.unit}".rstrip(),
+                                           "\u2020" if getattr(c, "verify", False) else ""),
+                             margin, _verdict_para(b, c.verdict)])
                 extra += _verdict_style(7, len(rows) - 1, c.verdict)
             b.add(b.table(rows, [0.14, 0.14, 0.1, 0.11, 0.13, 0.13, 0.1, 0.15],
                           right=(4, 5, 6), extra_style=extra))

@@ -34,6 +34,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from .. import numfmt
 from .figures import FIG_WIDTH_IN, SpectrumData, SpectrumPanel, plot_spectrum, to_png
 from .pdf import ATTACHMENT_NAME, PAGE_SIZE, _ReportCanvas
 from .style import (
@@ -94,10 +95,6 @@ def _table(rows, fractions, st, *, head_rows: int = 1, extra=()) -> Table:
 
 def _verdict_text(verdict: str) -> str:
     return f"{VERDICT_MARK[verdict]} {VERDICT_WORD[verdict]}" if verdict else "\u2013"
-
-
-def _pct(x, digits: int = 3) -> str:
-    return "\u2013" if x is None else f"{fmt(x, digits)} %"
 
 
 # ---------------------------------------------------------------------------------------------
@@ -173,8 +170,9 @@ def _first_page(study, report: dict, st) -> list:
     closest = sorted((c for c in study.checks if c.verdict == "pass"
                       and c.margin_percent is not None), key=lambda c: c.margin_percent)
     rows = [["Check", "Estimate", "Limit", "Margin", "Verdict", "Phase or reason"]]
+    decimals = numfmt.check_decimals(study.checks)
     for c in failing + closest[:_CLOSEST]:
-        rows.append(_check_row(c))
+        rows.append(_check_row(c, decimals))
     out.append(_table(rows, [0.09, 0.2, 0.16, 0.1, 0.16, 0.29], st))
     out.append(Paragraph(
         f"{len(failing)} check(s) exceed their limit; the {min(_CLOSEST, len(closest))} "
@@ -199,7 +197,7 @@ def _first_page(study, report: dict, st) -> list:
             rows.append([esc(name), "not computed", esc(o.note), ""])
             continue
         closest_txt = "\u2013" if not o.closest else \
-            f"{esc(o.closest)}: margin {fmt(o.closest_margin_percent, 3)} %"
+            f"{esc(o.closest)}: margin {numfmt.margin(o.closest_margin_percent)}"
         rows.append([esc(name), esc(_verdict_text(o.verdict)),
                      esc(", ".join(o.failing) or "none"), closest_txt])
     out.append(_table(rows, [0.18, 0.17, 0.4, 0.25], st))
@@ -251,12 +249,15 @@ def study_path(study, path) -> str:
     return shown_path(str(path), study.site.path)
 
 
-def _check_row(c) -> list:
+def _check_row(c, decimals=None) -> list:
+    """Cells of a check: numbers by :func:`pqcheck.numfmt.check_cells` (``decimals``: its
+    :func:`~pqcheck.numfmt.check_decimals` over the study's checks), the mark after the unit."""
     basis = _BASIS.get(c.applies_to, "")
-    value = "not measured" if c.measured is None else f"{fmt(c.measured, 4)} {basis}"
-    limit = f"{fmt(c.limit, 3)} {basis}" + (" \u2020" if c.verify else "")
+    measured, limit, margin = numfmt.check_cells(c, decimals)
+    value = "not measured" if c.measured is None else numfmt.marked(measured, basis)
+    limit = numfmt.marked(numfmt.marked(limit, basis), "\u2020" if c.verify else "")
     why = c.note or (f"phase {c.phase}" if c.phase else "")
-    return [esc(c.label), esc(value), esc(limit), _pct(c.margin_percent),
+    return [esc(c.label), esc(value), esc(limit), margin,
             esc(_verdict_text(c.verdict)), esc(why)]
 
 
@@ -318,16 +319,18 @@ def _results_section(study, st) -> list:
                       "summation), against the limits. Failing orders are filled black and "
                       "marked \u2715 with their number.", st["caption"])]))
     out.append(Paragraph(
-        f"Voltage THD {fmt(study.thd_v_percent, 3)} % of the nominal voltage, TDD "
-        f"{fmt(study.tdd_percent, 3)} % of IL (orders 2 to {study.resolved_order}, worst "
+        f"Voltage THD {numfmt.value(study.thd_v_percent, 'distortion')} of the nominal "
+        f"voltage, TDD {numfmt.value(study.tdd_percent, 'distortion')} of IL (orders 2 to "
+        f"{study.resolved_order}, worst "
         "phase).", st["body"]))
 
     out.append(Paragraph("Checks", st["h2"]))
     rows = [["Check", "Estimate", "Limit", "Margin", "Verdict", "Clause"]]
     shown = [c for c in study.checks if c.quantity != "harmonic" or c.verdict != "pass"
              or (c.margin_percent is not None and c.margin_percent <= 50.0)]
+    decimals = numfmt.check_decimals(study.checks)
     for c in shown:
-        row = _check_row(c)
+        row = _check_row(c, decimals)
         rows.append(row[:5] + [esc(c.clause)])
     out.append(_table(rows, [0.09, 0.22, 0.2, 0.1, 0.16, 0.23], st))
     hidden = len(study.checks) - len(shown)
@@ -350,8 +353,9 @@ def _results_section(study, st) -> list:
                 more, bind = f"more than {hr.searched_up_to}", "none reached"
             else:
                 more = str(hr.extra_units)
-                bind = (f"{esc(hr.binding)}: {fmt(hr.binding_value, 3)} % > "
-                        f"{fmt(hr.binding_limit, 3)} %")
+                value, limit = numfmt.column([hr.binding_value, hr.binding_limit],
+                                             reference=[hr.binding_limit], unit="%")
+                bind = f"{esc(hr.binding)}: {value} > {limit}"
             rating = "\u2013" if hr.extra_units_rating is None else \
                 f"reached after {hr.extra_units_rating} more"
             rows.append([esc(hr.unit), str(hr.count), more, bind, rating])

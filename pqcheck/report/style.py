@@ -1,4 +1,5 @@
-"""Typography, colours and small formatting helpers of the PDF report.
+"""Typography, colours and small formatting helpers of the PDF report (numbers are written by
+:mod:`pqcheck.numfmt`, the one number formatter; ``fmt`` and friends are its short names here).
 
 The report uses the DejaVu Sans family that matplotlib ships (so text and figures share one
 typeface and symbols such as the check mark, the cross, "<=" and "±" are available), a
@@ -21,6 +22,8 @@ from reportlab.lib.enums import TA_LEFT, TA_RIGHT
 from reportlab.lib.styles import ParagraphStyle
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
+
+from .. import numfmt
 
 __all__ = ["esc", "printable", "can_draw", "reset_substitutions", "SUBSTITUTED", "shown_path", "is_bundled_table", "fmt", "fmt_like", "fmt_pct", "styles", "register_fonts", "VERDICT_MARK", "VERDICT_WORD",
            "INK", "ACCENT", "MUTED", "RULE", "SHADE", "FONT", "FONT_BOLD", "FONT_MONO"]
@@ -240,27 +243,9 @@ def shown_path(source, base=None) -> str:
 
 
 def fmt(x, digits: int = 4, unit: str = "") -> str:
-    """Number with ``digits`` significant digits (no exponent for everyday magnitudes), and
-    ``unit``; a dash for None or NaN."""
-    if x is None:
-        return "\u2013"
-    try:
-        xf = float(x)
-    except (TypeError, ValueError):
-        return str(x)
-    if not math.isfinite(xf):
-        return "\u2013"
-    if xf == 0:
-        s = "0"
-    else:
-        rounded = float(f"{xf:.{digits}g}")  # 99.9999 -> 100.0 (4 digits), not 100.00
-        mag = math.floor(math.log10(abs(rounded)))
-        if -4 <= mag < 7:
-            dec = max(0, digits - 1 - mag)
-            s = f"{xf:.{dec}f}"
-        else:
-            s = f"{xf:.{digits - 1}e}"
-    return f"{s} {unit}".rstrip() if unit else s
+    """Number with ``digits`` significant digits and ``unit`` (:func:`pqcheck.numfmt.number`,
+    the one formatter); a dash for None or NaN."""
+    return numfmt.number(x, digits, unit)
 
 
 def fmt_like(x, ref, digits: int = 4) -> str:
@@ -269,21 +254,17 @@ def fmt_like(x, ref, digits: int = 4) -> str:
     ``"0.000"``); falls back to :func:`fmt` when ``ref`` is missing or zero."""
     try:
         r = abs(float(ref))
-        xf = float(x)
     except (TypeError, ValueError):
         return fmt(x, digits)
-    if not (math.isfinite(r) and r > 0 and math.isfinite(xf)):
+    if not (math.isfinite(r) and r > 0):
         return fmt(x, digits)
-    dec = max(0, digits - 1 - math.floor(math.log10(r)))
-    s = f"{xf:.{dec}f}"
-    return s[1:] if s.startswith("-") and float(s) == 0 else s
+    return numfmt.fixed(x, numfmt.decimals_for([r], digits))
 
 
 def fmt_pct(x, digits: int = 3) -> str:
-    """Percentage with a sign, e.g. ``+12.5 %``; a dash for None or NaN."""
-    if x is None or not math.isfinite(float(x)):
-        return "\u2013"
-    return f"{float(x):+.{max(0, digits - 2)}f} %"
+    """A margin with its sign, e.g. ``+12.5 %`` (:func:`pqcheck.numfmt.margin`); a dash for
+    None or NaN. ``digits`` is kept for callers and ignored: a margin has one decimal."""
+    return numfmt.margin(x)
 
 
 def styles() -> dict:

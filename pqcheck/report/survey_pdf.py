@@ -20,6 +20,7 @@ import math
 
 import numpy as np
 
+from .. import numfmt
 from . import figures
 from .style import ACCENT, VERDICT_WORD, esc, fmt, register_fonts
 
@@ -65,7 +66,8 @@ def _time_chart(sa, idxs, title, t0):
                     label=f"{c.label} {c.channel} ({c.statistic.split(' of ')[-1]})")
             if c.limit is not None:
                 ax.axhline(c.limit, color=figures._LIMIT_INK, lw=0.9, ls=styles[j % 4])
-                ax.annotate(f"limit {fmt(c.limit, 3)} {c.unit} ({c.multiplier:g} x)",
+                ax.annotate(f"limit {numfmt.number(c.limit, 3, c.unit)} "
+                            f"({numfmt.given(c.multiplier)} x)",
                             (1.0, c.limit), xycoords=("axes fraction", "data"),
                             ha="right", va="bottom", fontsize=6, color=figures._LIMIT_INK)
             drawn += 1
@@ -163,7 +165,7 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     pairs = [("Report id", meta.report_id), ("Equipment / site", " / ".join(
         x for x in (meta.equipment, meta.site) if x) or "-"), ("Operator", meta.operator or "-"),
         ("Survey", f"{s.origin}: {format_time(s.start_s, tz)} to {format_time(s.end_s, tz)} "
-                   f"({s.duration_s / 86400:.3f} days); time zone "
+                   f"({numfmt.value(s.duration_s / 86400, 'days')}); time zone "
                    f"{tz or 'not given (timestamps as written)'}"),
         ("Data", ", ".join(f"{lv.n} x {lv.level} ({int(lv.flagged.sum())} flagged, "
                            f"{int((~lv.complete).sum())} incomplete)" for lv in s.levels))]
@@ -181,9 +183,10 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
         elif w is None:
             rows.append([r["table"], r["applies_to"], r["statistic"], "no value", "", ""])
         else:
+            value, limit = numfmt.value_and_limit(w["value"], w["limit"], w["unit"])
             rows.append([r["table"], r["applies_to"], r["statistic"], w["verdict"].upper(),
-                         f"{w['label']} {w['channel']} {fmt(w['value'], 4)} / limit "
-                         f"{fmt(w['limit'], 4)} {w['unit']}", f"{w['start']} to {w['end']}"])
+                         f"{w['label']} {w['channel']} {value} / limit {limit}",
+                         f"{w['start']} to {w['end']}"])
     b.add(b.table(rows, [0.12, 0.08, 0.22, 0.12, 0.24, 0.22]))
     not_assessed = [n for n in a.notes if "NOT ASSESSED" in n]
     if not_assessed:
@@ -207,7 +210,7 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     for lvl, p in sa.availability:
         d = p.to_dict(tz)
         rows.append([lvl, d["start"], d["end"], d["expected"], d["present"], d["usable"],
-                     d["flagged"], d["incomplete"], d["missing"], f"{100 * p.coverage:.1f} %"])
+                     d["flagged"], d["incomplete"], d["missing"], numfmt.fixed(100 * p.coverage, 1, "%")])
     b.tcaption("Intervals per 24 h period from the survey's origin, per aggregation level.")
     b.add(b.table(rows, [0.07, 0.17, 0.17, 0.08, 0.08, 0.08, 0.08, 0.09, 0.08, 0.10],
                   right=(3, 4, 5, 6, 7, 8, 9)))
@@ -219,11 +222,13 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     measured = [i for i in ranked if a.checks[i].measured is not None]
     rows = [["verdict", "item", "phase", "statistic", "worst value", "limit", "margin",
              "worst period"]]
+    decimals = numfmt.check_decimals(a.checks)
     for i in measured[:_MAX_ROWS]:
         k = a.checks[i]
+        value, limit, margin = numfmt.check_cells(k, decimals)
         rows.append([VERDICT_WORD.get(k.verdict, k.verdict), k.label, k.channel, k.statistic,
-                     f"{fmt(k.measured, 4)} {k.unit}", f"{fmt(k.limit, 4)} {k.unit}",
-                     f"{fmt(k.margin_percent, 3)} %", f"{k.period_start} to {k.period_end}"])
+                     numfmt.marked(value, k.unit), numfmt.marked(limit, k.unit), margin,
+                     f"{k.period_start} to {k.period_end}"])
     b.tcaption(f"The {min(len(measured), _MAX_ROWS)} assessed statistics closest to their "
                f"limits, of {len(measured)} (all of them, with every period's value, are in "
                "the attached results.json); margin = (limit - value) / limit.")
