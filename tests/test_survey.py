@@ -414,8 +414,13 @@ def _valid(doc: dict, kind: str):
     spec read back through pqcheck.results."""
     import jsonschema
 
-    from pqcheck.results import SCHEMA_VERSION, read_document, run_spec_of, schema_for, \
-        shipped_schema
+    from pqcheck.results import (
+        SCHEMA_VERSION,
+        read_document,
+        run_spec_of,
+        schema_for,
+        shipped_schema,
+    )
 
     assert doc["schema_version"] == SCHEMA_VERSION and doc["tool"]["kind"] == kind
     for schema in (schema_for(kind), shipped_schema()):
