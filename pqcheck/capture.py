@@ -318,8 +318,19 @@ class CaptureStream:
 
     @property
     def provenance(self) -> Provenance:
-        """Source, SHA-256 (complete after a full pass) and reader settings."""
+        """Source, SHA-256 (complete after a full pass, or once a hash running beside the
+        reading has finished: see :meth:`hash_pending`) and reader settings."""
+        pending = self._shared.get("hash")
+        if pending is not None:
+            self._shared["hash"] = None
+            self._shared["provenance"] = replace(
+                self._shared["provenance"], sha256=pending.result())
         return self._shared["provenance"]
+
+    def hash_pending(self, hasher) -> None:
+        """Take the SHA-256 from ``hasher`` (an object whose ``result()`` returns the hex
+        digest, computing it on another thread) when :attr:`provenance` is first read."""
+        self._shared["hash"] = hasher
 
     @provenance.setter
     def provenance(self, value):
@@ -443,6 +454,18 @@ def guess_role_evidence(name: str, unit: str = "") -> tuple:
     return quantity, phase or "", "; ".join(why)
 
 
+def _did_you_mean(name: str, names) -> str:
+    """``" (did you mean 'ia'?)"`` for a column name given in another case or slightly
+    misspelt (names are matched exactly: a record names its columns as the file does)."""
+    import difflib
+
+    folded = {n.casefold(): n for n in names}
+    hits = [folded[name.casefold()]] if name.casefold() in folded else [
+        folded[m] for m in difflib.get_close_matches(name.casefold(), list(folded), n=2,
+                                                     cutoff=0.6)]
+    return f" (did you mean {' or '.join(repr(h) for h in hits)}?)" if hits else ""
+
+
 def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
     """Return a copy of ``capture`` with channel roles set by the user.
 
@@ -478,7 +501,8 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
         for n in names:
             if n not in capture.names:
                 raise InputError(
-                    f"no column named {n!r}; the capture has: {', '.join(capture.names)}",
+                    f"no column named {n!r}{_did_you_mean(n, capture.names)}; the capture "
+                    f"has: {', '.join(capture.names)}",
                     path=path,
                     field=opt,
                 )
