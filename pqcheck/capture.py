@@ -443,6 +443,18 @@ def guess_role_evidence(name: str, unit: str = "") -> tuple:
     return quantity, phase or "", "; ".join(why)
 
 
+def _did_you_mean(name: str, names) -> str:
+    """``" (did you mean 'ia'?)"`` for a column name given in another case or slightly
+    misspelt (names are matched exactly: a record names its columns as the file does)."""
+    import difflib
+
+    folded = {n.casefold(): n for n in names}
+    hits = [folded[name.casefold()]] if name.casefold() in folded else [
+        folded[m] for m in difflib.get_close_matches(name.casefold(), list(folded), n=2,
+                                                     cutoff=0.6)]
+    return f" (did you mean {' or '.join(repr(h) for h in hits)}?)" if hits else ""
+
+
 def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
     """Return a copy of ``capture`` with channel roles set by the user.
 
@@ -478,7 +490,8 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
         for n in names:
             if n not in capture.names:
                 raise InputError(
-                    f"no column named {n!r}; the capture has: {', '.join(capture.names)}",
+                    f"no column named {n!r}{_did_you_mean(n, capture.names)}; the capture "
+                    f"has: {', '.join(capture.names)}",
                     path=path,
                     field=opt,
                 )

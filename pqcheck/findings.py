@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-__all__ = ["Finding", "SEVERITIES", "worst_severity"]
+__all__ = ["Finding", "SEVERITIES", "worst_severity", "channel_flags"]
 
 SEVERITIES = ("info", "warning", "error")
 
@@ -87,3 +87,32 @@ def worst_severity(findings) -> str | None:
         if worst is None or SEVERITIES.index(f.severity) > SEVERITIES.index(worst):
             worst = f.severity
     return worst
+
+
+def channel_flags(findings, channels) -> dict:
+    """The error findings that undermine each channel's values (rms, distortion, power).
+
+    Parameters
+    ----------
+    findings : sequence of Finding
+    channels : sequence of str
+        Channel names.
+
+    Returns
+    -------
+    dict
+        Channel name -> codes of the error findings that concern the whole channel (a
+        finding naming no channel concerns every one; a finding limited to some harmonic
+        orders is left out: the channel's totals stand). Channels without such a finding
+        are left out.
+    """
+    out: dict = {}
+    for f in findings:
+        if f.severity != "error" or f.orders:
+            continue
+        for ch in channels:
+            if f.affects(ch):
+                codes = out.setdefault(ch, [])
+                if f.code not in codes:
+                    codes.append(f.code)
+    return {ch: tuple(codes) for ch, codes in out.items()}

@@ -92,6 +92,7 @@ __all__ = [
     "resolve",
     "dump_toml",
     "parse_orders",
+    "designation",
 ]
 
 _PACKAGE = "pqcheck.limit_tables"
@@ -442,6 +443,20 @@ _KEYWORDS = {
 _INPUTS = {inner: kw for kw, inner in _KEYWORDS.items()}  # for error fields
 _NUMERIC = ("voltage_level", "isc", "il", "isc_il", "rsce", "ssc", "rated_power")
 _KIND_ORDER = {"choice": 0, "flag": 1, "band": 2, "points": 3}
+
+
+def designation(standard: str, edition: str, fallback: str = "") -> str:
+    """The standard as it is cited: ``"IEEE Std 519-2022"`` (a year edition joined by a
+    hyphen), ``"IEC 61000-3-2 ed. 5.0 (2018)"``; ``fallback`` (a table id) without a
+    standard."""
+    std, ed = (standard or "").strip(), (edition or "").strip()
+    if not std:
+        return fallback
+    if not ed:
+        return std
+    if ed.isdigit() and len(ed) == 4:
+        return f"{std}-{ed}"
+    return f"{std} ed. {ed}"
 
 
 def resolve(table, **selectors) -> ResolvedLimits:

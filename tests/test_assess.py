@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 
 import numpy as np
 import pytest
@@ -394,6 +395,15 @@ def test_cli_check_inconclusive_and_usage_errors(tmp_path):
     opts = ["--limits", "ieee519-2022", "--voltage-level", 480, "--isc", 3500, "--il", 100]
     res = run("check", path, *opts)
     assert res.exit_code == 3, res.output
+    # the summary groups the undecided checks by cause: the gate (a 3 s capture against a
+    # week-long statistic) and the clipping finding, each once, the counts adding up
+    block = res.output.split("by cause\n")[1].split("\n\n")[0]
+    causes = [ln.strip() for ln in block.splitlines() if not ln.startswith("    ")]
+    assert [c.split(":")[0] for c in causes] == ["observation-short", "clipping"]
+    assert causes[0].endswith("see Why") and causes[1].endswith("see Findings")
+    n = int(re.search(r"Inconclusive \((\d+) checks\)", res.output).group(1))
+    assert n == sum(int(re.search(r": (\d+) checks", c).group(1)) for c in causes)
+    assert "; gate" not in res.output  # a gate is not a statistic compared
     res = run("check", path, "--limits", "ieee519-2022", "--voltage-level", 480, "--isc", 3500)
     assert res.exit_code == 2
     assert "--il: table ieee519-2022 (Tables 2 to 4) selects its row by ISC/IL" in res.output

@@ -186,7 +186,7 @@ def _check_json(path):
 def test_batch_rows_equal_check_results(fleet, tmp_path):
     out = tmp_path / "r.parquet"
     res = CliRunner().invoke(main, ["batch", str(fleet), *LIMIT_ARGS, "--no-cache", "-q",
-                                    "--jobs", "1", "--out", str(out), "--format", "json"])
+                                    "--jobs", "1", "-o", str(out), "--format", "json"])
     assert res.exit_code == 1, res.output  # b-fail fails
     summary = json.loads(res.stdout)
     assert summary["run"]["found"] == len(CAPTURES)
@@ -315,10 +315,35 @@ def test_resume_skips_captures_already_in_the_output(fleet, tmp_path, monkeypatc
     assert read_results(out).num_rows == table1.num_rows + n_d
 
 
-def test_output_made_with_other_settings_is_not_mixed(fleet, tmp_path):
-    out = tmp_path / "r.parquet"
+def test_summary_names_the_inconclusive_capture_and_never_passes_a_clipped_one(tmp_path):
+    # one clean capture and one whose phase-b current sits flat at +-80 % of its peak (a
+    # digitiser's rails): the clipped one is inconclusive, named with its cause, and its
+    # lowest-margin row (a clean phase that meets its limit) is never shown as "pass"
+    write_csv(tmp_path / "clean.csv", three_phase(0.08))
+    cols = three_phase(0.08)
+    peak = float(np.max(cols["ib [A]"]))
+    cols["ib [A]"] = np.clip(cols["ib [A]"], -0.8 * peak, 0.8 * peak)
+    write_csv(tmp_path / "clipped.csv", cols)
+    res = CliRunner().invoke(main, ["batch", str(tmp_path), *LIMIT_ARGS, "--no-cache", "-q",
+                                    "-j", "1"])
+    assert res.exit_code == 3, res.output
+    out = res.stdout
+    undecided = out.split("Inconclusive captures (1), by cause\n")[1].split("\n\n")[0]
+    assert undecided.lstrip().startswith("clipping (channel ib): ")
+    assert "clipped.csv" in undecided and "clean.csv" not in undecided
+    assert "looks clipped" in undecided  # the finding's own message
+    worst = out.split("Lowest margin of each capture")[1].split("\n\n")[0]
+    row = next(line for line in worst.splitlines() if "clipped.csv" in line)
+    assert "INCONCLUSIVE" in row.split() and "pass" in row.split()  # capture, then check
+    clean = next(line for line in worst.splitlines() if "clean.csv" in line)
+    assert clean.split()[1] == "pass"
+
+
+@pytest.mark.parametrize("name", ["r.parquet", "r.csv"])
+def test_output_made_with_other_settings_is_not_mixed(fleet, tmp_path, name):
+    out = tmp_path / name  # -o writes CSV for a .csv name, Parquet otherwise
     args = ["batch", str(fleet / "a-pass.csv"), *LIMIT_ARGS, "--no-cache", "-q", "-j", "1",
-            "--out", str(out)]
+            "-o", str(out)]
     assert CliRunner().invoke(main, args).exit_code == 0
     other = [a if a != str(IL) else "25" for a in args]
     res = CliRunner().invoke(main, other)
@@ -326,6 +351,9 @@ def test_output_made_with_other_settings_is_not_mixed(fleet, tmp_path):
     assert "holds results made with other limit tables, selectors or options" in res.stderr
     res = CliRunner().invoke(main, other + ["--force"])
     assert res.exit_code == 0 and "1 checked now, 0 already" in res.stdout
+    head = out.read_bytes()[:4]
+    assert (head == b"PAR1") == (name == "r.parquet")  # Parquet's magic number
+    assert read_results(out).schema == batch.SCHEMA
 
 
 def test_interrupted_batch_keeps_the_work_done(fleet, tmp_path, monkeypatch):
@@ -412,8 +440,8 @@ def test_dask_missing_gives_an_install_hint(fleet, monkeypatch):
 @pytest.mark.parametrize("extra, match", [
     (["--jobs", "2", "--workers", "2"], "--jobs sets local worker processes"),
     (["--scheduler", "tcp://127.0.0.1:1", "--workers", "2"], "give --scheduler or --workers"),
-    (["--out", "r.csv"], "--out writes Parquet; give the CSV file with --csv"),
-    (["--out", "r.parquet", "--csv", "./r.parquet"], "--out and --csv name the same file"),
+    (["-o", "r.csv", "--csv", "s.csv"], "-o names a CSV file and --csv another"),
+    (["--out", "r.parquet", "--csv", "./r.parquet"], "-o and --csv name the same file"),
 ])
 def test_usage_errors(fleet, extra, match):
     res = CliRunner().invoke(main, ["batch", str(fleet), *LIMIT_ARGS, *extra])

@@ -355,7 +355,30 @@ def test_cli_limits_show_toml_is_a_valid_starting_point(tmp_path):
 def test_cli_limits_show_unknown():
     res = run("limits", "show", "ieee-519")
     assert res.exit_code == 2
-    assert "unknown limit table 'ieee-519'" in res.output
+    # the argument is named, not the --limits option of other commands
+    assert "error: TABLE: unknown limit table 'ieee-519'; did you mean" in res.output
+
+
+def test_cli_limits_cite_the_standard_with_its_edition():
+    # IEEE cites a standard as "IEEE Std 519-2022" (designation-year), never "519 2022"
+    res = run("limits", "list")
+    assert res.exit_code == 0
+    assert "IEEE Std 519-2022" in res.output and "519 2022" not in res.output
+    res = run("limits", "validate", str(load_table("ieee519-2022").source))
+    assert res.exit_code == 0 and "(IEEE Std 519-2022;" in res.output
+
+
+def test_cli_limits_show_json_is_the_table_file():
+    import json
+
+    import tomllib
+
+    t = load_table("ieee519-2022")
+    res = run("limits", "show", "ieee519-2022", "--format", "json")
+    assert res.exit_code == 0
+    doc = json.loads(res.output)
+    assert doc["id"] == t.id and doc["sha256"] == t.sha256
+    assert doc["table"] == json.loads(json.dumps(tomllib.loads(t.text), default=str))
 
 
 def test_cli_limits_validate(tmp_path):

@@ -241,7 +241,24 @@ def test_clipped_channel_is_inconclusive_exit_three(tmp_path, fast_figures):
     assert res.exit_code == 3, res.output
     _, pages = pdf_text(out)
     assert "INCONCLUSIVE" in pages[0]
-    assert "clipping" in "\n".join(pages)
+    text = "\n".join(pages)
+    assert "clipping" in text
+    # the power of the clipped phase and the total that includes it are flagged, the others
+    # not: the flag (a glyph and the finding's code) stands under the row's label
+    lines = text.splitlines()
+    b_row = next(i for i, x in enumerate(lines) if x.startswith("b (vb \u00d7 ib)"))
+    assert lines[b_row + 1].startswith("\u26a0 clipping")
+    a_row = next(i for i, x in enumerate(lines) if x.startswith("a (va \u00d7 ia)"))
+    assert "\u26a0" not in lines[a_row] + lines[a_row + 1]
+    total = next(i for i, x in enumerate(lines) if x.split(" ")[0] == "total")
+    assert "\u26a0 includes b" in lines[total] + lines[total + 1]
+    # the terminal flags the same rows
+    res = CliRunner().invoke(main, ["analyze", str(cap), "--no-cache", "--quiet"])
+    rows = res.output.splitlines()
+    assert next(x for x in rows if x.startswith("ib ")).endswith("! clipping")
+    assert not next(x for x in rows if x.startswith("ia ")).endswith("clipping")
+    assert next(x for x in rows if x.startswith("  phase b ")).endswith("! clipping")
+    assert next(x for x in rows if x.startswith("  total ")).endswith("! includes phase b")
 
 
 def test_analysis_only_report_has_no_verdict(tmp_path, fast_figures):

@@ -171,13 +171,15 @@ file = "{clipped.name}"
     return p, clipped
 
 
-def test_excluded_capture_is_listed_with_its_reason_and_does_not_decide(tmp_path):
+def test_excluded_capture_is_listed_with_its_reason_and_does_not_decide(tmp_path,
+                                                                       monkeypatch):
     from conftest import write_without_observation
 
     table = write_without_observation(tmp_path, "ieee519-2022")
     plan, clipped = _plan(tmp_path, table, exclude_line='exclude = "range set wrongly"')
     out, js = tmp_path / "r.pdf", tmp_path / "r.json"
-    res = CliRunner().invoke(main, ["report", str(plan), "-o", str(out), "--json", str(js),
+    monkeypatch.chdir(tmp_path)  # the plan named as typed, relative to the working folder
+    res = CliRunner().invoke(main, ["report", plan.name, "-o", str(out), "--json", str(js),
                                     "--no-cache"])
     # the clean capture (5th at 2 % of IL < 7 %, IEEE 519-2022 Table 2, 20 <= ISC/IL < 50)
     # passes; the excluded six-pulse record would fail, and does not count
@@ -186,6 +188,8 @@ def test_excluded_capture_is_listed_with_its_reason_and_does_not_decide(tmp_path
     assert "range set wrongly" in text and "excluded" in text.lower()
     assert hashlib.sha256(clipped.read_bytes()).hexdigest() in text  # still traceable
     assert "2026-11-30" in text and "T. Ester" in text  # date of test and operator
+    # every file is shown relative to the plan's folder, never by this machine's path
+    assert str(tmp_path) not in text.replace("\n", "") and "clean.csv" in text
     import json
 
     doc = json.loads(js.read_text())
@@ -219,3 +223,39 @@ def test_test_date_option_and_summary_detail(tmp_path):
     bad = CliRunner().invoke(main, ["report", str(cap), *LIMIT_ARGS, "-o",
                                     str(tmp_path / "x.pdf"), "--test-date", "yesterday"])
     assert bad.exit_code == 2 and "YYYY-MM-DD" in bad.output
+
+
+def test_repeated_wording_is_said_once():
+    from pqcheck.report.text import merge_variants
+
+    # texts that differ in one quoted name or one number are merged; others stay apart
+    texts = ["T: the dc component of 'ia' was measured through x.",
+             "T: the dc component of 'ib' was measured through x.",
+             "T: the dc component of 'ic' was measured through x.",
+             "T: the capture covers 0.9996 s; the period is 7 days.",
+             "T: the capture covers 1 s; the period is 7 days.",
+             "T: the capture covers 1 s; the period is 7 days.",
+             "IEC 61000-4-7 applies to 'ia' at 2 kHz.",
+             "IEC 61000-4-7 applies to 'ib' at 9 kHz."]  # two slots differ: kept apart
+    assert merge_variants(texts) == [
+        "T: the dc component of 'ia', 'ib' and 'ic' was measured through x.",
+        "T: the capture covers 0.9996 to 1 s; the period is 7 days.",
+        "IEC 61000-4-7 applies to 'ia' at 2 kHz.",
+        "IEC 61000-4-7 applies to 'ib' at 9 kHz."]
+
+
+def test_verdict_reasons_are_said_once_and_gates_stay_out_of_the_tables(report):
+    first, text = report["pages"][0], report["text"]
+    flat = " ".join(text.split())
+    # one deviation for the three phase currents, not three lines that differ in a name
+    assert "'ia', 'ib' and 'ic'" in " ".join(first.split())
+    assert "of 'ib' was measured" not in flat
+    # the observation gate is named beside the verdict, not as a row of the totals table:
+    # the totals compare one statistic, named in the caption
+    assert "Undecided by observation-short: ieee519-2022: the capture covers" in flat
+    assert "totals against ieee519-2022 (RMS of 10/12-cycle values over the capture)" in flat
+    assert "capture; gate" not in flat
+    # the method says what was compared, and that the table's survey evaluation was not run
+    assert "Compared in this report: RMS of 10/12-cycle values over the capture." in flat
+    assert "needs a survey longer than these captures and was not applied" in flat
+    assert "[U+00AD]" not in text  # no soft hyphen of our own shown as a code point

@@ -144,3 +144,65 @@ def refuse_non_capture(path) -> None:
     if low.endswith(".pdf"):
         fail_usage(f"{path}: this is a PDF (a report?), not a capture: check a report with "
                    f"`pqcheck verify {path}`")
+
+
+# --- options every command spells the same way ---------------------------------------------
+
+FORMATS = ("table", "json")
+"""``--format`` choices every command with machine-readable output offers: ``table`` (the
+default, for reading) and ``json`` (for scripts)."""
+
+FORMAT_EXTRAS = {
+    "analyze": ("csv",),           # the per-order harmonic table, one row per channel and order
+    "check": ("markdown",),        # the summary as Markdown, to paste into a ticket or a wiki
+    "limits show": ("toml",),      # the table file itself, a starting point for your own
+}
+"""Further ``--format`` choices of single commands (the README lists them), beyond
+:data:`FORMATS`."""
+
+
+def format_option(command: str, help: str = "Output on stdout."):
+    """The ``--format`` option of ``command``: :data:`FORMATS` plus its
+    :data:`FORMAT_EXTRAS`, default ``table``."""
+    choices = FORMATS + FORMAT_EXTRAS.get(command, ())
+    return click.option("--format", "fmt", type=click.Choice(choices), default="table",
+                        show_default=True, help=help)
+
+
+class AliasOption(click.Option):
+    """An option with old spellings that still work but are left out of ``--help``
+    (``hidden_aliases``), so scripts written for an earlier version keep running."""
+
+    def __init__(self, *args, hidden_aliases=(), **kwargs):
+        super().__init__(*args, **kwargs)
+        self.hidden_aliases = tuple(hidden_aliases)
+        for alias in self.hidden_aliases:
+            self.opts.append(alias)
+
+    def get_help_record(self, ctx):
+        opts = self.opts
+        self.opts = [o for o in opts if o not in self.hidden_aliases]
+        try:
+            return super().get_help_record(ctx)
+        finally:
+            self.opts = opts
+
+
+def output_option(metavar: str, help: str, *, required: bool = False, aliases=(),
+                  dest: str = "output"):
+    """``-o/--output FILE``: the file a command writes, spelled alike by every command (older
+    spellings in ``aliases`` keep working, hidden from ``--help``)."""
+    return click.option("-o", "--output", dest, cls=AliasOption, hidden_aliases=aliases,
+                        required=required, type=click.Path(dir_okay=False), metavar=metavar,
+                        help=help)
+
+
+def template_target(path, output):
+    """Where a ``new`` command writes its template: the PATH argument or ``-o/--output``
+    (exit 2 when neither, or two different files, are given)."""
+    if path and output and os.path.abspath(path) != os.path.abspath(output):
+        fail_usage(f"PATH {path} and -o {output} name two files; give one")
+    target = path or output
+    if not target:
+        fail_usage("give the file to write: PATH or -o/--output PATH")
+    return target

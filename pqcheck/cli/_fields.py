@@ -91,7 +91,7 @@ OTHER_OPTIONS = {
     "output": "-o",
     "json": "--json",
     "csv": "--csv",
-    "out": "--out",
+    "out": "-o",
     "search": "--search",
     "scheduler": "--scheduler",
     "workers": "--workers",

@@ -77,6 +77,10 @@ def _cause(k, findings) -> str:
     return note.split(";")[0].split(" (")[0] if note else "not decidable from the data"
 
 
+def _phases(checks) -> list:
+    return sorted({_where(k) for k in checks})
+
+
 def _orders_text(checks) -> str:
     totals = list(dict.fromkeys(k.label for k in checks if k.quantity != "harmonic"))
     orders = sorted({k.order for k in checks if k.quantity == "harmonic" and k.order})
@@ -118,8 +122,10 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
              f"{c.get('inconclusive', 0)} inconclusive, {c.get('pass', 0)} pass"
              + (f", {c['not applicable']} not applicable" if c.get("not applicable") else "")
              + ")"]
-    for label, texts in (("Why", getattr(a, "reasons", ())),
-                         ("Deviation", getattr(a, "deviations", ()))):
+    from ..report.text import merge_variants
+
+    for label, texts in (("Why", merge_variants(getattr(a, "reasons", ()))),
+                         ("Deviation", merge_variants(getattr(a, "deviations", ())))):
         for k, text_ in enumerate(texts):
             lines += textwrap.wrap(cli_text(text_), width=width,
                                    initial_indent=f"{label if k == 0 else '':<10}",
@@ -141,7 +147,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
         lines += wrap.wrap("measure: IEC 61000-4-15 flickermeter and IEC 61000-3-3 voltage "
                            "changes" if t.measure == "flicker"
                            else f"measure: IEC 61000-4-7 harmonic {t.measure}s")
-    stats = list(dict.fromkeys(k.statistic for k in a.checks))
+    stats = list(dict.fromkeys(k.statistic for k in a.checks if k.statistic != "gate"))
     if stats:
         lines.append("Compared  " + "; ".join(stats))
     with_table = len(a.tables) > 1
@@ -160,14 +166,21 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
         else:
             lines.append("Limits exceeded: none")
         undecided = [k for k in checks if k.verdict == "inconclusive"]
+        gates = [k for k in undecided if k.statistic == "gate"]
+        held = [k for k in undecided if k.statistic != "gate"]
         if undecided:
             groups: dict = {}
-            for k in undecided:
-                groups.setdefault((_where(k), _cause(k, findings)), []).append(k)
-            lines += ["", f"Inconclusive ({len(undecided)}), by cause"]
-            for (where, cause), ks in groups.items():
-                lines += wrap.wrap(f"phase {where}: {len(ks)} checks ({_orders_text(ks)}) "
-                                   f"- {cli_text(cause)}")
+            for k in held:
+                groups.setdefault(_cause(k, findings), []).append(k)
+            lines += ["", f"Inconclusive ({len(held)} checks), by cause"]
+            for g in gates:  # a gate holds every check it names: its reason said once
+                ks = groups.pop(g.quantity, [])
+                lines += wrap.wrap(f"{g.quantity}: {len(ks)} checks ({_orders_text(ks)}; "
+                                   f"phases {', '.join(_phases(ks))}); see Why")
+            for cause, ks in groups.items():
+                see = "; see Findings" if any(f.code == cause for f in findings) else ""
+                lines += wrap.wrap(f"{cli_text(cause)}: {len(ks)} checks ({_orders_text(ks)}; "
+                                   f"phases {', '.join(_phases(ks))}){see}")
         passes = [k for k in checks if k.verdict == "pass" and k.margin_percent is not None]
         if passes and closest:
             lines += ["", f"Closest to their limits ({min(closest, len(passes))} of "
@@ -175,7 +188,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
             lines += _rows_table(passes[:closest], dec, with_table=with_table)
     if a.notes:
         lines += ["", "Notes"]
-        for n in a.notes:
+        for n in merge_variants(a.notes):
             lines += wrap.wrap(cli_text(n))
     if findings:
         lines += ["", "Findings"]

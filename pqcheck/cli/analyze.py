@@ -6,7 +6,7 @@ import click
 import numpy as np
 
 from .. import numfmt
-from ._common import EXIT_OK, handle_errors, main
+from ._common import EXIT_OK, format_option, handle_errors, main
 from ._fields import cli_text, spec_from_options
 
 __all__ = ["capture_options", "run_checked", "print_cache_notices"]
@@ -70,7 +70,7 @@ def capture_options(func):
                           "impedance paths at 50 Hz, 120 V at 60 Hz)."),
         click.option("--no-cache", "no_cache", is_flag=True,
                      help="Do not read or write the cache of parsed captures and results."),
-        click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False),
+        click.option("--cache-dir", "cache_dir", type=click.Path(file_okay=False), metavar="DIR",
                      help="Cache folder (default $PQCHECK_CACHE_DIR or ~/.cache/pqcheck)."),
         click.option("--quiet", "-q", is_flag=True, help="No progress bar."),
     ]
@@ -167,6 +167,14 @@ def render_table(result) -> str:
         what = {"current": "current", "voltage": "voltage"}.get(c.quantity, c.quantity)
         return f"{what}, phase {c.phase}" if c.phase else f"{what}, single-phase"
 
+    from ..findings import channel_flags
+
+    flags = channel_flags(r.findings, [c.name for c in r.channels])
+
+    def flag(*names):  # the errors (findings) that undermine these channels' values
+        codes = list(dict.fromkeys(x for n in names for x in flags.get(n, ())))
+        return f"  ! {', '.join(codes)}" if codes else ""
+
     name_w = max([7] + [len(c.name) for c in r.channels]) + 2
     role_w = max(len(role_of(c)) for c in r.channels) + 2
     head = (f"{'channel':<{name_w}}{'role':<{role_w}}{'rms':>12}{'fundamental':>14}"
@@ -181,7 +189,7 @@ def render_table(result) -> str:
             f"{numfmt.value(c.thd_percent, 'distortion', unit=''):>9}"
             f"{numfmt.value(c.thd_group_percent, 'distortion', unit=''):>9}"
             f"{numfmt.value(c.tdd_percent, 'distortion', unit=''):>9}"
-            f"{numfmt.value(c.crest_factor, 'crest_factor'):>8}")
+            f"{numfmt.value(c.crest_factor, 'crest_factor'):>8}" + flag(c.name))
     lines.append("")
     # harmonic table: % of fundamental, orders 2..H with any value >= 0.1 %
     chans = r.channels
@@ -215,14 +223,16 @@ def render_table(result) -> str:
                 f"S {numfmt.power(ph.s_va, 'VA', ref=ph.s_va):>11}  "
                 f"Q1 {numfmt.power(ph.q1_var, 'var', ref=ph.s_va):>11}  "
                 f"PF {numfmt.value(ph.pf, 'power_factor'):>7}  "
-                f"DPF {numfmt.value(ph.dpf, 'power_factor'):>7}")
+                f"DPF {numfmt.value(ph.dpf, 'power_factor'):>7}"
+                + flag(ph.voltage, ph.current))
         tot = f"  total      P {numfmt.power(p.p_w, ref=p.se_va):>11}"
         if p.se_va is not None:
             tot += f"  Se {numfmt.power(p.se_va, 'VA', ref=p.se_va):>11}"
         tot += f"  PF {numfmt.value(p.pf, 'power_factor'):>7}"
         if p.wiring:
             tot += f"  ({p.wiring})"
-        lines.append(tot)
+        bad = [ph.phase or "1ph" for ph in p.phases if flag(ph.voltage, ph.current)]
+        lines.append(tot + (f"  ! includes phase {', '.join(bad)}" if bad else ""))
         if "i_unbalance_percent" in p.extra:
             lines.append("  current unbalance (I2/I1) "
                          f"{numfmt.value(p.extra['i_unbalance_percent'], 'percent')}, voltage "
@@ -231,6 +241,8 @@ def render_table(result) -> str:
         lines.append("")
         lines += render_flicker(r.flicker)
     lines.append("")
+    if flags:
+        lines.append("! values of a channel that an error below undermines: shown, not relied on")
     if r.findings:
         lines.append("Findings")
         for f in r.findings:
@@ -270,8 +282,8 @@ def render_flicker(fa) -> list:
 @main.command("analyze")
 @click.argument("capture", type=click.Path(dir_okay=False))
 @capture_options
-@click.option("--format", "fmt", type=click.Choice(["table", "json", "csv"]), default="table",
-              show_default=True, help="Output on stdout.")
+@format_option("analyze", help="Output on stdout: a readable table, the results document "
+                                "(json), or one CSV row per channel and order (csv).")
 @handle_errors
 def analyze_cmd(capture, fmt, **opts):
     """Harmonic analysis of CAPTURE by the IEC 61000-4-7 method.

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import VERDICT_EXIT, handle_errors, main
+from ._common import VERDICT_EXIT, format_option, handle_errors, main
 from ._fields import spec_from_options
 from ._limits import limit_options
 from ._render import render_assessment, render_markdown
@@ -18,8 +18,7 @@ __all__ = ["render_assessment"]
 @limit_options(required=True)
 @capture_options
 @survey_options
-@click.option("--format", "fmt", type=click.Choice(["table", "json", "markdown"]),
-              default="table", show_default=True,
+@format_option("check",
               help="Output on stdout: a readable summary (table), the results document "
                    "(json), or every check as a Markdown table to paste (markdown).")
 @click.option("--all-checks", is_flag=True,

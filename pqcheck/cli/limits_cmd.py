@@ -6,8 +6,15 @@ import click
 
 from .. import numfmt
 from .._limit_model import BASES, TOTALS, VERIFY_TAGS
-from ..limits import LimitTable, bundled_ids, load_table, read_table, validate_file
-from ._common import EXIT_OK, EXIT_USAGE, handle_errors, main
+from ..limits import (
+    LimitTable,
+    bundled_ids,
+    designation,
+    load_table,
+    read_table,
+    validate_file,
+)
+from ._common import EXIT_OK, EXIT_USAGE, fail_usage, format_option, handle_errors, main
 
 __all__ = ["render_table"]
 
@@ -92,7 +99,8 @@ def render_table(table: LimitTable) -> str:
     """
     t = table
     lines = [f"{t.id}: {t.title}",
-             f"Standard    {t.standard} {t.edition}" + (f", {t.clause}" if t.clause else "")]
+             f"Standard    {designation(t.standard, t.edition)}"
+             + (f", {t.clause}" if t.clause else "")]
     if t.source:
         lines.append(f"File        {t.source}")
         lines.append(f"SHA-256     {t.sha256}")
@@ -239,8 +247,7 @@ def limits_group():
 
 
 @limits_group.command("list")
-@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
-              show_default=True, help="Output on stdout.")
+@format_option("limits list")
 @handle_errors
 def list_cmd(fmt):
     """List the bundled limit tables."""
@@ -253,7 +260,7 @@ def list_cmd(fmt):
                                 "title": t.title} for t in tables], indent=2))
         raise click.exceptions.Exit(EXIT_OK)
     for t in tables:
-        rows.append([t.id, f"{t.standard} {t.edition}", t.title])
+        rows.append([t.id, designation(t.standard, t.edition), t.title])
     click.echo("\n".join(_grid(["ID", "STANDARD", "TITLE"], rows)))
     click.echo("\nShow one with `pqcheck limits show ID`; copy it with "
                "`pqcheck limits show ID --format toml > my-table.toml`.")
@@ -262,16 +269,29 @@ def list_cmd(fmt):
 
 @limits_group.command("show")
 @click.argument("table")
-@click.option("--format", "fmt", type=click.Choice(["table", "toml"]), default="table",
-              show_default=True,
-              help="table: readable summary; toml: the table file itself, a starting point for "
-                   "your own table.")
+@format_option("limits show",
+               help="table: readable summary; json: the table's data; toml: the table file "
+                    "itself, a starting point for your own table.")
 @handle_errors
 def show_cmd(table, fmt):
     """Show limit table TABLE (a bundled id, case-insensitive, or the path of a .toml file)."""
-    t = load_table(table)
+    from ..errors import InputError
+
+    try:
+        t = load_table(table)
+    except InputError as exc:
+        if exc.field != "table" or exc.path:
+            raise
+        fail_usage(f"TABLE: {exc.problem}")  # the argument, not the --limits of other commands
     if fmt == "toml":
         click.echo(t.text, nl=not t.text.endswith("\n"))
+    elif fmt == "json":
+        import json
+
+        import tomllib
+
+        click.echo(json.dumps({"id": t.id, "sha256": t.sha256, "source": str(t.source),
+                               "table": tomllib.loads(t.text)}, indent=2, default=str))
     else:
         click.echo(render_table(t), nl=False)
 
@@ -289,5 +309,6 @@ def validate_cmd(path):
         raise click.exceptions.Exit(EXIT_USAGE)
     t = read_table(path)
     n = sum(len(b.rows) or 1 for b in t.blocks)
-    click.echo(f"{path}: valid limit table {t.id!r} ({t.standard} {t.edition}; {len(t.blocks)} "
+    click.echo(f"{path}: valid limit table {t.id!r} ({designation(t.standard, t.edition)}; "
+               f"{len(t.blocks)} "
                f"block{'s' if len(t.blocks) > 1 else ''}, {n} row{'s' if n > 1 else ''})")

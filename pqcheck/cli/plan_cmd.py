@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import EXIT_OK, handle_errors, main
+from ._common import EXIT_OK, handle_errors, main, output_option, template_target
 
 
 @main.group("plan")
@@ -14,13 +14,16 @@ def plan_group():
 
 
 @plan_group.command("new")
-@click.argument("path", type=click.Path(dir_okay=False))
+@click.argument("path", required=False, type=click.Path(dir_okay=False))
+@output_option("PATH", help="The template to write (or give PATH as the argument).")
 @click.option("--force", is_flag=True, help="Replace an existing file.")
 @handle_errors
-def plan_new_cmd(path, force):
+def plan_new_cmd(path, output, force):
     """Write a commented test-plan template to PATH (refuses to replace an existing file
     unless --force). Edit it, then run `pqcheck report PATH -o report.pdf`."""
     from ..files.atomic import write_atomic
+
+    path = template_target(path, output)
     from ..run.plan import plan_template
 
     write_atomic(path, plan_template(), force=force)

@@ -8,7 +8,16 @@ from pathlib import Path
 
 import click
 
-from ._common import EXIT_OK, VERDICT_EXIT, fail_usage, handle_errors, main
+from ._common import (
+    EXIT_OK,
+    VERDICT_EXIT,
+    fail_usage,
+    format_option,
+    handle_errors,
+    main,
+    output_option,
+    template_target,
+)
 
 __all__ = ["render_site_table"]
 
@@ -187,14 +196,13 @@ def site_group():
 
 @site_group.command("run")
 @click.argument("site_file", metavar="SITE.toml", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", "output", type=click.Path(dir_okay=False), metavar="PDF",
-              help="Write the site study report as a PDF (the results JSON is attached).")
+@output_option("PDF", help="Write the site study report as a PDF (the results JSON is "
+                           "attached).")
 @click.option("--json", "json_path", type=click.Path(dir_okay=False), metavar="PATH",
               help="Also write the results as JSON (the same file is attached to the PDF).")
 @click.option("--force", is_flag=True,
               help="Replace existing output files (never an input of the study).")
-@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
-              show_default=True, help="Output on stdout.")
+@format_option("site run")
 @click.option("--summation", type=click.Choice(["general", "arithmetic", "phasor"]),
               help="Override the site file's summation of the units' harmonic currents.")
 @click.option("--title", metavar="TEXT", help="Report title.")
@@ -276,12 +284,15 @@ def _refuse_input(option: str, out: Path, inputs) -> None:
 
 
 @site_group.command("new")
-@click.argument("path", type=click.Path(dir_okay=False))
+@click.argument("path", required=False, type=click.Path(dir_okay=False))
+@output_option("PATH", help="The template to write (or give PATH as the argument).")
 @click.option("--force", is_flag=True, help="Replace an existing file.")
 @handle_errors
-def site_new(path, force):
+def site_new(path, output, force):
     """Write a commented site template to PATH (edit it, then run pqcheck site PATH)."""
     from ..files.atomic import write_atomic
+
+    path = template_target(path, output)
     from ..site import site_template
 
     write_atomic(path, site_template(), force=force)

@@ -261,7 +261,7 @@ def report_survey(source, outputs, out, json_path, csv_dir, spec, created, comma
 
 
 def _register():
-    from ._common import handle_errors, main
+    from ._common import handle_errors, main, output_option
     from .analyze import capture_options
 
     @main.command("aggregate")
@@ -270,8 +270,8 @@ def _register():
                   type=click.Choice(["3s", "10min", "2h"]), show_default=True,
                   help="Aggregation interval; repeat for several (one file, rows told apart "
                        "by their interval_s column).")
-    @click.option("-o", "--out", "out", required=True, type=click.Path(dir_okay=False),
-                  metavar="LOG", help="Interval log to write: .csv, or .parquet for Parquet.")
+    @output_option("LOG", aliases=("--out",), required=True,
+                   help="Interval log to write: .csv, or .parquet for Parquet.")
     @click.option("--force", is_flag=True, help="Replace LOG if it exists.")
     @click.option("--jobs", "-j", type=click.IntRange(1), metavar="N",
                   help="Analyse the files in N local processes.")
@@ -282,7 +282,7 @@ def _register():
     @capture_options
     @survey_options
     @handle_errors
-    def aggregate_cmd(recording, intervals, out, force, jobs, scheduler, workers, **opts):
+    def aggregate_cmd(recording, intervals, output, force, jobs, scheduler, workers, **opts):
         """Aggregate a waveform RECORDING (one or more files of a recorder's sequence) into
         IEC 61000-4-30 interval values and write them as an interval log.
 
@@ -302,6 +302,7 @@ def _register():
         from ..files.atomic import atomic_open, check_target
         from ..readers.intervals import interval_frame
 
+        out = output
         if scheduler and workers:
             fail_usage("give --scheduler or --workers, not both")
         if jobs is not None and (scheduler or workers):

@@ -7,7 +7,7 @@ import json
 import click
 
 from .. import numfmt
-from ._common import EXIT_FAIL, EXIT_OK, handle_errors, main
+from ._common import EXIT_FAIL, EXIT_OK, format_option, handle_errors, main
 
 __all__: list = []
 
@@ -66,8 +66,7 @@ def render_verification(v, show: int = 50) -> str:
               show_default=True, help="Absolute tolerance for numbers near zero.")
 @click.option("--show", type=click.IntRange(min=0), default=50, show_default=True,
               metavar="N", help="Differences listed in the table view.")
-@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table",
-              show_default=True, help="Output on stdout.")
+@format_option("verify")
 @handle_errors
 def verify_cmd(report, search, rel_tol, abs_tol, show, fmt):
     """Re-run the analysis and assessment recorded in REPORT (a pqcheck PDF, whose attached

@@ -371,7 +371,7 @@ def plot_spectrum(data: SpectrumData) -> Figure:
 
     with mpl.rc_context(_RC):
         n = len(data.panels)
-        fig = _figure(max(2.2, 0.4 + 1.2 * n))
+        fig = _figure(max(2.0, 0.4 + 1.0 * n))
         axes = fig.subplots(n, 1, sharex=True, squeeze=False)[:, 0]
         has_limit = any(np.isfinite(p.limit).any() for p in data.panels)
         any_fail = any(v == "fail" for p in data.panels for v in p.verdicts)
@@ -467,7 +467,7 @@ def plot_waveforms(data: WaveformData) -> Figure:
     with mpl.rc_context(_RC):
         groups = [(lbl, series, unit) for lbl, series, unit in
                   (("Voltage", data.voltages, "V"), ("Current", data.currents, "A")) if series]
-        fig = _figure(0.5 + 1.6 * len(groups))
+        fig = _figure(0.35 + 1.15 * len(groups))
         axes = fig.subplots(len(groups), 1, sharex=True, squeeze=False)[:, 0]
         for ax, (lbl, series, unit) in zip(axes, groups):
             ax.grid(True, color=_GRID, linewidth=0.5)

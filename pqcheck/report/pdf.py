@@ -42,6 +42,7 @@ from reportlab.platypus import (
 )
 
 from .. import numfmt
+from ..findings import channel_flags
 from . import figures, text
 from .job import NOT_ASSESSED
 from .style import (
@@ -65,6 +66,7 @@ from .style import (
     shown_path,
     styles,
 )
+from .text import merge_variants
 
 __all__ = ["render_pdf", "ATTACHMENT_NAME", "PAGE_SIZE"]
 
@@ -177,6 +179,12 @@ class _Builder:
     def __init__(self, job, results_json: bytes):
         self.job = job
         self.st = styles()
+        # dense tables (the appendix's full harmonic tables): the cell type, closer set
+        from reportlab.lib.styles import ParagraphStyle
+
+        for name in ("cell", "cell_r", "cell_head", "cell_head_r"):
+            self.st[name + "_t"] = ParagraphStyle(name + "_t", parent=self.st[name],
+                                                  fontSize=7.0, leading=8.2)
         self.story = []
         self.results_json = results_json
         self.fig_count = 0
@@ -223,28 +231,31 @@ class _Builder:
         return Paragraph(esc("" if value is None else value), self.st[style])
 
     def table(self, rows, widths, *, header: bool = True, right=(), zebra: bool = True,
-              extra_style=(), repeat: bool = True) -> Table:
+              extra_style=(), repeat: bool = True, dense: bool = False) -> Table:
         """A report table: header row shaded, thin rules, optional zebra striping.
 
         ``rows`` holds strings (escaped here) or Paragraphs (used as they are); ``right`` lists
         the columns aligned right; ``widths`` are fractions of the text width.
         """
         out = []
+        t_ = "_t" if dense else ""
+        pad = 0.9 if dense else 2.2
         for i, row in enumerate(rows):
             cells = []
             for j, v in enumerate(row):
                 if header and i == 0:
-                    cells.append(self.cell(v, "cell_head_r" if j in right else "cell_head"))
+                    cells.append(self.cell(v, ("cell_head_r" if j in right else "cell_head")
+                                           + t_))
                 else:
-                    cells.append(self.cell(v, "cell_r" if j in right else "cell"))
+                    cells.append(self.cell(v, ("cell_r" if j in right else "cell") + t_))
             out.append(cells)
         t = Table(out, colWidths=[w * _WIDTH for w in widths],
                   repeatRows=1 if (header and repeat) else 0, hAlign="LEFT")
         cmds = [
             ("FONTNAME", (0, 0), (-1, -1), FONT),
             ("VALIGN", (0, 0), (-1, -1), "TOP"),
-            ("TOPPADDING", (0, 0), (-1, -1), 2.2),
-            ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
+            ("TOPPADDING", (0, 0), (-1, -1), pad),
+            ("BOTTOMPADDING", (0, 0), (-1, -1), pad),
             ("LEFTPADDING", (0, 0), (-1, -1), 3),
             ("RIGHTPADDING", (0, 0), (-1, -1), 3),
             ("LINEBELOW", (0, -1), (-1, -1), 0.5, RULE),
@@ -275,11 +286,15 @@ class _Builder:
         ]))
         return t
 
-    def tcaption(self, caption: str) -> None:
-        """Numbered table caption, placed above the table and kept with it."""
+    def tcaption(self, caption: str, table=None) -> None:
+        """Numbered table caption, placed above the table and kept with it (with the whole
+        ``table`` when it is given: a short table is never split across pages)."""
         self.table_count += 1
-        self.add(CondPageBreak(30 * mm),
-                 self.m(f"<b>Table {self.table_count}.</b> {esc(caption)}", "tcaption"))
+        para = self.m(f"<b>Table {self.table_count}.</b> {esc(caption)}", "tcaption")
+        if table is not None:
+            self.add(KeepTogether([para, table]))
+            return
+        self.add(CondPageBreak(30 * mm), para)
 
     def figure(self, fig, caption: str, heading: str | None = None) -> None:
         """A matplotlib figure as an image scaled to the text width, with a numbered caption
@@ -314,13 +329,13 @@ def _verdict_style(col: int, row: int, verdict: str) -> list:
     return []
 
 
-def _verdict_para(b: _Builder, verdict: str) -> Paragraph:
+def _verdict_para(b: _Builder, verdict: str, style: str = "cell") -> Paragraph:
     word = esc(_verdict_cell(verdict))
     if verdict == "fail":
-        return b.m(f'<font color="white"><b>{word}</b></font>', "cell")
+        return b.m(f'<font color="white"><b>{word}</b></font>', style)
     if verdict in ("pass", "inconclusive"):
-        return b.m(f"<b>{word}</b>", "cell")
-    return b.m(word, "cell")
+        return b.m(f"<b>{word}</b>", style)
+    return b.m(word, style)
 
 
 def _channel_sort_key(result, name):
@@ -372,14 +387,9 @@ def _unit_text(chk) -> str:
 def _designation(lim) -> str:
     """``"IEEE Std 519-2022"``, ``"IEC 61000-3-2 ed. 5.0 (2018)"``: the standard as it is
     cited."""
-    std, ed = (lim.standard or "").strip(), (lim.edition or "").strip()
-    if not std:
-        return lim.table_id
-    if not ed:
-        return std
-    if ed.isdigit() and len(ed) == 4:
-        return f"{std}-{ed}"
-    return f"{std} ed. {ed}"
+    from ..limits import designation
+
+    return designation(lim.standard, lim.edition, lim.table_id)
 
 
 def _clause_text(lim, chk) -> str:
@@ -572,10 +582,10 @@ def _cover(b: _Builder) -> None:
                   if tables else "none (analysis only)"))
     # why the verdict is what it is (scope, plausibility, observation) and every deviation
     # from the standard's conditions, next to the verdict
-    why = list(dict.fromkeys(m for r in job.runs for a in r.assessments
-                             for m in getattr(a, "reasons", ())))
-    dev = list(dict.fromkeys(m for r in job.runs for a in r.assessments
-                             for m in getattr(a, "deviations", ())))
+    why = merge_variants([m for r in job.runs for a in r.assessments
+                          for m in getattr(a, "reasons", ())])
+    dev = merge_variants([m for r in job.runs for a in r.assessments
+                          for m in getattr(a, "deviations", ())])
     at = sum(1 for k, _ in pairs if k in ("Not decided", "Limits exceeded"))
     for label, texts in (("Deviations from the standard's conditions", dev),
                          ("Why (scope, data, observation)", why)):
@@ -618,9 +628,10 @@ def _deciding_items(b: _Builder) -> None:
         extra += _verdict_style(0, len(rows) - 1, "fail")
     groups = undecided_groups(job)
     for runs, phases, checks, cause in groups[:_COVER_ROWS]:
-        rows.append([_verdict_para(b, "inconclusive"), runs, _items_text(checks), phases,
-                     b.m(esc(_cause_key(cause)) + f" ({len(checks)} checks)", "cell"),
-                     "", "", ""])
+        n = f"{len(checks)} check{'s' if len(checks) != 1 else ''}"
+        rows.append([_verdict_para(b, "inconclusive"), runs, _items_text(checks) or "\u2013",
+                     phases, b.m(f"<b>{esc(_cause_key(cause))}</b> ({n}): "
+                                 f"{esc(_short_reason(cause))}", "cell"), "", "", ""])
         extra += _verdict_style(0, len(rows) - 1, "inconclusive")
         extra.append(("SPAN", (4, len(rows) - 1), (7, len(rows) - 1)))
     if not fails and not groups:
@@ -730,8 +741,11 @@ def _summary(b: _Builder) -> None:
             tdd = (pcts(c.tdd_percent for c in cur)
                    if cur and any(c.tdd_percent is not None for c in cur) else "\u2013")
             p = res.power
+            flagged = channel_flags(res.findings, [c.name for c in res.channels])
+            mark = f" {_FLAG}" if flagged else ""
             rows.append([r.load_point or "\u2013", r.id,
-                         numfmt.power(p.p_w, ref=p.se_va) if p is not None else "\u2013",
+                         numfmt.power(p.p_w, ref=p.se_va) + mark if p is not None
+                         else "\u2013",
                          thd, tdd,
                          numfmt.value(p.pf, "power_factor") if p is not None else "\u2013",
                          _verdict_para(b, r.verdict)])
@@ -739,7 +753,11 @@ def _summary(b: _Builder) -> None:
         b.add(b.table(rows, [0.11, 0.15, 0.11, 0.2, 0.18, 0.07, 0.18], right=(2, 5),
                       extra_style=extra))
         b.add(b.p("P total: active power over the capture (negative = export). THD and TDD: "
-                  "capture values per phase a / b / c. PF: total power factor (IEEE 1459).",
+                  "capture values per phase a / b / c. PF: total power factor (IEEE 1459)."
+                  + (f" {_FLAG}: a data-quality error undermines a channel of this capture "
+                     "(section 3); its values are shown, not relied on." if any(
+                         channel_flags(r.result.findings, [c.name for c in r.result.channels])
+                         for r in runs) else ""),
                   "caption"))
 
     if job.assessed:
@@ -749,9 +767,18 @@ def _summary(b: _Builder) -> None:
 _CLOSEST_LISTED = 5
 
 
-def _cause_of(run, chk) -> str:
+def _is_gate(chk) -> bool:
+    """A gate of the verdict (scope, plausibility, observation) shown as a check row."""
+    return getattr(chk, "statistic", "") == "gate"
+
+
+def _cause_of(run, chk, gates=None) -> str:
     """Why ``chk`` is undecided, in one line: the error findings on its channel (or on the
-    whole capture), else the first remark of its note."""
+    whole capture), else the gate that holds it (with the gate's own reason), else the first
+    remark of its note. ``gates``: gate code -> reason, of the check's assessment."""
+    gates = gates or {}
+    if _is_gate(chk):
+        return f"{chk.quantity}: {chk.note}" if chk.note else chk.quantity
     fs = [f for f in run.result.findings if f.severity == "error"
           and (not f.channels or chk.channel in f.channels)]
     if fs:
@@ -759,7 +786,20 @@ def _cause_of(run, chk) -> str:
         first = next(f for f in fs if f.code == codes[0])
         return f"{', '.join(codes)}: {first.message}"
     note = (getattr(chk, "note", "") or "").removeprefix("inconclusive: ")
-    return note.split("; ")[0] if note else "the data do not allow a decision"
+    first = note.split("; ")[0] if note else ""
+    if first in gates:
+        return f"{first}: {gates[first]}" if gates[first] else first
+    return first or "the data do not allow a decision"
+
+
+def _short_reason(cause: str) -> str:
+    """The first sentence of a cause's reason, without its code and table prefix."""
+    rest = cause.partition(":")[2].strip()
+    first = rest.partition(". ")[0].rstrip(".")
+    words = first.split(": ", 1)
+    if len(words) == 2 and " " not in words[0]:  # "ieee519-2022: ..." -> "..."
+        first = words[1]
+    return first + "." if first else ""
 
 
 def _cause_key(cause: str) -> str:
@@ -778,21 +818,25 @@ def undecided_groups(job) -> list:
     groups: dict = {}
     for r in job.runs:
         for a in r.tables:
+            gates = {c.quantity: c.note for c in a.checks if _is_gate(c)}
             for c in a.checks:
                 if c.verdict != "inconclusive":
                     continue
-                cause = _cause_of(r, c)
+                cause = _cause_of(r, c, gates)
                 g = groups.setdefault(_cause_key(cause), {"runs": [], "phases": [],
-                                                          "checks": [], "cause": cause})
+                                                          "checks": [], "causes": []})
                 g["runs"].append(r.id)
+                g["causes"].append(cause)
+                if _is_gate(c):
+                    continue  # the gate is the cause, not one of the checks it holds
                 g["phases"].append(c.phase or (c.channel and _channel_label(r.result,
                                                                             c.channel)) or "all")
                 g["checks"].append(c)
     out = []
     for g in sorted(groups.values(), key=lambda g: -len(g["checks"])):
         runs = ", ".join(dict.fromkeys(g["runs"]))
-        phases = ", ".join(sorted(set(g["phases"])))
-        out.append((runs, phases, g["checks"], g["cause"]))
+        phases = ", ".join(sorted(set(g["phases"]))) or "all"
+        out.append((runs, phases, g["checks"], "; ".join(merge_variants(g["causes"]))))
     return out
 
 
@@ -831,7 +875,8 @@ def _decisive_tables(b: _Builder, sub) -> None:
         b.h3(f"1.{next(sub)}  Checks that could not be decided, by cause")
         rows = [["Captures", "Phases", "Checks", "Cause (section 3 has the details)"]]
         for runs, phases, checks, cause in groups:
-            rows.append([runs, phases, f"{len(checks)}: {_items_text(checks)}", cause])
+            rows.append([runs, phases, f"{len(checks)}: {_items_text(checks) or chr(0x2013)}",
+                         cause])
         b.add(b.table(rows, [0.16, 0.12, 0.24, 0.48]))
         b.add(b.p("An undecided check is neither passed nor failed: the data-quality finding "
                   "named removes the basis for a verdict on it. Remove the cause (re-measure) "
@@ -844,7 +889,33 @@ def _decisive_tables(b: _Builder, sub) -> None:
         b.add(b.p(f"The {min(_CLOSEST_LISTED, len(passes))} passing checks with the smallest "
                   "margin, of all captures and tables. Margin = (limit \u2212 measured) / "
                   "limit.", "caption"))
+    common = _common_notes(job)
+    if common:
+        b.h3(f"1.{next(sub)}  Notes that apply to every capture")
+        for notes in common.values():
+            for note in notes:
+                b.add(b.m(f"\u2022 {esc(note)}", "small"))
     _verify_mark_note(b)
+
+
+def _common_notes(job) -> dict:
+    """Notes of a limit table's assessment that every capture shares (when there are
+    several): table id -> notes, said once in the summary instead of under each capture."""
+    if len(job.runs) < 2:
+        return {}
+    per_table: dict = {}
+    for r in job.runs:
+        for a in r.tables:
+            per_table.setdefault(a.limits.table_id, []).append(
+                list(merge_variants(getattr(a, "notes", ()) or ())))
+    out = {}
+    for tid, lists in per_table.items():
+        if len(lists) < len(job.runs):
+            continue
+        shared = [n for n in lists[0] if all(n in other for other in lists[1:])]
+        if shared:
+            out[tid] = shared
+    return out
 
 
 def _check_rows_table(b: _Builder, triples) -> None:
@@ -880,8 +951,9 @@ def _capture_facts(b: _Builder, run) -> None:
                                            key=lambda c: _PHASE_ORDER.get(c.phase, 9)))
     vol = ", ".join(c.name for c in sorted(res.channels_of("voltage"),
                                            key=lambda c: _PHASE_ORDER.get(c.phase, 9)))
+    plan = b.job.plan
     pairs = [
-        ("File", res.source),
+        ("File", shown_path(res.source, plan.path if plan is not None else None)),
         ("SHA-256", b.m(esc(res.sha256 or "not available (in-memory capture)"), "mono")),
         ("Recording", f"{numfmt.value(res.fs_hz, 'sample_rate')} sample rate, "
                       f"{numfmt.value(res.duration_s, 'duration')}, "
@@ -916,14 +988,20 @@ def _assessment_block(b: _Builder, run, a) -> None:
              ("Row selection", f"{sel}" + (f"; {'; '.join(lim.rows)}" if lim.rows else "")),
              ("Compared quantity", f"IEC 61000-4-7 harmonic {lim.measure}s, orders up to "
                                    f"{lim.max_order}")]
-    for note in getattr(a, "notes", ()) or ():
-        pairs.append(("Note", note))
+    for g in (c for c in a.checks if _is_gate(c) and c.verdict == "inconclusive"):
+        pairs.append(("Undecided by", b.m(f"<b>{esc(g.quantity)}</b>: {esc(g.note)}", "cell")))
+    common = _common_notes(b.job).get(lim.table_id, ())
+    for note in merge_variants(getattr(a, "notes", ()) or ()):
+        if note not in common:
+            pairs.append(("Note", note))
+    if common:
+        pairs.append(("Notes", f"{len(common)} shared by every capture: see section 1"))
     kv = b.kv(pairs, key_width=0.18)
     kv.setStyle(TableStyle(_verdict_style(1, 0, a.verdict)))
     b.add(kv, Spacer(1, 2 * mm))
 
     checks = list(a.checks)
-    totals = [c for c in checks if c.quantity != "harmonic"]
+    totals = [c for c in checks if c.quantity != "harmonic" and not _is_gate(c)]
     if totals:
         stats = {c.statistic for c in totals}
         one_stat = len(stats) == 1
@@ -936,19 +1014,21 @@ def _assessment_block(b: _Builder, run, a) -> None:
             rows.append([c.label, _channel_label(res, c.channel) if c.channel else "all"]
                         + ([] if one_stat else [c.statistic])
                         + [*_value_cells(b, run, c),
-                           _verdict_para(b, c.verdict), _clause_text(lim, c),
+                           _verdict_para(b, c.verdict), c.clause or "\u2013",
                            _source_mark(c) or "verified"])
             extra += _verdict_style(len(head) - 3, len(rows) - 1, c.verdict)
         cap = f"{run.id}: totals against {lim.table_id}"
         cap += f" ({next(iter(stats))})." if one_stat else "."
-        b.tcaption(cap)
         if one_stat:
-            widths = [0.09, 0.09, 0.09, 0.08, 0.11, 0.08, 0.13, 0.19, 0.14]
+            widths = [0.08, 0.07, 0.08, 0.07, 0.13, 0.08, 0.16, 0.2, 0.13]
             right = (2, 3, 5)
         else:
-            widths = [0.07, 0.07, 0.17, 0.08, 0.07, 0.1, 0.07, 0.12, 0.13, 0.12]
+            widths = [0.07, 0.07, 0.14, 0.08, 0.07, 0.11, 0.09, 0.16, 0.08, 0.13]
             right = (3, 4, 6)
-        b.add(b.table(rows, widths, right=right, extra_style=extra))
+        table = b.table(rows, widths, right=right, extra_style=extra)
+        b.tcaption(cap, table if len(rows) <= 25 else None)
+        if len(rows) > 25:
+            b.add(table)
 
     harm = [c for c in checks if c.quantity == "harmonic" and c.order is not None]
     groups: dict = {}
@@ -984,7 +1064,8 @@ def _assessment_block(b: _Builder, run, a) -> None:
                      "number; undecided orders are hatched and marked "
                      f"{VERDICT_MARK['inconclusive']}.")
         _harmonic_table(b, run, lim, group, what, statistic, unit, full=False)
-    notes = _group_notes(checks)
+    gate_codes = {f"inconclusive: {c.quantity}" for c in checks if _is_gate(c)}
+    notes = _group_notes([c for c in checks if not _is_gate(c)], skip=gate_codes)
     if notes:
         b.add(b.p("Notes on individual checks", "h3"))
         for note, items in notes:
@@ -1023,16 +1104,20 @@ def _strip_parens(text: str) -> tuple:
     return stripped, stripped != text.strip()
 
 
-def _group_notes(checks) -> list:
+def _group_notes(checks, skip=()) -> list:
     """Notes of the checks grouped so that one line covers the checks sharing a remark.
 
     A remark that varies only in its numbers (a per-order threshold, ``1.5 x 2.3 A``) is shown
     once, with the numbers that differ between checks replaced by an ellipsis; parenthesised
     per-check details are left to the results JSON. Returns (text, check labels) pairs.
+    Fragments in ``skip`` (a gate's "inconclusive: code", said beside the verdict) are left
+    out.
     """
     groups: dict = {}
     for c in checks:
         for frag in _fragments(getattr(c, "note", "") or ""):
+            if frag in skip:
+                continue
             stripped, had = _strip_parens(frag)
             key = _NUMBER.sub("#", stripped)
             g = groups.setdefault(key, {"texts": [], "items": [], "had": False, "full": set()})
@@ -1115,13 +1200,14 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
             mark = {"fail": " \u2717", "inconclusive": " " + VERDICT_MARK["inconclusive"]
                     }.get(c.verdict, "")
             row += [numfmt.fixed(c.measured, decimals) + mark, numfmt.margin(c.margin_percent)]
-        row += [_verdict_para(b, worst or ""), _source_mark(any_chk) or "verified"]
+        row += [_verdict_para(b, worst or "", "cell_t" if full else "cell"),
+                _source_mark(any_chk) or "verified"]
         rows.append(row)
         extra += _verdict_style(len(row) - 2, len(rows) - 1, worst or "")
     n = len(chans)
-    room = 1.0 - 0.06 - 0.1 - 0.14 - 0.12
-    widths = ([0.06, 0.1] + [room / (2 * n) * 1.15, room / (2 * n) * 0.85] * n
-              + [0.14, 0.12])
+    room = 1.0 - 0.06 - 0.08 - 0.16 - 0.13  # order, limit, verdict, source of the limit
+    widths = ([0.06, 0.08] + [room / (2 * n) * 1.05, room / (2 * n) * 0.95] * n
+              + [0.16, 0.13])
     mult = {c.multiplier for c in group}
     times = (f" Limits shown are {mult.pop():g} \u00d7 the table's values, as its evaluation "
              "rule allows for this statistic." if len(mult) == 1 and 1.0 not in mult else "")
@@ -1131,7 +1217,8 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
                f"{VERDICT_MARK['inconclusive']} undecided, \u2020 limit value to verify "
                "against your copy. Verdict: the worst over the phases.")
     if len(rows) > 1:
-        b.add(b.table(rows, widths, right=tuple(range(1, 2 + 2 * n)), extra_style=extra))
+        b.add(b.table(rows, widths, right=tuple(range(1, 2 + 2 * n)), extra_style=extra,
+                      dense=full))
     if rest:
         smallest = min(r[4] for r in rest)
         orders = _compact_orders([r[0] for r in rest])
@@ -1167,27 +1254,43 @@ def _analysis_tables(b: _Builder, run, harmonics) -> None:
     b.add(b.table(rows, widths, right=tuple(range(1, n + 1))))
 
 
+_FLAG = "\u26a0"
+"""Marks a value that a data-quality error undermines (with the finding's code beside it)."""
+
+
+def _flagged(b: _Builder, label: str, codes) -> Paragraph | str:
+    """A row label with the codes of the errors that undermine its values: ``ib`` over
+    ``⚠ clipping``."""
+    if not codes:
+        return label
+    return b.m(f"{esc(label)}<br/><b>{_FLAG} {esc(', '.join(codes))}</b>", "cell")
+
+
 def _channels_and_power(b: _Builder, run) -> None:
     res = run.result
+    flags = channel_flags(res.findings, [c.name for c in res.channels])
     chans = sorted(res.channels, key=lambda c: (c.quantity != "current",
                                                  _PHASE_ORDER.get(c.phase, 9)))
     rows = [["Channel", "Phase", "rms", "Fundamental", "THD", "THD group", "TDD", "PWHD",
              "Crest factor", "DC"]]
+
     def pct(x):
         return numfmt.value(x, "distortion")
 
     for c, (rms, fund) in zip(chans, numfmt.channel_columns(chans)):
-        rows.append([c.name, c.phase or "1ph", rms, fund, pct(c.thd_percent),
-                     pct(c.thd_group_percent), pct(c.tdd_percent),
+        rows.append([_flagged(b, c.name, flags.get(c.name)), c.phase or "1ph", rms, fund,
+                     pct(c.thd_percent), pct(c.thd_group_percent), pct(c.tdd_percent),
                      pct(c.pwhd_percent), numfmt.value(c.crest_factor, "crest_factor"),
                      numfmt.fixed(c.dc, numfmt.decimals_for([c.rms], numfmt.RMS_DIGITS), c.unit)])
     il = res.settings.il_a
-    b.tcaption(f"{run.id}: channel values over the capture. THD over orders 2 to "
+    chan_caption = (f"{run.id}: channel values over the capture. THD over orders 2 to "
                f"{res.max_resolved_order}; TDD relative to IL = "
                + (numfmt.given(il, "A") if il else "not given")
-               + "; PWHD over orders 14 to 40 (groups).")
-    b.add(b.table(rows, [0.09, 0.07, 0.1, 0.14, 0.08, 0.09, 0.08, 0.12, 0.09, 0.14],
-                  right=tuple(range(2, 10))))
+               + "; PWHD over orders 14 to 40 (groups)."
+               + (f" {_FLAG}: a data-quality error (section 3) undermines the channel's values; "
+                  "they are shown, not relied on." if flags else ""))
+    b.tcaption(chan_caption, b.table(rows, [0.09, 0.07, 0.1, 0.14, 0.08, 0.09, 0.08, 0.12,
+                                            0.09, 0.14], right=tuple(range(2, 10))))
     p = res.power
     if p is None:
         b.add(b.p("Power quantities: not available (the capture lacks matching voltage and "
@@ -1198,14 +1301,20 @@ def _channels_and_power(b: _Builder, run) -> None:
     def k(x, ref, unit):  # W, VA, var with the prefix and decimals of the apparent power
         return numfmt.power(x, unit, ref=ref)
 
+    bad_phases = []
     for ph in p.phases:
-        rows.append([f"{ph.phase or '1ph'} ({ph.voltage} \u00d7 {ph.current})",
+        codes = tuple(dict.fromkeys(flags.get(ph.voltage, ()) + flags.get(ph.current, ())))
+        if codes:
+            bad_phases.append(ph.phase or "1ph")
+        rows.append([_flagged(b, f"{ph.phase or '1ph'} ({ph.voltage} \u00d7 {ph.current})",
+                              codes),
                      k(ph.p_w, ph.s_va, "W"), k(ph.s_va, ph.s_va, "VA"),
                      k(ph.p1_w, ph.s_va, "W"), k(ph.q1_var, ph.s_va, "var"),
                      k(ph.s1_va, ph.s_va, "VA"), numfmt.value(ph.pf, "power_factor"),
                      numfmt.value(ph.dpf, "power_factor")])
     ref = p.se_va if p.se_va else None
-    total = ["total", k(p.p_w, ref, "W"),
+    total = [b.m(f"total<br/><b>{_FLAG} includes {esc(', '.join(bad_phases))}</b>", "cell")
+             if bad_phases else "total", k(p.p_w, ref, "W"),
              k(p.se_va, ref, "VA") + (" (Se)" if p.wiring else "")
              if p.se_va is not None else "\u2013", "", "", "",
              numfmt.value(p.pf, "power_factor"), ""]
@@ -1224,11 +1333,14 @@ def _channels_and_power(b: _Builder, run) -> None:
         cap += (" Current unbalance I2/I1 "
                 f"{numfmt.value(p.extra['i_unbalance_percent'], 'percent')}, voltage "
                 f"unbalance {numfmt.value(p.extra.get('v_unbalance_percent'), 'percent')}.")
-    b.tcaption(cap)
-    b.add(b.table(rows, [0.22, 0.1, 0.13, 0.11, 0.12, 0.1, 0.1, 0.12],
-                  right=tuple(range(1, 8)),
-                  extra_style=[("LINEABOVE", (0, len(rows) - 1), (-1, len(rows) - 1), 0.6,
-                                INK)]))
+    if bad_phases:
+        cap += (f" {_FLAG}: the power of phase {', '.join(bad_phases)} comes from a channel "
+                "that a data-quality error (section 3) undermines, and so does the total; "
+                "shown, not relied on.")
+    b.tcaption(cap, b.table(rows, [0.22, 0.1, 0.13, 0.11, 0.12, 0.1, 0.1, 0.12],
+                            right=tuple(range(1, 8)),
+                            extra_style=[("LINEABOVE", (0, len(rows) - 1), (-1, len(rows) - 1),
+                                          0.6, INK)]))
 
 
 _MIN_TREND_WINDOWS = 10
@@ -1247,11 +1359,11 @@ def _per_capture(b: _Builder) -> None:
     from ..export import harmonics_frame
 
     job = b.job
-    b.add(PageBreak())
+    b.add(CondPageBreak(75 * mm))  # the heading never stands alone at a page's foot
     b.h1("2  Results per capture")
     for k, run in enumerate(job.runs, start=1):
         if k > 1:
-            b.add(CondPageBreak(120 * mm))
+            b.add(CondPageBreak(90 * mm))
         title = f"2.{k}  {run.id}"
         if run.load_point:
             title += f" \u2013 load point {run.load_point}"
@@ -1362,7 +1474,6 @@ def _appendix(b: _Builder) -> None:
 
 
 def _findings(b: _Builder) -> None:
-    b.add(PageBreak())
     b.h1("3  Data quality")
     b.add(b.p("Findings are problems in a capture that the results carry rather than hide. "
               "An error-level finding makes every check of the quantities it concerns "
@@ -1424,7 +1535,7 @@ def _method(b: _Builder) -> None:
     first = job.runs[0].result.settings
     b.add(b.p(first.method + ".", "body"))
     stats = list(dict.fromkeys(c.statistic for r in job.runs for a in r.tables
-                               for c in a.checks if c.statistic))
+                               for c in a.checks if c.statistic and not _is_gate(c)))
     did = ("Values for the whole capture are the rms of the valid 10/12-cycle window values "
            "(IEC 61000-4-7).")
     if stats:
@@ -1453,11 +1564,20 @@ def _method(b: _Builder) -> None:
     for name, use in text.STANDARDS_METHOD:
         rows.append([name, use])
     for lim in job.limit_tables():
-        use = f"limits: {lim.title}"
+        # what was done with this table, not only what the table describes
+        done = list(dict.fromkeys(c.statistic for r in job.runs for a in r.tables
+                                  if a.limits.table_id == lim.table_id for c in a.checks
+                                  if c.statistic and not _is_gate(c)))
+        use = f"limits: {lim.title}."
+        if done:
+            use += f" Compared in this report: {'; '.join(done)}."
         ev = getattr(lim, "evaluation", None)
-        note = getattr(ev, "note", "") if ev is not None else ""
-        if note:
-            use += f". Evaluation: {note}"
+        note = (getattr(ev, "note", "") if ev is not None else "").strip()
+        if note and done and all("over the capture" in d for d in done):
+            use += (f" The table's own evaluation (\u201c{note.rstrip('.')}\u201d) needs a "
+                    "survey longer than these captures and was not applied.")
+        elif note:
+            use += f" The table's evaluation: {note}"
         rows.append([_designation(lim), use])
     b.add(b.table(rows, [0.25, 0.75]))
 
@@ -1469,7 +1589,7 @@ def _uncertainty(b: _Builder) -> None:
     instruments = plan.conditions.instruments if plan is not None else ()
     if instruments:
         b.add(b.p("Instrument chain as recorded in the test plan:", "body"))
-        rows = [["Element", "Model / serial", "Channels", "Ratio / range", "Band\u00adwidth",
+        rows = [["Element", "Model / serial", "Channels", "Ratio / range", "Bandwidth",
                  "Accuracy", "Category", "Calibration due"]]
         for ins in instruments:
             rows.append([
@@ -1478,7 +1598,7 @@ def _uncertainty(b: _Builder) -> None:
                 " / ".join(x for x in (ins.ratio, ins.range) if x),
                 fmt(ins.bandwidth_hz, 4, "Hz") if ins.bandwidth_hz else "\u2013",
                 ins.accuracy, ins.measurement_category, ins.calibration_due])
-        b.add(b.table(rows, [0.11, 0.17, 0.12, 0.14, 0.09, 0.14, 0.11, 0.12]))
+        b.add(b.table(rows, [0.11, 0.16, 0.12, 0.13, 0.11, 0.14, 0.11, 0.12]))
         if plan.conditions.ambient_c is not None or plan.conditions.supply:
             b.add(b.p("Conditions: " + "; ".join(x for x in (
                 f"ambient {fmt(plan.conditions.ambient_c, 3)} \u00b0C"
@@ -1627,7 +1747,7 @@ def _signoff(b: _Builder) -> None:
     block.append(Spacer(1, 2 * mm))
     block.append(Paragraph(esc(f"Report {b.job.meta.report_id}. Write names in capitals; "
                                "date as YYYY-MM-DD."), st["muted"]))
-    b.add(CondPageBreak(90 * mm), KeepTogether(block))
+    b.add(KeepTogether(block))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -235,7 +235,9 @@ def _limits_text(study) -> str:
     lim = study.limits
     if lim is None:
         return "\u2013"
-    return f"{lim.standard} {lim.edition} ({lim.table_id}): " + "; ".join(lim.rows)
+    from ..limits import designation
+
+    return f"{designation(lim.standard, lim.edition)} ({lim.table_id}): " + "; ".join(lim.rows)
 
 
 def study_path(study, path) -> str:

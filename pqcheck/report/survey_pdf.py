@@ -21,6 +21,7 @@ import math
 import numpy as np
 
 from .. import numfmt
+from ..limits import designation
 from . import figures
 from .style import ACCENT, VERDICT_WORD, esc, fmt, register_fonts
 
@@ -202,7 +203,8 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
         ("Data", ", ".join(f"{lv.n} x {lv.level} ({int(lv.flagged.sum())} flagged, "
                            f"{int((~lv.complete).sum())} incomplete)" for lv in s.levels))]
     for t in a.tables:
-        pairs.append(("Limits", f"{t.table_id}: {t.standard} {t.edition}, {t.title} "
+        pairs.append(("Limits", f"{t.table_id}: {designation(t.standard, t.edition)}, "
+                                f"{t.title} "
                                 f"(SHA-256 {t.sha256})"))
     b.add(b.kv(pairs))
     b.add(Spacer(1, 3 * mm), b.p("Statistics, and the period that decides", "h2"))

@@ -6,7 +6,10 @@ report asserts without reading layout code. Strings here are plain text; the PDF
 
 from __future__ import annotations
 
+import re
+
 __all__ = [
+    "merge_variants",
     "NOT_CERTIFICATION",
     "SAFETY_CAUTIONS",
     "DEFERENCE",
@@ -102,3 +105,55 @@ UNCERTAINTY_CLOSE = (
     "Checks within {pct:g} % of their limit are listed below: their verdict could change "
     "within a typical instrument-chain uncertainty and deserves a reviewer's attention."
 )
+
+
+_SLOT = re.compile(r"'[^']*'|(?<![\w.-])\d+(?:\.\d+)?(?![\w.-])")
+
+
+def merge_variants(texts) -> list:
+    """Texts that differ only in one quoted name or one number, said once.
+
+    ``"the dc component of 'ia' was ..."``, ``"... of 'ib' was ..."`` become ``"the dc
+    component of 'ia', 'ib' and 'ic' was ..."``; ``"the capture covers 0.9996 s; ..."`` and
+    ``"... covers 1 s; ..."`` become ``"the capture covers 0.9996 to 1 s; ..."`` (the range of
+    the numbers). Other texts are kept as they are, in their first order.
+
+    Parameters
+    ----------
+    texts : sequence of str
+
+    Returns
+    -------
+    list of str
+    """
+    entries: list = []  # [parts, values per slot (lists, first order), varying slot or None]
+    for t in dict.fromkeys(texts):
+        parts, vals = _SLOT.split(t), _SLOT.findall(t)
+        for e in entries:
+            if e[0] != parts:
+                continue
+            differ = [i for i, v in enumerate(vals) if v not in e[1][i]]
+            if not differ:
+                break
+            if len(differ) == 1 and e[2] in (None, differ[0]) and all(
+                    len(e[1][i]) == 1 for i in range(len(vals)) if i != differ[0]):
+                e[1][differ[0]].append(vals[differ[0]])
+                e[2] = differ[0]
+                break
+        else:
+            entries.append([parts, [[v] for v in vals], None])
+    out = []
+    for parts, values, slot in entries:
+        shown = [v[0] for v in values]
+        if slot is not None:
+            vs = values[slot]
+            if vs[0].startswith("'"):
+                shown[slot] = ", ".join(vs[:-1]) + " and " + vs[-1]
+            else:
+                nums = sorted(vs, key=float)
+                shown[slot] = f"{nums[0]} to {nums[-1]}"
+        text = parts[0]
+        for v, p in zip(shown, parts[1:]):
+            text += v + p
+        out.append(text)
+    return out
