@@ -318,8 +318,19 @@ class CaptureStream:
 
     @property
     def provenance(self) -> Provenance:
-        """Source, SHA-256 (complete after a full pass) and reader settings."""
+        """Source, SHA-256 (complete after a full pass, or once a hash running beside the
+        reading has finished: see :meth:`hash_pending`) and reader settings."""
+        pending = self._shared.get("hash")
+        if pending is not None:
+            self._shared["hash"] = None
+            self._shared["provenance"] = replace(
+                self._shared["provenance"], sha256=pending.result())
         return self._shared["provenance"]
+
+    def hash_pending(self, hasher) -> None:
+        """Take the SHA-256 from ``hasher`` (an object whose ``result()`` returns the hex
+        digest, computing it on another thread) when :attr:`provenance` is first read."""
+        self._shared["hash"] = hasher
 
     @provenance.setter
     def provenance(self, value):

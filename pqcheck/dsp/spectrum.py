@@ -16,8 +16,8 @@ What the resampling leaves: the interpolation kernel's passband ripple and stopb
 samples by linear prediction for the half kernel that reaches past the data. When ``L`` is a
 whole number and the window starts on a sample, the resampling is the identity.
 
-All windows of equal ``M`` are transformed together with one batched ``scipy.fft.rfft``: no
-Python loop runs per window.
+Runs of windows of equal ``M`` are resampled and transformed together (one batched
+``numpy.fft.rfft`` per run, runs spread over threads): no Python loop runs per window.
 
 Line values are rms phasors: ``C_k = sqrt(2) X_k / M`` for ``k >= 1`` and ``C_0 = X_0 / M``.
 """
@@ -30,11 +30,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import _compiled
+
 __all__ = ["WindowBlock", "analyse_windows", "harmonic_groupings", "sync_kernel",
            "kernel_for", "resample_windows", "FFT_WORKERS"]
 
 FFT_WORKERS = int(os.environ.get("PQCHECK_FFT_WORKERS", "-1"))
-"""Threads of each batched FFT (``scipy.fft`` ``workers``): -1 uses every CPU. Batch worker
+"""Threads of the resampling and transforms: -1 uses every CPU. Batch worker
 processes set it to 1 so that N processes do not start N x CPUs threads; the environment
 variable ``PQCHECK_FFT_WORKERS`` sets it too."""
 
@@ -169,25 +171,42 @@ def sync_kernel(taps: int, cutoff: float = 0.5, stopband_db: float = STOPBAND_DB
     frac = np.arange(PHASES + 1, dtype=np.float64) / PHASES
     u = j[None, :] - frac[:, None]
     arg = np.clip(1.0 - (u / half) ** 2, 0.0, 1.0)
-    from scipy.special import i0
-
-    h = 2 * cutoff * np.sinc(2 * cutoff * u) * i0(beta * np.sqrt(arg)) / i0(beta)
+    h = 2 * cutoff * np.sinc(2 * cutoff * u) * np.i0(beta * np.sqrt(arg)) / np.i0(beta)
     h /= h.sum(axis=1, keepdims=True)
     return SyncKernel(taps, np.ascontiguousarray(h))
 
 
+@functools.lru_cache(maxsize=256)
 def fast_length(n: int) -> int:
     """Smallest 7-smooth whole number at least ``n`` (a fast FFT length). [samples]"""
-    from scipy import fft as sfft
-
-    return int(sfft.next_fast_len(int(n), real=True))
+    n = max(int(n), 1)
+    best = 1 << (n - 1).bit_length()
+    p7 = 1
+    while p7 < best:
+        p5 = p7
+        while p5 < best:
+            p3 = p5
+            while p3 < best:
+                v = p3
+                while v < n:
+                    v *= 2
+                best = min(best, v)
+                p3 *= 3
+            p5 *= 5
+        p7 *= 7
+    return best
 
 
 _CHUNK = 1 << 22
-"""Elements of the largest temporary (channels x points x taps) built at once."""
+"""Elements of the largest temporary (channels x points x taps) the NumPy resampling builds
+at once."""
+
+_SPECTRUM_CHUNK = 1 << 21
+"""Elements (channels x windows x points) resampled and transformed as one run."""
 
 
-def resample_windows(samples, starts, lengths, m_points: int, kernel: SyncKernel, warp=None):
+def resample_windows(samples, starts, lengths, m_points: int, kernel: SyncKernel, warp=None,
+                     compiled: bool | None = None):
     """Band-limited resampling of windows to ``m_points`` points over their exact spans.
 
     Parameters
@@ -203,6 +222,9 @@ def resample_windows(samples, starts, lengths, m_points: int, kernel: SyncKernel
     kernel : SyncKernel
     warp : numpy.ndarray or None
         shape ``(W,)``: quadratic warp ``kappa`` of each window (0: uniform in time).
+    compiled : bool or None
+        Use the compiled loop (:mod:`pqcheck.dsp._compiled`; default when available) or the
+        NumPy definition (gathered taps and ``einsum``); the two agree to rounding.
 
     Returns
     -------
@@ -210,37 +232,74 @@ def resample_windows(samples, starts, lengths, m_points: int, kernel: SyncKernel
         shape ``(C, W, m_points)``: point ``m`` of window ``w`` is the band-limited value at
         ``starts[w] + lengths[w] (u + kappa_w u (1 - u))``, ``u = m / m_points``. [A] or [V]
     """
-    c_n = samples.shape[0]
+    samples = np.ascontiguousarray(samples, dtype=np.float64)
+    starts = np.asarray(starts, dtype=np.float64)
+    lengths = np.asarray(lengths, dtype=np.float64)
     n_win = starts.size
-    out = np.empty((c_n, n_win, m_points))
+    warp = np.zeros(n_win) if warp is None else np.asarray(warp, dtype=np.float64)
+    out = np.empty((samples.shape[0], n_win, m_points))
     if n_win == 0:
         return out
+    if compiled is None:
+        compiled = _compiled.available()  # resolved here, before any thread starts
+    per = max(1, -(-n_win // (4 * _threads())))
+    los = list(range(0, n_win, per))
+
+    def chunk(lo):
+        sl = slice(lo, min(n_win, lo + per))
+        _resample_chunk(samples, starts[sl], lengths[sl], m_points, kernel, warp[sl], out,
+                        np.arange(n_win)[sl], compiled)
+
+    big = samples.shape[0] * n_win * m_points >= _SPECTRUM_CHUNK
+    if big and _threads() > 1 and len(los) > 1:  # chunks are independent: any order
+        list(_pool(_threads()).map(chunk, los))
+    else:
+        for lo in los:
+            chunk(lo)
+    return out
+
+
+def _resample_chunk(samples, starts, lengths, m_points, kernel, warp, out, rows, compiled):
+    """Resample windows ``starts, lengths, warp`` (on the calling thread) into
+    ``out[:, rows]`` (``rows`` an index or mask along the window axis of ``out``)."""
+    c_n = samples.shape[0]
+    n_win = starts.size
+    if n_win == 0:
+        return
+    if compiled is None:
+        compiled = _compiled.available()
+    if compiled:
+        # the loop reads without bounds checks: the first and last points (the position is
+        # monotonic in u for |kappa| < 1) must find the whole kernel inside the samples
+        last = starts + lengths * (m_points - 1) / m_points
+        lo_i = np.floor(np.minimum(starts, last)) - (kernel.half - 1)
+        hi_i = np.floor(np.maximum(starts, last)) + kernel.half + 1
+        if (lo_i.min() < 0 or hi_i.max() > samples.shape[1] or np.any(np.abs(warp) >= 1)
+                or not np.all(np.isfinite(last))):
+            raise IndexError("resample_windows: the kernel reaches past the samples")
+        tmp = np.empty((c_n, n_win, m_points))
+        _compiled.resample_into(samples, starts, lengths, warp, kernel.table, kernel.half,
+                                PHASES, tmp)
+        out[:, rows] = tmp
+        return
     taps = kernel.taps
     view = np.lib.stride_tricks.sliding_window_view(samples, taps, axis=-1)
     per = max(1, _CHUNK // max(1, c_n * m_points * taps))
     u = np.arange(m_points, dtype=np.float64) / m_points
     curve = u * (1.0 - u)
-
-    def chunk(lo):
+    tmp = np.empty((c_n, n_win, m_points))
+    for lo in range(0, n_win, per):
         sl = slice(lo, min(n_win, lo + per))
         pos = starts[sl, None] + lengths[sl, None] * u[None, :]
-        if warp is not None and np.any(warp[sl]):
+        if np.any(warp[sl]):
             pos += (lengths[sl] * warp[sl])[:, None] * curve[None, :]
         i0 = np.floor(pos)
         phase = np.rint((pos - i0) * PHASES).astype(np.intp)
         base = i0.astype(np.intp) - (kernel.half - 1)
         wts = kernel.table[phase]  # (w, M, T)
         seg = view[:, base]  # (C, w, M, T)
-        np.einsum("cwmt,wmt->cwm", seg, wts, out=out[:, sl])
-
-    los = range(0, n_win, per)
-    threads = _threads() if len(los) > 1 else 1
-    if threads > 1:  # chunks are independent: the same numbers in any order
-        list(_pool(threads).map(chunk, los))
-    else:
-        for lo in los:
-            chunk(lo)
-    return out
+        np.einsum("cwmt,wmt->cwm", seg, wts, out=tmp[:, sl])
+    out[:, rows] = tmp
 
 
 def _threads() -> int:
@@ -251,11 +310,20 @@ def _threads() -> int:
     return max(1, min(os.cpu_count() or 1, 8) if FFT_WORKERS < 1 else FFT_WORKERS)
 
 
-@functools.lru_cache(maxsize=2)
+_POOLS: dict = {}
+
+
 def _pool(threads: int):
+    """The thread pool of this process (one per thread count). A pool is never shared
+    across ``fork``: a child (a batch worker, say) inherits the pool object but not its
+    threads, so it makes its own."""
     from concurrent.futures import ThreadPoolExecutor
 
-    return ThreadPoolExecutor(max_workers=threads, thread_name_prefix="pqcheck-resample")
+    key = (os.getpid(), threads)
+    if key not in _POOLS:
+        _POOLS[key] = ThreadPoolExecutor(max_workers=threads,
+                                         thread_name_prefix="pqcheck-resample")
+    return _POOLS[key]
 
 
 def _extend(samples, before: int, after: int, kernel, first_start, first_len, last_end,
@@ -301,6 +369,7 @@ def analyse_windows(
     workers: int | None = None,
     harmonic_step: int | None = None,
     halves=None,
+    compiled: bool | None = None,
 ) -> WindowBlock:
     """Synchronous DFT of each window: resampled to its exact span, then transformed.
 
@@ -319,7 +388,8 @@ def analyse_windows(
     combos : numpy.ndarray or None
         shape ``(D, C)``: weights of derived signals whose rms is wanted.
     workers : int or None
-        FFT threads (default :data:`FFT_WORKERS`).
+        Threads of the resampling and transform (default :data:`FFT_WORKERS`; 1 runs on
+        the calling thread alone).
     harmonic_step : int or None
         Unused (kept for callers of the earlier whole-sample method).
     halves : array_like or None
@@ -328,13 +398,13 @@ def analyse_windows(
         uniformly in the fundamental's phase rather than in time (a quadratic warp through
         the window's start, half-way point and end), so that on a drifting frequency every
         harmonic still falls on its line; without them, uniformly in time. [samples]
+    compiled : bool or None
+        Resample with the compiled loop (default when available) or the NumPy definition.
 
     Returns
     -------
     WindowBlock
     """
-    from scipy import fft as sfft  # imported here: scipy.fft is slow to import
-
     samples = np.asarray(samples, dtype=np.float64)
     b = np.asarray(boundaries, dtype=np.float64)
     n_ch, n_have = samples.shape
@@ -398,9 +468,18 @@ def analyse_windows(
         warp[np.abs(warp) < 1e-9] = 0.0
     _time_stats(x, i_lo + before, i_hi + before, pairs, combos, rms, mean, prods, crms)
     whole = (np.abs(mismatch) <= 1e-7) & (np.abs(pos0 - np.rint(pos0)) <= 1e-7) & (warp == 0)
+    if compiled is None:
+        compiled = _compiled.available()  # resolved here, before any thread starts
+    jobs = []
     for m in np.unique(m_pts):
         sel = np.flatnonzero(m_pts == m)
-        m = int(m)
+        per = max(1, _SPECTRUM_CHUNK // max(1, n_ch * int(m)))
+        jobs += [(int(m), sel[lo:lo + per]) for lo in range(0, sel.size, per)]
+
+    def transform(job):
+        """Resample (or cut) one run of windows of equal ``M`` and transform it; each run
+        writes its own rows of ``lines``, so runs may go in any order on any thread."""
+        m, sel = job
         seg = np.empty((n_ch, sel.size, m))
         same = whole[sel]
         if same.any():  # points on the samples: the resampling is the identity
@@ -408,15 +487,22 @@ def analyse_windows(
             seg[:, same] = view[:, np.rint(pos0[sel[same]]).astype(np.intp)]
         if not same.all():
             rest = sel[~same]
-            seg[:, ~same] = resample_windows(x, pos0[rest], length[rest], m, kernel, warp[rest])
-        spec = sfft.rfft(seg, axis=-1, workers=FFT_WORKERS if workers is None else workers)
+            _resample_chunk(x, pos0[rest], length[rest], m, kernel, warp[rest], seg, ~same,
+                            compiled)
+        k_keep = min(max_line, m // 2)
+        spec = np.fft.rfft(seg, axis=-1)[..., : k_keep + 1]
         del seg
-        k_keep = min(max_line, spec.shape[-1] - 1)
-        spec = spec[..., : k_keep + 1]
         scale = np.full(k_keep + 1, np.sqrt(2) / m)
         scale[0] = 1.0 / m
         spec *= scale
         lines[sel, :, : k_keep + 1] = np.moveaxis(spec, 0, 1)
+
+    threads = 1 if workers == 1 else _threads()
+    if threads > 1 and len(jobs) > 1:
+        list(_pool(threads).map(transform, jobs))
+    else:
+        for job in jobs:
+            transform(job)
     for arr in (rms, mean, prods, crms):
         arr[~valid] = np.nan
     peak[~valid] = np.nan

@@ -57,7 +57,7 @@ def coarse_frequency(x, fs_hz: float, *, f_lo_hz: float, f_hi_hz: float) -> tupl
     of a few cycles the error is well below 1 % of the bin width, enough to seed
     :func:`window_boundaries`, which is exact for any seed within a few per cent.
     """
-    from scipy import fft as sfft  # imported here: scipy.fft is slow to import
+    from .spectrum import fast_length
 
     x = np.nan_to_num(np.asarray(x, dtype=np.float64))
     n = x.size
@@ -70,8 +70,8 @@ def coarse_frequency(x, fs_hz: float, *, f_lo_hz: float, f_hi_hz: float) -> tupl
         n = x.size
     x = x - x.mean()
     w = np.hanning(n)
-    nfft = sfft.next_fast_len(4 * n, real=True)
-    spec = np.abs(sfft.rfft(x * w, nfft))
+    nfft = fast_length(4 * n)
+    spec = np.abs(np.fft.rfft(x * w, nfft))
     freqs = np.arange(spec.size) * fs_hz / nfft
     band = np.nonzero((freqs >= f_lo_hz) & (freqs <= f_hi_hz))[0]
     if band.size < 3:
@@ -279,7 +279,21 @@ def _model_phase(n_pos, mid, count):
     return ph
 
 
-def _second_pass(x, missing, mid, count, amp, local0):
+def _model_position(c, mid, count):
+    """Inverse of :func:`_model_phase`: the position where the model count reaches ``c``
+    (linear between cycle mid-points, extended at the first and last slopes). [samples]"""
+    c = np.asarray(c, dtype=np.float64)
+    pos = np.interp(c, count, mid)
+    lo, hi = c < count[0], c > count[-1]
+    if lo.any():
+        pos[lo] = mid[0] + (c[lo] - count[0]) * (mid[1] - mid[0]) / (count[1] - count[0])
+    if hi.any():
+        pos[hi] = mid[-1] + (c[hi] - count[-1]) * (mid[-1] - mid[-2]) / (
+            count[-1] - count[-2])
+    return pos
+
+
+def _second_pass(x, missing, mid, count, amp, local0, *, compiled=None):
     """Cycle count measured against the phase model ``count(mid)`` of the previous pass.
 
     The reference is multiplied by ``exp(-j 2 pi phi(n))`` (``phi`` the model count) and
@@ -290,24 +304,63 @@ def _second_pass(x, missing, mid, count, amp, local0):
     frequency image turn at whole multiples of one cycle per cycle: two Hann bins or more
     apart, where the Hann window's response is zero; and the weight vanishes at both ends,
     so fractional cycle edges do not matter. Returns the centres (positions), the model
-    counts there, the measured counts and the centres without a usable phase."""
-    n = np.arange(x.size, dtype=np.float64)
-    phi = _model_phase(n, mid, count)
-    phi0 = float(_model_phase(np.array([float(local0)]), mid, count)[0])
-    rel = phi - phi0  # cycles from the first window's start
-    k_first = int(np.ceil(rel[0] + 0.5 - 1e-9))  # first window [k - 1/2, k + 3/2] inside
-    k_last = int(np.floor(rel[-1] - 1.5 + 1e-9))
+    counts there, the measured counts and the centres without a usable phase.
+
+    The sums run as a compiled loop (:func:`pqcheck.dsp._compiled.phase_sums`) when
+    available, else as the NumPy definition below (``compiled=False``); they agree to
+    rounding."""
+    from . import _compiled
+
+    if compiled is None:
+        compiled = _compiled.available()
+    ends = _model_phase(np.array([0.0, x.size - 1.0, float(local0)]), mid, count)
+    phi0 = float(ends[2])
+    k_first = int(np.ceil(ends[0] - phi0 + 0.5 - 1e-9))  # first window [k-1/2, k+3/2] inside
+    k_last = int(np.floor(ends[1] - phi0 - 1.5 + 1e-9))
     if k_last - k_first < 2:
         return mid, count, count, np.zeros(count.size, dtype=bool)
+    nz = k_last - k_first + 1
+    if compiled:
+        zr, zi, wsum = _compiled.phase_sums(x, mid, count, phi0, k_first, nz)
+    else:
+        zr, zi, wsum = _phase_sums_numpy(x, mid, count, phi0, k_first, nz)
+    z = zr + 1j * zi
+    miss = np.zeros(nz)
+    if missing.any():
+        # samples of window i: model count (from the first window's start) in [k - 1/2,
+        # k + 3/2), k = k_first + i
+        ks_edges = _model_position(phi0 + k_first + np.arange(nz + 2) - 0.5, mid, count)
+        b_idx = np.clip(np.ceil(ks_edges - 1e-12).astype(np.int64), 0, missing.size)
+        mcum = np.concatenate(([0], np.cumsum(missing)))
+        miss = (mcum[b_idx[2:]] - mcum[b_idx[:-2]]).astype(np.float64)
+    ks = np.arange(k_first, k_last + 1, dtype=np.float64)
+    mag = np.sqrt(2) * np.abs(z) / np.maximum(wsum, 1e-300)
+    bad = (mag < max(0.2 * amp, 1e-12)) | (wsum <= 0) | (miss > 0)
+    theta = np.unwrap(np.angle(z))
+    if bad.any() and (~bad).any():
+        good = np.flatnonzero(~bad)
+        theta = np.interp(np.arange(theta.size), good, theta[good])
+    centres = _model_position(ks + 0.5 + phi0, mid, count)
+    model = ks + 0.5 + phi0
+    raw = model + (theta - theta[0]) / (2 * np.pi)
+    return centres, model, raw, bad
+
+
+def _phase_sums_numpy(x, mid, count, phi0, k_first, nz):
+    """The sums of :func:`_second_pass` in NumPy (the definition the compiled loop follows):
+    the real and imaginary parts of the Hann-weighted sums of ``x exp(-j 2 pi phi)`` of each
+    two-cycle window and the sums of the weights, each shape ``(nz,)``."""
+    n = np.arange(x.size, dtype=np.float64)
+    phi = _model_phase(n, mid, count)
+    rel = phi - phi0  # cycles from the first window's start
     ang = 2 * np.pi * (phi - np.floor(phi))
     yr, yi = x * np.cos(ang), -x * np.sin(ang)  # x exp(-j 2 pi phi)
     del ang
     # sample n lies in windows j = lead(n) (weight w) and j + 1 (weight 1 - w: the two Hann
-    # halves, sin^2 and cos^2 of the same angle); lead is non-decreasing, so the sums over
+    # halves, cos^2 and sin^2 of the same angle); lead is non-decreasing, so the sums over
     # each j are sums over contiguous runs (reduceat)
     lead = np.floor(rel + 0.5) - 1.0 - k_first
     w = np.sin(0.5 * np.pi * (rel - (lead + k_first) + 0.5)) ** 2
-    nz = k_last - k_first + 1
     # run r holds the samples with lead = r - 2: before the first window (r <= 1, only the
     # later half of window 0 when r = 1), windows 0 .. nz - 1, past the last (r = nz + 2)
     j = np.clip(lead, -2, nz).astype(np.int64) + 2
@@ -330,25 +383,8 @@ def _second_pass(x, missing, mid, count, amp, local0):
     own, prev = slice(2, nz + 2), slice(1, nz + 1)
     zr = run[0, own] + (run[2, prev] - run[0, prev])
     zi = run[1, own] + (run[3, prev] - run[1, prev])
-    z = zr + 1j * zi
     wsum = run[4, own] + (cnt[prev] - run[4, prev])
-    miss = np.zeros(nz)
-    if missing.any():
-        mcum = np.concatenate(([0], np.cumsum(missing)))
-        bounds = np.append(starts, j.size)
-        # samples of window i: runs i + 1 and i + 2
-        miss = (mcum[bounds[3:nz + 3]] - mcum[bounds[1:nz + 1]]).astype(np.float64)
-    ks = np.arange(k_first, k_last + 1, dtype=np.float64)
-    mag = np.sqrt(2) * np.abs(z) / np.maximum(wsum, 1e-300)
-    bad = (mag < max(0.2 * amp, 1e-12)) | (wsum <= 0) | (miss > 0)
-    theta = np.unwrap(np.angle(z))
-    if bad.any() and (~bad).any():
-        good = np.flatnonzero(~bad)
-        theta = np.interp(np.arange(theta.size), good, theta[good])
-    centres = np.interp(ks + 0.5 + phi0, phi, n)
-    model = ks + 0.5 + phi0
-    raw = model + (theta - theta[0]) / (2 * np.pi)
-    return centres, model, raw, bad
+    return zr, zi, wsum
 
 
 PASSES = 3

@@ -49,6 +49,32 @@ def capture_files(path) -> list:
     return [p]
 
 
+class _HashThread:
+    """:func:`capture_sha256` of a file computed on a thread (hashlib releases the GIL), so
+    that a binary capture is hashed on one core while its blocks are analysed on the other;
+    :meth:`result` waits for it and raises what the hashing raised."""
+
+    def __init__(self, path):
+        import threading
+
+        self._out = {}
+        self._thread = threading.Thread(target=self._run, args=(path,), daemon=True,
+                                        name="pqcheck-hash")
+        self._thread.start()
+
+    def _run(self, path):
+        try:
+            self._out["sha"] = capture_sha256(path)
+        except BaseException as exc:  # noqa: BLE001 - handed to the caller in result()
+            self._out["error"] = exc
+
+    def result(self) -> str:
+        self._thread.join()
+        if "error" in self._out:
+            raise self._out["error"]
+        return self._out["sha"]
+
+
 def capture_sha256(path) -> str:
     """SHA-256 of a capture as its reader records it in the provenance (hex).
 
@@ -190,8 +216,8 @@ def open_capture(
         from .binary import open_npy, open_parquet
 
         opener = open_npy if suffix == ".npy" else open_parquet
-        cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column,
-                     sha256=capture_sha256(p))
+        cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column, sha256="")
+        cap.hash_pending(_HashThread(p))  # hashed on a thread while the blocks are analysed
     elif looks_like_spice_raw(p):
         from .spice import read_spice_raw
 

@@ -3,7 +3,7 @@
 ``.npy``: a 2-D float array, one row per sample and one column per channel (a 1-D array is one
 channel). Columns are named ``col1``, ``col2``, ... unless a JSON file of the same name beside it
 (``capture.npy`` -> ``capture.json``) holds ``{"columns": [...], "sample_rate_hz": ...}``.
-Loaded with ``allow_pickle=False`` and memory-mapped, so it is read block by block.
+Opened with ``allow_pickle=False`` and read block by block.
 
 Parquet: one column per channel; a time column is recognised by name (``time``, ``t``, ...) or
 unit (``time [s]``); otherwise the sample rate comes from ``sample_rate_hz`` or the key
@@ -21,7 +21,8 @@ import numpy as np
 from ..capture import CaptureStream, Channel, Provenance, guess_role
 from ..errors import CaptureFormatError
 from ..files.inputs import require_regular_file
-from .delimited import _TIME_NAMES, _split_unit
+from .layouts import TIME_NAMES as _TIME_NAMES
+from .layouts import split_unit as _split_unit
 
 __all__ = ["open_npy", "open_parquet"]
 
@@ -85,9 +86,41 @@ def open_npy(path, *, sample_rate_hz=None, time_column=None, sha256="") -> Captu
     parsed = [_split_unit(n) for n in raw_names]
     names = [p[0] for p in parsed]
     return _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
-                       lambda cols, rows: np.asarray(arr[rows][:, cols], dtype=np.float64),
-                       arr.shape[0], sample_rate_hz or meta.get("sample_rate_hz"),
+                       _npy_rows(path, arr), arr.shape[0], sample_rate_hz or meta.get("sample_rate_hz"),
                        time_column, sha256, "npy")
+
+
+_READ_ROWS = 1 << 18
+"""Rows read from a ``.npy`` file at a time (the transient buffer of a block read)."""
+
+
+def _npy_rows(path, arr):
+    """``read(cols, rows)`` for a ``.npy`` array: the rows read from the file piece by piece
+    with ``numpy.fromfile`` (not through the memory map, whose pages would stay resident and
+    count against the process's memory for the whole record), the wanted columns kept as
+    float64. A Fortran-ordered array is read through the memory map."""
+    row_bytes = arr.dtype.itemsize * arr.shape[1]
+    offset = getattr(arr, "offset", None)
+    if not arr.flags.c_contiguous or offset is None:
+        return lambda cols, rows: np.asarray(arr[rows][:, cols], dtype=np.float64)
+
+    def read(cols, rows):
+        start, stop, _ = rows.indices(arr.shape[0])
+        out = np.empty((max(stop - start, 0), len(cols)))
+        with open(path, "rb") as fh:
+            for lo in range(start, stop, _READ_ROWS):
+                n = min(_READ_ROWS, stop - lo)
+                fh.seek(offset + lo * row_bytes)
+                part = np.fromfile(fh, dtype=arr.dtype, count=n * arr.shape[1])
+                if part.size != n * arr.shape[1]:
+                    raise CaptureFormatError(
+                        f"the file ends after {lo + part.size // arr.shape[1]} of "
+                        f"{arr.shape[0]} rows; it was truncated or is being written",
+                        path=path)
+                out[lo - start:lo - start + n] = part.reshape(n, arr.shape[1])[:, cols]
+        return out
+
+    return read
 
 
 def open_parquet(path, *, sample_rate_hz=None, time_column=None, sha256="") -> CaptureStream:

@@ -1,0 +1,174 @@
+"""Compiled inner loops of the analysis (numba), with the NumPy definitions they replace.
+
+The synchronised analysis spends its time in two per-sample loops: the band-limited
+resampling of every window (:func:`pqcheck.dsp.spectrum.resample_windows`) and the phase
+refinement of the tracker (:func:`pqcheck.dsp.tracking._second_pass`). Written with NumPy,
+each materialises large temporaries (a gathered ``channels x points x taps`` array, or a
+dozen full-length arrays per pass) and runs at memory speed, far below the FFT that follows.
+Here the same arithmetic runs as plain loops compiled by numba, in registers, with the GIL
+released so that chunks run on several threads.
+
+Each function computes exactly what its NumPy counterpart computes (the same formula, the
+same table, only the order of additions differs); ``tests/test_compiled.py`` checks them
+against each other to 1e-12. ``PQCHECK_NO_JIT=1`` (or numba missing) selects the NumPy
+definitions everywhere; so does ``compiled=False`` in the callers.
+
+The compiled code is cached next to this file (numba's ``cache=True``), so only the first
+run after installation pays the compilation (a few seconds).
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+
+import numpy as np
+
+__all__ = ["available", "resample_into", "phase_sums"]
+
+
+_FAST = {"reassoc", "contract"}
+"""The only liberties the compiler may take: reorder sums (so that they vectorise) and fuse
+multiply-adds. No assumption about NaN or infinities (the callers pass finite samples)."""
+
+_KERNELS: dict = {}
+_LOCK = threading.Lock()
+
+
+def available() -> bool:
+    """True when the compiled loops are used: numba importable and ``PQCHECK_NO_JIT`` unset.
+    numba is imported (and the cached machine code loaded) on the first call only, so that
+    commands which analyse nothing do not pay for it."""
+    if "ok" in _KERNELS:
+        return _KERNELS["ok"]
+    with _LOCK:
+        if "ok" in _KERNELS:
+            return _KERNELS["ok"]
+        if os.environ.get("PQCHECK_NO_JIT", "").strip() in ("", "0"):
+            try:
+                import numba
+            except ImportError:  # pragma: no cover - numba is a dependency
+                numba = None
+            if numba is not None:
+                jit = numba.njit(nogil=True, cache=True, fastmath=_FAST)
+                _KERNELS["resample"] = jit(_resample_py)
+                _KERNELS["phase_sums"] = jit(_phase_sums_py)
+        _KERNELS["ok"] = "resample" in _KERNELS
+    return _KERNELS["ok"]
+
+
+def _resample_py(x, starts, lengths, warp, table, half, phases, out):  # pragma: no cover
+    """Point ``m`` of window ``w``: the kernel row of its phase applied to the ``taps``
+    samples around it (``out[c, w, m]``); plain-Python form of the compiled loop."""
+    c_n, n_win, m_pts = out.shape
+    taps = table.shape[1]
+    for w in range(n_win):
+        s, ln, kap = starts[w], lengths[w], warp[w]
+        for m in range(m_pts):
+            u = m / m_pts
+            pos = s + ln * u
+            if kap != 0.0:
+                pos += ln * kap * (u * (1.0 - u))
+            i0 = np.floor(pos)
+            p = int(np.rint((pos - i0) * phases))
+            base = int(i0) - (half - 1)
+            for c in range(c_n):
+                acc = 0.0
+                for t in range(taps):
+                    acc += x[c, base + t] * table[p, t]
+                out[c, w, m] = acc
+
+
+def _phase_sums_py(x, mid, count, phi0, k_first, nz, out):  # pragma: no cover
+    """Hann-weighted sums of ``x exp(-j 2 pi phi(n))`` over the two-cycle windows of
+    :func:`pqcheck.dsp.tracking._second_pass`; plain-Python form of the compiled loop.
+
+    ``phi`` is the piecewise linear model through ``(mid, count)``, extended at the first and
+    last slopes. Sample ``n`` with ``g = phi(n) - phi0 + 1/2`` lies in window
+    ``lead = floor(g) - 1 - k_first`` at weight ``w = cos^2(pi frac(g) / 2)`` and in window
+    ``lead + 1`` at ``1 - w``. Within each model segment ``phi`` is linear in ``n``, so
+    ``exp(-j 2 pi phi)`` and ``exp(j pi g)`` advance by one complex rotation per sample,
+    re-seeded exactly at every segment; ``out`` (shape ``(3, nz)``) receives the real and
+    imaginary sums and the sums of weights."""
+    n = x.size
+    n_mid = mid.size
+    tau = 2.0 * np.pi
+    # segment s covers samples [edge[s], edge[s + 1]): before mid[1], between mids, after
+    # mid[-2] (the two end segments extend the first and last slopes)
+    for s in range(n_mid - 1):
+        slope = (count[s + 1] - count[s]) / (mid[s + 1] - mid[s])
+        lo = 0 if s == 0 else int(np.ceil(mid[s]))
+        hi = n if s == n_mid - 2 else int(np.ceil(mid[s + 1]))
+        lo = max(lo, 0)
+        hi = min(hi, n)
+        if hi <= lo:
+            continue
+        phi_s = count[s] + (lo - mid[s]) * slope
+        a = tau * (phi_s - np.floor(phi_s))
+        er, ei = np.cos(a), -np.sin(a)  # exp(-j 2 pi phi)
+        rr, ri = np.cos(tau * slope), -np.sin(tau * slope)
+        g_s = phi_s - phi0 + 0.5
+        b = np.pi * (g_s - 2.0 * np.floor(0.5 * g_s))
+        qr, qi = np.cos(b), np.sin(b)  # exp(j pi g)
+        pr, pi_ = np.cos(np.pi * slope), np.sin(np.pi * slope)
+        # the window index changes where g crosses a whole number: accumulate each run of
+        # equal index in scalars and add it to its two windows when the run ends
+        cur = np.floor(g_s)
+        s_wr = s_wi = s_r = s_i = s_w = 0.0
+        cnt = 0
+        for i in range(lo, hi + 1):
+            if i < hi:
+                fl = np.floor(g_s + (i - lo) * slope)
+            if i == hi or fl != cur:
+                j = int(cur) - 1 - k_first
+                if 0 <= j < nz:
+                    out[0, j] += s_wr
+                    out[1, j] += s_wi
+                    out[2, j] += s_w
+                if 0 <= j + 1 < nz:
+                    out[0, j + 1] += s_r - s_wr
+                    out[1, j + 1] += s_i - s_wi
+                    out[2, j + 1] += cnt - s_w
+                if i == hi:
+                    break
+                cur = fl
+                s_wr = s_wi = s_r = s_i = s_w = 0.0
+                cnt = 0
+            parity = cur - 2.0 * np.floor(0.5 * cur)
+            c = qr if parity == 0.0 else -qr  # cos(pi frac(g))
+            w = 0.5 * (1.0 + c)
+            xv = x[i]
+            yr = xv * er
+            yi = xv * ei
+            s_wr += w * yr
+            s_wi += w * yi
+            s_r += yr
+            s_i += yi
+            s_w += w
+            cnt += 1
+            er, ei = er * rr - ei * ri, er * ri + ei * rr
+            qr, qi = qr * pr - qi * pi_, qr * pi_ + qi * pr
+
+
+def resample_into(x, starts, lengths, warp, table, half: int, phases: int, out) -> None:
+    """Fill ``out`` (shape ``(C, W, M)``) with the band-limited values of ``x`` (shape
+    ``(C, n)``) at ``starts[w] + lengths[w] (u + warp[w] u (1 - u))``, ``u = m / M``, using
+    the tabulated kernel ``table`` (shape ``(phases + 1, taps)``) looked up at the nearest
+    phase. Compiled; the caller checks the kernel stays inside ``x``."""
+    _KERNELS["resample"](np.ascontiguousarray(x, dtype=np.float64),
+                 np.ascontiguousarray(starts, dtype=np.float64),
+                 np.ascontiguousarray(lengths, dtype=np.float64),
+                 np.ascontiguousarray(warp, dtype=np.float64), table, int(half), int(phases),
+                 out)
+
+
+def phase_sums(x, mid, count, phi0: float, k_first: int, nz: int):
+    """See :func:`_phase_sums_py`; returns an array ``(3, nz)``: the real and imaginary
+    weighted sums and the sums of weights."""
+    out = np.zeros((3, nz))
+    _KERNELS["phase_sums"](np.ascontiguousarray(x, dtype=np.float64),
+                   np.ascontiguousarray(mid, dtype=np.float64),
+                   np.ascontiguousarray(count, dtype=np.float64), float(phi0), int(k_first),
+                   int(nz), out)
+    return out
+
