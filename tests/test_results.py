@@ -92,8 +92,9 @@ def test_every_json_document_validates(folder, monkeypatch):
                "v.json", "-q", "--no-cache", "--force")
     assert res.exit_code in (0, 1), res.output
     report = json.loads((folder / "v.json").read_text())
+    attached = _attachment(folder / "v.pdf")
     for kind, doc in (("analysis", analysis), ("check", check), ("batch", batch),
-                      ("report", report)):
+                      ("report", report), ("report", attached)):
         v.validate(doc)
         assert doc["schema_version"] == SCHEMA_VERSION and doc["tool"]["kind"] == kind
     # the run specification is in every one of them, and the schema requires it

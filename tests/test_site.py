@@ -32,6 +32,7 @@ from hypothesis import strategies as st
 from pqcheck import Capture, analyze
 from pqcheck.cli import main
 from pqcheck.errors import PlanError
+from pqcheck.results import site_document
 from pqcheck.run.site import load_site
 from pqcheck.site import (
     aggregate,
@@ -41,7 +42,6 @@ from pqcheck.site import (
     source_impedance,
     spectrum_from_analysis,
     study_site,
-    study_to_dict,
     summation_exponent,
     transformer_impedance,
     transformer_shift,
@@ -552,9 +552,9 @@ def test_study_errors(tmp_path):
         study_site(load_site(p))
 
 
-def test_study_to_dict_is_json(tmp_path):
+def test_site_document_is_json(tmp_path):
     study = study_site(load_site(write_site(tmp_path)), max_headroom=5)
-    d = json.loads(json.dumps(study_to_dict(study), allow_nan=False))
+    d = json.loads(json.dumps(site_document(study), allow_nan=False))
     assert d["verdict"] == study.verdict
     assert d["pcc"]["isc_a"] == pytest.approx(study.isc_a)
     assert d["harmonics"][4]["order"] == 5
@@ -974,7 +974,7 @@ def test_verdict_depends_on_the_summation_method(tmp_path):
         other = study_site(load_site(tmp_path / "site.toml"), summation=o.summation,
                            headroom=False)
         assert tuple(c.label for c in other.checks if c.verdict == "fail") == o.failing
-    d = study_to_dict(study)
+    d = site_document(study)
     assert {x["summation"]: x["failing"] for x in d["by_summation"]} == {
         "general": ["I5", "TDD"], "arithmetic": ["I5", "I11", "I13", "TDD"],
         "phasor": ["I11", "I13"]}
@@ -1251,9 +1251,9 @@ def test_site_documents_validate_against_the_published_schema(tmp_path):
     # document the site command writes: pass, fail and inconclusive, with and without a site
     # transformer, with the report block of --json
     jsonschema = pytest.importorskip("jsonschema")
-    from pqcheck.site import STUDY_SCHEMA, study_schema
+    from pqcheck.results import SCHEMA_VERSION, schema_for, shipped_schema
 
-    schema = study_schema()
+    schema = schema_for("site study")
     jsonschema.Draft202012Validator.check_schema(schema)
     validator = jsonschema.Draft202012Validator(schema)
     runner = CliRunner()
@@ -1279,9 +1279,13 @@ def test_site_documents_validate_against_the_published_schema(tmp_path):
         r = runner.invoke(main, ["site", str(site), "--json", str(out)])
         assert r.exit_code in (0, 1, 3), (what, r.output)
         doc = json.loads(out.read_text())
-        assert doc["tool"]["schema"] == STUDY_SCHEMA
+        assert doc["tool"]["schema"] == doc["schema_version"] == SCHEMA_VERSION
+        assert doc["tool"]["kind"] == "site study"
+        assert doc["study_spec"] == {"site_file": str(site), "summation": None,
+                                     "headroom": True, "max_headroom": 1000}
         errors = [f"{e.json_path}: {e.message}" for e in validator.iter_errors(doc)]
         assert not errors, (what, errors[:5])
+        jsonschema.validate(doc, shipped_schema())  # exactly one kind of the one schema
     # the schema is not a formality: a wrong verdict word or an unknown block is refused
     doc["verdict"] = "ok"
     assert not validator.is_valid(doc)
@@ -1324,7 +1328,7 @@ def test_capture_unit_runs_through_a_run_spec(tmp_path):
     assert spec.analysis.max_order == 50 and spec.analysis.nominal_hz == 50
     assert spec.reader.path == str(tmp_path / "unit.csv") and spec.limits == ()
     assert abs(site.units[0].spectrum.current[0, 5]) == pytest.approx(2.0, rel=1e-3)
-    d = study_to_dict(study_site(site, headroom=False))
+    d = site_document(study_site(site, headroom=False))
     assert RunSpec.from_dict(d["site"]["units"][0]["run_spec"]) == spec
 
 
@@ -1358,3 +1362,23 @@ def test_site_file_that_is_a_pipe_is_refused(tmp_path):
     os.mkfifo(tmp_path / "site.toml")
     r = CliRunner().invoke(main, ["site", str(tmp_path / "site.toml")])
     assert r.exit_code == 2 and "is a pipe" in r.output, r.output
+
+
+def test_the_study_spec_is_read_back_as_data():
+    from pqcheck.errors import InputError
+    from pqcheck.results import study_spec_of
+    from pqcheck.site import StudySpec
+
+    spec = StudySpec(site_file="site.toml", summation="phasor", max_headroom=20)
+    assert study_spec_of({"study_spec": spec.to_dict()}) == spec
+    with pytest.raises(InputError, match=r"^study_spec\.summation: must be one of 'general', "
+                                         r"'arithmetic', 'phasor', got 'rms'"):
+        study_spec_of({"study_spec": {"site_file": "s.toml", "summation": "rms"}})
+    with pytest.raises(InputError, match=r"^study_spec\.max_headroom: must be a whole number "
+                                         r"from 1 to 1000, got 0"):
+        StudySpec.from_dict({"site_file": "s.toml", "max_headroom": 0})
+    with pytest.raises(InputError, match=r"^study_spec\.colour: unknown field 'colour'"):
+        StudySpec.from_dict({"site_file": "s.toml", "colour": 1})
+    with pytest.raises(InputError, match=r"^study_spec: the results record no study "
+                                         r"specification"):
+        study_spec_of({})

@@ -402,6 +402,34 @@ def test_check_json_names_the_worst_period(tmp_path):
              "weekly 95th percentile of 10 min values")
     assert c["period"] == {"start": w["start"], "end": w["end"]}
     assert c["verdict"] == "fail" and c["measured"] == pytest.approx(13.0)
+    # the document is a "survey" of the one results schema, with the options' run spec
+    spec = _valid(d, "survey")
+    assert (spec.limits[0].table, spec.limits[0].isc_a, spec.analysis.il_a) == \
+        ("ieee519-2022", 7000.0, 100.0)
+
+
+def _valid(doc: dict, kind: str):
+    """Validate ``doc`` with jsonschema (the reference implementation of JSON Schema 2020-12)
+    against the shipped schema, as its kind and as any pqcheck document; return its run
+    spec read back through pqcheck.results."""
+    import jsonschema
+
+    from pqcheck.results import (
+        SCHEMA_VERSION,
+        read_document,
+        run_spec_of,
+        schema_for,
+        shipped_schema,
+    )
+
+    assert doc["schema_version"] == SCHEMA_VERSION and doc["tool"]["kind"] == kind
+    for schema in (schema_for(kind), shipped_schema()):
+        errors = [f"{e.json_path}: {e.message}"
+                  for e in jsonschema.Draft202012Validator(schema).iter_errors(doc)]
+        assert not errors, errors[:5]
+    assert not jsonschema.Draft202012Validator(schema_for(kind)).is_valid(
+        {**doc, "verdict": "ok"})  # not a formality: a wrong verdict word is refused
+    return run_spec_of(read_document(doc, kinds=(kind,)), "doc")
 
 
 def test_inspect_shows_each_column_mapping(tmp_path):
@@ -441,6 +469,9 @@ def test_report_of_a_log_has_the_survey_section_and_the_json(tmp_path):
     assert d["survey"]["flagged_intervals"] == [{"level": "10min",
                                                  "start": "2026-03-02T00:50:00+00:00"}]
     assert len(d["survey"]["availability"]) == 8
+    spec = _valid(d, "survey report")
+    assert spec.limits[0].voltage_level_v == 480.0
+    assert d["captures"][0]["run_spec"] == d["run_spec"]
     r = CliRunner().invoke(main, ["report", str(p), "-o", str(pdf), "--limits",
                                   "ieee519-2022", "--voltage-level", "480", "--isc", "7000",
                                   "--il", "100"])

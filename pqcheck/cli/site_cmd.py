@@ -215,11 +215,11 @@ def site_run(site_file, output, json_path, force, fmt, summation, title, operato
     """Run the site study of SITE.toml (the default subcommand)."""
     from datetime import datetime, timezone
 
-    from ..export import dumps
     from ..files.atomic import OutputSet, check_target
     from ..report.job import make_report_id
+    from ..results import dumps, site_document
     from ..run.site import load_site
-    from ..site import study_site, study_to_dict
+    from ..site import StudySpec, study_site
 
     # 1. Every output must be writable, and none may be an input, before any work is done.
     outputs = [(opt, Path(p)) for opt, p in (("-o", output), ("--json", json_path))
@@ -230,8 +230,9 @@ def site_run(site_file, output, json_path, force, fmt, summation, title, operato
         _refuse_input(opt, p, [("the site file", Path(site_file))])
         check_target(p, force=force, option=opt)
     # 2. The study (any bad input stops here with exit 2 and nothing written).
-    site = load_site(site_file)
-    study = study_site(site, summation=summation)
+    spec = StudySpec(site_file=str(site_file), summation=summation)
+    site = load_site(spec.site_file)
+    study = study_site(site, **spec.study_kwargs())
     inputs = [(f"the {what} of {name!r}" if what.startswith("unit") else f"the {what}",
                Path(path)) for what, name, path, _ in study.inputs if path]
     for opt, p in outputs:
@@ -241,7 +242,7 @@ def site_run(site_file, output, json_path, force, fmt, summation, title, operato
     rid = report_id or make_report_id([sha for *_, sha in study.inputs], created)
     meta = {"title": title or "Site interconnection study", "operator": operator or "",
             "id": rid, "time_of_analysis_utc": created.isoformat()}
-    doc = study_to_dict(study, report=meta)
+    doc = site_document(study, spec=spec, report=meta)
     results = dumps(doc).encode("utf-8")
     pdf = None
     if output is not None:

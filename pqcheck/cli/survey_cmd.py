@@ -130,20 +130,6 @@ def render_survey(sa) -> str:
     return text + render_assessment(sa.assessment)
 
 
-def survey_json(sa) -> dict:
-    """The JSON of `check` for a survey: the assessment, the survey section and findings."""
-    d = sa.assessment.to_dict()
-    s = sa.survey
-    d["capture"] = {"source": ", ".join(s.sources), "sources": list(s.sources),
-                    "sha256": s.sha256[0] if len(s.sha256) == 1 else None,
-                    "sha256_per_file": list(s.sha256), "duration_s": s.duration_s,
-                    "kind": s.origin}
-    d["survey"] = sa.to_dict()
-    d["worst_period"] = d["survey"].get("worst_period")
-    d["findings"] = [f.to_dict() for f in s.findings]
-    return d
-
-
 def check_survey(paths, fmt, spec, opts):
     """`pqcheck check` on interval logs: assess per period and exit with the verdict.
 
@@ -155,7 +141,9 @@ def check_survey(paths, fmt, spec, opts):
     survey = load_survey(paths, opts)
     sa = assess_survey(survey, resolved, il_a=spec.analysis.il_a)
     if fmt == "json":
-        click.echo(json.dumps(survey_json(sa), indent=2))
+        from ..results import dumps, survey_document
+
+        click.echo(dumps(survey_document(sa, spec)))
     else:
         click.echo(render_survey(sa), nl=False)
     raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
@@ -218,7 +206,9 @@ def check_recording(paths, fmt, spec, opts):
     survey = recording_survey(paths, opts, levels=("3s", "10min"))
     sa = assess_survey(survey, resolved, il_a=spec.analysis.il_a)
     if fmt == "json":
-        click.echo(json.dumps(survey_json(sa), indent=2))
+        from ..results import dumps, survey_document
+
+        click.echo(dumps(survey_document(sa, spec)))
     else:
         click.echo(render_survey(sa), nl=False)
     raise click.exceptions.Exit(VERDICT_EXIT[sa.verdict])
@@ -229,7 +219,8 @@ def report_survey(source, outputs, out, json_path, csv_dir, spec, created, comma
     the :class:`~pqcheck.record.RunSpec` of the options; ``outputs``: the report's
     :class:`~pqcheck.files.atomic.OutputSet`, written all together or not at all)."""
     from ..report.job import ReportMeta, make_report_id
-    from ..report.survey_pdf import render_survey_pdf, survey_job_dict
+    from ..report.survey_pdf import render_survey_pdf
+    from ..results import dumps, survey_report_document
     from ..run.check import resolve_limits
     from ..survey import assess_survey
 
@@ -247,8 +238,8 @@ def report_survey(source, outputs, out, json_path, csv_dir, spec, created, comma
                       command=command)
     rid = d.report_id or make_report_id(list(survey.sha256), created)
     meta = dataclasses.replace(meta, report_id=rid)
-    doc = survey_job_dict(sa, meta)
-    results = (json.dumps(doc, indent=2) + "\n").encode("utf-8")
+    doc = survey_report_document(sa, meta, spec)
+    results = (dumps(doc) + "\n").encode("utf-8")
     pdf = render_survey_pdf(sa, meta, results_json=results)
     outputs.put(out, pdf)
     if json_path is not None:

@@ -25,42 +25,10 @@ from ..limits import designation
 from . import figures
 from .style import ACCENT, VERDICT_WORD, esc, fmt, register_fonts
 
-__all__ = ["render_survey_pdf", "survey_job_dict"]
+__all__ = ["render_survey_pdf"]
 
 _MAX_ROWS = 60
 _MAX_FLAGGED = 120
-
-
-def survey_job_dict(sa, meta) -> dict:
-    """The results JSON of a survey report: the keys of every report (``tool``, ``report``,
-    ``plan``, ``verdict``, ``limit_tables``, ``captures``) with the survey as the one capture,
-    and its ``survey`` section (:meth:`pqcheck.survey.SurveyAssessment.to_dict`)."""
-    from datetime import timezone
-
-    from .. import __version__
-    from ..export import clean
-    from .results import SCHEMA_VERSION
-
-    s = sa.survey
-    a = sa.assessment
-    return clean({
-        "tool": {"name": "pqcheck", "version": __version__, "schema": SCHEMA_VERSION},
-        "report": {"id": meta.report_id, "title": meta.title, "equipment": meta.equipment,
-                   "site": meta.site, "operator": meta.operator,
-                   "time_of_analysis_utc": meta.created_utc.astimezone(timezone.utc)
-                   .isoformat(), "command": meta.command},
-        "plan": None,
-        "verdict": a.verdict,
-        "limit_tables": [{"id": t.table_id, "title": t.title, "standard": t.standard,
-                          "edition": t.edition, "source": t.source, "sha256": t.sha256}
-                         for t in a.tables],
-        "captures": [{"id": "survey", "kind": s.origin, "sources": list(s.sources),
-                      "sha256": list(s.sha256), "verdict": a.verdict, "analysis": None,
-                      "findings": [f.to_dict() for f in s.findings],
-                      "assessments": [a.to_dict()]}],
-        "survey": sa.to_dict(),
-        "worst_period": sa.to_dict().get("worst_period"),
-    })
 
 
 def _days(t_s, t0):

@@ -100,14 +100,16 @@ def verify_site(path, *, search=(), rel_tol: float = REL_TOL,
         The document is not a site study, the site file is not found, or the recorded study
         no longer runs (the message says what and where it was looked for).
     """
-    from ..export import dumps
-    from ..site import study_site, study_to_dict
+    from ..results import dumps, read_document, site_document, study_spec_of
+    from ..site import study_site
     from .site import load_site
 
     p = Path(path)
     recorded, pdf, attached = _read(p)
     if not _is_site(recorded):
         raise InputError("not the results of a pqcheck site study", path=p)
+    read_document(recorded, path=str(p), kinds=(SITE_KIND,))
+    spec = study_spec_of(recorded)
     bases = [p.resolve().parent] + [Path(s) for s in search]
     try:
         inputs = {(i["what"], i["name"]): i for i in recorded["inputs"]}
@@ -121,11 +123,8 @@ def verify_site(path, *, search=(), rel_tol: float = REL_TOL,
                             "search folder")
         files = [FileCheck("site file", site_rec["path"], str(site_path), site_rec["sha256"],
                            sha)]
-        headroom = recorded.get("headroom") or []
-        limit = max((h["searched_up_to"] for h in headroom), default=None)
         site = load_site(site_path)
-        study = study_site(site, summation=recorded["summation"], headroom=bool(headroom),
-                           **({"max_headroom": limit} if limit else {}))
+        study = study_site(site, **spec.study_kwargs())
         for what, name, path_now, sha_now in study.inputs:
             if what == "site file":
                 continue
@@ -133,7 +132,8 @@ def verify_site(path, *, search=(), rel_tol: float = REL_TOL,
             files.append(FileCheck(f"{what} {name!r}", rec["path"] if rec else "",
                                    path_now or "bundled", rec["sha256"] if rec else "",
                                    sha_now))
-        recomputed = json.loads(dumps(study_to_dict(study, report=recorded.get("report"))))
+        recomputed = json.loads(dumps(site_document(study, spec=spec,
+                                                    report=recorded.get("report"))))
     except _NotFound as exc:
         raise InputError(str(exc), path=p) from None
     except PqcheckError as exc:

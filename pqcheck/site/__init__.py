@@ -24,7 +24,9 @@ each kind of unit, in three modules:
     :func:`study_site`: the estimate at the PCC, one :class:`pqcheck.assess.Check` per limit
     (the verdict rule of :func:`pqcheck.assess.overall_verdict`), the outcome under every
     summation method (:class:`SummationOutcome`) and the headroom (:class:`Headroom`), in a
-    :class:`SiteStudy`; :func:`study_to_dict` gives its plain-JSON form.
+    :class:`SiteStudy`; :class:`StudySpec` is what a study is run with.
+    :func:`pqcheck.results.site_document` writes its results document (the one results
+    schema) and reads it back.
 
 The result is an estimate for planning. The utility's own study governs.
 
@@ -83,13 +85,11 @@ from .sitefile import (
 from .study import (
     CAUTIONS,
     MAX_HEADROOM,
-    STUDY_SCHEMA,
     Headroom,
     SiteStudy,
+    StudySpec,
     SummationOutcome,
-    study_schema,
     study_site,
-    study_to_dict,
 )
 
 __all__ = [
@@ -124,9 +124,7 @@ __all__ = [
     "spectrum_from_analysis",
     "spectrum_from_dict",
     "study_site",
-    "study_to_dict",
-    "study_schema",
-    "STUDY_SCHEMA",
+    "StudySpec",
     "site_template",
     "shown_path",
 ]

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import bisect
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 
 import numpy as np
 
@@ -29,12 +29,8 @@ from ..metrics import sequence_components
 from .model import Site, Unit
 from .network import SQRT3, SUMMATIONS, aggregate, harmonic_voltages, transformer_shift
 
-__all__ = ["STUDY_SCHEMA", "study_schema", "MAX_HEADROOM", "CAUTIONS", "Headroom", "SummationOutcome",
-           "SiteStudy", "study_site", "study_to_dict"]
-
-#: Version of the site study's results document (``tool.schema``; the JSON Schema is
-#: :func:`study_schema`).
-STUDY_SCHEMA = 1
+__all__ = ["MAX_HEADROOM", "CAUTIONS", "Headroom", "SummationOutcome", "SiteStudy", "StudySpec",
+           "study_site"]
 
 #: Largest number of extra units the headroom search tries per kind.
 MAX_HEADROOM = 1000
@@ -731,116 +727,77 @@ def _orders_text(orders) -> str:
 
 
 # ---------------------------------------------------------------------------------------------
-# Plain-data form
+# What a study is run with
 # ---------------------------------------------------------------------------------------------
 
-def _num(x, digits=10):
-    if x is None:
-        return None
-    x = float(x)
-    return float(f"{x:.{digits}g}") if math.isfinite(x) else None
 
+@dataclass(frozen=True)
+class StudySpec:
+    """Everything that decides a site study besides the files it reads: the site study's run
+    specification, recorded in its results (``study_spec``) so that ``pqcheck verify`` runs it
+    again from data.
 
-def study_to_dict(study: SiteStudy, *, report: dict | None = None) -> dict:
-    """JSON-ready form of a :class:`SiteStudy` (non-finite numbers become None).
-
-    Parameters
+    Attributes
     ----------
-    study : SiteStudy
-    report : dict or None
-        Who and when, recorded as the ``report`` block: ``title``, ``operator``, ``id``,
-        ``time_of_analysis_utc`` (ISO 8601), as a report writes them.
-
-    Keys: ``tool``, ``site`` (name, path, sha256, supply, transformer, pcc, other_load,
-    units, each with ``pcc_current_a``: one unit's current at the PCC for orders 1..H, worst
-    phase), ``summation``, ``pcc`` (voltage, impedance, ISC, IL, ISC/IL), ``limits`` (table,
-    rows), ``harmonics`` (per order: current per phase and % of IL, voltage per phase and % of
-    nominal), ``totals`` (THD of voltage, TDD), ``checks`` (as :meth:`pqcheck.assess.Check.to_dict`
-    with ``label``), ``verdict``, ``headroom``, ``by_summation`` (the verdict and
-    failing checks under each summation method), ``findings`` and ``cautions``.
+    site_file : str
+        The site file as given (its SHA-256 and those of the files it names are in the
+        results' ``inputs``).
+    summation : str or None
+        Override of the site file's summation method (one of
+        :data:`~pqcheck.site.SUMMATIONS`); None: the file's.
+    headroom : bool
+        Search how many more units of each kind fit.
+    max_headroom : int
+        Largest number of extra units tried per kind, 1 to :data:`MAX_HEADROOM`. [unitless]
     """
-    from .. import __version__
-    from .sitefile import shown_path
 
-    s = study.site
-    t = s.transformer
-    harmonics = []
-    for h in study.orders[1:]:
-        harmonics.append({
-            "order": int(h),
-            "current_a": [_num(x) for x in study.current_a[:, h]],
-            "current_percent_il": _num(study.current_percent_il[h]),
-            "voltage_v": [_num(x) for x in study.voltage_v[:, h]],
-            "voltage_percent": _num(study.voltage_percent[h]),
-        })
-    lim = study.limits
-    return {
-        "tool": {"name": "pqcheck", "version": __version__, "kind": "site study",
-                 "schema": STUDY_SCHEMA},
-        "site": {
-            "name": s.name, "path": None if s.path is None else str(s.path),
-            "sha256": s.sha256, "nominal_frequency_hz": s.nominal_hz,
-            "supply": {"nominal_voltage_v": s.supply.nominal_voltage_v,
-                       "ssc_va": _num(s.supply.ssc_va), "isc_a": _num(s.supply.isc_a),
-                       "x_over_r": s.supply.x_over_r},
-            "transformer": None if t is None else {
-                "rating_va": t.rating_va, "primary_v": t.primary_v, "secondary_v": t.secondary_v,
-                "impedance_percent": t.impedance_percent, "x_over_r": t.x_over_r,
-                "vector_group": t.vector_group, "shift_deg": t.shift_deg},
-            "pcc_location": s.pcc_location,
-            "other_load": {"demand_w": s.other_load.demand_w,
-                           "power_factor": s.other_load.power_factor,
-                           "demand_current_a": s.other_load.demand_current_a},
-            "units": [{"name": u.name, "count": u.count, "load_point": u.load_point,
-                       "phase_shift_deg": u.phase_shift_deg, "source": u.spectrum.source,
-                       "sha256": u.spectrum.sha256, "channels": list(u.spectrum.channels),
-                       "phase_measured": u.spectrum.phase_measured,
-                       "fundamental_a": _num(float(np.max(np.abs(u.spectrum.current[:, 1])))),
-                       "pcc_current_a": [_num(float(np.max(np.abs(study.unit_current_a[k, :, h]))))
-                                         for h in study.orders[1:]],
-                       "run_spec": None if u.run_spec is None else u.run_spec.to_dict()}
-                      for k, u in enumerate(s.units)],
-        },
-        "summation": study.summation,
-        "pcc": {"nominal_voltage_v": study.pcc_voltage_v,
-                "impedance_ohm": {"r": _num(study.z_pcc_ohm.real),
-                                  "x": _num(study.z_pcc_ohm.imag)},
-                "isc_a": _num(study.isc_a), "il_a": _num(study.il_a),
-                "il_source": study.il_source, "isc_il": _num(study.isc_il),
-                "transformer_loading_percent": _num(study.transformer_loading_percent)},
-        "limits": None if lim is None else {
-            "table": lim.table_id, "standard": lim.standard, "edition": lim.edition,
-            "source": lim.source, "sha256": lim.sha256, "rows": list(lim.rows)},
-        "resolved_order": study.resolved_order,
-        "harmonics": harmonics,
-        "totals": {"thd_v_percent": _num(study.thd_v_percent),
-                   "tdd_percent": _num(study.tdd_percent)},
-        "checks": [dict(c.to_dict(), label=c.label) for c in study.checks],
-        "verdict": study.verdict,
-        "headroom": [{"unit": h.unit, "count": h.count, "extra_units": h.extra_units,
-                      "searched_up_to": h.searched_up_to, "binding": h.binding,
-                      "binding_value": _num(h.binding_value),
-                      "binding_limit": _num(h.binding_limit),
-                      "already_exceeded": h.already_exceeded,
-                      "passing_count": h.passing_count,
-                      "extra_units_rating": h.extra_units_rating} for h in study.headroom],
-        "by_summation": [{"summation": o.summation, "verdict": o.verdict or None,
-                          "failing": list(o.failing), "closest": o.closest or None,
-                          "closest_margin_percent": _num(o.closest_margin_percent),
-                          "note": o.note} for o in study.by_summation],
-        "findings": [f.to_dict() for f in study.findings],
-        "cautions": list(CAUTIONS),
-        "inputs": [{"what": what, "name": name,
-                    "path": shown_path(path, s.path) if path else "",
-                    "sha256": sha} for what, name, path, sha in study.inputs],
-    } | ({"report": dict(report)} if report is not None else {})
+    site_file: str
+    summation: str | None = None
+    headroom: bool = True
+    max_headroom: int = MAX_HEADROOM
 
+    def __post_init__(self):
+        if not isinstance(self.site_file, str) or not self.site_file.strip():
+            raise InputError("must name the site file", field="site_file")
+        if self.summation is not None and self.summation not in SUMMATIONS:
+            raise InputError(f"must be one of {', '.join(map(repr, SUMMATIONS))}, got "
+                             f"{self.summation!r}", field="summation")
+        if not isinstance(self.headroom, bool):
+            raise InputError(f"must be true or false, got {self.headroom!r}", field="headroom")
+        m = self.max_headroom
+        if isinstance(m, bool) or not isinstance(m, int) or not 1 <= m <= MAX_HEADROOM:
+            raise InputError(f"must be a whole number from 1 to {MAX_HEADROOM}, got {m!r}",
+                             field="max_headroom")
 
-def study_schema() -> dict:
-    """The published JSON Schema (draft 2020-12) of :func:`study_to_dict`'s document, as
-    shipped in ``pqcheck/site/study.schema.json``."""
-    import json
-    from importlib import resources
+    def study_kwargs(self) -> dict:
+        """Keyword arguments of :func:`study_site`."""
+        return {"summation": self.summation, "headroom": self.headroom,
+                "max_headroom": self.max_headroom}
 
-    return json.loads(resources.files("pqcheck.site").joinpath("study.schema.json")
-                      .read_text(encoding="utf-8"))
+    def to_dict(self) -> dict:
+        """Plain-JSON form (every field present)."""
+        return {f.name: getattr(self, f.name) for f in fields(self)}
+
+    @classmethod
+    def from_dict(cls, d) -> StudySpec:
+        """The spec of :meth:`to_dict`.
+
+        Raises
+        ------
+        InputError
+            Not a mapping, an unknown field or a value out of range (naming
+            ``study_spec.FIELD``).
+        """
+        if not isinstance(d, dict):
+            raise InputError("must be a mapping", field="study_spec")
+        names = [f.name for f in fields(cls)]
+        for k in d:
+            if k not in names:
+                raise InputError(f"unknown field {k!r} (allowed: {', '.join(names)})",
+                                 field=f"study_spec.{k}")
+        try:
+            return cls(**d)
+        except InputError as exc:
+            raise InputError(exc.problem, field=f"study_spec.{exc.field}") from None
+        except TypeError:
+            raise InputError("missing field 'site_file'", field="study_spec") from None
