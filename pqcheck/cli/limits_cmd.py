@@ -300,12 +300,13 @@ def _other_document(path) -> tuple:
     """What a TOML file is when it is one of pqcheck's other documents (a test plan, a site
     file), and the command that takes it; () otherwise (also when it cannot be read: the
     validation says why)."""
-    import tomllib
+    from ..errors import InputError
+    from ..files.read import read_bounded
+    from ..files.toml import loads
 
-    try:
-        with open(path, "rb") as fh:
-            doc = tomllib.load(fh)
-    except (OSError, ValueError):
+    try:  # a special file, a huge or deeply nested one: the validation says what is wrong
+        doc = loads(read_bounded(path, what="limit table").decode("utf-8"))
+    except (InputError, OSError, ValueError):
         return ()
     if "captures" in doc and ("site" in doc or "equipment" in doc or "limits" in doc):
         return "a test plan", f"it is read by `pqcheck report {path} -o report.pdf`"
