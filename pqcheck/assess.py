@@ -483,7 +483,8 @@ class _TableAssessor:
                 self.gates.append(gates.Gate(
                     "declared-power", "deviation",
                     f"{self.t.table_id}: the declared active power "
-                    f"({numfmt.given(declared, 'W')}) is more than {100 * DECLARED_POWER_TOLERANCE:g} % from the measured "
+                    f"({numfmt.given(declared, 'W')}) is more than "
+                    f"{numfmt.given(100 * DECLARED_POWER_TOLERANCE, '%')} from the measured "
                     f"{numfmt.number(measured, 4, 'W')}, which the standard does not allow; "
                     "per-watt limits use the measured power.", value=declared, unit="W"))
                 self._power = measured

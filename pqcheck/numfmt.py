@@ -36,8 +36,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-__all__ = ["MISSING", "Kind", "KINDS", "number", "fixed", "value", "power", "given", "margin", "decimals_for",
-           "column", "value_and_limit", "channel_columns", "marked", "check_key", "check_decimals", "check_cells"]
+__all__ = ["MISSING", "Kind", "KINDS", "number", "fixed", "value", "power", "given", "margin",
+           "decimals_for", "column", "value_and_limit", "channel_columns", "marked", "check_key",
+           "check_decimals", "check_cells"]
 
 MISSING = "\u2013"
 """How a missing value (None, NaN) is written."""
