@@ -265,3 +265,36 @@ def test_decimals_of_a_check_do_not_depend_on_its_neighbours(six_pulse_run):
     assert summary and set(summary) <= set(every)
     for item, cells in summary.items():
         assert every[item] == cells
+
+
+# --- the rule kept: no number formatted by hand where people read it ---------------------------
+
+# modules allowed to format a number themselves: matplotlib's tick labels and
+# legend of a figure, and the shell words of a recorded command line (not text to read)
+_HAND_FORMAT_ALLOWED = {"report/figures.py", "cli/_fields.py"}
+
+
+def test_report_and_cli_format_numbers_only_through_numfmt():
+    import ast
+    from pathlib import Path
+
+    import pqcheck
+
+    root = Path(pqcheck.__file__).parent
+    spec = re.compile(r"[eEfFgG%]$")  # a numeric presentation type of the format mini-language
+    bad = []
+    for folder in ("report", "cli"):
+        for path in sorted((root / folder).glob("*.py")):
+            rel = f"{folder}/{path.name}"
+            if rel in _HAND_FORMAT_ALLOWED:
+                continue
+            for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+                if isinstance(node, ast.FormattedValue) and node.format_spec is not None:
+                    text = "".join(v.value for v in node.format_spec.values
+                                   if isinstance(v, ast.Constant))
+                    if spec.search(text):
+                        bad.append(f"{rel}:{node.lineno}: :{text}")
+                elif (isinstance(node, ast.Call) and isinstance(node.func, ast.Name)
+                      and node.func.id in ("format", "round")):
+                    bad.append(f"{rel}:{node.lineno}: {node.func.id}()")
+    assert bad == []
