@@ -561,10 +561,11 @@ def _cover_facts(b: _Builder) -> None:
         if ident:
             pairs.append(("Identification", ident))
         ratings = ", ".join(x for x in (
-            f"{eq.rated_power_w / 1e3:g} kW" if eq.rated_power_w else "",
-            f"{eq.rated_apparent_power_va / 1e3:g} kVA" if eq.rated_apparent_power_va else "",
-            f"{eq.rated_current_a:g} A per phase" if eq.rated_current_a else "",
-            f"{eq.rated_voltage_v:g} V" if eq.rated_voltage_v else "") if x)
+            f"{numfmt.given(eq.rated_power_w / 1e3)} kW" if eq.rated_power_w else "",
+            f"{numfmt.given(eq.rated_apparent_power_va / 1e3)} kVA"
+            if eq.rated_apparent_power_va else "",
+            f"{numfmt.given(eq.rated_current_a)} A per phase" if eq.rated_current_a else "",
+            f"{numfmt.given(eq.rated_voltage_v)} V" if eq.rated_voltage_v else "") if x)
         if ratings:
             pairs.append(("Ratings", ratings))
     site_text = meta.site or (plan.site.name if plan is not None else "")
@@ -697,9 +698,9 @@ def _pcc_basis(plan) -> str:
         return ""
     parts = []
     if isc:
-        parts.append(f"ISC = {isc:g} A")
+        parts.append(f"ISC = {numfmt.given(isc)} A")
     if il:
-        parts.append(f"IL = {il:g} A")
+        parts.append(f"IL = {numfmt.given(il)} A")
     if isc and il:
         parts.append(f"ISC/IL = {fmt(isc / il, 3)}")
     text_ = ", ".join(parts) + " (test plan, [site])"
@@ -1056,8 +1057,9 @@ def _assessment_block(b: _Builder, run, a) -> None:
             how = "pass" if verdicts == {"pass"} else "are undecided (see the causes above)" \
                 if verdicts == {"inconclusive"} else "pass or are undecided"
             b.add(b.p(f"{run.id}: all {len({c.order for c in group})} individual voltage "
-                      f"harmonics {how}, each at least {numfmt.margin(min(margins), signed=False)} inside its "
-                      f"limit on every phase ({statistic}).", "body"))
+                      f"harmonics {how}, each at least "
+                      f"{numfmt.margin(min(margins), signed=False)} inside its limit on every "
+                      f"phase ({statistic}).", "body"))
             continue
         data = figures.spectrum_from_checks(
             res, group, title=f"{run.id}: {what} harmonics against {lim.table_id}",
@@ -1269,8 +1271,9 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
     widths = ([0.06, 0.08] + [room / (2 * n) * 1.05, room / (2 * n) * 0.95] * n
               + [0.16, 0.13])
     mult = {c.multiplier for c in group}
-    times = (f" Limits shown are {mult.pop():g} \u00d7 the table's values, as its evaluation "
-             "rule allows for this statistic." if len(mult) == 1 and 1.0 not in mult else "")
+    times = (f" Limits shown are {numfmt.given(mult.pop())} \u00d7 the table's values, as its "
+             "evaluation rule allows for this statistic."
+             if len(mult) == 1 and 1.0 not in mult else "")
     scope = "every order assessed" if full or not rest else "the orders that decide"
     if fund:
         times = f" % of {fund}: in % of the channel's fundamental.{times}"
