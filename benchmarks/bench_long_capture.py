@@ -23,7 +23,7 @@ What is measured, each in a fresh process, interleaved over the repetitions, med
   of the same capture as ``.npy`` (2 workers);
 - ``binary``: ``pqcheck analyze`` of that ``.npy`` (no text parse).
 
-Peak RSS is each child's own ``VmHWM`` at exit. The captures are generated here: a 50 Hz
+Peak RSS is each child's own ``VmHWM`` at exit. The captures are generated here: a 49.95 Hz
 three-phase set, currents with 20 % fifth and 10 % seventh harmonic (THD 22.36 %), printed
 like a scope export; the THD pqcheck reports is checked against that known content.
 """
@@ -44,6 +44,10 @@ from pathlib import Path
 import numpy as np
 
 FS = 20_000
+F0 = 49.95
+"""Fundamental of the generated captures [Hz]: off nominal, as a real supply always is, so that
+every window is resampled (at exactly 50 Hz and 20 kS/s a window is 4000 whole samples and
+the resampling is the identity)."""
 EXPECTED_THD = 100 * np.sqrt(0.2**2 + 0.1**2)
 
 
@@ -62,11 +66,11 @@ def generate(path: Path, seconds: float) -> None:
             t = (lo + np.arange(n)) / FS
             cols = {"time [s]": np.round(t, 6)}
             for k, ph in enumerate("abc"):
-                th = 2 * np.pi * 50 * t - 2 * np.pi * k / 3
+                th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
                 i = 141.4 * (np.sin(th) + 0.2 * np.sin(5 * th) + 0.1 * np.sin(7 * th))
                 cols[f"i{ph} [A]"] = np.round(i + rng.normal(0, 0.05, n), 3)
             for k, ph in enumerate("abc"):
-                th = 2 * np.pi * 50 * t - 2 * np.pi * k / 3
+                th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
                 cols[f"v{ph} [V]"] = np.round(325.3 * np.sin(th) + rng.normal(0, 0.1, n), 2)
             table = pa.table(cols)
             if writer is None:

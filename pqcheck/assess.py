@@ -36,12 +36,13 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from . import aggregate, gates, metrics, uncertainty
+from . import aggregate, gates, metrics, numfmt, uncertainty
 from ._limit_model import parse_orders
 from .errors import InputError
 from .limits import HARMONIC, LimitItem, ResolvedLimits, quantity_label
 
-__all__ = ["Check", "Assessment", "assess", "VERDICTS", "overall_verdict"]
+__all__ = ["Check", "Assessment", "assess", "VERDICTS", "overall_verdict", "thd_top_order",
+           "window_thd_percent", "window_tdd_percent"]
 
 VERDICTS = ("pass", "fail", "not applicable", "inconclusive")
 #: A declared active power may differ from the measured one by this share (IEC 61000-3-2,
@@ -227,6 +228,90 @@ def _table_dict(t: ResolvedLimits) -> dict:
     }
 
 
+def thd_top_order(result, max_order: int | None = None) -> int:
+    """Highest order a THD or TDD of ``result`` sums: a limit table's highest order, at most
+    the highest order the analysis resolved (above it the spectra hold no values); without
+    ``max_order``, the analysis's own (as its channel values are summed).
+
+    Parameters
+    ----------
+    result : AnalysisResult
+    max_order : int, optional
+        Highest order of the limit table. [unitless]
+
+    Returns
+    -------
+    int
+        The sum runs over orders 2 to this one. [unitless]
+    """
+    top = int(result.max_resolved_order)
+    return top if max_order is None else min(int(max_order), top)
+
+
+def _window_mags(result, measure: str, channel, mags):
+    if mags is None:
+        w = result.windows
+        mags = np.abs(w.component) if measure == "component" else np.asarray(getattr(w, measure))
+    return mags if channel is None else mags[:, channel]
+
+
+def _masked(result, x, channel):
+    valid = np.asarray(result.windows.valid, dtype=bool)
+    return np.where(valid if channel is not None else valid[:, None], x, np.nan)
+
+
+def window_thd_percent(result, *, measure: str = "component", max_order: int | None = None,
+                       channel: int | None = None, mags=None):
+    """THD of every analysis window: the one per-window THD, which the checks compare, the
+    report's THD-over-time figure draws and the per-window exports write.
+
+    ``THD = sqrt(sum_{h=2..H} X_h^2) / X_1 x 100`` (:func:`pqcheck.metrics.thd`) over the
+    IEC 61000-4-7 ``measure``, with ``H = thd_top_order(result, max_order)``.
+
+    Parameters
+    ----------
+    result : AnalysisResult
+    measure : str
+        ``"component"``, ``"group"`` or ``"subgroup"`` (a limit table's ``measure``).
+    max_order : int, optional
+        Highest order of the limit table (default: the analysis's highest resolved order).
+    channel : int, optional
+        One channel's index (default: every channel).
+    mags : numpy.ndarray, optional
+        The magnitudes of ``measure`` when the caller holds them already, shape (W, C, H + 1).
+        [A] or [V]
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape (W, C), or (W,) for one channel; NaN in invalid windows. [%]
+    """
+    m = _window_mags(result, measure, channel, mags)
+    return _masked(result, metrics.thd(m, max_order=thd_top_order(result, max_order)), channel)
+
+
+def window_tdd_percent(result, il_a: float, *, measure: str = "component",
+                       max_order: int | None = None, channel: int | None = None, mags=None):
+    """TDD of every analysis window, over the orders of :func:`window_thd_percent`.
+
+    Parameters
+    ----------
+    result : AnalysisResult
+    il_a : float
+        Maximum demand load current IL. [A]
+    measure, max_order, channel, mags
+        As for :func:`window_thd_percent`.
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape (W, C), or (W,) for one channel; NaN in invalid windows. [%]
+    """
+    m = _window_mags(result, measure, channel, mags)
+    return _masked(result, metrics.tdd(m, il_a, max_order=thd_top_order(result, max_order)),
+                   channel)
+
+
 def overall_verdict(checks) -> str:
     """``fail`` if any check fails, else ``inconclusive`` if any is, else ``pass``;
     ``not applicable`` when there is no pass, fail or inconclusive check."""
@@ -397,13 +482,14 @@ class _TableAssessor:
                     DECLARED_POWER_TOLERANCE * measured:
                 self.gates.append(gates.Gate(
                     "declared-power", "deviation",
-                    f"{self.t.table_id}: the declared active power ({declared:.4g} W) is more "
-                    f"than {100 * DECLARED_POWER_TOLERANCE:g} % from the measured "
-                    f"{measured:.4g} W, which the standard does not allow; per-watt limits "
-                    "use the measured power.", value=declared, unit="W"))
+                    f"{self.t.table_id}: the declared active power "
+                    f"({numfmt.given(declared, 'W')}) is more than {100 * DECLARED_POWER_TOLERANCE:g} % from the measured "
+                    f"{numfmt.number(measured, 4, 'W')}, which the standard does not allow; "
+                    "per-watt limits use the measured power.", value=declared, unit="W"))
                 self._power = measured
                 self.notes.append(f"{self.t.table_id}: per-watt limits use the measured active "
-                                  f"power, {measured:.4g} W (the declared {declared:.4g} W is "
+                                  f"power, {numfmt.number(measured, 4, 'W')} (the declared "
+                                  f"{numfmt.given(declared, 'W')} is "
                                   "outside the 10 % the standard allows).")
                 return measured
             self._power = declared
@@ -456,7 +542,7 @@ class _TableAssessor:
             return None
         self._pf = float(p.pf)
         self.notes.append(f"{self.t.table_id}: circuit power factor (lambda) measured "
-                          f"{self._pf:.4f}.")
+                          f"{numfmt.value(self._pf, 'power_factor')}.")
         return self._pf
 
     # -- series ------------------------------------------------------------------------------
@@ -516,8 +602,11 @@ class _TableAssessor:
         q = item.quantity
         n_max = min(self.t.max_order, top)
         if q in ("THD", "TDD"):
-            arr = (metrics.thd(mags, max_order=n_max) if q == "THD"
-                   else metrics.tdd(mags, self._ref("il", item.basis), max_order=n_max))
+            # the one per-window THD / TDD (the report's figure draws the same values)
+            how = {"measure": self.t.measure, "max_order": self.t.max_order, "channel": k,
+                   "mags": self.mags}
+            arr = (window_thd_percent(self.r, **how) if q == "THD"
+                   else window_tdd_percent(self.r, self._ref("il", item.basis), **how))
             orders = frozenset(range(1 if q == "THD" else 2, self.t.max_order + 1))
         elif q in ("THC", "PWHC"):
             hi = min(40, n_max)

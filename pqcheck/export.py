@@ -176,20 +176,32 @@ def harmonics_frame(result):
     return pd.DataFrame(rows)
 
 
-def windows_frame(result):
-    """Per-window table: time, frequency, validity, and per channel rms and THD."""
+def windows_frame(result, *, measure: str = "component", max_order: int | None = None):
+    """Per-window table: time, frequency, validity, and per channel rms and THD.
+
+    Parameters
+    ----------
+    result : AnalysisResult
+    measure, max_order
+        Which THD: :func:`pqcheck.assess.window_thd_percent` (default: harmonic components,
+        orders 2 to the highest resolved, as the channel values; a report passes its THD
+        check's table so that its figure shows what the check compares).
+
+    Returns
+    -------
+    pandas.DataFrame
+    """
     import pandas as pd
 
-    from . import metrics
+    from .assess import window_thd_percent
 
     w = result.windows
     data = {"t_start_s": w.t_start_s, "duration_s": w.duration_s, "freq_hz": w.freq_hz,
             "valid": w.valid}
-    mags = np.abs(w.component)
+    thd = window_thd_percent(result, measure=measure, max_order=max_order)
     for k, c in enumerate(result.channels):
         data[f"{c.name}_rms"] = w.rms[:, k]
-        data[f"{c.name}_thd_percent"] = metrics.thd(mags[:, k],
-                                                    max_order=result.max_resolved_order)
+        data[f"{c.name}_thd_percent"] = thd[:, k]
     if w.p_total_w is not None:
         data["p_total_w"] = w.p_total_w
     return pd.DataFrame(data)

@@ -903,22 +903,26 @@ class FileLevels:
     settings: dict = field(default_factory=dict, compare=False)
 
 
-def window_values(result, *, il_a: float | None = None, measure: str = "subgroup"):
+def window_values(result, *, il_a: float | None = None, measure: str = "subgroup",
+                  max_order: int | None = None):
     """Per-window values of an analysis for aggregation: harmonics (W, C, H + 1) of the
     IEC 61000-4-7 ``measure``, THD (W, C) [%], TDD (W, C) [%] (currents, with ``il_a``) and
-    active power per phase on the current channel (W, C) [W]; invalid windows NaN."""
+    active power per phase on the current channel (W, C) [W]; invalid windows NaN. THD and
+    TDD are :func:`pqcheck.assess.window_thd_percent` / ``window_tdd_percent`` over orders 2
+    to ``max_order`` (a limit table's highest; default: the highest resolved)."""
     from .analysis import _phase_pairs
+    from .assess import window_tdd_percent, window_thd_percent
 
     w = result.windows
     valid = np.asarray(w.valid, bool)
     mags = np.abs(w.component) if measure == "component" else np.asarray(getattr(w, measure))
     mags = np.where(valid[:, None, None], mags, np.nan)
-    top = mags.shape[2] - 1
-    thd = metrics.thd(mags, max_order=top)
+    how = {"measure": measure, "max_order": max_order, "mags": mags}
+    thd = window_thd_percent(result, **how)
     tdd = np.full(thd.shape, np.nan)
     cur = [k for k, c in enumerate(result.channels) if c.quantity == "current"]
     if il_a:
-        tdd[:, cur] = metrics.tdd(mags[:, cur, :], il_a, max_order=top)
+        tdd[:, cur] = window_tdd_percent(result, il_a, **how)[:, cur]
     pw = np.full(thd.shape, np.nan)
     if w.p_w is not None:
         pairs, _ = _phase_pairs(result.channels)
@@ -929,7 +933,7 @@ def window_values(result, *, il_a: float | None = None, measure: str = "subgroup
 
 def file_levels(result, start_s: float, *, t0_s: float = 0.0, flags=None, events=(),
                 il_a: float | None = None, measure: str = "subgroup", source: str = "",
-                sha256: str = "") -> FileLevels:
+                sha256: str = "", max_order: int | None = None) -> FileLevels:
     """Aggregate the windows of one analysed file into 3 s and 10 min values (IEC 61000-4-30).
 
     Parameters
@@ -945,6 +949,9 @@ def file_levels(result, start_s: float, *, t0_s: float = 0.0, flags=None, events
         IL for TDD. [A]
     measure : str
         ``subgroup`` (IEC 61000-4-30 Class A), ``group`` or ``component``.
+    max_order : int, optional
+        Highest order of the THD and TDD sums (a limit table's; default: the highest
+        resolved). [unitless]
 
     Returns
     -------
@@ -955,7 +962,7 @@ def file_levels(result, start_s: float, *, t0_s: float = 0.0, flags=None, events
     d = np.asarray(w.duration_s, np.float64)
     valid = np.asarray(w.valid, bool)
     flg = np.zeros(t.size, bool) if flags is None else np.asarray(flags, bool)
-    mags, thd, tdd, pw = window_values(result, il_a=il_a, measure=measure)
+    mags, thd, tdd, pw = window_values(result, il_a=il_a, measure=measure, max_order=max_order)
     chans = tuple(SurveyChannel(c.name, c.quantity, c.phase, c.unit) for c in result.channels)
     # 3 s blocks
     lab, ends = aggregate.class_a_blocks(t, d)
@@ -1150,7 +1157,12 @@ def assess_result_periods(result, table, *, il_a=None, start_s: float | None = N
     """Assess one analysed capture period by period (its windows aggregated as
     IEC 61000-4-30 does). Without ``start_s`` (absolute time of the first sample) the
     capture's own time base stands in for the clock, and the notes say so."""
-    part = file_levels(result, 0.0 if start_s is None else start_s, il_a=il_a)
+    # THD and TDD as the table sums them (its measure and highest order), as the checks of a
+    # shorter capture do
+    how = {"max_order": table.max_order}
+    if table.measure in ("component", "group", "subgroup"):
+        how["measure"] = table.measure
+    part = file_levels(result, 0.0 if start_s is None else start_s, il_a=il_a, **how)
     survey = join_files([part], timezone_name="")
     sa = assess_survey(survey, table, il_a=il_a)
     if start_s is None:

@@ -59,9 +59,12 @@ def available() -> bool:
 
 def _resample_py(x, starts, lengths, warp, table, half, phases, out):  # pragma: no cover
     """Point ``m`` of window ``w``: the kernel row of its phase applied to the ``taps``
-    samples around it (``out[c, w, m]``); plain-Python form of the compiled loop."""
+    samples around it (``out[c, w, m]``); plain-Python form of the compiled loop. The rows
+    of a window are gathered once and applied to every channel in turn."""
     c_n, n_win, m_pts = out.shape
     taps = table.shape[1]
+    wts = np.empty((m_pts, taps))
+    bases = np.empty(m_pts, dtype=np.int64)
     for w in range(n_win):
         s, ln, kap = starts[w], lengths[w], warp[w]
         for m in range(m_pts):
@@ -71,11 +74,15 @@ def _resample_py(x, starts, lengths, warp, table, half, phases, out):  # pragma:
                 pos += ln * kap * (u * (1.0 - u))
             i0 = np.floor(pos)
             p = int(np.rint((pos - i0) * phases))
-            base = int(i0) - (half - 1)
-            for c in range(c_n):
+            bases[m] = int(i0) - (half - 1)
+            for t in range(taps):
+                wts[m, t] = table[p, t]
+        for c in range(c_n):
+            for m in range(m_pts):
+                b = bases[m]
                 acc = 0.0
                 for t in range(taps):
-                    acc += x[c, base + t] * table[p, t]
+                    acc += x[c, b + t] * wts[m, t]
                 out[c, w, m] = acc
 
 

@@ -318,7 +318,8 @@ def trend_data(result, *, windows=None) -> TrendData:
     ----------
     result : AnalysisResult
     windows : pandas.DataFrame or None
-        :func:`pqcheck.export.windows_frame` of ``result`` (computed when None).
+        :func:`pqcheck.export.windows_frame` of ``result`` (computed when None, with the
+        analysis's THD; a report passes the frame of its THD check's table).
 
     Returns
     -------

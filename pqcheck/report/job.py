@@ -116,6 +116,34 @@ class CaptureRun:
                           counts={v: sum(1 for c in checks if c.verdict == v) for v in VERDICTS})
 
     @property
+    def thd_basis(self) -> dict:
+        """Which per-window THD the report shows for this capture: as the first limit table
+        with a THD check (else a TDD check) sums it (its IEC 61000-4-7 measure and highest
+        order), else the analysis's own (components, orders up to the highest resolved).
+
+        Returns
+        -------
+        dict
+            ``measure``, ``max_order`` (None: the analysis's) and ``table_id`` ("" for the
+            analysis's), for :func:`pqcheck.assess.window_thd_percent`.
+        """
+        for quantity in ("THD", "TDD"):
+            for a in self.tables:
+                lim = a.limits
+                if lim.measure in ("component", "group", "subgroup") and any(
+                        c.quantity == quantity for c in a.checks):
+                    return {"measure": lim.measure, "max_order": lim.max_order,
+                            "table_id": lim.table_id}
+        return {"measure": "component", "max_order": None, "table_id": ""}
+
+    def windows_frame(self):
+        """:func:`pqcheck.export.windows_frame` with the THD of :attr:`thd_basis`."""
+        from ..export import windows_frame
+
+        b = self.thd_basis
+        return windows_frame(self.result, measure=b["measure"], max_order=b["max_order"])
+
+    @property
     def tables(self) -> list:
         """One :class:`TableResult` per limit table applied to this capture."""
         return [t for a in self.assessments for t in table_results(a)]

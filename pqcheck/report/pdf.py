@@ -1356,7 +1356,7 @@ def _harmonic_groups(a) -> dict:
 
 
 def _per_capture(b: _Builder) -> None:
-    from ..export import harmonics_frame, windows_frame
+    from ..export import harmonics_frame
 
     job = b.job
     b.add(CondPageBreak(75 * mm))  # the heading never stands alone at a page's foot
@@ -1387,10 +1387,10 @@ def _per_capture(b: _Builder) -> None:
         n_valid = int(run.result.windows.valid.sum())
         if n_valid >= _MIN_TREND_WINDOWS:
             b.figure(figures.plot_trend(figures.trend_data(run.result,
-                                                           windows=windows_frame(run.result))),
+                                                           windows=run.windows_frame())),
                      f"{run.id}: THD of each channel per "
                      f"{run.result.settings.cycles_per_window}-cycle window across the "
-                     "capture (gaps: invalid windows).")
+                     f"capture ({_thd_basis_text(run)}; gaps: invalid windows).")
         else:
             b.add(b.p(f"{run.id}: {n_valid} valid analysis windows: too few for a chart of "
                       "THD over time; the per-window values are in the attached results "
@@ -1399,6 +1399,21 @@ def _per_capture(b: _Builder) -> None:
         _channels_and_power(b, run)
         if getattr(run.result, "flicker", None) is not None:
             _flicker_section(b, run)
+
+
+_MEASURE_WORDS = {"component": "harmonic components", "group": "harmonic groups",
+                  "subgroup": "harmonic subgroups"}
+
+
+def _thd_basis_text(run) -> str:
+    """``"harmonic subgroups, orders 2 to 50, as ieee519-2022 sums it"``: what the per-window
+    THD of a capture sums (:attr:`~pqcheck.report.job.CaptureRun.thd_basis`)."""
+    from ..assess import thd_top_order
+
+    basis = run.thd_basis
+    top = thd_top_order(run.result, basis["max_order"])
+    text_ = f"{_MEASURE_WORDS[basis['measure']]}, orders 2 to {top}"
+    return text_ + (f", as {basis['table_id']} sums it" if basis["table_id"] else "")
 
 
 def _flicker_section(b: _Builder, run) -> None:

@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 from datetime import timezone
 
-from ..export import analysis_to_dict, clean, harmonics_frame, windows_frame
+from ..export import analysis_to_dict, clean, harmonics_frame
 from ..files.atomic import OutputSet
 from ..results import SCHEMA_VERSION, tool_block
 
@@ -111,7 +111,7 @@ def job_frames(job, doc: dict | None = None) -> dict:
         hf = harmonics_frame(run.result)
         hf.insert(0, "capture", run.id)
         harm.append(hf)
-        wf = windows_frame(run.result)
+        wf = run.windows_frame()  # the THD the report's figure shows
         wf.insert(0, "window", range(len(wf)))
         base = ["window", "t_start_s", "duration_s", "freq_hz", "valid"]
         for c in run.result.channels:
