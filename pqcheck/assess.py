@@ -325,6 +325,36 @@ def overall_verdict(checks) -> str:
 # --- entry point ---------------------------------------------------------------------------
 
 
+def _one_il(il_a, result, tables):
+    """The one IL of an assessment [A]: given here, to the analysis (its TDD) or to
+    :func:`~pqcheck.limits.resolve` (the ISC/IL row). Where it is given more than once, every
+    value must be the same; the first given is used (here, else the analysis', else the row
+    selection's).
+
+    Raises
+    ------
+    InputError
+        Two of them differ (a TDD against one IL beside a row chosen with another).
+    """
+    given = []
+    if il_a is not None:
+        given.append(("assess", il_a))
+    if getattr(result.settings, "il_a", None) is not None:
+        given.append(("the analysis", result.settings.il_a))
+    for t in tables:
+        v = dict(getattr(t, "selectors", ()) or ()).get("il")
+        if isinstance(v, (int, float)) and not isinstance(v, bool):
+            given.append((f"the row selection of {t.table_id}", v))
+    values = [float(v) for _, v in given]
+    if values and max(values) - min(values) > 1e-9 * max(abs(x) for x in values):
+        raise InputError(
+            "IL is given more than once with different values ("
+            + ", ".join(f"{where} {v:g} A" for where, v in given)
+            + "); TDD and the ISC/IL row must use one IL: give the same value everywhere, "
+              "or give it once", field="il_a")
+    return given[0][1] if given else None
+
+
 def assess(result, limits, *, il_a: float | None = None, rated_current_a: float | None = None,
            iref_a: float | None = None, active_power_w: float | None = None,
            declared: gates.Declared | None = None) -> Assessment:
@@ -363,8 +393,7 @@ def assess(result, limits, *, il_a: float | None = None, rated_current_a: float 
         ``iref_a``), or a reference value is not positive.
     """
     tables = (limits,) if isinstance(limits, ResolvedLimits) else tuple(limits)
-    if il_a is None:
-        il_a = getattr(result.settings, "il_a", None)
+    il_a = _one_il(il_a, result, tables)
     for name, v in (("il_a", il_a), ("rated_current_a", rated_current_a), ("iref_a", iref_a),
                     ("active_power_w", active_power_w)):
         if v is not None and not (math.isfinite(v) and v > 0):
@@ -483,7 +512,8 @@ class _TableAssessor:
                 self.gates.append(gates.Gate(
                     "declared-power", "deviation",
                     f"{self.t.table_id}: the declared active power "
-                    f"({numfmt.given(declared, 'W')}) is more than {100 * DECLARED_POWER_TOLERANCE:g} % from the measured "
+                    f"({numfmt.given(declared, 'W')}) is more than "
+                    f"{numfmt.given(100 * DECLARED_POWER_TOLERANCE, '%')} from the measured "
                     f"{numfmt.number(measured, 4, 'W')}, which the standard does not allow; "
                     "per-watt limits use the measured power.", value=declared, unit="W"))
                 self._power = measured

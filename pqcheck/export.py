@@ -63,7 +63,8 @@ def analysis_to_dict(result, *, include_windows: bool = False) -> dict:
     ``rms``, ``dc``, ``fundamental_rms``, ``thd_percent``, ``thd_group_percent``,
     ``thd_subgroup_percent``, ``tdd_percent``, ``thc``, ``pwhc``, ``pwhd_percent``,
     ``crest_factor`` and ``harmonics``: a list of ``{order, rms, percent_of_fundamental,
-    phase_deg, group_rms, subgroup_rms}`` for orders 1..H, values ``null`` where the
+    phase_deg, group_rms, subgroup_rms, interharmonic_group_rms}`` for orders 1..H (the
+    interharmonic group of order h lies between h and h + 1), values ``null`` where the
     sample rate does not resolve the order), ``power`` (``phases`` with ``p_w``, ``s_va``,
     ``p1_w``, ``q1_var``, ``s1_va``, ``pf``, ``dpf``; ``total`` with ``p_w``, ``se_va``, ``pf``,
     ``wiring`` and the three-phase extras) and ``findings``. With a flicker evaluation, each
@@ -86,6 +87,7 @@ def analysis_to_dict(result, *, include_windows: bool = False) -> dict:
                 "phase_deg": _round(c.phase_deg[h], 6),
                 "group_rms": _round(c.group_rms[h]),
                 "subgroup_rms": _round(c.subgroup_rms[h]),
+                "interharmonic_group_rms": _round(c.interharmonic_group_rms[h]),
             })
         chans.append({
             "name": c.name,

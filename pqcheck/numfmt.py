@@ -16,7 +16,7 @@ The rules
   :func:`column`), taken from the smallest non-zero reference value of the column (the limits,
   for a column of checks) shown with three significant digits, at most five decimals.
   A check's measured value and its limit use the decimals of its group, the checks of one
-  limit table on one basis (:func:`check_decimals`), so a check reads the same in every
+  limit table for currents or voltages on one basis (:func:`check_decimals`), so a check reads the same in every
   output that shows it, whatever rows stand beside it.
 - Missing values (None, NaN) are an en dash ``"–"`` with no unit; infinities are ``"inf"``
   and ``"-inf"``.
@@ -36,8 +36,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-__all__ = ["MISSING", "Kind", "KINDS", "number", "fixed", "value", "power", "given", "margin", "decimals_for",
-           "column", "value_and_limit", "channel_columns", "marked", "check_key", "check_decimals", "check_cells"]
+__all__ = ["MISSING", "Kind", "KINDS", "number", "fixed", "value", "power", "given", "margin",
+           "decimals_for", "column", "value_and_limit", "channel_columns", "marked", "check_key",
+           "check_decimals", "check_cells"]
 
 MISSING = "\u2013"
 """How a missing value (None, NaN) is written."""
@@ -364,9 +365,10 @@ def value_and_limit(x, limit, unit: str = "") -> tuple:
 # -- checks -----------------------------------------------------------------------------------
 
 def check_key(check) -> tuple:
-    """The group whose limits set a check's decimals: its limit table and basis (or unit)."""
-    return (getattr(check, "table_id", ""), getattr(check, "basis", "") or
-            getattr(check, "unit", ""))
+    """The group whose limits set a check's decimals: its limit table, what it applies to
+    (currents or voltages) and its basis (or unit)."""
+    return (getattr(check, "table_id", ""), getattr(check, "applies_to", ""),
+            getattr(check, "basis", "") or getattr(check, "unit", ""))
 
 
 def check_decimals(checks) -> dict:

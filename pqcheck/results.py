@@ -440,7 +440,8 @@ def _analysis_core() -> dict:
     harmonic = {"type": "object",
                 "properties": {"order": {"type": "integer", "minimum": 1}, "rms": _NUM,
                                "percent_of_fundamental": _NUM, "phase_deg": _NUM,
-                               "group_rms": _NUM, "subgroup_rms": _NUM},
+                               "group_rms": _NUM, "subgroup_rms": _NUM,
+                               "interharmonic_group_rms": _NUM},
                 "required": ["order", "rms"]}
     channel = {"type": "object",
                "properties": {"name": _STR, "quantity": {"enum": ["current", "voltage"]},

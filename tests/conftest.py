@@ -217,9 +217,18 @@ def _pqcheck_leftovers() -> set:
     out = set()
     tmp = _PRIVATE.get("tmp")
     if tmp is not None and tmp.is_dir():
-        # multiprocessing's pymp-* folders are removed when the interpreter exits
-        out |= {str(p) for p in tmp.rglob("*") if not p.relative_to(tmp).parts[0].startswith(
-            "pymp-")}
+        # multiprocessing's pymp-* folders are removed when the interpreter exits (by child
+        # processes, maybe while this runs): never descend into them, and a file that
+        # vanishes during the walk is not a leftover
+        for top in list(tmp.iterdir()):
+            if top.name.startswith("pymp-"):
+                continue
+            try:
+                out.add(str(top))
+                if top.is_dir():
+                    out |= {str(p) for p in top.rglob("*")}
+            except FileNotFoundError:
+                continue
     caches = [Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache") / "pqcheck",
               Path.home() / ".cache" / "pqcheck"]
     for c in caches:

@@ -66,6 +66,22 @@ def ieee519_limits():
     return resolve(without_observation("ieee519-2022"), voltage_level_v=480, isc_a=3500, il_a=100)
 
 
+def test_one_il_for_tdd_and_the_row():
+    # TDD = sqrt(sum I_h^2) / IL (IEEE 519-2022, 3.1): 6, 5, 4 A against IL = 100 A give
+    # 8.775 %, whether IL reaches the assessment through the analysis or through the row
+    # selection (resolve) alone
+    cap = ieee519_capture(6.0, 5.0, 4.0)
+    from_row = assess(analyze(cap, nominal_hz=60), ieee519_limits())
+    assert one(from_row, "TDD").measured == pytest.approx(math.sqrt(36 + 25 + 16), rel=1e-3)
+    # a TDD against one IL beside a row chosen with another is refused, naming both
+    with pytest.raises(InputError, match=r"IL is given more than once with different values "
+                                         r"\(the analysis 90 A, the row selection of "
+                                         r"ieee519-2022 100 A\)"):
+        assess(analyze(cap, nominal_hz=60, il_a=90), ieee519_limits())
+    with pytest.raises(InputError, match=r"assess 95 A, the analysis 100 A"):
+        assess(analyze(cap, nominal_hz=60, il_a=100), ieee519_limits(), il_a=95)
+
+
 def test_ieee519_bench_capture_fails_on_11th_and_tdd():
     # IEEE 519-2022 Table 2, 20 < ISC/IL < 50: h = 11 limit 3.5 % of IL, TDD 8.0 %; with
     # IL = 100 A: I11 = 4 A -> 4.0 % (fail), TDD = sqrt(6^2 + 5^2 + 4^2) = 8.775 % (fail),

@@ -49,3 +49,25 @@ def test_bar_top_stays_visible_at_its_limit(measured, limit, verdict):
     # Beside the bar, at the limit: the limit mark is drawn there (wider than the bar).
     side = _pixel(fig, ax, rgba, 23 + 0.40, limit)
     assert (side < 200).any(), f"limit mark not visible beside the bar (pixel {side})"
+
+
+def test_undecided_orders_carry_the_reports_glyph_and_the_legend_clears_the_titles():
+    from pqcheck.report.style import VERDICT_MARK
+
+    panels = [figures.SpectrumPanel(label=f"phase {p}", orders=np.array([5, 7, 11]),
+                                    measured=np.array([8.0, 3.0, 1.0]),
+                                    limit=np.array([7.0, 7.0, 3.5]),
+                                    verdicts=("fail", "inconclusive", "pass"))
+              for p in "abc"]
+    fig, _ = _render(panels)
+    renderer = fig.canvas.get_renderer()
+    marks = [t.get_text() for ax in fig.axes for t in ax.texts]
+    # the chart marks an undecided order as the tables do (never a "?", which reads as a
+    # missing glyph), a failing one with the cross
+    assert f"{VERDICT_MARK['inconclusive']}7" in marks and "\u27155" in marks
+    assert not any("?" in m for m in marks)
+    (legend,) = fig.legends
+    box = legend.get_window_extent(renderer)
+    for ax in fig.axes:
+        assert not box.overlaps(ax.title.get_window_extent(renderer)), ax.title.get_text()
+        assert not box.overlaps(ax.get_window_extent(renderer))

@@ -259,3 +259,13 @@ def test_verdict_reasons_are_said_once_and_gates_stay_out_of_the_tables(report):
     assert "Compared in this report: RMS of 10/12-cycle values over the capture." in flat
     assert "needs a survey longer than these captures and was not applied" in flat
     assert "[U+00AD]" not in text  # no soft hyphen of our own shown as a code point
+
+
+def test_limits_exceeded_lists_each_item_once(report):
+    # the six-pulse current fails on every phase: the summary names each failing order once,
+    # with the phases that fail, not three rows per order
+    summary = next(p for p in report["pages"] if "Limits exceeded" in p)
+    part = summary.split("Limits exceeded")[1].split("failing checks in")[0]
+    items = re.findall(r"\bI(\d+)\b", part)
+    assert items and len(items) == len(set(items))
+    assert re.search(r"(\d+) failing checks in (\d+) items", summary)

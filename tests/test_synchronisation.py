@@ -229,3 +229,44 @@ def test_threaded_resampling_gives_the_same_numbers(monkeypatch):
     for a, b in zip(fast.channels, slow.channels):
         assert a.thd_percent == pytest.approx(b.thd_percent, rel=1e-9)
         np.testing.assert_allclose(a.group_rms, b.group_rms, rtol=1e-9)
+
+
+def test_results_document_carries_every_grouping_of_an_off_nominal_capture(tmp_path):
+    # through the command line and its JSON, as a user checks it: a scope-like CSV (time
+    # column, 6 significant digits) at 10 kS/s and 50.6 Hz, N = 10, lines f0/10 apart.
+    # A tone at 3.5 f0 (line 35) is the boundary of groups 3 and 4: each takes half its
+    # power; it is the whole interharmonic group 3 (lines 31..39); subgroups 3 and 4 (29..31,
+    # 39..41) hold none of it (IEC 61000-4-7 clause 5.5 grouping, from memory).
+    import json
+
+    from click.testing import CliRunner
+
+    from pqcheck.cli import main
+
+    fs, f0 = 10_000.0, 50.6
+    harm = {1: 10.0, 3: 0.8, 4: 0.02, 5: 1.5, 7: 0.6, 11: 0.3}
+    a35 = 0.25
+    x = _signal(fs, f0, harm, 1.0, extra=((3.5 * f0, a35),))
+    t = np.arange(x.size) / fs
+    path = tmp_path / "scope.csv"
+    np.savetxt(path, np.column_stack([t, x]), delimiter=",", fmt=["%.7f", "%.6g"],
+               header="time_s,i_a [A]", comments="")
+    out = CliRunner().invoke(main, ["analyze", str(path), "--format", "json",
+                                    "--nominal-frequency", "50"])
+    assert out.exit_code == 0, out.output
+    doc = json.loads(out.output)
+    ch = doc["channels"][0]
+    by = {h["order"]: h for h in ch["harmonics"]}
+    fund = 10.0
+    # 6 significant digits in the file: a quantisation floor near 1e-5 of full scale, far
+    # below the target of 5e-5 of the fundamental
+    expected = {
+        "rms": {3: 0.8, 4: 0.02, 5: 1.5, 6: 0.0, 7: 0.6, 11: 0.3, 2: 0.0},
+        "subgroup_rms": {3: 0.8, 4: 0.02, 5: 1.5, 6: 0.0, 7: 0.6},
+        "group_rms": {3: np.sqrt(0.8**2 + a35**2 / 2), 4: np.sqrt(0.02**2 + a35**2 / 2),
+                      5: 1.5, 6: 0.0, 2: 0.0},
+        "interharmonic_group_rms": {3: a35, 2: 0.0, 4: 0.0, 5: 0.0},
+    }
+    for key, values in expected.items():
+        _assert_orders({h: by[h][key] for h in values}, values, fund, key)
+    assert doc["fundamental_hz"] == pytest.approx(f0, abs=1e-3)

@@ -136,7 +136,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
                                width=width, initial_indent="Capture   ",
                                subsequent_indent=" " * 12, break_on_hyphens=False)
     for t in a.tables:
-        sel = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
+        sel = ", ".join(f"{k} = {numfmt.given(v)}" if isinstance(v, float) else f"{k} = {v}"
                         for k, v in t.selectors)
         name = getattr(t, "display_name", "") or t.table_id
         lines += textwrap.wrap(f"{name}  {t.standard}-{t.edition}".rstrip("-")

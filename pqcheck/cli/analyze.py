@@ -268,10 +268,10 @@ def render_flicker(fa) -> list:
             f"{numfmt.value(d['dc_percent'], 'percent', unit=''):>8}"
             f"{numfmt.value(c.change.dmax_percent, 'percent', unit=''):>8}"
             f"{numfmt.value(c.change.tmax_s, 'duration', unit=''):>8}  "
-            f"{len(c.meter.pst)} x {c.meter.interval_s:g} s")
+            f"{len(c.meter.pst)} x {numfmt.given(c.meter.interval_s)} s")
         if c.derived_from:
             out.append(f"  derived from {c.derived_from} through {c.impedance}, source "
-                       f"{c.source}, Un {c.un_v:g} V")
+                       f"{c.source}, Un {numfmt.given(c.un_v)} V")
         for f in c.findings:
             out.append(f"  [{f.severity}] {f.code}: {f.message}")
     for f in fa.findings:
@@ -413,8 +413,9 @@ def inspect_lines(cap) -> list:
     if s.get("declared_by"):
         where += f" (declared by {s['declared_by']!r})"
     out.append(f"Time base   {tb}{where}")
-    out.append(f"Sampling    {cap.fs_hz:g} Hz, {cap.n_samples} samples, {cap.duration_s:.4f} s"
-               + (f", first sample at {cap.t0_s:.9g} s" if cap.t0_s else ""))
+    out.append(f"Sampling    {numfmt.given(cap.fs_hz)} Hz, {cap.n_samples} samples, "
+               f"{numfmt.value(cap.duration_s, 'duration')}"
+               + (f", first sample at {numfmt.given(cap.t0_s, 's')}" if cap.t0_s else ""))
     if s.get("metadata"):
         for k, v in s["metadata"].items():
             out.append(f"  {k}: {v}")

@@ -77,9 +77,9 @@ def _rule_text(c) -> str:
     if c.period_s:
         days = c.period_s / 86400
         period = (" over 1 week" if days == 7 else " over 1 day" if days == 1
-                  else f" over {c.period_s:g} s")
+                  else f" over {numfmt.given(c.period_s)} s")
     who = f"{c.applies_to}: " if c.applies_to else ""
-    return (f"{who}{stat} of {_SERIES_TEXT[c.of]}{period} <= {c.multiplier:g} x limit"
+    return (f"{who}{stat} of {_SERIES_TEXT[c.of]}{period} <= {numfmt.given(c.multiplier)} x limit"
             f"{' ' + _mark(c.tag) if _mark(c.tag) else ''}")
 
 
@@ -130,12 +130,12 @@ def render_table(table: LimitTable) -> str:
             lines.append(f"  {s.option}: {s.help or s.name}{extra}")
             if s.ssc_divisor:
                 lines.append("    Rsce = Ssc / (k x rated apparent power), k: " + ", ".join(
-                    f"{c} {k:g}" for c, k in s.ssc_divisor))
+                    f"{c} {numfmt.given(k)}" for c, k in s.ssc_divisor))
     ev = t.evaluation
     lines.append("Evaluation" + (f" {_mark(ev.tag)}" if _mark(ev.tag) else ""))
     if ev.smoothing_tau_s:
         lines.append(f"  window values smoothed by a first-order filter, time constant "
-                     f"{ev.smoothing_tau_s:g} s")
+                     f"{numfmt.given(ev.smoothing_tau_s)} s")
     for c in ev.checks:
         lines.append("  " + _rule_text(c))
     for c in ev.short_capture:
@@ -143,16 +143,19 @@ def render_table(table: LimitTable) -> str:
     if ev.exception:
         x = ev.exception
         lines.append(f"  exception{_cond_suffix(t, x.conditions)}: smoothed values up to "
-                     f"{x.multiplier:g} x limit if above the max rule for less than "
-                     f"{x.max_fraction:.0%} of the observation and {x.max_duration_s:g} s, with "
-                     f"the mean below {x.mean_below:g} x limit {_mark(x.tag)}".rstrip())
+                     f"{numfmt.given(x.multiplier)} x limit if above the max rule for less than "
+                     f"{numfmt.given(100 * x.max_fraction, '%')} of the observation and "
+                     f"{numfmt.given(x.max_duration_s, 's')}, with "
+                     f"the mean below {numfmt.given(x.mean_below)} x limit {_mark(x.tag)}".rstrip())
     if ev.pohc:
         lines.append(f"  POHC allowance{_cond_suffix(t, ev.pohc.conditions)}: orders "
-                     f"{ev.pohc.orders} may average up to {ev.pohc.multiplier:g} x limit when "
+                     f"{ev.pohc.orders} may average up to {numfmt.given(ev.pohc.multiplier)} x "
+                     "limit when "
                      f"the measured POHC <= the POHC of the limits {_mark(ev.pohc.tag)}".rstrip())
     if ev.negligible:
-        lines.append(f"  harmonics below {ev.negligible.percent_of_input:g} % of the input "
-                     f"current or {ev.negligible.min_a * 1000:g} mA (whichever is greater) are "
+        lines.append(f"  harmonics below {numfmt.given(ev.negligible.percent_of_input, '%')} of "
+                     f"the input current or {numfmt.given(ev.negligible.min_a * 1000, 'mA')} "
+                     "(whichever is greater) are "
                      f"disregarded {_mark(ev.negligible.tag)}".rstrip())
     if ev.power:
         lines.append(f"  power for per-watt limits: {ev.power.statistic} of "
@@ -186,7 +189,7 @@ def _render_block(t: LimitTable, blk) -> list:
     if blk.derive is not None:
         d = blk.derive
         only = f", orders {d.orders}" if d.orders else ""
-        lines.append(f"  = {d.factor:g} x the limits of {d.source}{only}")
+        lines.append(f"  = {numfmt.given(d.factor)} x the limits of {d.source}{only}")
         return lines
     if blk.columns:
         if blk.parity != "all":
@@ -218,7 +221,7 @@ def _render_block(t: LimitTable, blk) -> list:
             lines += _grid(cols, [[_num(v) + _mark(tag0) for v in blk.values]])
     for rule in blk.even:
         tag = rule.tag or tag0
-        what = (f"{rule.factor:g} x the odd limit of the column that contains h"
+        what = (f"{numfmt.given(rule.factor)} x the odd limit of the column that contains h"
                 if rule.factor is not None else f"{_num(rule.limit)} {blk.unit}")
         lines.append(f"  even h {rule.orders}: {what}{' ' + _mark(tag) if _mark(tag) else ''}"
                      + (f" ({rule.note})" if rule.note else ""))

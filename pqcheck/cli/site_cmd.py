@@ -8,6 +8,7 @@ from pathlib import Path
 
 import click
 
+from .. import numfmt
 from ._common import (
     EXIT_OK,
     VERDICT_EXIT,
@@ -29,37 +30,30 @@ _SUMMATION_TEXT = {
 }
 
 
-def _f(x, digits: int = 4, unit: str = "") -> str:
-    if x is None or not math.isfinite(float(x)):
-        return "-"
-    s = f"{float(x):.{digits}g}"
-    return f"{s} {unit}".rstrip()
+_f = numfmt.number  # the one number formatter
 
 
 _BASIS_TEXT = {"current": "of IL", "voltage": "of nominal"}
 _RELATION = {"pass": "<=", "fail": ">", "inconclusive": "vs", "not applicable": "vs"}
 
 
-def check_line(c) -> str:
-    """One check as a line: ``FAIL  I5  9.288 % of IL  > limit 7.0 %  (Table 2)``.
+def check_line(c, decimals=None) -> str:
+    """One check as a line: ``FAIL  I5  9.288 % of IL  > limit 7.000 %  (Table 2)``, numbers
+    by :func:`pqcheck.numfmt.check_cells` (``decimals``: its
+    :func:`~pqcheck.numfmt.check_decimals` over the study's checks, as the site report).
 
     The relation printed is the one that holds: ``<=`` for a pass, ``>`` for a fail, ``vs``
     when the check is undecided.
     """
     basis = _BASIS_TEXT.get(c.applies_to, "")
-    value = f"{_f(c.measured, 4, '%')} {basis}" if c.measured is not None else "not measured"
+    measured, limit, _ = numfmt.check_cells(c, decimals)
+    value = f"{measured} % {basis}" if c.measured is not None else "not measured"
     rel = _RELATION.get(c.verdict, "vs")
     text = (f"  {c.verdict.upper():<13}{c.label:<8}{value:<22}{rel} limit "
-            f"{_limit(c.limit)} %  ({c.clause}{', verify' if c.verify else ''})")
+            f"{limit} %  ({c.clause}{', verify' if c.verify else ''})")
     if c.verdict == "inconclusive" and c.note:
         text += f"\n{'':15}{c.note}"
     return text
-
-
-def _limit(x) -> str:
-    """A limit with at least one decimal (``7.0``, ``0.75``, ``2.5``)."""
-    s = _f(x, 4)
-    return s if s == "-" or "." in s or "e" in s else f"{s}.0"
 
 
 def render_site_table(study) -> str:
@@ -107,6 +101,13 @@ def render_site_table(study) -> str:
     head = (f"{'order':>5}{'I [A]':>11}{'% of IL':>9}{'limit':>7}{'V [%]':>9}{'limit':>7}")
     out.append(head)
     out.append("-" * len(head))
+    dec = numfmt.check_decimals(study.checks)
+    i_dec = max((dec[numfmt.check_key(c)] for c in study.checks if c.applies_to == "current"),
+                default=3)
+    v_dec = max((dec[numfmt.check_key(c)] for c in study.checks if c.applies_to == "voltage"),
+                default=3)
+    amps = numfmt.decimals_for([max(study.current_a[:, h]) for h in study.orders[2:]],
+                               numfmt.RMS_DIGITS)
     for h in study.orders[2:]:
         ic = study.check(f"I{h}")
         vc = study.check(f"V{h}")
@@ -118,15 +119,18 @@ def render_site_table(study) -> str:
             continue
         i_a = max(study.current_a[:, h])
         mark = "  FAIL" if (ic and ic.verdict == "fail") or (vc and vc.verdict == "fail") else ""
-        out.append(f"{h:>5}{_f(i_a, 4):>11}{_f(i_pct, 3):>9}{_f(ic.limit if ic else None, 3):>7}"
-                   f"{_f(v_pct, 3):>9}{_f(vc.limit if vc else None, 3):>7}{mark}")
+        # columns of one count of decimals: the checks' (numfmt.check_decimals)
+        out.append(f"{h:>5}{numfmt.fixed(i_a, amps):>11}{numfmt.fixed(i_pct, i_dec):>9}"
+                   f"{numfmt.fixed(ic.limit if ic else None, i_dec):>7}"
+                   f"{numfmt.fixed(v_pct, v_dec):>9}"
+                   f"{numfmt.fixed(vc.limit if vc else None, v_dec):>7}{mark}")
     out.append("(orders under 0.05 % in both columns not shown)")
     out.append("")
     out.append("Checks")
     for c in study.checks:
         if c.quantity == "harmonic" and c.verdict == "pass":
             continue
-        out.append(check_line(c))
+        out.append(check_line(c, dec))
     n_pass = sum(1 for c in study.checks if c.quantity == "harmonic" and c.verdict == "pass")
     out.append(f"  PASS         {n_pass} individual-order checks")
     out.append(f"Verdict     {study.verdict.upper()}")
@@ -151,8 +155,8 @@ def render_site_table(study) -> str:
             elif hr.extra_units is None:
                 txt = f"more than {hr.searched_up_to} (no limit reached)"
             else:
-                txt = (f"{hr.extra_units} more; then {hr.binding} binds "
-                       f"({_f(hr.binding_value, 4, '%')} > {_f(hr.binding_limit, 4, '%')})")
+                value, limit = numfmt.value_and_limit(hr.binding_value, hr.binding_limit, "%")
+                txt = f"{hr.extra_units} more; then {hr.binding} binds ({value} > {limit})"
             if hr.extra_units_rating is not None:
                 txt += f"; transformer rating reached after {hr.extra_units_rating} more"
             out.append(f"  {hr.unit[:30]:<31}{txt}")

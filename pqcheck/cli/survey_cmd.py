@@ -106,7 +106,8 @@ def render_survey(sa) -> str:
              f"({numfmt.value(s.duration_s / 86400, 'days')}; time zone "
              f"{tz or 'not given, as written'})"]
     for lv in s.levels:
-        lines.append(f"           {lv.level} values: {lv.n} intervals of {lv.interval_s:g} s, "
+        lines.append(f"           {lv.level} values: {lv.n} intervals of "
+                     f"{numfmt.given(lv.interval_s, 's')}, "
                      f"{int(lv.flagged.sum())} flagged, {int((~lv.complete).sum())} incomplete")
     lines.append("Statistics (periods consecutive from the 10 min tick at or before the first "
                  "interval; one more ending at the survey's end)")
@@ -163,7 +164,7 @@ def inspect_survey(paths, opts):
     click.echo(f"Span        {format_time(s.start_s, tz)} to {format_time(s.end_s, tz)} "
                f"({numfmt.value(s.duration_s / 86400, 'days')})")
     for lv in s.levels:
-        click.echo(f"Level       {lv.level}: {lv.n} intervals of {lv.interval_s:g} s, "
+        click.echo(f"Level       {lv.level}: {lv.n} intervals of {numfmt.given(lv.interval_s)} s, "
                    f"{int(lv.flagged.sum())} flagged; channels "
                    f"{', '.join(f'{c.name} [{c.unit}]' for c in lv.channels)}; orders up to "
                    f"{lv.max_order}")

@@ -50,9 +50,15 @@ def available() -> bool:
             except ImportError:  # pragma: no cover - numba is a dependency
                 numba = None
             if numba is not None:
-                jit = numba.njit(nogil=True, cache=True, fastmath=_FAST)
-                _KERNELS["resample"] = jit(_resample_py)
-                _KERNELS["phase_sums"] = jit(_phase_sums_py)
+                try:  # machine code cached beside this file (or in the user's cache)
+                    jit = numba.njit(nogil=True, cache=True, fastmath=_FAST)
+                    kernels = {"resample": jit(_resample_py),
+                               "phase_sums": jit(_phase_sums_py)}
+                except RuntimeError:  # nowhere to cache it: compile in every process
+                    jit = numba.njit(nogil=True, fastmath=_FAST)
+                    kernels = {"resample": jit(_resample_py),
+                               "phase_sums": jit(_phase_sums_py)}
+                _KERNELS.update(kernels)
         _KERNELS["ok"] = "resample" in _KERNELS
     return _KERNELS["ok"]
 

@@ -10,7 +10,8 @@ Each figure is built in two steps, so tests can compare what is drawn with the r
    :class:`matplotlib.figure.Figure`; :func:`to_png` renders it.
 
 Pass and fail are never shown by colour alone: failing orders are filled black and marked
-with a cross and their order number, inconclusive ones are hatched and marked "?", and the
+with a cross and their order number, inconclusive ones are hatched and marked "\u25d0" (the
+report's undecided glyph), and the
 legend says so in words.
 """
 
@@ -355,6 +356,10 @@ def _style_axes(ax) -> None:
     ax.tick_params(length=2.5)
 
 
+_UNDECIDED = "\u25d0"
+"""The undecided glyph, as the report's tables write it (``style.VERDICT_MARK``)."""
+
+
 def plot_spectrum(data: SpectrumData) -> Figure:
     """Bar chart per panel: measured values, limits as black bars across each order, failing
     orders filled black and labelled with a cross and the order number.
@@ -408,7 +413,7 @@ def plot_spectrum(data: SpectrumData) -> Figure:
             ax.set_ylim(0, top * 1.3)
             # Mark each failing (inconclusive) order; when there are too many to label
             # legibly, mark them without numbers and say how many in the panel.
-            for mask, sym, weight in ((fail, "\u2715", "bold"), (inc, "?", "normal")):
+            for mask, sym, weight in ((fail, "\u2715", "bold"), (inc, _UNDECIDED, "normal")):
                 count = int(mask.sum())
                 numbered = count <= _MAX_LABELLED
                 for xi, yi in zip(x[mask], y[mask]):
@@ -419,7 +424,7 @@ def plot_spectrum(data: SpectrumData) -> Figure:
             if fail.sum() > _MAX_LABELLED:
                 summary.append(f"\u2715 {int(fail.sum())} orders exceed their limit")
             if inc.sum() > _MAX_LABELLED:
-                summary.append(f"? {int(inc.sum())} orders inconclusive")
+                summary.append(f"{_UNDECIDED} {int(inc.sum())} orders inconclusive")
             if summary:
                 ax.text(0.995, 0.97, "; ".join(summary), transform=ax.transAxes, ha="right",
                         va="top", fontsize=7, color=_INK,
@@ -444,10 +449,10 @@ def plot_spectrum(data: SpectrumData) -> Figure:
                                  label="\u2715 n  exceeds its limit (FAIL)"))
         if any_inc:
             handles.append(Patch(facecolor="white", edgecolor=_INK, hatch="////",
-                                 label="? n  inconclusive"))
-        axes[0].legend(handles=handles, loc="lower right", bbox_to_anchor=(1.0, 1.0),
-                       ncol=len(handles), handlelength=1.4, columnspacing=1.2,
-                       borderaxespad=0.2)
+                                 label=f"{_UNDECIDED} n  inconclusive"))
+        # the legend in a row of its own above the panels, never over a panel's title
+        fig.legend(handles=handles, loc="outside upper right", ncol=len(handles),
+                   handlelength=1.4, columnspacing=1.2)
         return fig
 
 

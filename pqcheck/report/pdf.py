@@ -184,7 +184,7 @@ class _Builder:
 
         for name in ("cell", "cell_r", "cell_head", "cell_head_r"):
             self.st[name + "_t"] = ParagraphStyle(name + "_t", parent=self.st[name],
-                                                  fontSize=7.0, leading=8.2)
+                                                  fontSize=6.9, leading=7.9)
         self.story = []
         self.results_json = results_json
         self.fig_count = 0
@@ -239,7 +239,7 @@ class _Builder:
         """
         out = []
         t_ = "_t" if dense else ""
-        pad = 0.9 if dense else 2.2
+        pad = 0.7 if dense else 2.2
         for i, row in enumerate(rows):
             cells = []
             for j, v in enumerate(row):
@@ -546,10 +546,11 @@ def _cover(b: _Builder) -> None:
         if ident:
             pairs.append(("Identification", ident))
         ratings = ", ".join(x for x in (
-            f"{eq.rated_power_w / 1e3:g} kW" if eq.rated_power_w else "",
-            f"{eq.rated_apparent_power_va / 1e3:g} kVA" if eq.rated_apparent_power_va else "",
-            f"{eq.rated_current_a:g} A per phase" if eq.rated_current_a else "",
-            f"{eq.rated_voltage_v:g} V" if eq.rated_voltage_v else "") if x)
+            f"{numfmt.given(eq.rated_power_w / 1e3)} kW" if eq.rated_power_w else "",
+            f"{numfmt.given(eq.rated_apparent_power_va / 1e3)} kVA"
+            if eq.rated_apparent_power_va else "",
+            f"{numfmt.given(eq.rated_current_a)} A per phase" if eq.rated_current_a else "",
+            f"{numfmt.given(eq.rated_voltage_v)} V" if eq.rated_voltage_v else "") if x)
         if ratings:
             pairs.append(("Ratings", ratings))
     site_text = meta.site or (plan.site.name if plan is not None else "")
@@ -682,9 +683,9 @@ def _pcc_basis(plan) -> str:
         return ""
     parts = []
     if isc:
-        parts.append(f"ISC = {isc:g} A")
+        parts.append(f"ISC = {numfmt.given(isc)} A")
     if il:
-        parts.append(f"IL = {il:g} A")
+        parts.append(f"IL = {numfmt.given(il)} A")
     if isc and il:
         parts.append(f"ISC/IL = {fmt(isc / il, 3)}")
     text_ = ", ".join(parts) + " (test plan, [site])"
@@ -864,11 +865,22 @@ def _decisive_tables(b: _Builder, sub) -> None:
     if not fails:
         b.add(b.p("None: no measured value exceeds its limit.", "body"))
     else:
-        _check_rows_table(b, fails[:_MAX_LISTED])
-        more = len(fails) - _MAX_LISTED
-        note = "Smallest margin (largest excess) first."
+        # one row per capture, table and item: its worst phase, the failing phases named
+        by_item: dict = {}
+        for t in fails:
+            r, a, c = t
+            by_item.setdefault((r.id, a.limits.table_id, c.label), []).append(t)
+        items = list(by_item.values())
+        _check_rows_table(b, [ts[0] for ts in items[:_MAX_LISTED]],
+                          phases=[", ".join(sorted({c.phase or c.channel or "all"
+                                                    for _, _, c in ts}))
+                                  for ts in items[:_MAX_LISTED]])
+        more = len(items) - _MAX_LISTED
+        note = (f"{len(fails)} failing checks in {len(items)} items; each row shows the "
+                "item's worst phase (smallest margin, the largest excess, first) and names "
+                "every phase that fails.")
         if more > 0:
-            note += f" {more} more are listed in the full tables (appendix A)."
+            note += f" {more} more items are listed in the full tables (appendix A)."
         b.add(b.p(note, "caption"))
     groups = undecided_groups(job)
     if groups:
@@ -918,19 +930,21 @@ def _common_notes(job) -> dict:
     return out
 
 
-def _check_rows_table(b: _Builder, triples) -> None:
-    """Checks of several captures and tables in one table, values with their basis."""
+def _check_rows_table(b: _Builder, triples, phases=None) -> None:
+    """Checks of several captures and tables in one table, values with their basis
+    (``phases``: the text of each row's phase column, when it names several)."""
     head = ["Capture", "Table", "Item", "Phase", "Measured", "Limit", "Basis", "Margin",
             "Verdict", "Limit value"]
     rows = [head]
     extra = []
-    for r, a, c in triples:
+    for k, (r, a, c) in enumerate(triples):
         rows.append([r.id, a.limits.table_id, _check_item(c),
+                     phases[k] if phases is not None else
                      _channel_label(r.result, c.channel) if c.channel else "all",
                      *_value_cells(b, r, c), _verdict_para(b, c.verdict),
                      _source_mark(c) or "verified"])
         extra += _verdict_style(8, len(rows) - 1, c.verdict)
-    b.add(b.table(rows, [0.12, 0.12, 0.07, 0.09, 0.09, 0.08, 0.1, 0.09, 0.12, 0.12],
+    b.add(b.table(rows, [0.11, 0.12, 0.07, 0.09, 0.1, 0.08, 0.1, 0.09, 0.12, 0.12],
                   right=(4, 5, 7), extra_style=extra))
 
 
@@ -981,7 +995,11 @@ def _assessment_block(b: _Builder, run, a) -> None:
     res = run.result
     lim = a.limits
     b.h3(f"Against {_table_name(lim)}: {lim.title}")
-    sel = ", ".join(f"{k} = {numfmt.given(v)}" if isinstance(v, float) else f"{k} = {v}"
+    given = dict(lim.selectors)
+    # ISC/IL worked out from isc and il is a ratio of the two, not a value anyone typed
+    sel = ", ".join(f"{k} = {numfmt.value(v, 'ratio')} (isc / il)"
+                    if k == "isc_il" and "isc" in given and "il" in given
+                    else f"{k} = {numfmt.given(v)}" if isinstance(v, float) else f"{k} = {v}"
                     for k, v in lim.selectors) or "none"
     pairs = [("Verdict", _verdict_para(b, a.verdict)),
              ("Checks", _counts_text(a.checks)),
@@ -1003,32 +1021,7 @@ def _assessment_block(b: _Builder, run, a) -> None:
     checks = list(a.checks)
     totals = [c for c in checks if c.quantity != "harmonic" and not _is_gate(c)]
     if totals:
-        stats = {c.statistic for c in totals}
-        one_stat = len(stats) == 1
-        head = ["Quantity", "Phase"] + ([] if one_stat else ["Statistic"]) + [
-            "Measured", "Limit", "Basis", "Margin", "Verdict", "Clause", "Limit value"]
-        rows = [head]
-        extra = []
-        for c in sorted(totals, key=lambda c: (c.quantity, _channel_sort_key(res, c.channel)
-                                                if c.channel else (0, ""))):
-            rows.append([c.label, _channel_label(res, c.channel) if c.channel else "all"]
-                        + ([] if one_stat else [c.statistic])
-                        + [*_value_cells(b, run, c),
-                           _verdict_para(b, c.verdict), c.clause or "\u2013",
-                           _source_mark(c) or "verified"])
-            extra += _verdict_style(len(head) - 3, len(rows) - 1, c.verdict)
-        cap = f"{run.id}: totals against {lim.table_id}"
-        cap += f" ({next(iter(stats))})." if one_stat else "."
-        if one_stat:
-            widths = [0.08, 0.07, 0.08, 0.07, 0.13, 0.08, 0.16, 0.2, 0.13]
-            right = (2, 3, 5)
-        else:
-            widths = [0.07, 0.07, 0.14, 0.08, 0.07, 0.11, 0.09, 0.16, 0.08, 0.13]
-            right = (3, 4, 6)
-        table = b.table(rows, widths, right=right, extra_style=extra)
-        b.tcaption(cap, table if len(rows) <= 25 else None)
-        if len(rows) > 25:
-            b.add(table)
+        _totals_table(b, run, lim, totals)
 
     harm = [c for c in checks if c.quantity == "harmonic" and c.order is not None]
     groups: dict = {}
@@ -1049,8 +1042,9 @@ def _assessment_block(b: _Builder, run, a) -> None:
             how = "pass" if verdicts == {"pass"} else "are undecided (see the causes above)" \
                 if verdicts == {"inconclusive"} else "pass or are undecided"
             b.add(b.p(f"{run.id}: all {len({c.order for c in group})} individual voltage "
-                      f"harmonics {how}, each at least {numfmt.margin(min(margins), signed=False)} inside its "
-                      f"limit on every phase ({statistic}).", "body"))
+                      f"harmonics {how}, each at least "
+                      f"{numfmt.margin(min(margins), signed=False)} inside its limit on every "
+                      f"phase ({statistic}).", "body"))
             continue
         data = figures.spectrum_from_checks(
             res, group, title=f"{run.id}: {what} harmonics against {lim.table_id}",
@@ -1060,9 +1054,9 @@ def _assessment_block(b: _Builder, run, a) -> None:
                      f"{run.id}: {what} harmonics per phase ({statistic}) against "
                      f"{lim.table_id} limits (black bars across each order) in {unit_label}. "
                      "Orders "
-                     "over their limit are filled black and marked \u2715 with their order "
-                     "number; undecided orders are hatched and marked "
-                     f"{VERDICT_MARK['inconclusive']}.")
+                     "over their limit are filled black and marked \u2715, undecided orders "
+                     f"hatched and marked {VERDICT_MARK['inconclusive']}; each mark carries its "
+                     "order number when a panel has few of them, else the panel counts them.")
         _harmonic_table(b, run, lim, group, what, statistic, unit, full=False)
     gate_codes = {f"inconclusive: {c.quantity}" for c in checks if _is_gate(c)}
     notes = _group_notes([c for c in checks if not _is_gate(c)], skip=gate_codes)
@@ -1072,6 +1066,55 @@ def _assessment_block(b: _Builder, run, a) -> None:
             shown = ", ".join(items[:14]) + (", \u2026" if len(items) > 14 else "")
             b.add(b.m(f"\u2022 {esc(note)} <font color='#5b6670'>({esc(shown)})</font>",
                       "small"))
+
+
+_MARK = {"fail": " \u2717", "inconclusive": " " + VERDICT_MARK["inconclusive"]}
+
+
+def _totals_table(b: _Builder, run, lim, totals) -> None:
+    """The totals (THD, TDD, DC, ...) of one table: one row per quantity and limit, the
+    phases side by side (value over margin), as the harmonic tables show orders."""
+    phases = sorted({c.phase or "" for c in totals}, key=lambda p: _PHASE_ORDER.get(p, 9))
+    keyed: dict = {}
+    for c in sorted(totals, key=lambda c: (c.quantity, c.applies_to)):
+        key = (c.label, c.statistic, c.limit, c.basis, c.clause, getattr(c, "verify", False))
+        keyed.setdefault(key, {})[c.phase or ""] = c
+    stats = {c.statistic for c in totals}
+    one_stat = len(stats) == 1
+    rank = {"fail": 3, "inconclusive": 2, "pass": 1, "not applicable": 0}
+    head = ["Quantity"] + ([] if one_stat else ["Statistic"]) + ["Limit", "Basis"]
+    head += [f"phase {p}" if p else "value" for p in phases]
+    head += ["Verdict", "Clause", "Limit value"]
+    rows, extra = [head], []
+    for (label, statistic, _limit, _basis, clause, _v), cells in keyed.items():
+        first = next(iter(cells.values()))
+        _, limit_text, _ = b.cells(run, first)
+        row = [label] + ([] if one_stat else [statistic]) + [limit_text, _unit_text(first)]
+        for p in phases:
+            c = cells.get(p)
+            if c is None:
+                row.append("")
+                continue
+            measured, _, margin = b.cells(run, c)
+            row.append(b.m(f"{esc(measured + _MARK.get(c.verdict, ''))}<br/>"
+                           f"<font size='6.6' color='#5b6670'>{esc(margin)}</font>", "cell_r"))
+        worst = max((c.verdict for c in cells.values()), key=lambda v: rank.get(v, 2))
+        row += [_verdict_para(b, worst), clause or "\u2013", _source_mark(first) or "verified"]
+        rows.append(row)
+        extra += _verdict_style(len(head) - 3, len(rows) - 1, worst)
+    n = len(phases)
+    fixed = [0.09] + ([] if one_stat else [0.12]) + [0.07, 0.15]
+    tail = [0.16, 0.13, 0.13]
+    room = 1.0 - sum(fixed) - sum(tail)
+    widths = fixed + [room / n] * n + tail
+    first_value = len(fixed)
+    cap = (f"{run.id}: totals against {lim.table_id}"
+           + (f" ({next(iter(stats))})" if one_stat else "")
+           + ". Each phase: the value of its current or voltage channel (\u2717 over the "
+           + f"limit, {VERDICT_MARK['inconclusive']} undecided) over its margin.")
+    table = b.table(rows, widths, right=tuple(range(first_value - 2, first_value - 1))
+                    + tuple(range(first_value, first_value + n)), extra_style=extra)
+    b.tcaption(cap, table)
 
 
 _NUMBER = re.compile(r"[-+]?\d+(?:\.\d+)?(?:e[-+]?\d+)?")
@@ -1182,6 +1225,10 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
                  or r[4] < _BODY_MARGIN_PERCENT]
     rest = [r for r in all_rows if r not in shown]
     basis = _unit_text(group[0])
+    fund = ""
+    if basis == "% of fundamental":  # "fundamental" is wider than a value column
+        fund = "U1" if what == "voltage" else "I1" if what == "current" else "h1"
+        basis = f"% of {fund}"
     dec = b.decimals(run)
     decimals = max(dec.get(numfmt.check_key(c), 3) for c in group)
     head = ["Order", f"Limit [{basis}]"]
@@ -1209,9 +1256,12 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
     widths = ([0.06, 0.08] + [room / (2 * n) * 1.05, room / (2 * n) * 0.95] * n
               + [0.16, 0.13])
     mult = {c.multiplier for c in group}
-    times = (f" Limits shown are {mult.pop():g} \u00d7 the table's values, as its evaluation "
-             "rule allows for this statistic." if len(mult) == 1 and 1.0 not in mult else "")
+    times = (f" Limits shown are {numfmt.given(mult.pop())} \u00d7 the table's values, as its "
+             "evaluation rule allows for this statistic."
+             if len(mult) == 1 and 1.0 not in mult else "")
     scope = "every order assessed" if full or not rest else "the orders that decide"
+    if fund:
+        times = f" % of {fund}: in % of the channel's fundamental.{times}"
     b.tcaption(f"{run.id}: individual {what} harmonics against {lim.table_id} "
                f"({statistic}), {scope}.{times} \u2717 over the limit, "
                f"{VERDICT_MARK['inconclusive']} undecided, \u2020 limit value to verify "
@@ -1380,6 +1430,8 @@ def _per_capture(b: _Builder) -> None:
                              f"{run.id}: {quantity} harmonics per phase in % of the "
                              "fundamental (no limit table applied).")
             _analysis_tables(b, run, harm)
+        b.h3("Channel values and power quantities")
+        _channels_and_power(b, run)
         b.figure(figures.plot_waveforms(figures.waveform_data(run.capture, run.result)),
                  f"{run.id}: three cycles of the recorded voltages and currents, from the "
                  "start of the first valid analysis window (raw samples).",
@@ -1395,8 +1447,6 @@ def _per_capture(b: _Builder) -> None:
             b.add(b.p(f"{run.id}: {n_valid} valid analysis windows: too few for a chart of "
                       "THD over time; the per-window values are in the attached results "
                       "data.", "small"))
-        b.h3("Channel values and power quantities")
-        _channels_and_power(b, run)
         if getattr(run.result, "flicker", None) is not None:
             _flicker_section(b, run)
 
@@ -1459,7 +1509,6 @@ def _appendix(b: _Builder) -> None:
         return
     if not any(_harmonic_groups(a) for r in job.runs for a in r.tables):
         return
-    b.add(PageBreak())
     b.h1("Appendix A  Full harmonic tables")
     b.add(b.p("Every assessed order of every capture and limit table. The body of the report "
               "lists only the orders that decide (failing, undecided, or within 50 % of their "
@@ -1508,7 +1557,6 @@ def _test_setup(b: _Builder) -> None:
     tr = getattr(site, "transformer", None)
     pairs = [(k, v) for k, v in (
         ("Site address", site.address),
-        ("Point of common coupling", site.pcc),
         ("Transformer", "" if tr is None else ", ".join(x for x in (
             tr.description,
             f"{fmt(tr.rating_va / 1e3, 4)} kVA" if tr.rating_va else "",
@@ -1516,8 +1564,6 @@ def _test_setup(b: _Builder) -> None:
             if tr.primary_v and tr.secondary_v else "",
             f"{fmt(tr.impedance_percent, 3)} % impedance" if tr.impedance_percent else "")
             if x)),
-        ("ISC and IL", _pcc_basis(plan)),
-        ("Site notes", site.notes),
         ("Location of the measurement", cond.location),
         ("Supply", cond.supply),
         ("Ambient", f"{fmt(cond.ambient_c, 3)} \u00b0C" if cond.ambient_c is not None else ""),
@@ -1526,6 +1572,9 @@ def _test_setup(b: _Builder) -> None:
     if pairs:
         b.h3("Test set-up, as the test plan records it")
         b.add(b.kv(pairs, key_width=0.26))
+        if site.pcc or _pcc_basis(plan):
+            b.add(b.p("The point of common coupling, ISC and IL (with the site's notes on them) "
+                      "stand on page 1.", "caption"))
 
 
 def _method(b: _Builder) -> None:
@@ -1702,7 +1751,9 @@ def _safety(b: _Builder) -> None:
     b.h3("Codes, the utility and the responsible engineer")
     b.add(b.p(text.DEFERENCE, "body"))
     b.h3("Not a certification")
-    b.add(b.p(text.NOT_CERTIFICATION, "body"))
+    b.add(b.p("This report is an engineering record, not a certification, a type approval or "
+              "a declaration of conformity; page 1 states what its verdict means and when it "
+              "becomes part of a compliance decision.", "body"))
     notes = []
     for lim in b.job.limit_tables():
         for n in lim.notes:

@@ -212,7 +212,8 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     for lvl, p in sa.availability:
         d = p.to_dict(tz)
         rows.append([lvl, d["start"], d["end"], d["expected"], d["present"], d["usable"],
-                     d["flagged"], d["incomplete"], d["missing"], numfmt.fixed(100 * p.coverage, 1, "%")])
+                     d["flagged"], d["incomplete"], d["missing"],
+                     numfmt.fixed(100 * p.coverage, 1, "%")])
     b.tcaption("Intervals per 24 h period from the survey's origin, per aggregation level.")
     b.add(b.table(rows, [0.07, 0.17, 0.17, 0.08, 0.08, 0.08, 0.08, 0.09, 0.08, 0.10],
                   right=(3, 4, 5, 6, 7, 8, 9)))
