@@ -524,13 +524,15 @@ class _TableAssessor:
                 return measured
             self._power = declared
             self.notes.append(f"{self.t.table_id}: per-watt limits use the active power given, "
-                              f"{self._power:.4g} W" + (
-                                  f" (measured {measured:.4g} W)." if measured is not None
+                              f"{numfmt.given(self._power, 'W')}" + (
+                                  f" (measured {numfmt.number(measured, 4, 'W')})."
+                                  if measured is not None
                                   else "; it could not be compared with a measured value."))
             if measured is None:
                 self.gates.append(gates.Gate(
                     "declared-power-unverified", "deviation",
-                    f"{self.t.table_id}: the declared active power ({declared:.4g} W) could "
+                    f"{self.t.table_id}: the declared active power "
+                    f"({numfmt.given(declared, 'W')}) could "
                     "not be compared with a measured one (no voltage channel).",
                     value=declared, unit="W"))
             return self._power
@@ -828,7 +830,8 @@ class _TableAssessor:
                 if rule.multiplier != 1:
                     notes.append(f"{rule.multiplier:g} x {it.limit * s.scale:.4g} {it.unit}")
                 if it.times == "power_factor" and s.values is not None:
-                    notes.append(f"{it.limit:g} {it.unit} x power factor {s.scale:.4f}")
+                    notes.append(f"{numfmt.given(it.limit)} {it.unit} x power factor "
+                                 f"{numfmt.value(s.scale, 'power_factor')}")
                 verify = it.verify or rule.tag in ("P", "M")
                 if s.values is None:
                     out.append(self._check(it, ch, stat_text, None, limit, "inconclusive",

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import numfmt
 from .findings import Finding
 
 __all__ = [
@@ -209,7 +210,8 @@ def frequency_findings(freq_hz, nominal_hz, *, tracked: bool, reference: str):
             Finding(
                 "wrong-nominal-frequency",
                 "error",
-                f"measured fundamental {mean:.3f} Hz is nearer {other:g} Hz than the nominal "
+                f"measured fundamental {numfmt.value(mean, 'frequency')} is nearer {other:g} Hz "
+                "than the nominal "
                 f"{nominal_hz:g} Hz given, so the windows do not hold the cycles IEC 61000-4-7 "
                 f"prescribes for a {other:g} Hz system. Give `nominal_hz` "
                 f"{other:g} (or leave it out to detect it) and check the limits chosen.",
@@ -222,7 +224,8 @@ def frequency_findings(freq_hz, nominal_hz, *, tracked: bool, reference: str):
             Finding(
                 "off-nominal-frequency",
                 "warning",
-                f"measured fundamental {mean:.3f} Hz is more than 1 % from the nominal "
+                f"measured fundamental {numfmt.value(mean, 'frequency')} is more than 1 % from "
+                "the nominal "
                 f"{nominal_hz:g} Hz; windows follow the measured frequency. Check the "
                 "`nominal_hz` setting and the supply.",
                 value=mean,
@@ -235,8 +238,9 @@ def frequency_findings(freq_hz, nominal_hz, *, tracked: bool, reference: str):
             Finding(
                 "unstable-frequency",
                 "warning",
-                f"the fundamental varies by {spread:.3f} Hz over the capture "
-                f"({f.min():.3f} to {f.max():.3f} Hz).",
+                f"the fundamental varies by {numfmt.value(spread, 'frequency')} over the "
+                f"capture ({numfmt.value(f.min(), 'frequency', unit='')} to "
+                f"{numfmt.value(f.max(), 'frequency')}).",
                 value=spread,
                 unit="Hz",
             )

@@ -393,3 +393,19 @@ def test_cli_limits_validate(tmp_path):
     assert res.output.startswith(f"{bad}:{line}: limits.rows.isc_il: gap in isc_il bands")
     res = run("limits", "validate", str(tmp_path / "missing.toml"))
     assert res.exit_code == 2 and "no such file" in res.output
+
+
+def test_cli_limits_validate_names_a_plan_or_a_site_file(tmp_path):
+    # pqcheck's other TOML documents get the command that reads them, not 17 field errors
+    plan = write(tmp_path, '[site]\nname = "x"\n[[limits]]\ntable = "ieee519-2022"\n'
+                           '[[captures]]\nid = "a"\nfile = "a.csv"\n', "plan.toml")
+    res = run("limits", "validate", str(plan))
+    assert res.exit_code == 2
+    assert f"{plan}: this is a test plan, not a limit table; it is read by `pqcheck " \
+           f"report {plan} -o report.pdf`" in res.output
+    site = write(tmp_path, '[supply]\nnominal_voltage_v = 11000\n[[units]]\nname = "u"\n',
+                 "site.toml")
+    res = run("limits", "validate", str(site))
+    assert res.exit_code == 2
+    assert f"this is a site file, not a limit table; it is read by `pqcheck site {site}`" \
+        in res.output

@@ -242,6 +242,46 @@ def test_a_check_reads_the_same_in_terminal_markdown_and_pdf(six_pulse_run, monk
     assert found >= 5
 
 
+def test_channel_values_read_the_same_in_analyze_and_the_pdf(six_pulse_run, monkeypatch):
+    import io
+
+    import matplotlib.pyplot as plt
+
+    from pqcheck.cli.analyze import render_table
+    from pqcheck.report import figures
+    from pqcheck.report.job import CaptureRun, ReportJob, ReportMeta
+    from pqcheck.report.pdf import render_pdf
+
+    pypdf = pytest.importorskip("pypdf")
+    cap, result, _ = six_pulse_run
+    buf = io.BytesIO()
+    fig = plt.figure(figsize=(0.1, 0.1))
+    fig.savefig(buf, format="png", dpi=10)
+    plt.close(fig)
+    monkeypatch.setattr(figures, "to_png", lambda fig, dpi=200: buf.getvalue())
+    # analysis only: the report lists the channel table without limits
+    pdf = render_pdf(ReportJob(ReportMeta(report_id="N-2"), (CaptureRun("c", cap, result, ()),)),
+                     results_json=b"{}")
+    pdf_text = re.sub(r"\s+", " ", " ".join(p.extract_text() or "" for p in
+                                             pypdf.PdfReader(io.BytesIO(pdf)).pages))
+    term = render_table(result).splitlines()
+    cols = numfmt.channel_columns(result.channels)
+    for c, (rms, fund) in zip(result.channels, cols):
+        thd = numfmt.value(c.thd_percent, "distortion")
+        crest = numfmt.value(c.crest_factor, "crest_factor")
+        # PDF row: channel, phase, rms, fundamental, THD, ...
+        assert f"{c.name} {c.phase} {rms} {fund} {thd} " in pdf_text, (c.name, rms, fund, thd)
+        assert f" {crest} " in pdf_text
+        line = next(ln for ln in term if ln.startswith(c.name + " "))
+        # terminal row: channel, role, rms, fundamental, THD % (the head names the unit), ...
+        assert re.search(rf"\s{re.escape(rms)}\s+{re.escape(fund)}\s+"
+                         rf"{re.escape(thd.removesuffix(' %'))}\s.*\s{re.escape(crest)}$",
+                         line), line
+    # one count of decimals per column
+    for j in (0, 1):
+        assert len({len(r[j].split()[0].split(".")[1]) for r in cols}) == 1
+
+
 def test_decimals_of_a_check_do_not_depend_on_its_neighbours(six_pulse_run):
     """The summary shows a few rows, --all-checks every row: a check's line is the same."""
     from pqcheck.cli._render import render_assessment

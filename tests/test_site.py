@@ -1161,6 +1161,11 @@ def test_site_pdf_traceability(tmp_path):
     assert "Sign-off" in text and "Prepared by" in text and "Approved by" in text
     assert "qualified" in text.lower() and "utility's own study governs" in text
     assert "How the verdict depends on the summation method" in text
+    pikepdf = pytest.importorskip("pikepdf")
+    with pikepdf.open(pdf) as doc:  # archival like every pqcheck PDF (ISO 19005-3, level B)
+        meta = doc.open_metadata()
+        assert meta.get("pdfaid:part") == "3" and meta.get("pdfaid:conformance") == "B"
+        assert "/OutputIntents" in doc.Root
 
 
 def test_site_chart_marks_the_failing_order_above_an_uncovered_plot(tmp_path):
