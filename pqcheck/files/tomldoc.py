@@ -239,10 +239,10 @@ def unknown_key(key, allowed) -> str:
     unit the document uses) and the allowed keys."""
     allowed = list(allowed)
     hint = ""
-    stem, _, suffix = str(key).rpartition("_")
+    stem = str(key).rpartition("_")[0]
     same_stem = [a for a in allowed if stem and a.rpartition("_")[0] == stem
                  and a.rpartition("_")[2] in UNIT_SUFFIXES]
-    if same_stem and suffix not in UNIT_SUFFIXES.get(same_stem[0].rpartition("_")[2], ()):
+    if same_stem:  # the same name with another unit: say which unit the document takes
         unit = UNIT_SUFFIXES[same_stem[0].rpartition("_")[2]]
         hint = (f"; did you mean {same_stem[0]!r}? (the unit is part of the name: give the "
                 f"value in {unit})")
