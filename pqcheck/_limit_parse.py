@@ -56,6 +56,7 @@ from ._limit_model import (
 from .errors import LimitTableError
 from .files.toml import KeyLines, TooDeep, syntax_error_line, tomllib
 from .files.toml import loads as toml_loads
+from .files.tomldoc import NONNEG, NUM, POS, STR, Field, check_value, missing_key, unknown_key
 
 __all__ = ["parse_table", "block_keys"]
 
@@ -112,53 +113,48 @@ class _Ctx:
 
     # -- typed getters -----------------------------------------------------------------------
 
-    def keys(self, d: dict, allowed, where, what: str) -> None:
+    def keys(self, d: dict, allowed, where, what: str = "") -> None:
+        """Unknown keys of ``d`` (``what``: the section, unused in the message: the field
+        names it)."""
         for k in d:
             if k not in allowed:
-                hint = difflib.get_close_matches(k, list(allowed), n=1)
-                also = f"; did you mean {hint[0]!r}?" if hint else ""
-                self.error(f"unknown field {k!r} in {what}{also} (allowed: "
-                           f"{', '.join(sorted(allowed))})", where + (k,))
+                self.error(unknown_key(k, allowed), where + (k,))
+
+    def missing(self, key, where) -> None:
+        self.error(missing_key(key, Field(STR, required="")), where,
+                   field=".".join([k for k in where if isinstance(k, str)] + [key]))
 
     def string(self, d, key, where, *, required=False, default="", choices=None):
         v = d.get(key, _MISSING)
         if v is _MISSING:
             if required:
-                self.error(f"missing field {key!r}", where, field=".".join(
-                    [k for k in where if isinstance(k, str)] + [key]))
+                self.missing(key, where)
             return default
-        if not isinstance(v, str):
-            self.error(f"must be a string, got {v!r}", where + (key,))
+        val, problem = check_value(v, Field(STR, choices=tuple(choices or ())))
+        if problem is not None:
+            self.error(problem, where + (key,))
             return default
-        if choices is not None and v not in choices:
-            self.error(f"{v!r} is not one of: {', '.join(choices)}", where + (key,))
-            return default
-        return v
+        return val
 
     def number(self, d, key, where, *, required=False, default=None, positive=False,
                nonneg=False, what="value"):
         v = d.get(key, _MISSING)
         if v is _MISSING:
             if required:
-                self.error(f"missing field {key!r}", where, field=".".join(
-                    [k for k in where if isinstance(k, str)] + [key]))
+                self.missing(key, where)
             return default
+        # the key names the value: no lead word in the message
         return self.check_number(v, where + (key,), positive=positive, nonneg=nonneg,
-                                 what=what, default=default)
+                                 what="", default=default)
 
-    def check_number(self, v, where, *, positive=False, nonneg=False, what="value",
+    def check_number(self, v, where, *, positive=False, nonneg=False, what="",
                      default=None):
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or math.isnan(v):
-            self.error(f"{what} must be a number, got {v!r}", where)
+        kind = POS if positive else (NONNEG if nonneg else NUM)
+        val, problem = check_value(v, Field(kind), what=what)
+        if problem is not None:
+            self.error(problem, where)
             return default
-        if positive and not (0 < v < math.inf):
-            sign = "negative" if v < 0 else ("zero" if v == 0 else "infinite")
-            self.error(f"{what} {v!r} is {sign}; it must be a finite positive number", where)
-            return default
-        if nonneg and v < 0:
-            self.error(f"{what} {v!r} is negative; it must be zero or positive", where)
-            return default
-        return float(v)
+        return val
 
     def tag(self, d, where):
         return self.string(d, "tag", where, choices=TAGS)
@@ -779,7 +775,7 @@ def _check_total_basis(ctx, q, basis, where):
                   "basis", where)
 
 
-def _limit_value(ctx, v, where, orders, *, what="limit"):
+def _limit_value(ctx, v, where, orders, *, what=""):
     """Check one limit (number or formula) at every order it applies to."""
     if isinstance(v, str):
         try:
@@ -901,8 +897,7 @@ def _even(ctx, d, where, columns, parity) -> tuple:
             continue
         factor = limit = None
         if has_f:
-            factor = ctx.check_number(r["factor"], wi + ("factor",), positive=True,
-                                      what="factor")
+            factor = ctx.check_number(r["factor"], wi + ("factor",), positive=True)
             for h in orders:
                 holders = [c for c, rng in ranges if h in rng]
                 if not holders:

@@ -40,7 +40,7 @@ from .errors import InputError
 from .export import SCHEMA_VERSION  # version of the documents (1: before run_spec)
 
 __all__ = ["SCHEMA_VERSION", "KINDS", "tool_block", "analysis_document", "check_document",
-           "batch_document", "site_document", "survey_document", "survey_report_document",
+           "batch_document", "report_document", "site_document", "survey_document", "survey_report_document",
            "read_document", "run_spec_of", "study_spec_of", "batch_row_spec", "spec_json",
            "results_schema", "schema_for", "shipped_schema", "dumps"]
 
@@ -90,6 +90,61 @@ def batch_document(summary: dict, run_info: dict, captures: list, spec) -> dict:
     return clean({"schema_version": SCHEMA_VERSION, "tool": tool_block("batch"),
                   "run": run_info, "summary": summary, "captures": captures,
                   "run_spec": _spec_dict(spec)})
+
+
+def report_document(job) -> dict:
+    """The ``report`` document of a report job (:class:`~pqcheck.report.job.ReportJob`): the
+    report's JSON file and the PDF's ``results.json`` attachment (the same bytes).
+
+    Keys: ``tool``, ``report`` (id, title, equipment, site, operator, time of analysis, the
+    command line that made it),
+    ``plan`` (path and SHA-256, or null), ``verdict`` (overall), ``limit_tables`` (id, title,
+    standard, edition, source, SHA-256) and ``captures``: per capture its ``id``,
+    ``load_point``, ``load_percent``, ``verdict``, ``analysis`` (:func:`pqcheck.export.
+    analysis_to_dict`) and ``assessments`` (:meth:`pqcheck.assess.Assessment.to_dict`: each
+    with ``verdict``, ``counts``, ``checks``, ``tables`` and ``notes``).
+    """
+    from datetime import timezone
+
+    from .export import analysis_to_dict, clean
+
+    meta = job.meta
+    plan = job.plan
+    return clean({
+        "schema_version": SCHEMA_VERSION,
+        "tool": tool_block("report"),
+        "report": {
+            "id": meta.report_id,
+            "title": meta.title,
+            "equipment": meta.equipment,
+            "site": meta.site,
+            "operator": meta.operator,
+            "time_of_analysis_utc": meta.created_utc.astimezone(timezone.utc).isoformat(),
+            "command": meta.command,  # how to re-run it: pqcheck verify reads the options
+        },
+        "plan": None if plan is None else {
+            "path": str(plan.path), "sha256": plan.sha256, "title": plan.title,
+            "excluded": [{"id": c.id, "file": str(c.path), "reason": c.exclude}
+                         for c in plan.excluded]},
+        "verdict": job.verdict,
+        "limit_tables": [
+            {"id": t.table_id, "title": t.title, "standard": t.standard, "edition": t.edition,
+             "source": t.source, "sha256": t.sha256}
+            for t in job.limit_tables()
+        ],
+        "captures": [
+            {
+                "id": r.id,
+                "load_point": r.load_point,
+                "load_percent": r.load_percent,
+                "verdict": r.verdict,
+                "analysis": analysis_to_dict(r.result),
+                "assessments": [a.to_dict() for a in r.assessments],
+                "run_spec": None if r.spec is None else r.spec.to_dict(),
+            }
+            for r in job.runs
+        ],
+    })
 
 
 def _num10(x, digits=10):

@@ -420,6 +420,7 @@ def test_cli_check_inconclusive_and_usage_errors(tmp_path):
     n = int(re.search(r"Inconclusive \((\d+) checks\)", res.output).group(1))
     assert n == sum(int(re.search(r": (\d+) checks", c).group(1)) for c in causes)
     assert "; gate" not in res.output  # a gate is not a statistic compared
+    assert "ieee519-2022  IEEE Std 519-2022" in res.output  # cited as IEEE cites it
     res = run("check", path, "--limits", "ieee519-2022", "--voltage-level", 480, "--isc", 3500)
     assert res.exit_code == 2
     assert "--il: table ieee519-2022 (Tables 2 to 4) selects its row by ISC/IL" in res.output

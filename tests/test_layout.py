@@ -4,7 +4,9 @@
 - no library module holds a command-line ``--flag``: errors name fields, the CLI maps them
   (:mod:`pqcheck.cli._fields`);
 - the package's modules and folders import each other without a cycle (counting imports
-  inside functions too; a folder counts as one box).
+  inside functions too; a folder counts as one box);
+- only :mod:`pqcheck.results` writes the envelope of a results document (``schema_version``,
+  the ``tool`` block).
 """
 
 from __future__ import annotations
@@ -69,6 +71,24 @@ def test_no_library_module_holds_a_command_line_flag():
         for node in ast.walk(tree):
             if isinstance(node, ast.Constant) and isinstance(node.value, str):
                 bad += [(name, node.lineno, f) for f in _FLAG.findall(node.value)]
+    assert not bad
+
+
+def test_only_the_results_module_writes_a_results_document():
+    # every document's envelope (schema_version, the tool block) is made in pqcheck/results.py,
+    # so a new document cannot bypass the one schema: no other module (CLI included) writes a
+    # dict key "schema_version" or calls tool_block
+    bad = []
+    for name, path, _ in _modules():
+        if name == "pqcheck.results":
+            continue
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Dict):
+                bad += [(name, k.lineno) for k in node.keys if isinstance(k, ast.Constant)
+                        and k.value == "schema_version"]
+            if isinstance(node, ast.Call) and getattr(node.func, "id", getattr(
+                    node.func, "attr", None)) == "tool_block":
+                bad.append((name, node.lineno))
     assert not bad
 
 

@@ -103,16 +103,16 @@ def test_syntax_error_at_end_of_document(tmp_path):
 
 @pytest.mark.parametrize("old, new, marker, field, message", [
     ('edition = "1"', 'edition = "1"\nrevison = "A"', "revison", "revison",
-     r"unknown field 'revison' in the top level \(allowed: "),
+     r"unknown field 'revison' \(allowed: clause, edition, "),
     ('parity = "odd"', 'parity = "odd"\ncolums = ["2"]', "colums", "limits.colums",
      r"unknown field 'colums'; did you mean 'columns'\?"),
     ('values = [4.0, 2.0, 5.0]', 'values = [4.0, 2.0, 5.0]\nnotes = "x"', "notes =",
      "limits.rows.notes", r"unknown field 'notes'; did you mean 'note'\?"),
     ('factor = 0.25 }', 'factor = 0.25, tags = "M" }', "tags", "limits.even.tags",
-     r"unknown field 'tags' in an even entry; did you mean 'tag'\?"),
+     r"unknown field 'tags'; did you mean 'tag'\? \(allowed: factor, limit, note, orders, tag\)"),
     ('closed = "lower"', 'closed = "lower"\ninterpolate = "linear"', "interpolate",
      "selectors.isc_il.interpolate",
-     r"unknown field 'interpolate' in \[selectors.isc_il\] \(a band selector\)"),
+     r"unknown field 'interpolate' \(allowed: closed, default, help\)"),
 ])
 def test_unknown_fields(tmp_path, old, new, marker, field, message):
     p = broken(tmp_path, old, new)
@@ -122,13 +122,13 @@ def test_unknown_fields(tmp_path, old, new, marker, field, message):
 def test_negative_limit(tmp_path):
     p = broken(tmp_path, "values = [7.0, 3.5, 8.0]", "values = [7.0, -3.5, 8.0]")
     refused(p, line_of(p, "-3.5"), "limits.rows.values",
-            r"limit for column '11-40' -3.5 is negative; it must be a finite positive number")
+            r"limit for column '11-40' must be greater than zero, got -3.5")
 
 
 def test_zero_limit(tmp_path):
     p = broken(tmp_path, "values = [4.0, 2.0, 5.0]", "values = [4.0, 2.0, 0]")
     refused(p, line_of(p, "values = [4.0, 2.0, 0]"), "limits.rows.values",
-            r"limit for column 'TDD' 0 is zero; it must be a finite positive number")
+            r"limit for column 'TDD' must be greater than zero, got 0")
 
 
 def test_missing_limit_in_a_row(tmp_path):
@@ -283,11 +283,11 @@ def test_derive_from_a_missing_block(tmp_path):
     ('of = "window"', 'of = "smoothed"', "smoothed", "evaluation.checks.of",
      r"of = 'smoothed' needs smoothing_tau_s > 0 in \[evaluation\]"),
     ('multiplier = 1.0', 'multiplier = -2', "multiplier = -2", "evaluation.checks.multiplier",
-     r"multiplier -2 is negative"),
+     r"multiplier: must be greater than zero, got -2$"),
     ("schema = 1", "schema = 2", "schema = 2", "schema",
      r"schema 2 is not supported; this pqcheck reads schema = 1"),
     ('measure = "group"', 'measure = "groups"', "groups", "measure",
-     r"'groups' is not one of: group, subgroup, component"),
+     r"must be \"group\", \"subgroup\", \"component\" or \"flicker\", got 'groups'"),
 ])
 def test_header_and_evaluation_errors(tmp_path, old, new, marker, field, message):
     p = broken(tmp_path, old, new)
@@ -393,3 +393,19 @@ def test_cli_limits_validate(tmp_path):
     assert res.output.startswith(f"{bad}:{line}: limits.rows.isc_il: gap in isc_il bands")
     res = run("limits", "validate", str(tmp_path / "missing.toml"))
     assert res.exit_code == 2 and "no such file" in res.output
+
+
+def test_cli_limits_validate_names_a_plan_or_a_site_file(tmp_path):
+    # pqcheck's other TOML documents get the command that reads them, not 17 field errors
+    plan = write(tmp_path, '[site]\nname = "x"\n[[limits]]\ntable = "ieee519-2022"\n'
+                           '[[captures]]\nid = "a"\nfile = "a.csv"\n', "plan.toml")
+    res = run("limits", "validate", str(plan))
+    assert res.exit_code == 2
+    assert f"{plan}: this is a test plan, not a limit table; it is read by `pqcheck " \
+           f"report {plan} -o report.pdf`" in res.output
+    site = write(tmp_path, '[supply]\nnominal_voltage_v = 11000\n[[units]]\nname = "u"\n',
+                 "site.toml")
+    res = run("limits", "validate", str(site))
+    assert res.exit_code == 2
+    assert f"this is a site file, not a limit table; it is read by `pqcheck site {site}`" \
+        in res.output

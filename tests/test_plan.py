@@ -106,7 +106,8 @@ def test_plan_new_writes_template_and_refuses_to_overwrite(tmp_path):
 
 @pytest.mark.parametrize("edit, needle, field, message", [
     (("nominal_voltage_v = 400", "nominal_voltage_v = 400\nnominal_volts = 1"),
-     "nominal_volts", "site.nominal_volts", "unknown field; expected one of address"),
+     "nominal_volts", "site.nominal_volts",
+     "unknown field 'nominal_volts'; did you mean 'nominal_voltage_v'? (allowed: address, "),
     (("isc_a = 3500", 'isc_a = "3500"'), "isc_a", "site.isc_a",
      "must be a number, got the text '3500'"),
     (("il_a = 100", "il_a = -5"), "il_a", "site.il_a", "must be greater than zero, got -5"),

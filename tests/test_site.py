@@ -586,13 +586,13 @@ def _sub(old, new):
 
 SITE_ERRORS = [
     ("toml", BASE + "\n[[units]\n", r"site.toml:\d+: not valid TOML"),
-    ("unknown-top", "colour = 1\n" + BASE, r"site.toml:1: colour: unknown field; expected one "
-                                            r"of limits, name, nominal_frequency_hz"),
+    ("unknown-top", "colour = 1\n" + BASE, r"site.toml:1: colour: unknown field 'colour' "
+                                            r"\(allowed: limits, name, nominal_frequency_hz"),
     ("schema", "schema = 2\n" + BASE, "this pqcheck reads site schema 1, got 2"),
     ("frequency", _sub("nominal_frequency_hz = 50", "nominal_frequency_hz = 55"),
      "nominal_frequency_hz: must be 50 or 60, got 55"),
     ("summation", _sub('summation = "general"', 'summation = "rms"'),
-     "summation: must be one of 'general', 'arithmetic', 'phasor', got 'rms'"),
+     "summation: must be \"general\", \"arithmetic\" or \"phasor\", got 'rms'"),
     ("no-supply", _sub("[supply]\nnominal_voltage_v = 11000\nssc_va = 250e6\nx_over_r = 10\n",
                        ""), r"missing table \[supply\]"),
     ("supply-type", _sub("[supply]\nnominal_voltage_v = 11000\nssc_va = 250e6\n"
@@ -645,7 +645,8 @@ SITE_ERRORS = [
      "limits.generation: must be true or false, got the text 'yes'"),
     ("name-number", "name = 3\n" + BASE.replace('name = "Test depot"\n', ""),
      "name: must be text in quotes, got the number 3"),
-    ("no-units", BASE.split("[[units]]")[0], "the site lists no unit"),
+    ("no-units", BASE.split("[[units]]")[0], r"missing \[\[units\]\] entries: the site lists "
+                                             "no unit"),
     ("units-scalar", BASE.split("[[units]]")[0].replace("[supply]", "units = 3\n[supply]"),
      "units: must be an array of tables"),
     ("unit-name", _sub('name = "Charger"\n', ""), r"units\[1\]: missing field 'name'"),
@@ -677,7 +678,7 @@ SITE_ERRORS = [
     ("unit-file", _sub('results = "unit.json"', 'results = "nope.json"'),
      r"units\[1\].results: file 'nope.json' not found \(resolved against the site file's"),
     ("unit-unknown-field", BASE + "colour = 1\n",
-     r"units\[1\].colour: unknown field; expected one of capture, connection, count"),
+     r"units\[1\].colour: unknown field 'colour' \(allowed: capture, connection, count"),
     ("unit-duplicate", BASE + '\n[[units]]\nname = "Charger"\nresults = "unit.json"\ncount = 1\n'
                               'load_point = "1"\n',
      r"units\[2\].name: unit name 'Charger' is used twice"),
@@ -1160,6 +1161,11 @@ def test_site_pdf_traceability(tmp_path):
     assert "Sign-off" in text and "Prepared by" in text and "Approved by" in text
     assert "qualified" in text.lower() and "utility's own study governs" in text
     assert "How the verdict depends on the summation method" in text
+    pikepdf = pytest.importorskip("pikepdf")
+    with pikepdf.open(pdf) as doc:  # archival like every pqcheck PDF (ISO 19005-3, level B)
+        meta = doc.open_metadata()
+        assert meta.get("pdfaid:part") == "3" and meta.get("pdfaid:conformance") == "B"
+        assert "/OutputIntents" in doc.Root
 
 
 def test_site_chart_marks_the_failing_order_above_an_uncovered_plot(tmp_path):

@@ -469,6 +469,19 @@ def test_report_of_a_log_has_the_survey_section_and_the_json(tmp_path):
     assert d["survey"]["flagged_intervals"] == [{"level": "10min",
                                                  "start": "2026-03-02T00:50:00+00:00"}]
     assert len(d["survey"]["availability"]) == 8
+    # the same visual language as the test report: the verdict as glyph and word on page 1,
+    # verdict cells with their glyphs, the three sign-off roles, an archival (PDF/A-3b) file
+    pypdf = pytest.importorskip("pypdf")
+    pikepdf = pytest.importorskip("pikepdf")
+    pages = [pg.extract_text() or "" for pg in pypdf.PdfReader(str(pdf)).pages]
+    assert "OVERALL VERDICT" in pages[0] and "\u2717 FAIL" in pages[0]
+    text = "\n".join(pages)
+    assert "\u2713 PASS" in text or "\u25d0 INCONCLUSIVE" in text
+    assert all(role in text for role in ("Prepared by", "Reviewed by", "Approved by"))
+    assert "harmonic survey report" in text and "harmonic emission report" not in text
+    with pikepdf.open(pdf) as doc:
+        meta = doc.open_metadata()
+        assert meta.get("pdfaid:part") == "3" and meta.get("pdfaid:conformance") == "B"
     spec = _valid(d, "survey report")
     assert spec.limits[0].voltage_level_v == 480.0
     assert d["captures"][0]["run_spec"] == d["run_spec"]

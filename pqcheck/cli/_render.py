@@ -122,6 +122,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
              f"{c.get('inconclusive', 0)} inconclusive, {c.get('pass', 0)} pass"
              + (f", {c['not applicable']} not applicable" if c.get("not applicable") else "")
              + ")"]
+    from ..limits import designation
     from ..report.text import merge_variants
 
     for label, texts in (("Why", merge_variants(getattr(a, "reasons", ()))),
@@ -139,7 +140,7 @@ def render_assessment(assessment, result=None, *, all_rows: bool = False,
         sel = ", ".join(f"{k} = {numfmt.given(v)}" if isinstance(v, float) else f"{k} = {v}"
                         for k, v in t.selectors)
         name = getattr(t, "display_name", "") or t.table_id
-        lines += textwrap.wrap(f"{name}  {t.standard}-{t.edition}".rstrip("-")
+        lines += textwrap.wrap(f"{name}  {designation(t.standard, t.edition)}"
                                + (f"  ({sel})" if sel else ""), width=width,
                                initial_indent="Limits    ", subsequent_indent=" " * 12)
         for row in t.rows:

@@ -299,10 +299,32 @@ def show_cmd(table, fmt):
         click.echo(render_table(t), nl=False)
 
 
+def _other_document(path) -> tuple:
+    """What a TOML file is when it is one of pqcheck's other documents (a test plan, a site
+    file), and the command that takes it; () otherwise (also when it cannot be read: the
+    validation says why)."""
+    from ..errors import InputError
+    from ..files.read import read_bounded
+    from ..files.toml import loads
+
+    try:  # a special file, a huge or deeply nested one: the validation says what is wrong
+        doc = loads(read_bounded(path, what="limit table").decode("utf-8"))
+    except (InputError, OSError, ValueError):
+        return ()
+    if "captures" in doc and ("site" in doc or "equipment" in doc or "limits" in doc):
+        return "a test plan", f"it is read by `pqcheck report {path} -o report.pdf`"
+    if "units" in doc and ("supply" in doc or "pcc" in doc):
+        return "a site file", f"it is read by `pqcheck site {path}`"
+    return ()
+
+
 @limits_group.command("validate")
 @click.argument("path", type=click.Path(dir_okay=False))
 def validate_cmd(path):
     """Check the limit table file PATH; problems are printed as file:line: field: problem."""
+    kind = _other_document(path)
+    if kind:
+        fail_usage(f"{path}: this is {kind[0]}, not a limit table; {kind[1]}")
     errors = validate_file(path)
     if errors:
         for e in errors:

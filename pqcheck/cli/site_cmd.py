@@ -86,17 +86,20 @@ def render_site_table(study) -> str:
     if study.limits is not None:
         out.append(f"Limits      {study.limits.table_id}: {'; '.join(study.limits.rows)}")
     out.append("")
-    head = f"{'unit':<24}{'count':>6}  {'load point':<14}{'shift':>7}{'I1 each':>11}  data"
+    # names and load points in full (a cut name can hide which unit it is)
+    nw = max([24] + [len(u.name) + 1 for u in s.units])
+    lw = max([14] + [len(u.load_point) + 1 for u in s.units])
+    head = f"{'unit':<{nw}}{'count':>6}  {'load point':<{lw}}{'shift':>7}{'I1 each':>11}  data"
     out.append(head)
     out.append("-" * len(head))
     for u in s.units:
         i1 = max(abs(x) for x in u.spectrum.current[:, 1])
-        out.append(f"{u.name[:23]:<24}{u.count:>6}  {u.load_point[:13]:<14}"
+        out.append(f"{u.name:<{nw}}{u.count:>6}  {u.load_point:<{lw}}"
                    f"{_f(u.phase_shift_deg, 3):>7}{_f(i1, 4, 'A'):>11}  "
                    f"{shown_path(u.spectrum.source, s.path)}")
     other = s.other_load
     if other.demand_w or other.demand_current_a:
-        out.append(f"{'other load (linear)':<24}{'':>6}  "
+        out.append(f"{'other load (linear)':<{nw}}{'':>6}  "
                    f"{_f(other.demand_w / 1e3, 4, 'kW') + ', PF ' + _f(other.power_factor, 3)}")
     out.append("")
     out.append(f"Estimated at the PCC (worst phase; {study.summation} summation)")
@@ -161,7 +164,7 @@ def render_site_table(study) -> str:
                 txt = f"{hr.extra_units} more; then {hr.binding} binds ({value} > {limit})"
             if hr.extra_units_rating is not None:
                 txt += f"; transformer rating reached after {hr.extra_units_rating} more"
-            out.append(f"  {hr.unit[:30]:<31}{txt}")
+            out.append(f"  {hr.unit:<{max(31, nw)}}{txt}")
         out.append("")
     if study.findings:
         out.append("Findings")

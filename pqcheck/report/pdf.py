@@ -488,8 +488,7 @@ def _worst(checks):
 
 
 def _cover(b: _Builder) -> None:
-    job, meta, plan = b.job, b.job.meta, b.job.plan
-    st = b.st
+    job, meta = b.job, b.job.meta
     b.add(Spacer(1, 8 * mm))
     b.add(b.p("HARMONIC EMISSION TEST REPORT", "kicker"))
     b.add(b.p(meta.title, "title"))
@@ -513,6 +512,20 @@ def _cover(b: _Builder) -> None:
             "not applicable": "None of the limits applied to this case.",
         }.get(verdict, "")
         line = f"{meaning} Checks: {_counts_text(all_checks)}."
+    verdict_box(b, verdict, line, big=big)
+    _deciding_items(b)
+    b.add(Spacer(1, 3 * mm))
+    _cover_facts(b)
+
+
+def verdict_box(b: _Builder, verdict: str, line: str, *, big: str | None = None) -> None:
+    """The overall verdict as every pqcheck report shows it on page 1: its glyph and word in
+    large type inside a box (filled dark for a fail, grey for an undecided verdict, outlined
+    for a pass), with one line saying what it means; readable in greyscale, never carried by
+    colour alone."""
+    st = b.st
+    if big is None:
+        big = f"{VERDICT_MARK.get(verdict, '')}  {VERDICT_WORD.get(verdict, verdict.upper())}"
     fg = "white" if verdict == "fail" else "#1a1a1a"
     cell = [Paragraph(f'<font color="{fg}">OVERALL VERDICT</font>', st["kicker"]),
             Paragraph(f'<font color="{fg}">{esc(big)}</font>', st["verdict"]),
@@ -531,9 +544,11 @@ def _cover(b: _Builder) -> None:
         box_style += [("BOX", (0, 0), (-1, -1), 2.0, INK)]
     box.setStyle(TableStyle(box_style))
     b.add(box, Spacer(1, 4 * mm))
-    _deciding_items(b)
-    b.add(Spacer(1, 3 * mm))
 
+
+def _cover_facts(b: _Builder) -> None:
+    """Page 1 under the verdict: the equipment, site, dates, captures, reasons, deviations."""
+    job, meta, plan = b.job, b.job.meta, b.job.plan
     eq = plan.equipment if plan is not None else None
     pairs = []
     pairs.append(("Equipment under test", meta.equipment or (eq.name if eq else "") or
@@ -1766,8 +1781,14 @@ def _safety(b: _Builder) -> None:
 
 
 def _signoff(b: _Builder) -> None:
+    signoff_block(b, "8  Sign-off", b.job.meta.report_id, b.job.meta.operator)
+
+
+def signoff_block(b: _Builder, heading: str, report_id: str, operator: str = "") -> None:
+    """The sign-off of every pqcheck report: prepared, reviewed and approved by, each with
+    name, date and signature, kept on one page."""
     st = b.st
-    block = [Paragraph("8  Sign-off", st["h1"]),
+    block = [Paragraph(esc(heading), st["h1"]),
              Paragraph(esc("By signing, each person confirms the part of the work named. The "
                            "reviewer and approver confirm that the limit tables and their "
                            "row selection fit the installation, that the data-quality "
@@ -1792,12 +1813,12 @@ def _signoff(b: _Builder) -> None:
         ("BOX", (0, 0), (-1, -1), 0.8, INK),
     ]))
     block.append(t)
-    if b.job.meta.operator:
+    if operator:
         block.append(Spacer(1, 2 * mm))
         block.append(Paragraph(esc(f"Operator recorded for the measurements: "
-                                   f"{b.job.meta.operator}"), st["small"]))
+                                   f"{operator}"), st["small"]))
     block.append(Spacer(1, 2 * mm))
-    block.append(Paragraph(esc(f"Report {b.job.meta.report_id}. Write names in capitals; "
+    block.append(Paragraph(esc(f"Report {report_id}. Write names in capitals; "
                                "date as YYYY-MM-DD."), st["muted"]))
     b.add(KeepTogether(block))
 

@@ -10,11 +10,10 @@ assessment's own dict form; nothing is recomputed.
 from __future__ import annotations
 
 import json
-from datetime import timezone
 
-from ..export import analysis_to_dict, clean, harmonics_frame
+from ..export import harmonics_frame
 from ..files.atomic import OutputSet
-from ..results import SCHEMA_VERSION, tool_block
+from ..results import SCHEMA_VERSION, report_document
 
 __all__ = ["SCHEMA_VERSION", "CSV_TABLES", "job_to_dict", "job_json", "job_frames",
            "job_csv_texts", "write_csv_dir"]
@@ -25,53 +24,9 @@ CSV_TABLES = ("captures", "channels", "harmonics", "windows", "power", "findings
 
 
 def job_to_dict(job) -> dict:
-    """JSON-ready form of a report job.
-
-    Keys: ``tool``, ``report`` (id, title, equipment, site, operator, time of analysis, the
-    command line that made it),
-    ``plan`` (path and SHA-256, or null), ``verdict`` (overall), ``limit_tables`` (id, title,
-    standard, edition, source, SHA-256) and ``captures``: per capture its ``id``,
-    ``load_point``, ``load_percent``, ``verdict``, ``analysis`` (:func:`pqcheck.export.
-    analysis_to_dict`) and ``assessments`` (:meth:`pqcheck.assess.Assessment.to_dict`: each
-    with ``verdict``, ``counts``, ``checks``, ``tables`` and ``notes``).
-    """
-    meta = job.meta
-    plan = job.plan
-    return clean({
-        "schema_version": SCHEMA_VERSION,
-        "tool": tool_block("report"),
-        "report": {
-            "id": meta.report_id,
-            "title": meta.title,
-            "equipment": meta.equipment,
-            "site": meta.site,
-            "operator": meta.operator,
-            "time_of_analysis_utc": meta.created_utc.astimezone(timezone.utc).isoformat(),
-            "command": meta.command,  # how to re-run it: pqcheck verify reads the options
-        },
-        "plan": None if plan is None else {
-            "path": str(plan.path), "sha256": plan.sha256, "title": plan.title,
-            "excluded": [{"id": c.id, "file": str(c.path), "reason": c.exclude}
-                         for c in plan.excluded]},
-        "verdict": job.verdict,
-        "limit_tables": [
-            {"id": t.table_id, "title": t.title, "standard": t.standard, "edition": t.edition,
-             "source": t.source, "sha256": t.sha256}
-            for t in job.limit_tables()
-        ],
-        "captures": [
-            {
-                "id": r.id,
-                "load_point": r.load_point,
-                "load_percent": r.load_percent,
-                "verdict": r.verdict,
-                "analysis": analysis_to_dict(r.result),
-                "assessments": [a.to_dict() for a in r.assessments],
-                "run_spec": None if r.spec is None else r.spec.to_dict(),
-            }
-            for r in job.runs
-        ],
-    })
+    """JSON-ready form of a report job: the ``report`` document of
+    :func:`pqcheck.results.report_document` (the one module that writes results)."""
+    return report_document(job)
 
 
 def job_json(job) -> bytes:

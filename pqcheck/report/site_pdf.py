@@ -501,4 +501,6 @@ def render_site_pdf(study, *, report: dict, results_json: bytes) -> bytes:
         header_left=f"{title} \u2013 {study.site.name}",
         header_right="Verdict: " + _verdict_text(study.verdict), attachment=results_json)
     doc.build(story, canvasmaker=maker)
-    return buf.getvalue()
+    from .archival import to_pdfa  # archival like every pqcheck PDF (PDF/A-3b)
+
+    return to_pdfa(buf.getvalue())

@@ -23,7 +23,8 @@ import numpy as np
 from .. import numfmt
 from ..limits import designation
 from . import figures
-from .style import ACCENT, VERDICT_WORD, esc, fmt, register_fonts
+from .pdf import _ReportCanvas
+from .style import esc, fmt, register_fonts
 
 __all__ = ["render_survey_pdf"]
 
@@ -148,7 +149,17 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     from reportlab.platypus import PageBreak, SimpleDocTemplate, Spacer
 
     from ..survey import format_time
-    from .pdf import _MARGIN, PAGE_SIZE, _Builder, _ReportCanvas
+    from .archival import to_pdfa
+    from .pdf import (
+        _MARGIN,
+        PAGE_SIZE,
+        _Builder,
+        _verdict_cell,
+        _verdict_para,
+        _verdict_style,
+        signoff_block,
+        verdict_box,
+    )
 
     register_fonts()
     b = _Builder(None, results_json)
@@ -156,13 +167,17 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     s = sa.survey
     tz = s.timezone
     # --- page 1 ----------------------------------------------------------------------------
-    b.add(b.p(meta.title, "title"), Spacer(1, 4 * mm))
-    b.add(b.m(f"<font color='{ACCENT.hexval().replace('0x', '#')}'>"
-              f"{esc(VERDICT_WORD.get(a.verdict, a.verdict.upper()))}</font>", "verdict"))
+    b.add(Spacer(1, 8 * mm), b.p("HARMONIC SURVEY REPORT", "kicker"))
+    b.add(b.p(meta.title, "title"), Spacer(1, 7 * mm))
     c = a.counts
-    b.add(b.p(f"{c.get('fail', 0)} checks fail, {c.get('inconclusive', 0)} inconclusive, "
-              f"{c.get('pass', 0)} pass, {c.get('not applicable', 0)} not applicable.",
-              "verdict_text"))
+    meaning = {"fail": "At least one statistic exceeds its limit.",
+               "inconclusive": "No limit was exceeded, but at least one statistic could not "
+                               "be assessed or decided from the survey.",
+               "pass": "Every assessed statistic meets its limit.",
+               "not applicable": "None of the limits applied to this survey."}.get(a.verdict, "")
+    verdict_box(b, a.verdict, f"{meaning} Checks: {c.get('fail', 0)} fail, "
+                              f"{c.get('inconclusive', 0)} inconclusive, {c.get('pass', 0)} "
+                              f"pass, {c.get('not applicable', 0)} not applicable.")
     pairs = [("Report id", meta.report_id), ("Equipment / site", " / ".join(
         x for x in (meta.equipment, meta.site) if x) or "-"), ("Operator", meta.operator or "-"),
         ("Survey", f"{s.origin}: {format_time(s.start_s, tz)} to {format_time(s.end_s, tz)} "
@@ -177,19 +192,25 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     b.add(b.kv(pairs))
     b.add(Spacer(1, 3 * mm), b.p("Statistics, and the period that decides", "h2"))
     rows = [["table", "quantity", "statistic", "result", "worst", "period"]]
+    extra = []
     for r in sa.rules:
         w = sa.worst(r)
         if not r["assessed"]:
-            rows.append([r["table"], r["applies_to"], r["statistic"], "NOT ASSESSED",
-                         r["reason"][len("not assessed: "):], ""])
+            # a statistic the survey cannot give: undecided, said with the undecided glyph
+            rows.append([r["table"], r["applies_to"], r["statistic"],
+                         b.m(f"<b>{esc(_verdict_cell('inconclusive'))}</b><br/>not assessed",
+                             "cell"), r["reason"][len("not assessed: "):], ""])
+            extra += _verdict_style(3, len(rows) - 1, "inconclusive")
         elif w is None:
             rows.append([r["table"], r["applies_to"], r["statistic"], "no value", "", ""])
         else:
             value, limit = numfmt.value_and_limit(w["value"], w["limit"], w["unit"])
-            rows.append([r["table"], r["applies_to"], r["statistic"], w["verdict"].upper(),
+            rows.append([r["table"], r["applies_to"], r["statistic"],
+                         _verdict_para(b, w["verdict"]),
                          f"{w['label']} {w['channel']} {value} / limit {limit}",
                          f"{w['start']} to {w['end']}"])
-    b.add(b.table(rows, [0.12, 0.08, 0.22, 0.12, 0.24, 0.22]))
+            extra += _verdict_style(3, len(rows) - 1, w["verdict"])
+    b.add(b.table(rows, [0.12, 0.08, 0.2, 0.16, 0.22, 0.22], extra_style=extra))
     not_assessed = [n for n in a.notes if "NOT ASSESSED" in n]
     if not_assessed:
         b.add(Spacer(1, 2 * mm), b.m("<b>Not assessed (the verdict is INCONCLUSIVE for "
@@ -226,16 +247,19 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
     rows = [["verdict", "item", "phase", "statistic", "worst value", "limit", "margin",
              "worst period"]]
     decimals = numfmt.check_decimals(a.checks)
+    extra = []
     for i in measured[:_MAX_ROWS]:
         k = a.checks[i]
         value, limit, margin = numfmt.check_cells(k, decimals)
-        rows.append([VERDICT_WORD.get(k.verdict, k.verdict), k.label, k.channel, k.statistic,
+        rows.append([_verdict_para(b, k.verdict), k.label, k.channel, k.statistic,
                      numfmt.marked(value, k.unit), numfmt.marked(limit, k.unit), margin,
                      f"{k.period_start} to {k.period_end}"])
+        extra += _verdict_style(0, len(rows) - 1, k.verdict)
     b.tcaption(f"The {min(len(measured), _MAX_ROWS)} assessed statistics closest to their "
                f"limits, of {len(measured)} (all of them, with every period's value, are in "
                "the attached results.json); margin = (limit - value) / limit.")
-    b.add(b.table(rows, [0.10, 0.07, 0.06, 0.25, 0.11, 0.10, 0.08, 0.23], right=(4, 5, 6)))
+    b.add(b.table(rows, [0.16, 0.06, 0.06, 0.21, 0.1, 0.09, 0.08, 0.24], right=(4, 5, 6),
+                  extra_style=extra))
     unmeasured = len(a.checks) - len(measured)
     if unmeasured:
         b.add(b.p(f"{unmeasured} checks have no value (not assessed, or not in the data); "
@@ -293,17 +317,21 @@ def render_survey_pdf(sa, meta, *, results_json: bytes) -> bytes:
         b.add(b.p(f"{src}  SHA-256 {sha}", "mono"))
     for col, meaning in s.mapping[:200]:
         b.add(b.p(f"column {col!r}: {meaning}", "small"))
-    b.add(Spacer(1, 6 * mm), b.p("Checked by: ______________________    Date: __________", "body"))
+    signoff_block(b, "Sign-off", meta.report_id, meta.operator)
     b.add(b.p("A pqcheck verdict is an engineering aid, not a certification.", "muted"))
 
-    right = f"Overall verdict: {VERDICT_WORD.get(a.verdict, a.verdict)}"
+    right = f"Overall verdict: {_verdict_cell(a.verdict)}"
     buf = io.BytesIO()
     doc = SimpleDocTemplate(buf, pagesize=PAGE_SIZE, leftMargin=_MARGIN, rightMargin=_MARGIN,
                             topMargin=17 * mm, bottomMargin=18 * mm,
                             title=f"{meta.title} ({meta.report_id})", author=meta.operator or "",
                             subject="harmonic survey", creator=f"pqcheck {meta.tool_version}",
                             keywords=meta.report_id)
-    maker = functools.partial(_ReportCanvas, report_id=meta.report_id, header_left=meta.title,
+    maker = functools.partial(_SurveyCanvas, report_id=meta.report_id, header_left=meta.title,
                               header_right=right, attachment=results_json)
     doc.build(b.story, canvasmaker=maker)
-    return buf.getvalue()
+    return to_pdfa(buf.getvalue(), created=meta.created_utc)
+
+
+class _SurveyCanvas(_ReportCanvas):
+    footer_text = "pqcheck harmonic survey report \u2013 not a certification"

@@ -21,7 +21,19 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..files.tomldoc import BOOL, NUM, POS, STR, STRS, DocReader, read_document
+from ..files.tomldoc import (
+    BOOL,
+    INT,
+    NUM,
+    POS,
+    STR,
+    STRS,
+    TABLE,
+    TABLES,
+    DocReader,
+    Field,
+    read_document,
+)
 from ..limits import table_path
 
 __all__ = [
@@ -490,12 +502,14 @@ def plan_terms(text: str) -> str:
 # ---------------------------------------------------------------------------------------------
 
 _NUM, _POS, _STR, _BOOL, _STRS = NUM, POS, STR, BOOL, STRS
+_HZ = Field(POS, choices=(50.0, 60.0))
 
+# The plan's keys, declared (pqcheck.files.tomldoc.Field): kind, required, choices, range.
 _TRANSFORMER = {"rating_va": _POS, "primary_v": _POS, "secondary_v": _POS,
                 "impedance_percent": _POS, "description": _STR}
 _SITE = {"name": _STR, "address": _STR, "pcc": _STR, "nominal_voltage_v": _POS,
-         "nominal_frequency_hz": _POS, "isc_a": _POS, "il_a": _POS, "rsce": _POS, "ssc_va": _POS,
-         "transformer": "table", "notes": _STR}
+         "nominal_frequency_hz": _HZ, "isc_a": _POS, "il_a": _POS, "rsce": _POS,
+         "ssc_va": _POS, "transformer": TABLE, "notes": _STR}
 _EQUIPMENT = {"name": _STR, "manufacturer": _STR, "model": _STR, "serial": _STR,
               "firmware": _STR, "description": _STR, "rated_power_w": _POS,
               "rated_apparent_power_va": _POS, "rated_current_a": _POS, "rated_voltage_v": _POS,
@@ -504,22 +518,26 @@ _INSTRUMENT = {"role": _STR, "model": _STR, "serial": _STR, "channels": _STRS, "
                "bandwidth_hz": _POS, "sample_rate_hz": _POS, "range": _STR, "accuracy": _STR,
                "measurement_category": _STR, "calibration_due": _STR, "notes": _STR,
                "dc_coupled": _BOOL, "zeroed": _BOOL}
-_CONDITIONS = {"date": _STR, "operator": _STR, "location": _STR, "ambient_c": _NUM, "supply": _STR,
-               "instruments": "array of tables", "notes": _STR, "measured_at": _STR,
+_CONDITIONS = {"date": _STR, "operator": _STR, "location": _STR, "ambient_c": _NUM,
+               "supply": _STR, "instruments": TABLES, "notes": _STR,
+               "measured_at": Field(STR, choices=("pcc", "equipment-terminals")),
                "behaviour": _STR, "cycle_s": _POS, "representative_period": _BOOL,
-               "decision_rule": _STR}
-_ANALYSIS = {"nominal_frequency_hz": _POS, "max_order": "whole number", "wiring": _STR}
+               "decision_rule": Field(STR, choices=("guarded", "simple"))}
+_ANALYSIS = {"nominal_frequency_hz": _HZ, "max_order": Field(INT, low=2, high=100),
+             "wiring": Field(STR, choices=("3-wire", "4-wire"))}
 _SELECTOR_KEYS = {"voltage_level_v": _POS, "isc_a": _POS, "il_a": _POS, "rsce": _POS,
                   "ssc_va": _POS, "rated_apparent_power_va": _POS, "rated_current_a": _POS,
                   "iref_a": _POS, "active_power_w": _POS, "equipment_class": _STR,
                   "equipment_kind": _STR, "generation": _BOOL}
-_LIMIT = {"table": _STR, **_SELECTOR_KEYS}
-_CAPTURE = {"id": _STR, "file": _STR, "load_point": _STR, "load_percent": _POS,
+_LIMIT = {"table": Field(STR, required="a bundled table id such as \"ieee519-2022\" or the "
+                                       "path of a table file"), **_SELECTOR_KEYS}
+_CAPTURE = {"id": _STR, "file": Field(STR, required="the capture file, relative to the plan"),
+            "load_point": _STR, "load_percent": Field(POS, high=200.0, unit="%"),
             "current": _STRS, "voltage": _STRS, "sample_rate_hz": _POS, "time_column": _STR,
             "limits": _STRS, "notes": _STR, "exclude": _STR}
-_TOP = {"schema": "whole number", "title": _STR, "report_id": _STR, "notes": _STR,
-        "site": "table", "equipment": "table", "conditions": "table", "analysis": "table",
-        "limits": "array of tables", "captures": "array of tables"}
+_TOP = {"schema": INT, "title": _STR, "report_id": _STR, "notes": _STR,
+        "site": TABLE, "equipment": TABLE, "conditions": TABLE, "analysis": TABLE,
+        "limits": TABLES, "captures": TABLES}
 
 _ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]*")
 
@@ -577,9 +595,6 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
     if "transformer" in site_doc:
         site["transformer"] = Transformer(**r.table(site_doc["transformer"],
                                                     ("site", "transformer"), _TRANSFORMER))
-    f_nom = site.get("nominal_frequency_hz")
-    if f_nom is not None and f_nom not in (50.0, 60.0):
-        raise r.error(("site", "nominal_frequency_hz"), f"must be 50 or 60, got {f_nom:g}")
     site = Site(**site)
 
     equipment = Equipment(**r.table(doc.get("equipment", {}), ("equipment",), _EQUIPMENT))
@@ -590,32 +605,15 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
     for k, item in enumerate(r.array(cond_doc, ("conditions", "instruments"))):
         instruments.append(Instrument(**r.table(item, ("conditions", "instruments", k),
                                                 _INSTRUMENT)))
-    for key, allowed in (("measured_at", ("pcc", "equipment-terminals")),
-                         ("decision_rule", ("guarded", "simple"))):
-        if cond.get(key) and cond[key] not in allowed:
-            raise r.error(("conditions", key), f"must be one of {', '.join(allowed)}, got "
-                                               f"{cond[key]!r}")
     conditions = Conditions(instruments=tuple(instruments), **cond)
 
     ana = r.table(doc.get("analysis", {}), ("analysis",), _ANALYSIS)
-    if ana.get("nominal_frequency_hz") not in (None, 50.0, 60.0):
-        raise r.error(("analysis", "nominal_frequency_hz"),
-                      f"must be 50 or 60, got {ana['nominal_frequency_hz']:g}")
-    if "max_order" in ana and not 2 <= ana["max_order"] <= 100:
-        raise r.error(("analysis", "max_order"),
-                      f"must be from 2 to 100, got {ana['max_order']}")
-    if ana.get("wiring") not in (None, "3-wire", "4-wire"):
-        raise r.error(("analysis", "wiring"),
-                      f"must be \"3-wire\" or \"4-wire\", got {ana['wiring']!r}")
     analysis = AnalysisOptions(**ana)
 
     limits = []
     for k, item in enumerate(r.array(doc, ("limits",))):
         kp = ("limits", k)
         vals = r.table(item, kp, _LIMIT)
-        if "table" not in vals:
-            raise r.error(kp, "missing field 'table': a bundled table id such as "
-                              "\"ieee519-2022\" or the path of a table file")
         table = vals.pop("table").strip()
         if not table:
             raise r.error(kp + ("table",), "must not be empty")
@@ -638,8 +636,6 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
     for k, item in enumerate(entries):
         kp = ("captures", k)
         vals = r.table(item, kp, _CAPTURE)
-        if "file" not in vals:
-            raise r.error(kp, "missing field 'file': the capture file, relative to the plan")
         file_text = vals.pop("file")
         cpath = r.file(file_text, folder, kp + ("file",), check_files)
         cid = vals.pop("id", None) or Path(file_text).stem
@@ -650,8 +646,6 @@ def load_plan(path, *, check_files: bool = True) -> Plan:
             raise r.error(kp + ("id",) if "id" in item else kp + ("file",),
                           f"capture id {cid!r} is used twice; give each capture its own id")
         pct = vals.get("load_percent")
-        if pct is not None and pct > 200:
-            raise r.error(kp + ("load_percent",), f"must be at most 200 %, got {pct:g}")
         if "load_point" not in vals and pct is not None:
             vals["load_point"] = f"{pct:g} %"
         if "exclude" in vals and not vals["exclude"].strip():

@@ -15,7 +15,20 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
-from ..files.tomldoc import BOOL, INT, NUM, POS, STR, STRS, DocReader, read_document
+from ..files.tomldoc import (
+    BOOL,
+    INT,
+    LABEL,
+    NUM,
+    POS,
+    STR,
+    STRS,
+    TABLE,
+    TABLES,
+    DocReader,
+    Field,
+    read_document,
+)
 from ..limits import load_table, table_path
 from .model import PCC_LOCATIONS, OtherLoad, Site, SiteTransformer, Supply, Unit
 from .network import SQRT3, SUMMATIONS, vector_group_shift
@@ -53,22 +66,53 @@ RANGES = {
     ("units", "sample_rate_hz"): (10.0, 1e10, "Hz", "a sample rate"),
 }
 
-_NUM, _POS, _STR, _BOOL, _STRS, _INT = NUM, POS, STR, BOOL, STRS, INT
-
-_TOP = {"schema": _INT, "name": _STR, "notes": _STR, "nominal_frequency_hz": _POS,
-        "summation": _STR, "supply": "table", "transformer": "table", "pcc": "table",
-        "other_load": "table", "limits": "table", "units": "array of tables"}
-_SUPPLY = {"nominal_voltage_v": _POS, "ssc_va": _POS, "isc_a": _POS, "x_over_r": _POS}
-_TRANSFORMER = {"rating_va": _POS, "primary_v": _POS, "secondary_v": _POS,
-                "impedance_percent": _POS, "x_over_r": _POS, "vector_group": _STR}
-_PCC = {"location": _STR, "il_a": _POS}
-_OTHER = {"demand_w": _NUM, "power_factor": _POS, "demand_current_a": _NUM}
-_LIMITS = {"table": _STR, "generation": _BOOL}
-_UNIT = {"name": _STR, "capture": _STR, "results": _STR, "count": _INT, "load_point": "label",
-         "phase_shift_deg": _NUM, "connection": _STR, "phase": _STR, "current": _STRS,
-         "voltage": _STRS, "sample_rate_hz": _POS, "time_column": _STR}
+def _f(table: str, key: str, kind: str, required: str | None = None) -> Field:
+    """The declaration of a number of the site file, with its physical range (:data:`RANGES`)."""
+    lo, hi, unit, what = RANGES[(table, key)]
+    return Field(kind, required=required, low=lo, high=hi, unit=unit, what=what)
 
 
+# The site file's keys, declared (pqcheck.files.tomldoc.Field): kind, required, choices, range.
+_TOP = {"schema": INT, "name": STR, "notes": STR,
+        "nominal_frequency_hz": Field(POS, choices=(50.0, 60.0)),
+        "summation": Field(STR, choices=SUMMATIONS),
+        "supply": Field(TABLE, required="the utility supply's nominal_voltage_v, ssc_va or "
+                                        "isc_a, and x_over_r"),
+        "transformer": TABLE, "pcc": TABLE, "other_load": TABLE, "limits": TABLE,
+        "units": Field(TABLES, required="the site lists no unit; add at least one with "
+                                        "capture = \"...\" or results = \"...\"")}
+_SUPPLY = {"nominal_voltage_v": _f("supply", "nominal_voltage_v", POS,
+                                   "the supply's nominal line-to-line voltage [V]"),
+           "ssc_va": _f("supply", "ssc_va", POS), "isc_a": _f("supply", "isc_a", POS),
+           "x_over_r": _f("supply", "x_over_r", POS,
+                          "the supply impedance's X/R ratio (ask the utility; typically 5 to "
+                          "15 on MV networks)")}
+_TRANSFORMER = {"rating_va": _f("transformer", "rating_va", POS, "rated apparent power [VA]"),
+                "primary_v": _f("transformer", "primary_v", POS),
+                "secondary_v": _f("transformer", "secondary_v", POS,
+                                  "rated secondary line-to-line voltage [V]"),
+                "impedance_percent": _f("transformer", "impedance_percent", POS,
+                                        "short-circuit impedance [%]"),
+                "x_over_r": _f("transformer", "x_over_r", POS,
+                               "X/R ratio (typically 4 to 10 for distribution transformers)"),
+                "vector_group": STR}
+_PCC = {"location": Field(STR, choices=PCC_LOCATIONS,
+                          hint="\"supply\": the transformer's primary, where the supply's "
+                               "fault level is stated; \"bus\": the bus the units connect to"),
+        "il_a": _f("pcc", "il_a", POS)}
+_OTHER = {"demand_w": _f("other_load", "demand_w", NUM),
+          "power_factor": _f("other_load", "power_factor", POS),
+          "demand_current_a": _f("other_load", "demand_current_a", NUM)}
+_LIMITS = {"table": STR, "generation": BOOL}
+_UNIT = {"name": Field(STR, required="a short name for this kind of unit"),
+         "capture": STR, "results": STR,
+         "count": _f("units", "count", INT, "the number of identical units of this kind"),
+         "load_point": Field(LABEL, required="the operating point the capture represents, e.g. "
+                                             "\"100 %\" (every unit is assumed to run there)"),
+         "phase_shift_deg": _f("units", "phase_shift_deg", NUM),
+         "connection": Field(STR, choices=("three-phase", "single-phase")),
+         "phase": Field(STR, choices=("a", "b", "c")), "current": STRS, "voltage": STRS,
+         "sample_rate_hz": _f("units", "sample_rate_hz", POS), "time_column": STR}
 
 
 class _Reader(DocReader):
@@ -76,21 +120,6 @@ class _Reader(DocReader):
 
     def __init__(self, path: Path, text: str):
         super().__init__(path, text, "site file")
-
-    def table(self, doc, key_path: tuple, schema: dict) -> dict:
-        """The table's converted values, each number checked against :data:`RANGES`."""
-        out = super().table(doc, key_path, schema)
-        where = str(key_path[0]) if key_path else ""
-        for key, v in out.items():
-            bounds = RANGES.get((where, key))
-            if bounds is None:
-                continue
-            lo, hi, unit, what = bounds
-            if not lo <= v <= hi:
-                unit = f" {unit}" if unit else ""
-                raise self.error(key_path + (key,), f"must be from {lo:g} to {hi:g}{unit} "
-                                                    f"({what}), got {v:g}")
-        return out
 
 
 def read_site(path) -> SiteFile:
@@ -136,28 +165,18 @@ def read_site(path) -> SiteFile:
         raise r.error(("schema",), f"this pqcheck reads site schema {SCHEMA_VERSION}, got "
                                    f"{schema}")
     f_nom = top.get("nominal_frequency_hz")
-    if f_nom is not None and f_nom not in (50.0, 60.0):
-        raise r.error(("nominal_frequency_hz",), f"must be 50 or 60, got {f_nom:g}")
     summation = top.get("summation", "general")
-    if summation not in SUMMATIONS:
-        raise r.error(("summation",), f"must be one of {', '.join(map(repr, SUMMATIONS))}, "
-                                      f"got {summation!r}")
 
     # supply
-    if "supply" not in doc:
-        raise r.error((), "missing table [supply]: the utility supply's nominal_voltage_v, "
-                          "ssc_va or isc_a, and x_over_r")
     kp = ("supply",)
     sup = r.table(doc["supply"], kp, _SUPPLY)
-    v_sup = r.require(sup, kp, "nominal_voltage_v", "the supply's nominal line-to-line voltage "
-                                                    "[V]")
+    v_sup = sup["nominal_voltage_v"]
     if "ssc_va" in sup and "isc_a" in sup:
         raise r.error(kp + ("isc_a",), "give the fault level once: ssc_va or isc_a, not both")
     if "ssc_va" not in sup and "isc_a" not in sup:
         raise r.error(kp, "missing field 'ssc_va' or 'isc_a': the three-phase short-circuit "
                           "power [VA] or current [A] the utility states")
-    xr = r.require(sup, kp, "x_over_r", "the supply impedance's X/R ratio (ask the utility; "
-                                        "typically 5 to 15 on MV networks)")
+    xr = sup["x_over_r"]
     ssc = sup.get("ssc_va") or SQRT3 * v_sup * sup["isc_a"]
     supply = Supply(nominal_voltage_v=v_sup, ssc_va=ssc, x_over_r=xr)
 
@@ -166,12 +185,6 @@ def read_site(path) -> SiteFile:
     if "transformer" in doc:
         kp = ("transformer",)
         tv = r.table(doc["transformer"], kp, _TRANSFORMER)
-        for key, what in (("rating_va", "rated apparent power [VA]"),
-                          ("secondary_v", "rated secondary line-to-line voltage [V]"),
-                          ("impedance_percent", "short-circuit impedance [%]"),
-                          ("x_over_r", "X/R ratio (typically 4 to 10 for distribution "
-                                       "transformers)")):
-            r.require(tv, kp, key, what)
         primary = tv.get("primary_v", v_sup)
         if abs(primary - v_sup) > 0.05 * v_sup:
             raise r.error(kp + ("primary_v",),
@@ -190,11 +203,6 @@ def read_site(path) -> SiteFile:
     # PCC
     pcc = r.table(doc.get("pcc", {}), ("pcc",), _PCC)
     location = pcc.get("location")
-    if location is not None and location not in PCC_LOCATIONS:
-        raise r.error(("pcc", "location"),
-                      f"must be \"supply\" (the transformer's primary, where the supply's "
-                      f"fault level is stated) or \"bus\" (the bus the units connect to), got "
-                      f"{location!r}")
     if location is None:
         if transformer is not None:
             raise r.error(("pcc",) if "pcc" in doc else ("transformer",),
@@ -228,13 +236,10 @@ def read_site(path) -> SiteFile:
                       "ieee519-2022")
 
     # units
-    entries = doc.get("units")
-    if entries is None:
-        raise r.error((), "the site lists no unit; add at least one [[units]] entry with "
-                          "capture = \"...\" or results = \"...\"")
-    if not isinstance(entries, list) or not all(isinstance(x, dict) for x in entries) \
-            or not entries:
-        raise r.error(("units",), "must be an array of tables ([[units]] entries)")
+    entries = doc["units"]
+    if not entries:
+        raise r.error(("units",), "the site lists no unit; add at least one [[units]] entry "
+                                  "with capture = \"...\" or results = \"...\"")
     units = tuple(_unit_entry(r, item, k, folder) for k, item in enumerate(entries))
     names = [u.name for u in units]
     for k, u in enumerate(units):
@@ -301,21 +306,14 @@ def build_site(sf: SiteFile, units) -> Site:
 def _unit_entry(r: _Reader, item, k: int, folder: Path) -> UnitEntry:
     kp = ("units", k)
     vals = r.table(item, kp, _UNIT)
-    name = vals.get("name", "").strip()
+    name = vals["name"].strip()
     if not name:
-        raise r.error(kp, "missing field 'name': a short name for this kind of unit")
-    count = r.require(vals, kp, "count", "the number of identical units of this kind")
-    load_point = r.require(vals, kp, "load_point", "the operating point the capture "
-                                                   "represents, e.g. \"100 %\" (every unit is "
-                                                   "assumed to run there)")
+        raise r.error(kp + ("name",), "must not be empty: a short name for this kind of unit")
+    count = vals["count"]
+    load_point = vals["load_point"]
     connection = vals.get("connection")
-    if connection is not None and connection not in ("three-phase", "single-phase"):
-        raise r.error(kp + ("connection",), f"must be \"three-phase\" or \"single-phase\", got "
-                                            f"{connection!r}")
     phase = vals.get("phase")
     if phase is not None:
-        if phase not in ("a", "b", "c"):
-            raise r.error(kp + ("phase",), f"must be \"a\", \"b\" or \"c\", got {phase!r}")
         if connection != "single-phase":
             raise r.error(kp + ("phase",), "phase is for single-phase units; add connection = "
                                            "\"single-phase\" or remove it")
