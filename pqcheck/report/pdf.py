@@ -1060,6 +1060,8 @@ def _assessment_block(b: _Builder, run, a) -> None:
                       f"{numfmt.margin(min(margins), signed=False)} inside its limit on every "
                       f"phase ({statistic}).", "body"))
             continue
+        # the orders that decide first (a short table fills the page), then the chart
+        _harmonic_table(b, run, lim, group, what, statistic, unit, full=False)
         data = figures.spectrum_from_checks(
             res, group, title=f"{run.id}: {what} harmonics against {lim.table_id}",
             unit_label=unit_label)
@@ -1071,7 +1073,6 @@ def _assessment_block(b: _Builder, run, a) -> None:
                      "over their limit are filled black and marked \u2715, undecided orders "
                      f"hatched and marked {VERDICT_MARK['inconclusive']}; each mark carries its "
                      "order number when a panel has few of them, else the panel counts them.")
-        _harmonic_table(b, run, lim, group, what, statistic, unit, full=False)
     gate_codes = {f"inconclusive: {c.quantity}" for c in checks if _is_gate(c)}
     notes = _group_notes([c for c in checks if not _is_gate(c)], skip=gate_codes)
     if notes:
