@@ -172,8 +172,8 @@ def render_summary(summary: dict, run) -> str:
         lines.append("")
         lines.append(f"Results    {', '.join(run.written)} ({run.rows_written} rows)")
     lines.append("")
-    lines.append("Margin = (limit - measured) / limit; negative means the limit is exceeded. A "
-                 "pqcheck verdict is an engineering aid, not a certification.")
+    lines += _wrap("Margin = (limit - measured) / limit; negative means the limit is exceeded. "
+                   "A pqcheck verdict is an engineering aid, not a certification.", "", "")
     return "\n".join(lines) + "\n"
 
 
