@@ -56,7 +56,18 @@ from ._limit_model import (
 from .errors import LimitTableError
 from .files.toml import KeyLines, TooDeep, syntax_error_line, tomllib
 from .files.toml import loads as toml_loads
-from .files.tomldoc import NONNEG, NUM, POS, STR, Field, check_value, missing_key, unknown_key
+from .files.tomldoc import (
+    NONNEG,
+    NUM,
+    POS,
+    STR,
+    TABLE,
+    Field,
+    as_field,
+    check_value,
+    missing_key,
+    unknown_key,
+)
 
 __all__ = ["parse_table", "block_keys"]
 
@@ -66,14 +77,18 @@ _TOP_FIELDS = ("schema", "id", "title", "standard", "edition", "clause", "measur
 _SCOPE_FIELDS = ("location", "nominal_frequency_hz", "rules", "tag", "note")
 _SCOPE_RULE_FIELDS = ("quantity", "range", "reason", "effect", "unknown", "tolerance", "tag",
                       "note")
-_OBS_FIELDS = ("minimum_s", "representative_s", "behaviour", "default_behaviour", "tag", "note")
-_BEHAVIOUR_FIELDS = ("minimum_s", "cycles", "representative_s", "tag", "note")
+_TAG = Field(STR, choices=TAGS)
+# Sections declared as data (pqcheck.files.tomldoc.Field), read by _Ctx.section:
+_OBSERVATION = {"minimum_s": NONNEG, "representative_s": POS, "behaviour": TABLE,
+                "default_behaviour": STR, "tag": _TAG, "note": STR}
+_BEHAVIOUR = {"minimum_s": Field(NONNEG, required=""), "cycles": NONNEG,
+              "representative_s": POS, "tag": _TAG, "note": STR}
+_DERIVE = {"from": Field(STR, required=""), "factor": POS, "orders": STR}
 _BLOCK_FIELDS = ("name", "clause", "applies_to", "basis", "unit", "columns", "parity", "values",
                  "items", "even", "rows", "derive", "tag", "note")
 _ROW_FIELDS = ("values", "items", "clause", "tag", "note")
 _ITEM_FIELDS = ("orders", "quantity", "limit", "times", "tag", "note")
 _EVEN_FIELDS = ("orders", "factor", "limit", "tag", "note")
-_DERIVE_FIELDS = ("from", "factor", "orders")
 _SELECTOR_FIELDS = {
     "band": ("help", "default", "closed"),
     "points": ("help", "default", "interpolate", "ssc_divisor"),
@@ -155,6 +170,26 @@ class _Ctx:
             self.error(problem, where)
             return default
         return val
+
+    def section(self, d: dict, where, schema: dict) -> dict:
+        """A section declared as data (key -> :class:`~pqcheck.files.tomldoc.Field`): every
+        problem recorded (the validator's wording), the valid values returned."""
+        for k in d:
+            if k not in schema:
+                self.error(unknown_key(k, schema), where + (k,))
+        out = {}
+        for key, spec in schema.items():
+            f = as_field(spec)
+            if key not in d:
+                if f.required is not None:
+                    self.missing(key, where)
+                continue
+            v, problem = check_value(d[key], f)
+            if problem is not None:
+                self.error(problem, where + (key,))
+            else:
+                out[key] = v
+        return out
 
     def tag(self, d, where):
         return self.string(d, "tag", where, choices=TAGS)
@@ -609,30 +644,22 @@ def _observation(ctx: _Ctx, raw) -> Observation:
     if not isinstance(raw, dict):
         ctx.error("must be a table ([observation])", where)
         return Observation()
-    ctx.keys(raw, _OBS_FIELDS, where, "[observation]")
-    minimum = ctx.number(raw, "minimum_s", where, default=0.0, nonneg=True, what="minimum_s")
-    rep = ctx.number(raw, "representative_s", where, default=None, positive=True,
-                     what="representative_s")
-    beh_raw = raw.get("behaviour", {})
+    obs = ctx.section(raw, where, _OBSERVATION)
+    minimum = obs.get("minimum_s", 0.0)
+    rep = obs.get("representative_s")
+    beh_raw = raw.get("behaviour", {}) if isinstance(raw.get("behaviour", {}), dict) else {}
     behaviours = []
-    if not isinstance(beh_raw, dict):
-        ctx.error("must be [observation.behaviour.NAME] sections", where + ("behaviour",))
-        beh_raw = {}
     for name, d in beh_raw.items():
         w = where + ("behaviour", name)
         if not isinstance(d, dict):
             ctx.error(f"must be a table, e.g. [observation.behaviour.{name}]", w)
             continue
-        ctx.keys(d, _BEHAVIOUR_FIELDS, w, f"[observation.behaviour.{name}]")
+        b = ctx.section(d, w, _BEHAVIOUR)
         behaviours.append(Behaviour(
-            name=name,
-            minimum_s=ctx.number(d, "minimum_s", w, required=True, nonneg=True,
-                                 what="minimum_s") or 0.0,
-            cycles=ctx.number(d, "cycles", w, default=0.0, nonneg=True, what="cycles") or 0.0,
-            representative_s=ctx.number(d, "representative_s", w, default=None, positive=True,
-                                        what="representative_s"),
-            tag=ctx.tag(d, w), note=ctx.string(d, "note", w)))
-    default = ctx.string(raw, "default_behaviour", where)
+            name=name, minimum_s=b.get("minimum_s", 0.0), cycles=b.get("cycles", 0.0),
+            representative_s=b.get("representative_s"), tag=b.get("tag", ""),
+            note=b.get("note", "")))
+    default = obs.get("default_behaviour", "")
     names = [b.name for b in behaviours]
     if behaviours and not default:
         ctx.error("default_behaviour is missing: name the behaviour used when the user declares "
@@ -640,9 +667,9 @@ def _observation(ctx: _Ctx, raw) -> Observation:
     elif default and default not in names:
         ctx.error(f"default_behaviour {default!r} is not one of the behaviours given "
                   f"({', '.join(names) or 'none'})", where + ("default_behaviour",))
-    return Observation(minimum_s=minimum or 0.0, representative_s=rep,
+    return Observation(minimum_s=minimum, representative_s=rep,
                        behaviours=tuple(behaviours), default_behaviour=default,
-                       tag=ctx.tag(raw, where), note=ctx.string(raw, "note", where))
+                       tag=obs.get("tag", ""), note=obs.get("note", ""))
 
 
 # --- limits blocks -------------------------------------------------------------------------
@@ -951,10 +978,11 @@ def _derive(ctx, raw, where) -> Derive | None:
     if not isinstance(raw, dict):
         ctx.error("derive must be a table { from = \"Class A\", factor = 1.5 }", where)
         return None
-    ctx.keys(raw, _DERIVE_FIELDS, where, "derive")
-    src = ctx.string(raw, "from", where, required=True)
-    factor = ctx.number(raw, "factor", where, default=1.0, positive=True, what="factor")
-    spec = ctx.string(raw, "orders", where)
+    n_err = len(ctx.errors)
+    d = ctx.section(raw, where, _DERIVE)
+    src, factor, spec = d.get("from", ""), d.get("factor", 1.0), d.get("orders", "")
+    if len(ctx.errors) > n_err:
+        return None
     if spec and not _orders(ctx, spec, where + ("orders",)):
         return None
     if not src or factor is None:

@@ -262,3 +262,19 @@ def test_the_same_mistake_is_refused_the_same_way(decoy, kind, mistake):
     assert res.exit_code == 2, res.output
     assert re.search(rf"{re.escape(where)}: {re.escape(field)}: {problem}", res.output)
     assert not (decoy / "r.pdf").exists() and not (decoy / "s.json").exists()
+
+
+@pytest.mark.parametrize("section, field, problem", [
+    ('[observation.behaviour.steady]\ncycles = 10\n', "observation.behaviour.steady.minimum_s",
+     r"missing field 'minimum_s'"),
+    ('[observation.behaviour.steady]\nminimum_s = 600\nminimun_s = 1\n',
+     "observation.behaviour.steady.minimun_s",
+     r"unknown field 'minimun_s'; did you mean 'minimum_s'\? \(allowed: cycles, "),
+    ('[observation]\nrepresentative_s = -2\n', "observation.representative_s", OUT_OF_RANGE),
+])
+def test_declared_sections_of_a_limit_table(tmp_path, section, field, problem):
+    # sections of a limit table declared as data get the validator's words too
+    head = '[observation]\ndefault_behaviour = "steady"\n' if "behaviour" in section else ""
+    path = _write(tmp_path, "table.toml", TABLE + "\n" + head + section)
+    with pytest.raises(ValueError, match=rf"table\.toml:\d+: {re.escape(field)}: {problem}"):
+        load_table(path)

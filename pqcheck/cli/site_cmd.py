@@ -66,17 +66,19 @@ def render_site_table(study) -> str:
     if s.path is not None:
         out.append(f"File        {s.path}  (SHA-256 {s.sha256[:16]}...)")
     sup = s.supply
-    out.append(f"Supply      {_f(sup.nominal_voltage_v / 1e3, 5)} kV, Ssc "
-               f"{_f(sup.ssc_va / 1e6, 5)} MVA (Isc {_f(sup.isc_a / 1e3, 5)} kA), X/R "
-               f"{_f(sup.x_over_r)}")
+    # as the site report: site-file values as given, computed ones by numfmt's kinds
+    out.append(f"Supply      {numfmt.given(sup.nominal_voltage_v / 1e3)} kV, Ssc "
+               f"{numfmt.given(sup.ssc_va / 1e6)} MVA (Isc {_f(sup.isc_a / 1e3, 4)} kA), X/R "
+               f"{numfmt.given(sup.x_over_r)}")
     if t is not None:
-        out.append(f"Transformer {_f(t.rating_va / 1e3, 5)} kVA, {_f(t.primary_v / 1e3, 5)} / "
-                   f"{_f(t.secondary_v / 1e3, 5)} kV, {_f(t.impedance_percent)} %, X/R "
-                   f"{_f(t.x_over_r)}, {t.vector_group}; loading "
-                   f"{_f(study.transformer_loading_percent, 3)} % of rating")
+        out.append(f"Transformer {numfmt.given(t.rating_va / 1e3)} kVA, "
+                   f"{numfmt.given(t.primary_v / 1e3)} / {numfmt.given(t.secondary_v / 1e3)} kV, "
+                   f"{numfmt.given(t.impedance_percent)} %, X/R {numfmt.given(t.x_over_r)}, "
+                   f"{t.vector_group}; loading "
+                   f"{numfmt.value(study.transformer_loading_percent, 'percent')} of rating")
     where = "transformer primary (supply side)" if s.pcc_location == "supply" and t else \
         "transformer secondary (units' bus)" if t else "supply terminals"
-    out.append(f"PCC         {_f(study.pcc_voltage_v / 1e3, 5)} kV at the {where}; "
+    out.append(f"PCC         {_f(study.pcc_voltage_v / 1e3, 4)} kV at the {where}; "
                f"Z = {_f(study.z_pcc_ohm.real, 4)} + j{_f(study.z_pcc_ohm.imag, 4)} Ohm")
     out.append(f"            ISC {_f(study.isc_a, 5, 'A')}, IL {_f(study.il_a, 5, 'A')} "
                f"({study.il_source}), ISC/IL {_f(study.isc_il, 4)}")

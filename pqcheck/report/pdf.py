@@ -58,7 +58,6 @@ from .style import (
     VERDICT_MARK,
     VERDICT_WORD,
     esc,
-    fmt,
     fmt_pct,
     printable,
     register_fonts,
@@ -702,7 +701,7 @@ def _pcc_basis(plan) -> str:
     if il:
         parts.append(f"IL = {numfmt.given(il)} A")
     if isc and il:
-        parts.append(f"ISC/IL = {fmt(isc / il, 3)}")
+        parts.append(f"ISC/IL = {numfmt.value(isc / il, 'ratio')}")
     text_ = ", ".join(parts) + " (test plan, [site])"
     if site.notes:
         text_ += f"; {site.notes}"
@@ -1562,14 +1561,15 @@ def _test_setup(b: _Builder) -> None:
         ("Site address", site.address),
         ("Transformer", "" if tr is None else ", ".join(x for x in (
             tr.description,
-            f"{fmt(tr.rating_va / 1e3, 4)} kVA" if tr.rating_va else "",
-            f"{fmt(tr.primary_v, 5)} V / {fmt(tr.secondary_v, 5)} V"
+            f"{numfmt.given(tr.rating_va / 1e3)} kVA" if tr.rating_va else "",
+            f"{numfmt.given(tr.primary_v)} V / {numfmt.given(tr.secondary_v)} V"
             if tr.primary_v and tr.secondary_v else "",
-            f"{fmt(tr.impedance_percent, 3)} % impedance" if tr.impedance_percent else "")
+            f"{numfmt.given(tr.impedance_percent)} % impedance" if tr.impedance_percent else "")
             if x)),
         ("Location of the measurement", cond.location),
         ("Supply", cond.supply),
-        ("Ambient", f"{fmt(cond.ambient_c, 3)} \u00b0C" if cond.ambient_c is not None else ""),
+        ("Ambient", f"{numfmt.given(cond.ambient_c)} \u00b0C" if cond.ambient_c is not None
+         else ""),
         ("Conditions", cond.notes),
         ("Plan notes", plan.notes)) if v]
     if pairs:
@@ -1599,15 +1599,16 @@ def _method(b: _Builder) -> None:
     for r in job.runs:
         s, res = r.result.settings, r.result
         rows.append([
-            r.id, f"{fmt(s.nominal_hz, 3, 'Hz')} ({s.nominal_source})",
+            r.id, f"{numfmt.given(s.nominal_hz, 'Hz')} ({s.nominal_source})",
             f"{s.cycles_per_window} cycles",
             f"fundamental of {s.reference}",
-            f"{fmt(res.fundamental_hz, 6, 'Hz')} ({fmt(res.freq_min_hz, 6)} to "
-            f"{fmt(res.freq_max_hz, 6)})",
+            f"{numfmt.value(res.fundamental_hz, 'frequency')} "
+            f"({numfmt.value(res.freq_min_hz, 'frequency', unit='')} to "
+            f"{numfmt.value(res.freq_max_hz, 'frequency', unit='')})",
             f"2 to {res.max_resolved_order}" + (f" (asked {s.max_order})"
                                                if res.max_resolved_order < s.max_order else ""),
             f"{s.wiring} ({s.wiring_source})" if s.wiring else "\u2013",
-            fmt(s.il_a, 5, "A") if s.il_a else "\u2013"])
+            numfmt.given(s.il_a, "A") if s.il_a else "\u2013"])
     b.add(b.table(rows, [0.14, 0.12, 0.09, 0.15, 0.2, 0.1, 0.12, 0.08]))
     b.add(b.p("Settings as the analysis ran (user = given; detected/inferred = determined "
               "from the data).", "caption"))
@@ -1648,12 +1649,12 @@ def _uncertainty(b: _Builder) -> None:
                 ins.role, " / ".join(x for x in (ins.model, ins.serial) if x),
                 ", ".join(ins.channels),
                 " / ".join(x for x in (ins.ratio, ins.range) if x),
-                fmt(ins.bandwidth_hz, 4, "Hz") if ins.bandwidth_hz else "\u2013",
+                numfmt.given(ins.bandwidth_hz, "Hz") if ins.bandwidth_hz else "\u2013",
                 ins.accuracy, ins.measurement_category, ins.calibration_due])
         b.add(b.table(rows, [0.11, 0.16, 0.12, 0.13, 0.11, 0.14, 0.11, 0.12]))
         if plan.conditions.ambient_c is not None or plan.conditions.supply:
             b.add(b.p("Conditions: " + "; ".join(x for x in (
-                f"ambient {fmt(plan.conditions.ambient_c, 3)} \u00b0C"
+                f"ambient {numfmt.given(plan.conditions.ambient_c)} \u00b0C"
                 if plan.conditions.ambient_c is not None else "",
                 f"supply: {plan.conditions.supply}" if plan.conditions.supply else "") if x)
                 + ".", "small"))

@@ -269,15 +269,16 @@ def _inputs_section(study, st) -> list:
     out = [CondPageBreak(60 * mm), Paragraph("Supply, transformer and PCC", st["h2"])]
     sup = s.supply
     rows = [["Item", "Value"],
-            ["Supply", f"{fmt(sup.nominal_voltage_v / 1e3, 4)} kV; short-circuit power "
-                       f"{fmt(sup.ssc_va / 1e6, 4)} MVA ({fmt(sup.isc_a / 1e3, 4)} kA); "
-                       f"X/R {fmt(sup.x_over_r, 3)}"]]
+            ["Supply", f"{numfmt.given(sup.nominal_voltage_v / 1e3)} kV; short-circuit power "
+                       f"{numfmt.given(sup.ssc_va / 1e6)} MVA ({fmt(sup.isc_a / 1e3, 4)} kA); "
+                       f"X/R {numfmt.given(sup.x_over_r)}"]]
     if t is not None:
         rows.append(["Site transformer",
-                     f"{fmt(t.rating_va / 1e3, 4)} kVA, {fmt(t.primary_v / 1e3, 4)} / "
-                     f"{fmt(t.secondary_v / 1e3, 4)} kV, {fmt(t.impedance_percent, 3)} %, X/R "
-                     f"{fmt(t.x_over_r, 3)}, {esc(t.vector_group)}; loading "
-                     f"{fmt(study.transformer_loading_percent, 3)} % of rating"])
+                     f"{numfmt.given(t.rating_va / 1e3)} kVA, {numfmt.given(t.primary_v / 1e3)} / "
+                     f"{numfmt.given(t.secondary_v / 1e3)} kV, "
+                     f"{numfmt.given(t.impedance_percent)} %, X/R {numfmt.given(t.x_over_r)}, "
+                     f"{esc(t.vector_group)}; loading "
+                     f"{numfmt.value(study.transformer_loading_percent, 'percent')} of rating"])
     where = ("the transformer's primary (supply side)" if t is not None and
              s.pcc_location == "supply" else "the transformer's secondary (units' bus)"
              if t is not None else "the supply terminals")
