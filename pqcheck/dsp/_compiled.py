@@ -45,22 +45,51 @@ def available() -> bool:
         if "ok" in _KERNELS:
             return _KERNELS["ok"]
         if os.environ.get("PQCHECK_NO_JIT", "").strip() in ("", "0"):
-            try:
-                import numba
-            except ImportError:  # pragma: no cover - numba is a dependency
-                numba = None
-            if numba is not None:
-                try:  # machine code cached beside this file (or in the user's cache)
-                    jit = numba.njit(nogil=True, cache=True, fastmath=_FAST)
-                    kernels = {"resample": jit(_resample_py),
-                               "phase_sums": jit(_phase_sums_py)}
-                except RuntimeError:  # nowhere to cache it: compile in every process
-                    jit = numba.njit(nogil=True, fastmath=_FAST)
-                    kernels = {"resample": jit(_resample_py),
-                               "phase_sums": jit(_phase_sums_py)}
-                _KERNELS.update(kernels)
+            with _signals_held():
+                _KERNELS.update(_build())
         _KERNELS["ok"] = "resample" in _KERNELS
     return _KERNELS["ok"]
+
+
+class _signals_held:
+    """Hold SIGINT and SIGTERM back while numba is imported: a signal handled in the middle
+    of an extension module's initialisation turns into "ImportError: initialization failed"
+    and loses the signal (the command would end as an internal error instead of 130/143).
+    Held, the signal arrives right after the import, as anywhere else."""
+
+    def __enter__(self):
+        import signal
+        import threading
+
+        self._old = None
+        if (hasattr(signal, "pthread_sigmask")
+                and threading.current_thread() is threading.main_thread()):
+            self._old = signal.pthread_sigmask(signal.SIG_BLOCK,
+                                               {signal.SIGINT, signal.SIGTERM})
+        return self
+
+    def __exit__(self, *exc):
+        if self._old is not None:
+            import signal
+
+            signal.pthread_sigmask(signal.SIG_SETMASK, self._old)
+        return False
+
+
+def _build() -> dict:
+    """The compiled kernels (empty when numba cannot be imported). The machine code is
+    cached beside this file (or in the user's cache); where numba finds nowhere to keep it,
+    every process compiles."""
+    try:
+        import numba
+    except ImportError:  # pragma: no cover - numba is a dependency
+        return {}
+    try:
+        jit = numba.njit(nogil=True, cache=True, fastmath=_FAST)
+        return {"resample": jit(_resample_py), "phase_sums": jit(_phase_sums_py)}
+    except RuntimeError:
+        jit = numba.njit(nogil=True, fastmath=_FAST)
+        return {"resample": jit(_resample_py), "phase_sums": jit(_phase_sums_py)}
 
 
 def _resample_py(x, starts, lengths, warp, table, half, phases, out):  # pragma: no cover
