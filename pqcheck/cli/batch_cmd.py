@@ -30,20 +30,6 @@ def _wrap(text: str, first: str, rest: str) -> list:
                          break_on_hyphens=False)
 
 
-def _split_causes(text: str) -> list:
-    """``"a (x; y); b"`` -> ``["a (x; y)", "b"]``: split at ``"; "`` outside brackets."""
-    parts, depth, cur = [], 0, ""
-    for i, ch in enumerate(text):
-        depth += {"(": 1, ")": -1}.get(ch, 0)
-        if depth == 0 and text.startswith("; ", i):
-            parts.append(cur)
-            cur = ""
-            continue
-        if not (depth == 0 and ch == " " and cur == "" and parts):
-            cur += ch
-    return [p.strip() for p in parts + [cur] if p.strip()]
-
-
 def undecided_causes(table) -> list:
     """Why the inconclusive captures of a results table are undecided, grouped by cause.
 
@@ -57,7 +43,7 @@ def undecided_causes(table) -> list:
         ``code``, ``text`` (the reason, variants of one wording merged), ``captures`` (the
         inconclusive captures it concerns, in table order), ``channels``; most captures first.
     """
-    from ..report.text import merge_variants
+    from ..report.text import merge_variants, split_remarks
 
     cols = ["capture", "capture_verdict", "quantity", "statistic", "channel", "verdict",
             "note"]
@@ -85,7 +71,7 @@ def undecided_causes(table) -> list:
         if not note.startswith("inconclusive: "):
             add("undecided", "", r["capture"], r["channel"])
             continue
-        for k, cause in enumerate(_split_causes(note.removeprefix("inconclusive: "))):
+        for k, cause in enumerate(split_remarks(note.removeprefix("inconclusive: "))):
             code, _, rest = cause.partition(" (")
             if code in gate_codes:  # a gate: its own row says why
                 add(code, "", r["capture"], r["channel"])

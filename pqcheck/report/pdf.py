@@ -65,7 +65,7 @@ from .style import (
     shown_path,
     styles,
 )
-from .text import merge_variants
+from .text import merge_variants, split_remarks
 
 __all__ = ["render_pdf", "ATTACHMENT_NAME", "PAGE_SIZE"]
 
@@ -1135,19 +1135,6 @@ def _totals_table(b: _Builder, run, lim, totals) -> None:
 _NUMBER = re.compile(r"[-+]?\d+(?:\.\d+)?(?:e[-+]?\d+)?")
 
 
-def _fragments(note: str) -> list:
-    """Split a check's note at top-level ``"; "`` (not inside parentheses)."""
-    out, depth, start = [], 0, 0
-    for i, ch in enumerate(note):
-        depth += ch == "("
-        depth -= ch == ")"
-        if depth == 0 and note.startswith("; ", i):
-            out.append(note[start:i])
-            start = i + 2
-    out.append(note[start:])
-    return [f.strip() for f in out if f.strip()]
-
-
 def _strip_parens(text: str) -> tuple:
     """Text without its top-level parenthesised parts, and whether there were any."""
     out, depth = [], 0
@@ -1173,7 +1160,7 @@ def _group_notes(checks, skip=()) -> list:
     """
     groups: dict = {}
     for c in checks:
-        for frag in _fragments(getattr(c, "note", "") or ""):
+        for frag in split_remarks(getattr(c, "note", "") or ""):
             if frag in skip:
                 continue
             stripped, had = _strip_parens(frag)

@@ -10,6 +10,7 @@ import re
 
 __all__ = [
     "merge_variants",
+    "split_remarks",
     "NOT_CERTIFICATION",
     "SAFETY_CAUTIONS",
     "DEFERENCE",
@@ -157,3 +158,17 @@ def merge_variants(texts) -> list:
             text += v + p
         out.append(text)
     return out
+
+
+def split_remarks(note: str) -> list:
+    """A check's note split at ``"; "`` outside parentheses: ``"a (x; y); b"`` ->
+    ``["a (x; y)", "b"]`` (a finding's message in brackets stays whole)."""
+    out, depth, start = [], 0, 0
+    for i, ch in enumerate(note):
+        depth += ch == "("
+        depth -= ch == ")"
+        if depth == 0 and note.startswith("; ", i):
+            out.append(note[start:i])
+            start = i + 2
+    out.append(note[start:])
+    return [f.strip() for f in out if f.strip()]
