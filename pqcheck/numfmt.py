@@ -38,7 +38,7 @@ from dataclasses import dataclass
 
 __all__ = ["MISSING", "Kind", "KINDS", "number", "fixed", "value", "power", "given", "margin",
            "decimals_for", "column", "value_and_limit", "channel_columns", "marked", "check_key",
-           "check_decimals", "check_cells"]
+           "check_decimals", "check_cells", "order_ranges"]
 
 MISSING = "\u2013"
 """How a missing value (None, NaN) is written."""
@@ -417,3 +417,17 @@ def check_cells(check, decimals: dict | None = None) -> tuple:
         dec = decimals_for([check.limit])
     return (fixed(check.measured, dec), fixed(check.limit, dec),
             margin(check.margin_percent))
+
+
+def order_ranges(orders, dash: str = "\u2013") -> str:
+    """Harmonic orders written as runs: ``[2, 3, 4, 5, 7]`` -> ``"2–5, 7"`` (``dash`` between
+    the ends of a run of three or more, or of two)."""
+    orders = sorted({int(o) for o in orders})
+    parts, k = [], 0
+    while k < len(orders):
+        j = k
+        while j + 1 < len(orders) and orders[j + 1] == orders[j] + 1:
+            j += 1
+        parts.append(str(orders[k]) if j == k else f"{orders[k]}{dash}{orders[j]}")
+        k = j + 1
+    return ", ".join(parts)

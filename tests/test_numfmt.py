@@ -341,3 +341,11 @@ def test_report_and_cli_format_numbers_only_through_numfmt():
                       and node.func.id in ("format", "round")):
                     bad.append(f"{rel}:{node.lineno}: {node.func.id}()")
     assert bad == []
+
+
+def test_order_ranges_one_writer_for_report_and_terminal():
+    from pqcheck import numfmt
+
+    assert numfmt.order_ranges([7, 2, 3, 4, 5, 5]) == "2\u20135, 7"
+    assert numfmt.order_ranges([11, 13, 12], "-") == "11-13"
+    assert numfmt.order_ranges([]) == ""

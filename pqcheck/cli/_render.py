@@ -83,15 +83,9 @@ def _phases(checks) -> list:
 
 def _orders_text(checks) -> str:
     totals = list(dict.fromkeys(k.label for k in checks if k.quantity != "harmonic"))
-    orders = sorted({k.order for k in checks if k.quantity == "harmonic" and k.order})
-    parts, i = [], 0
-    while i < len(orders):
-        j = i
-        while j + 1 < len(orders) and orders[j + 1] == orders[j] + 1:
-            j += 1
-        parts.append(str(orders[i]) if i == j else f"{orders[i]}-{orders[j]}")
-        i = j + 1
-    return ", ".join(totals + ([f"orders {', '.join(parts)}"] if parts else []))
+    orders = [k.order for k in checks if k.quantity == "harmonic" and k.order]
+    text = numfmt.order_ranges(orders, "-")
+    return ", ".join(totals + ([f"orders {text}"] if text else []))
 
 
 def render_assessment(assessment, result=None, *, all_rows: bool = False,

@@ -424,16 +424,8 @@ def _basis_label(lim, quantity: str, unit: str) -> str:
 
 
 def _compact_orders(orders) -> str:
-    """``[2, 3, 4, 5, 7]`` -> ``"2-5, 7"`` (with en dashes)."""
-    orders = sorted(set(orders))
-    parts, k = [], 0
-    while k < len(orders):
-        j = k
-        while j + 1 < len(orders) and orders[j + 1] == orders[j] + 1:
-            j += 1
-        parts.append(str(orders[k]) if j == k else f"{orders[k]}\u2013{orders[j]}")
-        k = j + 1
-    return ", ".join(parts)
+    """``[2, 3, 4, 5, 7]`` -> ``"2–5, 7"`` (with en dashes)."""
+    return numfmt.order_ranges(orders)
 
 
 def _where(job, verdict: str) -> list:
