@@ -49,39 +49,49 @@ def capture_files(path) -> list:
     return [p]
 
 
-class _HashThread:
+class BackgroundHash:
     """:func:`capture_sha256` of a file computed on a thread (hashlib releases the GIL), so
-    that a binary capture is hashed on one core while its blocks are analysed on the other;
-    :meth:`result` waits for it and raises what the hashing raised."""
+    that a capture is hashed on one core while its blocks are parsed or analysed on the
+    other; :meth:`result` waits for it and raises what the hashing raised, :meth:`cancel`
+    stops it early (after an error elsewhere)."""
 
     def __init__(self, path):
         import threading
 
         self._out = {}
+        self._stop = threading.Event()
         self._thread = threading.Thread(target=self._run, args=(path,), daemon=True,
                                         name="pqcheck-hash")
         self._thread.start()
 
     def _run(self, path):
         try:
-            self._out["sha"] = capture_sha256(path)
+            self._out["sha"] = capture_sha256(path, stop=self._stop)
         except BaseException as exc:  # noqa: BLE001 - handed to the caller in result()
             self._out["error"] = exc
 
     def result(self) -> str:
+        """The hex digest (waits for the thread)."""
         self._thread.join()
         if "error" in self._out:
             raise self._out["error"]
         return self._out["sha"]
 
+    def cancel(self) -> None:
+        """Stop reading (the digest is then not available)."""
+        self._stop.set()
 
-def capture_sha256(path) -> str:
+
+def capture_sha256(path, *, stop=None) -> str:
     """SHA-256 of a capture as its reader records it in the provenance (hex).
 
     A COMTRADE record (its ``.cfg`` or ``.dat``): one hash over the .cfg bytes followed by the
     .dat bytes. A ``.npy`` array with a side-car ``.json`` (column names, sample rate): the
     array's bytes followed by the side-car's, so editing either changes the hash. Any other
     file: the hash of its bytes.
+
+    ``stop`` (a ``threading.Event``) ends the reading early when set; the result is then
+    not the file's hash (see :class:`BackgroundHash`).
 
     Raises
     ------
@@ -97,6 +107,8 @@ def capture_sha256(path) -> str:
             require_regular_file(f, what="capture", error=CaptureFormatError)
             with open(f, "rb") as fh:
                 for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
+                    if stop is not None and stop.is_set():
+                        return ""
                     h.update(block)
         return h.hexdigest()
     except FileNotFoundError:
@@ -217,7 +229,7 @@ def open_capture(
 
         opener = open_npy if suffix == ".npy" else open_parquet
         cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column, sha256="")
-        cap.hash_pending(_HashThread(p))  # hashed on a thread while the blocks are analysed
+        cap.hash_pending(BackgroundHash(p))  # hashed on a thread while the blocks are analysed
     elif looks_like_spice_raw(p):
         from .spice import read_spice_raw
 

@@ -23,6 +23,7 @@ import pandas as pd
 from ..capture import CaptureStream, Provenance
 from ..errors import CaptureFormatError
 from ..findings import Finding
+from . import BackgroundHash
 from . import delimited as _d
 
 __all__ = ["stream_delimited", "NotStreamable"]
@@ -35,41 +36,6 @@ seven columns whatever the length of the file."""
 
 class NotStreamable(Exception):
     """The file needs the whole-file reader (non-uniform time base, compressed, UTF-16)."""
-
-
-class _BackgroundHash:
-    """SHA-256 of a file computed on a thread while the caller does other work."""
-
-    def __init__(self, path):
-        import threading
-
-        self._sha = hashlib.sha256()
-        self._stop = threading.Event()
-        self._error = None
-        self._path = path
-        self._thread = threading.Thread(target=self._run, daemon=True, name="pqcheck-hash")
-        self._thread.start()
-
-    def _run(self):
-        try:
-            with open(self._path, "rb") as fh:
-                for block in iter(lambda: fh.read(1 << 20), b""):
-                    if self._stop.is_set():
-                        return
-                    self._sha.update(block)
-        except OSError as exc:
-            self._error = exc
-
-    def result(self) -> str:
-        """The hex digest (waits for the thread)."""
-        self._thread.join()
-        if self._error is not None:
-            raise CaptureFormatError(f"cannot read the file: {self._error}", path=self._path)
-        return self._sha.hexdigest()
-
-    def cancel(self) -> None:
-        """Stop early (after an error elsewhere)."""
-        self._stop.set()
 
 
 class _HashingRaw(io.RawIOBase):
@@ -300,7 +266,7 @@ def _run_in_process(spec: dict, out: dict):
     child.close()
     # the child only parses; the SHA-256 is computed here on a thread (started after the
     # fork), where the analysis leaves the core idle part of the time
-    hasher = _BackgroundHash(spec["path"])
+    hasher = BackgroundHash(spec["path"])
     try:
         while True:
             try:
