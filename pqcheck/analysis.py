@@ -431,84 +431,87 @@ def analyze(
     # work in spans of at least four windows, whatever the sample rate
     span_need = max(int(block_samples), int(4 * one_window_s * fs * 1.06) + 1)
     source = capture.blocks(block_samples)
+    spans = _SpanPipeline(lambda part: (acc.add(part), store.append(part)))
     hint = getattr(capture, "n_samples_hint", None)
     if hint is None and isinstance(capture, Capture):
         hint = capture.n_samples
-    while True:
-        block = next(source, None)
-        final = block is None
-        if not final:
-            blk = np.asarray(block, dtype=np.float64)[rows]
-            if transform is not None:
-                blk = transform @ blk
-            if blk.shape[1] == 0:
+    try:
+        while True:
+            block = next(source, None)
+            final = block is None
+            if not final:
+                blk = np.asarray(block, dtype=np.float64)[rows]
+                if transform is not None:
+                    blk = transform @ blk
+                if blk.shape[1] == 0:
+                    continue
+                finite = np.isfinite(blk)
+                all_finite = bool(finite.all())
+                if not all_finite:
+                    nonfinite += blk.shape[1] - finite.sum(axis=1)
+                del finite
+                for k in range(len(chans)):
+                    clip[k].update(blk[k], finite=all_finite)
+                total += blk.shape[1]
+                buf = blk if buf is None else np.concatenate([buf, blk], axis=1)
+                if progress is not None:
+                    progress(total, hint)
+            if buf is None:
+                break
+            if state is None:
+                if buf.shape[1] < init_need and not final:
+                    continue
+                if final and total < fs * one_window_s * 0.98:
+                    break  # too short for any window: say so, not that no fundamental was found
+                state = _initial_state(buf, fs, chans, reference, nominal_in, max_order, path,
+                                       findings)
+            if not final and buf.shape[1] - (np.floor(start) - buf_start) < span_need:
                 continue
-            finite = np.isfinite(blk)
-            all_finite = bool(finite.all())
-            if not all_finite:
-                nonfinite += blk.shape[1] - finite.sum(axis=1)
-            del finite
-            for k in range(len(chans)):
-                clip[k].update(blk[k], finite=all_finite)
-            total += blk.shape[1]
-            buf = blk if buf is None else np.concatenate([buf, blk], axis=1)
-            if progress is not None:
-                progress(total, hint)
-        if buf is None:
-            break
-        if state is None:
-            if buf.shape[1] < init_need and not final:
-                continue
-            if final and total < fs * one_window_s * 0.98:
-                break  # too short for any window: say so, not that no fundamental was found
-            state = _initial_state(buf, fs, chans, reference, nominal_in, max_order, path,
-                                   findings)
-        if not final and buf.shape[1] - (np.floor(start) - buf_start) < span_need:
-            continue
-        cycles, nominal = state["cycles"], state["nominal_hz"]
-        # keep the interpolation kernel's reach before the first window (spectrum.GUARD)
-        lo = max(0, int(np.floor(start)) - GUARD - buf_start)
-        work = buf[:, lo:]
-        off = buf_start + lo
-        b = np.array([start])
-        halves = None
-        if state["tracked"]:
-            tr = window_boundaries(work[state["ref"]], fs, state["f_demod"], start, cycles,
-                                   offset=off, final=final)
-            state["weak"] |= tr.weak
-            b, halves = tr.boundaries, tr.halves
-        if b.size <= 1 and not (state["tracked"] and final):
-            step = fs * cycles / nominal
-            m = int(np.floor((off + work.shape[1] - start) / step + 1e-9))
-            b = start + step * np.arange(m + 1)
+            cycles, nominal = state["cycles"], state["nominal_hz"]
+            # keep the interpolation kernel's reach before the first window (spectrum.GUARD)
+            lo = max(0, int(np.floor(start)) - GUARD - buf_start)
+            work = buf[:, lo:]
+            off = buf_start + lo
+            b = np.array([start])
             halves = None
-        end = off + work.shape[1]
-        # a window is analysed once the kernel's reach after it is buffered (or the record ends)
-        b = b[np.rint(b) <= end] if final else b[b + GUARD <= end]
-        if halves is not None:
-            halves = halves[: max(b.size - 1, 0)]
-        if b.size > 1:
-            wb = analyse_windows(work, b, max_line=state["max_line"], offset=off, pairs=pairs,
-                                 combos=combos, halves=halves)
-            part = _reduce_block(wb, cycles, max_order, state["resolved"], state["ref"],
-                                 state["tracked"])
-            if acc is None:
-                acc = _Accumulator(chans, max_order, state["resolved"], il_a, pairs,
-                                   volt_abc, curr_abc, neutral)
-            acc.add(part)
-            store.append(part)
-            bounds_all.append(b[1:])
-            f_new = cycles * fs / np.diff(b)
-            if state["tracked"] and np.all(np.isfinite(f_new)):
-                state["f_demod"] = float(np.median(f_new))
-            start = float(b[-1])
-            keep_from = max(0, int(np.floor(start)) - GUARD - buf_start)
-            buf = buf[:, keep_from:]
-            buf_start += keep_from
-        if final:
-            break
-        if b.size <= 1 and buf.shape[1] > 4 * span_need:
-            break  # no progress possible; stop rather than grow the buffer
+            if state["tracked"]:
+                tr = window_boundaries(work[state["ref"]], fs, state["f_demod"], start, cycles,
+                                       offset=off, final=final)
+                state["weak"] |= tr.weak
+                b, halves = tr.boundaries, tr.halves
+            if b.size <= 1 and not (state["tracked"] and final):
+                step = fs * cycles / nominal
+                m = int(np.floor((off + work.shape[1] - start) / step + 1e-9))
+                b = start + step * np.arange(m + 1)
+                halves = None
+            end = off + work.shape[1]
+            # a window is analysed once the kernel's reach after it is buffered (or the record ends)
+            b = b[np.rint(b) <= end] if final else b[b + GUARD <= end]
+            if halves is not None:
+                halves = halves[: max(b.size - 1, 0)]
+            if b.size > 1:
+                if acc is None:
+                    acc = _Accumulator(chans, max_order, state["resolved"], il_a, pairs,
+                                       volt_abc, curr_abc, neutral)
+                job = (work, b, dict(max_line=state["max_line"], offset=off, pairs=pairs,
+                                     combos=combos, halves=halves),
+                       (cycles, max_order, state["resolved"], state["ref"], state["tracked"]))
+                spans.submit(job)
+                bounds_all.append(b[1:])
+                f_new = cycles * fs / np.diff(b)
+                if state["tracked"] and np.all(np.isfinite(f_new)):
+                    state["f_demod"] = float(np.median(f_new))
+                start = float(b[-1])
+                keep_from = max(0, int(np.floor(start)) - GUARD - buf_start)
+                buf = buf[:, keep_from:]
+                buf_start += keep_from
+            if final:
+                break
+            if b.size <= 1 and buf.shape[1] > 4 * span_need:
+                break  # no progress possible; stop rather than grow the buffer
+        spans.drain()
+    finally:
+        spans.close()
 
     if state is None or total < fs * one_window_s * 0.98:
         dur = total / fs
@@ -648,6 +651,77 @@ def analyze(
         findings=tuple(findings),
         reader_settings=dict(capture.provenance.settings),
     )
+
+
+class _SpanPipeline:
+    """The spectra of each span of windows computed on a worker thread, in order.
+
+    The tracker must run span after span (each span starts where the last window of the
+    previous one ended), but the resampling, transforms and time statistics of a span need
+    only its boundaries. So while the calling thread reads and tracks span ``k + 1``, a
+    worker computes span ``k`` (the compiled loops and the FFT release the GIL). At most
+    :attr:`DEPTH` spans are in flight, so memory stays bounded; results are absorbed in
+    submission order, so every sum is the same as on one thread. With one worker thread
+    configured (``spectrum.FFT_WORKERS == 1``: batch worker processes) spans run inline."""
+
+    DEPTH = 1
+
+    def __init__(self, absorb):
+        from .dsp import _compiled, spectrum
+
+        _compiled.available()  # import numba here, on the calling thread (signals held)
+        self._absorb = absorb
+        self._pending: list = []
+        self._pool = None
+        if spectrum._threads() > 1:
+            self._pool = _span_pool()
+
+    @staticmethod
+    def _run(job):
+        work, b, kw, reduce_args = job
+        return _reduce_block(analyse_windows(work, b, **kw), *reduce_args)
+
+    def submit(self, job) -> None:
+        """Compute ``job`` (arguments of :func:`analyse_windows` and :func:`_reduce_block`),
+        absorbing the oldest results beyond :attr:`DEPTH`."""
+        if self._pool is None:
+            self._absorb(self._run(job))
+            return
+        self._pending.append(self._pool.submit(self._run, job))
+        while len(self._pending) > self.DEPTH:
+            self._absorb(self._pending.pop(0).result())
+
+    def drain(self) -> None:
+        """Absorb every span still in flight."""
+        while self._pending:
+            self._absorb(self._pending.pop(0).result())
+
+    def close(self) -> None:
+        """Drop what is still in flight (after an error): cancel what has not started and
+        wait for what has, so that nothing runs on after :func:`analyze` returns."""
+        for fut in self._pending:
+            fut.cancel()
+        for fut in self._pending:
+            if not fut.cancelled():
+                try:
+                    fut.result()
+                except BaseException:  # noqa: BLE001 - the first error is already raised
+                    pass
+        self._pending.clear()
+
+
+_SPAN_POOLS: dict = {}
+
+
+def _span_pool():
+    """The one span worker of this process (a forked child makes its own)."""
+    import os
+    from concurrent.futures import ThreadPoolExecutor
+
+    pid = os.getpid()
+    if pid not in _SPAN_POOLS:
+        _SPAN_POOLS[pid] = ThreadPoolExecutor(max_workers=1, thread_name_prefix="pqcheck-span")
+    return _SPAN_POOLS[pid]
 
 
 def _initial_state(buf, fs, chans, reference, nominal_hz, max_order, path, findings):
