@@ -368,6 +368,7 @@ def analyze(
     fs = float(capture.fs_hz)
     chans = [c for c in capture.channels if c.quantity in ("current", "voltage")]
     rows = np.array([capture.index(c.name) for c in chans])
+    identity_rows = bool(np.array_equal(rows, np.arange(len(capture.channels))))
     findings: list = []
     names = [c.name for c in chans]
     if reference is not None and reference not in names:
@@ -440,7 +441,9 @@ def analyze(
             block = next(source, None)
             final = block is None
             if not final:
-                blk = np.asarray(block, dtype=np.float64)[rows]
+                blk = np.asarray(block, dtype=np.float64)
+                if not identity_rows:  # a gathered copy only when channels are dropped
+                    blk = blk[rows]
                 if transform is not None:
                     blk = transform @ blk
                 if blk.shape[1] == 0:

@@ -178,43 +178,46 @@ def _phase_sums_py(x, mid, count, phi0, k_first, nz, out):  # pragma: no cover
         b = np.pi * (g_s - 2.0 * np.floor(0.5 * g_s))
         qr, qi = np.cos(b), np.sin(b)  # exp(j pi g)
         pr, pi_ = np.cos(np.pi * slope), np.sin(np.pi * slope)
-        # the window index changes where g crosses a whole number: accumulate each run of
-        # equal index in scalars and add it to its two windows when the run ends
-        cur = np.floor(g_s)
-        s_wr = s_wi = s_r = s_i = s_w = 0.0
-        cnt = 0
-        for i in range(lo, hi + 1):
-            if i < hi:
-                fl = np.floor(g_s + (i - lo) * slope)
-            if i == hi or fl != cur:
-                j = int(cur) - 1 - k_first
-                if 0 <= j < nz:
-                    out[0, j] += s_wr
-                    out[1, j] += s_wi
-                    out[2, j] += s_w
-                if 0 <= j + 1 < nz:
-                    out[0, j + 1] += s_r - s_wr
-                    out[1, j + 1] += s_i - s_wi
-                    out[2, j + 1] += cnt - s_w
-                if i == hi:
-                    break
-                cur = fl
-                s_wr = s_wi = s_r = s_i = s_w = 0.0
-                cnt = 0
+        # the window index changes where g crosses a whole number: each run of equal index
+        # is summed in scalars (its end found from the slope, then confirmed with the same
+        # floor test a sample-by-sample loop would make) and added to its two windows
+        i = lo
+        while i < hi:
+            cur = np.floor(g_s + (i - lo) * slope)
+            end = i + 1  # a flat or falling model: sample by sample
+            if slope > 0.0:
+                reach = np.ceil((cur + 1.0 - g_s) / slope)
+                end = hi if reach >= hi - lo else max(lo + int(reach), i + 1)
+            while end < hi and np.floor(g_s + (end - lo) * slope) == cur:
+                end += 1
+            while end - 1 > i and np.floor(g_s + (end - 1 - lo) * slope) != cur:
+                end -= 1
             parity = cur - 2.0 * np.floor(0.5 * cur)
-            c = qr if parity == 0.0 else -qr  # cos(pi frac(g))
-            w = 0.5 * (1.0 + c)
-            xv = x[i]
-            yr = xv * er
-            yi = xv * ei
-            s_wr += w * yr
-            s_wi += w * yi
-            s_r += yr
-            s_i += yi
-            s_w += w
-            cnt += 1
-            er, ei = er * rr - ei * ri, er * ri + ei * rr
-            qr, qi = qr * pr - qi * pi_, qr * pi_ + qi * pr
+            sgn = 0.5 if parity == 0.0 else -0.5  # cos(pi frac(g)) = +-cos(pi g)
+            s_wr = s_wi = s_r = s_i = s_w = 0.0
+            run_len = float(end - i)
+            for _ in range(end - i):
+                w = 0.5 + sgn * qr
+                xv = x[i]
+                yr = xv * er
+                yi = xv * ei
+                s_wr += w * yr
+                s_wi += w * yi
+                s_r += yr
+                s_i += yi
+                s_w += w
+                er, ei = er * rr - ei * ri, er * ri + ei * rr
+                qr, qi = qr * pr - qi * pi_, qr * pi_ + qi * pr
+                i += 1
+            j = int(cur) - 1 - k_first
+            if 0 <= j < nz:
+                out[0, j] += s_wr
+                out[1, j] += s_wi
+                out[2, j] += s_w
+            if 0 <= j + 1 < nz:
+                out[0, j + 1] += s_r - s_wr
+                out[1, j + 1] += s_i - s_wi
+                out[2, j + 1] += run_len - s_w
 
 
 def resample_into(x, starts, lengths, warp, table, half: int, phases: int, out) -> None:

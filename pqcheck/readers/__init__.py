@@ -103,13 +103,15 @@ def capture_sha256(path, *, stop=None) -> str:
     try:
         parts = capture_files(p)
         h = hashlib.sha256()
+        buf = bytearray(1 << 22)  # one buffer, refilled: no allocation per block
+        view = memoryview(buf)
         for f in parts:
             require_regular_file(f, what="capture", error=CaptureFormatError)
-            with open(f, "rb") as fh:
-                for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
+            with open(f, "rb", buffering=0) as fh:
+                while n := fh.readinto(buf):
                     if stop is not None and stop.is_set():
                         return ""
-                    h.update(block)
+                    h.update(view[:n])
         return h.hexdigest()
     except FileNotFoundError:
         raise CaptureFormatError("file not found; check the path", path=str(p)) from None

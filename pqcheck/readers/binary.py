@@ -95,18 +95,20 @@ _READ_ROWS = 1 << 18
 
 
 def _npy_rows(path, arr):
-    """``read(cols, rows)`` for a ``.npy`` array: the rows read from the file piece by piece
-    with ``numpy.fromfile`` (not through the memory map, whose pages would stay resident and
-    count against the process's memory for the whole record), the wanted columns kept as
-    float64. A Fortran-ordered array is read through the memory map."""
+    """``read(cols, rows)`` for a ``.npy`` array: the wanted columns of the rows as float64,
+    channel-major (shape ``(len(cols), rows)``), read from the file piece by piece with
+    ``numpy.fromfile`` (not through the memory map, whose pages would stay resident and count
+    against the process's memory for the whole record); each column of a piece is copied
+    straight into its row of the block (one strided copy, no gathered temporary). A
+    Fortran-ordered array is read through the memory map."""
     row_bytes = arr.dtype.itemsize * arr.shape[1]
     offset = getattr(arr, "offset", None)
     if not arr.flags.c_contiguous or offset is None:
-        return lambda cols, rows: np.asarray(arr[rows][:, cols], dtype=np.float64)
+        return lambda cols, rows: np.array(arr[rows][:, cols].T, dtype=np.float64, order="C")
 
     def read(cols, rows):
         start, stop, _ = rows.indices(arr.shape[0])
-        out = np.empty((max(stop - start, 0), len(cols)))
+        out = np.empty((len(cols), max(stop - start, 0)))
         with open(path, "rb") as fh:
             for lo in range(start, stop, _READ_ROWS):
                 n = min(_READ_ROWS, stop - lo)
@@ -117,7 +119,9 @@ def _npy_rows(path, arr):
                         f"the file ends after {lo + part.size // arr.shape[1]} of "
                         f"{arr.shape[0]} rows; it was truncated or is being written",
                         path=path)
-                out[lo - start:lo - start + n] = part.reshape(n, arr.shape[1])[:, cols]
+                part = part.reshape(n, arr.shape[1])
+                for j, c in enumerate(cols):
+                    out[j, lo - start:lo - start + n] = part[:, c]
         return out
 
     return read
@@ -152,7 +156,8 @@ def open_parquet(path, *, sample_rate_hz=None, time_column=None, sha256="") -> C
             pos += n
             if pos >= stop:
                 break
-        return np.concatenate(out) if out else np.empty((0, len(cols)))
+        return np.ascontiguousarray((np.concatenate(out) if out
+                                     else np.empty((0, len(cols)))).T)
 
     fs = sample_rate_hz or (float(declared) if declared else None)
     return _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
@@ -184,7 +189,7 @@ def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha25
     t0 = 0.0
     settings = {"columns": list(names)}
     if t_idx is not None and fs is None:
-        t = read([t_idx], slice(0, n_rows))[:, 0] * scales[t_idx]
+        t = read([t_idx], slice(0, n_rows))[0] * scales[t_idx]
         fs, t0 = _time_base(t, path, names[t_idx])
         settings["time_base"] = "column"
     elif fs is None:
@@ -200,11 +205,15 @@ def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha25
         raise CaptureFormatError("no signal columns", path=path)
     chans = _channels([names[j] for j in keep], [units[j] for j in keep])
     sc = scales[keep][:, None]
+    unscaled = bool(np.all(sc == 1.0))
 
     def factory(block_samples):
         for lo in range(0, n_rows, block_samples):
             rows = slice(lo, min(n_rows, lo + block_samples))
-            yield np.ascontiguousarray(read(keep, rows).T * sc)
+            block = read(keep, rows)  # (channels, rows), owned: scaled in place
+            if not unscaled:
+                block *= sc
+            yield block
 
     return CaptureStream(fs, chans, factory, Provenance(path, sha256, reader, settings), (), t0,
                          n_rows)
