@@ -19,9 +19,8 @@ from pqcheck.analysis import analyze
 from pqcheck.capture import CaptureStream
 from pqcheck.errors import CaptureFormatError
 from pqcheck.export import analysis_to_dict
-from pqcheck.readers import _numcsv, open_capture
+from pqcheck.readers import _numcsv, open_capture, stream
 from pqcheck.readers import delimited as _d
-from pqcheck.readers import stream
 
 pytestmark = pytest.mark.skipif(not _numcsv.available(), reason="compiled parser unavailable")
 
