@@ -1,9 +1,14 @@
 """Long delimited-text captures read block by block, hashed on the side.
 
 :func:`stream_delimited` returns a :class:`~pqcheck.capture.CaptureStream` whose blocks come
-from pandas' C parser in chunks (the fastest reader measured on our 2-core machines, see
-benchmarks/README.md), parsed on a background thread two chunks ahead of the analysis, so
-peak memory does not grow with the length of the file. The file's SHA-256 is computed on
+from the compiled parser of :mod:`pqcheck.readers._numcsv`: the data rows are cut into pieces
+ending on a line end, parsed on two threads (at most two pieces in flight, in file order) and
+reassembled into tables of exactly the rows pandas' ``chunksize`` would give, so peak memory
+does not grow with the length of the file and the analysis gets the same blocks either way.
+A piece the compiled parser refuses is parsed by pandas (with its line offset); when pandas
+fails on it, the rest of the file is read by pandas' chunked reader, so every message names
+the line it names without the compiled parser. Without it (``PQCHECK_NO_JIT=1``) the text is
+parsed by pandas' C parser in chunks, in a forked process on Linux (see benchmarks/README.md). The file's SHA-256 is computed on
 another thread from a second read of the same bytes (from the page cache). Layout detection is shared with
 :mod:`pqcheck.readers.delimited`; files whose time base is not uniform (variable-step
 simulator exports) are small and go through the in-memory reader instead.
@@ -352,7 +357,7 @@ def _pandas_rest(spec: dict, offset: int, lines_before: int, first: bool):
         fh.close()
 
 
-def _pandas_chunk(spec: dict, buf, n: int, lines_before: int, first: bool):
+def _pandas_chunk(spec: dict, buf, n: int, first: bool):
     """One refused chunk parsed by pandas; None when pandas fails on it (the caller then
     reads the rest of the file with :func:`_pandas_rest`)."""
     d = spec["dialect"]
@@ -409,7 +414,7 @@ def _compiled_tables(spec: dict):
             table, lines = fut.result()
             top_up()
             if table is None:
-                table = _pandas_chunk(spec, buf, n, lines_before, first)
+                table = _pandas_chunk(spec, buf, n, first)
                 if table is None:
                     yield from _pandas_rest(spec, offset, lines_before, first)
                     return
