@@ -10,8 +10,11 @@ Run on demand (never part of the unit tests):
 What is measured, each in a fresh process, interleaved over the repetitions, medians reported:
 
 - ``read``: the file's bytes read in 1 MiB blocks (the floor: disk/page cache);
-- ``parse``: the fastest parser measured on this machine alone (pandas' C engine, chunked, no
-  analysis);
+- ``parse``: pqcheck's own reader alone (the compiled parser of
+  ``pqcheck/readers/_numcsv.py`` on two threads, the blocks it hands the analysis, the SHA-256
+  on a thread; no analysis);
+- ``pandas``: pandas' C engine, chunked, alone (what pqcheck parses with under
+  ``PQCHECK_NO_JIT=1``);
 - ``naive``: a simple baseline, ``pandas.read_csv`` of the whole file plus a Python loop of
   ``numpy.fft.rfft`` over every 4000-sample window of every channel computing THD (no
   synchronisation, no groups, no power: much less than pqcheck does);
@@ -88,6 +91,15 @@ with open(sys.argv[1], 'rb') as fh:
 """
 
 CHILD_PARSE = """
+import sys
+from pqcheck.readers.stream import stream_delimited
+n = 0
+for block in stream_delimited(sys.argv[1]).blocks(1 << 18):
+    n += block.shape[1]
+print(n)
+"""
+
+CHILD_PARSE_PANDAS = """
 import sys, numpy as np, pandas as pd
 n = 0
 for chunk in pd.read_csv(sys.argv[1], engine='c', dtype=np.float64, chunksize=1 << 20):
@@ -172,7 +184,7 @@ def run_child(argv, env=None):
     return dt, (int(text) / 1024 if text else float("nan")), proc.stdout.decode()
 
 
-PARSERS = ("parse", "arrow", "polars", "duckdb")
+PARSERS = ("parse", "pandas", "arrow", "polars", "duckdb")
 
 
 CHILD_TO_NPY = """
@@ -204,6 +216,7 @@ def measure(path: Path, repeat: int, cache_dir: Path):
     jobs = {
         "read": [py, "-c", CHILD_READ, str(path)],
         "parse": [py, "-c", CHILD_PARSE, str(path)],
+        "pandas": [py, "-c", CHILD_PARSE_PANDAS, str(path)],
         "arrow": [py, "-c", CHILD_PARSE_ARROW, str(path)],
         "polars": [py, "-c", CHILD_PARSE_POLARS, str(path)],
         "duckdb": [py, "-c", CHILD_PARSE_DUCKDB, str(path)],

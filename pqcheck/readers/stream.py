@@ -1,9 +1,14 @@
 """Long delimited-text captures read block by block, hashed on the side.
 
 :func:`stream_delimited` returns a :class:`~pqcheck.capture.CaptureStream` whose blocks come
-from pandas' C parser in chunks (the fastest reader measured on our 2-core machines, see
-benchmarks/README.md), parsed on a background thread two chunks ahead of the analysis, so
-peak memory does not grow with the length of the file. The file's SHA-256 is computed on
+from the compiled parser of :mod:`pqcheck.readers._numcsv`: the data rows are cut into pieces
+ending on a line end, parsed on two threads (at most two pieces in flight, in file order) and
+reassembled into tables of exactly the rows pandas' ``chunksize`` would give, so peak memory
+does not grow with the length of the file and the analysis gets the same blocks either way.
+A piece the compiled parser refuses is parsed by pandas (with its line offset); when pandas
+fails on it, the rest of the file is read by pandas' chunked reader, so every message names
+the line it names without the compiled parser. Without it (``PQCHECK_NO_JIT=1``) the text is
+parsed by pandas' C parser in chunks, in a forked process on Linux (see benchmarks/README.md). The file's SHA-256 is computed on
 another thread from a second read of the same bytes (from the page cache). Layout detection is shared with
 :mod:`pqcheck.readers.delimited`; files whose time base is not uniform (variable-step
 simulator exports) are small and go through the in-memory reader instead.
@@ -145,15 +150,20 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
                            (), t0, hint)
     state = {"passes": 0}
 
+    fast = _compiled_layout(d)
     spec = {"path": path, "dialect": d, "names": names, "t_idx": t_idx, "keep": keep,
-            "scales": scales, "fs": fs}
+            "scales": scales, "fs": fs, "colmap": fast,
+            "row_bytes": _avg_row_bytes(path, d)}
 
     def factory(block_samples):
         teeing = tee is not None and state["passes"] == 0
         state["passes"] += 1
         rows = max(1024, min(int(block_samples), CHUNK_ROWS))
         out = {}
-        runner = _run_in_process if _can_fork() else _run_in_thread
+        if fast is not None:
+            runner = _run_compiled
+        else:
+            runner = _run_in_process if _can_fork() else _run_in_thread
         for block in runner(dict(spec, rows=rows), out):
             if teeing:
                 tee.write(block)
@@ -174,7 +184,6 @@ def _produce_blocks(spec: dict, out: dict):
     ``findings``. Errors are raised as :class:`CaptureFormatError` naming the line.
     """
     path, d, names = spec["path"], spec["dialect"], spec["names"]
-    t_idx, keep, scales, fs = spec["t_idx"], spec["keep"], spec["scales"], spec["fs"]
     findings = []
     # The parser reads from a handle that hashes every byte it passes on, positioned at the
     # first data row (pandas' skiprows is much slower than skipping the lines here).
@@ -184,37 +193,276 @@ def _produce_blocks(spec: dict, out: dict):
         for _ in range(d.data_line - 1):
             fh.readline()
         reader = pd.read_csv(fh, **_d.pandas_options(d), chunksize=spec["rows"])
-        last_t = None
-        row0 = 0
-        pending = None
-        for chunk in _chunks(reader, path, d, names):
-            table = chunk
-            if pending is not None:
-                table = np.concatenate([pending, table])
-                pending = None
-            # hold back the last row until we know whether it is the file's last
-            pending, table = table[-1:], table[:-1]
-            if table.shape[0] == 0:
-                continue
-            block = _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
-            if t_idx is not None:
-                last_t = table[-1, t_idx] * d.scales[t_idx]
-            row0 += table.shape[0]
-            yield block
-        if pending is not None and pending.shape[0]:
-            row = pending[0]
-            sig = row[keep]
-            if np.isnan(sig).any() and not np.isnan(sig).all() or (
-                    t_idx is not None and not np.isfinite(row[t_idx])):
-                findings.append(Finding(
-                    "truncated-row", "warning",
-                    "the last row is incomplete (file cut short?) and was dropped."))
-            else:
-                yield _block(pending, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
+        yield from _blocks_of_tables(_chunks(reader, path, d, names), spec, findings)
         out["sha256"] = raw.finish()
         out["findings"] = findings
     finally:
         fh.close()
+
+
+def _blocks_of_tables(tables, spec: dict, findings: list):
+    """SI blocks (C, n) from parsed tables (rows, kept columns) in file order: the last row
+    is held back until it is known to be the file's last (an incomplete last row is dropped
+    with a finding), and the time column is checked across the tables."""
+    path, d = spec["path"], spec["dialect"]
+    t_idx, keep, scales, fs = spec["t_idx"], spec["keep"], spec["scales"], spec["fs"]
+    last_t = None
+    row0 = 0
+    pending = None
+    for chunk in tables:
+        table = chunk
+        if pending is not None:
+            table = np.concatenate([pending, table])
+            pending = None
+        # hold back the last row until we know whether it is the file's last
+        pending, table = table[-1:], table[:-1]
+        if table.shape[0] == 0:
+            continue
+        block = _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
+        if t_idx is not None:
+            last_t = table[-1, t_idx] * d.scales[t_idx]
+        row0 += table.shape[0]
+        yield block
+    if pending is not None and pending.shape[0]:
+        row = pending[0]
+        sig = row[keep]
+        if np.isnan(sig).any() and not np.isnan(sig).all() or (
+                t_idx is not None and not np.isfinite(row[t_idx])):
+            findings.append(Finding(
+                "truncated-row", "warning",
+                "the last row is incomplete (file cut short?) and was dropped."))
+        else:
+            yield _block(pending, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
+
+
+_ASCII_ENCODINGS = {"utf-8", "utf8", "utf-8-sig", "latin-1", "latin1", "iso-8859-1", "ascii",
+                    "cp1252"}
+"""Encodings in which the bytes of digits, signs, delimiters and line ends are their ASCII
+codes, so the compiled parser reads the bytes directly (it refuses any other byte)."""
+
+
+def _compiled_layout(d):
+    """The field-to-column map of the compiled parser for this layout (see
+    :func:`pqcheck.readers._numcsv.parse_chunk`), or None when the file goes through pandas:
+    the compiled parser is unavailable (``PQCHECK_NO_JIT=1``), or the encoding or separators
+    are ones it does not read."""
+    opts = _d.pandas_options(d)
+    sep, dec = opts["sep"], opts["decimal"]
+    if (len(sep) != 1 or len(dec) != 1 or sep == dec or sep in "0123456789+-.eE\" \r\n"
+            or (d.encoding or "utf-8").lower() not in _ASCII_ENCODINGS):
+        return None
+    from . import _numcsv
+
+    if not _numcsv.available():
+        return None
+    nf = len(d.pandas_names)
+    cols = opts.get("usecols", list(range(nf)))
+    if not cols or max(cols) >= nf:
+        return None
+    colmap = np.full(nf, -1, dtype=np.int64)
+    for k, j in enumerate(sorted(cols)):
+        colmap[j] = k
+    return colmap
+
+
+def _byte_chunks(path, d, size: int):
+    """The data lines of the file as chunks of about ``size`` bytes ending on a line end:
+    ``(buffer, bytes used, file offset [bytes], last)``. The first data row is found as the
+    pandas path finds it (whole lines before it skipped); the last chunk has its trailing
+    line ends taken off (blank lines at the end, which pandas skips)."""
+    with open(path, "rb") as fh:
+        for _ in range(d.data_line - 1):
+            fh.readline()
+        offset = fh.tell()
+        carry = b""
+        while True:
+            buf = np.empty(len(carry) + size, dtype=np.uint8)
+            buf[:len(carry)] = np.frombuffer(carry, dtype=np.uint8)
+            view = memoryview(buf)
+            n = len(carry)
+            while n < buf.size:
+                got = fh.readinto(view[n:])
+                if not got:
+                    break
+                n += got
+            if n < buf.size:  # the end of the file
+                while n and buf[n - 1] in (10, 13):
+                    n -= 1
+                if n:
+                    yield buf, n, offset, True
+                return
+            # the last line end within the buffer (a line longer than the tail: search all)
+            k = -1
+            lo = n
+            while k < 0 and lo > 0:
+                lo = max(0, lo - (1 << 16))
+                k = bytes(view[lo:n]).rfind(b"\n")
+            if k < 0:  # one line longer than the chunk: take a bigger chunk
+                size *= 2
+                carry = bytes(view[:n])
+                continue
+            end = lo + k + 1
+            carry = bytes(view[end:n])
+            yield buf, end, offset, False
+            offset += end
+
+
+def _fallback_prefix(d) -> bytes:
+    """A line of ``0`` in every field, put in front of a chunk that pandas parses on its own:
+    pandas takes a first row with one field too many as an index column, where in the middle
+    of the file the same row is an error naming its line."""
+    sep = _d.pandas_options(d)["sep"]
+    return sep.join(["0"] * len(d.pandas_names)).encode("ascii") + b"\n"
+
+
+class _Prefixed(io.RawIOBase):
+    """The file from ``offset`` on, with ``prefix`` in front."""
+
+    def __init__(self, path, offset: int, prefix: bytes):
+        self._fh = open(path, "rb")
+        self._fh.seek(offset)
+        self._prefix = memoryview(prefix)
+
+    def readable(self):
+        return True
+
+    def readinto(self, b):
+        if len(self._prefix):
+            k = min(len(b), len(self._prefix))
+            b[:k] = self._prefix[:k]
+            self._prefix = self._prefix[k:]
+            return k
+        return self._fh.readinto(b)
+
+    def close(self):
+        self._fh.close()
+        super().close()
+
+
+def _pandas_rest(spec: dict, offset: int, lines_before: int, first: bool):
+    """Tables of the file from byte ``offset`` (a line start, ``lines_before`` lines into
+    the file) to its end, parsed by pandas' chunked reader as the pandas path parses them:
+    after a chunk pandas could not parse on its own, the rest of the file is read this way,
+    so that a problem spanning chunks (a quote) is reported exactly as without the compiled
+    parser."""
+    path, d = spec["path"], spec["dialect"]
+    prefix = b"" if first else _fallback_prefix(d)
+    fh = io.BufferedReader(_Prefixed(path, offset, prefix), 1 << 20)
+    try:
+        reader = pd.read_csv(fh, **_d.pandas_options(d), chunksize=spec["rows"])
+        yield from _chunks(reader, path, d, spec["names"],
+                           line_offset=lines_before - (1 if prefix else 0),
+                           drop_first=bool(prefix))
+    finally:
+        fh.close()
+
+
+def _pandas_chunk(spec: dict, buf, n: int, first: bool):
+    """One refused chunk parsed by pandas; None when pandas fails on it (the caller then
+    reads the rest of the file with :func:`_pandas_rest`)."""
+    d = spec["dialect"]
+    prefix = b"" if first else _fallback_prefix(d)
+    try:
+        df = pd.read_csv(io.BytesIO(prefix + bytes(memoryview(buf)[:n])),
+                         **_d.pandas_options(d))
+    except (ValueError, pd.errors.ParserError):
+        return None
+    table = df.to_numpy(dtype=np.float64)
+    return table[1:] if prefix else table
+
+
+def _parse_job(buf, n: int, colmap, sep: str, dec: str):
+    """Worker: the compiled parse of one chunk; ``(table or None, line ends in it)``."""
+    from . import _numcsv
+
+    lines = _numcsv.count_lines(buf, n)
+    return _numcsv.parse_chunk(buf, n, sep, dec, colmap, lines=lines), lines
+
+
+def _compiled_tables(spec: dict):
+    """Tables (rows, kept columns) of the data rows in file order, parsed by the compiled
+    parser on two threads (it releases the GIL), at most two chunks in flight; a chunk it
+    refuses is parsed by pandas, with the lines before it counted for its messages."""
+    from collections import deque
+    from concurrent.futures import ThreadPoolExecutor
+
+    path, d = spec["path"], spec["dialect"]
+    opts = _d.pandas_options(d)
+    sep, dec = opts["sep"], opts["decimal"]
+    # pieces of a sixteenth of a block (4 MB at most): two in flight cost little memory, and
+    # the table of each block is assembled from them in one copy (_exact_rows)
+    size = int(min(4 << 20, max(1 << 18, spec["rows"] * spec["row_bytes"] / 16)))
+    source = _byte_chunks(path, d, size)
+    pool = ThreadPoolExecutor(max_workers=2, thread_name_prefix="pqcheck-parse")
+    flight: deque = deque()
+
+    def top_up():
+        while len(flight) < 2:
+            item = next(source, None)
+            if item is None:
+                return
+            buf, n, offset, _last = item
+            flight.append((buf, n, offset,
+                           pool.submit(_parse_job, buf, n, spec["colmap"], sep, dec)))
+
+    lines_before = d.data_line - 1
+    first = True
+    try:
+        top_up()
+        while flight:
+            buf, n, offset, fut = flight.popleft()
+            table, lines = fut.result()
+            top_up()
+            if table is None:
+                table = _pandas_chunk(spec, buf, n, first)
+                if table is None:
+                    yield from _pandas_rest(spec, offset, lines_before, first)
+                    return
+            yield _d.checked_columns(table, d, path)
+            lines_before += lines
+            first = False
+    finally:
+        for *_, fut in flight:
+            fut.cancel()
+        pool.shutdown(wait=True)
+        source.close()
+
+
+def _exact_rows(tables, rows: int):
+    """The same rows in tables of exactly ``rows`` rows (the last may be shorter), as
+    pandas' ``chunksize`` cuts them: the analysis receives the same blocks, and so gives
+    the same numbers to the last bit, whichever parser read the text. Each table is filled
+    in place from the smaller parsed pieces (one copy)."""
+    out = None
+    have = 0
+    for table in tables:
+        k = 0
+        while k < table.shape[0]:
+            if out is None:
+                out = np.empty((rows, table.shape[1]))
+                have = 0
+            take = min(rows - have, table.shape[0] - k)
+            out[have:have + take] = table[k:k + take]
+            have += take
+            k += take
+            if have == rows:
+                yield out
+                out = None
+    if out is not None and have:
+        yield out[:have]
+
+
+def _run_compiled(spec: dict, out: dict):
+    """Blocks from the compiled parser (:func:`_compiled_tables`), hashed on a thread."""
+    hasher = BackgroundHash(spec["path"])
+    try:
+        findings = []
+        tables = _exact_rows(_compiled_tables(spec), spec["rows"])
+        yield from _blocks_of_tables(tables, spec, findings)
+        out["sha256"] = hasher.result()
+        out["findings"] = findings
+    finally:
+        hasher.cancel()
 
 
 def _run_in_thread(spec: dict, out: dict):
@@ -362,16 +610,25 @@ def _avg_row_bytes(path, d) -> float:
     return sum(len(x) + 1 for x in lines) / len(lines)
 
 
-def _chunks(reader, path, d, names):
-    """Chunks as float arrays, turning parser errors into errors naming the line."""
+def _chunks(reader, path, d, names, line_offset=None, drop_first=False):
+    """Chunks as float arrays, turning parser errors into errors naming the line.
+
+    ``line_offset``: lines of the file before the text pandas reads (default: those above
+    the first data row); ``drop_first``: the first row is a line put in front of the text
+    (see :func:`_fallback_text`) and is dropped."""
+    if line_offset is None:
+        line_offset = d.data_line - 1
     while True:
         try:
             chunk = next(reader)
         except StopIteration:
             return
         except (ValueError, pd.errors.ParserError) as exc:
-            raise _d.parse_error(path, d, exc, line_offset=d.data_line - 1) from None
-        yield _d.checked_columns(chunk.to_numpy(dtype=np.float64), d, path)
+            raise _d.parse_error(path, d, exc, line_offset=line_offset) from None
+        table = chunk.to_numpy(dtype=np.float64)
+        if drop_first:
+            table, drop_first = table[1:], False
+        yield _d.checked_columns(table, d, path)
 
 
 def _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings):

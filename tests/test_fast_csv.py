@@ -1,0 +1,275 @@
+"""The compiled numeric-CSV parser (pqcheck/readers/_numcsv.py) and its use by the streaming
+reader.
+
+References: Python's ``float()`` (correctly rounded per IEEE 754, as the Clinger fast path
+must be: bit-identical), ``pandas.read_csv`` with pqcheck's own options (the parser the
+compiled one stands in for; within one ulp, because pandas' default converter is not always
+correctly rounded), and pqcheck's pandas streaming path (the same analysis, the same errors).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from pqcheck.analysis import analyze
+from pqcheck.capture import CaptureStream
+from pqcheck.errors import CaptureFormatError
+from pqcheck.export import analysis_to_dict
+from pqcheck.readers import _numcsv, open_capture, stream
+from pqcheck.readers import delimited as _d
+
+pytestmark = pytest.mark.skipif(not _numcsv.available(), reason="compiled parser unavailable")
+
+
+def _parse(text: bytes, sep=",", dec=".", ncols=None, compiled=True):
+    buf = np.frombuffer(text, dtype=np.uint8)
+    if ncols is None:
+        first = text.split(b"\n", 1)[0]
+        ncols = first.count(sep.encode()) + 1
+    return _numcsv.parse_chunk(buf, len(text), sep, dec, np.arange(ncols), compiled=compiled)
+
+
+# -- numbers against Python's float() ------------------------------------------------------
+
+_digits = st.text("0123456789", min_size=0, max_size=10)
+
+
+@st.composite
+def _decimal(draw):
+    sign = draw(st.sampled_from(["", "-", "+"]))
+    zeros = "0" * draw(st.integers(0, 3))  # leading zeros do not count as significant
+    whole = draw(_digits)
+    frac = draw(st.one_of(st.none(), _digits))
+    if not (whole or frac):
+        whole = "0"
+    s = sign + zeros + whole + ("" if frac is None else "." + frac)
+    if draw(st.booleans()):
+        s += draw(st.sampled_from("eE")) + draw(st.sampled_from(["", "+", "-"])) + str(
+            draw(st.integers(0, 25)))
+    return s
+
+
+def _significant(s: str) -> tuple:
+    """(significant digits, power of ten of the last one, integer mantissa) of a decimal."""
+    body = s.lstrip("+-")
+    mant, _, exp = body.replace("E", "e").partition("e")
+    whole, _, frac = mant.partition(".")
+    digits = (whole + frac).lstrip("0")
+    e10 = (int(exp) if exp else 0) - len(frac)
+    return len(digits), e10, int(digits or "0")
+
+
+@settings(max_examples=400, deadline=None)
+@given(st.lists(_decimal(), min_size=1, max_size=6))
+def test_numbers_are_correctly_rounded(cells):
+    # reference: Python float(), correctly rounded per IEEE 754; the Clinger fast path
+    # (mantissa < 2^53, |power of ten| <= 22) must give exactly the same bits
+    text = (",".join(cells) + "\n").encode()
+    got = _parse(text)
+    inside = all(_significant(c)[0] <= 18 and _significant(c)[2] <= 2**53
+                 and -22 <= _significant(c)[1] <= 22
+                 for c in cells)
+    if got is None:
+        assert not inside  # refused only outside the fast path
+        return
+    want = np.array([float(c) for c in cells])
+    assert got.shape == (1, len(cells))
+    assert got[0].tobytes() == want.tobytes()  # bit for bit, signs of zero included
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.lists(_decimal(), min_size=3, max_size=3), min_size=1, max_size=5))
+def test_plain_python_definition_matches_the_compiled_loop(rows):
+    # reference: the plain-Python definition of the same loop
+    text = "".join(",".join(r) + "\n" for r in rows).encode()
+    a, b = _parse(text, compiled=True), _parse(text, compiled=False)
+    assert (a is None) == (b is None)
+    if a is not None:
+        assert a.tobytes() == b.tobytes()
+
+
+def test_many_digits_and_large_powers_are_left_to_pandas():
+    # outside the fast path the parser must not guess (the caller asks pandas)
+    for cell in ["1234567890123456789", "9007199254740993", "1e23", "1.5e-23",
+                 "0.00000000000000000000001", "1e400"]:
+        assert _parse(f"{cell},1\n".encode()) is None, cell
+    # inside it: 2^53 itself is exact, and so is 10^22 (reference: Python float())
+    got = _parse(b"9007199254740992,1e22,-0.0,1.234E-03\n")
+    assert got[0].tobytes() == np.array([2.0**53, 1e22, -0.0, 1.234e-3]).tobytes()
+
+
+@pytest.mark.parametrize("text", [
+    b'1,"2"\n',  # a quote
+    b"1,2\r3,4\n",  # a bare carriage return (pandas ends a line there)
+    b"1,2\n\n3,4\n",  # a blank line (pandas skips it)
+    b"1,2,3\n",  # more fields than the header
+    b"1,abc\n", b"1,inf\n", b"1,1e\n", b"1,.\n", b"1,-\n", b"1,1.2.3\n", b"1,0x10\n",
+    b"1, \n",  # a blank cell: pandas refuses it
+    b"1,NA\n", b"1,+nan\n", b"1,nan \n",  # NA spellings other than pqcheck's own
+    "1,\u00b5\n".encode(),  # a byte outside ASCII
+])
+def test_anything_else_is_refused(text):
+    # reference: the cases pandas parses differently or refuses (its errors name the line)
+    assert _parse(text, ncols=2) is None
+
+
+# -- tables against pandas, in each layout --------------------------------------------------
+
+_LAYOUTS = {
+    "comma": "time [s],ia [A],va [V]\n0,1.5,-2\n0.0001,1.25,3\n0.0002,,4\n0.0003,nan,NaN\n",
+    "semicolon-decimal-comma":
+        "time [s];ia [A];va [V]\n0;1,5;-2,25\n0,0001;-1,25e-3;3\n0,0002;NAN;-nan\n"
+        "0,0003;2,5;-NaN\n",
+    "tab": "time [s]\tia [A]\tva [V]\n0\t 1.5 \t-2\n0.0001\t1.25\t3\n0.0002\t\t4\n"
+           "0.0003\t7\t8\n",
+    "crlf": "time [s],ia [A],va [V]\r\n0,1.5,-2\r\n0.0001,1.25,3\r\n0.0002,2,4\r\n"
+            "0.0003,5,6\r\n",
+    "scope-exponent": "Model,DSO\nSample Interval,1.000000E-04\nTIME,CH1,CH2\n"
+                      "-1.000000E-03,1.234E-03,-2.5E+02\n-9.000000E-04,1.240E-03,-2.49E+02\n"
+                      "-8.000000E-04,1.300e-03,-2.48e02\n-7.000000E-04,1.310E-03,-2.47E+02\n",
+    "trailing-delimiter": "time [s],ia [A],va [V],\n0,1.5,-2,\n0.0001,1.25,3,\n"
+                          "0.0002,2,4,\n0.0003,5,6,\n",
+    "short-last-row": "time [s],ia [A],va [V]\n0,1.5,-2\n0.0001,1.25,3\n0.0002,2,4\n0.0003,5",
+}
+
+
+@pytest.mark.parametrize("layout", sorted(_LAYOUTS))
+def test_tables_match_pandas(layout, tmp_path):
+    # reference: pandas.read_csv with pqcheck's options on the same data rows; within 1 ulp
+    # (pandas' default xstrtod-based converter is not always correctly rounded)
+    path = tmp_path / f"{layout}.csv"
+    text = _LAYOUTS[layout]
+    # plain rows in front, so that the layout is recognised before the unusual cells
+    eol = "\r\n" if "\r\n" in text else "\n"
+    lines = text.split(eol)
+    k = next(i for i, ln in enumerate(lines) if ln[:1] in "0123456789-")
+    lines[k:k] = [lines[k]] * 8
+    if layout != "short-last-row":  # and behind them (the end of the file is sniffed too)
+        lines[-1:-1] = [lines[k]] * 8
+    path.write_bytes(eol.join(lines).encode())
+    d = _d.sniff(path)
+    colmap = stream._compiled_layout(d)
+    assert colmap is not None
+    want = pd.read_csv(path, **_d.pandas_options(d),
+                       skiprows=d.data_line - 1).to_numpy(dtype=np.float64)
+    pieces = list(stream._byte_chunks(str(path), d, 1 << 16))
+    assert len(pieces) == 1
+    buf, n, _, _ = pieces[0]
+    got = _numcsv.parse_chunk(buf, n, _d.pandas_options(d)["sep"], d.decimal, colmap)
+    assert got is not None and got.shape == want.shape
+    assert np.array_equal(np.isnan(got), np.isnan(want))
+    ok = ~np.isnan(want)
+    np.testing.assert_array_max_ulp(got[ok], want[ok], maxulp=1)
+
+
+# -- the streaming reader: the same numbers and errors as the pandas path -------------------
+
+FS = 10_000.0
+
+
+def _write(path, seconds):
+    n = int(FS * seconds)
+    t = np.arange(n) / FS
+    th = 2 * np.pi * 49.9 * t
+    ia = 10 * np.sin(th) + 2.0 * np.sin(5 * th)
+    va = 325 * np.sin(th + 0.1) + 3 * np.sin(7 * th)
+    pd.DataFrame({"time [s]": np.round(t, 7), "ia [A]": np.round(ia, 4),
+                  "va [V]": np.round(va, 3)}).to_csv(path, index=False)
+    return path
+
+
+def _flat(x, p=""):
+    if isinstance(x, dict):
+        for k, v in x.items():
+            yield from _flat(v, f"{p}/{k}")
+    elif isinstance(x, list):
+        for i, v in enumerate(x):
+            yield from _flat(v, f"{p}[{i}]")
+    else:
+        yield p, x
+
+
+def _result(path, monkeypatch, compiled: bool):
+    with monkeypatch.context() as m:
+        if not compiled:
+            m.setattr(stream, "_compiled_layout", lambda d: None)
+        cap = open_capture(path, stream_over_bytes=1000)
+        assert isinstance(cap, CaptureStream)
+        res = analyze(cap, nominal_hz=50, block_samples=8192)
+    out = analysis_to_dict(res)
+    out["capture"].pop("reader")
+    return dict(_flat(out)), res.sha256
+
+
+def test_analysis_is_the_same_with_either_parser(tmp_path, monkeypatch):
+    # reference: the pandas streaming path (what PQCHECK_NO_JIT=1 reads with); the analysis
+    # itself is the same code both ways, so the numbers agree to 1e-12 of reading
+    path = _write(tmp_path / "cap.csv", 4.0)
+    fast, sha_fast = _result(path, monkeypatch, True)
+    slow, sha_slow = _result(path, monkeypatch, False)
+    assert sha_fast == sha_slow != ""
+    assert fast.keys() == slow.keys()
+    for k, v in fast.items():
+        if isinstance(v, float) and isinstance(slow[k], float):
+            assert v == pytest.approx(slow[k], rel=1e-12, abs=1e-300, nan_ok=True), k
+        else:
+            assert v == slow[k], k
+
+
+def _error(path, monkeypatch, compiled: bool):
+    with monkeypatch.context() as m:
+        if not compiled:
+            m.setattr(stream, "_compiled_layout", lambda d: None)
+        cap = open_capture(path, stream_over_bytes=1000)
+        with pytest.raises(CaptureFormatError) as info:
+            for _ in cap.blocks(1 << 16):
+                pass
+    return str(info.value)
+
+
+def test_bad_cell_in_the_middle_names_its_line(tmp_path, monkeypatch):
+    # reference: the pandas streaming path's error, naming the line of the bad cell
+    path = _write(tmp_path / "bad.csv", 31.0)
+    lines = path.read_bytes().split(b"\n")
+    lines[299_999] = lines[299_999].replace(b",", b",abc", 1)  # line 300000 of the file
+    path.write_bytes(b"\n".join(lines))
+    fast = _error(path, monkeypatch, True)
+    assert fast == _error(path, monkeypatch, False)
+    assert "bad.csv:300000: ia: cell 'abc" in fast
+
+
+def test_extra_field_in_a_later_chunk_names_its_line(tmp_path, monkeypatch):
+    # reference: the pandas streaming path; a refused chunk starting with a row of one field
+    # too many must not be read with an index column
+    path = _write(tmp_path / "extra.csv", 12.0)
+    lines = path.read_bytes().split(b"\n")
+    lines[90_001] += b",7"
+    path.write_bytes(b"\n".join(lines))
+    fast = _error(path, monkeypatch, True)
+    assert fast == _error(path, monkeypatch, False)
+    assert "extra.csv:90002" in fast and "row has 4 fields but the header has 3" in fast
+
+
+def test_refused_chunk_is_read_by_pandas(tmp_path, monkeypatch):
+    # reference: the pandas streaming path; a blank line and a quoted number in the middle
+    # (which the compiled parser refuses) give the same samples
+    path = _write(tmp_path / "odd.csv", 8.0)
+    lines = path.read_bytes().split(b"\n")
+    lines[40_000] = b""
+    head, _, tail = lines[60_000].partition(b",")
+    lines[60_000] = head + b',"' + tail.split(b",")[0] + b'",' + tail.split(b",")[1]
+    path.write_bytes(b"\n".join(lines))
+
+    def samples(compiled):
+        with monkeypatch.context() as m:
+            if not compiled:
+                m.setattr(stream, "_compiled_layout", lambda d: None)
+            return np.concatenate(list(open_capture(path, stream_over_bytes=1000)
+                                       .blocks(1 << 14)), axis=1)
+
+    a, b = samples(True), samples(False)
+    assert a.tobytes() == b.tobytes()
