@@ -254,7 +254,7 @@ def count_lines(buf, n: int) -> int:
 
 
 def parse_chunk(buf, n: int, sep: str, decimal: str, colmap, *, lines: int | None = None,
-                compiled: bool = True):
+                compiled: bool = True, by_column: bool = False):
     """Table of the data lines in ``buf[:n]``, or None when pandas must read them.
 
     Parameters
@@ -271,19 +271,24 @@ def parse_chunk(buf, n: int, sep: str, decimal: str, colmap, *, lines: int | Non
         The number of ``\\n`` in ``buf[:n]`` when the caller knows it.
     compiled : bool
         False runs the plain-Python definition (slow; for the tests).
+    by_column : bool
+        Return the table column by column, shape (columns, rows): each column's values
+        contiguous (the parser writes them so directly).
 
     Returns
     -------
     numpy.ndarray or None
-        float64, shape (rows, ``colmap.max() + 1``).
+        float64, shape (rows, ``colmap.max() + 1``), or its transpose with ``by_column``.
     """
     colmap = np.ascontiguousarray(colmap, dtype=np.int64)
     parse = _KERNELS["parse"] if compiled else _parse_py
     if lines is None:
         lines = (count_lines(buf, n) if compiled else
                  int(np.count_nonzero(np.asarray(buf[:n]) == 10)))
-    out = np.empty((lines + 1, int(colmap.max()) + 1))
+    width = int(colmap.max()) + 1
+    cols = np.empty((width, lines + 1)) if by_column else None
+    out = cols.T if by_column else np.empty((lines + 1, width))
     rows = parse(buf, n, ord(sep), ord(decimal), colmap, out, _POW10)
     if rows < 0:
         return None
-    return out[:rows]
+    return cols[:, :rows] if by_column else out[:rows]

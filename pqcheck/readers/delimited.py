@@ -160,19 +160,24 @@ def pandas_options(dialect: Dialect) -> dict:
     return out
 
 
-def checked_columns(table, dialect: Dialect, path):
+def checked_columns(table, dialect: Dialect, path, *, by_column: bool = False):
     """The kept columns of a parsed table, after checking that the phantom columns are empty
     and that no cell overflowed float64 (``1e400``, ``Infinity``), which must never become a
-    gap. ``table``: every file column, shape (rows, width)."""
+    gap. ``table``: every parsed column, shape (rows, width), or (width, rows) with
+    ``by_column`` (the kept columns are then rows of the result)."""
     cols = dialect.parse_cols
-    if dialect.empty and not np.isnan(table[:, [cols.index(j) for j in dialect.empty]]).all():
+
+    def pick(idx):
+        return table[idx] if by_column else table[:, idx]
+
+    if dialect.empty and not np.isnan(pick([cols.index(j) for j in dialect.empty])).all():
         found = _locate_cell(path, dialect, "filled")
         line, col, text = found if found else (None, None, "?")
         raise CaptureFormatError(
             f"a value ({text!r}) in a column that is empty in the first rows (no name, a "
             "delimiter at the end of the rows); give that column a name in the header line "
             "or remove the value", path=path, line=line)
-    out = table[:, [cols.index(j) for j in dialect.keep]] if dialect.selects else table
+    out = pick([cols.index(j) for j in dialect.keep]) if dialect.selects else table
     # a sum is finite when every cell is (and cheaper than a cell-by-cell test); only when it
     # is not (NaN gaps, or an overflow) are the cells looked at one by one
     with np.errstate(all="ignore"):

@@ -224,15 +224,22 @@ def _blocks_of_tables(tables, spec: dict, findings: list):
         row0 += table.shape[0]
         yield block
     if pending is not None and pending.shape[0]:
-        row = pending[0]
-        sig = row[keep]
-        if np.isnan(sig).any() and not np.isnan(sig).all() or (
-                t_idx is not None and not np.isfinite(row[t_idx])):
-            findings.append(Finding(
-                "truncated-row", "warning",
-                "the last row is incomplete (file cut short?) and was dropped."))
+        if _incomplete(pending[0], t_idx, keep):
+            findings.append(_TRUNCATED)
         else:
             yield _block(pending, t_idx, keep, scales, fs, last_t, path, d, row0, findings)
+
+
+_TRUNCATED = Finding("truncated-row", "warning",
+                     "the last row is incomplete (file cut short?) and was dropped.")
+
+
+def _incomplete(row, t_idx, keep) -> bool:
+    """The file's last row (its parsed columns) is cut short: some signal cells empty and
+    others not, or no time."""
+    sig = row[keep]
+    return bool(np.isnan(sig).any() and not np.isnan(sig).all()
+                or (t_idx is not None and not np.isfinite(row[t_idx])))
 
 
 _ASCII_ENCODINGS = {"utf-8", "utf8", "utf-8-sig", "latin-1", "latin1", "iso-8859-1", "ascii",
@@ -376,13 +383,15 @@ def _parse_job(buf, n: int, colmap, sep: str, dec: str):
     from . import _numcsv
 
     lines = _numcsv.count_lines(buf, n)
-    return _numcsv.parse_chunk(buf, n, sep, dec, colmap, lines=lines), lines
+    table = _numcsv.parse_chunk(buf, n, sep, dec, colmap, lines=lines, by_column=True)
+    return table, lines
 
 
 def _compiled_tables(spec: dict):
-    """Tables (rows, kept columns) of the data rows in file order, parsed by the compiled
+    """Tables (kept columns, rows) of the data rows in file order, parsed by the compiled
     parser on two threads (it releases the GIL), at most two chunks in flight; a chunk it
-    refuses is parsed by pandas, with the lines before it counted for its messages."""
+    refuses is parsed by pandas, with the lines before it counted for its messages. The
+    tables are column by column (each column's values contiguous), as the blocks are."""
     from collections import deque
     from concurrent.futures import ThreadPoolExecutor
 
@@ -416,9 +425,12 @@ def _compiled_tables(spec: dict):
             if table is None:
                 table = _pandas_chunk(spec, buf, n, first)
                 if table is None:
-                    yield from _pandas_rest(spec, offset, lines_before, first)
+                    for rest in _pandas_rest(spec, offset, lines_before, first):
+                        yield rest.T
                     return
-            yield _d.checked_columns(table, d, path)
+                yield _d.checked_columns(table, d, path).T
+            else:
+                yield _d.checked_columns(table, d, path, by_column=True)
             lines_before += lines
             first = False
     finally:
@@ -428,37 +440,59 @@ def _compiled_tables(spec: dict):
         source.close()
 
 
-def _exact_rows(tables, rows: int):
-    """The same rows in tables of exactly ``rows`` rows (the last may be shorter), as
-    pandas' ``chunksize`` cuts them: the analysis receives the same blocks, and so gives
-    the same numbers to the last bit, whichever parser read the text. Each table is filled
-    in place from the smaller parsed pieces (one copy)."""
-    out = None
+def _pandas_blocks(tables, rows: int):
+    """Column-by-column blocks (kept columns, n) cut from ``tables`` (kept columns, rows; in
+    file order) where the pandas path cuts its blocks, and the file's last row on its own:
+    ``(block, is_last_row)``.
+
+    The pandas path parses ``rows`` rows per table and holds back each table's last row
+    until the next arrives (:func:`_blocks_of_tables`), so its blocks are rows
+    ``[0, rows-1), [rows-1, 2*rows-1), ...`` and the last row alone. Cutting the same blocks
+    gives the analysis the same numbers to the last bit whichever parser read the text.
+    Each block is filled once, column by column, in a fresh array of its own."""
+    target = rows - 1
+    buf = None
     have = 0
     for table in tables:
         k = 0
-        while k < table.shape[0]:
-            if out is None:
-                out = np.empty((rows, table.shape[1]))
+        m = table.shape[1]
+        while k < m:
+            if buf is not None and have == target:
+                # full, and a row follows: the block ends before the file's last row
+                yield buf, False
+                buf, target = None, rows
+            if buf is None:
+                buf = np.empty((table.shape[0], target))
                 have = 0
-            take = min(rows - have, table.shape[0] - k)
-            out[have:have + take] = table[k:k + take]
+            take = min(target - have, m - k)
+            buf[:, have:have + take] = table[:, k:k + take]
             have += take
             k += take
-            if have == rows:
-                yield out
-                out = None
-    if out is not None and have:
-        yield out[:have]
+    if buf is not None and have:
+        if have > 1:
+            yield buf[:, :have - 1], False
+        yield buf[:, have - 1:have], True
 
 
 def _run_compiled(spec: dict, out: dict):
-    """Blocks from the compiled parser (:func:`_compiled_tables`), hashed on a thread."""
-    hasher = BackgroundHash(spec["path"])
+    """Blocks from the compiled parser (:func:`_compiled_tables`), hashed on a thread; the
+    same blocks and checks as :func:`_blocks_of_tables` on the pandas path."""
+    path, d = spec["path"], spec["dialect"]
+    t_idx, keep, scales, fs = spec["t_idx"], spec["keep"], spec["scales"], spec["fs"]
+    hasher = BackgroundHash(path)
     try:
         findings = []
-        tables = _exact_rows(_compiled_tables(spec), spec["rows"])
-        yield from _blocks_of_tables(tables, spec, findings)
+        last_t = None
+        row0 = 0
+        for tab, last in _pandas_blocks(_compiled_tables(spec), spec["rows"]):
+            if last and _incomplete(tab[:, 0], t_idx, keep):
+                findings.append(_TRUNCATED)
+                break
+            yield _block_by_column(tab, t_idx, keep, scales, fs, last_t, path, d, row0,
+                                   findings)
+            if t_idx is not None:
+                last_t = tab[t_idx, -1] * d.scales[t_idx]
+            row0 += tab.shape[1]
         out["sha256"] = hasher.result()
         out["findings"] = findings
     finally:
@@ -633,14 +667,35 @@ def _chunks(reader, path, d, names, line_offset=None, drop_first=False):
 
 def _block(table, t_idx, keep, scales, fs, last_t, path, d, row0, findings):
     """(C, n) SI block from a table chunk; time gaps become NaN, other irregularity an error."""
-    data = table[:, keep].T * scales
-    if t_idx is None:
-        return np.ascontiguousarray(data)
-    t = table[:, t_idx] * d.scales[t_idx]
+    data = np.ascontiguousarray(table[:, keep].T * scales)
+    t = None if t_idx is None else table[:, t_idx] * d.scales[t_idx]
+    return _timed_block(data, t, fs, last_t, path, d, row0, findings)
+
+
+def _block_by_column(tab, t_idx, keep, scales, fs, last_t, path, d, row0, findings):
+    """As :func:`_block` for a table column by column (parsed columns, n) that the block
+    may reuse: the kept columns are taken as a view where they are adjacent, and scaled in
+    place."""
+    t = None if t_idx is None else tab[t_idx] * d.scales[t_idx]
+    k0 = keep[0]
+    if keep == list(range(k0, k0 + len(keep))) and tab.flags.c_contiguous:
+        data = tab[k0:k0 + len(keep)]
+        if np.any(scales != 1.0):
+            data *= scales
+    else:
+        data = tab[keep] * scales
+    return _timed_block(data, t, fs, last_t, path, d, row0, findings)
+
+
+def _timed_block(data, t, fs, last_t, path, d, row0, findings):
+    """The block ``data`` (C, n) after the checks of its SI time column ``t`` (or None):
+    time gaps become NaN samples, other irregularity an error."""
+    if t is None:
+        return data
     tt = t if last_t is None else np.concatenate(([last_t], t))
     step = np.diff(tt) * fs
     if step.size == 0 or (np.all(np.abs(step - 1.0) <= 0.01)):
-        return np.ascontiguousarray(data)
+        return data
     bad = np.flatnonzero(~(np.abs(step - 1.0) <= 0.01))
     k = int(bad[0])
     line = d.data_line + row0 + k + (0 if last_t is not None else 1)
