@@ -273,3 +273,70 @@ def test_refused_chunk_is_read_by_pandas(tmp_path, monkeypatch):
 
     a, b = samples(True), samples(False)
     assert a.tobytes() == b.tobytes()
+
+
+# -- the blocks themselves, in the layouts whose columns are taken, scaled or checked ------
+
+def _stream_text(kind: str, n: int = 3000) -> str:
+    t = np.arange(n) / FS
+    ia = np.round(10 * np.sin(2 * np.pi * 50 * t), 4)
+    va = np.round(325 * np.sin(2 * np.pi * 50 * t + 0.2), 3)
+    rows = list(zip(t, ia, va))
+    if kind == "milli-units":  # time in ms, current in mA, voltage in kV: scaled on reading
+        head = "time [ms],ia [mA],va [kV]"
+        body = [f"{a * 1e3:.4f},{b * 1e3:.1f},{c / 1e3:.6f}" for a, b, c in rows]
+    elif kind == "time-in-the-middle":
+        head = "ia [A],time [s],va [V]"
+        body = [f"{b},{a:.7f},{c}" for a, b, c in rows]
+    elif kind == "trailing-delimiter":  # a phantom empty column, checked and dropped
+        head = "time [s],ia [A],va [V],"
+        body = [f"{a:.7f},{b},{c}," for a, b, c in rows]
+    elif kind == "gap":  # 20 rows missing (after the first 2^16 rows, which must be uniform
+        # to be streamed): NaN samples keep the later windows in place
+        head = "time [s],ia [A],va [V]"
+        body = [f"{a:.7f},{b},{c}" for i, (a, b, c) in enumerate(rows)
+                if not 70_000 <= i < 70_020]
+    elif kind == "truncated-last-row":
+        head = "time [s],ia [A],va [V]"
+        body = [f"{a:.7f},{b},{c}" for a, b, c in rows] + [f"{n / FS:.7f},1.0"]
+    else:  # plain, no time column: the sample rate is given
+        head = "ia [A],va [V]"
+        body = [f"{b},{c}" for a, b, c in rows]
+    return "\n".join([head, *body]) + "\n"
+
+
+def _blocks(path, monkeypatch, compiled: bool, rate):
+    with monkeypatch.context() as m:
+        if not compiled:
+            m.setattr(stream, "_compiled_layout", lambda d: None)
+        cap = open_capture(path, stream_over_bytes=1000, sample_rate_hz=rate)
+        assert isinstance(cap, CaptureStream)
+        blocks = [b.copy() for b in cap.blocks(1024)]
+    return blocks, cap
+
+
+@pytest.mark.parametrize("kind", ["milli-units", "time-in-the-middle", "trailing-delimiter",
+                                  "gap", "truncated-last-row", "no-time-column"])
+def test_blocks_are_those_of_the_pandas_path(kind, tmp_path, monkeypatch):
+    # reference: the pandas streaming path (pandas.read_csv in chunks); the compiled parser
+    # must hand the analysis the same blocks (same cuts, same SI values within 1 ulp of
+    # pandas' converter) and the same findings
+    path = tmp_path / f"{kind}.csv"
+    path.write_text(_stream_text(kind, 80_000 if kind == "gap" else 3000))
+    rate = FS if kind == "no-time-column" else None
+    fast, cap_fast = _blocks(path, monkeypatch, True, rate)
+    slow, cap_slow = _blocks(path, monkeypatch, False, rate)
+    assert [b.shape for b in fast] == [b.shape for b in slow]
+    for f, s in zip(fast, slow):
+        assert np.array_equal(np.isnan(f), np.isnan(s))
+        ok = ~np.isnan(s)
+        np.testing.assert_array_max_ulp(f[ok], s[ok], maxulp=2)
+    assert [x.code for x in cap_fast.findings] == [x.code for x in cap_slow.findings]
+    assert cap_fast.provenance.sha256 == cap_slow.provenance.sha256 != ""
+    if kind == "gap":  # 20 samples left empty in both channels
+        assert sum(int(np.isnan(b).sum()) for b in fast) == 40
+    if kind == "truncated-last-row":
+        assert "truncated-row" in [x.code for x in cap_fast.findings]
+    if kind == "milli-units":  # SI: amperes and volts
+        peak = max(float(np.nanmax(np.abs(b[0]))) for b in fast)
+        assert peak == pytest.approx(10.0, rel=1e-3)
