@@ -1,5 +1,5 @@
 """`python -m pqcheck.cli` runs the command line."""
 
-from . import main
+from . import run
 
-main()
+run()
