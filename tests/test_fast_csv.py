@@ -242,6 +242,19 @@ def test_bad_cell_in_the_middle_names_its_line(tmp_path, monkeypatch):
     assert "bad.csv:300000: ia: cell 'abc" in fast
 
 
+def test_overflowing_cell_in_a_later_chunk_is_an_error_naming_its_line(tmp_path, monkeypatch):
+    # reference: the pandas streaming path; 1e400 overflows float64 (IEEE 754 binary64 tops
+    # out near 1.8e308) and must never become a gap: the compiled parser refuses the chunk,
+    # pandas reads it, and the finite check names the cell
+    path = _write(tmp_path / "big.csv", 12.0)
+    lines = path.read_bytes().split(b"\n")
+    lines[100_000] = lines[100_000].replace(b",", b",1e400,", 1).rsplit(b",", 1)[0]
+    path.write_bytes(b"\n".join(lines))
+    fast = _error(path, monkeypatch, True)
+    assert fast == _error(path, monkeypatch, False)
+    assert "big.csv:100001" in fast and "1e400" in fast and "not a finite number" in fast
+
+
 def test_extra_field_in_a_later_chunk_names_its_line(tmp_path, monkeypatch):
     # reference: the pandas streaming path; a refused chunk starting with a row of one field
     # too many must not be read with an index column

@@ -160,11 +160,14 @@ def pandas_options(dialect: Dialect) -> dict:
     return out
 
 
-def checked_columns(table, dialect: Dialect, path, *, by_column: bool = False):
+def checked_columns(table, dialect: Dialect, path, *, by_column: bool = False,
+                    finite: bool = False):
     """The kept columns of a parsed table, after checking that the phantom columns are empty
     and that no cell overflowed float64 (``1e400``, ``Infinity``), which must never become a
     gap. ``table``: every parsed column, shape (rows, width), or (width, rows) with
-    ``by_column`` (the kept columns are then rows of the result)."""
+    ``by_column`` (the kept columns are then rows of the result). ``finite``: the parser
+    cannot have produced an infinity (the compiled parser refuses such cells), so the
+    overflow check is skipped."""
     cols = dialect.parse_cols
 
     def pick(idx):
@@ -178,6 +181,8 @@ def checked_columns(table, dialect: Dialect, path, *, by_column: bool = False):
             "delimiter at the end of the rows); give that column a name in the header line "
             "or remove the value", path=path, line=line)
     out = pick([cols.index(j) for j in dialect.keep]) if dialect.selects else table
+    if finite:
+        return out
     # a sum is finite when every cell is (and cheaper than a cell-by-cell test); only when it
     # is not (NaN gaps, or an overflow) are the cells looked at one by one
     with np.errstate(all="ignore"):

@@ -430,7 +430,8 @@ def _compiled_tables(spec: dict):
                     return
                 yield _d.checked_columns(table, d, path).T
             else:
-                yield _d.checked_columns(table, d, path, by_column=True)
+                # every number it converts is below 2^53 * 10^22 in magnitude: no infinity
+                yield _d.checked_columns(table, d, path, by_column=True, finite=True)
             lines_before += lines
             first = False
     finally:
