@@ -4,10 +4,11 @@ same complete output as Python's own exit, and the exit handlers still run."""
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 
-from attack._kit import write_capture
+from attack._kit import VERDICTS, write_capture
 
 # the documented exit codes (README, `pqcheck --help`): 0 pass, 2 usage or input error,
 # 4 not applicable
@@ -42,3 +43,23 @@ def test_exit_handlers_run_before_the_process_ends(tmp_path):
     r = _run(["--version"], tmp_path, before)
     assert r.returncode == 0 and "pqcheck" in r.stdout
     assert mark.exists()
+
+
+def test_batch_workers_start_under_a_long_temporary_folder(tmp_path):
+    # a Unix-domain socket path is limited to 104-108 bytes (POSIX sockaddr_un; Linux
+    # unix(7)); the forkserver's socket lives in the temporary folder, so a long TMPDIR (a CI
+    # runner's) must not stop the workers: they are then spawned instead
+    long_tmp = tmp_path / ("t" * 40) / ("u" * 40)
+    long_tmp.mkdir(parents=True)
+    fleet = tmp_path / "fleet"
+    write_capture(fleet / "unit-1.csv")
+    write_capture(fleet / "unit-2.csv", h5=0.05)
+    out = tmp_path / "rows.csv"
+    env = dict(os.environ, TMPDIR=str(long_tmp))
+    r = subprocess.run([sys.executable, "-m", "pqcheck.cli", "batch", str(fleet), "--limits",
+                        "ieee519-2022", "--voltage-level", "400", "--isc", "5000", "--il",
+                        "100", "--no-cache", "-q", "-j", "2", "-o", str(out)], cwd=tmp_path,
+                       env=env, capture_output=True, text=True, timeout=300)
+    assert r.returncode in VERDICTS, r.stderr
+    text = out.read_text()
+    assert "unit-1.csv" in text and "unit-2.csv" in text

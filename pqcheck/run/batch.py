@@ -425,7 +425,8 @@ class ProcessExecutor:
     Notes
     -----
     Workers are started by the ``forkserver`` method where it exists (a fresh process, not a
-    copy of this one with its threads), else by the platform default. When a worker dies, the
+    copy of this one with its threads) and its socket path fits (see
+    :func:`_socket_path_fits`), else by ``spawn``, else by the platform default. When a worker dies, the
     pool breaks and every unfinished item fails; those items are then run one at a time in a
     fresh one-worker pool, so only the item that kills its worker gets ``on_crash``.
     """
@@ -438,8 +439,11 @@ class ProcessExecutor:
         import multiprocessing
 
         ctx = None
-        if "forkserver" in multiprocessing.get_all_start_methods():
+        methods = multiprocessing.get_all_start_methods()
+        if "forkserver" in methods and _socket_path_fits():
             ctx = multiprocessing.get_context("forkserver")
+        elif "spawn" in methods:
+            ctx = multiprocessing.get_context("spawn")
         return ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_worker_init)
 
     def __enter__(self):
@@ -545,6 +549,21 @@ def _stop_workers(procs, result_queue) -> None:
     if writer is not None:
         with contextlib.suppress(Exception):
             writer.close()
+
+
+_SOCKET_PATH_MAX = 104
+"""Longest path of a Unix-domain socket on the platforms pqcheck runs on (108 bytes on Linux,
+104 on macOS and the BSDs, terminating NUL included)."""
+
+
+def _socket_path_fits() -> bool:
+    """The forkserver's socket fits in the temporary folder: multiprocessing puts it at
+    ``<tmp>/pymp-XXXXXXXX/listener-XXXXXXXX`` (about 33 bytes past the folder), and binding a
+    longer path fails, which ended a batch in a CI job with a long ``TMPDIR``. When it does not
+    fit the workers are started by ``spawn`` (also fresh processes; slower to start)."""
+    import tempfile
+
+    return len(os.fsencode(tempfile.gettempdir())) + 40 < _SOCKET_PATH_MAX
 
 
 def _worker_init():
