@@ -269,3 +269,23 @@ def test_limits_exceeded_lists_each_item_once(report):
     items = re.findall(r"\bI(\d+)\b", part)
     assert items and len(items) == len(set(items))
     assert re.search(r"(\d+) failing checks in (\d+) items", summary)
+
+
+@pytest.mark.parametrize("site_words", [0, 130])
+def test_cover_ends_on_page_one_with_its_cautions(report, tmp_path, site_words):
+    # a crowded cover (six-pulse excesses at many orders, undecided causes, a long site
+    # text) gives fewer rows of what decides, never a page 2 holding only the cover's last
+    # caution; section 1 then starts page 2
+    pages = report["pages"]
+    if site_words:
+        out = tmp_path / "crowded.pdf"
+        site = " ".join(["feeder"] * site_words)
+        res = CliRunner().invoke(main, ["report", str(report["capture"]), *LIMIT_ARGS, "-o",
+                                        str(out), "--site", site, "--title",
+                                        "Harmonic emission test report of a long title " * 2,
+                                        "--no-cache"])
+        assert res.exit_code == 1, res.output
+        pages = [p.extract_text() or "" for p in pypdf.PdfReader(str(out)).pages]
+    assert "not a certification" in pages[0]
+    assert "hazardous voltages" in " ".join(pages[0].split())
+    assert pages[1].lstrip().startswith("1 Summary")

@@ -481,6 +481,7 @@ def _worst(checks):
 
 def _cover(b: _Builder) -> None:
     job, meta = b.job, b.job.meta
+    first = len(b.story)
     b.add(Spacer(1, 8 * mm))
     b.add(b.p("HARMONIC EMISSION TEST REPORT", "kicker"))
     b.add(b.p(meta.title, "title"))
@@ -505,9 +506,33 @@ def _cover(b: _Builder) -> None:
         }.get(verdict, "")
         line = f"{meaning} Checks: {_counts_text(all_checks)}."
     verdict_box(b, verdict, line, big=big)
-    _deciding_items(b)
-    b.add(Spacer(1, 3 * mm))
-    _cover_facts(b)
+    # page 1 must hold the whole cover, down to its last caution: fewer rows of what decides
+    # the verdict when they would push it over (section 1 lists every one)
+    start, counts = len(b.story), (b.table_count, b.fig_count)
+    for limit in range(_COVER_ROWS, 0, -1):
+        del b.story[start:]
+        b.table_count, b.fig_count = counts
+        _deciding_items(b, limit)
+        b.add(Spacer(1, 3 * mm))
+        _cover_facts(b)
+        if _story_height(b.story[first:]) <= _FRAME_HEIGHT:
+            break
+
+
+_FRAME_HEIGHT = PAGE_SIZE[1] - 35 * mm - 12
+"""Height of a page's text frame: the page less the top and bottom margins of
+:func:`render_pdf` and the frame's own padding (6 pt above and below). [pt]"""
+
+
+def _story_height(flowables) -> float:
+    """Height the flowables take at the text width, page breaks left out. [pt]"""
+    h = 0.0
+    for f in flowables:
+        if isinstance(f, PageBreak):
+            continue
+        _, fh = f.wrap(_WIDTH - 12, _FRAME_HEIGHT)
+        h += fh + f.getSpaceBefore() + f.getSpaceAfter()
+    return h
 
 
 def verdict_box(b: _Builder, verdict: str, line: str, *, big: str | None = None) -> None:
@@ -614,9 +639,10 @@ def _cover_facts(b: _Builder) -> None:
 _COVER_ROWS = 6
 
 
-def _deciding_items(b: _Builder) -> None:
+def _deciding_items(b: _Builder, limit: int = _COVER_ROWS) -> None:
     """The cover's short list of what decides the verdict: the failing checks (largest
-    excess first), every cause of undecided checks, or, for a pass, the closest margins."""
+    excess first), the causes of undecided checks, or, for a pass, the closest margins; at
+    most ``limit`` rows of each."""
     job = b.job
     if not job.assessed:
         return
@@ -628,17 +654,18 @@ def _deciding_items(b: _Builder) -> None:
     by_item: dict = {}
     for r, a, c in fails:
         by_item.setdefault((r.id, a.limits.table_id, c.label), []).append((r, c))
-    for (rid, _tid, label), items in list(by_item.items())[:_COVER_ROWS]:
+    for (rid, _tid, label), items in list(by_item.items())[:limit]:
         r, c = items[0]
         phases = ", ".join(sorted({x.phase or x.channel for _, x in items})) or "all"
         rows.append([_verdict_para(b, "fail"), rid, label, phases, *_value_cells(b, r, c)])
         extra += _verdict_style(0, len(rows) - 1, "fail")
     groups = undecided_groups(job)
-    for runs, phases, checks, cause in groups[:_COVER_ROWS]:
+    for runs, phases, checks, cause in groups[:limit]:
         n = f"{len(checks)} check{'s' if len(checks) != 1 else ''}"
         rows.append([_verdict_para(b, "inconclusive"), runs, _items_text(checks) or "\u2013",
-                     phases, b.m(f"<b>{esc(_cause_key(cause))}</b> ({n}): "
-                                 f"{esc(_short_reason(cause))}", "cell"), "", "", ""])
+                     phases, b.m(f"<b>{esc(_cause_key(cause))}</b> ({n})"
+                                 + (f": {esc(why)}" if (why := _short_reason(cause)) else ""),
+                                 "cell"), "", "", ""])
         extra += _verdict_style(0, len(rows) - 1, "inconclusive")
         extra.append(("SPAN", (4, len(rows) - 1), (7, len(rows) - 1)))
     if not fails and not groups:
@@ -652,10 +679,12 @@ def _deciding_items(b: _Builder) -> None:
         return
     b.add(b.table(rows, [0.16, 0.16, 0.14, 0.1, 0.11, 0.09, 0.13, 0.11], right=(4, 5, 7),
                   extra_style=extra, zebra=False))
-    more = len(by_item) - _COVER_ROWS
+    more = [f"{n} more {what}" for n, what in (
+        (len(by_item) - limit, "failing items"), (len(groups) - limit, "causes of undecided "
+                                                   "checks")) if n > 0]
     note = ("Worst phase shown; section 1 lists every check that failed or could not be "
             "decided")
-    note += f" ({more} more failing items)." if more > 0 else "."
+    note += f" ({', '.join(more)})." if more else "."
     b.add(b.p(note, "caption"))
 
 
