@@ -202,7 +202,15 @@ def spawn(argv, *, cwd, env=None, fsync_delay_s: float | None = None) -> subproc
         e["ATTACK_FSYNC_DELAY_S"] = str(fsync_delay_s)
     return subprocess.Popen([sys.executable, "-c", code, *map(str, argv)], cwd=cwd, env=e,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            start_new_session=True)
+                            start_new_session=True, preexec_fn=_interactive_signals)
+
+
+def _interactive_signals() -> None:
+    """In the child before it runs Python: SIGINT as an interactive shell leaves it (the
+    default action, so Python installs its Ctrl-C handler). A test suite started in the
+    background by a non-interactive shell (a CI step, ``cmd &``) inherits SIGINT ignored,
+    and a child that ignores it would never see the Ctrl-C these tests send."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
 
 
 def finish(proc: subprocess.Popen, timeout_s: float = 120.0) -> Run:
