@@ -1,20 +1,22 @@
-"""Compiled inner loops of the analysis (numba), with the NumPy definitions they replace.
+"""Compiled inner loops of the analysis (C or numba), with the NumPy definitions they replace.
 
 The synchronised analysis spends its time in two per-sample loops: the band-limited
 resampling of every window (:func:`pqcheck.dsp.spectrum.resample_windows`) and the phase
 refinement of the tracker (:func:`pqcheck.dsp.tracking._second_pass`). Written with NumPy,
 each materialises large temporaries (a gathered ``channels x points x taps`` array, or a
 dozen full-length arrays per pass) and runs at memory speed, far below the FFT that follows.
-Here the same arithmetic runs as plain loops compiled by numba, in registers, with the GIL
-released so that chunks run on several threads.
+Here the same arithmetic runs as plain loops in registers, with the GIL released so that
+chunks run on several threads: the C loops of :mod:`pqcheck._native` where the extension
+was built at install (they start in a millisecond), else the same loops compiled by numba.
 
 Each function computes exactly what its NumPy counterpart computes (the same formula, the
 same table, only the order of additions differs); ``tests/test_compiled.py`` checks them
 against each other to 1e-12. ``PQCHECK_NO_JIT=1`` (or numba missing) selects the NumPy
 definitions everywhere; so does ``compiled=False`` in the callers.
 
-The compiled code is cached next to this file (numba's ``cache=True``), so only the first
-run after installation pays the compilation (a few seconds).
+numba's machine code is cached next to this file (``cache=True``), so only the first run
+after installation pays the compilation (a few seconds); importing numba and loading it
+still costs about a third of a second per process, which the C extension avoids.
 """
 
 from __future__ import annotations
@@ -24,7 +26,7 @@ import threading
 
 import numpy as np
 
-__all__ = ["available", "resample_into", "phase_sums"]
+__all__ = ["available", "backend", "resample_into", "phase_sums"]
 
 
 _FAST = {"reassoc", "contract"}
@@ -49,6 +51,11 @@ def available() -> bool:
                 _KERNELS.update(_build())
         _KERNELS["ok"] = "resample" in _KERNELS
     return _KERNELS["ok"]
+
+
+def backend() -> str:
+    """Which loops run: ``"native"`` (the C extension), ``"numba"`` or ``"numpy"``."""
+    return _KERNELS.get("backend", "numba") if available() else "numpy"
 
 
 class _signals_held:
@@ -77,19 +84,27 @@ class _signals_held:
 
 
 def _build() -> dict:
-    """The compiled kernels (empty when numba cannot be imported). The machine code is
-    cached beside this file (or in the user's cache); where numba finds nowhere to keep it,
-    every process compiles."""
+    """The compiled kernels: the native ones of :mod:`pqcheck._native` where the extension
+    was built, else numba's (empty when numba cannot be imported either). numba's machine
+    code is cached beside this file (or in the user's cache); where numba finds nowhere to
+    keep it, every process compiles."""
+    from .. import _native
+
+    if _native.kernels() is not None:
+        return {"resample": _native.resample_into, "phase_sums": _native.phase_sums_into,
+                "backend": "native"}
     try:
         import numba
     except ImportError:  # pragma: no cover - numba is a dependency
         return {}
     try:
         jit = numba.njit(nogil=True, cache=True, fastmath=_FAST)
-        return {"resample": jit(_resample_py), "phase_sums": jit(_phase_sums_py)}
+        return {"resample": jit(_resample_py), "phase_sums": jit(_phase_sums_py),
+                "backend": "numba"}
     except RuntimeError:
         jit = numba.njit(nogil=True, fastmath=_FAST)
-        return {"resample": jit(_resample_py), "phase_sums": jit(_phase_sums_py)}
+        return {"resample": jit(_resample_py), "phase_sums": jit(_phase_sums_py),
+                "backend": "numba"}
 
 
 def _resample_py(x, starts, lengths, warp, table, half, phases, out):  # pragma: no cover

@@ -1,4 +1,4 @@
-"""Compiled parser of numeric delimited text (numba), for the data rows of long captures.
+"""Compiled parser of numeric delimited text (C or numba), for the data rows of long captures.
 
 :func:`parse_chunk` turns a buffer of whole data lines into the float64 table that
 ``pandas.read_csv(..., **pandas_options(dialect))`` gives for the same lines, or answers
@@ -18,7 +18,9 @@ of the two rounds the decimal value correctly (Clinger 1990, "How to read floati
 numbers accurately", PLDI). The result is the correctly rounded float64, bit for bit what
 Python's ``float()`` gives; pandas' own converter is within one unit in the last place of it.
 
-The loop releases the GIL, so chunks are parsed on threads beside the analysis.
+The loop runs in C (:mod:`pqcheck._native`, a direct port of :func:`_parse_py`) where the
+extension was built, else compiled by numba; either releases the GIL, so chunks are parsed
+on threads beside the analysis.
 ``PQCHECK_NO_JIT=1`` (or numba missing) makes :func:`available` False, and the streaming
 reader uses pandas throughout. The plain-Python definitions stay beside the compiled ones
 (the tests run both).
@@ -59,18 +61,23 @@ def available() -> bool:
 
 
 def _build() -> dict:
-    """The compiled kernels (empty when numba cannot be imported). No fastmath: the
+    """The compiled kernels: the native ones of :mod:`pqcheck._native` where the extension
+    was built, else numba's (empty when numba cannot be imported either). No fastmath: the
     conversion relies on exact IEEE multiplication and division."""
+    from .. import _native
+
+    if _native.kernels() is not None:
+        return {"parse": _native.parse, "count": _native.count, "backend": "native"}
     try:
         import numba
     except ImportError:  # pragma: no cover - numba is a dependency
         return {}
     try:
         jit = numba.njit(nogil=True, cache=True)
-        return {"parse": jit(_parse_py), "count": jit(_count_py)}
+        return {"parse": jit(_parse_py), "count": jit(_count_py), "backend": "numba"}
     except RuntimeError:  # pragma: no cover - nowhere to cache the machine code
         jit = numba.njit(nogil=True)
-        return {"parse": jit(_parse_py), "count": jit(_count_py)}
+        return {"parse": jit(_parse_py), "count": jit(_count_py), "backend": "numba"}
 
 
 def _count_py(buf, n):

@@ -1,0 +1,444 @@
+/*
+ * Native inner loops of pqcheck, loaded with ctypes by pqcheck/_native.py.
+ *
+ * Each function is a direct port of a plain-Python definition kept beside its caller
+ * (pqcheck/dsp/_compiled.py, pqcheck/readers/_numcsv.py, pqcheck/dsp/spectrum.py); the tests
+ * run both and compare them. Built as an optional extension (setup.py): where no compiler is
+ * found the install still succeeds and the numba forms are used.
+ *
+ * Compiled with -ffp-contract=off: no fused multiply-adds, so that every product and sum is
+ * the IEEE operation the Python form writes, on every machine, with or without AVX2. The
+ * AVX2 resampling and the portable one perform the same operations in the same order and
+ * give the same bits (tests/test_native.py checks this).
+ *
+ * The module also has an (empty) Python initialiser, so that setuptools builds and names
+ * it like any extension; nothing is called through the Python C API.
+ */
+#define PY_SSIZE_T_CLEAN
+#include <Python.h>
+
+#include <math.h>
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+
+#if defined(__x86_64__) && defined(__GNUC__)
+#include <immintrin.h>
+#define PQ_X86 1
+#else
+#define PQ_X86 0
+#endif
+
+#define EXPORT __attribute__((visibility("default")))
+
+/* ------------------------------------------------------------------------------------ */
+/* Band-limited resampling (pqcheck.dsp._compiled._resample_py)                          */
+/* ------------------------------------------------------------------------------------ */
+
+/* Positions of the points of one window: base sample of the kernel and kernel row. */
+static void window_rows(double s, double ln, double kap, int64_t m_pts, int64_t half,
+                        int64_t phases, const double *table, int64_t taps, int64_t *bases,
+                        const double **rows)
+{
+    for (int64_t m = 0; m < m_pts; m++) {
+        double u = (double)m / (double)m_pts;
+        double pos = s + ln * u;
+        if (kap != 0.0)
+            pos += ln * kap * (u * (1.0 - u));
+        double i0 = floor(pos);
+        int64_t p = (int64_t)nearbyint((pos - i0) * (double)phases); /* half to even */
+        bases[m] = (int64_t)i0 - (half - 1);
+        rows[m] = table + p * taps;
+    }
+}
+
+/* Dot product of taps samples and weights (taps a multiple of 8), in eight running lanes
+ * summed as ((l0 + l4) + (l1 + l5)) + ((l2 + l6) + (l3 + l7)): the order of the AVX2 form. */
+static inline double dot8_portable(const double *x, const double *w, int64_t taps)
+{
+    double a[4], b[4];
+    for (int k = 0; k < 4; k++) {
+        a[k] = x[k] * w[k];
+        b[k] = x[4 + k] * w[4 + k];
+    }
+    for (int64_t t = 8; t < taps; t += 8) {
+        for (int k = 0; k < 4; k++) {
+            a[k] = a[k] + x[t + k] * w[t + k];
+            b[k] = b[k] + x[t + 4 + k] * w[t + 4 + k];
+        }
+    }
+    double s0 = a[0] + b[0], s1 = a[1] + b[1], s2 = a[2] + b[2], s3 = a[3] + b[3];
+    return (s0 + s1) + (s2 + s3);
+}
+
+static void resample_portable(const double *x, int64_t c_n, int64_t n, int64_t n_win,
+                              int64_t m_pts, int64_t taps, double *out,
+                              const int64_t *bases, const double **rows, int64_t w)
+{
+    for (int64_t c = 0; c < c_n; c++) {
+        const double *xc = x + c * n;
+        double *oc = out + (c * n_win + w) * m_pts;
+        if (taps % 8 == 0) {
+            for (int64_t m = 0; m < m_pts; m++)
+                oc[m] = dot8_portable(xc + bases[m], rows[m], taps);
+        } else {
+            for (int64_t m = 0; m < m_pts; m++) {
+                const double *xp = xc + bases[m];
+                const double *wp = rows[m];
+                double acc = 0.0;
+                for (int64_t t = 0; t < taps; t++)
+                    acc += xp[t] * wp[t];
+                oc[m] = acc;
+            }
+        }
+    }
+}
+
+#if PQ_X86
+__attribute__((target("avx2"))) static void
+resample_avx2(const double *x, int64_t c_n, int64_t n, int64_t n_win, int64_t m_pts,
+              int64_t taps, double *out, const int64_t *bases, const double **rows, int64_t w)
+{
+    for (int64_t c = 0; c < c_n; c++) {
+        const double *xc = x + c * n;
+        double *oc = out + (c * n_win + w) * m_pts;
+        for (int64_t m = 0; m < m_pts; m++) {
+            const double *xp = xc + bases[m];
+            const double *wp = rows[m];
+            __m256d a = _mm256_mul_pd(_mm256_loadu_pd(xp), _mm256_loadu_pd(wp));
+            __m256d b = _mm256_mul_pd(_mm256_loadu_pd(xp + 4), _mm256_loadu_pd(wp + 4));
+            for (int64_t t = 8; t < taps; t += 8) {
+                a = _mm256_add_pd(a, _mm256_mul_pd(_mm256_loadu_pd(xp + t),
+                                                   _mm256_loadu_pd(wp + t)));
+                b = _mm256_add_pd(b, _mm256_mul_pd(_mm256_loadu_pd(xp + t + 4),
+                                                   _mm256_loadu_pd(wp + t + 4)));
+            }
+            __m256d s = _mm256_add_pd(a, b);               /* s0 s1 s2 s3 */
+            __m128d lo = _mm256_castpd256_pd128(s);        /* s0 s1 */
+            __m128d hi = _mm256_extractf128_pd(s, 1);      /* s2 s3 */
+            __m128d p = _mm_hadd_pd(lo, hi);               /* s0+s1, s2+s3 */
+            oc[m] = _mm_cvtsd_f64(_mm_add_sd(p, _mm_unpackhi_pd(p, p)));
+        }
+    }
+}
+#endif
+
+EXPORT int pq_has_avx2(void)
+{
+#if PQ_X86
+    __builtin_cpu_init();
+    return __builtin_cpu_supports("avx2") ? 1 : 0;
+#else
+    return 0;
+#endif
+}
+
+/* out (c_n, n_win, m_pts) <- band-limited values of x (c_n, n) at the points of each
+ * window. Returns 0, or -1 when out of memory. The caller checks the bounds. */
+EXPORT int pq_resample(const double *x, int64_t c_n, int64_t n, const double *starts,
+                       const double *lengths, const double *warp, int64_t n_win,
+                       const double *table, int64_t taps, int64_t half, int64_t phases,
+                       double *out, int64_t m_pts, int portable)
+{
+    int64_t *bases = malloc(sizeof(int64_t) * (size_t)(m_pts > 0 ? m_pts : 1));
+    const double **rows = malloc(sizeof(double *) * (size_t)(m_pts > 0 ? m_pts : 1));
+    if (!bases || !rows) {
+        free(bases);
+        free(rows);
+        return -1;
+    }
+#if PQ_X86
+    int vec = !portable && taps % 8 == 0 && pq_has_avx2();
+#else
+    int vec = 0;
+    (void)portable;
+#endif
+    for (int64_t w = 0; w < n_win; w++) {
+        window_rows(starts[w], lengths[w], warp[w], m_pts, half, phases, table, taps, bases,
+                    rows);
+#if PQ_X86
+        if (vec) {
+            resample_avx2(x, c_n, n, n_win, m_pts, taps, out, bases, rows, w);
+            continue;
+        }
+#endif
+        resample_portable(x, c_n, n, n_win, m_pts, taps, out, bases, rows, w);
+    }
+    free(bases);
+    free(rows);
+    return 0;
+}
+
+/* ------------------------------------------------------------------------------------ */
+/* Phase sums of the tracker (pqcheck.dsp._compiled._phase_sums_py)                       */
+/* ------------------------------------------------------------------------------------ */
+
+EXPORT void pq_phase_sums(const double *x, int64_t n, const double *mid, const double *count,
+                          int64_t n_mid, double phi0, int64_t k_first, int64_t nz, double *out)
+{
+    const double tau = 2.0 * M_PI;
+    double *o0 = out, *o1 = out + nz, *o2 = out + 2 * nz;
+    for (int64_t s = 0; s < n_mid - 1; s++) {
+        double slope = (count[s + 1] - count[s]) / (mid[s + 1] - mid[s]);
+        int64_t lo = s == 0 ? 0 : (int64_t)ceil(mid[s]);
+        int64_t hi = s == n_mid - 2 ? n : (int64_t)ceil(mid[s + 1]);
+        if (lo < 0)
+            lo = 0;
+        if (hi > n)
+            hi = n;
+        if (hi <= lo)
+            continue;
+        double phi_s = count[s] + ((double)lo - mid[s]) * slope;
+        double a = tau * (phi_s - floor(phi_s));
+        double er = cos(a), ei = -sin(a);
+        double rr = cos(tau * slope), ri = -sin(tau * slope);
+        double g_s = phi_s - phi0 + 0.5;
+        double b = M_PI * (g_s - 2.0 * floor(0.5 * g_s));
+        double qr = cos(b), qi = sin(b);
+        double pr = cos(M_PI * slope), pi_ = sin(M_PI * slope);
+        int64_t i = lo;
+        while (i < hi) {
+            double cur = floor(g_s + (double)(i - lo) * slope);
+            int64_t end = i + 1;
+            if (slope > 0.0) {
+                double reach = ceil((cur + 1.0 - g_s) / slope);
+                if (reach >= (double)(hi - lo))
+                    end = hi;
+                else {
+                    int64_t e = lo + (int64_t)reach;
+                    end = e > i + 1 ? e : i + 1;
+                }
+            }
+            while (end < hi && floor(g_s + (double)(end - lo) * slope) == cur)
+                end++;
+            while (end - 1 > i && floor(g_s + (double)(end - 1 - lo) * slope) != cur)
+                end--;
+            double parity = cur - 2.0 * floor(0.5 * cur);
+            double sgn = parity == 0.0 ? 0.5 : -0.5;
+            double s_wr = 0.0, s_wi = 0.0, s_r = 0.0, s_i = 0.0, s_w = 0.0;
+            double run_len = (double)(end - i);
+            for (int64_t k = i; k < end; k++) {
+                double w = 0.5 + sgn * qr;
+                double xv = x[k];
+                double yr = xv * er, yi = xv * ei;
+                s_wr += w * yr;
+                s_wi += w * yi;
+                s_r += yr;
+                s_i += yi;
+                s_w += w;
+                double er2 = er * rr - ei * ri, ei2 = er * ri + ei * rr;
+                er = er2;
+                ei = ei2;
+                double qr2 = qr * pr - qi * pi_, qi2 = qr * pi_ + qi * pr;
+                qr = qr2;
+                qi = qi2;
+            }
+            i = end;
+            int64_t j = (int64_t)cur - 1 - k_first;
+            if (j >= 0 && j < nz) {
+                o0[j] += s_wr;
+                o1[j] += s_wi;
+                o2[j] += s_w;
+            }
+            if (j + 1 >= 0 && j + 1 < nz) {
+                o0[j + 1] += s_r - s_wr;
+                o1[j + 1] += s_i - s_wi;
+                o2[j + 1] += run_len - s_w;
+            }
+        }
+    }
+}
+
+/* ------------------------------------------------------------------------------------ */
+/* Numeric delimited text (pqcheck.readers._numcsv._parse_py)                            */
+/* ------------------------------------------------------------------------------------ */
+
+EXPORT int64_t pq_count_lines(const uint8_t *buf, int64_t n)
+{
+    int64_t k = 0;
+    const uint8_t *p = buf, *end = buf + n;
+    while (p < end) {
+        const uint8_t *q = memchr(p, '\n', (size_t)(end - p));
+        if (!q)
+            break;
+        k++;
+        p = q + 1;
+    }
+    return k;
+}
+
+#define AT(j) ((j) < n ? (int)buf[j] : 10)
+#define IS_END(ch) ((ch) == sep || (ch) == 10 || (ch) == 13)
+
+/* Rows of buf[:n] into out[row * rs + col * cs]; colmap[f] is the column of field f or -1.
+ * Returns the number of rows, or -1 where the text is not one this parser may read. */
+EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const int64_t *colmap,
+                        int64_t nf, double *out, int64_t max_rows, int64_t rs, int64_t cs,
+                        const double *pow10)
+{
+    int64_t row = 0, i = 0;
+    const double nan = NAN;
+    while (i < n) {
+        int c = buf[i];
+        if (c == 10 || c == 13)
+            return -1; /* a blank line */
+        if (row >= max_rows)
+            return -1;
+        int64_t f = 0;
+        double *orow = out + row * rs;
+        for (;;) {
+            int64_t col = colmap[f];
+            if (col < 0) {
+                while (i < n) {
+                    c = buf[i];
+                    if (IS_END(c))
+                        break;
+                    if (c == 34 || c >= 128)
+                        return -1;
+                    i++;
+                }
+            } else {
+                int64_t start = i;
+                double val = nan;
+                c = AT(i);
+                int64_t j = c == 45 ? i + 1 : i;
+                int is_na = 0;
+                if (j + 3 <= n) {
+                    int a = buf[j], b = buf[j + 1], e = buf[j + 2];
+                    if (a == 110 && b == 97 && e == 110)
+                        is_na = 1; /* nan, -nan */
+                    else if (a == 78 && b == 97 && e == 78)
+                        is_na = 1; /* NaN, -NaN */
+                    else if (a == 78 && b == 65 && e == 78 && j == i)
+                        is_na = 1; /* NAN */
+                    if (is_na && j + 3 < n) {
+                        int t = buf[j + 3];
+                        if (!IS_END(t))
+                            is_na = 0;
+                    }
+                }
+                if (is_na) {
+                    i = j + 3;
+                } else {
+                    while (i < n && (buf[i] == 32 || (buf[i] == 9 && sep != 9)))
+                        i++;
+                    c = AT(i);
+                    if (IS_END(c)) {
+                        if (i > start)
+                            return -1; /* a blank cell */
+                    } else {
+                        int neg = 0;
+                        if (c == 45) {
+                            neg = 1;
+                            i++;
+                        } else if (c == 43) {
+                            i++;
+                        }
+                        uint64_t mant = 0;
+                        int64_t nsig = 0, ndig = 0, e10 = 0;
+                        while (i < n) {
+                            int d = (int)buf[i] - 48;
+                            if (d < 0 || d > 9)
+                                break;
+                            ndig++;
+                            if (mant != 0 || d != 0) {
+                                nsig++;
+                                if (nsig <= 18)
+                                    mant = mant * 10 + (uint64_t)d;
+                            }
+                            i++;
+                        }
+                        if (i < n && buf[i] == dec) {
+                            i++;
+                            while (i < n) {
+                                int d = (int)buf[i] - 48;
+                                if (d < 0 || d > 9)
+                                    break;
+                                ndig++;
+                                if (mant != 0 || d != 0) {
+                                    nsig++;
+                                    if (nsig <= 18)
+                                        mant = mant * 10 + (uint64_t)d;
+                                }
+                                e10--;
+                                i++;
+                            }
+                        }
+                        if (ndig == 0 || nsig > 18)
+                            return -1;
+                        if (i < n && (buf[i] | 32) == 101) { /* e or E */
+                            i++;
+                            int eneg = 0;
+                            if (i < n && buf[i] == 45) {
+                                eneg = 1;
+                                i++;
+                            } else if (i < n && buf[i] == 43) {
+                                i++;
+                            }
+                            int64_t ex = 0, nex = 0;
+                            while (i < n) {
+                                int d = (int)buf[i] - 48;
+                                if (d < 0 || d > 9)
+                                    break;
+                                if (ex < 100000)
+                                    ex = ex * 10 + d;
+                                nex++;
+                                i++;
+                            }
+                            if (nex == 0)
+                                return -1;
+                            e10 += eneg ? -ex : ex;
+                        }
+                        while (i < n && (buf[i] == 32 || (buf[i] == 9 && sep != 9)))
+                            i++;
+                        c = AT(i);
+                        if (!IS_END(c))
+                            return -1;
+                        if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL)
+                            return -1; /* outside the fast path */
+                        if (mant == 0)
+                            val = 0.0;
+                        else if (e10 >= 0)
+                            val = (double)mant * pow10[e10];
+                        else
+                            val = (double)mant / pow10[-e10];
+                        if (neg)
+                            val = -val;
+                    }
+                }
+                orow[col * cs] = val;
+            }
+            c = AT(i);
+            if (c == sep) {
+                f++;
+                i++;
+                if (f >= nf)
+                    return -1; /* more fields than the header */
+                continue;
+            }
+            if (c == 13) {
+                if (i + 1 < n && buf[i + 1] == 10)
+                    i += 2;
+                else
+                    return -1; /* a bare carriage return */
+            } else {
+                i++;
+            }
+            f++;
+            for (; f < nf; f++) /* a short row: NaN */
+                if (colmap[f] >= 0)
+                    orow[colmap[f] * cs] = nan;
+            row++;
+            break;
+        }
+    }
+    return row;
+}
+
+/* ------------------------------------------------------------------------------------ */
+
+static struct PyModuleDef pq_module = {PyModuleDef_HEAD_INIT, "_cext",
+                                       "Native loops of pqcheck (used through ctypes).", -1,
+                                       NULL, NULL, NULL, NULL, NULL};
+
+PyMODINIT_FUNC PyInit__cext(void) { return PyModule_Create(&pq_module); }

@@ -1,0 +1,139 @@
+"""The native loops of ``pqcheck/_cext.c``, called through ctypes.
+
+The extension is built at install time when a C compiler is present (``setup.py``; it is
+optional). Loaded here with :mod:`ctypes`, which releases the GIL for the length of every
+call, so that chunks run on several threads. It starts in about a millisecond, where numba
+takes a third of a second to import and load its cached machine code; and it is the same
+machine code on every run.
+
+``PQCHECK_NO_NATIVE=1`` disables it (the numba forms are used, or NumPy with
+``PQCHECK_NO_JIT=1``). ``PQCHECK_REQUIRE_NATIVE=1`` makes a missing or broken extension an
+error (CI sets it, so that the suite cannot pass on the fallback by accident).
+"""
+
+from __future__ import annotations
+
+import ctypes
+import importlib.machinery
+import os
+import threading
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["kernels", "resample_into", "phase_sums_into", "parse", "count", "has_avx2"]
+
+_LIB: dict = {}
+_LOCK = threading.Lock()
+
+_D = ctypes.POINTER(ctypes.c_double)
+_I64 = ctypes.c_int64
+
+
+def _path() -> Path | None:
+    here = Path(__file__).parent
+    for suffix in importlib.machinery.EXTENSION_SUFFIXES:
+        p = here / f"_cext{suffix}"
+        if p.is_file():
+            return p
+    return None
+
+
+def _load():
+    if os.environ.get("PQCHECK_NO_NATIVE", "").strip() not in ("", "0"):
+        return None
+    p = _path()
+    if p is None:
+        if os.environ.get("PQCHECK_REQUIRE_NATIVE", "").strip() not in ("", "0"):
+            raise RuntimeError(f"PQCHECK_REQUIRE_NATIVE is set but no native extension "
+                               f"was built in {Path(__file__).parent}; reinstall with a C "
+                               f"compiler present (pip install -e .)")
+        return None
+    lib = ctypes.CDLL(str(p))
+    lib.pq_resample.restype = ctypes.c_int
+    lib.pq_resample.argtypes = [_D, _I64, _I64, _D, _D, _D, _I64, _D, _I64, _I64, _I64, _D,
+                                _I64, ctypes.c_int]
+    lib.pq_phase_sums.restype = None
+    lib.pq_phase_sums.argtypes = [_D, _I64, _D, _D, _I64, ctypes.c_double, _I64, _I64, _D]
+    lib.pq_count_lines.restype = _I64
+    lib.pq_count_lines.argtypes = [ctypes.c_void_p, _I64]
+    lib.pq_parse.restype = _I64
+    lib.pq_parse.argtypes = [ctypes.c_void_p, _I64, ctypes.c_int, ctypes.c_int,
+                             ctypes.POINTER(_I64), _I64, _D, _I64, _I64, _I64, _D]
+    lib.pq_has_avx2.restype = ctypes.c_int
+    lib.pq_has_avx2.argtypes = []
+    return lib
+
+
+def kernels():
+    """The loaded library, or None (not built, or disabled by ``PQCHECK_NO_NATIVE``)."""
+    if "lib" not in _LIB:
+        with _LOCK:
+            if "lib" not in _LIB:
+                _LIB["lib"] = _load()
+    return _LIB["lib"]
+
+
+def has_avx2() -> bool:
+    lib = kernels()
+    return bool(lib is not None and lib.pq_has_avx2())
+
+
+def _dp(a):
+    return a.ctypes.data_as(_D)
+
+
+def _f64(a):
+    return np.ascontiguousarray(a, dtype=np.float64)
+
+
+def resample_into(x, starts, lengths, warp, table, half: int, phases: int, out, *,
+                  portable: bool = False) -> None:
+    """:func:`pqcheck.dsp._compiled.resample_into` in C; ``portable`` skips the AVX2 loop
+    (the same operations in the same order: the same bits)."""
+    x, starts, lengths, warp, table = map(_f64, (x, starts, lengths, warp, table))
+    if not (out.flags.c_contiguous and out.dtype == np.float64 and out.ndim == 3):
+        raise ValueError("resample_into: out must be a C-contiguous float64 (C, W, M) array")
+    c_n, n_win, m_pts = out.shape
+    if x.shape[0] != c_n or starts.size != n_win or lengths.size != n_win \
+            or warp.size != n_win:
+        raise ValueError("resample_into: shapes of x, windows and out disagree")
+    rc = kernels().pq_resample(_dp(x), c_n, x.shape[1], _dp(starts), _dp(lengths), _dp(warp),
+                               n_win, _dp(table), table.shape[1], int(half), int(phases),
+                               _dp(out), m_pts, int(bool(portable)))
+    if rc:
+        raise MemoryError("resample_into: out of memory")
+
+
+def phase_sums_into(x, mid, count, phi0: float, k_first: int, nz: int, out) -> None:
+    """:func:`pqcheck.dsp._compiled._phase_sums_py` in C; ``out`` float64 ``(3, nz)``,
+    C-contiguous, added to."""
+    x, mid, count = map(_f64, (x, mid, count))
+    if not (out.flags.c_contiguous and out.dtype == np.float64 and out.shape == (3, nz)):
+        raise ValueError("phase_sums_into: out must be a C-contiguous float64 (3, nz) array")
+    kernels().pq_phase_sums(_dp(x), x.size, _dp(mid), _dp(count), mid.size, float(phi0),
+                            int(k_first), int(nz), _dp(out))
+
+
+def count(buf, n: int) -> int:
+    """Number of ``\\n`` in ``buf[:n]`` (a uint8 array)."""
+    if n > buf.size:
+        raise ValueError("count: n beyond the buffer")
+    return int(kernels().pq_count_lines(buf.ctypes.data, int(n)))
+
+
+def parse(buf, n: int, sep: int, dec: int, colmap, out, pow10) -> int:
+    """:func:`pqcheck.readers._numcsv._parse_py` in C: rows parsed into the float64 array
+    ``out`` (rows, columns; any strides that are whole elements), or -1."""
+    if n > buf.size:
+        raise ValueError("parse: n beyond the buffer")
+    colmap = np.ascontiguousarray(colmap, dtype=np.int64)
+    pow10 = _f64(pow10)
+    if out.dtype != np.float64 or out.ndim != 2 or any(s % 8 for s in out.strides):
+        raise ValueError("parse: out must be a 2-d float64 array")
+    if colmap.size == 0 or int(colmap.max()) >= out.shape[1]:
+        raise ValueError("parse: colmap names a column outside out")
+    rs, cs = (s // 8 for s in out.strides)
+    return int(kernels().pq_parse(buf.ctypes.data, int(n), int(sep), int(dec),
+                                  colmap.ctypes.data_as(ctypes.POINTER(_I64)), colmap.size,
+                                  _dp(out), out.shape[0], rs, cs, _dp(pow10)))
