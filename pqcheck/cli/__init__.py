@@ -51,6 +51,9 @@ def run() -> None:
     import os
     import threading
 
+    from .._process import keep_freed_memory
+
+    keep_freed_memory()
     try:
         main()
         code = 0

@@ -26,7 +26,6 @@ import re
 import zlib
 
 import numpy as np
-import pandas as pd
 
 from ..capture import Capture, Channel, Provenance, guess_role_evidence
 from ..errors import CaptureFormatError
@@ -57,6 +56,8 @@ def _locate_cell(path, dialect, kind: str = "bad"):
     float64 (``1e400``, ``Infinity``, a 400-digit integer), ``"filled"`` a value in a column
     that must be empty. Reads the file as text with every line counted, so the line is exact.
     """
+    import pandas as pd
+
     names = dialect.pandas_names
     reader = pd.read_csv(
         path,
@@ -115,6 +116,8 @@ def parse_error(path, dialect: Dialect, exc, *, line_offset: int = 0) -> Capture
     """The error to raise for a pandas parser failure: names the line (and the column of a
     cell that is not a number) and says what to do. ``line_offset``: lines of the file before
     the text pandas was given (0 when it read the whole file)."""
+    import pandas as pd
+
     msg = str(exc)
     m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", msg)
     if m:
@@ -200,6 +203,8 @@ def checked_columns(table, dialect: Dialect, path, *, by_column: bool = False,
 
 def read_table(path, dialect: Dialect):
     """Parse the numeric block of a sniffed file into a float64 array (rows, kept columns)."""
+    import pandas as pd
+
     path = str(path)
     kwargs = dict(pandas_options(dialect), skiprows=dialect.data_line - 1,
                   compression=dialect.compression)

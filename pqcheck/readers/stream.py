@@ -23,7 +23,6 @@ import sys
 from dataclasses import replace
 
 import numpy as np
-import pandas as pd
 
 from ..capture import CaptureStream, Provenance
 from ..errors import CaptureFormatError
@@ -183,6 +182,8 @@ def _produce_blocks(spec: dict, out: dict):
     Runs on the parse thread or in the parse process; at the end ``out`` holds ``sha256`` and
     ``findings``. Errors are raised as :class:`CaptureFormatError` naming the line.
     """
+    import pandas as pd
+
     path, d, names = spec["path"], spec["dialect"], spec["names"]
     findings = []
     # The parser reads from a handle that hashes every byte it passes on, positioned at the
@@ -352,6 +353,8 @@ def _pandas_rest(spec: dict, offset: int, lines_before: int, first: bool):
     after a chunk pandas could not parse on its own, the rest of the file is read this way,
     so that a problem spanning chunks (a quote) is reported exactly as without the compiled
     parser."""
+    import pandas as pd
+
     path, d = spec["path"], spec["dialect"]
     prefix = b"" if first else _fallback_prefix(d)
     fh = io.BufferedReader(_Prefixed(path, offset, prefix), 1 << 20)
@@ -367,6 +370,8 @@ def _pandas_rest(spec: dict, offset: int, lines_before: int, first: bool):
 def _pandas_chunk(spec: dict, buf, n: int, first: bool):
     """One refused chunk parsed by pandas; None when pandas fails on it (the caller then
     reads the rest of the file with :func:`_pandas_rest`)."""
+    import pandas as pd
+
     d = spec["dialect"]
     prefix = b"" if first else _fallback_prefix(d)
     try:
@@ -629,11 +634,42 @@ def _prefetch(iterator, depth: int = 2):
 
 
 def _first_chunk(path, d, rows):
+    """The first ``rows`` data rows as a float table (rows, kept columns), for the layout
+    checks: by the compiled parser where it reads them (pandas is then not imported at
+    all), else by pandas."""
+    table = _first_chunk_compiled(path, d, rows)
+    if table is not None:
+        return _d.checked_columns(table, d, path)
+    import pandas as pd
+
     try:
         df = pd.read_csv(path, **_d.pandas_options(d), skiprows=d.data_line - 1, nrows=rows)
     except (ValueError, pd.errors.ParserError):
         raise NotStreamable("first chunk") from None
     return _d.checked_columns(df.to_numpy(dtype=np.float64), d, path)
+
+
+def _first_chunk_compiled(path, d, rows):
+    """The table of :func:`_first_chunk` from the compiled parser, or None where it refuses
+    the lines (a blank line, a quote, a cell that is not a plain number...) or is
+    unavailable: pandas then reads them, with its own messages."""
+    colmap = _compiled_layout(d)
+    if colmap is None:
+        return None
+    from . import _numcsv
+
+    opts = _d.pandas_options(d)
+    with open(path, "rb") as fh:
+        for _ in range(d.data_line - 1):
+            fh.readline()
+        text = b"".join(fh.readline() for _ in range(rows))
+    # line ends at the end of the text: the line end of its last row, or blank lines at the
+    # end of the file (pandas skips both)
+    text = text.rstrip(b"\r\n")
+    if not text:
+        return None
+    buf = np.frombuffer(text, dtype=np.uint8)
+    return _numcsv.parse_chunk(buf, len(text), opts["sep"], opts["decimal"], colmap)
 
 
 def _avg_row_bytes(path, d) -> float:
@@ -651,6 +687,8 @@ def _chunks(reader, path, d, names, line_offset=None, drop_first=False):
     ``line_offset``: lines of the file before the text pandas reads (default: those above
     the first data row); ``drop_first``: the first row is a line put in front of the text
     (see :func:`_fallback_text`) and is dropped."""
+    import pandas as pd
+
     if line_offset is None:
         line_offset = d.data_line - 1
     while True:

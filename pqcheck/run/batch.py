@@ -571,8 +571,10 @@ def _worker_init():
     and run their FFTs on one thread (the pool already uses every core)."""
     import signal
 
+    from .._process import keep_freed_memory
     from ..dsp import spectrum
 
+    keep_freed_memory()
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     spectrum.FFT_WORKERS = 1
 
