@@ -95,35 +95,23 @@ static void resample_portable(const double *x, int64_t c_n, int64_t n, int64_t n
 }
 
 #if PQ_X86
-/* Points outer, channels inner: the kernel row of a point is loaded once (into four
- * registers for 16 taps) and applied to every channel. */
+/* ((s0 + s1) + (s2 + s3)) of the four lanes: the order of dot8_portable. */
+__attribute__((target("avx2"))) static inline double hsum_ordered(__m256d s)
+{
+    __m128d lo = _mm256_castpd256_pd128(s);   /* s0 s1 */
+    __m128d hi = _mm256_extractf128_pd(s, 1); /* s2 s3 */
+    __m128d p = _mm_hadd_pd(lo, hi);          /* s0+s1, s2+s3 */
+    return _mm_cvtsd_f64(_mm_add_sd(p, _mm_unpackhi_pd(p, p)));
+}
+
+/* Points outer, channels inner: the kernel row of a point is read from memory once and
+ * stays in L1 for every channel. */
 __attribute__((target("avx2"))) static void
 resample_avx2(const double *x, int64_t c_n, int64_t n, int64_t n_win, int64_t m_pts,
               int64_t taps, double *out, const int64_t *bases, const double **rows, int64_t w)
 {
     double *o0 = out + w * m_pts;
     const int64_t ostride = n_win * m_pts;
-    if (taps == 16) {
-        for (int64_t m = 0; m < m_pts; m++) {
-            const double *wp = rows[m];
-            __m256d w0 = _mm256_loadu_pd(wp), w1 = _mm256_loadu_pd(wp + 4);
-            __m256d w2 = _mm256_loadu_pd(wp + 8), w3 = _mm256_loadu_pd(wp + 12);
-            const double *xp = x + bases[m];
-            double *op = o0 + m;
-            for (int64_t c = 0; c < c_n; c++, xp += n, op += ostride) {
-                __m256d a = _mm256_mul_pd(_mm256_loadu_pd(xp), w0);
-                __m256d b = _mm256_mul_pd(_mm256_loadu_pd(xp + 4), w1);
-                a = _mm256_add_pd(a, _mm256_mul_pd(_mm256_loadu_pd(xp + 8), w2));
-                b = _mm256_add_pd(b, _mm256_mul_pd(_mm256_loadu_pd(xp + 12), w3));
-                __m256d s = _mm256_add_pd(a, b);          /* s0 s1 s2 s3 */
-                __m128d lo = _mm256_castpd256_pd128(s);   /* s0 s1 */
-                __m128d hi = _mm256_extractf128_pd(s, 1); /* s2 s3 */
-                __m128d p = _mm_hadd_pd(lo, hi);          /* s0+s1, s2+s3 */
-                *op = _mm_cvtsd_f64(_mm_add_sd(p, _mm_unpackhi_pd(p, p)));
-            }
-        }
-        return;
-    }
     for (int64_t m = 0; m < m_pts; m++) {
         const double *wp = rows[m];
         const double *xp = x + bases[m];
@@ -137,11 +125,7 @@ resample_avx2(const double *x, int64_t c_n, int64_t n, int64_t n_win, int64_t m_
                 b = _mm256_add_pd(b, _mm256_mul_pd(_mm256_loadu_pd(xp + t + 4),
                                                    _mm256_loadu_pd(wp + t + 4)));
             }
-            __m256d s = _mm256_add_pd(a, b);
-            __m128d lo = _mm256_castpd256_pd128(s);
-            __m128d hi = _mm256_extractf128_pd(s, 1);
-            __m128d p = _mm_hadd_pd(lo, hi);
-            *op = _mm_cvtsd_f64(_mm_add_sd(p, _mm_unpackhi_pd(p, p)));
+            *op = hsum_ordered(_mm256_add_pd(a, b));
         }
     }
 }
@@ -291,6 +275,31 @@ EXPORT int64_t pq_count_lines(const uint8_t *buf, int64_t n)
     return k;
 }
 
+/* A run of decimal digits from buf[*i]: the first 18 significant ones into *mant, all the
+ * significant ones counted in *nsig (leading zeros are not significant); returns the number
+ * of digits read. */
+static inline int64_t scan_digits(const uint8_t *buf, int64_t n, int64_t *i, uint64_t *mant,
+                                  int64_t *nsig)
+{
+    int64_t j = *i, k = 0;
+    uint64_t m = *mant;
+    int64_t s = *nsig;
+    for (; j < n; j++, k++) {
+        int d = (int)buf[j] - 48;
+        if (d < 0 || d > 9)
+            break;
+        if (m != 0 || d != 0) {
+            s++;
+            if (s <= 18)
+                m = m * 10 + (uint64_t)d;
+        }
+    }
+    *i = j;
+    *mant = m;
+    *nsig = s;
+    return k;
+}
+
 #define AT(j) ((j) < n ? (int)buf[j] : 10)
 #define IS_END(ch) ((ch) == sep || (ch) == 10 || (ch) == 13)
 
@@ -360,33 +369,12 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                         }
                         uint64_t mant = 0;
                         int64_t nsig = 0, ndig = 0, e10 = 0;
-                        while (i < n) {
-                            int d = (int)buf[i] - 48;
-                            if (d < 0 || d > 9)
-                                break;
-                            ndig++;
-                            if (mant != 0 || d != 0) {
-                                nsig++;
-                                if (nsig <= 18)
-                                    mant = mant * 10 + (uint64_t)d;
-                            }
-                            i++;
-                        }
+                        ndig += scan_digits(buf, n, &i, &mant, &nsig);
                         if (i < n && buf[i] == dec) {
                             i++;
-                            while (i < n) {
-                                int d = (int)buf[i] - 48;
-                                if (d < 0 || d > 9)
-                                    break;
-                                ndig++;
-                                if (mant != 0 || d != 0) {
-                                    nsig++;
-                                    if (nsig <= 18)
-                                        mant = mant * 10 + (uint64_t)d;
-                                }
-                                e10--;
-                                i++;
-                            }
+                            int64_t frac = scan_digits(buf, n, &i, &mant, &nsig);
+                            ndig += frac;
+                            e10 -= frac;
                         }
                         if (ndig == 0 || nsig > 18)
                             return -1;
