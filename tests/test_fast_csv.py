@@ -137,20 +137,26 @@ _LAYOUTS = {
 }
 
 
-@pytest.mark.parametrize("layout", sorted(_LAYOUTS))
-def test_tables_match_pandas(layout, tmp_path):
-    # reference: pandas.read_csv with pqcheck's options on the same data rows; within 1 ulp
-    # (pandas' default xstrtod-based converter is not always correctly rounded)
+def _padded(tmp_path, layout):
+    """The file of ``_LAYOUTS[layout]`` with plain rows in front of the unusual cells, so
+    that the layout is recognised first, and behind them (the end is sniffed too)."""
     path = tmp_path / f"{layout}.csv"
     text = _LAYOUTS[layout]
-    # plain rows in front, so that the layout is recognised before the unusual cells
     eol = "\r\n" if "\r\n" in text else "\n"
     lines = text.split(eol)
     k = next(i for i, ln in enumerate(lines) if ln[:1] in "0123456789-")
     lines[k:k] = [lines[k]] * 8
-    if layout != "short-last-row":  # and behind them (the end of the file is sniffed too)
+    if layout != "short-last-row":
         lines[-1:-1] = [lines[k]] * 8
     path.write_bytes(eol.join(lines).encode())
+    return path
+
+
+@pytest.mark.parametrize("layout", sorted(_LAYOUTS))
+def test_tables_match_pandas(layout, tmp_path):
+    # reference: pandas.read_csv with pqcheck's options on the same data rows; within 1 ulp
+    # (pandas' default xstrtod-based converter is not always correctly rounded)
+    path = _padded(tmp_path, layout)
     d = _d.sniff(path)
     colmap = stream._compiled_layout(d)
     assert colmap is not None
@@ -161,6 +167,48 @@ def test_tables_match_pandas(layout, tmp_path):
     buf, n, _, _ = pieces[0]
     got = _numcsv.parse_chunk(buf, n, _d.pandas_options(d)["sep"], d.decimal, colmap)
     assert got is not None and got.shape == want.shape
+    assert np.array_equal(np.isnan(got), np.isnan(want))
+    ok = ~np.isnan(want)
+    np.testing.assert_array_max_ulp(got[ok], want[ok], maxulp=1)
+
+
+_FIRST_CHUNK_EXTRA = {
+    # what instruments and hurried users leave in a file: the compiled parser must either
+    # read the first rows as pandas does or hand them to pandas
+    "blank-lines-at-end": "time [s],ia [A],va [V]\n0,1,2\n0.0001,3,4\n0.0002,5,6\n\n\n\n",
+    "blank-line-inside": "time [s],ia [A],va [V]\n0,1,2\n\n0.0001,3,4\n0.0002,5,6\n",
+    "quoted-cells": 'time [s],ia [A],va [V]\n"0","1","2"\n"0.0001","3","4"\n"0.0002","5","6"\n',
+    "crlf-blank-end": "time [s],ia [A],va [V]\r\n0,1,2\r\n0.0001,3,4\r\n0.0002,5,6\r\n\r\n",
+    "extra-field": "time [s],ia [A],va [V]\n0,1,2\n0.0001,3,4,9\n0.0002,5,6\n",
+}
+
+
+@pytest.mark.parametrize("layout", sorted(_LAYOUTS) + sorted(_FIRST_CHUNK_EXTRA))
+@pytest.mark.parametrize("rows", [3, 1 << 16])
+def test_first_chunk_matches_pandas(layout, rows, tmp_path):
+    # reference: pandas.read_csv(nrows=rows) with pqcheck's options (the path the first chunk
+    # took before); the same table within 1 ulp, or the same error
+    if layout in _LAYOUTS:
+        path = _padded(tmp_path, layout)
+    else:
+        path = tmp_path / f"{layout}.csv"
+        path.write_bytes(_FIRST_CHUNK_EXTRA[layout].encode())
+    d = _d.sniff(path)
+    colmap = stream._compiled_layout(d)
+    assert colmap is not None
+
+    def first(cm):
+        try:
+            return stream._first_chunk(str(path), d, rows, cm)
+        except Exception as exc:  # compared by type and message below
+            return exc
+
+    got, want = first(colmap), first(None)
+    if isinstance(want, Exception):
+        assert type(got) is type(want) and str(got) == str(want)
+        return
+    assert not isinstance(got, Exception), got
+    assert got.shape == want.shape
     assert np.array_equal(np.isnan(got), np.isnan(want))
     ok = ~np.isnan(want)
     np.testing.assert_array_max_ulp(got[ok], want[ok], maxulp=1)

@@ -104,7 +104,8 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
     dropped = []
     t_idx = _d.find_time_column(d, time_column, path)
     settings = _d.base_settings(d)
-    first = _first_chunk(path, d, min(block_rows, 1 << 16))
+    fast = _compiled_layout(d)
+    first = _first_chunk(path, d, min(block_rows, 1 << 16), fast)
     if first.shape[0] < 2:
         raise NotStreamable("tiny")
     if t_idx is not None:
@@ -149,7 +150,6 @@ def stream_delimited(path, *, sample_rate_hz=None, time_column=None, block_rows=
                            (), t0, hint)
     state = {"passes": 0}
 
-    fast = _compiled_layout(d)
     spec = {"path": path, "dialect": d, "names": names, "t_idx": t_idx, "keep": keep,
             "scales": scales, "fs": fs, "colmap": fast,
             "row_bytes": _avg_row_bytes(path, d)}
@@ -633,11 +633,11 @@ def _prefetch(iterator, depth: int = 2):
         th.join(timeout=5)
 
 
-def _first_chunk(path, d, rows):
+def _first_chunk(path, d, rows, colmap=None):
     """The first ``rows`` data rows as a float table (rows, kept columns), for the layout
-    checks: by the compiled parser where it reads them (pandas is then not imported at
-    all), else by pandas."""
-    table = _first_chunk_compiled(path, d, rows)
+    checks: by the compiled parser where it reads them (``colmap`` of
+    :func:`_compiled_layout`; pandas is then not imported at all), else by pandas."""
+    table = None if colmap is None else _first_chunk_compiled(path, d, rows, colmap)
     if table is not None:
         return _d.checked_columns(table, d, path)
     import pandas as pd
@@ -649,13 +649,10 @@ def _first_chunk(path, d, rows):
     return _d.checked_columns(df.to_numpy(dtype=np.float64), d, path)
 
 
-def _first_chunk_compiled(path, d, rows):
+def _first_chunk_compiled(path, d, rows, colmap):
     """The table of :func:`_first_chunk` from the compiled parser, or None where it refuses
-    the lines (a blank line, a quote, a cell that is not a plain number...) or is
-    unavailable: pandas then reads them, with its own messages."""
-    colmap = _compiled_layout(d)
-    if colmap is None:
-        return None
+    the lines (a blank line, a quote, a cell that is not a plain number...): pandas then
+    reads them, with its own messages."""
     from . import _numcsv
 
     opts = _d.pandas_options(d)
