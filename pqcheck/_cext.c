@@ -52,6 +52,17 @@ static void window_rows(double s, double ln, double kap, int64_t m_pts, int64_t 
     }
 }
 
+/* Kernel rows of successive points lie far apart in the table (the phase advances by a
+ * fraction of a sample per point), so the hardware does not foresee them: each row is asked
+ * for PQ_AHEAD points before it is used. */
+#define PQ_AHEAD 8
+static inline void prefetch_row(const double *row, int64_t taps)
+{
+    for (int64_t t = 0; t < taps; t += 8) /* one 64-byte line per 8 taps */
+        __builtin_prefetch(row + t, 0, 3);
+    __builtin_prefetch(row + taps - 1, 0, 3); /* the row need not start on a line */
+}
+
 /* Dot product of taps samples and weights (taps a multiple of 8), in eight running lanes
  * summed as ((l0 + l4) + (l1 + l5)) + ((l2 + l6) + (l3 + l7)): the order of the AVX2 form. */
 static inline double dot8_portable(const double *x, const double *w, int64_t taps)
@@ -116,6 +127,8 @@ resample_avx2(const double *x, int64_t c_n, int64_t n, int64_t n_win, int64_t m_
         const double *wp = rows[m];
         const double *xp = x + bases[m];
         double *op = o0 + m;
+        if (m + PQ_AHEAD < m_pts)
+            prefetch_row(rows[m + PQ_AHEAD], taps);
         for (int64_t c = 0; c < c_n; c++, xp += n, op += ostride) {
             __m256d a = _mm256_mul_pd(_mm256_loadu_pd(xp), _mm256_loadu_pd(wp));
             __m256d b = _mm256_mul_pd(_mm256_loadu_pd(xp + 4), _mm256_loadu_pd(wp + 4));
