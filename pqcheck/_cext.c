@@ -313,6 +313,74 @@ static inline int64_t scan_digits(const uint8_t *buf, int64_t n, int64_t *i, uin
     return k;
 }
 
+#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+#define PQ_SWAR 1
+/* Eight bytes at a time (byte 0 the first character): the number of leading decimal digits
+ * (8 when all are), and the value of k leading digits. A byte b is a digit when its high
+ * nibble is 3 and b + 6 still has high nibble 3; a carry out of b + 6 (b >= 0xfa, not a
+ * digit) only reaches the bytes after the first non-digit. */
+static inline int digit_run8(uint64_t v)
+{
+    const uint64_t hi = 0xF0F0F0F0F0F0F0F0ULL, three = 0x3030303030303030ULL;
+    uint64_t x = ((v & hi) ^ three) | (((v + 0x0606060606060606ULL) & hi) ^ three);
+    return x ? __builtin_ctzll(x) >> 3 : 8;
+}
+
+static inline uint64_t digits_value8(uint64_t v, int k)
+{
+    if (k == 0)
+        return 0;
+    /* the k digits to the high bytes, leading zeros below them */
+    uint64_t d = (v & 0x0F0F0F0F0F0F0F0FULL) << (8 * (8 - k));
+    d = d * 10 + (d >> 8);
+    d = (((d & 0x000000FF000000FFULL) * (100 + (1000000ULL << 32))) +
+         (((d >> 16) & 0x000000FF000000FFULL) * (1 + (10000ULL << 32)))) >> 32;
+    return d & 0xFFFFFFFFULL;
+}
+
+static inline uint64_t load8(const uint8_t *p)
+{
+    uint64_t v;
+    memcpy(&v, p, 8);
+    return v;
+}
+
+static const uint64_t POW10_U[8] = {1, 10, 100, 1000, 10000, 100000, 1000000, 10000000};
+
+/* The integer and fraction digits at buf[*i] when each run is shorter than eight and the
+ * bytes are in the buffer: the same mantissa and digit counts as scan_digits gives (at most
+ * 14 digits, so no digit is dropped). Returns 0, touching nothing, otherwise. */
+static inline int digits_fast(const uint8_t *buf, int64_t n, int dec, int64_t *i,
+                              uint64_t *mant, int64_t *ndig, int64_t *e10)
+{
+    int64_t j = *i;
+    if (j + 8 > n)
+        return 0;
+    uint64_t v = load8(buf + j);
+    int k1 = digit_run8(v);
+    if (k1 == 8)
+        return 0;
+    uint64_t m = digits_value8(v, k1);
+    j += k1;
+    int k2 = 0;
+    if (j < n && buf[j] == dec) {
+        if (j + 9 > n)
+            return 0;
+        uint64_t w = load8(buf + j + 1);
+        k2 = digit_run8(w);
+        if (k2 == 8)
+            return 0;
+        m = m * POW10_U[k2] + digits_value8(w, k2);
+        j += 1 + k2;
+    }
+    *i = j;
+    *mant = m;
+    *ndig = k1 + k2;
+    *e10 = -k2;
+    return 1;
+}
+#endif
+
 #define AT(j) ((j) < n ? (int)buf[j] : 10)
 #define IS_END(ch) ((ch) == sep || (ch) == 10 || (ch) == 13)
 
@@ -382,12 +450,17 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                         }
                         uint64_t mant = 0;
                         int64_t nsig = 0, ndig = 0, e10 = 0;
-                        ndig += scan_digits(buf, n, &i, &mant, &nsig);
-                        if (i < n && buf[i] == dec) {
-                            i++;
-                            int64_t frac = scan_digits(buf, n, &i, &mant, &nsig);
-                            ndig += frac;
-                            e10 -= frac;
+#ifdef PQ_SWAR
+                        if (!digits_fast(buf, n, dec, &i, &mant, &ndig, &e10))
+#endif
+                        {
+                            ndig += scan_digits(buf, n, &i, &mant, &nsig);
+                            if (i < n && buf[i] == dec) {
+                                i++;
+                                int64_t frac = scan_digits(buf, n, &i, &mant, &nsig);
+                                ndig += frac;
+                                e10 -= frac;
+                            }
                         }
                         if (ndig == 0 || nsig > 18)
                             return -1;
@@ -458,6 +531,80 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
         }
     }
     return row;
+}
+
+/* ------------------------------------------------------------------------------------ */
+/* Time-domain statistics of the windows (pqcheck.dsp.spectrum._time_stats and the peaks)  */
+/* ------------------------------------------------------------------------------------ */
+
+/* 1 when every one of the n values is finite (neither NaN nor infinite), else 0. */
+EXPORT int pq_all_finite(const double *x, int64_t n)
+{
+    const int64_t step = 1024;
+    for (int64_t lo = 0; lo < n; lo += step) {
+        int64_t hi = lo + step < n ? lo + step : n;
+        int bad = 0;
+        for (int64_t i = lo; i < hi; i++)
+            bad |= !(fabs(x[i]) <= 1.7976931348623157e308);
+        if (bad)
+            return 0;
+    }
+    return 1;
+}
+
+/* For each window w (samples lo[w] .. hi[w] - 1 of every channel of x, shape (c_n, n)):
+ * the sum, the sum of squares and the largest magnitude of each channel, into
+ * sum/sq/peak (n_win, c_n), and the sum of products of channels pa[j] and pb[j] into
+ * prod (n_win, n_p). Four running sums per quantity, added as (s0 + s1) + (s2 + s3).
+ * A window with hi <= lo is left untouched. The caller checks the bounds. */
+EXPORT void pq_window_stats(const double *x, int64_t c_n, int64_t n, const int64_t *lo,
+                            const int64_t *hi, int64_t n_win, const int64_t *pa,
+                            const int64_t *pb, int64_t n_p, double *sum, double *sq,
+                            double *peak, double *prod)
+{
+    for (int64_t w = 0; w < n_win; w++) {
+        int64_t a = lo[w], len = hi[w] - lo[w];
+        if (len <= 0)
+            continue;
+        int64_t len4 = len & ~(int64_t)3;
+        for (int64_t c = 0; c < c_n; c++) {
+            const double *p = x + c * n + a;
+            double s[4] = {0, 0, 0, 0}, q[4] = {0, 0, 0, 0}, m[4] = {0, 0, 0, 0};
+            int64_t i = 0;
+            for (; i < len4; i += 4) {
+                for (int k = 0; k < 4; k++) {
+                    double v = p[i + k];
+                    double av = fabs(v);
+                    s[k] += v;
+                    q[k] += v * v;
+                    m[k] = av > m[k] ? av : m[k];
+                }
+            }
+            for (int k = 0; i < len; i++, k++) {
+                double v = p[i];
+                double av = fabs(v);
+                s[k] += v;
+                q[k] += v * v;
+                m[k] = av > m[k] ? av : m[k];
+            }
+            double mx = m[0] > m[1] ? m[0] : m[1];
+            double my = m[2] > m[3] ? m[2] : m[3];
+            sum[w * c_n + c] = (s[0] + s[1]) + (s[2] + s[3]);
+            sq[w * c_n + c] = (q[0] + q[1]) + (q[2] + q[3]);
+            peak[w * c_n + c] = mx > my ? mx : my;
+        }
+        for (int64_t j = 0; j < n_p; j++) {
+            const double *u = x + pa[j] * n + a, *v = x + pb[j] * n + a;
+            double r[4] = {0, 0, 0, 0};
+            int64_t i = 0;
+            for (; i < len4; i += 4)
+                for (int k = 0; k < 4; k++)
+                    r[k] += u[i + k] * v[i + k];
+            for (int k = 0; i < len; i++, k++)
+                r[k] += u[i] * v[i];
+            prod[w * n_p + j] = (r[0] + r[1]) + (r[2] + r[3]);
+        }
+    }
 }
 
 /* ------------------------------------------------------------------------------------ */

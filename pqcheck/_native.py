@@ -21,7 +21,8 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["kernels", "resample_into", "phase_sums_into", "parse", "count", "has_avx2"]
+__all__ = ["kernels", "resample_into", "phase_sums_into", "parse", "count", "has_avx2",
+           "all_finite", "window_stats"]
 
 _LIB: dict = {}
 _LOCK = threading.Lock()
@@ -60,6 +61,12 @@ def _load():
     lib.pq_parse.restype = _I64
     lib.pq_parse.argtypes = [ctypes.c_void_p, _I64, ctypes.c_int, ctypes.c_int,
                              ctypes.POINTER(_I64), _I64, _D, _I64, _I64, _I64, _D]
+    lib.pq_all_finite.restype = ctypes.c_int
+    lib.pq_all_finite.argtypes = [_D, _I64]
+    _P64 = ctypes.POINTER(_I64)
+    lib.pq_window_stats.restype = None
+    lib.pq_window_stats.argtypes = [_D, _I64, _I64, _P64, _P64, _I64, _P64, _P64, _I64, _D,
+                                    _D, _D, _D]
     lib.pq_has_avx2.restype = ctypes.c_int
     lib.pq_has_avx2.argtypes = []
     return lib
@@ -113,6 +120,40 @@ def phase_sums_into(x, mid, count, phi0: float, k_first: int, nz: int, out) -> N
         raise ValueError("phase_sums_into: out must be a C-contiguous float64 (3, nz) array")
     kernels().pq_phase_sums(_dp(x), x.size, _dp(mid), _dp(count), mid.size, float(phi0),
                             int(k_first), int(nz), _dp(out))
+
+
+def all_finite(x) -> bool:
+    """``numpy.isfinite(x).all()`` for a C-contiguous float64 array, in one pass and no
+    temporary."""
+    if not (x.flags.c_contiguous and x.dtype == np.float64):
+        raise ValueError("all_finite: x must be a C-contiguous float64 array")
+    return bool(kernels().pq_all_finite(_dp(x), x.size))
+
+
+def window_stats(x, lo, hi, pa, pb):
+    """Per window ``w`` (samples ``lo[w]:hi[w]`` of each row of ``x``, shape ``(C, n)``,
+    C-contiguous float64): the sums, sums of squares and largest magnitudes of the channels
+    (each ``(W, C)``) and the sums of products of rows ``pa[j]`` and ``pb[j]`` (``(W, P)``).
+    Windows with ``hi <= lo`` give NaN. The four are returned as a tuple."""
+    if not (x.flags.c_contiguous and x.dtype == np.float64 and x.ndim == 2):
+        raise ValueError("window_stats: x must be a C-contiguous float64 (C, n) array")
+    c_n, n = x.shape
+    lo, hi, pa, pb = (np.ascontiguousarray(v, dtype=np.int64) for v in (lo, hi, pa, pb))
+    n_win, n_p = lo.size, pa.size
+    if hi.size != n_win or pb.size != n_p:
+        raise ValueError("window_stats: lo/hi or pa/pb differ in length")
+    used = hi > lo
+    if np.any(used & ((lo < 0) | (hi > n))):
+        raise IndexError("window_stats: a window reaches past the samples")
+    if n_p and (min(pa.min(), pb.min()) < 0 or max(pa.max(), pb.max()) >= c_n):
+        raise IndexError("window_stats: a product names a row outside x")
+    sm, sq, pk = (np.full((n_win, c_n), np.nan) for _ in range(3))
+    pr = np.full((n_win, n_p), np.nan)
+    p64 = ctypes.POINTER(_I64)
+    kernels().pq_window_stats(_dp(x), c_n, n, lo.ctypes.data_as(p64), hi.ctypes.data_as(p64),
+                              n_win, pa.ctypes.data_as(p64), pb.ctypes.data_as(p64), n_p,
+                              _dp(sm), _dp(sq), _dp(pk), _dp(pr))
+    return sm, sq, pk, pr
 
 
 def count(buf, n: int) -> int:

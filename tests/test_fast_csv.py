@@ -401,3 +401,19 @@ def test_blocks_are_those_of_the_pandas_path(kind, tmp_path, monkeypatch):
     if kind == "milli-units":  # SI: amperes and volts
         peak = max(float(np.nanmax(np.abs(b[0]))) for b in fast)
         assert peak == pytest.approx(10.0, rel=1e-3)
+
+
+@settings(max_examples=60, deadline=None)
+@given(lines=st.lists(st.tuples(st.integers(0, 300), st.sampled_from([b"\n", b"\r\n"])),
+                      max_size=400),
+       tail=st.sampled_from([b"", b"1,2", b"\r"]), rows=st.integers(1, 500),
+       piece=st.sampled_from([1, 7, 256, 1 << 20]))
+def test_whole_lines_reads_as_readline(lines, tail, rows, piece):
+    # reference: Python's own BufferedReader.readline, called `rows` times
+    import io
+
+    data = b"".join(b"7" * k + end for k, end in lines) + tail
+    ref = io.BufferedReader(io.BytesIO(data), 64)
+    want = b"".join(ref.readline() for _ in range(rows))
+    got = stream._whole_lines(io.BufferedReader(io.BytesIO(data), 64), rows, piece)
+    assert got == want

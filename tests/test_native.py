@@ -184,3 +184,78 @@ def test_required_extension_that_is_missing_is_an_error(tmp_path, monkeypatch):
     monkeypatch.setattr(_native, "_path", lambda: None)
     with pytest.raises(RuntimeError, match="no native extension"):
         _native._load()
+
+
+@needs_native
+@settings(max_examples=40, deadline=None)
+@given(lengths=st.lists(st.integers(0, 40), min_size=1, max_size=12),
+       seed=st.integers(0, 2**31 - 1))
+def test_native_window_stats_equal_numpy(lengths, seed):
+    # reference: NumPy's sum, sum of squares, max(abs) and dot of each window's samples
+    rng = np.random.default_rng(seed)
+    lo = np.cumsum([3] + lengths[:-1])
+    hi = lo + np.array(lengths)
+    x = rng.normal(0, 100, size=(4, int(hi.max()) + 5))
+    pa, pb = [0, 1, 3, 0], [3, 2, 3, 1]
+    sm, sq, pk, pr = _native.window_stats(x, lo, hi, pa, pb)
+    for w, (a, b) in enumerate(zip(lo, hi)):
+        seg = x[:, a:b]
+        if b <= a:  # an empty window is left NaN
+            assert np.isnan(sm[w]).all() and np.isnan(pr[w]).all()
+            continue
+        np.testing.assert_allclose(sm[w], seg.sum(axis=1), rtol=1e-12, atol=1e-10)
+        np.testing.assert_allclose(sq[w], (seg**2).sum(axis=1), rtol=1e-12)
+        np.testing.assert_array_equal(pk[w], np.abs(seg).max(axis=1))
+        np.testing.assert_allclose(pr[w], [seg[i] @ seg[j] for i, j in zip(pa, pb)],
+                                   rtol=1e-12, atol=1e-9)
+
+
+@needs_native
+def test_native_window_stats_refuse_what_they_cannot_read():
+    x = np.zeros((2, 100))
+    with pytest.raises(IndexError, match="past the samples"):
+        _native.window_stats(x, [90], [101], [], [])
+    with pytest.raises(IndexError, match="outside x"):
+        _native.window_stats(x, [0], [10], [0], [2])
+    with pytest.raises(ValueError, match="C-contiguous"):
+        _native.window_stats(x[:, ::2], [0], [10], [], [])
+
+
+@needs_native
+@pytest.mark.parametrize("bad", [np.nan, np.inf, -np.inf])
+def test_native_all_finite_equals_numpy(bad):
+    # reference: numpy.isfinite(...).all()
+    x = np.ones(5000)
+    assert _native.all_finite(x) is True
+    for pos in (0, 1023, 1024, 4999):
+        y = x.copy()
+        y[pos] = bad
+        assert _native.all_finite(y) is bool(np.isfinite(y).all()) is False
+
+
+@needs_native
+def test_fused_window_statistics_equal_numpy_in_the_analysis(monkeypatch):
+    # reference: the NumPy form (_time_stats and _peaks), selected when the C statistics are
+    # not offered; power pairs, line-to-line voltages and the neutral current all compared
+    from pqcheck import Capture, analyze
+
+    fs, f0 = 9_137.0, 50.3
+    t = np.arange(int(3.0 * fs)) / fs
+    rng = np.random.default_rng(5)
+    cur, volt = {}, {}
+    for k, ph in enumerate("abc"):
+        th = 2 * np.pi * f0 * t - 2 * np.pi * k / 3
+        volt[f"v{ph}"] = 325.0 * np.sin(th) + rng.normal(0, 0.2, t.size)
+        cur[f"i{ph}"] = 20 * np.sin(th - 0.3) + 4 * np.sin(5 * th) + rng.normal(0, 0.05, t.size)
+    cap = Capture.from_arrays(fs, currents=cur, voltages=volt)
+    offered = []
+    real = _compiled.window_stats
+    monkeypatch.setattr(_compiled, "window_stats", lambda: offered.append(1) or real())
+    fast = analyze(cap, nominal_hz=50)
+    assert offered  # the C statistics were used for `fast`
+    monkeypatch.setattr(_compiled, "window_stats", lambda: None)
+    slow = analyze(cap, nominal_hz=50)
+    assert fast.windows.n_windows == slow.windows.n_windows > 10
+    for name in ("rms", "dc", "peak", "p_w", "v_ll_rms", "i_n_rms", "component"):
+        a, b = np.asarray(getattr(fast.windows, name)), np.asarray(getattr(slow.windows, name))
+        assert np.nanmax(np.abs(a - b)) <= 1e-9 * np.nanmax(np.abs(b)), name

@@ -26,7 +26,7 @@ import threading
 
 import numpy as np
 
-__all__ = ["available", "backend", "resample_into", "phase_sums"]
+__all__ = ["available", "backend", "resample_into", "phase_sums", "window_stats"]
 
 
 _FAST = {"reassoc", "contract"}
@@ -92,6 +92,7 @@ def _build() -> dict:
 
     if _native.kernels() is not None:
         return {"resample": _native.resample_into, "phase_sums": _native.phase_sums_into,
+                "all_finite": _native.all_finite, "window_stats": _native.window_stats,
                 "backend": "native"}
     try:
         import numba
@@ -257,3 +258,12 @@ def phase_sums(x, mid, count, phi0: float, k_first: int, nz: int):
                    int(nz), out)
     return out
 
+
+
+def window_stats():
+    """The C loops of :func:`pqcheck.dsp.spectrum._time_stats` (``(all_finite,
+    window_stats)`` of :mod:`pqcheck._native`) when the extension is used, else None (numba
+    has no form of them: its callers keep the NumPy one)."""
+    if not available() or "window_stats" not in _KERNELS:
+        return None
+    return _KERNELS["all_finite"], _KERNELS["window_stats"]

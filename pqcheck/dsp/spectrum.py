@@ -432,8 +432,15 @@ def analyse_windows(
     # validity and peaks from the recorded whole samples between the rounded edges
     i_lo = np.clip(np.rint(b[:-1]).astype(np.int64) - offset, 0, n_have)
     i_hi = np.clip(np.rint(b[1:]).astype(np.int64) - offset, 0, n_have)
-    finite = np.isfinite(samples)
-    if finite.all():
+    if compiled is None:
+        compiled = _compiled.available()  # resolved here, before any thread starts
+    # the C loops: every sample finite (checked in one pass), statistics in one pass below
+    native = _compiled.window_stats() if compiled and samples.flags.c_contiguous else None
+    fused = native is not None and native[0](samples)
+    if fused:
+        x = samples
+        valid[:] = i_hi > i_lo
+    elif (finite := np.isfinite(samples)).all():
         x = samples
         valid[:] = i_hi > i_lo
     else:
@@ -441,18 +448,9 @@ def analyse_windows(
                               np.cumsum(~finite.all(axis=0), dtype=np.int64)])
         valid[:] = (bad[i_hi] - bad[i_lo] == 0) & (i_hi > i_lo)
         x = np.where(finite, samples, 0.0)
-    del finite
-    absx = np.abs(x)
-    nonempty = i_hi > i_lo
-    if nonempty.any():
-        idx = np.flatnonzero(nonempty)
-        starts_ = i_lo[idx]
-        pk = np.maximum.reduceat(absx, starts_, axis=1) if starts_.size else None
-        # reduceat runs to the next start; cap the last window at its own end
-        peak[idx] = pk.T
-        last = idx[-1]
-        peak[last] = absx[:, i_lo[last]:i_hi[last]].max(axis=1)
-    del absx
+    if not fused:
+        del finite
+        _peaks(x, i_lo, i_hi, peak)
     band = max_line / max(float(length.min()), 1.0)
     kernel = kernel_for(band)
     # the kernel reaches half - 1 samples before a point and half after it
@@ -471,10 +469,12 @@ def analyse_windows(
         warp = 4.0 * (np.asarray(halves, dtype=np.float64) - b[:-1]) / length - 2.0
         warp = np.where(np.isfinite(warp) & (np.abs(warp) < 0.2), warp, 0.0)
         warp[np.abs(warp) < 1e-9] = 0.0
-    _time_stats(x, i_lo + before, i_hi + before, pairs, combos, rms, mean, prods, crms)
+    if fused:
+        _time_stats_native(native[1], np.ascontiguousarray(x), i_lo + before, i_hi + before,
+                           pairs, combos, rms, mean, prods, crms, peak)
+    else:
+        _time_stats(x, i_lo + before, i_hi + before, pairs, combos, rms, mean, prods, crms)
     whole = (np.abs(mismatch) <= 1e-7) & (np.abs(pos0 - np.rint(pos0)) <= 1e-7) & (warp == 0)
-    if compiled is None:
-        compiled = _compiled.available()  # resolved here, before any thread starts
     jobs = []
     for m in np.unique(m_pts):
         sel = np.flatnonzero(m_pts == m)
@@ -541,6 +541,69 @@ def _rfft(seg, out):
         return np.fft.rfft(seg, axis=-1)
 
 
+def _peaks(x, i_lo, i_hi, peak):
+    """Largest magnitude of each channel over the recorded whole samples of each nonempty
+    window, into ``peak`` (W, C)."""
+    nonempty = i_hi > i_lo
+    if not nonempty.any():
+        return
+    absx = np.abs(x)
+    idx = np.flatnonzero(nonempty)
+    pk = np.maximum.reduceat(absx, i_lo[idx], axis=1)
+    # reduceat runs to the next start; cap the last window at its own end
+    peak[idx] = pk.T
+    last = idx[-1]
+    peak[last] = absx[:, i_lo[last]:i_hi[last]].max(axis=1)
+
+
+def _cross_pairs(combos):
+    """The channel pairs ``(a, c)``, ``a < c``, whose cross moments the rms of the
+    combinations needs, each once, in the order :func:`_time_stats` computes them."""
+    out = []
+    for wts in combos:
+        used = np.flatnonzero(wts)
+        for ia, a in enumerate(used):
+            for c in used[ia + 1:]:
+                if (int(a), int(c)) not in out:
+                    out.append((int(a), int(c)))
+    return out
+
+
+def _combo_rms(combos, msq, cross):
+    """Rms of ``sum_c w_c x_c`` for each combination (rows of ``combos``) from the mean
+    squares ``msq`` (C, w) and the cross moments ``cross[a, c]`` (w,): ``sum_cd w_c w_d
+    mean(x_c x_d)``, (D, w)."""
+    acc = np.zeros((combos.shape[0], msq.shape[1]))
+    for j, wts in enumerate(combos):
+        used = np.flatnonzero(wts)
+        for ia, a in enumerate(used):
+            acc[j] += wts[a] ** 2 * msq[a]
+            for c in used[ia + 1:]:
+                acc[j] += 2 * wts[a] * wts[c] * cross[int(a), int(c)]
+    return np.sqrt(np.maximum(acc, 0.0))
+
+
+def _time_stats_native(stats, x, i_lo, i_hi, pairs, combos, rms, mean, prods, crms, peak):
+    """:func:`_time_stats` and :func:`_peaks` from one pass of the C loop ``stats``
+    (:func:`pqcheck._native.window_stats`) over finite samples ``x`` (C-contiguous)."""
+    cross_pairs = _cross_pairs(combos) if combos.shape[0] else []
+    every = [(int(a), int(c)) for a, c in pairs] + cross_pairs
+    sm, sq, pk, pr = stats(x, i_lo, i_hi, [a for a, _ in every], [c for _, c in every])
+    n = i_hi - i_lo
+    sel = np.flatnonzero(n > 0)
+    if not sel.size:
+        return
+    ln = n[sel].astype(np.float64)
+    rms[sel] = np.sqrt(sq[sel] / ln[:, None])
+    mean[sel] = sm[sel] / ln[:, None]
+    peak[sel] = pk[sel]
+    if len(pairs):
+        prods[sel] = pr[sel, :len(pairs)] / ln[:, None]
+    if combos.shape[0]:
+        cross = {p: pr[sel, len(pairs) + k] / ln for k, p in enumerate(cross_pairs)}
+        crms[sel] = _combo_rms(combos, (sq[sel] / ln[:, None]).T, cross).T
+
+
 def _time_stats(x, i_lo, i_hi, pairs, combos, rms, mean, prods, crms):
     """Rms, mean, mean products and rms of channel combinations over the recorded whole
     samples between each window's rounded edges (all content, also above the analysed
@@ -561,17 +624,9 @@ def _time_stats(x, i_lo, i_hi, pairs, combos, rms, mean, prods, crms):
             # rms of sum_c w_c x_c from second moments: sum_cd w_c w_d mean(x_c x_d), with
             # the cross moments each computed once (no derived signals are formed)
             msq = sumsq / length  # (C, w)
-            cross = {}
-            acc = np.zeros((combos.shape[0], sel.size))
-            for j, wts in enumerate(combos):
-                used = np.flatnonzero(wts)
-                for ia, a in enumerate(used):
-                    acc[j] += wts[a] ** 2 * msq[a]
-                    for c in used[ia + 1:]:
-                        if (a, c) not in cross:
-                            cross[a, c] = np.einsum("wn,wn->w", seg[a], seg[c]) / length
-                        acc[j] += 2 * wts[a] * wts[c] * cross[a, c]
-            crms[sel] = np.sqrt(np.maximum(acc, 0.0)).T
+            cross = {(a, c): np.einsum("wn,wn->w", seg[a], seg[c]) / length
+                     for a, c in _cross_pairs(combos)}
+            crms[sel] = _combo_rms(combos, msq, cross).T
 
 
 def _points(length):

@@ -659,7 +659,7 @@ def _first_chunk_compiled(path, d, rows, colmap):
     with open(path, "rb") as fh:
         for _ in range(d.data_line - 1):
             fh.readline()
-        text = b"".join(fh.readline() for _ in range(rows))
+        text = _whole_lines(fh, rows)
     # line ends at the end of the text: the line end of its last row, or blank lines at the
     # end of the file (pandas skips both)
     text = text.rstrip(b"\r\n")
@@ -667,6 +667,25 @@ def _first_chunk_compiled(path, d, rows, colmap):
         return None
     buf = np.frombuffer(text, dtype=np.uint8)
     return _numcsv.parse_chunk(buf, len(text), opts["sep"], opts["decimal"], colmap)
+
+
+def _whole_lines(fh, rows: int, piece_bytes: int = 1 << 20) -> bytes:
+    """The next ``rows`` lines of ``fh`` (fewer at the end of the file), each with its line
+    end, as ``rows`` calls of ``readline`` give them; read in large pieces."""
+    parts, found = [], 0
+    while found < rows:
+        piece = fh.read(piece_bytes)
+        if not piece:
+            break
+        k = piece.count(b"\n")
+        if found + k >= rows:  # the rows-th line end is in this piece
+            ends = np.flatnonzero(np.frombuffer(piece, dtype=np.uint8) == 10)
+            parts.append(piece[:int(ends[rows - found - 1]) + 1])
+            found = rows
+            break
+        parts.append(piece)
+        found += k
+    return b"".join(parts)
 
 
 def _avg_row_bytes(path, d) -> float:
