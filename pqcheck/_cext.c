@@ -540,12 +540,17 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
 /* 1 when every one of the n values is finite (neither NaN nor infinite), else 0. */
 EXPORT int pq_all_finite(const double *x, int64_t n)
 {
+    /* finite: the exponent bits are not all ones (NaN and infinities have them all set) */
+    const uint64_t expo = 0x7FF0000000000000ULL;
     const int64_t step = 1024;
     for (int64_t lo = 0; lo < n; lo += step) {
         int64_t hi = lo + step < n ? lo + step : n;
-        int bad = 0;
-        for (int64_t i = lo; i < hi; i++)
-            bad |= !(fabs(x[i]) <= 1.7976931348623157e308);
+        uint64_t bad = 0;
+        for (int64_t i = lo; i < hi; i++) {
+            uint64_t b;
+            memcpy(&b, x + i, 8);
+            bad |= ((b & expo) == expo);
+        }
         if (bad)
             return 0;
     }

@@ -494,8 +494,10 @@ def analyze(
                 if acc is None:
                     acc = _Accumulator(chans, max_order, state["resolved"], il_a, pairs,
                                        volt_abc, curr_abc, neutral)
+                # every block so far was finite: the span need not be checked again
                 job = (work, b, dict(max_line=state["max_line"], offset=off, pairs=pairs,
-                                     combos=combos, halves=halves),
+                                     combos=combos, halves=halves,
+                                     finite=True if not nonfinite.any() else None),
                        (cycles, max_order, state["resolved"], state["ref"], state["tracked"]))
                 spans.submit(job)
                 bounds_all.append(b[1:])

@@ -375,6 +375,7 @@ def analyse_windows(
     harmonic_step: int | None = None,
     halves=None,
     compiled: bool | None = None,
+    finite: bool | None = None,
 ) -> WindowBlock:
     """Synchronous DFT of each window: resampled to its exact span, then transformed.
 
@@ -405,6 +406,9 @@ def analyse_windows(
         harmonic still falls on its line; without them, uniformly in time. [samples]
     compiled : bool or None
         Resample with the compiled loop (default when available) or the NumPy definition.
+    finite : bool or None
+        True when the caller has already checked that every sample is finite (the check is
+        then not repeated); None checks.
 
     Returns
     -------
@@ -436,7 +440,7 @@ def analyse_windows(
         compiled = _compiled.available()  # resolved here, before any thread starts
     # the C loops: every sample finite (checked in one pass), statistics in one pass below
     native = _compiled.window_stats() if compiled and samples.flags.c_contiguous else None
-    fused = native is not None and native[0](samples)
+    fused = native is not None and (finite is True or native[0](samples))
     if fused:
         x = samples
         valid[:] = i_hi > i_lo
