@@ -60,7 +60,8 @@ def _load():
     lib.pq_count_lines.argtypes = [ctypes.c_void_p, _I64]
     lib.pq_parse.restype = _I64
     lib.pq_parse.argtypes = [ctypes.c_void_p, _I64, ctypes.c_int, ctypes.c_int,
-                             ctypes.POINTER(_I64), _I64, _D, _I64, _I64, _I64, _D]
+                             ctypes.POINTER(_I64), _I64, _D, _I64, _I64, _I64, _D,
+                             ctypes.c_void_p]
     lib.pq_all_finite.restype = ctypes.c_int
     lib.pq_all_finite.argtypes = [_D, _I64]
     _P64 = ctypes.POINTER(_I64)
@@ -163,9 +164,35 @@ def count(buf, n: int) -> int:
     return int(kernels().pq_count_lines(buf.ctypes.data, int(n)))
 
 
+def _powers_of_ten_128() -> np.ndarray:
+    """128-bit mantissas of 10^e, e = -348 .. 347, truncated (rounded down), as pairs (low
+    64 bits, high 64 bits) in a uint64 array: ``10^e ~ M 2^(floor(e log2 10) - 127)`` with
+    ``2^127 <= M < 2^128`` (the table of the Eisel-Lemire conversion in ``_cext.c``; exact
+    integer arithmetic here)."""
+    if "pow10_128" not in _LIB:
+        rows = []
+        for e in range(-348, 348):
+            if e >= 0:
+                p = 10**e
+                bl = p.bit_length()
+                m = p >> (bl - 128) if bl > 128 else p << (128 - bl)
+            else:
+                p = 10**-e
+                m = (1 << (p.bit_length() + 127)) // p
+            rows.append((m & 0xFFFFFFFFFFFFFFFF, m >> 64))
+        _LIB["pow10_128"] = np.array(rows, dtype=np.uint64).ravel()
+    return _LIB["pow10_128"]
+
+
 def parse(buf, n: int, sep: int, dec: int, colmap, out, pow10) -> int:
     """:func:`pqcheck.readers._numcsv._parse_py` in C: rows parsed into the float64 array
-    ``out`` (rows, columns; any strides that are whole elements), or -1."""
+    ``out`` (rows, columns; any strides that are whole elements), or -1.
+
+    One addition to the Python form: a number outside Clinger's fast path (a mantissa of
+    2^53 or more, as in a full-precision export's 17 significant digits, or a power of ten
+    beyond 10^22) is converted by the Eisel-Lemire method, correctly rounded (what Python's
+    ``float()`` gives), where the Python form refuses the lines; where that method cannot
+    decide (a tie, a subnormal, an overflow) the C refuses them too."""
     if n > buf.size:
         raise ValueError("parse: n beyond the buffer")
     colmap = np.ascontiguousarray(colmap, dtype=np.int64)
@@ -177,4 +204,5 @@ def parse(buf, n: int, sep: int, dec: int, colmap, out, pow10) -> int:
     rs, cs = (s // 8 for s in out.strides)
     return int(kernels().pq_parse(buf.ctypes.data, int(n), int(sep), int(dec),
                                   colmap.ctypes.data_as(ctypes.POINTER(_I64)), colmap.size,
-                                  _dp(out), out.shape[0], rs, cs, _dp(pow10)))
+                                  _dp(out), out.shape[0], rs, cs, _dp(pow10),
+                                  _powers_of_ten_128().ctypes.data))

@@ -136,9 +136,84 @@ def test_native_parser_equals_python_definition(rows, crlf, skip):
     b = np.full((width, lines), -7.0).T  # column by column, as the streaming reader asks
     ra = _native.parse(buf, len(text), ord(","), ord("."), colmap, a, _numcsv._POW10)
     rb = _numcsv._parse_py(buf, len(text), ord(","), ord("."), colmap, b, _numcsv._POW10)
+    if rb < 0 and ra >= 0:
+        # the C converts what the Python form leaves to pandas (mantissas of 2^53 or more,
+        # powers beyond 10^22): then every cell must be what Python's float() makes of it
+        want = _float_rows(text.decode(), colmap, width)
+        assert want is not None, text
+        assert ra == len(want)
+        np.testing.assert_array_equal(a[:ra], want)
+        return
     assert ra == rb
     if ra >= 0:
         np.testing.assert_array_equal(a[:ra], b[:ra])  # NaN == NaN here, bit for bit else
+
+
+def _float_rows(text, colmap, width):
+    """Reference table of plain numeric text: each cell through Python's float() (correctly
+    rounded), NaN for the NA spellings and for the fields a short row lacks; None where a
+    cell is neither."""
+    out = []
+    for line in text.replace("\r\n", "\n").split("\n"):
+        row = np.full(width, np.nan)
+        for f, cell in enumerate(line.split(",")):
+            if colmap[f] < 0:
+                continue
+            if cell in ("", "nan", "-nan", "NaN", "-NaN", "NAN"):  # empty: NaN too
+                continue
+            try:
+                row[colmap[f]] = float(cell.strip(" \t"))
+            except ValueError:
+                return None
+        out.append(row)
+    return np.array(out)
+
+
+_exact = st.floats(allow_nan=False, allow_infinity=False, width=64)
+
+
+@needs_native
+@settings(max_examples=400, deadline=None)
+@given(vals=st.lists(_exact, min_size=1, max_size=8),
+       style=st.sampled_from(["r", ".17g", ".17e", ".16e", ".20f"]))
+def test_native_parser_full_precision_equals_float(vals, style):
+    # reference: Python's float() of each printed number, bit for bit (correctly rounded);
+    # the C may refuse (a subnormal, a tie it cannot decide, more than 18 digits), never
+    # differ
+    cells = [repr(v) if style == "r" else format(v, style) for v in vals]
+    text = ",".join(cells).encode()
+    buf = np.frombuffer(text, dtype=np.uint8)
+    out = np.full((1, len(cells)), -7.0)
+    r = _native.parse(buf, len(text), 44, 46, np.arange(len(cells)), out, _numcsv._POW10)
+    if r >= 0:
+        assert r == 1
+        got = out[0].view(np.uint64)
+        want = np.array([float(c) for c in cells]).view(np.uint64)
+        np.testing.assert_array_equal(got, want)
+
+
+@needs_native
+def test_native_parser_converts_full_precision_exports():
+    # a full-precision export (pandas' to_csv, repr: up to 17 significant digits) is read
+    # by the C parser itself, not handed to pandas: reference, Python's float()
+    rng = np.random.default_rng(2)
+    vals = np.concatenate([rng.normal(0, 300, 3000), rng.normal(0, 1e-3, 3000),
+                           rng.uniform(-1e300, 1e300, 1000), rng.uniform(-1e-300, 1e-300, 1000)])
+    cells = [repr(float(v)) for v in vals]
+    cells += ["1.7976931348623157e308", "2.2250738585072014e-308", "18014398509481985",
+              "123456789012345678", "1e-300", "4.9406564584124654e-300"]
+    text = "\n".join(cells).encode()
+    buf = np.frombuffer(text, dtype=np.uint8)
+    out = np.full((len(cells), 1), -7.0)
+    r = _native.parse(buf, len(text), 44, 46, np.arange(1), out, _numcsv._POW10)
+    assert r == len(cells)
+    np.testing.assert_array_equal(out[:, 0].view(np.uint64),
+                                  np.array([float(c) for c in cells]).view(np.uint64))
+    # a subnormal, overflows, 19 digits, an exact tie (2^53 + 1): left to pandas
+    for refused in ("5e-324", "1e309", "1.8e308", "1234567890123456789", "9007199254740993"):
+        b = np.frombuffer(refused.encode(), dtype=np.uint8)
+        assert _native.parse(b, b.size, 44, 46, np.arange(1), np.empty((1, 1)),
+                             _numcsv._POW10) == -1, refused
 
 
 @needs_native

@@ -19,8 +19,11 @@ numbers accurately", PLDI). The result is the correctly rounded float64, bit for
 Python's ``float()`` gives; pandas' own converter is within one unit in the last place of it.
 
 The loop runs in C (:mod:`pqcheck._native`, a direct port of :func:`_parse_py`) where the
-extension was built, else compiled by numba; either releases the GIL, so chunks are parsed
-on threads beside the analysis.
+extension was built, else compiled by numba. The C form also converts the numbers outside
+the fast path that full-precision exports write (17 significant digits: a mantissa above
+2^53) by the Eisel-Lemire method (Lemire 2021), again correctly rounded, and refuses only
+what that method cannot decide; the Python and numba forms refuse them all. Either form
+releases the GIL, so chunks are parsed on threads beside the analysis.
 ``PQCHECK_NO_JIT=1`` (or numba missing) makes :func:`available` False, and the streaming
 reader uses pandas throughout. The plain-Python definitions stay beside the compiled ones
 (the tests run both).

@@ -435,7 +435,7 @@ def _compiled_tables(spec: dict):
                     return
                 yield _d.checked_columns(table, d, path).T
             else:
-                # every number it converts is below 2^53 * 10^22 in magnitude: no infinity
+                # it converts no number to infinity (it refuses an overflow): all finite
                 yield _d.checked_columns(table, d, path, by_column=True, finite=True)
             lines_before += lines
             first = False
