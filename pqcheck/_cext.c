@@ -345,38 +345,59 @@ static inline uint64_t load8(const uint8_t *p)
     return v;
 }
 
-static const uint64_t POW10_U[8] = {1, 10, 100, 1000, 10000, 100000, 1000000, 10000000};
+static const uint64_t POW10_U[9] = {1, 10, 100, 1000, 10000, 100000, 1000000, 10000000,
+                                     100000000};
 
-/* The integer and fraction digits at buf[*i] when each run is shorter than eight and the
- * bytes are in the buffer: the same mantissa and digit counts as scan_digits gives (at most
- * 14 digits, so no digit is dropped). Returns 0, touching nothing, otherwise. */
+/* The digit run at buf[*j], eight bytes at a time, appended to *m; *k counts the digits
+ * (integer and fraction together). Returns 0, touching nothing, where a load would pass
+ * the buffer or the digits exceed 18 (the byte loop then decides, with its counting of
+ * significant digits). */
+static inline int digit_run_fast(const uint8_t *buf, int64_t n, int64_t *j, uint64_t *m,
+                                 int *k)
+{
+    int64_t p = *j;
+    uint64_t acc = *m;
+    int total = *k;
+    for (;;) {
+        if (p + 8 > n)
+            return 0;
+        uint64_t v = load8(buf + p);
+        int r = digit_run8(v);
+        acc = acc * POW10_U[r] + digits_value8(v, r);
+        total += r;
+        p += r;
+        if (total > 18)
+            return 0;
+        if (r < 8)
+            break;
+    }
+    *j = p;
+    *m = acc;
+    *k = total;
+    return 1;
+}
+
+/* The integer and fraction digits at buf[*i] when there are at most 18 of them and the bytes
+ * are in the buffer: the same mantissa and digit counts as scan_digits gives (with at most
+ * 18 digits in all no digit is dropped). Returns 0, touching nothing, otherwise. */
 static inline int digits_fast(const uint8_t *buf, int64_t n, int dec, int64_t *i,
                               uint64_t *mant, int64_t *ndig, int64_t *e10)
 {
     int64_t j = *i;
-    if (j + 8 > n)
+    uint64_t m = 0;
+    int k = 0;
+    if (!digit_run_fast(buf, n, &j, &m, &k))
         return 0;
-    uint64_t v = load8(buf + j);
-    int k1 = digit_run8(v);
-    if (k1 == 8)
-        return 0;
-    uint64_t m = digits_value8(v, k1);
-    j += k1;
-    int k2 = 0;
+    int k1 = k;
     if (j < n && buf[j] == dec) {
-        if (j + 9 > n)
+        j++;
+        if (!digit_run_fast(buf, n, &j, &m, &k))
             return 0;
-        uint64_t w = load8(buf + j + 1);
-        k2 = digit_run8(w);
-        if (k2 == 8)
-            return 0;
-        m = m * POW10_U[k2] + digits_value8(w, k2);
-        j += 1 + k2;
     }
     *i = j;
     *mant = m;
-    *ndig = k1 + k2;
-    *e10 = -k2;
+    *ndig = k;
+    *e10 = -(int64_t)(k - k1);
     return 1;
 }
 #endif
