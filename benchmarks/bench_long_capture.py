@@ -6,6 +6,7 @@ Run on demand (never part of the unit tests):
     python benchmarks/bench_long_capture.py                # 60 s and 10 min captures
     python benchmarks/bench_long_capture.py --scaling      # adds a 40 min capture (memory growth)
     python benchmarks/bench_long_capture.py --repeat 5 --durations 60
+    python benchmarks/bench_long_capture.py --digits full  # values at 17 significant digits
 
 What is measured, each in a fresh process, interleaved over the repetitions, medians reported:
 
@@ -54,8 +55,11 @@ the resampling is the identity)."""
 EXPECTED_THD = 100 * np.sqrt(0.2**2 + 0.1**2)
 
 
-def generate(path: Path, seconds: float) -> None:
-    """Write a 7-column three-phase capture (time, ia, ib, ic, va, vb, vc)."""
+def generate(path: Path, seconds: float, full: bool = False) -> None:
+    """Write a 7-column three-phase capture (time, ia, ib, ic, va, vb, vc): rounded as a
+    scope prints (3 and 2 decimals), or with ``full`` every value at full precision (the
+    shortest text that reads back as the same float64: up to 17 significant digits, as a
+    simulator or ``pandas.to_csv`` writes them)."""
     import pyarrow as pa
     import pyarrow.csv as pc
 
@@ -71,10 +75,12 @@ def generate(path: Path, seconds: float) -> None:
             for k, ph in enumerate("abc"):
                 th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
                 i = 141.4 * (np.sin(th) + 0.2 * np.sin(5 * th) + 0.1 * np.sin(7 * th))
-                cols[f"i{ph} [A]"] = np.round(i + rng.normal(0, 0.05, n), 3)
+                i = i + rng.normal(0, 0.05, n)
+                cols[f"i{ph} [A]"] = i if full else np.round(i, 3)
             for k, ph in enumerate("abc"):
                 th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
-                cols[f"v{ph} [V]"] = np.round(325.3 * np.sin(th) + rng.normal(0, 0.1, n), 2)
+                v = 325.3 * np.sin(th) + rng.normal(0, 0.1, n)
+                cols[f"v{ph} [V]"] = v if full else np.round(v, 2)
             table = pa.table(cols)
             if writer is None:
                 writer = pc.CSVWriter(sink, table.schema,
@@ -270,20 +276,23 @@ def main(argv=None) -> int:
     ap.add_argument("--scaling", action="store_true",
                     help="also run a capture 4x the longest, to see memory growth")
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--digits", choices=["scope", "full"], default="scope",
+                    help="values rounded as a scope prints them (default), or at full "
+                         "precision (17 significant digits)")
     ap.add_argument("--workdir", type=Path, default=None,
                     help="where to write the generated captures (default: a temporary folder)")
     args = ap.parse_args(argv)
     durations = list(args.durations)
     if args.scaling:
         durations.append(4 * max(durations))
-    print(f"machine: {machine()}")
+    print(f"machine: {machine()}; values: {args.digits} precision")
     with tempfile.TemporaryDirectory(dir=args.workdir) as tmp:
         tmp = Path(tmp)
         rows = []
         for seconds in durations:
             path = tmp / f"capture-{int(seconds)}s.csv"
             t0 = time.perf_counter()
-            generate(path, seconds)
+            generate(path, seconds, full=args.digits == "full")
             size = path.stat().st_size / 1e6
             print(f"\n{seconds:g} s capture: {size:.0f} MB (generated in "
                   f"{time.perf_counter() - t0:.1f} s)")
