@@ -432,3 +432,60 @@ def test_whole_lines_reads_as_readline(lines, tail, rows, piece):
     want = b"".join(ref.readline() for _ in range(rows))
     got = stream._whole_lines(io.BufferedReader(io.BytesIO(data), 64), rows, piece)
     assert got == want
+
+
+@pytest.mark.parametrize("tail", ["", "quoted"])
+def test_streamed_hash_is_the_files_sha256(tail, tmp_path, monkeypatch):
+    # reference: hashlib.sha256 of the file's bytes, comment lines before the header
+    # included. The compiled path hashes the bytes it reads, also around a chunk it refuses
+    import hashlib
+
+    text = "# exported by a bench recorder\n# second comment line\n" + _stream_text(
+        "milli-units", 40_000)
+    if tail == "quoted":  # one cell of a late row in quotes (pandas reads it as the number)
+        lines = text.split("\n")
+        k = 3 * len(lines) // 4
+        first, rest = lines[k].split(",", 1)
+        lines[k] = f'"{first}",{rest}'
+        text = "\n".join(lines)
+    path = tmp_path / "cap.csv"
+    path.write_text(text)
+    want = hashlib.sha256(path.read_bytes()).hexdigest()
+    monkeypatch.setattr(stream, "CHUNK_ROWS", 4096)
+    fell_back = []
+    real = stream.FedHash.result
+    monkeypatch.setattr(stream.FedHash, "result",
+                        lambda self: fell_back.append(not self._done) or real(self))
+    cap = open_capture(path, stream_over_bytes=1000)
+    assert isinstance(cap, CaptureStream)
+    for _ in cap.blocks(4096):
+        pass
+    assert cap.provenance.sha256 == want
+    # hashed from the bytes the reader read: a chunk the compiled parser refuses (the quote)
+    # is parsed by pandas from the same bytes; only a chunk pandas cannot parse alone sends
+    # the rest of the file to pandas, and then the file is hashed (test below)
+    assert fell_back == [False]
+
+
+def test_fed_hash_falls_back_and_cancels(tmp_path):
+    # reference: hashlib.sha256 of the same bytes
+    import hashlib
+
+    from pqcheck.readers import FedHash
+
+    path = tmp_path / "f.bin"
+    path.write_bytes(b"abc" * 1000)
+    h = FedHash(path)
+    for k in range(0, 3000, 7):
+        h.feed(memoryview(b"abc" * 1000)[k:k + 7])
+    h.complete()
+    assert h.result() == hashlib.sha256(b"abc" * 1000).hexdigest()
+    part = FedHash(path)  # fed only part of the file: the file itself is hashed
+    part.feed(b"abc")
+    assert part.result() == hashlib.sha256(path.read_bytes()).hexdigest()
+    busy = FedHash(path)  # cancelled while pieces wait: the thread ends, nothing hangs
+    for _ in range(FedHash._DEPTH):
+        busy.feed(b"x" * 4096)
+    busy.cancel()
+    busy._thread.join(timeout=10)
+    assert not busy._thread.is_alive()

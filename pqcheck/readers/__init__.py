@@ -82,6 +82,71 @@ class BackgroundHash:
         self._stop.set()
 
 
+class FedHash:
+    """SHA-256 of a file from the bytes its reader reads anyway, hashed on a thread in the
+    order they are handed over: the file is not read a second time, and the bytes are hashed
+    while they are still in the processor's cache.
+
+    The reader calls :meth:`feed` with every byte of the file in order and :meth:`complete`
+    at its end; :meth:`result` gives the digest, or, where the reader stopped early or read
+    part of the file another way (a fallback parser), the :func:`capture_sha256` of the file
+    itself. :meth:`cancel` stops the thread (after an error elsewhere)."""
+
+    _DEPTH = 32
+    """Pieces waiting to be hashed, at most (each a few MB; the reader waits beyond that)."""
+
+    def __init__(self, path):
+        import queue
+        import threading
+
+        self._path = path
+        self._h = hashlib.sha256()
+        self._q = queue.Queue(self._DEPTH)
+        self._done = False
+        self._cancelled = False
+        self._thread = threading.Thread(target=self._run, daemon=True, name="pqcheck-hash")
+        self._thread.start()
+
+    def _run(self):
+        while True:
+            item = self._q.get()
+            if item is None:
+                return
+            if not self._cancelled:
+                self._h.update(item)
+
+    def feed(self, data) -> None:
+        """The next bytes of the file (any buffer; kept alive until hashed)."""
+        self._q.put(data)
+
+    def complete(self) -> None:
+        """Every byte of the file has been fed."""
+        self._done = True
+
+    def result(self) -> str:
+        """The hex digest (waits for the thread)."""
+        self._q.put(None)
+        self._thread.join()
+        if self._done and not self._cancelled:
+            return self._h.hexdigest()
+        return capture_sha256(self._path)
+
+    def cancel(self) -> None:
+        """Stop hashing (the digest is then not available)."""
+        import queue
+
+        self._cancelled = True
+        while True:  # the end mark, making room for it if the queue is full
+            try:
+                self._q.put_nowait(None)
+                return
+            except queue.Full:
+                try:
+                    self._q.get_nowait()
+                except queue.Empty:
+                    pass
+
+
 def capture_sha256(path, *, stop=None) -> str:
     """SHA-256 of a capture as its reader records it in the provenance (hex).
 

@@ -27,7 +27,7 @@ import numpy as np
 from ..capture import CaptureStream, Provenance
 from ..errors import CaptureFormatError
 from ..findings import Finding
-from . import BackgroundHash
+from . import BackgroundHash, FedHash
 from . import delimited as _d
 
 __all__ = ["stream_delimited", "NotStreamable"]
@@ -273,14 +273,18 @@ def _compiled_layout(d):
     return colmap
 
 
-def _byte_chunks(path, d, size: int):
+def _byte_chunks(path, d, size: int, hasher=None):
     """The data lines of the file as chunks of about ``size`` bytes ending on a line end:
     ``(buffer, bytes used, file offset [bytes], last)``. The first data row is found as the
     pandas path finds it (whole lines before it skipped); the last chunk has its trailing
-    line ends taken off (blank lines at the end, which pandas skips)."""
+    line ends taken off (blank lines at the end, which pandas skips). With ``hasher`` (a
+    :class:`pqcheck.readers.FedHash`) every byte read is handed to it, in file order, and
+    its ``complete`` is called once the end of the file is reached."""
     with open(path, "rb") as fh:
         for _ in range(d.data_line - 1):
-            fh.readline()
+            line = fh.readline()
+            if hasher is not None:
+                hasher.feed(line)
         offset = fh.tell()
         carry = b""
         while True:
@@ -292,8 +296,12 @@ def _byte_chunks(path, d, size: int):
                 got = fh.readinto(view[n:])
                 if not got:
                     break
+                if hasher is not None:
+                    hasher.feed(view[n:n + got])
                 n += got
             if n < buf.size:  # the end of the file
+                if hasher is not None:
+                    hasher.complete()
                 while n and buf[n - 1] in (10, 13):
                     n -= 1
                 if n:
@@ -406,7 +414,7 @@ def _compiled_tables(spec: dict):
     # pieces of a sixteenth of a block (4 MB at most): two in flight cost little memory, and
     # the table of each block is assembled from them in one copy (_exact_rows)
     size = int(min(4 << 20, max(1 << 18, spec["rows"] * spec["row_bytes"] / 16)))
-    source = _byte_chunks(path, d, size)
+    source = _byte_chunks(path, d, size, spec.get("hasher"))
     pool = ThreadPoolExecutor(max_workers=2, thread_name_prefix="pqcheck-parse")
     flight: deque = deque()
 
@@ -485,12 +493,15 @@ def _run_compiled(spec: dict, out: dict):
     same blocks and checks as :func:`_blocks_of_tables` on the pandas path."""
     path, d = spec["path"], spec["dialect"]
     t_idx, keep, scales, fs = spec["t_idx"], spec["keep"], spec["scales"], spec["fs"]
-    hasher = BackgroundHash(path)
+    # hashed from the bytes the parser reads (the file is read once); where the parser
+    # hands the rest of the file to pandas, the hash reads the file itself
+    hasher = FedHash(path)
     try:
         findings = []
         last_t = None
         row0 = 0
-        for tab, last in _pandas_blocks(_compiled_tables(spec), spec["rows"]):
+        for tab, last in _pandas_blocks(_compiled_tables(dict(spec, hasher=hasher)),
+                                        spec["rows"]):
             if last and _incomplete(tab[:, 0], t_idx, keep):
                 findings.append(_TRUNCATED)
                 break
