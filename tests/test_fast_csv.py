@@ -375,6 +375,15 @@ def _stream_text(kind: str, n: int = 3000) -> str:
     elif kind == "truncated-last-row":
         head = "time [s],ia [A],va [V]"
         body = [f"{a:.7f},{b},{c}" for a, b, c in rows] + [f"{n / FS:.7f},1.0"]
+    elif kind == "full-precision":  # as pandas.to_csv or a simulator writes: repr floats
+        head = "time_s,ia,va"
+        ua = 10 * np.sin(2 * np.pi * 50 * t) + 1e-3 * np.cos(2 * np.pi * 1234.5 * t)
+        uv = 325 * np.sin(2 * np.pi * 50 * t + 0.2) + 1e-2 * np.sin(2 * np.pi * 777.7 * t)
+        body = [f"{float(a)!r},{float(b)!r},{float(c)!r}" for a, b, c in zip(t, ua, uv)]
+    elif kind == "scientific-crlf":  # a scope's export: E notation, CRLF line ends
+        head = "Time [s],ia [A],va [V]"
+        body = [f"{a:.6E},{b:.6E},{c:.6E}" for a, b, c in rows]
+        return "\r\n".join([head, *body]) + "\r\n"
     else:  # plain, no time column: the sample rate is given
         head = "ia [A],va [V]"
         body = [f"{b},{c}" for a, b, c in rows]
@@ -392,7 +401,8 @@ def _blocks(path, monkeypatch, compiled: bool, rate):
 
 
 @pytest.mark.parametrize("kind", ["milli-units", "time-in-the-middle", "trailing-delimiter",
-                                  "gap", "truncated-last-row", "no-time-column"])
+                                  "gap", "truncated-last-row", "no-time-column",
+                                  "full-precision", "scientific-crlf"])
 def test_blocks_are_those_of_the_pandas_path(kind, tmp_path, monkeypatch):
     # reference: the pandas streaming path (pandas.read_csv in chunks); the compiled parser
     # must hand the analysis the same blocks (same cuts, same SI values within 1 ulp of
@@ -400,7 +410,13 @@ def test_blocks_are_those_of_the_pandas_path(kind, tmp_path, monkeypatch):
     path = tmp_path / f"{kind}.csv"
     path.write_text(_stream_text(kind, 80_000 if kind == "gap" else 3000))
     rate = FS if kind == "no-time-column" else None
-    fast, cap_fast = _blocks(path, monkeypatch, True, rate)
+    handed = []  # chunks the compiled parser refused and pandas read
+    real_chunk = stream._pandas_chunk
+    with monkeypatch.context() as m:
+        m.setattr(stream, "_pandas_chunk", lambda *a: handed.append(1) or real_chunk(*a))
+        fast, cap_fast = _blocks(path, monkeypatch, True, rate)
+    if kind in ("full-precision", "scientific-crlf"):
+        assert not handed  # read by the compiled parser itself, not by pandas
     slow, cap_slow = _blocks(path, monkeypatch, False, rate)
     assert [b.shape for b in fast] == [b.shape for b in slow]
     for f, s in zip(fast, slow):

@@ -154,7 +154,10 @@ def _float_rows(text, colmap, width):
     rounded), NaN for the NA spellings and for the fields a short row lacks; None where a
     cell is neither."""
     out = []
-    for line in text.replace("\r\n", "\n").split("\n"):
+    lines = text.replace("\r\n", "\n").split("\n")
+    if len(lines) > 1 and lines[-1] == "":  # the line end of the last row ends no new row
+        lines.pop()
+    for line in lines:
         row = np.full(width, np.nan)
         for f, cell in enumerate(line.split(",")):
             if colmap[f] < 0:

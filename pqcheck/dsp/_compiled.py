@@ -259,7 +259,6 @@ def phase_sums(x, mid, count, phi0: float, k_first: int, nz: int):
     return out
 
 
-
 def window_stats():
     """The C loops of :func:`pqcheck.dsp.spectrum._time_stats` (``(all_finite,
     window_stats)`` of :mod:`pqcheck._native`) when the extension is used, else None (numba
