@@ -505,3 +505,29 @@ def test_fed_hash_falls_back_and_cancels(tmp_path):
     busy.cancel()
     busy._thread.join(timeout=10)
     assert not busy._thread.is_alive()
+
+
+def test_abandoned_stream_leaves_no_reader_threads(tmp_path, monkeypatch):
+    # reference: threading.enumerate (Python's own list of live threads). The compiled path
+    # cuts blocks on a background thread ahead of the analysis; a consumer that stops after
+    # one block (an error in the analysis, Ctrl-C) must end that thread, the parser's pool
+    # and the hash thread, and the blocks it did get equal the pandas path's
+    import threading
+
+    path = tmp_path / "cap.csv"
+    path.write_text(_stream_text("milli-units", 60_000))
+    monkeypatch.setattr(stream, "CHUNK_ROWS", 4096)
+    before = {t.ident for t in threading.enumerate()}
+    cap = open_capture(path, stream_over_bytes=1000)
+    assert isinstance(cap, CaptureStream)
+    it = cap.blocks(4096)
+    first = next(it)
+    it.close()
+    for t in threading.enumerate():
+        if t.ident not in before:
+            t.join(timeout=10)
+    left = [t.name for t in threading.enumerate() if t.ident not in before and t.is_alive()]
+    assert left == []
+    monkeypatch.setattr(_numcsv, "available", lambda: False)  # the pandas path
+    ref = open_capture(path, stream_over_bytes=1000)
+    assert np.array_equal(first, next(iter(ref.blocks(4096))), equal_nan=True)
