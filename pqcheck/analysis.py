@@ -347,7 +347,7 @@ def analyze(
     20.0
     """
     require_channels(capture)
-    src = capture.provenance.source
+    src = capture.source
     path = src if src != "<memory>" else None
     if nominal_hz is not None and nominal_hz not in (50, 60):
         raise InputError(

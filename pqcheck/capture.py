@@ -120,6 +120,11 @@ class Capture:
     provenance: Provenance = Provenance()
     findings: tuple = ()
 
+    @property
+    def source(self) -> str:
+        """The capture's file (``provenance.source``)."""
+        return self.provenance.source
+
     def __post_init__(self):
         s = np.asarray(self.samples, dtype=np.float64)
         if s.ndim == 1:
@@ -327,6 +332,12 @@ class CaptureStream:
                 self._shared["provenance"], sha256=pending.result())
         return self._shared["provenance"]
 
+    @property
+    def source(self) -> str:
+        """The capture's file (``provenance.source``), without waiting for a SHA-256 still
+        being computed beside the reading."""
+        return self._shared["provenance"].source
+
     def hash_pending(self, hasher) -> None:
         """Take the SHA-256 from ``hasher`` (an object whose ``result()`` returns the hex
         digest, computing it on another thread) when :attr:`provenance` is first read."""
@@ -396,7 +407,8 @@ class CaptureStream:
 
     def with_channels(self, channels) -> CaptureStream:
         """Copy with other channel descriptions (same source)."""
-        other = CaptureStream(self.fs_hz, channels, self._factory, self.provenance,
+        # the shared state, not the provenance property: a pending hash is not waited for
+        other = CaptureStream(self.fs_hz, channels, self._factory, self._shared["provenance"],
                               self.findings, self.t0_s, self.n_samples_hint)
         other._shared = self._shared
         return other
@@ -488,7 +500,7 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
     given_current, given_voltage = current, voltage
     current = list(current or [])
     voltage = list(voltage or [])
-    src = capture.provenance.source
+    src = capture.source
     path = src if src != "<memory>" else None
     seen = set()
     for opt, names in (("current", current), ("voltage", voltage)):
@@ -533,7 +545,7 @@ def assign_roles(capture: Capture, *, current=None, voltage=None) -> Capture:
 def require_channels(capture: Capture) -> None:
     """Raise CaptureFormatError when no channel is a current or a voltage."""
     if not any(c.quantity in ("current", "voltage") for c in capture.channels):
-        src = capture.provenance.source
+        src = capture.source
         raise CaptureFormatError(
             "no current or voltage channel recognised among "
             f"{', '.join(capture.names) or '(none)'}; name them with `current` and `voltage`",

@@ -58,3 +58,31 @@ def test_truncated_npy_is_a_clear_error(tmp_path):
     with pytest.raises(CaptureFormatError, match=r"cut\.npy"):
         stream = open_capture(path)
         _all_blocks(stream, 1_024)
+
+
+def test_analysis_reads_blocks_while_the_file_is_hashed(tmp_path, monkeypatch):
+    # reference: hashlib.sha256 of the file (via capture_sha256). Without a result cache the
+    # digest is not needed before the analysis: the first block is read before the hash is
+    # waited for (the hash runs beside the analysis), and the recorded digest is the file's
+    from pqcheck import readers
+    from pqcheck.capture import CaptureStream
+    from pqcheck.run.check import analyze_file
+
+    path = tmp_path / "cap.npy"
+    t = np.arange(40_000) / 10_000
+    _write(path, np.column_stack([10 * np.sin(2 * np.pi * 50 * t),
+                                  325 * np.sin(2 * np.pi * 50 * t)]), ["ia", "va"])
+    events = []
+    real_result, real_blocks = readers.BackgroundHash.result, CaptureStream.blocks
+    monkeypatch.setattr(readers.BackgroundHash, "result",
+                        lambda self: events.append("hash") or real_result(self))
+
+    def blocks(self, *a, **k):
+        events.append("blocks")
+        return real_blocks(self, *a, **k)
+
+    monkeypatch.setattr(CaptureStream, "blocks", blocks)
+    cap, res = analyze_file(path, current=["ia"], voltage=["va"], cache=None, nominal_hz=50.0)
+    assert isinstance(cap, CaptureStream)
+    assert events.index("blocks") < events.index("hash")
+    assert res.sha256 == capture_sha256(path)

@@ -193,8 +193,10 @@ def _open_and_analyze(path, sample_rate_hz, current, voltage, time_column, cache
                            voltage=voltage, time_column=time_column, cache=cache,
                            encoding=encoding)
     key = None
-    sha = capture.provenance.sha256
     if cache is not None:
+        # the digest is needed before the analysis only to look the result up: without a
+        # cache, a hash running beside the reading (a binary capture) finishes during it
+        sha = capture.provenance.sha256
         key = {
             "analysis": {k: analysis_kwargs.get(k) for k in sorted(analysis_kwargs)},
             "channels": [(c.name, c.quantity, c.phase) for c in capture.channels],
