@@ -125,6 +125,11 @@ class Capture:
         """The capture's file (``provenance.source``)."""
         return self.provenance.source
 
+    @property
+    def sha256_known(self) -> str:
+        """The SHA-256 of the source (``provenance.sha256``; ``""`` when none)."""
+        return self.provenance.sha256
+
     def __post_init__(self):
         s = np.asarray(self.samples, dtype=np.float64)
         if s.ndim == 1:
@@ -338,9 +343,19 @@ class CaptureStream:
         being computed beside the reading."""
         return self._shared["provenance"].source
 
+    @property
+    def sha256_known(self) -> str:
+        """The SHA-256 if it is known without waiting (recorded, or a hash beside the reading
+        that has finished), else ``""``."""
+        pending = self._shared.get("hash")
+        if pending is not None and not pending.done():
+            return ""
+        return self.provenance.sha256
+
     def hash_pending(self, hasher) -> None:
         """Take the SHA-256 from ``hasher`` (an object whose ``result()`` returns the hex
-        digest, computing it on another thread) when :attr:`provenance` is first read."""
+        digest, computing it on another thread, and ``done()`` tells whether it has) when
+        :attr:`provenance` is first read."""
         self._shared["hash"] = hasher
 
     @provenance.setter

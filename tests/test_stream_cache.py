@@ -234,3 +234,41 @@ def test_code_fingerprint_covers_the_computing_modules():
     root = Path(cache.__file__).parent.parent
     for name in cache._CODE:
         assert (root / name).exists(), name
+
+
+def test_binary_cache_hit_without_hashing_and_miss_after_a_rewrite(tmp_path, monkeypatch):
+    # reference: hashlib.sha256 of the file (capture_sha256) and the first run's result. A
+    # binary capture is hashed beside its analysis; its digest is then recorded for the
+    # file's state, so the next run is served from the result cache without hashing, and a
+    # rewrite of the same size (other numbers) is analysed again, never given the old result
+    from pqcheck import readers
+
+    def write(scale):
+        t = np.arange(30_000) / FS
+        x = np.column_stack([scale * np.sin(2 * np.pi * 50 * t), 230 * np.sin(2 * np.pi * 50 * t)])
+        np.save(tmp_path / "cap.npy", x)
+        (tmp_path / "cap.json").write_text(json.dumps({"columns": ["ia", "va"],
+                                                        "sample_rate_hz": FS}))
+        return tmp_path / "cap.npy"
+
+    path = write(10.0)
+    cache = Cache(tmp_path / "cache")
+    _, r1 = analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    assert r1.sha256 == readers.capture_sha256(path)
+    hashed, analysed = [], []
+    real_hash = readers.BackgroundHash.__init__
+    monkeypatch.setattr(readers.BackgroundHash, "__init__",
+                        lambda self, p: hashed.append(p) or real_hash(self, p))
+    real_analyze = analyze
+    monkeypatch.setattr("pqcheck.run.check.analyze",
+                        lambda *a, **k: analysed.append(1) or real_analyze(*a, **k))
+    _, r2 = analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    assert hashed == [] and analysed == []  # from the cache, by the recorded digest
+    assert json.dumps(_summary(r1), sort_keys=True) == json.dumps(_summary(r2), sort_keys=True)
+    st = os.stat(path)
+    write(20.0)  # same shape and size, other numbers, the old modification time restored
+    os.utime(path, ns=(st.st_atime_ns, st.st_mtime_ns))
+    _, r3 = analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    assert analysed == [1] and len(hashed) == 1
+    assert r3.sha256 == readers.capture_sha256(path) != r1.sha256
+    assert r3.channels[0].rms == pytest.approx(2 * r1.channels[0].rms, rel=1e-9)

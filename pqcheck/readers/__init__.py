@@ -70,6 +70,10 @@ class BackgroundHash:
         except BaseException as exc:  # noqa: BLE001 - handed to the caller in result()
             self._out["error"] = exc
 
+    def done(self) -> bool:
+        """True once the hashing has ended (:meth:`result` then returns at once)."""
+        return not self._thread.is_alive()
+
     def result(self) -> str:
         """The hex digest (waits for the thread)."""
         self._thread.join()
@@ -295,8 +299,11 @@ def open_capture(
         from .binary import open_npy, open_parquet
 
         opener = open_npy if suffix == ".npy" else open_parquet
-        cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column, sha256="")
-        cap.hash_pending(BackgroundHash(p))  # hashed on a thread while the blocks are analysed
+        known = cache.known_sha256(p, reader_opts) if cache is not None else None
+        cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column,
+                     sha256=known or "")
+        if not known:  # hashed on a thread while the blocks are analysed
+            cap.hash_pending(BackgroundHash(p))
     elif looks_like_spice_raw(p):
         from .spice import read_spice_raw
 

@@ -194,9 +194,9 @@ def _open_and_analyze(path, sample_rate_hz, current, voltage, time_column, cache
                            encoding=encoding)
     key = None
     if cache is not None:
-        # the digest is needed before the analysis only to look the result up: without a
-        # cache, a hash running beside the reading (a binary capture) finishes during it
-        sha = capture.provenance.sha256
+        # a result is looked up by a digest known now (recorded for this file state, as for
+        # a CSV): a binary capture's hash, running beside the reading, is not waited for
+        sha = capture.sha256_known
         key = {
             "analysis": {k: analysis_kwargs.get(k) for k in sorted(analysis_kwargs)},
             "channels": [(c.name, c.quantity, c.phase) for c in capture.channels],
@@ -212,6 +212,13 @@ def _open_and_analyze(path, sample_rate_hz, current, voltage, time_column, cache
     if cache is not None and result.sha256:
         def save():
             cache.save_result(result.sha256, key, result)
+            if sha != result.sha256 and not isinstance(path, (list, tuple)):
+                # hashed during this run (a binary capture): recorded for the file's state,
+                # so that the next run finds its result without hashing
+                cache.remember_sha256(path, {"sample_rate_hz": sample_rate_hz,
+                                             "time_column": time_column,
+                                             **({"encoding": encoding} if encoding else {})},
+                                      result.sha256)
     return capture, result, save
 
 
