@@ -191,6 +191,61 @@ EXPORT int pq_resample(const double *x, int64_t c_n, int64_t n, const double *st
 }
 
 /* ------------------------------------------------------------------------------------ */
+/* Cycle sums of the tracker's first pass (pqcheck.dsp.tracking._cycle_sums_numpy)        */
+/* ------------------------------------------------------------------------------------ */
+
+/* out (2 (n_edges - 1), re and im interleaved) <- the sums of y = x exp(j omega k) between
+ * successive fractional positions edges (non-decreasing), as the NumPy form computes them:
+ * the phasor of sample k is coarse[k / p] fine[k % p] (two tables of exp(j omega k), built
+ * by NumPy), the cumulative sum S(i) = y_0 + ... + y_(i-1) runs in sample order, and the sum
+ * up to a position e is S(i) + (e - floor e) y_min(i, n-1), i = floor e clipped to [0, n].
+ * One pass, no temporaries. Returns 0, or -1 when the edges decrease. */
+static inline void phasor_sample(const double *x, const double *fine, const double *coarse,
+                                 int64_t p, int64_t k, double *yr, double *yi)
+{
+    const double *c = coarse + 2 * (k / p), *f = fine + 2 * (k % p);
+    double rr = c[0] * f[0] - c[1] * f[1];
+    double ri = c[0] * f[1] + c[1] * f[0];
+    *yr = x[k] * rr;
+    *yi = x[k] * ri;
+}
+
+EXPORT int pq_cycle_sums(const double *x, int64_t n, const double *fine, int64_t p,
+                         const double *coarse, const double *edges, int64_t n_edges,
+                         double *out)
+{
+    double sr = 0.0, si = 0.0, pr = 0.0, pi_ = 0.0;
+    int64_t k = 0;
+    for (int64_t e = 0; e < n_edges; e++) {
+        double fl = floor(edges[e]);
+        double frac = edges[e] - fl;
+        int64_t i = fl < 0.0 ? 0 : (fl > (double)n ? n : (int64_t)fl);
+        if (i < k)
+            return -1;
+        for (; k < i; k++) {
+            double yr, yi;
+            phasor_sample(x, fine, coarse, p, k, &yr, &yi);
+            sr += yr;
+            si += yi;
+        }
+        double ar = sr, ai = si;
+        if (n > 0) {
+            double yr, yi;
+            phasor_sample(x, fine, coarse, p, i < n ? i : n - 1, &yr, &yi);
+            ar = sr + frac * yr;
+            ai = si + frac * yi;
+        }
+        if (e > 0) {
+            out[2 * (e - 1)] = ar - pr;
+            out[2 * (e - 1) + 1] = ai - pi_;
+        }
+        pr = ar;
+        pi_ = ai;
+    }
+    return 0;
+}
+
+/* ------------------------------------------------------------------------------------ */
 /* Phase sums of the tracker (pqcheck.dsp._compiled._phase_sums_py)                       */
 /* ------------------------------------------------------------------------------------ */
 

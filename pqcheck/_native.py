@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 __all__ = ["kernels", "resample_into", "phase_sums_into", "parse", "count", "has_avx2",
-           "all_finite", "window_stats"]
+           "all_finite", "window_stats", "cycle_sums"]
 
 _LIB: dict = {}
 _LOCK = threading.Lock()
@@ -68,6 +68,8 @@ def _load():
     lib.pq_window_stats.restype = None
     lib.pq_window_stats.argtypes = [_D, _I64, _I64, _P64, _P64, _I64, _P64, _P64, _I64, _D,
                                     _D, _D, _D]
+    lib.pq_cycle_sums.restype = ctypes.c_int
+    lib.pq_cycle_sums.argtypes = [_D, _I64, _D, _I64, _D, _D, _I64, _D]
     lib.pq_has_avx2.restype = ctypes.c_int
     lib.pq_has_avx2.argtypes = []
     return lib
@@ -155,6 +157,27 @@ def window_stats(x, lo, hi, pa, pb):
                               n_win, pa.ctypes.data_as(p64), pb.ctypes.data_as(p64), n_p,
                               _dp(sm), _dp(sq), _dp(pk), _dp(pr))
     return sm, sq, pk, pr
+
+
+def cycle_sums(x, fine, coarse, edges):
+    """:func:`pqcheck.dsp.tracking._cycle_sums_numpy` of ``x * phasor`` in C: the complex
+    sums of ``x`` (float64, ``(n,)``) times the phasor ``coarse[k // p] * fine[k % p]``
+    (complex128 tables, ``p = fine.size``, covering ``n``) between successive positions
+    ``edges`` (non-decreasing); shape ``(edges.size - 1,)``."""
+    x, edges = _f64(x), _f64(edges)
+    fine = np.ascontiguousarray(fine, dtype=np.complex128)
+    coarse = np.ascontiguousarray(coarse, dtype=np.complex128)
+    if x.ndim != 1 or fine.size == 0 or coarse.size * fine.size < x.size:
+        raise ValueError("cycle_sums: the phasor tables do not cover x")
+    out = np.empty(max(edges.size - 1, 0), dtype=np.complex128)
+    if edges.size == 0:
+        return out
+    rc = kernels().pq_cycle_sums(_dp(x), x.size, _dp(fine.view(np.float64)), fine.size,
+                                 _dp(coarse.view(np.float64)), _dp(edges), edges.size,
+                                 _dp(out.view(np.float64)))
+    if rc:
+        raise ValueError("cycle_sums: the edges decrease")
+    return out
 
 
 def count(buf, n: int) -> int:

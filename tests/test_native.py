@@ -337,3 +337,55 @@ def test_fused_window_statistics_equal_numpy_in_the_analysis(monkeypatch):
     for name in ("rms", "dc", "peak", "p_w", "v_ll_rms", "i_n_rms", "component"):
         a, b = np.asarray(getattr(fast.windows, name)), np.asarray(getattr(slow.windows, name))
         assert np.nanmax(np.abs(a - b)) <= 1e-9 * np.nanmax(np.abs(b)), name
+
+
+@needs_native
+@settings(max_examples=40, deadline=None)
+@given(n=st.integers(1, 20_000), start=st.floats(-3.0, 50.0), length=st.floats(0.5, 700.0),
+       f=st.floats(-0.2, 0.2), seed=st.integers(0, 2**31 - 1))
+def test_native_cycle_sums_equal_numpy(n, start, length, f, seed):
+    # reference: the NumPy definition (_cycle_sums_numpy of x times the phasor, a cumulative
+    # sum read at fractional positions), edges also before the first and past the last sample
+    from pqcheck.dsp import tracking
+
+    rng = np.random.default_rng(seed)
+    x = rng.normal(0, 100, size=n)
+    edges = start + length * np.arange(max(2, int((n + 5 - start) / length) + 2))
+    omega = 2 * np.pi * f
+    fast = tracking._demodulated_sums(x, omega, edges, compiled=True)
+    slow = tracking._demodulated_sums(x, omega, edges, compiled=False)
+    assert fast.shape == slow.shape == (edges.size - 1,)
+    scale = np.abs(x).sum() + 1.0
+    np.testing.assert_allclose(fast, slow, rtol=0, atol=1e-13 * scale)
+
+
+@needs_native
+def test_native_cycle_sums_refuse_what_they_cannot_read():
+    x = np.ones(100)
+    fine, coarse = np.ones(64, complex), np.ones(1, complex)
+    with pytest.raises(ValueError, match="do not cover"):
+        _native.cycle_sums(x, fine, coarse, [0.0, 10.0])
+    with pytest.raises(ValueError, match="decrease"):
+        _native.cycle_sums(x, np.ones(128, complex), coarse, [10.0, 5.0])
+
+
+@needs_native
+def test_compiled_tracking_equals_numpy_tracking():
+    # reference: the NumPy forms of both tracking passes (compiled=False); a drifting
+    # fundamental with harmonics, noise and a few missing samples
+    from pqcheck.dsp import tracking
+
+    fs = 12_345.0
+    t = np.arange(int(4.0 * fs)) / fs
+    phase = 2 * np.pi * (49.6 * t + 0.05 * t**2)
+    rng = np.random.default_rng(3)
+    x = 325 * np.sin(phase) + 9 * np.sin(5 * phase) + rng.normal(0, 0.5, t.size)
+    x[20_000:20_007] = np.nan
+    fast = tracking.window_boundaries(x, fs, 50.0, 17.25, 10, offset=3, final=True,
+                                      compiled=True)
+    slow = tracking.window_boundaries(x, fs, 50.0, 17.25, 10, offset=3, final=True,
+                                      compiled=False)
+    assert fast.boundaries.size == slow.boundaries.size > 10
+    np.testing.assert_allclose(fast.boundaries, slow.boundaries, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(fast.halves, slow.halves, rtol=0, atol=1e-9)
+    assert fast.amplitude == pytest.approx(slow.amplitude, rel=1e-12)

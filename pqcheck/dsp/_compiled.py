@@ -93,6 +93,7 @@ def _build() -> dict:
     if _native.kernels() is not None:
         return {"resample": _native.resample_into, "phase_sums": _native.phase_sums_into,
                 "all_finite": _native.all_finite, "window_stats": _native.window_stats,
+                "cycle_sums": _native.cycle_sums,
                 "backend": "native"}
     try:
         import numba
@@ -266,3 +267,12 @@ def window_stats():
     if not available() or "window_stats" not in _KERNELS:
         return None
     return _KERNELS["all_finite"], _KERNELS["window_stats"]
+
+
+def cycle_sums():
+    """The C loop of the tracker's first pass (:func:`pqcheck._native.cycle_sums`) when the
+    extension is used, else None (numba has no form of it: its callers keep the NumPy one,
+    :func:`pqcheck.dsp.tracking._cycle_sums_numpy`)."""
+    if not available() or "cycle_sums" not in _KERNELS:
+        return None
+    return _KERNELS["cycle_sums"]

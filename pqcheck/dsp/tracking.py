@@ -129,6 +129,7 @@ def window_boundaries(
     *,
     offset: int = 0,
     final: bool = False,
+    compiled: bool | None = None,
 ) -> TrackResult:
     """Find the edges of synchronous windows in a block of the reference channel.
 
@@ -149,6 +150,9 @@ def window_boundaries(
     final : bool, optional
         The block is the end of the record: the last windows may end up to half a cycle after
         the last full tracking cycle (extrapolated at the last measured frequency).
+    compiled : bool or None, optional
+        Run the sums as compiled loops (default when available) or as their NumPy
+        definitions; the two agree to rounding.
 
     Returns
     -------
@@ -165,7 +169,8 @@ def window_boundaries(
     """
     x = np.asarray(x, dtype=np.float64)
     missing = ~np.isfinite(x)
-    x = np.where(missing, 0.0, x)
+    if missing.any():
+        x = np.where(missing, 0.0, x)
     L = fs_hz / f_demod_hz
     local0 = start - offset
     n_cyc = int(np.floor((x.size - local0) / L + 1e-9))
@@ -174,8 +179,7 @@ def window_boundaries(
         return empty
     # pass 1: cycles of the demodulation frequency
     edges = local0 + L * np.arange(n_cyc + 1)
-    rot = _phasor(-2 * np.pi * f_demod_hz / fs_hz, x.size)
-    z = _cycle_sums(x * rot, edges)
+    z = _demodulated_sums(x, -2 * np.pi * f_demod_hz / fs_hz, edges, compiled)
     mag = np.abs(z) * (np.sqrt(2) / L)  # rms of the fundamental per cycle
     amp = float(np.median(mag))
     total_rms = float(np.sqrt(np.mean(x**2))) if x.size else 0.0
@@ -191,7 +195,8 @@ def window_boundaries(
     head = tail = slice(0, mid.size)
     if not weak and mid.size >= 3:
         for _ in range(PASSES):  # each pass leaves about the previous model's error squared
-            mid2, model, raw2, bad2 = _second_pass(x, missing, mid, count, amp, local0)
+            mid2, model, raw2, bad2 = _second_pass(x, missing, mid, count, amp, local0,
+                                                   compiled=compiled)
             if mid2.size < 3 or np.max(np.abs(raw2 - model)) > MAX_CORRECTION:
                 break  # no steady phase to refine (noise, no mains): keep what there is
             mid, raw_count = mid2, raw2
@@ -230,7 +235,21 @@ def window_boundaries(
     return TrackResult(boundaries, bool(weak), amp, halves + offset)
 
 
-def _cycle_sums(y, edges):
+def _demodulated_sums(x, omega: float, edges, compiled=None):
+    """Sums of ``x exp(j omega k)`` (``k`` the sample index) between successive fractional
+    positions ``edges``: the C loop (:func:`pqcheck._native.cycle_sums`, one pass and no
+    temporaries) when available, else the NumPy definition (:func:`_cycle_sums_numpy`); the
+    phasor comes from the same two tables (:func:`_phasor_tables`) in both."""
+    from . import _compiled
+
+    fine, coarse = _phasor_tables(omega, x.size)
+    native = _compiled.cycle_sums() if compiled is not False else None
+    if native is not None and x.size and np.all(np.diff(edges) >= 0):
+        return native(x, fine, coarse, edges)
+    return _cycle_sums_numpy(x * _phasor(omega, x.size, (fine, coarse)), edges)
+
+
+def _cycle_sums_numpy(y, edges):
     """Sums of ``y`` between successive fractional positions ``edges``."""
     csum = np.empty(y.size + 1, dtype=y.dtype)
     csum[0] = 0.0
@@ -525,11 +544,18 @@ def _cum_at(csum, y, pos):
     return csum[i] + frac * y[np.minimum(i, y.size - 1)]
 
 
-def _phasor(omega: float, n: int) -> np.ndarray:
-    """``exp(1j * omega * arange(n))`` from two short tables (one complex multiply per sample
-    instead of a complex exponential)."""
+def _phasor_tables(omega: float, n: int):
+    """The two short tables of :func:`_phasor`: ``fine[k] = exp(1j omega k)`` for ``k < p``
+    and ``coarse[r] = exp(1j omega p r)`` for the rows covering ``n`` samples."""
     p = 4096
     rows = -(-n // p)
     fine = np.exp(1j * omega * np.arange(p))
     coarse = np.exp(1j * omega * p * np.arange(rows))
+    return fine, coarse
+
+
+def _phasor(omega: float, n: int, tables=None) -> np.ndarray:
+    """``exp(1j * omega * arange(n))`` from two short tables (one complex multiply per sample
+    instead of a complex exponential): sample ``k`` is ``coarse[k // p] * fine[k % p]``."""
+    fine, coarse = _phasor_tables(omega, n) if tables is None else tables
     return (coarse[:, None] * fine[None, :]).ravel()[:n]
