@@ -567,13 +567,9 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                         if (i > start)
                             return -1; /* a blank cell */
                     } else {
-                        int neg = 0;
-                        if (c == 45) {
-                            neg = 1;
-                            i++;
-                        } else if (c == 43) {
-                            i++;
-                        }
+                        /* branch-free: the signs of a waveform's samples are random */
+                        int neg = c == 45;
+                        i += neg | (c == 43);
                         uint64_t mant = 0;
                         int64_t nsig = 0, ndig = 0, e10 = 0;
 #ifdef PQ_SWAR
@@ -632,8 +628,12 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                             val = (double)mant * pow10[e10];
                         else
                             val = (double)mant / pow10[-e10];
-                        if (neg)
-                            val = -val;
+                        {
+                            uint64_t bits;
+                            memcpy(&bits, &val, 8);
+                            bits ^= (uint64_t)neg << 63;
+                            memcpy(&val, &bits, 8);
+                        }
                     }
                 }
                 orow[col * cs] = val;
