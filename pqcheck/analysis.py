@@ -690,7 +690,9 @@ class _SpanPipeline:
     @staticmethod
     def _run(job):
         work, b, kw, reduce_args = job
-        return _reduce_block(analyse_windows(work, b, **kw), *reduce_args)
+        # the lines of a span are reduced at once, on the same thread: they may live in the
+        # thread's reused buffer
+        return _reduce_block(analyse_windows(work, b, reuse=True, **kw), *reduce_args)
 
     def submit(self, job) -> None:
         """Compute ``job`` (arguments of :func:`analyse_windows` and :func:`_reduce_block`),

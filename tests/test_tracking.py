@@ -105,3 +105,37 @@ def test_single_window_harmonics_of_rectifier_and_square_currents(kind, fs):
     for h, a in amps.items():
         if h <= 49:
             assert c.harmonic_rms[h] == pytest.approx(a, rel=2e-3), f"order {h}"
+
+
+def test_reused_line_buffer_gives_the_fresh_arrays_lines():
+    # reference: analyse_windows without reuse (fresh NaN-filled lines) and the closed-form
+    # definition of harmonic_groupings (lines padded with NaN, cumulative sums): a span
+    # analysed into the thread's reused buffer, after a span that filled it with other
+    # values, has the same lines (NaN where the window has no line: at 5 kS/s a 10-cycle
+    # window resampled to M points has M / 2 + 1 lines, about 504, fewer than the 511
+    # kept), and the same groups
+    from pqcheck.dsp.spectrum import analyse_windows, harmonic_groupings
+
+    fs = 5_000.0
+    t = np.arange(int(fs * 2.0)) / fs
+    rng = np.random.default_rng(2)
+    x = 100 * np.cos(2 * np.pi * 49.7 * t) + 3 * np.cos(2 * np.pi * 7 * 49.7 * t)
+    y = x + rng.normal(0, 1.0, t.size)
+    tr = window_boundaries(x, fs, 50.0, 0.0, 10)
+    kw = dict(max_line=10 * 51, halves=tr.halves)
+    analyse_windows(rng.normal(size=(2, t.size)), tr.boundaries, reuse=True, **kw)  # fills it
+    reused = analyse_windows(y[None], tr.boundaries, reuse=True, **kw)
+    fresh = analyse_windows(y[None], tr.boundaries, **kw)
+    for w, m in enumerate(fresh.n_samples):
+        assert np.isfinite(fresh.lines[w, :, : m // 2 + 1]).all()
+        assert np.isnan(fresh.lines[w, :, m // 2 + 1:]).all() and m // 2 < 10 * 51
+    np.testing.assert_array_equal(reused.lines, fresh.lines)
+    g = harmonic_groupings(fresh.lines, 10, 50)
+    power = np.concatenate([np.abs(fresh.lines) ** 2, np.full(fresh.lines.shape[:-1] + (5,),
+                                                                np.nan)], axis=-1)
+    h = 7  # lines 65..75, the end ones at half weight (IEC 61000-4-7 harmonic group)
+    want = np.sqrt(power[..., 66:75].sum(-1) + 0.5 * (power[..., 65] + power[..., 75]))
+    np.testing.assert_allclose(g["group"][..., h], want, rtol=1e-12)
+    clean = harmonic_groupings(analyse_windows(x[None], tr.boundaries, reuse=True, **kw).lines,
+                               10, 50)
+    np.testing.assert_allclose(clean["group"][..., h], 3 / np.sqrt(2), rtol=1e-3)

@@ -376,6 +376,7 @@ def analyse_windows(
     halves=None,
     compiled: bool | None = None,
     finite: bool | None = None,
+    reuse: bool = False,
 ) -> WindowBlock:
     """Synchronous DFT of each window: resampled to its exact span, then transformed.
 
@@ -409,6 +410,11 @@ def analyse_windows(
     finite : bool or None
         True when the caller has already checked that every sample is finite (the check is
         then not repeated); None checks.
+    reuse : bool
+        The returned ``lines`` live in this thread's buffer, which the next call on the same
+        thread overwrites: for a caller that reduces each block before the next (the span
+        pipeline of :func:`pqcheck.analysis.analyze`), so that a span's lines do not cost
+        fresh memory (a page fault per 4 KiB, or a zeroed huge page) every time.
 
     Returns
     -------
@@ -419,7 +425,10 @@ def analyse_windows(
     n_ch, n_have = samples.shape
     n_win = b.size - 1
     combos = np.zeros((0, n_ch)) if combos is None else np.asarray(combos, dtype=np.float64)
-    lines = np.full((n_win, n_ch, max_line + 1), np.nan + 0j)
+    if reuse:  # every window's lines are written below, the unresolved ones as NaN
+        lines = _lines_buffer(n_win, n_ch, max_line + 1)
+    else:
+        lines = np.full((n_win, n_ch, max_line + 1), np.nan + 0j)
     gains = np.ones((n_win, max_line + 1), dtype=np.complex128)
     rms = np.full((n_win, n_ch), np.nan)
     peak = np.full((n_win, n_ch), np.nan)
@@ -505,6 +514,7 @@ def analyse_windows(
         scale[0] = 1.0 / m
         spec *= scale
         lines[sel, :, : k_keep + 1] = np.moveaxis(spec, 0, 1)
+        lines[sel, :, k_keep + 1:] = np.nan
 
     threads = 1 if workers == 1 else _threads()
     if threads > 1 and len(jobs) > 1:
@@ -519,6 +529,17 @@ def analyse_windows(
 
 
 _SCRATCH = threading.local()
+
+
+def _lines_buffer(n_win: int, n_ch: int, n_lines: int):
+    """This thread's buffer for the lines of one span, ``(n_win, n_ch, n_lines)`` complex
+    (see ``reuse`` of :func:`analyse_windows`); a view of the largest one so far."""
+    need = n_win * n_ch * n_lines
+    have = getattr(_SCRATCH, "lines", None)
+    if have is None or have.size < need:
+        have = np.empty(need, dtype=np.complex128)
+        _SCRATCH.lines = have
+    return have[:need].reshape(n_win, n_ch, n_lines)
 
 
 def _scratch(c_n: int, n_win: int, m: int):
@@ -685,13 +706,17 @@ def harmonic_groupings(lines, cycles_per_window: int, max_order: int, gain=None,
     N = int(cycles_per_window)
     H = int(max_order)
     lines = np.asarray(lines)
-    power = np.abs(lines) ** 2
-    pad = N * (H + 1) + N // 2 + 1 - power.shape[-1]
-    if pad > 0:
-        power = np.concatenate(
-            [power, np.full(power.shape[:-1] + (pad,), np.nan)], axis=-1
-        )
-    csum = np.concatenate([np.zeros(power.shape[:-1] + (1,)), np.cumsum(power, axis=-1)], axis=-1)
+    # |line|^2, padded with NaN up to the last line a group reads, and its cumulative sum
+    # with a leading zero: each written once into an array of its final size
+    n_have = lines.shape[-1]
+    width = max(n_have, N * (H + 1) + N // 2 + 1)
+    power = np.empty(lines.shape[:-1] + (width,))
+    np.abs(lines, out=power[..., :n_have])
+    np.square(power[..., :n_have], out=power[..., :n_have])
+    power[..., n_have:] = np.nan
+    csum = np.empty(lines.shape[:-1] + (width + 1,))
+    csum[..., 0] = 0.0
+    np.cumsum(power, axis=-1, out=csum[..., 1:])
 
     def span(lo, hi):  # sum of power over lines lo..hi inclusive (arrays of indices)
         return csum[..., hi + 1] - csum[..., lo]
