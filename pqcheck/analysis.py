@@ -17,6 +17,7 @@ from . import metrics, quality
 from .capture import Capture, require_channels
 from .dsp.spectrum import GUARD, analyse_windows, harmonic_groupings
 from .dsp.tracking import coarse_frequency, detect_nominal, window_boundaries
+from .dsp.tracking import median as tracking_median
 from .errors import AnalysisError, InputError
 from .findings import Finding
 
@@ -503,7 +504,7 @@ def analyze(
                 bounds_all.append(b[1:])
                 f_new = cycles * fs / np.diff(b)
                 if state["tracked"] and np.all(np.isfinite(f_new)):
-                    state["f_demod"] = float(np.median(f_new))
+                    state["f_demod"] = tracking_median(f_new)
                 start = float(b[-1])
                 keep_from = max(0, int(np.floor(start)) - GUARD - buf_start)
                 buf = buf[:, keep_from:]

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.signal import savgol_filter
 
 from pqcheck.analysis import analyze
@@ -139,3 +141,18 @@ def test_reused_line_buffer_gives_the_fresh_arrays_lines():
     clean = harmonic_groupings(analyse_windows(x[None], tr.boundaries, reuse=True, **kw).lines,
                                10, 50)
     np.testing.assert_allclose(clean["group"][..., h], 3 / np.sqrt(2), rtol=1e-3)
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.floats(-1e6, 1e6, allow_nan=False), min_size=1, max_size=60),
+       st.booleans())
+def test_tracker_median_equals_numpy_median(values, with_nan):
+    # reference: numpy.median (the same value, bit for bit; NaN when any value is NaN)
+    from pqcheck.dsp.tracking import median
+
+    a = np.array(values)
+    if with_nan:
+        a[len(a) // 2] = np.nan
+    want = float(np.median(a))
+    got = median(a)
+    assert (np.isnan(got) and np.isnan(want)) or got == want
