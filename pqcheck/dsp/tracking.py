@@ -540,16 +540,23 @@ def _smooth_counts(count):
     out = np.empty_like(count)
     half = n // 2
     out[half:-half] = np.convolve(count, _SG, mode="valid")
-    k = np.arange(n, dtype=np.float64)
-    for sl, pos in ((slice(0, n), slice(0, half)), (slice(count.size - n, count.size),
-                                                    slice(n - half, n))):
-        coef = np.polyfit(k, count[sl], 2)
-        edge = np.polyval(coef, k)
-        if pos.start == 0:
-            out[:half] = edge[:half]
-        else:
-            out[-half:] = edge[pos]
+    # the quadratic least-squares fit to the first (last) n points, evaluated at them: the
+    # fixed projection _SG_HAT applied to them (what numpy.polyfit and polyval give)
+    out[:half] = _SG_HAT[:half] @ count[:n]
+    out[-half:] = _SG_HAT[n - half:] @ count[count.size - n:]
     return out
+
+
+def _hat(n: int) -> np.ndarray:
+    """Projection onto quadratics at ``n`` equally spaced points (the least-squares fit of a
+    quadratic, evaluated at the same points): ``V (V^T V)^-1 V^T``, ``V`` the Vandermonde
+    matrix of ``0 .. n-1`` centred on the middle point (well conditioned)."""
+    u = np.arange(n, dtype=np.float64) - (n - 1) / 2
+    v = np.vander(u, 3)
+    return v @ np.linalg.solve(v.T @ v, v.T)
+
+
+_SG_HAT = _hat(SMOOTH_CYCLES)
 
 
 def _cum_at(csum, y, pos):
