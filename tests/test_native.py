@@ -389,3 +389,17 @@ def test_compiled_tracking_equals_numpy_tracking():
     np.testing.assert_allclose(fast.boundaries, slow.boundaries, rtol=0, atol=1e-9)
     np.testing.assert_allclose(fast.halves, slow.halves, rtol=0, atol=1e-9)
     assert fast.amplitude == pytest.approx(slow.amplitude, rel=1e-12)
+
+
+@needs_native
+@pytest.mark.parametrize("taps,cutoff", [(16, 0.31), (24, 0.45), (216, 0.495)])
+def test_native_kaiser_sinc_equals_numpy(taps, cutoff):
+    # reference: numpy.sinc and numpy.i0 (the NumPy form of the kernel's taps), offsets
+    # including 0 (sinc 1) and the window's ends (square-root argument 0)
+    half = taps // 2
+    beta = 0.1102 * (spectrum.STOPBAND_DB - 8.7)
+    u = np.concatenate([np.linspace(-half, half, 20_001), [0.0, -half, half, 1e-300]])
+    fast = _native.kaiser_sinc(u, cutoff, beta, half)
+    slow = spectrum._kaiser_sinc_numpy(u, cutoff, beta, half)
+    np.testing.assert_allclose(fast, slow, rtol=1e-13, atol=2e-15)  # near the zeros of sinc
+    assert fast[-4] == pytest.approx(2 * cutoff, rel=1e-15) == slow[-4]
