@@ -289,3 +289,23 @@ def test_cover_ends_on_page_one_with_its_cautions(report, tmp_path, site_words):
     assert "not a certification" in pages[0]
     assert "hazardous voltages" in " ".join(pages[0].split())
     assert pages[1].lstrip().startswith("1 Summary")
+
+
+def test_capture_id_in_the_exceeded_table_is_not_split_inside_a_word(tmp_path):
+    # a capture named as exports are ("charger-b-fullload.csv"): in the "Limits exceeded"
+    # table its id may break after one of its hyphens, never inside a word as a too-narrow
+    # column did ("charger-b-fullloa" / "d"); pypdf gives each cell's lines as lines
+    cap = write_capture(tmp_path / "charger-b-fullload.csv", six_pulse())
+    out = tmp_path / "r.pdf"
+    res = CliRunner().invoke(main, ["report", str(cap), *LIMIT_ARGS, "-o", str(out),
+                                    "--no-cache"])
+    assert res.exit_code == 1, res.output
+    pages = [p.extract_text() or "" for p in pypdf.PdfReader(str(out)).pages]
+    summary = next(p for p in pages if "Limits exceeded" in p)
+    lines = [ln.strip() for ln in summary.split("Limits exceeded", 1)[1].splitlines()]
+    name = "charger-b-fullload"
+    parts = [ln for ln in lines if ln and (name.startswith(ln) or name.endswith(ln))
+             and ln != name]
+    whole = [ln for ln in lines if ln == name]
+    assert len(whole) + len(parts) // 2 >= 3  # the id on every failing row
+    assert all(p.endswith("-") or name.endswith("-" + p) for p in parts), parts[:4]

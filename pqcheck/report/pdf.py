@@ -979,7 +979,9 @@ def _check_rows_table(b: _Builder, triples, phases=None) -> None:
                      *_value_cells(b, r, c), _verdict_para(b, c.verdict),
                      _source_mark(c) or "verified"])
         extra += _verdict_style(8, len(rows) - 1, c.verdict)
-    b.add(b.table(rows, [0.11, 0.12, 0.07, 0.09, 0.1, 0.08, 0.1, 0.09, 0.12, 0.12],
+    # the capture column holds a capture id such as "kestrel-dc1-full" on one line (or broken
+    # after its hyphens), not split inside a word
+    b.add(b.table(rows, [0.14, 0.12, 0.07, 0.08, 0.10, 0.08, 0.08, 0.09, 0.12, 0.12],
                   right=(4, 5, 7), extra_style=extra))
 
 
@@ -1275,8 +1277,9 @@ def _harmonic_table(b: _Builder, run, lim, group, what, statistic, unit, *,
         rows.append(row)
         extra += _verdict_style(len(row) - 2, len(rows) - 1, worst or "")
     n = len(chans)
-    room = 1.0 - 0.06 - 0.08 - 0.16 - 0.13  # order, limit, verdict, source of the limit
-    widths = ([0.06, 0.08] + [room / (2 * n) * 1.05, room / (2 * n) * 0.95] * n
+    # order (wide enough for its bold heading on one line), limit, verdict, source
+    room = 1.0 - 0.07 - 0.08 - 0.16 - 0.13
+    widths = ([0.07, 0.08] + [room / (2 * n) * 1.05, room / (2 * n) * 0.95] * n
               + [0.16, 0.13])
     mult = {c.multiplier for c in group}
     times = (f" Limits shown are {numfmt.given(mult.pop())} \u00d7 the table's values, as its "

@@ -275,7 +275,10 @@ def styles() -> dict:
     st = {"body": base}
     st["small"] = ParagraphStyle("small", parent=base, fontSize=7.4, leading=9.6)
     st["muted"] = ParagraphStyle("muted", parent=st["small"], textColor=MUTED)
-    st["cell"] = ParagraphStyle("cell", parent=base, fontSize=7.4, leading=9.2, spaceAfter=0)
+    # a word too long for its cell (a capture id such as "charger-b-fullload") breaks after
+    # one of its own hyphens rather than inside a word
+    st["cell"] = ParagraphStyle("cell", parent=base, fontSize=7.4, leading=9.2, spaceAfter=0,
+                                embeddedHyphenation=1)
     st["cell_r"] = ParagraphStyle("cell_r", parent=st["cell"], alignment=TA_RIGHT)
     st["cell_b"] = ParagraphStyle("cell_b", parent=st["cell"], fontName=FONT_BOLD)
     st["cell_head"] = ParagraphStyle("cell_head", parent=st["cell"], fontName=FONT_BOLD,
