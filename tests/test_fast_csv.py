@@ -535,3 +535,35 @@ def test_abandoned_stream_leaves_no_reader_threads(tmp_path, monkeypatch):
     monkeypatch.setattr(_numcsv, "available", lambda: False)  # the pandas path
     ref = open_capture(path, stream_over_bytes=1000)
     assert np.array_equal(first, next(iter(ref.blocks(4096))), equal_nan=True)
+
+
+def test_prefetch_thread_ends_when_the_consumer_stops_with_the_queue_full():
+    # reference: threading (the thread's own liveness). A consumer that stops while the
+    # queue is full and the producer has reached its end must not leave the producer blocked
+    # on the hand-over of the end (or of an error)
+    import threading
+    import time
+
+    closed = []
+
+    def produce(fail):
+        try:
+            yield from range(2)  # the last item fills the queue, then the end waits
+            if fail:
+                raise ValueError("late error")
+        finally:
+            closed.append(threading.current_thread().name)
+
+    for fail in (False, True):
+        before = {t.ident for t in threading.enumerate()}
+        it = stream._prefetch(produce(fail), depth=1)
+        assert next(it) == 0
+        time.sleep(0.5)  # the producer fills the queue and waits to hand over the rest
+        t0 = time.perf_counter()
+        it.close()
+        assert time.perf_counter() - t0 < 2.0
+        new = [t for t in threading.enumerate() if t.ident not in before]
+        for t in new:
+            t.join(timeout=2)
+        assert not any(t.is_alive() for t in new)
+    assert closed == ["pqcheck-parse", "pqcheck-parse"]  # closed on the producer's thread

@@ -622,20 +622,25 @@ def _prefetch(iterator, depth: int = 2):
     stop = threading.Event()
     done = object()
 
+    def put(entry) -> bool:
+        """Hand ``entry`` over, unless the consumer has stopped (a full queue then stays
+        full: never block on it)."""
+        while not stop.is_set():
+            try:
+                q.put(entry, timeout=0.1)
+                return True
+            except queue.Full:
+                continue
+        return False
+
     def work():
         try:
             for item in iterator:
-                while not stop.is_set():
-                    try:
-                        q.put(("item", item), timeout=0.1)
-                        break
-                    except queue.Full:
-                        continue
-                if stop.is_set():
+                if not put(("item", item)):
                     return
-            q.put(("end", done))
+            put(("end", done))
         except BaseException as exc:  # handed to the consumer
-            q.put(("error", exc))
+            put(("error", exc))
         finally:
             # a generator closed here, on the thread that runs it: its own clean-up (parser
             # pool, hash thread) is done before the consumer's join returns
