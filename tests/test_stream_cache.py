@@ -272,3 +272,24 @@ def test_binary_cache_hit_without_hashing_and_miss_after_a_rewrite(tmp_path, mon
     assert analysed == [1] and len(hashed) == 1
     assert r3.sha256 == readers.capture_sha256(path) != r1.sha256
     assert r3.channels[0].rms == pytest.approx(2 * r1.channels[0].rms, rel=1e-9)
+
+
+def test_binary_cache_misses_when_only_the_side_car_changes(tmp_path):
+    # reference: the side-car's own sample rate (a user correcting a wrong rate in the .json
+    # beside an unchanged .npy) and numpy's rms of the samples. The recorded digest covers
+    # the array and its side-car, so an edited side-car must not bring back the result
+    # analysed with the old rate
+    t = np.arange(40_000) / 10_000
+    x = np.column_stack([10 * np.sin(2 * np.pi * 50 * t), 230 * np.sin(2 * np.pi * 50 * t)])
+    npy = tmp_path / "cap.npy"
+    np.save(npy, x)
+    side = tmp_path / "cap.json"
+    side.write_text(json.dumps({"columns": ["ia", "va"], "sample_rate_hz": 20_000}))  # wrong
+    cache = Cache(tmp_path / "cache")
+    _, r1 = analyze_file(npy, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    assert r1.fs_hz == 20_000
+    side.write_text(json.dumps({"columns": ["ia", "va"], "sample_rate_hz": 10_000}))  # fixed
+    _, r2 = analyze_file(npy, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    assert r2.fs_hz == 10_000
+    assert r2.sha256 != r1.sha256
+    assert r2.channels[0].fundamental_rms == pytest.approx(10 / np.sqrt(2), rel=1e-6)

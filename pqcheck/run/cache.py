@@ -200,23 +200,32 @@ class Cache:
 
     # ---- fingerprints -------------------------------------------------------------------
     def _fp_path(self, path, reader_opts: dict) -> Path:
-        p = Path(path).resolve()
-        st = p.stat()
-        key = _key({"path": str(p), "size": st.st_size, "mtime": st.st_mtime_ns,
-                    "ctime": st.st_ctime_ns, "ino": st.st_ino, "dev": st.st_dev,
-                    "opts": reader_opts, "format": _FORMAT})
+        """The record of the state of every file the capture is read from (a ``.npy`` and its
+        side-car, as the digest covers both: an edited side-car is another capture)."""
+        from ..readers import capture_files
+
+        states = []
+        for f in capture_files(Path(path).resolve()):
+            st = Path(f).stat()
+            states.append({"path": str(f), "size": st.st_size, "mtime": st.st_mtime_ns,
+                           "ctime": st.st_ctime_ns, "ino": st.st_ino, "dev": st.st_dev})
+        key = _key({"files": states, "opts": reader_opts, "format": _FORMAT})
         return self.root / "fingerprints" / f"{key}.json"
 
     @staticmethod
     def _ends(path) -> str:
-        """SHA-256 of the first and last 64 KiB of the file: a cheap check of the content."""
+        """SHA-256 of the first and last 64 KiB of each file of the capture: a cheap check of
+        the content."""
+        from ..readers import capture_files
+
         h = hashlib.sha256()
-        with open(path, "rb") as fh:
-            h.update(fh.read(_ENDS))
-            size = os.fstat(fh.fileno()).st_size
-            if size > _ENDS:
-                fh.seek(max(_ENDS, size - _ENDS))
+        for f in capture_files(path):
+            with open(f, "rb") as fh:
                 h.update(fh.read(_ENDS))
+                size = os.fstat(fh.fileno()).st_size
+                if size > _ENDS:
+                    fh.seek(max(_ENDS, size - _ENDS))
+                    h.update(fh.read(_ENDS))
         return h.hexdigest()
 
     def known_sha256(self, path, reader_opts: dict) -> str | None:
