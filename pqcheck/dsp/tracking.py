@@ -244,10 +244,10 @@ def median(a) -> float:
     n = a.size
     if n == 0:
         return float("nan")
+    if np.isnan(a).any():
+        return float("nan")
     k = n // 2
     part = np.partition(a, (k - 1, k) if n % 2 == 0 else k)
-    if np.isnan(part[-1]) or np.isnan(a).any():  # partition puts NaN last
-        return float("nan")
     return float(part[k]) if n % 2 else float((part[k - 1] + part[k]) / 2)
 
 
