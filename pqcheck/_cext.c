@@ -53,9 +53,8 @@ static void window_rows(double s, double ln, double kap, int64_t m_pts, int64_t 
 }
 
 /* Kernel rows of successive points lie far apart in the table (the phase advances by a
- * fraction of a sample per point), so the hardware does not foresee them: each row is asked
- * for PQ_AHEAD points before it is used. */
-#define PQ_AHEAD 8
+ * fraction of a sample per point), so the hardware does not foresee them: the rows of a
+ * tile of points are all asked for before the tile is computed. */
 static inline void prefetch_row(const double *row, int64_t taps)
 {
     for (int64_t t = 0; t < taps; t += 8) /* one 64-byte line per 8 taps */
@@ -115,30 +114,57 @@ __attribute__((target("avx2"))) static inline double hsum_ordered(__m256d s)
     return _mm_cvtsd_f64(_mm_add_sd(p, _mm_unpackhi_pd(p, p)));
 }
 
-/* Points outer, channels inner: the kernel row of a point is read from memory once and
- * stays in L1 for every channel. */
+/* The four lanes l0+l4, l1+l5, l2+l6, l3+l7 of the dot product (see dot8_portable). */
+__attribute__((target("avx2"))) static inline __m256d dot8_lanes(const double *xp,
+                                                                  const double *wp,
+                                                                  int64_t taps)
+{
+    __m256d a = _mm256_mul_pd(_mm256_loadu_pd(xp), _mm256_loadu_pd(wp));
+    __m256d b = _mm256_mul_pd(_mm256_loadu_pd(xp + 4), _mm256_loadu_pd(wp + 4));
+    for (int64_t t = 8; t < taps; t += 8) {
+        a = _mm256_add_pd(a, _mm256_mul_pd(_mm256_loadu_pd(xp + t), _mm256_loadu_pd(wp + t)));
+        b = _mm256_add_pd(b, _mm256_mul_pd(_mm256_loadu_pd(xp + t + 4),
+                                           _mm256_loadu_pd(wp + t + 4)));
+    }
+    return _mm256_add_pd(a, b);
+}
+
+/* Points in tiles of PQ_TILE, channels inside a tile, points inside a channel. The channels
+ * of a block lie a power of two apart in memory (as do the rows of out), so a loop over the
+ * channels at each point touched a dozen streams that share the same cache sets; inside a
+ * tile each channel is one short contiguous run, and the tile's kernel rows (PQ_TILE x taps
+ * doubles) stay in L1 for every channel. */
+#ifndef PQ_TILE
+#define PQ_TILE 64
+#endif
 __attribute__((target("avx2"))) static void
 resample_avx2(const double *x, int64_t c_n, int64_t n, int64_t n_win, int64_t m_pts,
               int64_t taps, double *out, const int64_t *bases, const double **rows, int64_t w)
 {
     double *o0 = out + w * m_pts;
     const int64_t ostride = n_win * m_pts;
-    for (int64_t m = 0; m < m_pts; m++) {
-        const double *wp = rows[m];
-        const double *xp = x + bases[m];
-        double *op = o0 + m;
-        if (m + PQ_AHEAD < m_pts)
-            prefetch_row(rows[m + PQ_AHEAD], taps);
-        for (int64_t c = 0; c < c_n; c++, xp += n, op += ostride) {
-            __m256d a = _mm256_mul_pd(_mm256_loadu_pd(xp), _mm256_loadu_pd(wp));
-            __m256d b = _mm256_mul_pd(_mm256_loadu_pd(xp + 4), _mm256_loadu_pd(wp + 4));
-            for (int64_t t = 8; t < taps; t += 8) {
-                a = _mm256_add_pd(a, _mm256_mul_pd(_mm256_loadu_pd(xp + t),
-                                                   _mm256_loadu_pd(wp + t)));
-                b = _mm256_add_pd(b, _mm256_mul_pd(_mm256_loadu_pd(xp + t + 4),
-                                                   _mm256_loadu_pd(wp + t + 4)));
+    for (int64_t m0 = 0; m0 < m_pts; m0 += PQ_TILE) {
+        const int64_t m1 = m0 + PQ_TILE < m_pts ? m0 + PQ_TILE : m_pts;
+        for (int64_t m = m0; m < m1; m++) /* the tile's rows, read once from memory */
+            prefetch_row(rows[m], taps);
+        for (int64_t c = 0; c < c_n; c++) {
+            const double *xc = x + c * n;
+            double *oc = o0 + c * ostride;
+            int64_t m = m0;
+            for (; m + 4 <= m1; m += 4) { /* four points, their sums in one vector */
+                __m256d s[4];
+                for (int k = 0; k < 4; k++)
+                    s[k] = dot8_lanes(xc + bases[m + k], rows[m + k], taps);
+                /* hadd: (a0+a1, b0+b1, a2+a3, b2+b3); then the halves added: the order of
+                 * hsum_ordered for each point */
+                __m256d h01 = _mm256_hadd_pd(s[0], s[1]);
+                __m256d h23 = _mm256_hadd_pd(s[2], s[3]);
+                __m256d lo = _mm256_permute2f128_pd(h01, h23, 0x20);
+                __m256d hi = _mm256_permute2f128_pd(h01, h23, 0x31);
+                _mm256_storeu_pd(oc + m, _mm256_add_pd(lo, hi));
             }
-            *op = hsum_ordered(_mm256_add_pd(a, b));
+            for (; m < m1; m++)
+                oc[m] = hsum_ordered(dot8_lanes(xc + bases[m], rows[m], taps));
         }
     }
 }
@@ -582,6 +608,51 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                     i++;
                 }
             } else {
+#if PQ_X86 && defined(PQ_SWAR)
+                /* The common cell, [-]digits[.digits] ended by the delimiter or a line end
+                 * within 16 bytes: its digits, point and end found at once from one 16-byte
+                 * load (SSE2 byte masks), its value as the general path below computes it
+                 * (at most 8 + 8 digits, 14 in all, so Clinger's fast path holds), and the
+                 * character that ends it kept. The general path's chain of dependent
+                 * one-byte reads (NaN, blanks, sign, digits, end) set the speed of the whole
+                 * loop; here the next cell's position is known a few operations after the
+                 * load. */
+                if (i + 24 <= n) { /* every load below inside the buffer */
+                    __m128i v = _mm_loadu_si128((const __m128i *)(buf + i));
+                    __m128i dg = _mm_sub_epi8(v, _mm_set1_epi8('0'));
+                    unsigned dmask = (unsigned)_mm_movemask_epi8(
+                        _mm_cmpeq_epi8(_mm_max_epu8(dg, _mm_set1_epi8(9)), _mm_set1_epi8(9)));
+                    unsigned pmask = (unsigned)_mm_movemask_epi8(
+                        _mm_cmpeq_epi8(v, _mm_set1_epi8((char)dec)));
+                    unsigned emask = (unsigned)_mm_movemask_epi8(_mm_or_si128(
+                        _mm_cmpeq_epi8(v, _mm_set1_epi8((char)sep)),
+                        _mm_or_si128(_mm_cmpeq_epi8(v, _mm_set1_epi8(10)),
+                                     _mm_cmpeq_epi8(v, _mm_set1_epi8(13)))));
+                    int neg = buf[i] == 45 && sep != 45;
+                    unsigned nd = ~dmask; /* bits 16.. set: every run ends by bit 16 */
+                    int r1 = __builtin_ctz(nd >> neg);
+                    int p = neg + r1; /* the byte after the integer digits */
+                    int r2 = 0, q = p;
+                    if ((pmask >> p) & 1) {
+                        r2 = __builtin_ctz(nd >> (p + 1));
+                        q = p + 1 + r2;
+                    }
+                    if (r1 >= 1 && r1 <= 8 && r2 <= 8 && ((emask >> q) & 1)) {
+                        uint64_t mant = digits_value8(load8(buf + i + neg), r1);
+                        if (r2)
+                            mant = mant * POW10_U[r2] + digits_value8(load8(buf + i + p + 1), r2);
+                        double val = r2 ? (double)mant / pow10[r2] : (double)mant;
+                        uint64_t bits;
+                        memcpy(&bits, &val, 8);
+                        bits ^= (uint64_t)neg << 63;
+                        memcpy(&val, &bits, 8);
+                        orow[col * cs] = val;
+                        c = buf[i + q];
+                        i += q;
+                        goto field_end;
+                    }
+                }
+#endif
                 int64_t start = i;
                 double val = nan;
                 c = AT(i);
@@ -683,6 +754,9 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                 orow[col * cs] = val;
             }
             c = AT(i);
+#if PQ_X86 && defined(PQ_SWAR)
+        field_end:
+#endif
             if (c == sep) {
                 f++;
                 i++;

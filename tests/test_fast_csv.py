@@ -98,6 +98,41 @@ def test_plain_python_definition_matches_the_compiled_loop(rows):
         assert a.tobytes() == b.tobytes()
 
 
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.lists(_decimal(), min_size=3, max_size=3), min_size=2, max_size=12),
+       st.sampled_from(["\n", "\r\n"]))
+def test_long_texts_match_the_plain_python_definition(rows, eol):
+    # the C loop reads most cells 16 bytes at a time (a cell 24 bytes or more from the end of
+    # the text): reference, the plain-Python definition of the loop, and Python's float()
+    # where only the C form converts (Eisel-Lemire)
+    text = ("".join(",".join(r) + eol for r in rows) + ("1.5,-2,0" + eol) * 4).encode()
+    a, b = _parse(text, compiled=True), _parse(text, compiled=False)
+    if b is None and a is not None and _numcsv._KERNELS.get("backend") == "native":
+        want = np.array([[float(c) for c in r] for r in rows] + [[1.5, -2.0, 0.0]] * 4)
+        assert a.tobytes() == want.tobytes()
+        return
+    assert (a is None) == (b is None)
+    if a is not None:
+        assert a.tobytes() == b.tobytes()
+
+
+@pytest.mark.parametrize("cell", ["12.", "-0.000", "-0", "00000001.5", "12345678.12345678",
+                                  "-12345678.1234567", "123456789.1", "1.123456789", ".5",
+                                  "-.5", "1e5", "-2.5E-3", "7", "-99999999.99999999"])
+def test_cells_at_the_limits_of_the_16_byte_path(cell):
+    # reference: Python float(), bit for bit (signs of zero included); each cell far enough
+    # from the end of the text for the C loop's 16-byte path, at the start of a row, inside
+    # it and at its end, with either line end
+    for eol in ("\n", "\r\n"):
+        row = f"{cell},1,{cell}{eol}"
+        text = (row + f"2,{cell},3{eol}" + ("0,0,0" + eol) * 4).encode()
+        got = _parse(text)
+        assert got is not None, cell
+        want = np.array([[float(cell), 1.0, float(cell)], [2.0, float(cell), 3.0]]
+                        + [[0.0] * 3] * 4)
+        assert got.tobytes() == want.tobytes(), (cell, eol)
+
+
 def test_many_digits_and_large_powers_are_left_to_pandas():
     # outside the fast path the plain-Python form must not guess (the caller asks pandas);
     # the C form converts what the Eisel-Lemire method decides (reference: Python float())

@@ -39,8 +39,12 @@ def _windows(rng, c_n=4, n=40_000, n_win=6, taps_band=0.2):
 
 @needs_native
 @pytest.mark.parametrize("band", [0.05, 0.2, 0.45])
-def test_avx2_and_portable_resampling_give_the_same_bits(band):
+@pytest.mark.parametrize("points", [None, 4_001, 67, 3])
+def test_avx2_and_portable_resampling_give_the_same_bits(band, points):
+    # points: a window of points not a multiple of the AVX2 loop's tile (64) or of its
+    # four-point step, so that every remainder path is compared too
     x, starts, lengths, warp, kernel, m = _windows(np.random.default_rng(5), taps_band=band)
+    m = m if points is None else points
     a = np.empty((x.shape[0], starts.size, m))
     b = np.empty_like(a)
     _native.resample_into(x, starts, lengths, warp, kernel.table, kernel.half,
