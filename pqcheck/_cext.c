@@ -413,7 +413,7 @@ EXPORT int64_t pq_count_lines(const uint8_t *buf, int64_t n)
     return k;
 }
 
-/* A run of decimal digits from buf[*i]: the first 18 significant ones into *mant, all the
+/* A run of decimal digits from buf[*i]: the first 19 significant ones into *mant, all the
  * significant ones counted in *nsig (leading zeros are not significant); returns the number
  * of digits read. */
 static inline int64_t scan_digits(const uint8_t *buf, int64_t n, int64_t *i, uint64_t *mant,
@@ -428,7 +428,7 @@ static inline int64_t scan_digits(const uint8_t *buf, int64_t n, int64_t *i, uin
             break;
         if (m != 0 || d != 0) {
             s++;
-            if (s <= 18)
+            if (s <= 19) /* below 10^19 < 2^64 */
                 m = m * 10 + (uint64_t)d;
         }
     }
@@ -475,7 +475,7 @@ static const uint64_t POW10_U[9] = {1, 10, 100, 1000, 10000, 100000, 1000000, 10
 
 /* The digit run at buf[*j], eight bytes at a time, appended to *m; *k counts the digits
  * (integer and fraction together). Returns 0, touching nothing, where a load would pass
- * the buffer or the digits exceed 18 (the byte loop then decides, with its counting of
+ * the buffer or the digits exceed 19 (the byte loop then decides, with its counting of
  * significant digits). */
 static inline int digit_run_fast(const uint8_t *buf, int64_t n, int64_t *j, uint64_t *m,
                                  int *k)
@@ -491,7 +491,7 @@ static inline int digit_run_fast(const uint8_t *buf, int64_t n, int64_t *j, uint
         acc = acc * POW10_U[r] + digits_value8(v, r);
         total += r;
         p += r;
-        if (total > 18)
+        if (total > 19)
             return 0;
         if (r < 8)
             break;
@@ -502,9 +502,9 @@ static inline int digit_run_fast(const uint8_t *buf, int64_t n, int64_t *j, uint
     return 1;
 }
 
-/* The integer and fraction digits at buf[*i] when there are at most 18 of them and the bytes
+/* The integer and fraction digits at buf[*i] when there are at most 19 of them and the bytes
  * are in the buffer: the same mantissa and digit counts as scan_digits gives (with at most
- * 18 digits in all no digit is dropped). Returns 0, touching nothing, otherwise. */
+ * 19 digits in all no digit is dropped). Returns 0, touching nothing, otherwise. */
 static inline int digits_fast(const uint8_t *buf, int64_t n, int dec, int64_t *i,
                               uint64_t *mant, int64_t *ndig, int64_t *e10)
 {
@@ -573,6 +573,38 @@ static int eisel_lemire(uint64_t mant, int64_t e10, const uint64_t *tab, double 
         return 0; /* subnormal, or infinite */
     uint64_t bits = exp2 << 52 | (m & 0x000FFFFFFFFFFFFFULL);
     memcpy(out, &bits, 8);
+    return 1;
+}
+#endif
+
+#ifdef __SIZEOF_INT128__
+/* mant * 10^e10 (mant nonzero, all its digits given) where Eisel-Lemire leaves it undecided,
+ * which it does for every exact value and tie (2^-24 = 5.9604644775390625e-08, or
+ * 2^53 + 1): exactly, where it is an integer below 2^64 or mant divides by 5^-e10 (then it
+ * is q 2^e10 with q whole), the one rounding being the conversion of a whole uint64 to
+ * double (IEEE round to nearest, ties to even). Returns 0 otherwise, or where the value
+ * would be subnormal (a second rounding). */
+static int exact_value(uint64_t mant, int64_t e10, double *out)
+{
+    if (e10 >= 0) {
+        uint64_t v = mant;
+        for (int64_t k = 0; k < e10; k++)
+            if (__builtin_mul_overflow(v, (uint64_t)10, &v))
+                return 0;
+        *out = (double)v;
+        return 1;
+    }
+    if (e10 < -27) /* 5^27 < 2^64 < 5^28 */
+        return 0;
+    uint64_t p5 = 1;
+    for (int64_t k = 0; k < -e10; k++)
+        p5 *= 5;
+    if (mant % p5 != 0)
+        return 0;
+    double v = ldexp((double)(mant / p5), (int)e10);
+    if (v < 2.2250738585072014e-308)
+        return 0;
+    *out = v;
     return 1;
 }
 #endif
@@ -699,8 +731,11 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                                 e10 -= frac;
                             }
                         }
-                        if (ndig == 0 || nsig > 18)
+                        if (ndig == 0)
                             return -1;
+                        /* significant digits past the 19th are not in mant: the value lies
+                         * in [mant, mant + 1) x 10^(e10 + dropped) */
+                        int64_t dropped = nsig > 19 ? nsig - 19 : 0;
                         if (i < n && (buf[i] | 32) == 101) { /* e or E */
                             i++;
                             int eneg = 0;
@@ -729,13 +764,38 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                         c = AT(i);
                         if (!IS_END(c))
                             return -1;
+                        if (mant != 0 && !dropped &&
+                            (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL)) {
+                            /* outside Clinger's fast path: trailing zeros of the mantissa
+                             * (3.125000000000000000e-02, as numpy.savetxt writes 2^-5) into
+                             * the power of ten, the same value; exact values then take the
+                             * fast path, where Eisel-Lemire would call them undecided */
+                            while (mant % 10 == 0) {
+                                mant /= 10;
+                                e10++;
+                            }
+                        }
                         if (mant == 0)
                             val = 0.0;
-                        else if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL) {
+                        else if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL ||
+                                 dropped) {
 #ifdef __SIZEOF_INT128__
-                            /* outside Clinger's fast path: full-precision exports */
-                            if (pow10_128 == NULL || !eisel_lemire(mant, e10, pow10_128, &val))
+                            /* outside Clinger's fast path: full-precision exports (17 digits,
+                             * or numpy.savetxt's 19). With digits dropped, the value is the
+                             * one both ends of its interval round to, or undecided, as in
+                             * Lemire 2021 (from memory) */
+                            double hi;
+                            if (pow10_128 == NULL)
                                 return -1;
+                            if (dropped) {
+                                if (!eisel_lemire(mant, e10 + dropped, pow10_128, &val) ||
+                                    !eisel_lemire(mant + 1, e10 + dropped, pow10_128, &hi) ||
+                                    hi != val)
+                                    return -1;
+                            } else if (!eisel_lemire(mant, e10, pow10_128, &val) &&
+                                       !exact_value(mant, e10, &val)) {
+                                return -1;
+                            }
 #else
                             return -1;
 #endif

@@ -227,8 +227,11 @@ def parse(buf, n: int, sep: int, dec: int, colmap, out, pow10) -> int:
     One addition to the Python form: a number outside Clinger's fast path (a mantissa of
     2^53 or more, as in a full-precision export's 17 significant digits, or a power of ten
     beyond 10^22) is converted by the Eisel-Lemire method, correctly rounded (what Python's
-    ``float()`` gives), where the Python form refuses the lines; where that method cannot
-    decide (a tie, a subnormal, an overflow) the C refuses them too."""
+    ``float()`` gives), where the Python form refuses the lines. Where that method cannot
+    decide, an exact value or tie is converted exactly (whole below 2^64, or ``q 2^e`` with
+    ``q`` whole: numpy.savetxt's ``3.125000000000000000e-02``); more than 19 significant
+    digits are decided only where both ends of their interval round alike; the rest (a
+    subnormal, an overflow, 10^23) the C refuses too."""
     if n > buf.size:
         raise ValueError("parse: n beyond the buffer")
     colmap = np.ascontiguousarray(colmap, dtype=np.int64)

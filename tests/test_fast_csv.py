@@ -116,9 +116,30 @@ def test_long_texts_match_the_plain_python_definition(rows, eol):
         assert a.tobytes() == b.tobytes()
 
 
+@settings(max_examples=300, deadline=None)
+@given(st.floats(allow_nan=False, allow_infinity=False, min_value=-1e300, max_value=1e300),
+       st.sampled_from(["%.18e", "%.16e", "%.24e", "%.17g", "%r"]))
+def test_full_precision_exports_read_back_exactly(x, fmt):
+    # reference: Python float() of the text, bit for bit. numpy.savetxt writes %.18e
+    # (19 significant digits) by default, pandas and repr the shortest text (up to 17); a
+    # mantissa of at most 19 digits is exact, so those are always decided; past 19 digits
+    # the C form may leave a cell to pandas, never misread it
+    if x != 0 and abs(x) < 1e-300:
+        x = 0.0  # subnormals are left to pandas by design
+    cell = (repr(x) if fmt == "%r" else fmt % x)
+    text = (f"{cell},1\n" + "0,0\n" * 12).encode()
+    got = _parse(text)
+    if _numcsv._KERNELS.get("backend") != "native":
+        return  # the numba and Python forms leave long mantissas to pandas
+    if fmt == "%.24e" and got is None:
+        return
+    assert got is not None, cell
+    assert got[0, 0].tobytes() == np.float64(float(cell)).tobytes(), cell
+
+
 @pytest.mark.parametrize("cell", ["12.", "-0.000", "-0", "00000001.5", "12345678.12345678",
                                   "-12345678.1234567", "123456789.1", "1.123456789", ".5",
-                                  "-.5", "1e5", "-2.5E-3", "7", "-99999999.99999999"])
+                                  "-.5", "1e5", "-2.5E-3", "7", "-99999999.9999999"])
 def test_cells_at_the_limits_of_the_16_byte_path(cell):
     # reference: Python float(), bit for bit (signs of zero included); each cell far enough
     # from the end of the text for the C loop's 16-byte path, at the start of a row, inside
@@ -136,13 +157,19 @@ def test_cells_at_the_limits_of_the_16_byte_path(cell):
 def test_many_digits_and_large_powers_are_left_to_pandas():
     # outside the fast path the plain-Python form must not guess (the caller asks pandas);
     # the C form converts what the Eisel-Lemire method decides (reference: Python float())
-    # and refuses the rest: 19 digits, exact ties (2^53 + 1; 10^23 = 5^23 2^23 with 5^23 of
-    # 54 bits), an overflow
+    # and, where that method is undecided, what is exact (a tie such as 2^53 + 1, whole below
+    # 2^64; 2^-24 written out), and refuses the rest: 10^23 (a tie, = 5^23 2^23 with 5^23 of
+    # 54 bits, beyond 2^64), an overflow. 19 digits (numpy.savetxt's default) and more (the
+    # digits past the 19th decide only where both ends of their interval round alike) are
+    # the C form's too
     for cell in ["1234567890123456789", "9007199254740993", "1e23", "1.5e-23",
-                 "0.00000000000000000000001", "1e400"]:
+                 "0.00000000000000000000001", "1e400", "3.125000000000000000e-02",
+                 "6.928203230275502733e+01", "-5.849536599979372653e+01",
+                 "3.14159265358979323846264338327950288", "1.000000000000000000e+00",
+                 "5.960464477539062500e-08", "-1.110223024625156540e-16"]:
         assert _parse(f"{cell},1\n".encode(), compiled=False) is None, cell
         got = _parse(f"{cell},1\n".encode())
-        if cell in ("1234567890123456789", "9007199254740993", "1e23", "1e400") or \
+        if cell in ("1e23", "1e400") or \
                 _numcsv._KERNELS.get("backend") != "native":
             assert got is None, cell
         else:

@@ -216,8 +216,14 @@ def test_native_parser_converts_full_precision_exports():
     assert r == len(cells)
     np.testing.assert_array_equal(out[:, 0].view(np.uint64),
                                   np.array([float(c) for c in cells]).view(np.uint64))
-    # a subnormal, overflows, 19 digits, an exact tie (2^53 + 1): left to pandas
-    for refused in ("5e-324", "1e309", "1.8e308", "1234567890123456789", "9007199254740993"):
+    # 19 digits and an exact tie (2^53 + 1, whole): converted exactly (reference: float())
+    for cell in ("1234567890123456789", "9007199254740993", "-9007199254740993e0"):
+        b = np.frombuffer(cell.encode(), dtype=np.uint8)
+        got = np.empty((1, 1))
+        assert _native.parse(b, b.size, 44, 46, np.arange(1), got, _numcsv._POW10) == 1
+        assert got[0, 0].tobytes() == np.float64(float(cell)).tobytes(), cell
+    # a subnormal, overflows, a tie beyond 2^64 (10^23): left to pandas
+    for refused in ("5e-324", "1e309", "1.8e308", "1e23", "4.9406564584124654e-324"):
         b = np.frombuffer(refused.encode(), dtype=np.uint8)
         assert _native.parse(b, b.size, 44, 46, np.arange(1), np.empty((1, 1)),
                              _numcsv._POW10) == -1, refused
