@@ -286,6 +286,8 @@ def main(argv=None) -> int:
     if args.scaling:
         durations.append(4 * max(durations))
     print(f"machine: {machine()}; values: {args.digits} precision")
+    if args.workdir is not None:
+        Path(args.workdir).mkdir(parents=True, exist_ok=True)
     with tempfile.TemporaryDirectory(dir=args.workdir) as tmp:
         tmp = Path(tmp)
         rows = []

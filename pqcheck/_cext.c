@@ -642,46 +642,75 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
             } else {
 #if PQ_X86 && defined(PQ_SWAR)
                 /* The common cell, [-]digits[.digits] ended by the delimiter or a line end
-                 * within 16 bytes: its digits, point and end found at once from one 16-byte
-                 * load (SSE2 byte masks), its value as the general path below computes it
-                 * (at most 8 + 8 digits, 14 in all, so Clinger's fast path holds), and the
+                 * within 32 bytes: its digits, point and end found at once from two 16-byte
+                 * loads (SSE2 byte masks), its value as the general path below computes it
+                 * (at most 8 integer and 19 digits in all: mant exact; Clinger's fast path or
+                 * Eisel-Lemire, the general path where that is undecided), and the
                  * character that ends it kept. The general path's chain of dependent
                  * one-byte reads (NaN, blanks, sign, digits, end) set the speed of the whole
                  * loop; here the next cell's position is known a few operations after the
-                 * load. */
-                if (i + 24 <= n) { /* every load below inside the buffer */
-                    __m128i v = _mm_loadu_si128((const __m128i *)(buf + i));
-                    __m128i dg = _mm_sub_epi8(v, _mm_set1_epi8('0'));
-                    unsigned dmask = (unsigned)_mm_movemask_epi8(
-                        _mm_cmpeq_epi8(_mm_max_epu8(dg, _mm_set1_epi8(9)), _mm_set1_epi8(9)));
-                    unsigned pmask = (unsigned)_mm_movemask_epi8(
-                        _mm_cmpeq_epi8(v, _mm_set1_epi8((char)dec)));
-                    unsigned emask = (unsigned)_mm_movemask_epi8(_mm_or_si128(
-                        _mm_cmpeq_epi8(v, _mm_set1_epi8((char)sep)),
-                        _mm_or_si128(_mm_cmpeq_epi8(v, _mm_set1_epi8(10)),
-                                     _mm_cmpeq_epi8(v, _mm_set1_epi8(13)))));
+                 * loads. */
+                if (i + 40 <= n) { /* every load below inside the buffer */
+                    const __m128i zero = _mm_set1_epi8('0'), nine = _mm_set1_epi8(9);
+                    const __m128i vdec = _mm_set1_epi8((char)dec), vsep = _mm_set1_epi8((char)sep);
+                    const __m128i lf = _mm_set1_epi8(10), cr = _mm_set1_epi8(13);
+                    uint64_t dmask = 0, pmask = 0, emask = 0;
                     int neg = buf[i] == 45 && sep != 45;
-                    unsigned nd = ~dmask; /* bits 16.. set: every run ends by bit 16 */
-                    int r1 = __builtin_ctz(nd >> neg);
-                    int p = neg + r1; /* the byte after the integer digits */
-                    int r2 = 0, q = p;
-                    if ((pmask >> p) & 1) {
-                        r2 = __builtin_ctz(nd >> (p + 1));
-                        q = p + 1 + r2;
+                    int r1 = 0, p = 0, r2 = 0, q = 0;
+                    /* the second 16 bytes only where the first end inside a digit run */
+                    for (int h = 0; h < 2; h++) {
+                        __m128i v = _mm_loadu_si128((const __m128i *)(buf + i + 16 * h));
+                        __m128i dg = _mm_sub_epi8(v, zero);
+                        dmask |= (uint64_t)(unsigned)_mm_movemask_epi8(
+                                     _mm_cmpeq_epi8(_mm_max_epu8(dg, nine), nine)) << (16 * h);
+                        pmask |= (uint64_t)(unsigned)_mm_movemask_epi8(_mm_cmpeq_epi8(v, vdec))
+                                 << (16 * h);
+                        emask |= (uint64_t)(unsigned)_mm_movemask_epi8(_mm_or_si128(
+                                     _mm_cmpeq_epi8(v, vsep),
+                                     _mm_or_si128(_mm_cmpeq_epi8(v, lf), _mm_cmpeq_epi8(v, cr))))
+                                 << (16 * h);
+                        uint64_t nd = ~dmask; /* bits past those loaded set: runs end there */
+                        r1 = __builtin_ctzll(nd >> neg);
+                        p = neg + r1; /* the byte after the integer digits */
+                        r2 = 0;
+                        q = p;
+                        if ((pmask >> p) & 1) {
+                            r2 = __builtin_ctzll(nd >> (p + 1));
+                            q = p + 1 + r2;
+                        }
+                        if (q < 16 * (h + 1))
+                            break;
                     }
-                    if (r1 >= 1 && r1 <= 8 && r2 <= 8 && ((emask >> q) & 1)) {
+                    if (r1 >= 1 && r1 <= 8 && r1 + r2 <= 19 && q < 32 && ((emask >> q) & 1)) {
                         uint64_t mant = digits_value8(load8(buf + i + neg), r1);
-                        if (r2)
-                            mant = mant * POW10_U[r2] + digits_value8(load8(buf + i + p + 1), r2);
-                        double val = r2 ? (double)mant / pow10[r2] : (double)mant;
-                        uint64_t bits;
-                        memcpy(&bits, &val, 8);
-                        bits ^= (uint64_t)neg << 63;
-                        memcpy(&val, &bits, 8);
-                        orow[col * cs] = val;
-                        c = buf[i + q];
-                        i += q;
-                        goto field_end;
+                        for (int k = 0; k < r2; k += 8) {
+                            int r = r2 - k < 8 ? r2 - k : 8;
+                            mant = mant * POW10_U[r] +
+                                   digits_value8(load8(buf + i + p + 1 + k), r);
+                        }
+                        double val;
+                        int ok = 1;
+                        if (mant == 0 || r2 == 0) {
+                            val = (double)mant; /* at most 8 digits: exact */
+                        } else if (mant <= 9007199254740992ULL && r2 <= 22) {
+                            val = (double)mant / pow10[r2];
+                        } else {
+#ifdef __SIZEOF_INT128__
+                            ok = pow10_128 != NULL && eisel_lemire(mant, -r2, pow10_128, &val);
+#else
+                            ok = 0;
+#endif
+                        }
+                        if (ok) {
+                            uint64_t bits;
+                            memcpy(&bits, &val, 8);
+                            bits ^= (uint64_t)neg << 63;
+                            memcpy(&val, &bits, 8);
+                            orow[col * cs] = val;
+                            c = buf[i + q];
+                            i += q;
+                            goto field_end;
+                        }
                     }
                 }
 #endif
@@ -764,17 +793,6 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                         c = AT(i);
                         if (!IS_END(c))
                             return -1;
-                        if (mant != 0 && !dropped &&
-                            (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL)) {
-                            /* outside Clinger's fast path: trailing zeros of the mantissa
-                             * (3.125000000000000000e-02, as numpy.savetxt writes 2^-5) into
-                             * the power of ten, the same value; exact values then take the
-                             * fast path, where Eisel-Lemire would call them undecided */
-                            while (mant % 10 == 0) {
-                                mant /= 10;
-                                e10++;
-                            }
-                        }
                         if (mant == 0)
                             val = 0.0;
                         else if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL ||
@@ -792,9 +810,20 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                                     !eisel_lemire(mant + 1, e10 + dropped, pow10_128, &hi) ||
                                     hi != val)
                                     return -1;
-                            } else if (!eisel_lemire(mant, e10, pow10_128, &val) &&
-                                       !exact_value(mant, e10, &val)) {
-                                return -1;
+                            } else if (!eisel_lemire(mant, e10, pow10_128, &val)) {
+                                /* undecided: trailing zeros of the mantissa into the power of
+                                 * ten (3.125000000000000000e-02 is 3125e-5, as numpy.savetxt
+                                 * writes 2^-5), then Clinger's fast path where it now holds,
+                                 * else the exact value where there is one */
+                                while (mant % 10 == 0) {
+                                    mant /= 10;
+                                    e10++;
+                                }
+                                if (mant <= 9007199254740992ULL && e10 >= -22 && e10 <= 22)
+                                    val = e10 >= 0 ? (double)mant * pow10[e10]
+                                                   : (double)mant / pow10[-e10];
+                                else if (!exact_value(mant, e10, &val))
+                                    return -1;
                             }
 #else
                             return -1;

@@ -116,6 +116,26 @@ def test_long_texts_match_the_plain_python_definition(rows, eol):
         assert a.tobytes() == b.tobytes()
 
 
+@pytest.mark.parametrize("cell", ["1.2345678901234567890", "-0.1234567890123456789",
+                                  "12345678.12345678901", "-110.143128284059",
+                                  "0.017279209603239302", "99999999.99999999999",
+                                  "0.0000000000000000001234", "-1.000000000000000000",
+                                  "23456789.123456789012", "-98765432.1098765432109"])
+def test_long_cells_read_32_bytes_at_a_time(cell):
+    # reference: Python float(), bit for bit: cells of 17 to 22 digits (full-precision
+    # exports), which the C loop reads from two 16-byte loads where at most 19 digits and 8
+    # integer digits; 20 digits and more go the general way
+    if _numcsv._KERNELS.get("backend") != "native" and _numcsv.available():
+        pytest.skip("the numba and Python forms leave long mantissas to pandas")
+    for eol in ("\n", "\r\n"):
+        text = (f"{cell},1,{cell}{eol}2,{cell},3{eol}" + ("0,0,0" + eol) * 6).encode()
+        got = _parse(text)
+        assert got is not None, cell
+        want = np.array([[float(cell), 1.0, float(cell)], [2.0, float(cell), 3.0]]
+                        + [[0.0] * 3] * 6)
+        assert got.tobytes() == want.tobytes(), (cell, eol)
+
+
 @settings(max_examples=300, deadline=None)
 @given(st.floats(allow_nan=False, allow_infinity=False, min_value=-1e300, max_value=1e300),
        st.sampled_from(["%.18e", "%.16e", "%.24e", "%.17g", "%r"]))
