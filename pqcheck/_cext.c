@@ -641,22 +641,23 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                 }
             } else {
 #if PQ_X86 && defined(PQ_SWAR)
-                /* The common cell, [-]digits[.digits] ended by the delimiter or a line end
-                 * within 32 bytes: its digits, point and end found at once from two 16-byte
-                 * loads (SSE2 byte masks), its value as the general path below computes it
-                 * (at most 8 integer and 19 digits in all: mant exact; Clinger's fast path or
-                 * Eisel-Lemire, the general path where that is undecided), and the
-                 * character that ends it kept. The general path's chain of dependent
-                 * one-byte reads (NaN, blanks, sign, digits, end) set the speed of the whole
-                 * loop; here the next cell's position is known a few operations after the
-                 * loads. */
-                if (i + 40 <= n) { /* every load below inside the buffer */
+                /* The common cell, [-]digits[.digits][(e|E)[+|-]digits] ended by the
+                 * delimiter or a line end within 32 bytes: its digits, point, exponent and
+                 * end found at once from 16-byte loads (SSE2 byte masks; the second 16 bytes
+                 * only where the first end inside the cell), its value as the general path
+                 * below computes it (at most 8 integer and 19 digits in all, so mant is
+                 * exact, and 4 exponent digits; Clinger's fast path or Eisel-Lemire, and the
+                 * general path where that is undecided), and the character that ends it
+                 * kept. The general path's chain of dependent one-byte reads (NaN, blanks,
+                 * sign, digits, exponent, end) set the speed of the whole loop; here the next
+                 * cell's position is known a few operations after the loads. */
+                if (i + 48 <= n) { /* every load below inside the buffer */
                     const __m128i zero = _mm_set1_epi8('0'), nine = _mm_set1_epi8(9);
                     const __m128i vdec = _mm_set1_epi8((char)dec), vsep = _mm_set1_epi8((char)sep);
                     const __m128i lf = _mm_set1_epi8(10), cr = _mm_set1_epi8(13);
-                    uint64_t dmask = 0, pmask = 0, emask = 0;
+                    uint64_t dmask = 0, pmask = 0, emask = 0, xmask = 0;
                     int neg = buf[i] == 45 && sep != 45;
-                    int r1 = 0, p = 0, r2 = 0, q = 0;
+                    int r1 = 0, p = 0, r2 = 0, q = 0, t = 0, r3 = -1, es = 0, eneg = 0;
                     /* the second 16 bytes only where the first end inside a digit run */
                     for (int h = 0; h < 2; h++) {
                         __m128i v = _mm_loadu_si128((const __m128i *)(buf + i + 16 * h));
@@ -665,6 +666,9 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                                      _mm_cmpeq_epi8(_mm_max_epu8(dg, nine), nine)) << (16 * h);
                         pmask |= (uint64_t)(unsigned)_mm_movemask_epi8(_mm_cmpeq_epi8(v, vdec))
                                  << (16 * h);
+                        xmask |= (uint64_t)(unsigned)_mm_movemask_epi8(_mm_cmpeq_epi8(
+                                     _mm_or_si128(v, _mm_set1_epi8(32)), _mm_set1_epi8(101)))
+                                 << (16 * h); /* e or E */
                         emask |= (uint64_t)(unsigned)_mm_movemask_epi8(_mm_or_si128(
                                      _mm_cmpeq_epi8(v, vsep),
                                      _mm_or_si128(_mm_cmpeq_epi8(v, lf), _mm_cmpeq_epi8(v, cr))))
@@ -678,28 +682,47 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                             r2 = __builtin_ctzll(nd >> (p + 1));
                             q = p + 1 + r2;
                         }
-                        if (q < 16 * (h + 1))
+                        t = q; /* where the cell must end */
+                        r3 = -1; /* no exponent */
+                        if ((xmask >> q) & 1) { /* e or E */
+                            int s2 = q + 1, ch = buf[i + s2];
+                            eneg = ch == 45;
+                            s2 += (ch == 45) | (ch == 43);
+                            r3 = __builtin_ctzll(nd >> s2);
+                            es = s2;
+                            t = s2 + r3;
+                        }
+                        if (t < 16 * (h + 1))
                             break;
                     }
-                    if (r1 >= 1 && r1 <= 8 && r1 + r2 <= 19 && q < 32 && ((emask >> q) & 1)) {
+                    if (r1 >= 1 && r1 <= 8 && r1 + r2 <= 19 && t < 32 && ((emask >> t) & 1) &&
+                        (r3 < 0 || (r3 >= 1 && r3 <= 4))) {
                         uint64_t mant = digits_value8(load8(buf + i + neg), r1);
                         for (int k = 0; k < r2; k += 8) {
                             int r = r2 - k < 8 ? r2 - k : 8;
                             mant = mant * POW10_U[r] +
                                    digits_value8(load8(buf + i + p + 1 + k), r);
                         }
-                        double val;
+                        int64_t e10 = -(int64_t)r2;
+                        if (r3 > 0) {
+                            int64_t ex = (int64_t)digits_value8(load8(buf + i + es), r3);
+                            e10 += eneg ? -ex : ex;
+                        }
+                        /* the conversion of the general path, step for step */
+                        double val = 0.0;
                         int ok = 1;
-                        if (mant == 0 || r2 == 0) {
-                            val = (double)mant; /* at most 8 digits: exact */
-                        } else if (mant <= 9007199254740992ULL && r2 <= 22) {
-                            val = (double)mant / pow10[r2];
-                        } else {
+                        if (mant == 0) {
+                            val = 0.0;
+                        } else if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL) {
 #ifdef __SIZEOF_INT128__
-                            ok = pow10_128 != NULL && eisel_lemire(mant, -r2, pow10_128, &val);
+                            ok = pow10_128 != NULL && eisel_lemire(mant, e10, pow10_128, &val);
 #else
                             ok = 0;
 #endif
+                        } else if (e10 >= 0) {
+                            val = (double)mant * pow10[e10];
+                        } else {
+                            val = (double)mant / pow10[-e10];
                         }
                         if (ok) {
                             uint64_t bits;
@@ -707,8 +730,8 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                             bits ^= (uint64_t)neg << 63;
                             memcpy(&val, &bits, 8);
                             orow[col * cs] = val;
-                            c = buf[i + q];
-                            i += q;
+                            c = buf[i + t];
+                            i += t;
                             goto field_end;
                         }
                     }

@@ -120,7 +120,10 @@ def test_long_texts_match_the_plain_python_definition(rows, eol):
                                   "12345678.12345678901", "-110.143128284059",
                                   "0.017279209603239302", "99999999.99999999999",
                                   "0.0000000000000000001234", "-1.000000000000000000",
-                                  "23456789.123456789012", "-98765432.1098765432109"])
+                                  "23456789.123456789012", "-98765432.1098765432109",
+                                  "6.928203230275502733e+01", "-5.849536599979372653e-101",
+                                  "3.125000000000000000e-02", "9.999999999999999e+22",
+                                  "1.7976931348623157e+308", "1.23456789012345678e+100"])
 def test_long_cells_read_32_bytes_at_a_time(cell):
     # reference: Python float(), bit for bit: cells of 17 to 22 digits (full-precision
     # exports), which the C loop reads from two 16-byte loads where at most 19 digits and 8
@@ -159,7 +162,10 @@ def test_full_precision_exports_read_back_exactly(x, fmt):
 
 @pytest.mark.parametrize("cell", ["12.", "-0.000", "-0", "00000001.5", "12345678.12345678",
                                   "-12345678.1234567", "123456789.1", "1.123456789", ".5",
-                                  "-.5", "1e5", "-2.5E-3", "7", "-99999999.9999999"])
+                                  "-.5", "1e5", "-2.5E-3", "7", "-99999999.9999999",
+                                  "1.5E+02", "-2.814583E+02", "5.000000E-05", "1e-22", "1e22",
+                                  "1.5e+0010", "-0.000000E+00", "2.5e-0003", "1.5e0",
+                                  "123.456e-7", "7.0E+5"])
 def test_cells_at_the_limits_of_the_16_byte_path(cell):
     # reference: Python float(), bit for bit (signs of zero included); each cell far enough
     # from the end of the text for the C loop's 16-byte path, at the start of a row, inside
