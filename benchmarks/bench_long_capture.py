@@ -125,7 +125,9 @@ print(pl.read_csv(sys.argv[1]).height)
 
 CHILD_PARSE_DUCKDB = """
 import sys, duckdb
-print(duckdb.sql(f"select count(*) from read_csv_auto('{sys.argv[1]}')").fetchone())
+# every value converted (a sum over every column, streamed): count(*) alone converts none
+# and is no parse; fetchall, since DuckDB 2 relations have no fetchone
+print(duckdb.sql(f"select sum(columns(*)) from read_csv_auto('{sys.argv[1]}')").fetchall())
 """
 
 CHILD_FFT = """
