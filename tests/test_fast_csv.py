@@ -214,9 +214,16 @@ def test_many_digits_and_large_powers_are_left_to_pandas():
     b"1, \n",  # a blank cell: pandas refuses it
     b"1,NA\n", b"1,+nan\n", b"1,nan \n",  # NA spellings other than pqcheck's own
     "1,\u00b5\n".encode(),  # a byte outside ASCII
+    b"1,1e+\n", b"1,1e5x\n", b"1,1.5e-\n", b"1,1e+-5\n", b"1,2.5E\r\n", b"1,1..5\n",
+    b"1,-1.5-\n", b"1,12345678901234567890123e5x\n",
 ])
-def test_anything_else_is_refused(text):
-    # reference: the cases pandas parses differently or refuses (its errors name the line)
+@pytest.mark.parametrize("padded", [False, True])
+def test_anything_else_is_refused(text, padded):
+    # reference: the cases pandas parses differently or refuses (its errors name the line).
+    # Padded: plain rows after the text, so that its cells are 48 bytes or more from the end
+    # and the C loop's 16-byte path sees them first (it must hand them on, not read them)
+    if padded:
+        text = text + b"0,0\n" * 16
     assert _parse(text, ncols=2) is None
 
 
