@@ -352,11 +352,19 @@ class CaptureStream:
             return ""
         return self.provenance.sha256
 
+    @property
+    def hashed_in_this_run(self) -> bool:
+        """True when the SHA-256 is (being) computed beside the reading, not taken from a
+        record: the digest is then worth recording for the file's state, even when the hash
+        had already finished by the time it was first asked for."""
+        return bool(self._shared.get("hashed_here"))
+
     def hash_pending(self, hasher) -> None:
         """Take the SHA-256 from ``hasher`` (an object whose ``result()`` returns the hex
         digest, computing it on another thread, and ``done()`` tells whether it has) when
         :attr:`provenance` is first read."""
         self._shared["hash"] = hasher
+        self._shared["hashed_here"] = True  # kept once the digest is taken
 
     @provenance.setter
     def provenance(self, value):

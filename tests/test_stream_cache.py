@@ -274,6 +274,33 @@ def test_binary_cache_hit_without_hashing_and_miss_after_a_rewrite(tmp_path, mon
     assert r3.channels[0].rms == pytest.approx(2 * r1.channels[0].rms, rel=1e-9)
 
 
+def test_binary_digest_is_recorded_when_its_hash_finished_before_the_lookup(tmp_path,
+                                                                              monkeypatch):
+    # reference: hashlib.sha256 of the file (capture_sha256). A small binary capture can be
+    # hashed before the result cache is looked up; its digest must still be recorded for the
+    # file's state (it was not: the next run hashed again). The hash is made to finish at
+    # once, so that this order is the one tested, not the one a thread happens to take
+    from pqcheck import readers
+
+    real_init = readers.BackgroundHash.__init__
+
+    def finished_at_once(self, p):
+        real_init(self, p)
+        self.result()  # done() is True from here on
+
+    monkeypatch.setattr(readers.BackgroundHash, "__init__", finished_at_once)
+    t = np.arange(20_000) / FS
+    np.save(tmp_path / "cap.npy", np.column_stack([10 * np.sin(2 * np.pi * 50 * t),
+                                                   230 * np.sin(2 * np.pi * 50 * t)]))
+    (tmp_path / "cap.json").write_text(json.dumps({"columns": ["ia", "va"],
+                                                    "sample_rate_hz": FS}))
+    path = tmp_path / "cap.npy"
+    cache = Cache(tmp_path / "cache")
+    _, r1 = analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    assert cache.known_sha256(path, {"sample_rate_hz": None, "time_column": None}) \
+        == r1.sha256 == readers.capture_sha256(path)
+
+
 def test_binary_cache_misses_when_only_the_side_car_changes(tmp_path):
     # reference: the side-car's own sample rate (a user correcting a wrong rate in the .json
     # beside an unchanged .npy) and numpy's rms of the samples. The recorded digest covers

@@ -212,9 +212,11 @@ def _open_and_analyze(path, sample_rate_hz, current, voltage, time_column, cache
     if cache is not None and result.sha256:
         def save():
             cache.save_result(result.sha256, key, result)
-            if sha != result.sha256 and not isinstance(path, (list, tuple)):
+            hashed_here = sha != result.sha256 or getattr(capture, "hashed_in_this_run", False)
+            if hashed_here and not isinstance(path, (list, tuple)):
                 # hashed during this run (a binary capture): recorded for the file's state,
-                # so that the next run finds its result without hashing
+                # so that the next run finds its result without hashing (also where that
+                # hash had finished before the lookup, as for a small file)
                 cache.remember_sha256(path, {"sample_rate_hz": sample_rate_hz,
                                              "time_column": time_column,
                                              **({"encoding": encoding} if encoding else {})},
