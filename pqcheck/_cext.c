@@ -609,6 +609,58 @@ static int exact_value(uint64_t mant, int64_t e10, double *out)
 }
 #endif
 
+/* The float64 of (-1)^neg mant 10^e10, where significant digits past the 19th were dropped
+ * (``dropped`` of them: the value lies in [mant, mant + 1) 10^(e10 + dropped)), correctly
+ * rounded, into *out; 0 where it is not decided here (the caller refuses the text and pandas
+ * reads it). Clinger's fast path (mant below 2^53, |e10| <= 22: one exact IEEE operation);
+ * outside it Eisel-Lemire (full-precision exports: 17 digits, numpy.savetxt's 19); with
+ * digits dropped, the value both ends of the interval round to; where Eisel-Lemire is
+ * undecided, the trailing zeros of mant into the power of ten (3.125000000000000000e-02 is
+ * 3125e-5, as numpy.savetxt writes 2^-5), then Clinger's fast path where it now holds, else
+ * the exact value where there is one. The one conversion of both paths of pq_parse. */
+static inline int decimal_to_double(uint64_t mant, int64_t e10, int64_t dropped, int neg,
+                                    const double *pow10, const uint64_t *pow10_128,
+                                    double *out)
+{
+    double val;
+    if (mant == 0) {
+        val = 0.0;
+    } else if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL || dropped) {
+#ifdef __SIZEOF_INT128__
+        double hi;
+        if (pow10_128 == NULL)
+            return 0;
+        if (dropped) {
+            if (!eisel_lemire(mant, e10 + dropped, pow10_128, &val) ||
+                !eisel_lemire(mant + 1, e10 + dropped, pow10_128, &hi) || hi != val)
+                return 0;
+        } else if (!eisel_lemire(mant, e10, pow10_128, &val)) {
+            while (mant % 10 == 0) {
+                mant /= 10;
+                e10++;
+            }
+            if (mant <= 9007199254740992ULL && e10 >= -22 && e10 <= 22)
+                val = e10 >= 0 ? (double)mant * pow10[e10] : (double)mant / pow10[-e10];
+            else if (!exact_value(mant, e10, &val))
+                return 0;
+        }
+#else
+        (void)dropped;
+        (void)pow10_128;
+        return 0;
+#endif
+    } else if (e10 >= 0) {
+        val = (double)mant * pow10[e10];
+    } else {
+        val = (double)mant / pow10[-e10];
+    }
+    uint64_t bits; /* the sign without a branch: the signs of a waveform's samples are random */
+    memcpy(&bits, &val, 8);
+    bits ^= (uint64_t)neg << 63;
+    memcpy(out, &bits, 8);
+    return 1;
+}
+
 #define AT(j) ((j) < n ? (int)buf[j] : 10)
 #define IS_END(ch) ((ch) == sep || (ch) == 10 || (ch) == 13)
 
@@ -708,27 +760,9 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                             int64_t ex = (int64_t)digits_value8(load8(buf + i + es), r3);
                             e10 += eneg ? -ex : ex;
                         }
-                        /* the conversion of the general path, step for step */
-                        double val = 0.0;
-                        int ok = 1;
-                        if (mant == 0) {
-                            val = 0.0;
-                        } else if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL) {
-#ifdef __SIZEOF_INT128__
-                            ok = pow10_128 != NULL && eisel_lemire(mant, e10, pow10_128, &val);
-#else
-                            ok = 0;
-#endif
-                        } else if (e10 >= 0) {
-                            val = (double)mant * pow10[e10];
-                        } else {
-                            val = (double)mant / pow10[-e10];
-                        }
-                        if (ok) {
-                            uint64_t bits;
-                            memcpy(&bits, &val, 8);
-                            bits ^= (uint64_t)neg << 63;
-                            memcpy(&val, &bits, 8);
+                        double val;
+                        /* undecided here: the general path below reaches the same refusal */
+                        if (decimal_to_double(mant, e10, 0, neg, pow10, pow10_128, &val)) {
                             orow[col * cs] = val;
                             c = buf[i + t];
                             i += t;
@@ -816,51 +850,8 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
                         c = AT(i);
                         if (!IS_END(c))
                             return -1;
-                        if (mant == 0)
-                            val = 0.0;
-                        else if (e10 > 22 || e10 < -22 || mant > 9007199254740992ULL ||
-                                 dropped) {
-#ifdef __SIZEOF_INT128__
-                            /* outside Clinger's fast path: full-precision exports (17 digits,
-                             * or numpy.savetxt's 19). With digits dropped, the value is the
-                             * one both ends of its interval round to, or undecided, as in
-                             * Lemire 2021 (from memory) */
-                            double hi;
-                            if (pow10_128 == NULL)
-                                return -1;
-                            if (dropped) {
-                                if (!eisel_lemire(mant, e10 + dropped, pow10_128, &val) ||
-                                    !eisel_lemire(mant + 1, e10 + dropped, pow10_128, &hi) ||
-                                    hi != val)
-                                    return -1;
-                            } else if (!eisel_lemire(mant, e10, pow10_128, &val)) {
-                                /* undecided: trailing zeros of the mantissa into the power of
-                                 * ten (3.125000000000000000e-02 is 3125e-5, as numpy.savetxt
-                                 * writes 2^-5), then Clinger's fast path where it now holds,
-                                 * else the exact value where there is one */
-                                while (mant % 10 == 0) {
-                                    mant /= 10;
-                                    e10++;
-                                }
-                                if (mant <= 9007199254740992ULL && e10 >= -22 && e10 <= 22)
-                                    val = e10 >= 0 ? (double)mant * pow10[e10]
-                                                   : (double)mant / pow10[-e10];
-                                else if (!exact_value(mant, e10, &val))
-                                    return -1;
-                            }
-#else
+                        if (!decimal_to_double(mant, e10, dropped, neg, pow10, pow10_128, &val))
                             return -1;
-#endif
-                        } else if (e10 >= 0)
-                            val = (double)mant * pow10[e10];
-                        else
-                            val = (double)mant / pow10[-e10];
-                        {
-                            uint64_t bits;
-                            memcpy(&bits, &val, 8);
-                            bits ^= (uint64_t)neg << 63;
-                            memcpy(&val, &bits, 8);
-                        }
                     }
                 }
                 orow[col * cs] = val;
