@@ -160,6 +160,29 @@ def test_full_precision_exports_read_back_exactly(x, fmt):
     assert got[0, 0].tobytes() == np.float64(float(cell)).tobytes(), cell
 
 
+@pytest.mark.parametrize("sep,dec", [(",", "."), (";", ","), ("\t", ".")])
+def test_mixed_cells_in_a_long_text_match_the_plain_python_definition(sep, dec):
+    # reference: the plain-Python definition of the loop. A real export mixes cells the C
+    # loop's 16-byte path reads (plain decimals, exponents) with cells it must hand on to
+    # the general path (blanks around a number, a '+' sign, NaN spellings, a short last row),
+    # in the middle of a long text, and with a decimal comma
+    cells = ["1.5", " 2.25", "3.5 ", "+4", "nan", "-NaN", "1e5", "-2.5E-3", "0.000", "-0",
+             "12345678.5", "7", "123456789.25"]
+    rows = []
+    for k in range(len(cells)):
+        rows.append(sep.join(cells[(k + j) % len(cells)] for j in range(3)))
+    rows.append(sep.join(["1.5", "2.5"]))  # a short row: NaN in the third column
+    text = "\n".join(rows * 4) + "\n" + "\n".join(["0" + sep + "0" + sep + "0"] * 6) + "\n"
+    text = text.replace(".", dec) if dec != "." else text
+    buf = np.frombuffer(text.encode(), dtype=np.uint8).copy()
+    colmap = np.arange(3)
+    a = _numcsv.parse_chunk(buf, buf.size, sep, dec, colmap, compiled=True)
+    b = _numcsv.parse_chunk(buf, buf.size, sep, dec, colmap, compiled=False)
+    assert a is not None and b is not None
+    assert a.tobytes() == b.tobytes()
+    assert a[0, 0] == 1.5 and a[1, 2] == 4.0 and np.isnan(a[len(cells), 2])
+
+
 @pytest.mark.parametrize("cell", ["12.", "-0.000", "-0", "00000001.5", "12345678.12345678",
                                   "-12345678.1234567", "123456789.1", "1.123456789", ".5",
                                   "-.5", "1e5", "-2.5E-3", "7", "-99999999.9999999",
