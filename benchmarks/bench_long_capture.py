@@ -7,6 +7,7 @@ Run on demand (never part of the unit tests):
     python benchmarks/bench_long_capture.py --scaling      # adds a 40 min capture (memory growth)
     python benchmarks/bench_long_capture.py --repeat 5 --durations 60
     python benchmarks/bench_long_capture.py --digits full  # values at 17 significant digits
+    python benchmarks/bench_long_capture.py --digits savetxt  # numpy.savetxt's default %.18e
 
 What is measured, each in a fresh process, interleaved over the repetitions, medians reported:
 
@@ -55,38 +56,52 @@ the resampling is the identity)."""
 EXPECTED_THD = 100 * np.sqrt(0.2**2 + 0.1**2)
 
 
-def generate(path: Path, seconds: float, full: bool = False) -> None:
+def generate(path: Path, seconds: float, full: bool = False, savetxt: bool = False) -> None:
     """Write a 7-column three-phase capture (time, ia, ib, ic, va, vb, vc): rounded as a
     scope prints (3 and 2 decimals), or with ``full`` every value at full precision (the
     shortest text that reads back as the same float64: up to 17 significant digits, as a
-    simulator or ``pandas.to_csv`` writes them)."""
+    simulator or ``pandas.to_csv`` writes them), or with ``savetxt`` as ``numpy.savetxt``
+    writes by default (``%.18e``: 19 significant digits and an exponent, 25 bytes a number)
+    under a ``time_s,ia,...`` header."""
     import pyarrow as pa
     import pyarrow.csv as pc
 
     rng = np.random.default_rng(1)
     block = FS * 30
+    n_total = int(FS * seconds)
+    if savetxt:
+        with open(path, "w") as fh:
+            for lo in range(0, n_total, block):
+                cols = _signals(lo, min(block, n_total - lo), rng, full=True)
+                np.savetxt(fh, np.column_stack([cols[k] for k in cols]), delimiter=",",
+                           header="time_s,ia,ib,ic,va,vb,vc" if lo == 0 else "",
+                           comments="")
+        return
     with pa.OSFile(str(path), "wb") as sink:
         writer = None
-        n_total = int(FS * seconds)
         for lo in range(0, n_total, block):
-            n = min(block, n_total - lo)
-            t = (lo + np.arange(n)) / FS
-            cols = {"time [s]": np.round(t, 6)}
-            for k, ph in enumerate("abc"):
-                th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
-                i = 141.4 * (np.sin(th) + 0.2 * np.sin(5 * th) + 0.1 * np.sin(7 * th))
-                i = i + rng.normal(0, 0.05, n)
-                cols[f"i{ph} [A]"] = i if full else np.round(i, 3)
-            for k, ph in enumerate("abc"):
-                th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
-                v = 325.3 * np.sin(th) + rng.normal(0, 0.1, n)
-                cols[f"v{ph} [V]"] = v if full else np.round(v, 2)
-            table = pa.table(cols)
+            table = pa.table(_signals(lo, min(block, n_total - lo), rng, full))
             if writer is None:
                 writer = pc.CSVWriter(sink, table.schema,
                                       write_options=pc.WriteOptions(quoting_style="none"))
             writer.write_table(table)
         writer.close()
+
+
+def _signals(lo: int, n: int, rng, full: bool) -> dict:
+    """Samples ``lo`` to ``lo + n`` of the seven columns, by name (rounded unless ``full``)."""
+    t = (lo + np.arange(n)) / FS
+    cols = {"time [s]": np.round(t, 6)}
+    for k, ph in enumerate("abc"):
+        th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
+        i = 141.4 * (np.sin(th) + 0.2 * np.sin(5 * th) + 0.1 * np.sin(7 * th))
+        i = i + rng.normal(0, 0.05, n)
+        cols[f"i{ph} [A]"] = i if full else np.round(i, 3)
+    for k, ph in enumerate("abc"):
+        th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
+        v = 325.3 * np.sin(th) + rng.normal(0, 0.1, n)
+        cols[f"v{ph} [V]"] = v if full else np.round(v, 2)
+    return cols
 
 
 CHILD_READ = """
@@ -278,9 +293,10 @@ def main(argv=None) -> int:
     ap.add_argument("--scaling", action="store_true",
                     help="also run a capture 4x the longest, to see memory growth")
     ap.add_argument("--repeat", type=int, default=3)
-    ap.add_argument("--digits", choices=["scope", "full"], default="scope",
-                    help="values rounded as a scope prints them (default), or at full "
-                         "precision (17 significant digits)")
+    ap.add_argument("--digits", choices=["scope", "full", "savetxt"], default="scope",
+                    help="values rounded as a scope prints them (default), at full "
+                         "precision (17 significant digits), or as numpy.savetxt writes them "
+                         "by default (%%.18e)")
     ap.add_argument("--workdir", type=Path, default=None,
                     help="where to write the generated captures (default: a temporary folder)")
     args = ap.parse_args(argv)
@@ -296,7 +312,8 @@ def main(argv=None) -> int:
         for seconds in durations:
             path = tmp / f"capture-{int(seconds)}s.csv"
             t0 = time.perf_counter()
-            generate(path, seconds, full=args.digits == "full")
+            generate(path, seconds, full=args.digits == "full",
+                     savetxt=args.digits == "savetxt")
             size = path.stat().st_size / 1e6
             print(f"\n{seconds:g} s capture: {size:.0f} MB (generated in "
                   f"{time.perf_counter() - t0:.1f} s)")

@@ -400,9 +400,17 @@ def _parse_job(buf, n: int, colmap, sep: str, dec: str):
     return table, lines
 
 
+_IN_FLIGHT = 4
+"""Chunks handed to the two parser threads at a time. With two, a thread that finished its
+chunk waited while the chunk before it was collected and the next one read: the workers
+were idle half the time (sampled with py-spy). With four each has one queued: 5-10 % less
+wall time at 10 minutes (benchmarks/README.md), for about 8 MB more text in memory."""
+
+
 def _compiled_tables(spec: dict):
     """Tables (kept columns, rows) of the data rows in file order, parsed by the compiled
-    parser on two threads (it releases the GIL), at most two chunks in flight; a chunk it
+    parser on two threads (it releases the GIL), at most ``_IN_FLIGHT`` chunks in flight; a
+    chunk it
     refuses is parsed by pandas, with the lines before it counted for its messages. The
     tables are column by column (each column's values contiguous), as the blocks are."""
     from collections import deque
@@ -411,7 +419,7 @@ def _compiled_tables(spec: dict):
     path, d = spec["path"], spec["dialect"]
     opts = _d.pandas_options(d)
     sep, dec = opts["sep"], opts["decimal"]
-    # pieces of a sixteenth of a block (4 MB at most): two in flight cost little memory, and
+    # pieces of a sixteenth of a block (4 MB at most): a few in flight cost little memory, and
     # the table of each block is assembled from them in one copy (_exact_rows)
     size = int(min(4 << 20, max(1 << 18, spec["rows"] * spec["row_bytes"] / 16)))
     source = _byte_chunks(path, d, size, spec.get("hasher"))
@@ -419,7 +427,7 @@ def _compiled_tables(spec: dict):
     flight: deque = deque()
 
     def top_up():
-        while len(flight) < 2:
+        while len(flight) < _IN_FLIGHT:
             item = next(source, None)
             if item is None:
                 return
