@@ -256,9 +256,10 @@ def test_binary_cache_hit_without_hashing_and_miss_after_a_rewrite(tmp_path, mon
     _, r1 = analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
     assert r1.sha256 == readers.capture_sha256(path)
     hashed, analysed = [], []
-    real_hash = readers.BackgroundHash.__init__
-    monkeypatch.setattr(readers.BackgroundHash, "__init__",
-                        lambda self, p: hashed.append(p) or real_hash(self, p))
+    # a .npy file is hashed from the bytes its rows are read with (binary._ReadsHashed)
+    real_hash = readers.FedHash.__init__
+    monkeypatch.setattr(readers.FedHash, "__init__",
+                        lambda self, p, depth=None: hashed.append(p) or real_hash(self, p, depth))
     real_analyze = analyze
     monkeypatch.setattr("pqcheck.run.check.analyze",
                         lambda *a, **k: analysed.append(1) or real_analyze(*a, **k))
@@ -279,7 +280,12 @@ def test_binary_digest_is_recorded_when_its_hash_finished_before_the_lookup(tmp_
     # reference: hashlib.sha256 of the file (capture_sha256). A small binary capture can be
     # hashed before the result cache is looked up; its digest must still be recorded for the
     # file's state (it was not: the next run hashed again). The hash is made to finish at
-    # once, so that this order is the one tested, not the one a thread happens to take
+    # once, so that this order is the one tested, not the one a thread happens to take. A
+    # Parquet file: it is hashed by a read of its own beside the analysis (a .npy file from
+    # the bytes its rows are read with, which cannot finish before the lookup)
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
     from pqcheck import readers
 
     real_init = readers.BackgroundHash.__init__
@@ -290,11 +296,9 @@ def test_binary_digest_is_recorded_when_its_hash_finished_before_the_lookup(tmp_
 
     monkeypatch.setattr(readers.BackgroundHash, "__init__", finished_at_once)
     t = np.arange(20_000) / FS
-    np.save(tmp_path / "cap.npy", np.column_stack([10 * np.sin(2 * np.pi * 50 * t),
-                                                   230 * np.sin(2 * np.pi * 50 * t)]))
-    (tmp_path / "cap.json").write_text(json.dumps({"columns": ["ia", "va"],
-                                                    "sample_rate_hz": FS}))
-    path = tmp_path / "cap.npy"
+    path = tmp_path / "cap.parquet"
+    pq.write_table(pa.table({"time": t, "ia": 10 * np.sin(2 * np.pi * 50 * t),
+                             "va": 230 * np.sin(2 * np.pi * 50 * t)}), path)
     cache = Cache(tmp_path / "cache")
     _, r1 = analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
     assert cache.known_sha256(path, {"sample_rate_hz": None, "time_column": None}) \

@@ -97,17 +97,21 @@ class FedHash:
     itself. :meth:`cancel` stops the thread (after an error elsewhere)."""
 
     _DEPTH = 32
-    """Pieces waiting to be hashed, at most (each a few MB; the reader waits beyond that)."""
+    """Pieces waiting to be hashed, at most, unless ``depth`` is given (each a few MB; the
+    reader waits beyond that)."""
 
-    def __init__(self, path):
+    def __init__(self, path, depth: int | None = None):
         import queue
         import threading
 
         self._path = path
         self._h = hashlib.sha256()
-        self._q = queue.Queue(self._DEPTH)
+        self._q = queue.Queue(depth or self._DEPTH)
         self._done = False
         self._cancelled = False
+        self._fed = 0
+        self._hashed = 0
+        self._closed = False
         self._thread = threading.Thread(target=self._run, daemon=True, name="pqcheck-hash")
         self._thread.start()
 
@@ -118,10 +122,28 @@ class FedHash:
                 return
             if not self._cancelled:
                 self._h.update(item)
+            self._hashed += 1
 
     def feed(self, data) -> None:
-        """The next bytes of the file (any buffer; kept alive until hashed)."""
-        self._q.put(data)
+        """The next bytes of the file (any buffer; kept alive until hashed). Ignored once
+        :meth:`result` or :meth:`cancel` has been called (nothing would take them)."""
+        import queue
+
+        if self._closed:
+            return
+        self._fed += 1
+        while True:  # never blocked for good by a queue that nothing takes from any more
+            try:
+                self._q.put(data, timeout=0.1)
+                return
+            except queue.Full:
+                if self._closed:
+                    return
+
+    def done(self) -> bool:
+        """True once every byte has been fed and hashed (:meth:`result` then returns at
+        once)."""
+        return self._done and self._hashed == self._fed
 
     def complete(self) -> None:
         """Every byte of the file has been fed."""
@@ -129,7 +151,9 @@ class FedHash:
 
     def result(self) -> str:
         """The hex digest (waits for the thread)."""
-        self._q.put(None)
+        if not self._closed:
+            self._closed = True
+            self._q.put(None)
         self._thread.join()
         if self._done and not self._cancelled:
             return self._h.hexdigest()
@@ -140,6 +164,7 @@ class FedHash:
         import queue
 
         self._cancelled = True
+        self._closed = True
         while True:  # the end mark, making room for it if the queue is full
             try:
                 self._q.put_nowait(None)
@@ -302,7 +327,9 @@ def open_capture(
         known = cache.known_sha256(p, reader_opts) if cache is not None else None
         cap = opener(p, sample_rate_hz=sample_rate_hz, time_column=time_column,
                      sha256=known or "")
-        if not known:  # hashed on a thread while the blocks are analysed
+        if not known and not cap.hashed_in_this_run:
+            # hashed on a thread while the blocks are analysed (a .npy file hashes the bytes
+            # its rows are read with: see binary._ReadsHashed)
             cap.hash_pending(BackgroundHash(p))
     elif looks_like_spice_raw(p):
         from .spice import read_spice_raw

@@ -70,11 +70,13 @@ def open_npy(path, *, sample_rate_hz=None, time_column=None, sha256="") -> Captu
             f"{arr.dtype}", path=path)
     side = Path(path).with_suffix(".json")
     meta = {}
+    side_bytes = None
     if side.exists():
         require_regular_file(side, what="side-car JSON", max_bytes=16 << 20,
                              error=CaptureFormatError)
         try:
-            meta = json.loads(side.read_text())
+            side_bytes = side.read_bytes()
+            meta = json.loads(side_bytes.decode("utf-8"))
         except (OSError, ValueError) as exc:
             raise CaptureFormatError(f"side-car JSON is not valid ({exc})", path=str(side)) \
                 from None
@@ -85,22 +87,90 @@ def open_npy(path, *, sample_rate_hz=None, time_column=None, sha256="") -> Captu
             path=str(side), field="columns")
     parsed = [_split_unit(n) for n in raw_names]
     names = [p[0] for p in parsed]
-    return _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
-                       _npy_rows(path, arr), arr.shape[0], sample_rate_hz or meta.get("sample_rate_hz"),
-                       time_column, sha256, "npy")
+    feed = None
+    if not sha256 and arr.flags.c_contiguous and getattr(arr, "offset", None) is not None:
+        feed = _ReadsHashed(path, arr.offset, arr.offset + arr.nbytes, side_bytes,
+                            arr.dtype.itemsize * arr.shape[1] * _READ_ROWS)
+    cap = _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
+                      _npy_rows(path, arr, feed), arr.shape[0],
+                      sample_rate_hz or meta.get("sample_rate_hz"), time_column, sha256, "npy")
+    if feed is not None:
+        cap.hash_pending(feed)
+    return cap
 
 
 _READ_ROWS = 1 << 18
 """Rows read from a ``.npy`` file at a time (the transient buffer of a block read)."""
 
 
-def _npy_rows(path, arr):
+class _ReadsHashed:
+    """The SHA-256 of a ``.npy`` capture (its bytes, then its side-car's, as
+    :func:`pqcheck.readers.capture_sha256` hashes them) from the bytes its rows are read
+    with: the file is read once, not a second time beside the analysis, and the digest is
+    of exactly the bytes analysed. A :class:`pqcheck.readers.FedHash` is handed the header
+    when the file is opened, each piece of rows as it is read where it follows on from the
+    last one handed over (the first pass, in file order), and at the end of the rows
+    whatever follows them in the file and the side-car's bytes as read when the file was
+    opened. A read out of order (a second pass) hands over nothing; where no pass reaches
+    the end, :meth:`result` hashes the file itself. ``result()`` and ``done()`` as for
+    :meth:`pqcheck.capture.CaptureStream.hash_pending`; the hashing thread is stopped when
+    this object is dropped unfinished (an analysis that failed half-way)."""
+
+    def __init__(self, path, offset: int, data_end: int, side: bytes | None,
+                 piece_bytes: int):
+        import weakref
+
+        from . import FedHash
+
+        # at most about 64 MB of pieces waiting: the reader waits beyond that
+        self._hasher = FedHash(path, depth=max(2, (64 << 20) // max(piece_bytes, 1)))
+        weakref.finalize(self, self._hasher.cancel)
+        self._path = path
+        self._end = data_end
+        self._side = side
+        self._finished = False
+        with open(path, "rb") as fh:
+            head = fh.read(offset)
+        self._pos = len(head)
+        self._hasher.feed(head)
+        if self._pos == data_end:
+            self._finish()
+
+    def piece(self, at: int, part: np.ndarray) -> None:
+        """``part`` (an array read from the file, kept unchanged) holds the bytes from file
+        offset ``at`` on."""
+        if self._finished or at != self._pos:
+            return
+        self._hasher.feed(part)
+        self._pos += part.nbytes
+        if self._pos == self._end:
+            self._finish()
+
+    def _finish(self) -> None:
+        self._finished = True
+        with open(self._path, "rb") as fh:
+            fh.seek(self._end)
+            while rest := fh.read(1 << 22):  # anything after the array's rows
+                self._hasher.feed(rest)
+        if self._side is not None:
+            self._hasher.feed(self._side)
+        self._hasher.complete()
+
+    def done(self) -> bool:
+        return self._hasher.done()
+
+    def result(self) -> str:
+        return self._hasher.result()
+
+
+def _npy_rows(path, arr, feed: _ReadsHashed | None = None):
     """``read(cols, rows)`` for a ``.npy`` array: the wanted columns of the rows as float64,
     channel-major (shape ``(len(cols), rows)``), read from the file piece by piece with
     ``numpy.fromfile`` (not through the memory map, whose pages would stay resident and count
     against the process's memory for the whole record); each column of a piece is copied
-    straight into its row of the block (one strided copy, no gathered temporary). A
-    Fortran-ordered array is read through the memory map."""
+    straight into its row of the block (one strided copy, no gathered temporary). Each piece
+    is handed to ``feed`` (the file's hash) as read. A Fortran-ordered array is read through
+    the memory map."""
     row_bytes = arr.dtype.itemsize * arr.shape[1]
     offset = getattr(arr, "offset", None)
     if not arr.flags.c_contiguous or offset is None:
@@ -119,6 +189,8 @@ def _npy_rows(path, arr):
                         f"the file ends after {lo + part.size // arr.shape[1]} of "
                         f"{arr.shape[0]} rows; it was truncated or is being written",
                         path=path)
+                if feed is not None:
+                    feed.piece(offset + lo * row_bytes, part)
                 part = part.reshape(n, arr.shape[1])
                 for j, c in enumerate(cols):
                     out[j, lo - start:lo - start + n] = part[:, c]
