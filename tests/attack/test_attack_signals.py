@@ -198,6 +198,15 @@ def _cached_results(cache: Path) -> int:
     return sum(1 for q in cache.rglob("*.npz") if not q.name.startswith("."))
 
 
+def _data_lines(path: Path) -> int:
+    """Data lines of a results table written so far (0 when there is none yet; the file is
+    replaced whole, never seen half-written)."""
+    try:
+        return max(0, path.read_bytes().count(b"\n") - 1)
+    except OSError:
+        return 0
+
+
 def _rows(path: Path) -> dict:
     """Capture file name to its verdict, from a results table."""
     import pyarrow.csv as pacsv
@@ -229,10 +238,15 @@ def test_signal_mid_batch_keeps_finished_rows_and_resumes(tmp_path, sig, jobs, f
             cache]
     proc = spawn(argv, cwd=tmp_path)
     # captures analysed (each leaves its cached result), then the signal: one process saves
-    # the rows of the first before it starts the second; a pool of two has handed back at
-    # least one of four finished captures
-    needed = 2 if jobs == 1 else 4
-    reached = wait_for(lambda: _cached_results(cache) >= needed, proc)
+    # the rows of the first before it starts the second. A pool of two: four finished and the
+    # rows of one in the results file (the parent may be slower to take a result than the
+    # workers are to finish the next ones on a two-core machine, so finished work alone does
+    # not say that rows were handed back)
+    if jobs == 1:
+        ready = lambda: _cached_results(cache) >= 2  # noqa: E731
+    else:
+        ready = lambda: _cached_results(cache) >= 4 and _data_lines(res) >= 1  # noqa: E731
+    reached = wait_for(ready, proc)
     if proc.poll() is None:
         os.kill(proc.pid, sig)
     run = finish(proc)
