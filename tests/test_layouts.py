@@ -308,7 +308,7 @@ def test_number_too_large_for_float64_is_refused_with_its_place(tmp_path, cell):
 
 # --------------------------------------------------------------------------- round trips
 
-LAYOUT_WRITERS = ("header", "beside", "names-values", "units-row", "trailing")
+LAYOUT_WRITERS = ("header", "beside", "names-values", "units-row", "trailing", "savetxt")
 
 
 @st.composite
@@ -350,6 +350,18 @@ def _write_layout(path, case):
         lines = ["x-axis,U1,U2", "second,Volt,Volt"]
         lines += [f"{ti:.9e},{x},{y}" for ti, x, y in zip(t, va, vb)]
         names = ("U1", "U2")
+    elif lay == "savetxt":
+        # numpy.savetxt(fh, np.column_stack([t, a, b]), delimiter=",", header=...): its
+        # default comments="# " marks every header line, and it writes "%.18e"
+        import io
+
+        buf = io.StringIO()
+        np.savetxt(buf, np.column_stack([t, a, b]), delimiter=",",
+                   header="exported by a bench script\ntime_s,va,vb")
+        lines = buf.getvalue().splitlines()
+        va = [ln.split(",")[1] for ln in lines[2:]]
+        vb = [ln.split(",")[2] for ln in lines[2:]]
+        names = ("va", "vb")
     else:
         lines = ["time_s,va,vb,"] + [f"{ti:.9e},{x},{y}," for ti, x, y in zip(t, va, vb)]
         names = ("va", "vb")
@@ -540,3 +552,34 @@ def test_utf16_without_a_byte_order_mark_needs_its_encoding(tmp_path):
     cap = load_capture(p, encoding="utf-16-le")
     ref = np.array([float(line.split(",")[1]) for line in text.splitlines()[1:]])
     np.testing.assert_array_equal(cap.samples[0], ref)
+
+
+# --------------------------------------------------------------------------- comment marks
+
+def test_numpy_savetxt_header_is_read_as_names(tmp_path):
+    # numpy.savetxt's documented default: comments="# " is put before the header (numpy
+    # docs, numpy.savetxt). The names are time_s, ia, va; the '#' is not part of a name
+    t = np.arange(2000) / FS
+    data = np.column_stack([t, _wave(10.0), _wave(325.0)])
+    p = tmp_path / "np.csv"
+    np.savetxt(p, data, delimiter=",", header="time_s,ia,va")
+    assert p.read_text().startswith("# time_s,ia,va\n")
+    from pqcheck.readers import open_capture
+
+    # the whole file, and block by block as a long file
+    for cap in (load_capture(p), open_capture(p, stream_over_bytes=0).load()):
+        assert cap.names == ("ia", "va")
+        assert cap.fs_hz == pytest.approx(FS, rel=1e-9)
+        rows = _cells(p)
+        np.testing.assert_array_equal(cap.samples[0], _col(rows, 1, start=1))
+        assert any("comment mark" in n for n in cap.provenance.settings["layout_notes"])
+
+
+def test_hash_alone_names_a_sample_number_column(tmp_path):
+    # '#' with no name after it is a column of its own (a sample number), not a comment mark
+    p = tmp_path / "n.csv"
+    p.write_text("#,time_s,ia\n" + "".join(f"{i},{i / FS:.9g},{v:.6g}\n"
+                                           for i, v in enumerate(_wave(10.0))))
+    cap = load_capture(p)
+    assert "ia" in cap.names and "time_s" not in cap.names
+    assert cap.fs_hz == pytest.approx(FS, rel=1e-6)

@@ -700,6 +700,24 @@ LAYOUTS = [
 
 # --------------------------------------------------------------------------- refiners
 
+_COMMENT_MARK = re.compile(r"^\s*#\s*(?=\S)")
+
+
+def comment_marked_header(plan: Plan, lines, path) -> None:
+    """A header line that starts with ``#`` and a name (``# time_s,ia,va``, as
+    ``numpy.savetxt`` writes its ``header`` by default): the ``#`` is a comment mark, not
+    part of the first name. A ``#`` alone (a sample-number column) stays a name."""
+    if plan.header_line is None or not plan.raw_names:
+        return
+    first = plan.raw_names[0]
+    m = _COMMENT_MARK.match(first)
+    if m is None:
+        return
+    plan.raw_names = [first[m.end():], *plan.raw_names[1:]]
+    plan.notes.append(f"header line {plan.header_line} starts with '#', read as a comment "
+                      "mark before the names (numpy.savetxt writes its header so)")
+
+
 def units_row(plan: Plan, lines, path) -> None:
     """A units row under the header (``x-axis,1,2`` then ``second,Volt,Volt``): the header
     is the line above it, the units come from it."""
@@ -739,7 +757,7 @@ def phantom_columns(plan: Plan, lines, path) -> None:
             plan.empty.append(j)
 
 
-REFINERS = [units_row, phantom_columns]
+REFINERS = [comment_marked_header, units_row, phantom_columns]
 """Adjustments applied to every plan, in order: ``f(plan, lines, path)``."""
 
 
