@@ -450,7 +450,8 @@ def test_extra_field_in_a_later_chunk_names_its_line(tmp_path, monkeypatch):
 
 def test_refused_chunk_is_read_by_pandas(tmp_path, monkeypatch):
     # reference: the pandas streaming path; a blank line and a quoted number in the middle
-    # (which the compiled parser refuses) give the same samples
+    # give the same samples (the blank line sends the whole file to pandas' reader: a chunk
+    # refused by the compiled parser on its own is tested with the parser threads below)
     path = _write(tmp_path / "odd.csv", 8.0)
     lines = path.read_bytes().split(b"\n")
     lines[40_000] = b""
@@ -685,3 +686,34 @@ def test_prefetch_thread_ends_when_the_consumer_stops_with_the_queue_full():
             t.join(timeout=2)
         assert not any(t.is_alive() for t in new)
     assert closed == ["pqcheck-parse", "pqcheck-parse"]  # closed on the producer's thread
+
+
+@pytest.mark.parametrize("threads", [1, 3, 8])
+def test_any_number_of_parser_threads_gives_the_same_samples_and_errors(tmp_path, monkeypatch,
+                                                                         threads):
+    # reference: the pandas streaming path. However many threads parse (one per CPU on a
+    # larger machine), the chunks come back in file order: a chunk in the middle that the
+    # compiled parser refuses (a quoted number) gives the same samples, and a bad cell later
+    # names its own line (a blank line would send the whole file to pandas)
+    monkeypatch.setattr(stream, "PARSE_THREADS", threads)
+    path = _write(tmp_path / "odd.csv", 8.0)
+    lines = path.read_bytes().split(b"\n")
+    head, _, tail = lines[60_000].partition(b",")
+    lines[60_000] = head + b',"' + tail.split(b",")[0] + b'",' + tail.split(b",")[1]
+    path.write_bytes(b"\n".join(lines))
+
+    def samples(compiled):
+        with monkeypatch.context() as m:
+            if not compiled:
+                m.setattr(stream, "_compiled_layout", lambda d: None)
+            return np.concatenate(list(open_capture(path, stream_over_bytes=1000)
+                                       .blocks(1 << 14)), axis=1)
+
+    assert samples(True).tobytes() == samples(False).tobytes()
+    bad = _write(tmp_path / "bad.csv", 8.0)
+    lines = bad.read_bytes().split(b"\n")
+    lines[70_001] = lines[70_001].replace(b",", b",abc", 1)  # line 70002 of the file
+    bad.write_bytes(b"\n".join(lines))
+    fast = _error(bad, monkeypatch, True)
+    assert fast == _error(bad, monkeypatch, False)
+    assert "bad.csv:70002: ia: cell 'abc" in fast

@@ -400,19 +400,38 @@ def _parse_job(buf, n: int, colmap, sep: str, dec: str):
     return table, lines
 
 
-_IN_FLIGHT = 4
-"""Chunks handed to the two parser threads at a time. With two, a thread that finished its
-chunk waited while the chunk before it was collected and the next one read: the workers
-were idle half the time (sampled with py-spy). With four each has one queued: 5-10 % less
-wall time at 10 minutes (benchmarks/README.md), for about 8 MB more text in memory."""
+PARSE_THREADS: int | None = None
+"""Parser threads of a streamed CSV; None: by the CPUs (:func:`_parse_threads`). Batch worker
+processes set 2 (their pool already uses every core)."""
+
+
+def _parse_threads() -> int:
+    """Parser threads: :data:`PARSE_THREADS`, else one per CPU this process may run on, two
+    at least (the SHA-256 and the analysis run beside them) and eight at most (the text is
+    read and handed out by one thread, the hash is one stream)."""
+    if PARSE_THREADS is not None:
+        return max(1, int(PARSE_THREADS))
+    try:
+        cpus = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # not on Linux
+        cpus = os.cpu_count() or 2
+    return max(2, min(cpus, 8))
+
+
+_QUEUED_PER_THREAD = 2
+"""Chunks in flight per parser thread. With one (two chunks for two threads), a thread that
+had finished its chunk waited while the chunk before it was collected and the next one read:
+the workers were idle half the time (sampled with py-spy). With two each has one queued:
+5-10 % less wall time at 10 minutes on two cores (benchmarks/README.md), for about 4 MB more
+text in memory per thread."""
 
 
 def _compiled_tables(spec: dict):
     """Tables (kept columns, rows) of the data rows in file order, parsed by the compiled
-    parser on two threads (it releases the GIL), at most ``_IN_FLIGHT`` chunks in flight; a
-    chunk it
-    refuses is parsed by pandas, with the lines before it counted for its messages. The
-    tables are column by column (each column's values contiguous), as the blocks are."""
+    parser on :func:`_parse_threads` threads (it releases the GIL), at most
+    ``_QUEUED_PER_THREAD`` chunks in flight per thread; a chunk it refuses is parsed by
+    pandas, with the lines before it counted for its messages. The tables are column by
+    column (each column's values contiguous), as the blocks are."""
     from collections import deque
     from concurrent.futures import ThreadPoolExecutor
 
@@ -423,11 +442,13 @@ def _compiled_tables(spec: dict):
     # the table of each block is assembled from them in one copy (_exact_rows)
     size = int(min(4 << 20, max(1 << 18, spec["rows"] * spec["row_bytes"] / 16)))
     source = _byte_chunks(path, d, size, spec.get("hasher"))
-    pool = ThreadPoolExecutor(max_workers=2, thread_name_prefix="pqcheck-parse")
+    threads = _parse_threads()
+    in_flight = _QUEUED_PER_THREAD * threads
+    pool = ThreadPoolExecutor(max_workers=threads, thread_name_prefix="pqcheck-parse")
     flight: deque = deque()
 
     def top_up():
-        while len(flight) < _IN_FLIGHT:
+        while len(flight) < in_flight:
             item = next(source, None)
             if item is None:
                 return

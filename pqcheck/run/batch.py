@@ -568,15 +568,18 @@ def _socket_path_fits() -> bool:
 
 def _worker_init():
     """Worker processes leave Ctrl-C to the parent, which saves the work done and stops them,
-    and run their FFTs on one thread (the pool already uses every core)."""
+    and run their FFTs on one thread and a long CSV's parser on two (the pool already uses
+    every core)."""
     import signal
 
     from .._process import keep_freed_memory
     from ..dsp import spectrum
+    from ..readers import stream
 
     keep_freed_memory()
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     spectrum.FFT_WORKERS = 1
+    stream.PARSE_THREADS = 2
 
 
 class DaskExecutor:
