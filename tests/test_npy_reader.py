@@ -209,3 +209,21 @@ def test_digest_after_an_abandoned_pass(tmp_path, monkeypatch):
     part.close()
     _all_blocks(stream, 1_000)
     assert stream.provenance.sha256 == _sha256_of(path, path.with_suffix(".json"))
+
+
+def test_unnamed_time_column_is_named_in_the_error(tmp_path):
+    # a .npy saved as np.column_stack([t, i, v]) with no side-car: no name says time and no
+    # rate is given; the message names the column that looks like one, and nothing is
+    # analysed on a guessed time base
+    t = np.arange(3000) / 8000
+    timed = tmp_path / "timed.npy"
+    np.save(timed, np.column_stack([t, np.sin(2 * np.pi * 50 * t)]))
+    with pytest.raises(CaptureFormatError,
+                       match=r"timed\.npy.*no sample rate.*column 'col1' increases in uniform "
+                             r"steps of 0\.000125 like a time column.*`time_column` \(col1\)"):
+        open_capture(timed)
+    plain = tmp_path / "plain.npy"
+    np.save(plain, np.column_stack([np.sin(2 * np.pi * 50 * t), np.cos(2 * np.pi * 50 * t)]))
+    with pytest.raises(CaptureFormatError, match=r"no sample rate; give `sample_rate_hz`$"):
+        open_capture(plain)
+    assert open_capture(timed, time_column="col1").fs_hz == pytest.approx(8000)

@@ -246,6 +246,21 @@ def _as_float(column, name, path):
             "store the samples as float columns", path=path, field=name) from None
 
 
+def _time_like_hint(read, names, n_rows) -> str:
+    """``"; column 'col1' increases in uniform steps ..."`` where the first column of the
+    first rows looks like a time base (finite, increasing in steps equal within 1 %), else
+    ``""``: a time column saved without a name is then named in the message."""
+    t = read([0], slice(0, min(n_rows, 4096)))[0]
+    step = np.diff(t)
+    if t.size < 3 or not np.all(np.isfinite(t)) or not np.all(step > 0):
+        return ""
+    med = float(np.median(step))
+    if np.any(np.abs(step - med) > 0.01 * med):
+        return ""
+    return (f"; column {names[0]!r} increases in uniform steps of {med:.6g} like a time "
+            f"column: if it is time in seconds, give `time_column` ({names[0]})")
+
+
 def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha256, reader):
     t_idx = None
     if time_column is not None:
@@ -266,8 +281,8 @@ def _open_table(path, names, units, scales, read, n_rows, fs, time_column, sha25
         settings["time_base"] = "column"
     elif fs is None:
         raise CaptureFormatError(
-            "no time column and no sample rate; give `sample_rate_hz`", path=path,
-            field="sample rate")
+            "no time column and no sample rate; give `sample_rate_hz`"
+            + _time_like_hint(read, names, n_rows), path=path, field="sample rate")
     else:
         settings["time_base"] = "given"
     fs = float(fs)
