@@ -412,12 +412,18 @@ def _error(path, monkeypatch, compiled: bool):
     return str(info.value)
 
 
+def _bad_cell_file(path, seconds: float, line: int):
+    """A capture of ``seconds`` with ``abc`` before the first number of (1-based) ``line``."""
+    _write(path, seconds)
+    lines = path.read_bytes().split(b"\n")
+    lines[line - 1] = lines[line - 1].replace(b",", b",abc", 1)
+    path.write_bytes(b"\n".join(lines))
+    return path
+
+
 def test_bad_cell_in_the_middle_names_its_line(tmp_path, monkeypatch):
     # reference: the pandas streaming path's error, naming the line of the bad cell
-    path = _write(tmp_path / "bad.csv", 31.0)
-    lines = path.read_bytes().split(b"\n")
-    lines[299_999] = lines[299_999].replace(b",", b",abc", 1)  # line 300000 of the file
-    path.write_bytes(b"\n".join(lines))
+    path = _bad_cell_file(tmp_path / "bad.csv", 31.0, 300_000)
     fast = _error(path, monkeypatch, True)
     assert fast == _error(path, monkeypatch, False)
     assert "bad.csv:300000: ia: cell 'abc" in fast
@@ -452,22 +458,30 @@ def test_refused_chunk_is_read_by_pandas(tmp_path, monkeypatch):
     # reference: the pandas streaming path; a blank line and a quoted number in the middle
     # give the same samples (the blank line sends the whole file to pandas' reader: a chunk
     # refused by the compiled parser on its own is tested with the parser threads below)
-    path = _write(tmp_path / "odd.csv", 8.0)
+    path = _odd_file(tmp_path / "odd.csv", blank_line=True)
+    assert _samples(path, monkeypatch, True).tobytes() == \
+        _samples(path, monkeypatch, False).tobytes()
+
+
+def _odd_file(path, blank_line: bool):
+    """An 8 s capture with a quoted number on line 60001 (and a blank line 40001)."""
+    _write(path, 8.0)
     lines = path.read_bytes().split(b"\n")
-    lines[40_000] = b""
+    if blank_line:
+        lines[40_000] = b""
     head, _, tail = lines[60_000].partition(b",")
     lines[60_000] = head + b',"' + tail.split(b",")[0] + b'",' + tail.split(b",")[1]
     path.write_bytes(b"\n".join(lines))
+    return path
 
-    def samples(compiled):
-        with monkeypatch.context() as m:
-            if not compiled:
-                m.setattr(stream, "_compiled_layout", lambda d: None)
-            return np.concatenate(list(open_capture(path, stream_over_bytes=1000)
-                                       .blocks(1 << 14)), axis=1)
 
-    a, b = samples(True), samples(False)
-    assert a.tobytes() == b.tobytes()
+def _samples(path, monkeypatch, compiled: bool):
+    """Every sample of the streamed file, by the compiled parser or the pandas path."""
+    with monkeypatch.context() as m:
+        if not compiled:
+            m.setattr(stream, "_compiled_layout", lambda d: None)
+        return np.concatenate(list(open_capture(path, stream_over_bytes=1000)
+                                   .blocks(1 << 14)), axis=1)
 
 
 # -- the blocks themselves, in the layouts whose columns are taken, scaled or checked ------
@@ -696,24 +710,10 @@ def test_any_number_of_parser_threads_gives_the_same_samples_and_errors(tmp_path
     # compiled parser refuses (a quoted number) gives the same samples, and a bad cell later
     # names its own line (a blank line would send the whole file to pandas)
     monkeypatch.setattr(stream, "PARSE_THREADS", threads)
-    path = _write(tmp_path / "odd.csv", 8.0)
-    lines = path.read_bytes().split(b"\n")
-    head, _, tail = lines[60_000].partition(b",")
-    lines[60_000] = head + b',"' + tail.split(b",")[0] + b'",' + tail.split(b",")[1]
-    path.write_bytes(b"\n".join(lines))
-
-    def samples(compiled):
-        with monkeypatch.context() as m:
-            if not compiled:
-                m.setattr(stream, "_compiled_layout", lambda d: None)
-            return np.concatenate(list(open_capture(path, stream_over_bytes=1000)
-                                       .blocks(1 << 14)), axis=1)
-
-    assert samples(True).tobytes() == samples(False).tobytes()
-    bad = _write(tmp_path / "bad.csv", 8.0)
-    lines = bad.read_bytes().split(b"\n")
-    lines[70_001] = lines[70_001].replace(b",", b",abc", 1)  # line 70002 of the file
-    bad.write_bytes(b"\n".join(lines))
+    path = _odd_file(tmp_path / "odd.csv", blank_line=False)
+    assert _samples(path, monkeypatch, True).tobytes() == \
+        _samples(path, monkeypatch, False).tobytes()
+    bad = _bad_cell_file(tmp_path / "bad.csv", 8.0, 70_002)
     fast = _error(bad, monkeypatch, True)
     assert fast == _error(bad, monkeypatch, False)
     assert "bad.csv:70002: ia: cell 'abc" in fast
