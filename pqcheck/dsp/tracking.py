@@ -194,6 +194,7 @@ def window_boundaries(
     # demodulation lets in (harmonics, the negative-frequency image) after a frequency step
     head = tail = slice(0, mid.size)
     if not weak and mid.size >= 3:
+        spread = np.inf
         for _ in range(PASSES):  # each pass leaves about the previous model's error squared
             mid2, model, raw2, bad2 = _second_pass(x, missing, mid, count, amp, local0,
                                                    compiled=compiled)
@@ -203,8 +204,9 @@ def window_boundaries(
             segments = _segments(mid, raw_count, bad2)
             count = np.concatenate([_smooth_counts(raw_count[sl]) for sl in segments])
             head, tail = segments[0], segments[-1]
-            if np.ptp(raw2 - model) < CONVERGED:
-                break  # the model was already right: a further pass changes nothing
+            last, spread = spread, float(np.ptp(raw2 - model))
+            if spread < CONVERGED or spread > STALLED * last:
+                break  # the model was right, or its error is down to the reference's noise
     # Cycle count at the start edge: a straight line through the first cycles' counts,
     # extended half a cycle back (the same at the end of the record); never across a step.
     count_start, _ = _edge_line(mid[head], raw_count[head], local0, first=True)
@@ -427,6 +429,11 @@ PASSES = 3
 
 CONVERGED = 1e-6
 """A pass whose corrections all lie within this (cycles) ends the refinement."""
+
+STALLED = 0.5
+"""A pass whose corrections spread more than this fraction of the previous pass's also ends
+the refinement: the model's error no longer shrinks (it is down to the noise and harmonics of
+the reference), so a further pass would change the boundaries by noise alone."""
 
 MAX_CORRECTION = 0.1
 """Largest phase correction (cycles) a pass may make; more means the reference holds no
