@@ -893,18 +893,22 @@ EXPORT int64_t pq_parse(const uint8_t *buf, int64_t n, int sep, int dec, const i
 /* 1 when every one of the n values is finite (neither NaN nor infinite), else 0. */
 EXPORT int pq_all_finite(const double *x, int64_t n)
 {
-    /* finite: the exponent bits are not all ones (NaN and infinities have them all set) */
+    /* x * 0 is +-0 (bits 0 or the sign bit alone) where x is finite and NaN (exponent bits
+     * all ones) where it is not: the OR of those bits over a piece has exponent bits set
+     * exactly when some value is NaN or infinite. A multiply and an OR vectorise with SSE2
+     * (a 64-bit compare, the earlier form, does not: it ran at 0.7 ns a value). */
     const uint64_t expo = 0x7FF0000000000000ULL;
     const int64_t step = 1024;
     for (int64_t lo = 0; lo < n; lo += step) {
         int64_t hi = lo + step < n ? lo + step : n;
-        uint64_t bad = 0;
+        uint64_t acc = 0;
         for (int64_t i = lo; i < hi; i++) {
+            double z = x[i] * 0.0;
             uint64_t b;
-            memcpy(&b, x + i, 8);
-            bad |= ((b & expo) == expo);
+            memcpy(&b, &z, 8);
+            acc |= b;
         }
-        if (bad)
+        if ((acc & expo) != 0)
             return 0;
     }
     return 1;

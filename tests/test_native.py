@@ -322,6 +322,28 @@ def test_native_all_finite_equals_numpy(bad):
 
 
 @needs_native
+def test_native_all_finite_at_the_edges_of_float64():
+    # reference: numpy.isfinite(...).all(), over IEEE 754 binary64's edge values and random
+    # bit patterns (NaNs with any payload and sign, signalling ones included): the extremes,
+    # subnormals and signed zeros are finite; every NaN and infinity is not
+    edges = np.array([0.0, -0.0, 5e-324, -5e-324, 2.2250738585072014e-308,
+                      1.7976931348623157e308, -1.7976931348623157e308, 1e300, -1e-300])
+    assert _native.all_finite(np.tile(edges, 300)) is True
+    rng = np.random.default_rng(11)
+    for n in (1, 2, 3, 1023, 1024, 1025, 2049):
+        bits = rng.integers(0, 2**63, n, dtype=np.uint64) | (
+            rng.integers(0, 2, n, dtype=np.uint64) << np.uint64(63))
+        y = bits.view(np.float64)
+        assert _native.all_finite(y) is bool(np.isfinite(y).all())
+        z = np.tile(edges, n // edges.size + 1)[:n].copy()
+        for special in (0x7FF0000000000001, 0x7FF8000000000000, 0xFFF0000000000000,
+                        0xFFFFFFFFFFFFFFFF):
+            w = z.copy()
+            w.view(np.uint64)[n // 2] = special
+            assert _native.all_finite(w) is bool(np.isfinite(w).all()) is False
+
+
+@needs_native
 def test_fused_window_statistics_equal_numpy_in_the_analysis(monkeypatch):
     # reference: the NumPy form (_time_stats and _peaks), selected when the C statistics are
     # not offered; power pairs, line-to-line voltages and the neutral current all compared
