@@ -583,3 +583,21 @@ def test_hash_alone_names_a_sample_number_column(tmp_path):
     cap = load_capture(p)
     assert "ia" in cap.names and "time_s" not in cap.names
     assert cap.fs_hz == pytest.approx(FS, rel=1e-6)
+
+
+def test_numpy_savetxt_default_space_delimiter_is_refused_with_the_fix(tmp_path):
+    # numpy.savetxt's documented defaults: delimiter=" " and comments="# " (numpy docs).
+    # Spaces between values are not read (a thousands separator would split a number in
+    # two), so nothing is analysed; the message says how to write the file instead
+    t = np.arange(2000) / FS
+    p = tmp_path / "spaced.txt"
+    np.savetxt(p, np.column_stack([t, _wave(10.0)]), header="time_s ia")
+    with pytest.raises(CaptureFormatError,
+                       match=r"spaced\.txt:.*numbers separated by spaces \(numpy\.savetxt's "
+                             r"default delimiter\): write the file with delimiter=','"):
+        load_capture(p)
+    q = tmp_path / "words.txt"
+    q.write_text("a log\nstarted at noon\nnothing else\n")
+    with pytest.raises(CaptureFormatError) as info:
+        load_capture(q)
+    assert "numpy.savetxt" not in str(info.value)

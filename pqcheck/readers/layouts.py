@@ -527,15 +527,20 @@ def _single_column(lines, path) -> Plan:
             lines[startl - 1])) and lines[startl - 1].strip():
         startl -= 1
     if startl == end:
-        shown = lines[end - 1].strip() if end else ""
-        shown = shown if len(shown) <= 60 else shown[:57] + "..."
+        last = lines[end - 1].strip() if end else ""
+        shown = last if len(last) <= 60 else last[:57] + "..."
+        words = last.split()
+        spaced = len(words) >= 2 and all(_NUM_RE.match(w) for w in words)
         raise CaptureFormatError(
             "no rows of numbers found in the first lines"
             + (f" (this one reads {shown!r})" if shown else "")
             + "; a capture needs a header line and data rows of plain numbers (12.5, "
             "-3e-4, or 0,25 with ; or tab between values) separated by commas, semicolons "
             "or tabs: dates, clock times, thousands separators and spaces between values "
-            "are not read", path=path, line=max(end, 1))
+            "are not read"
+            + ("; these rows are numbers separated by spaces (numpy.savetxt's default "
+               "delimiter): write the file with delimiter=',' or a tab" if spaced else ""),
+            path=path, line=max(end, 1))
     decimal = "," if any("," in line for line in lines[startl:end]) else "."
     header = startl - 1 if startl > 0 else None
     return Plan("header", None, decimal, None if header is None else header + 1, startl + 1, 1,
