@@ -242,19 +242,22 @@ def _shared_state() -> dict:
     from importlib import resources
 
     from pqcheck.dsp import spectrum
+    from pqcheck.readers import stream
 
     tables = {}
     for f in resources.files("pqcheck.limit_tables").iterdir():
         if f.name.endswith(".toml"):
             tables[f.name] = hashlib.sha256(f.read_bytes()).hexdigest()
-    return {"FFT_WORKERS": spectrum.FFT_WORKERS, "tables": tables}
+    return {"FFT_WORKERS": spectrum.FFT_WORKERS, "PARSE_THREADS": stream.PARSE_THREADS,
+            "tables": tables}
 
 
 @pytest.fixture(autouse=True, scope="session")
 def _hermetic_session(tmp_path_factory):
     """Fail the run if the tests leave files outside pytest's temporary folders (the run's
     system temporary folder, the user's cache) or change shared state (bundled tables,
-    module-level settings such as ``dsp.spectrum.FFT_WORKERS``)."""
+    module-level settings such as ``dsp.spectrum.FFT_WORKERS`` or
+    ``readers.stream.PARSE_THREADS``)."""
     before, state = _pqcheck_leftovers(), _shared_state()
     try:
         import dask
