@@ -227,3 +227,37 @@ def test_unnamed_time_column_is_named_in_the_error(tmp_path):
     with pytest.raises(CaptureFormatError, match=r"no sample rate; give `sample_rate_hz`$"):
         open_capture(plain)
     assert open_capture(timed, time_column="col1").fs_hz == pytest.approx(8000)
+
+
+def test_side_car_edited_during_the_analysis_is_an_error_and_not_cached(tmp_path, monkeypatch):
+    # a user corrects the side-car's sample rate while a run reads the .npy: that run stops
+    # with an error (what it read no longer matches the files), nothing of it is cached, and
+    # the next run analyses at the corrected rate (reference: the rms of the closed form
+    # 10 sin, whichever rate; the rate the side-car states)
+    from pqcheck.run.cache import Cache
+    from pqcheck.run.check import analyze_file
+
+    t = np.arange(40_000) / 10_000
+    path = tmp_path / "cap.npy"
+    np.save(path, np.column_stack([10 * np.sin(2 * np.pi * 50 * t),
+                                   230 * np.sin(2 * np.pi * 50 * t)]))
+    side = path.with_suffix(".json")
+    side.write_text(json.dumps({"columns": ["ia", "va"], "sample_rate_hz": 20_000}))
+    real = binary._ReadsHashed.piece
+    edited = []
+
+    def piece(self, at, part):
+        if not edited:
+            side.write_text(json.dumps({"columns": ["ia", "va"], "sample_rate_hz": 10_000}))
+            edited.append(1)
+        return real(self, at, part)
+
+    monkeypatch.setattr(binary._ReadsHashed, "piece", piece)
+    cache = Cache(tmp_path / "cache")
+    with pytest.raises(CaptureFormatError, match=r"cap\.npy: .*changed while"):
+        analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    monkeypatch.setattr(binary._ReadsHashed, "piece", real)
+    _, res = analyze_file(path, cache=cache, current=["ia"], voltage=["va"], nominal_hz=50)
+    assert res.fs_hz == 10_000
+    assert res.sha256 == _sha256_of(path, side)
+    assert res.channels[0].fundamental_rms == pytest.approx(10 / np.sqrt(2), rel=1e-6)
