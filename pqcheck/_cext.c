@@ -46,7 +46,11 @@ static void window_rows(double s, double ln, double kap, int64_t m_pts, int64_t 
         if (kap != 0.0)
             pos += ln * kap * (u * (1.0 - u));
         double i0 = floor(pos);
-        int64_t p = (int64_t)nearbyint((pos - i0) * (double)phases); /* half to even */
+        /* (pos - i0) * phases rounded half to even, as nearbyint does in the default rounding
+         * mode, without its call (it saves and restores the floating-point environment):
+         * adding and taking away 2^52 leaves the nearest integer of a value in [0, 2^52) */
+        double v = (pos - i0) * (double)phases;
+        int64_t p = (int64_t)((v + 0x1p52) - 0x1p52);
         bases[m] = (int64_t)i0 - (half - 1);
         rows[m] = table + p * taps;
     }

@@ -69,6 +69,35 @@ def test_native_resampling_equals_python_definition():
 
 
 @needs_native
+def test_native_resampling_rounds_half_phases_to_even_as_numpy_rint():
+    # points whose fractional position lies exactly half-way between two tabulated phases
+    # take the even one, as numpy.rint does in the Python definition (the C loop rounds
+    # without calling nearbyint); positions p + (2k + 1) / (2 PHASES), exact in binary
+    x, _, _, _, kernel, _ = _windows(np.random.default_rng(3), c_n=1, n_win=1)
+    m = 64
+    k = np.arange(m)
+    half_way = (2 * (k * 97 % spectrum.PHASES) + 1) / (2 * spectrum.PHASES)
+    fast = np.empty((1, 1, m))
+    for point in range(0, m, 8):  # one window per point: start at the half-way position
+        start = np.array([400.0 + point + half_way[point]])
+        out = np.empty((1, 1, 1))
+        _native.resample_into(x, start, np.array([1.0]), np.zeros(1), kernel.table,
+                              kernel.half, spectrum.PHASES, out)
+        ref = np.empty((1, 1, 1))
+        _compiled._resample_py(x, start, np.array([1.0]), np.zeros(1), kernel.table,
+                               kernel.half, spectrum.PHASES, ref)
+        fast[0, 0, point] = out[0, 0, 0]
+        # the reference's row: rint of the half-way phase, the even neighbour
+        p = int(np.rint(half_way[point] * spectrum.PHASES))
+        assert p % 2 == 0
+        assert out[0, 0, 0] == pytest.approx(ref[0, 0, 0], rel=1e-13, abs=1e-13)
+        row = kernel.table[p]
+        i0 = 400 + point
+        direct = float(np.dot(x[0, i0 - (kernel.half - 1):i0 + kernel.half + 1], row))
+        assert out[0, 0, 0] == pytest.approx(direct, rel=1e-13, abs=1e-13)
+
+
+@needs_native
 def test_native_resampling_with_taps_not_a_multiple_of_eight():
     rng = np.random.default_rng(2)
     x = rng.normal(size=(2, 5_000))
