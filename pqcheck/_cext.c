@@ -35,36 +35,52 @@
 /* Band-limited resampling (pqcheck.dsp._compiled._resample_py)                          */
 /* ------------------------------------------------------------------------------------ */
 
-/* Positions of the points of one window: base sample of the kernel and kernel row. */
-static void window_rows(double s, double ln, double kap, int64_t m_pts, int64_t half,
-                        int64_t phases, const double *table, int64_t taps, int64_t *bases,
-                        const double **rows)
+/* Points m0 .. m1 - 1 of one window: the base sample of each point's kernel, and its
+ * weights (taps each, into wts) interpolated linearly between the two table rows either
+ * side of its fractional position: w = r0 + a (r1 - r0), a the position's fraction of the
+ * way from row p to row p + 1 (phases a power of two: (pos - i0) * phases is exact). */
+static inline __attribute__((always_inline)) void
+tile_weights(double s, double ln, double kap, int64_t m_pts, int64_t m0,
+                         int64_t m1, int64_t half, int64_t phases,
+                         const double *restrict table, int64_t taps, int64_t *restrict bases,
+                         double *restrict wts)
 {
-    for (int64_t m = 0; m < m_pts; m++) {
+    for (int64_t m = m0; m < m1; m++) {
         double u = (double)m / (double)m_pts;
         double pos = s + ln * u;
         if (kap != 0.0)
             pos += ln * kap * (u * (1.0 - u));
         double i0 = floor(pos);
-        /* (pos - i0) * phases rounded half to even, as nearbyint does in the default rounding
-         * mode, without its call (it saves and restores the floating-point environment):
-         * adding and taking away 2^52 leaves the nearest integer of a value in [0, 2^52) */
         double v = (pos - i0) * (double)phases;
-        int64_t p = (int64_t)((v + 0x1p52) - 0x1p52);
-        bases[m] = (int64_t)i0 - (half - 1);
-        rows[m] = table + p * taps;
+        double fp = floor(v);
+        double a = v - fp;
+        const double *restrict r0 = table + (int64_t)fp * taps;
+        const double *restrict r1 = r0 + taps;
+        double *restrict w = wts + (m - m0) * taps;
+        bases[m - m0] = (int64_t)i0 - (half - 1);
+        for (int64_t t = 0; t < taps; t++)
+            w[t] = r0[t] + a * (r1[t] - r0[t]);
     }
 }
 
-/* Kernel rows of successive points lie far apart in the table (the phase advances by a
- * fraction of a sample per point), so the hardware does not foresee them: the rows of a
- * tile of points are all asked for before the tile is computed. */
-static inline void prefetch_row(const double *row, int64_t taps)
+static void tile_weights_portable(double s, double ln, double kap, int64_t m_pts, int64_t m0,
+                                  int64_t m1, int64_t half, int64_t phases,
+                                  const double *table, int64_t taps, int64_t *bases,
+                                  double *wts)
 {
-    for (int64_t t = 0; t < taps; t += 8) /* one 64-byte line per 8 taps */
-        __builtin_prefetch(row + t, 0, 3);
-    __builtin_prefetch(row + taps - 1, 0, 3); /* the row need not start on a line */
+    tile_weights(s, ln, kap, m_pts, m0, m1, half, phases, table, taps, bases, wts);
 }
+
+#if PQ_X86
+/* The same, compiled for AVX2 (elementwise products and sums: the same bits). */
+__attribute__((target("avx2"))) static void
+tile_weights_avx2(double s, double ln, double kap, int64_t m_pts, int64_t m0, int64_t m1,
+                  int64_t half, int64_t phases, const double *table, int64_t taps,
+                  int64_t *bases, double *wts)
+{
+    tile_weights(s, ln, kap, m_pts, m0, m1, half, phases, table, taps, bases, wts);
+}
+#endif
 
 /* Dot product of taps samples and weights (taps a multiple of 8), in eight running lanes
  * summed as ((l0 + l4) + (l1 + l5)) + ((l2 + l6) + (l3 + l7)): the order of the AVX2 form. */
@@ -85,25 +101,25 @@ static inline double dot8_portable(const double *x, const double *w, int64_t tap
     return (s0 + s1) + (s2 + s3);
 }
 
-static void resample_portable(const double *x, int64_t c_n, int64_t n, int64_t n_win,
-                              int64_t m_pts, int64_t taps, double *out,
-                              const int64_t *bases, const double **rows, int64_t w)
+/* One tile of points (weights wts, bases) of window w, every channel. */
+static void tile_portable(const double *x, int64_t c_n, int64_t n, int64_t n_win,
+                          int64_t m_pts, int64_t m0, int64_t m1, int64_t taps, double *out,
+                          const int64_t *bases, const double *wts, int64_t w)
 {
     for (int64_t c = 0; c < c_n; c++) {
         const double *xc = x + c * n;
         double *oc = out + (c * n_win + w) * m_pts;
-        if (taps % 8 == 0) {
-            for (int64_t m = 0; m < m_pts; m++)
-                oc[m] = dot8_portable(xc + bases[m], rows[m], taps);
-        } else {
-            for (int64_t m = 0; m < m_pts; m++) {
-                const double *xp = xc + bases[m];
-                const double *wp = rows[m];
-                double acc = 0.0;
-                for (int64_t t = 0; t < taps; t++)
-                    acc += xp[t] * wp[t];
-                oc[m] = acc;
+        for (int64_t m = m0; m < m1; m++) {
+            const double *xp = xc + bases[m - m0];
+            const double *wp = wts + (m - m0) * taps;
+            if (taps % 8 == 0) {
+                oc[m] = dot8_portable(xp, wp, taps);
+                continue;
             }
+            double acc = 0.0;
+            for (int64_t t = 0; t < taps; t++)
+                acc += xp[t] * wp[t];
+            oc[m] = acc;
         }
     }
 }
@@ -133,43 +149,32 @@ __attribute__((target("avx2"))) static inline __m256d dot8_lanes(const double *x
     return _mm256_add_pd(a, b);
 }
 
-/* Points in tiles of PQ_TILE, channels inside a tile, points inside a channel. The channels
- * of a block lie a power of two apart in memory (as do the rows of out), so a loop over the
- * channels at each point touched a dozen streams that share the same cache sets; inside a
- * tile each channel is one short contiguous run, and the tile's kernel rows (PQ_TILE x taps
- * doubles) stay in L1 for every channel. */
-#ifndef PQ_TILE
-#define PQ_TILE 64
-#endif
+/* tile_portable with AVX2 (taps a multiple of 8): the same products and sums in the same
+ * order, so the same bits. Each channel is one short contiguous run inside a tile, and the
+ * tile's weights stay in L1 for every channel. */
 __attribute__((target("avx2"))) static void
-resample_avx2(const double *x, int64_t c_n, int64_t n, int64_t n_win, int64_t m_pts,
-              int64_t taps, double *out, const int64_t *bases, const double **rows, int64_t w)
+tile_avx2(const double *x, int64_t c_n, int64_t n, int64_t n_win, int64_t m_pts, int64_t m0,
+          int64_t m1, int64_t taps, double *out, const int64_t *bases, const double *wts,
+          int64_t w)
 {
-    double *o0 = out + w * m_pts;
-    const int64_t ostride = n_win * m_pts;
-    for (int64_t m0 = 0; m0 < m_pts; m0 += PQ_TILE) {
-        const int64_t m1 = m0 + PQ_TILE < m_pts ? m0 + PQ_TILE : m_pts;
-        for (int64_t m = m0; m < m1; m++) /* the tile's rows, read once from memory */
-            prefetch_row(rows[m], taps);
-        for (int64_t c = 0; c < c_n; c++) {
-            const double *xc = x + c * n;
-            double *oc = o0 + c * ostride;
-            int64_t m = m0;
-            for (; m + 4 <= m1; m += 4) { /* four points, their sums in one vector */
-                __m256d s[4];
-                for (int k = 0; k < 4; k++)
-                    s[k] = dot8_lanes(xc + bases[m + k], rows[m + k], taps);
-                /* hadd: (a0+a1, b0+b1, a2+a3, b2+b3); then the halves added: the order of
-                 * hsum_ordered for each point */
-                __m256d h01 = _mm256_hadd_pd(s[0], s[1]);
-                __m256d h23 = _mm256_hadd_pd(s[2], s[3]);
-                __m256d lo = _mm256_permute2f128_pd(h01, h23, 0x20);
-                __m256d hi = _mm256_permute2f128_pd(h01, h23, 0x31);
-                _mm256_storeu_pd(oc + m, _mm256_add_pd(lo, hi));
-            }
-            for (; m < m1; m++)
-                oc[m] = hsum_ordered(dot8_lanes(xc + bases[m], rows[m], taps));
+    for (int64_t c = 0; c < c_n; c++) {
+        const double *xc = x + c * n;
+        double *oc = out + (c * n_win + w) * m_pts;
+        int64_t m = m0;
+        for (; m + 4 <= m1; m += 4) { /* four points, their sums in one vector */
+            __m256d s[4];
+            for (int k = 0; k < 4; k++)
+                s[k] = dot8_lanes(xc + bases[m + k - m0], wts + (m + k - m0) * taps, taps);
+            /* hadd: (a0+a1, b0+b1, a2+a3, b2+b3); then the halves added: the order of
+             * hsum_ordered for each point */
+            __m256d h01 = _mm256_hadd_pd(s[0], s[1]);
+            __m256d h23 = _mm256_hadd_pd(s[2], s[3]);
+            __m256d lo = _mm256_permute2f128_pd(h01, h23, 0x20);
+            __m256d hi = _mm256_permute2f128_pd(h01, h23, 0x31);
+            _mm256_storeu_pd(oc + m, _mm256_add_pd(lo, hi));
         }
+        for (; m < m1; m++)
+            oc[m] = hsum_ordered(dot8_lanes(xc + bases[m - m0], wts + (m - m0) * taps, taps));
     }
 }
 #endif
@@ -185,17 +190,22 @@ EXPORT int pq_has_avx2(void)
 }
 
 /* out (c_n, n_win, m_pts) <- band-limited values of x (c_n, n) at the points of each
- * window. Returns 0, or -1 when out of memory. The caller checks the bounds. */
+ * window, table (phases + 1, taps) the kernel's rows. Points in tiles of a few dozen (their
+ * weights, tile x taps doubles, about 32 KB), channels inside a tile, points inside a
+ * channel. Returns 0, or -1 when out of memory. The caller checks the bounds. */
 EXPORT int pq_resample(const double *x, int64_t c_n, int64_t n, const double *starts,
                        const double *lengths, const double *warp, int64_t n_win,
                        const double *table, int64_t taps, int64_t half, int64_t phases,
                        double *out, int64_t m_pts, int portable)
 {
-    int64_t *bases = malloc(sizeof(int64_t) * (size_t)(m_pts > 0 ? m_pts : 1));
-    const double **rows = malloc(sizeof(double *) * (size_t)(m_pts > 0 ? m_pts : 1));
-    if (!bases || !rows) {
+    int64_t tile = (4096 / (taps > 0 ? taps : 1)) & ~(int64_t)3;
+    tile = tile < 4 ? 4 : (tile > 64 ? 64 : tile);
+    int64_t *bases = malloc(sizeof(int64_t) * (size_t)tile);
+    /* on whole cache lines: a row of weights (taps a multiple of 8) is whole lines */
+    double *wts = aligned_alloc(64, sizeof(double) * (size_t)(tile * (taps > 0 ? (taps + 7) / 8 * 8 : 8)));
+    if (!bases || !wts) {
         free(bases);
-        free(rows);
+        free(wts);
         return -1;
     }
 #if PQ_X86
@@ -205,18 +215,23 @@ EXPORT int pq_resample(const double *x, int64_t c_n, int64_t n, const double *st
     (void)portable;
 #endif
     for (int64_t w = 0; w < n_win; w++) {
-        window_rows(starts[w], lengths[w], warp[w], m_pts, half, phases, table, taps, bases,
-                    rows);
+        for (int64_t m0 = 0; m0 < m_pts; m0 += tile) {
+            const int64_t m1 = m0 + tile < m_pts ? m0 + tile : m_pts;
 #if PQ_X86
-        if (vec) {
-            resample_avx2(x, c_n, n, n_win, m_pts, taps, out, bases, rows, w);
-            continue;
-        }
+            if (vec) {
+                tile_weights_avx2(starts[w], lengths[w], warp[w], m_pts, m0, m1, half, phases,
+                                  table, taps, bases, wts);
+                tile_avx2(x, c_n, n, n_win, m_pts, m0, m1, taps, out, bases, wts, w);
+                continue;
+            }
 #endif
-        resample_portable(x, c_n, n, n_win, m_pts, taps, out, bases, rows, w);
+            tile_weights_portable(starts[w], lengths[w], warp[w], m_pts, m0, m1, half, phases,
+                                  table, taps, bases, wts);
+            tile_portable(x, c_n, n, n_win, m_pts, m0, m1, taps, out, bases, wts, w);
+        }
     }
     free(bases);
-    free(rows);
+    free(wts);
     return 0;
 }
 
