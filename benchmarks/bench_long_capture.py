@@ -8,6 +8,7 @@ Run on demand (never part of the unit tests):
     python benchmarks/bench_long_capture.py --repeat 5 --durations 60
     python benchmarks/bench_long_capture.py --digits full  # values at 17 significant digits
     python benchmarks/bench_long_capture.py --digits savetxt  # numpy.savetxt's default %.18e
+    python benchmarks/bench_long_capture.py --no-time-column  # six channels, rate given
 
 What is measured, each in a fresh process, interleaved over the repetitions, medians reported:
 
@@ -56,13 +57,15 @@ the resampling is the identity)."""
 EXPECTED_THD = 100 * np.sqrt(0.2**2 + 0.1**2)
 
 
-def generate(path: Path, seconds: float, full: bool = False, savetxt: bool = False) -> None:
+def generate(path: Path, seconds: float, full: bool = False, savetxt: bool = False,
+             time_column: bool = True) -> None:
     """Write a 7-column three-phase capture (time, ia, ib, ic, va, vb, vc): rounded as a
     scope prints (3 and 2 decimals), or with ``full`` every value at full precision (the
     shortest text that reads back as the same float64: up to 17 significant digits, as a
     simulator or ``pandas.to_csv`` writes them), or with ``savetxt`` as ``numpy.savetxt``
     writes by default (``%.18e``: 19 significant digits and an exponent, 25 bytes a number)
-    under a ``time_s,ia,...`` header."""
+    under a ``time_s,ia,...`` header. Without ``time_column`` the six channels alone (the
+    sample rate is then given to each reader)."""
     import pyarrow as pa
     import pyarrow.csv as pc
 
@@ -72,15 +75,16 @@ def generate(path: Path, seconds: float, full: bool = False, savetxt: bool = Fal
     if savetxt:
         with open(path, "w") as fh:
             for lo in range(0, n_total, block):
-                cols = _signals(lo, min(block, n_total - lo), rng, full=True)
+                cols = _signals(lo, min(block, n_total - lo), rng, full=True,
+                                time_column=time_column)
+                head = "time_s,ia,ib,ic,va,vb,vc" if time_column else "ia,ib,ic,va,vb,vc"
                 np.savetxt(fh, np.column_stack([cols[k] for k in cols]), delimiter=",",
-                           header="time_s,ia,ib,ic,va,vb,vc" if lo == 0 else "",
-                           comments="")
+                           header=head if lo == 0 else "", comments="")
         return
     with pa.OSFile(str(path), "wb") as sink:
         writer = None
         for lo in range(0, n_total, block):
-            table = pa.table(_signals(lo, min(block, n_total - lo), rng, full))
+            table = pa.table(_signals(lo, min(block, n_total - lo), rng, full, time_column))
             if writer is None:
                 writer = pc.CSVWriter(sink, table.schema,
                                       write_options=pc.WriteOptions(quoting_style="none"))
@@ -88,10 +92,11 @@ def generate(path: Path, seconds: float, full: bool = False, savetxt: bool = Fal
         writer.close()
 
 
-def _signals(lo: int, n: int, rng, full: bool) -> dict:
-    """Samples ``lo`` to ``lo + n`` of the seven columns, by name (rounded unless ``full``)."""
+def _signals(lo: int, n: int, rng, full: bool, time_column: bool = True) -> dict:
+    """Samples ``lo`` to ``lo + n`` of the seven columns (six without ``time_column``), by
+    name (rounded unless ``full``)."""
     t = (lo + np.arange(n)) / FS
-    cols = {"time [s]": np.round(t, 6)}
+    cols = {"time [s]": np.round(t, 6)} if time_column else {}
     for k, ph in enumerate("abc"):
         th = 2 * np.pi * F0 * t - 2 * np.pi * k / 3
         i = 141.4 * (np.sin(th) + 0.2 * np.sin(5 * th) + 0.1 * np.sin(7 * th))
@@ -115,7 +120,8 @@ CHILD_PARSE = """
 import sys
 from pqcheck.readers.stream import stream_delimited
 n = 0
-for block in stream_delimited(sys.argv[1]).blocks(1 << 18):
+rate = float(sys.argv[2]) if len(sys.argv) > 2 else None  # given when there is no time column
+for block in stream_delimited(sys.argv[1], sample_rate_hz=rate).blocks(1 << 18):
     n += block.shape[1]
 print(n)
 """
@@ -160,7 +166,7 @@ for lo in range(0, x.shape[0] - N + 1, block):
 CHILD_NAIVE = """
 import sys, numpy as np, pandas as pd
 df = pd.read_csv(sys.argv[1])
-data = df.to_numpy()[:, 1:]
+data = df.to_numpy()[:, int(sys.argv[2]):]  # without the time column, if there is one
 N = 4000
 thd = []
 for c in range(data.shape[1]):
@@ -213,37 +219,40 @@ PARSERS = ("parse", "pandas", "arrow", "polars", "duckdb")
 CHILD_TO_NPY = """
 import sys, json, numpy as np, pyarrow.csv as pc
 t = pc.read_csv(sys.argv[1])
-names = t.column_names[1:]
+names = t.column_names[int(sys.argv[3]):]  # without the time column, if there is one
 np.save(sys.argv[2], np.column_stack([t.column(n).to_numpy() for n in names]))
 print(json.dumps([n.split(' [')[0] for n in names]))
 """
 
 
-def to_npy(csv: Path) -> Path:
+def to_npy(csv: Path, time_column: bool = True) -> Path:
     """The same capture as a .npy array (samples x channels) with its JSON side file, written
     by a child process (so that this process stays small: a child's peak RSS counts the
     memory of the process it was forked from)."""
     out = csv.with_suffix(".npy")
-    _, _, cols = run_child([sys.executable, "-c", CHILD_TO_NPY, str(csv), str(out)])
+    _, _, cols = run_child([sys.executable, "-c", CHILD_TO_NPY, str(csv), str(out),
+                            str(int(time_column))])
     out.with_suffix(".json").write_text(json.dumps({"columns": json.loads(cols),
                                                     "sample_rate_hz": FS}))
     return out
 
 
-def measure(path: Path, repeat: int, cache_dir: Path):
+def measure(path: Path, repeat: int, cache_dir: Path, time_column: bool = True):
     py = sys.executable
-    npy = to_npy(path)
+    npy = to_npy(path, time_column)
     opts = ["--nominal-frequency", "50", "--current", "ia,ib,ic", "--voltage", "va,vb,vc",
             "--format", "json", "--quiet"]
     pq = [py, "-m", "pqcheck.cli", "analyze", str(path)] + opts
+    if not time_column:
+        pq += ["--sample-rate", str(FS)]
     jobs = {
         "read": [py, "-c", CHILD_READ, str(path)],
-        "parse": [py, "-c", CHILD_PARSE, str(path)],
+        "parse": [py, "-c", CHILD_PARSE, str(path)] + ([] if time_column else [str(FS)]),
         "pandas": [py, "-c", CHILD_PARSE_PANDAS, str(path)],
         "arrow": [py, "-c", CHILD_PARSE_ARROW, str(path)],
         "polars": [py, "-c", CHILD_PARSE_POLARS, str(path)],
         "duckdb": [py, "-c", CHILD_PARSE_DUCKDB, str(path)],
-        "naive": [py, "-c", CHILD_NAIVE, str(path)],
+        "naive": [py, "-c", CHILD_NAIVE, str(path), str(int(time_column))],
         "fft": [py, "-c", CHILD_FFT, str(npy)],
         "binary": [py, "-m", "pqcheck.cli", "analyze", str(npy)] + opts + ["--no-cache"],
         "cold": pq + ["--no-cache"],
@@ -299,11 +308,15 @@ def main(argv=None) -> int:
                          "by default (%%.18e)")
     ap.add_argument("--workdir", type=Path, default=None,
                     help="where to write the generated captures (default: a temporary folder)")
+    ap.add_argument("--no-time-column", action="store_true",
+                    help="captures of the six channels alone (no time column; the sample "
+                         "rate is given to pqcheck)")
     args = ap.parse_args(argv)
     durations = list(args.durations)
     if args.scaling:
         durations.append(4 * max(durations))
-    print(f"machine: {machine()}; values: {args.digits} precision")
+    print(f"machine: {machine()}; values: {args.digits} precision"
+          + ("; no time column" if args.no_time_column else ""))
     if args.workdir is not None:
         Path(args.workdir).mkdir(parents=True, exist_ok=True)
     with tempfile.TemporaryDirectory(dir=args.workdir) as tmp:
@@ -313,12 +326,12 @@ def main(argv=None) -> int:
             path = tmp / f"capture-{int(seconds)}s.csv"
             t0 = time.perf_counter()
             generate(path, seconds, full=args.digits == "full",
-                     savetxt=args.digits == "savetxt")
+                     savetxt=args.digits == "savetxt", time_column=not args.no_time_column)
             size = path.stat().st_size / 1e6
             print(f"\n{seconds:g} s capture: {size:.0f} MB (generated in "
                   f"{time.perf_counter() - t0:.1f} s)")
             reps = args.repeat if seconds <= 600 else 1
-            med, peak, thd = measure(path, reps, tmp / "cache")
+            med, peak, thd = measure(path, reps, tmp / "cache", not args.no_time_column)
             for k in med:
                 print(f"  {k:<7} {med[k]:8.2f} s   peak RSS {peak[k]:7.0f} MB")
             # the fastest general-purpose parser (pqcheck's own reader is part of what is
