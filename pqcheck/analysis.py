@@ -929,6 +929,33 @@ class _Accumulator:
         self.p1 = [{} for _ in pairs]  # key -> [sum, count]
         self.p3 = {"3-wire": {}, "4-wire": {}}
         self.in2 = 0.0
+        self._queued: list = []
+        self._queued_windows = 0
+
+    BATCH = 256
+    """Windows gathered before they are added: the sums of a span of 60-odd windows cost
+    about as much in NumPy's per-call overhead as in arithmetic."""
+
+    _KEYS = ("valid", "component", "group", "subgroup", "interharmonic_group", "rms", "dc",
+             "peak", "products", "combo_rms")
+
+    def add(self, part: dict) -> None:
+        """Add the per-window values of a span (in file order), at once or with the next
+        spans' (:attr:`BATCH`); every result below includes all spans added."""
+        self._queued.append(part)
+        self._queued_windows += part["valid"].size
+        if self._queued_windows >= self.BATCH:
+            self._flush()
+
+    def _flush(self) -> None:
+        if not self._queued:
+            return
+        parts, self._queued, self._queued_windows = self._queued, [], 0
+        if len(parts) == 1:
+            self._add_part(parts[0])
+            return
+        self._add_part({k: np.concatenate([p[k] for p in parts]) for k in self._KEYS
+                        if k in parts[0]})
 
     @staticmethod
     def _add(d, key, values):
@@ -937,7 +964,7 @@ class _Accumulator:
         s, n = d.get(key, (0.0, 0))
         d[key] = (s + float(values[ok].sum()), n + int(ok.sum()))
 
-    def add(self, part: dict) -> None:
+    def _add_part(self, part: dict) -> None:
         v = part["valid"]
         if not v.any():
             return
@@ -998,6 +1025,7 @@ class _Accumulator:
         return np.sqrt(total / self.n)
 
     def channel_results(self, orders) -> list:
+        self._flush()
         out = []
         r = self.resolved
         for k, c in enumerate(self.chans):
@@ -1033,6 +1061,7 @@ class _Accumulator:
 
     def infer_wiring(self) -> str:
         """4-wire when a neutral was measured or the phase currents do not sum to zero."""
+        self._flush()
         if self.neutral:
             return "4-wire"
         if len(self.curr_abc) != 3:
@@ -1047,6 +1076,7 @@ class _Accumulator:
         return s / n if n else float("nan")
 
     def power(self, wiring):
+        self._flush()
         if not self.pairs:
             return None
         phases = []
