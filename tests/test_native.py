@@ -276,6 +276,20 @@ def test_native_parser_converts_full_precision_exports():
 
 
 @needs_native
+@pytest.mark.parametrize("n", [4079, 4080, 4081, 4096 * 3 + 5, 100_003])
+@pytest.mark.parametrize("fill", ["all", "random"])
+def test_native_line_count_of_long_buffers_equals_numpy(n, fill):
+    # byte counters summed every 255 rounds of 16 bytes: a buffer of nothing but line ends
+    # (every counter at its limit) and random text across those rounds and a ragged tail;
+    # reference numpy.count_nonzero
+    rng = np.random.default_rng(n)
+    buf = (np.full(n, 10, dtype=np.uint8) if fill == "all"
+           else rng.choice(np.array([10, 44, 48, 49, 46], dtype=np.uint8), n))
+    for length in (n, n - 1, n - 15):
+        assert _native.count(buf, length) == int(np.count_nonzero(buf[:length] == 10))
+
+
+@needs_native
 @given(st.binary(max_size=300))
 def test_native_line_count_equals_numpy(data):
     buf = np.frombuffer(data, dtype=np.uint8)
