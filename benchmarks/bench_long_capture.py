@@ -275,7 +275,7 @@ def measure(path: Path, repeat: int, cache_dir: Path, time_column: bool = True):
                 thd = json.loads(out)["channels"][0]["thd_percent"]
     med = {k: statistics.median(v) for k, v in times.items()}
     peak = {k: max(v) for k, v in rss.items()}
-    return med, peak, thd
+    return med, peak, thd, times
 
 
 def machine() -> str:
@@ -331,7 +331,8 @@ def main(argv=None) -> int:
             print(f"\n{seconds:g} s capture: {size:.0f} MB (generated in "
                   f"{time.perf_counter() - t0:.1f} s)")
             reps = args.repeat if seconds <= 600 else 1
-            med, peak, thd = measure(path, reps, tmp / "cache", not args.no_time_column)
+            med, peak, thd, times = measure(path, reps, tmp / "cache",
+                                            not args.no_time_column)
             for k in med:
                 print(f"  {k:<7} {med[k]:8.2f} s   peak RSS {peak[k]:7.0f} MB")
             # the fastest general-purpose parser (pqcheck's own reader is part of what is
@@ -344,6 +345,9 @@ def main(argv=None) -> int:
                   "(target >= 100)")
             print(f"  binary / fft   = {med['binary'] / med['fft']:.1f}")
             print(f"  cold / parser  = {med['cold'] / med[fastest]:.2f}  (target <= 1.3)")
+            if reps > 1:  # the same ratio within each repetition: how much the machine drifts
+                each = sorted(c / f for c, f in zip(times["cold"], times[fastest]))
+                print(f"                   per repetition {each[0]:.2f} to {each[-1]:.2f}")
             print(f"  cold / naive   = {med['cold'] / med['naive']:.2f}  (target < 1)")
             print(f"  cold / cached  = {med['cold'] / med['cached']:.1f}  (target >= 5)")
             print(f"  THD reported {thd:.3f} %, known content {EXPECTED_THD:.3f} %")
