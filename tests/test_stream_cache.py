@@ -163,6 +163,27 @@ def test_npy_and_parquet_inputs_match_csv(capture_csv, tmp_path):
         assert [c.quantity for c in res.channels] == ["current", "voltage"]
 
 
+@pytest.mark.parametrize("block", [1000, 6999, 7000, 7001, 50_000])
+def test_parquet_blocks_are_the_table_whatever_the_row_groups(tmp_path, block):
+    # each block is cut from the row groups it overlaps; the blocks laid end to end are the
+    # columns exactly (reference: the same table through pandas), an integer column read as
+    # float64, a null as NaN, and a column in mA scaled to A
+    rng = np.random.default_rng(block)
+    n = 23_456
+    df = pd.DataFrame({"ia [mA]": rng.normal(size=n) * 1e3, "va [V]": rng.normal(size=n),
+                       "ib": rng.integers(-5, 5, n)})
+    df.loc[12_345, "va [V]"] = None
+    pq = tmp_path / "groups.parquet"
+    df.to_parquet(pq, engine="pyarrow", row_group_size=7000)
+    cap = open_capture(pq, sample_rate_hz=10_000)
+    got = np.concatenate(list(cap.blocks(block)), axis=1)
+    assert got.shape == (3, n)
+    np.testing.assert_array_equal(got[0], df["ia [mA]"].to_numpy() * 1e-3)  # scaled by 1e-3
+    np.testing.assert_array_equal(got[1], df["va [V]"].to_numpy())
+    np.testing.assert_array_equal(got[2], df["ib"].to_numpy().astype(np.float64))
+    assert np.isnan(got[1, 12_345])
+
+
 def test_npy_without_rate_is_refused(tmp_path):
     np.save(tmp_path / "x.npy", np.zeros((100, 2)))
     with pytest.raises(CaptureFormatError, match=r"x\.npy: sample rate: no time column and no sample rate"):

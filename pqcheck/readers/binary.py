@@ -215,21 +215,24 @@ def open_parquet(path, *, sample_rate_hz=None, time_column=None, sha256="") -> C
     names = [p[0] for p in parsed]
 
     def read(cols, rows):
-        start, stop = rows.start, rows.stop
-        out = []
+        """The columns ``cols`` of ``rows``, channel-major ``(len(cols), rows)``: each
+        column of each row group that overlaps the rows copied once, straight into its row
+        of the block."""
+        start, stop = rows.start, min(rows.stop, pf.metadata.num_rows)
+        out = np.empty((len(cols), max(stop - start, 0)))
         pos = 0
         for g in range(pf.num_row_groups):
             n = pf.metadata.row_group(g).num_rows
             if pos + n > start and pos < stop:
                 tb = pf.read_row_group(g, columns=[raw_names[c] for c in cols])
-                a = np.column_stack([_as_float(tb.column(i), raw_names[c], path)
-                                     for i, c in enumerate(cols)])
-                out.append(a[max(start - pos, 0):stop - pos])
+                lo, hi = max(start - pos, 0), min(stop - pos, n)
+                for i, c in enumerate(cols):
+                    col = _as_float(tb.column(i), raw_names[c], path)
+                    out[i, pos + lo - start:pos + hi - start] = col[lo:hi]
             pos += n
             if pos >= stop:
                 break
-        return np.ascontiguousarray((np.concatenate(out) if out
-                                     else np.empty((0, len(cols)))).T)
+        return out
 
     fs = sample_rate_hz or (float(declared) if declared else None)
     return _open_table(path, names, [p[1] for p in parsed], np.array([p[2] for p in parsed]),
@@ -239,7 +242,7 @@ def open_parquet(path, *, sample_rate_hz=None, time_column=None, sha256="") -> C
 def _as_float(column, name, path):
     """A Parquet column as float64; a column of text or nested values is a clear error."""
     try:
-        return column.to_numpy(zero_copy_only=False).astype(np.float64)
+        return column.to_numpy(zero_copy_only=False).astype(np.float64, copy=False)
     except (ValueError, TypeError) as exc:
         raise CaptureFormatError(
             f"column {name!r} ({column.type}) holds values that are not numbers ({exc}); "
