@@ -20,6 +20,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from pqcheck import Capture, analyze
 
@@ -299,3 +301,32 @@ def test_results_document_carries_every_grouping_of_an_off_nominal_capture(tmp_p
     for key, values in expected.items():
         _assert_orders({h: by[h][key] for h in values}, values, fund, key)
     assert doc["fundamental_hz"] == pytest.approx(f0, abs=1e-3)
+
+
+@settings(max_examples=200, deadline=None)
+@given(n=st.integers(2, 500_000), taps=st.sampled_from([8, 16, 24, 64, 216, 512]))
+def test_window_length_is_seven_smooth_covers_the_window_and_costs_least(n, taps):
+    # the points a window is resampled to (spectrum.transform_length): never fewer than its
+    # samples, at most the next power of two, only factors 2, 3, 5 and 7 (fast in pocketfft),
+    # and no seven-smooth length in that range has a smaller modelled cost (brute force)
+    from pqcheck.dsp import spectrum
+
+    m = spectrum.transform_length(n, taps)
+    top = 1 << (n - 1).bit_length()
+    assert n <= m <= top
+    rest = m
+    for p in (2, 3, 5, 7):
+        while rest % p == 0:
+            rest //= p
+    assert rest == 1
+
+    # every length in range, its factors divided out with NumPy; seven-smooth where 1 is left
+    cand = np.arange(n, top + 1, dtype=np.int64)
+    left = cand.copy()
+    for p in (2, 3, 5, 7):
+        while (hit := left % p == 0).any():
+            left[hit] //= p
+    smooth = cand[left == 1]
+    costs = [v * (spectrum._fft_cost(int(v)) + spectrum.RESAMPLE_COST * taps) for v in smooth]
+    assert m in smooth
+    assert m * (spectrum._fft_cost(m) + spectrum.RESAMPLE_COST * taps) <= min(costs) + 1e-9
