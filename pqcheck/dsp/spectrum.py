@@ -700,7 +700,7 @@ FFT_COST = {2: 0.23, 3: 0.42, 5: 0.56, 7: 1.18}
 """Modelled time of a real transform per point, for each prime factor of its length
 (pocketfft, as numpy.fft runs it: a factor 7 costs five times a factor 2). Fitted by least
 squares to the measured times of 48 seven-smooth lengths from 1000 to 53 000 on a 2-core AMD
-EPYC (ns per point, within 15 %). A fixed model, not a measurement at run time: a window's
+EPYC (ns per point, within 20 %). A fixed model, not a measurement at run time: a window's
 length, and with it every number, is the same on every machine. [ns]"""
 
 RESAMPLE_COST = 0.22
