@@ -204,25 +204,33 @@ def _kaiser_sinc(u, cutoff: float, beta: float, half: float):
     return _kaiser_sinc_numpy(u, cutoff, beta, half)
 
 
-@functools.lru_cache(maxsize=256)
-def fast_length(n: int) -> int:
-    """Smallest 7-smooth whole number at least ``n`` (a fast FFT length). [samples]"""
+def _smooth_lengths(n: int):
+    """Every seven-smooth whole number from ``n`` up to the next power of two (that power
+    included), in no particular order: for each product of powers of 3, 5 and 7 below it,
+    the smallest multiple by a power of two at least ``n`` (a larger one would pass the
+    power of two). [samples]"""
     n = max(int(n), 1)
-    best = 1 << (n - 1).bit_length()
+    top = 1 << (n - 1).bit_length()
     p7 = 1
-    while p7 < best:
+    while p7 <= top:
         p5 = p7
-        while p5 < best:
+        while p5 <= top:
             p3 = p5
-            while p3 < best:
+            while p3 <= top:
                 v = p3
                 while v < n:
                     v *= 2
-                best = min(best, v)
+                if v <= top:
+                    yield v
                 p3 *= 3
             p5 *= 5
         p7 *= 7
-    return best
+
+
+@functools.lru_cache(maxsize=256)
+def fast_length(n: int) -> int:
+    """Smallest 7-smooth whole number at least ``n`` (a fast FFT length). [samples]"""
+    return min(_smooth_lengths(n))
 
 
 _CHUNK = 1 << 22
@@ -720,26 +728,8 @@ def transform_length(n: int, taps: int) -> int:
     >>> transform_length(4004, 16), transform_length(4004, 216)
     (4096, 4050)
     """
-    n = max(int(n), 1)
-    top = 1 << (n - 1).bit_length()
-    best, best_cost = top, None
-    p7 = 1
-    while p7 <= top:
-        p5 = p7
-        while p5 <= top:
-            p3 = p5
-            while p3 <= top:
-                v = p3
-                while v < n:
-                    v *= 2
-                if v <= top:
-                    cost = v * (_fft_cost(v) + RESAMPLE_COST * taps)
-                    if best_cost is None or cost < best_cost or (cost == best_cost and v < best):
-                        best, best_cost = v, cost
-                p3 *= 3
-            p5 *= 5
-        p7 *= 7
-    return best
+    # the least cost, and of equal costs the shortest length
+    return min(_smooth_lengths(n), key=lambda v: (v * (_fft_cost(v) + RESAMPLE_COST * taps), v))
 
 
 def _fft_cost(m: int) -> float:
