@@ -40,10 +40,9 @@
  * side of its fractional position: w = r0 + a (r1 - r0), a the position's fraction of the
  * way from row p to row p + 1 (phases a power of two: (pos - i0) * phases is exact). */
 static inline __attribute__((always_inline)) void
-tile_weights(double s, double ln, double kap, int64_t m_pts, int64_t m0,
-                         int64_t m1, int64_t half, int64_t phases,
-                         const double *restrict table, int64_t taps, int64_t *restrict bases,
-                         double *restrict wts)
+tile_weights(double s, double ln, double kap, int64_t m_pts, int64_t m0, int64_t m1,
+             int64_t half, int64_t phases, const double *restrict table, int64_t taps,
+             int64_t *restrict bases, double *restrict wts)
 {
     for (int64_t m = m0; m < m1; m++) {
         double u = (double)m / (double)m_pts;
@@ -201,8 +200,10 @@ EXPORT int pq_resample(const double *x, int64_t c_n, int64_t n, const double *st
     int64_t tile = (4096 / (taps > 0 ? taps : 1)) & ~(int64_t)3;
     tile = tile < 4 ? 4 : (tile > 64 ? 64 : tile);
     int64_t *bases = malloc(sizeof(int64_t) * (size_t)tile);
-    /* on whole cache lines: a row of weights (taps a multiple of 8) is whole lines */
-    double *wts = aligned_alloc(64, sizeof(double) * (size_t)(tile * (taps > 0 ? (taps + 7) / 8 * 8 : 8)));
+    /* on whole cache lines (a row of weights, taps a multiple of 8, is whole lines); the
+     * size a multiple of 64 bytes, as aligned_alloc asks */
+    const int64_t padded = taps > 0 ? (taps + 7) / 8 * 8 : 8;
+    double *wts = aligned_alloc(64, sizeof(double) * (size_t)(tile * padded));
     if (!bases || !wts) {
         free(bases);
         free(wts);
