@@ -184,6 +184,31 @@ def test_parquet_blocks_are_the_table_whatever_the_row_groups(tmp_path, block):
     assert np.isnan(got[1, 12_345])
 
 
+def test_parquet_from_a_logger_float32_time_in_ms_and_an_empty_row_group(tmp_path):
+    # what a data logger's export can hold: samples stored as float32, the time column in
+    # milliseconds, and a row group with no rows (a writer flushed twice); the rate comes
+    # from the time column (1 ms steps: 1000 Hz) and the blocks are the float32 values
+    # widened exactly (reference: numpy's astype)
+    import pyarrow as pa
+    import pyarrow.parquet as pq_
+
+    n = 3000
+    ia = np.sin(np.arange(n) / 3.0).astype(np.float32)
+    tab = pa.table({"time [ms]": np.arange(n, dtype=np.float64), "ia [A]": ia})
+    path = tmp_path / "logger.parquet"
+    with pq_.ParquetWriter(path, tab.schema) as w:
+        w.write_table(tab.slice(0, 1000))
+        w.write_table(tab.slice(0, 0))
+        w.write_table(tab.slice(1000))
+    assert [pq_.ParquetFile(path).metadata.row_group(g).num_rows for g in range(3)] == \
+        [1000, 0, 2000]
+    cap = open_capture(path)
+    assert cap.fs_hz == pytest.approx(1000.0)
+    assert [c.name for c in cap.channels] == ["ia"]
+    got = np.concatenate(list(cap.blocks(700)), axis=1)
+    np.testing.assert_array_equal(got[0], ia.astype(np.float64))
+
+
 def test_npy_without_rate_is_refused(tmp_path):
     np.save(tmp_path / "x.npy", np.zeros((100, 2)))
     with pytest.raises(CaptureFormatError, match=r"x\.npy: sample rate: no time column and no sample rate"):
